@@ -1,0 +1,36 @@
+"""`helpaware`: one command-line tool with a subcommand per job."""
+from __future__ import annotations
+
+import argparse
+import importlib
+import sys
+
+# subcommand -> (module under helpaware_node, one-line help). Each module has
+# add_arguments(parser) and run(args) -> exit code; imported only when used.
+SUBCOMMANDS = {
+    "demo": ("tools.demo", "run the demo scenario (invented hospital night shift)"),
+}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(prog="helpaware", description=__doc__)
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    sub.required = True
+    for name, (module, help_text) in SUBCOMMANDS.items():
+        p = sub.add_parser(name, help=help_text, description=help_text)
+        p.set_defaults(_module=module)
+        importlib.import_module(f"helpaware_node.{module}").add_arguments(p)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    module = importlib.import_module(f"helpaware_node.{args._module}")
+    try:
+        return int(module.run(args) or 0)
+    except KeyboardInterrupt:
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

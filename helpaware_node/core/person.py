@@ -1,0 +1,123 @@
+"""What the robot remembers of one person, and the fold of outcome events into a belief.
+
+The same functions serve the node, the simulator, replay and the store reload, so the belief
+after a sequence of events does not depend on which of them applies it.
+"""
+from __future__ import annotations
+
+import enum
+from dataclasses import dataclass, replace
+from typing import Iterable
+
+from .belief import Belief, forget, update_declined, update_helped, update_no_response
+from .context import context_factor
+from .model import CoreInputError, SiteModel, check_range
+
+DAY_S = 86400.0
+
+
+class Result(str, enum.Enum):
+    """What happened after the robot decided to ask."""
+
+    HELPED = "helped"
+    DECLINED = "declined"
+    NO_RESPONSE = "no_response"
+    COULD_NOT_ASK = "could_not_ask"   # the ask never reached the person: no evidence
+
+    @classmethod
+    def parse(cls, text: str) -> "Result":
+        try:
+            return cls(text)
+        except ValueError:
+            allowed = ", ".join(r.value for r in cls)
+            raise CoreInputError(f"result: {text!r} is not one of {allowed}") from None
+
+
+@dataclass(frozen=True)
+class OutcomeEvent:
+    """One answered ask: the context is the one in force when the robot asked."""
+
+    time_s: float          # when the ask was made
+    result: Result
+    busyness: float        # x at the ask
+    ask_load: float        # f at the ask, before this ask
+    event_id: str = ""     # robot id + sequence; orders events that share a time
+
+    def __post_init__(self) -> None:
+        check_range("time_s", self.time_s, -1e15, 1e15)
+        check_range("busyness", self.busyness, 0.0, 1.0)
+        check_range("ask_load", self.ask_load, 0.0, 1e6)
+        if not isinstance(self.result, Result):
+            object.__setattr__(self, "result", Result.parse(self.result))
+
+
+def apply_event(belief: Belief, event: OutcomeEvent, model: SiteModel) -> Belief:
+    """Update a belief (already brought to event.time_s) by one outcome."""
+    c = context_factor(event.busyness, event.ask_load, model.k_busy, model.k_load)
+    if event.result is Result.HELPED:
+        return update_helped(belief)
+    if event.result is Result.DECLINED:
+        return update_declined(belief, c)
+    if event.result is Result.NO_RESPONSE:
+        return update_no_response(belief, c, model.notice_probability)
+    return belief
+
+
+def event_order(event: OutcomeEvent) -> tuple[float, str]:
+    return (event.time_s, event.event_id)
+
+
+def fold_events(events: Iterable[OutcomeEvent], model: SiteModel,
+                start: Belief | None = None, start_time_s: float | None = None
+                ) -> tuple[Belief, float | None]:
+    """Belief after `events` in (time, event id) order, and the time of the last one."""
+    belief = start if start is not None else Belief.prior(model)
+    prior = Belief.prior(model)
+    last = start_time_s
+    for event in sorted(events, key=event_order):
+        if last is not None:
+            belief = forget(belief, prior, event.time_s - last, model.evidence_half_life_s)
+        belief = apply_event(belief, event, model)
+        last = event.time_s if last is None else max(last, event.time_s)
+    return belief, last
+
+
+@dataclass(frozen=True)
+class PersonRecord:
+    """The learned state of one person: belief, recent asks, how often they are around."""
+
+    belief: Belief
+    belief_time_s: float | None = None      # time of the last evidence (for forgetting)
+    ask_times_s: tuple[float, ...] = ()      # asks of this person (pruned after a day)
+    candidate_count: int = 0                 # help needs where the person was a candidate
+    first_seen_s: float | None = None
+
+    @classmethod
+    def new(cls, model: SiteModel) -> "PersonRecord":
+        return cls(Belief.prior(model))
+
+
+def belief_at(record: PersonRecord, now_s: float, model: SiteModel) -> Belief:
+    """The belief brought forward to `now_s` by forgetting."""
+    if record.belief_time_s is None:
+        return record.belief
+    return forget(record.belief, Belief.prior(model), now_s - record.belief_time_s,
+                  model.evidence_half_life_s)
+
+
+def note_candidate(record: PersonRecord, now_s: float) -> PersonRecord:
+    first = now_s if record.first_seen_s is None else min(record.first_seen_s, now_s)
+    return replace(record, candidate_count=record.candidate_count + 1, first_seen_s=first)
+
+
+def note_ask(record: PersonRecord, now_s: float, model: SiteModel) -> PersonRecord:
+    """Remember an ask; asks older than a day and ten memory half-lives are dropped."""
+    horizon = max(DAY_S, 10.0 * model.ask_memory_half_life_s)
+    kept = tuple(t for t in record.ask_times_s if now_s - t < horizon)
+    return replace(record, ask_times_s=kept + (now_s,))
+
+
+def note_outcome(record: PersonRecord, event: OutcomeEvent, model: SiteModel) -> PersonRecord:
+    """Fold one more event in, the same way `fold_events` does."""
+    belief, last = fold_events([event], model, record.belief, record.belief_time_s)
+    return replace(record, belief=belief, belief_time_s=last)

@@ -1,0 +1,313 @@
+"""The decision at a help need: hard limits first, then a one-step look-ahead score.
+
+For each eligible candidate i (DESIGN.md section 4):
+  A_i   = p_i (C_r - t_help) - (1 - p_i) t_ask - I_i           immediate advantage, robot-s
+  VOI_i = p_i U(m_helped) + (1 - p_i) U(m_declined) - U(m_i)    value of what the answer teaches
+  N_i   = discounted number of future requests where i is a candidate
+  Q_i   = A_i + N_i VOI_i
+Ask the best candidate when its Q is above zero; otherwise (ties included) continue.
+Exclusions are never traded for value; each carries a reason code.
+"""
+from __future__ import annotations
+
+import enum
+import math
+from dataclasses import dataclass, field
+from typing import Callable, Optional, Sequence
+
+import numpy as np
+
+from .belief import Belief, declined_moments
+from .context import ask_load, context_factor
+from .model import CoreInputError, DecisionConfig, SiteModel, check_range, params_hash
+from .person import DAY_S, PersonRecord, belief_at
+
+HOUR_S = 3600.0
+
+
+class Exclusion(str, enum.Enum):
+    """Why a candidate could not be asked, in the order the limits are checked."""
+
+    OPTED_OUT = "opted_out"
+    PROTECTED_ACTIVITY = "protected_activity"
+    STALE_OBSERVATION = "stale_observation"
+    TOO_FAR = "too_far"
+    TOO_BUSY = "too_busy"
+    REASK_INTERVAL = "reask_interval"
+    PERSON_DAILY_CAP = "person_daily_cap"
+    ROBOT_HOURLY_CAP = "robot_hourly_cap"
+
+
+@dataclass(frozen=True)
+class HelpNeed:
+    request_id: str
+    kind: str
+    opened_at_s: float
+    urgency: float = 0.0
+    continue_cost_s: Optional[float] = None   # overrides the per-kind cost
+    help_time_s: Optional[float] = None       # overrides t_help
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.request_id, str) or not self.request_id:
+            raise CoreInputError("request_id: must be a non-empty string")
+        if not isinstance(self.kind, str) or not self.kind:
+            raise CoreInputError("kind: must be a non-empty string")
+        check_range("opened_at_s", self.opened_at_s, -1e15, 1e15)
+        check_range("urgency", self.urgency, 0.0, 1.0)
+        if self.continue_cost_s is not None:
+            check_range("continue_cost_s", self.continue_cost_s, 0.0, 1e9)
+        if self.help_time_s is not None:
+            check_range("help_time_s", self.help_time_s, 0.0, 1e9)
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """A person in view at the help need, with what the robot has learned of them."""
+
+    person_id: str
+    distance_m: float
+    observed_at_s: float
+    belief: Belief                       # brought to the decision time
+    busyness: Optional[float] = None     # None: the site's default busyness
+    activity: str = ""
+    ask_times_s: tuple[float, ...] = ()
+    candidate_count: int = 0
+    first_seen_s: Optional[float] = None
+    opted_out: bool = False
+
+    def __post_init__(self) -> None:
+        if not isinstance(self.person_id, str) or not self.person_id:
+            raise CoreInputError("person_id: must be a non-empty string")
+        check_range(f"distance_m of {self.person_id}", self.distance_m, 0.0, 1e6)
+        check_range(f"observed_at_s of {self.person_id}", self.observed_at_s, -1e15, 1e15)
+        if self.busyness is not None:
+            check_range(f"busyness of {self.person_id}", self.busyness, 0.0, 1.0)
+
+
+def candidate_from_record(person_id: str, record: PersonRecord, now_s: float, model: SiteModel,
+                          distance_m: float, observed_at_s: float,
+                          busyness: Optional[float] = None, activity: str = "",
+                          opted_out: bool = False) -> Candidate:
+    """The one way node, simulator and replay turn a remembered person into a candidate."""
+    return Candidate(person_id=person_id, distance_m=distance_m, observed_at_s=observed_at_s,
+                     belief=belief_at(record, now_s, model), busyness=busyness,
+                     activity=activity, ask_times_s=record.ask_times_s,
+                     candidate_count=record.candidate_count, first_seen_s=record.first_seen_s,
+                     opted_out=opted_out)
+
+
+@dataclass(frozen=True)
+class Evaluation:
+    """Every number of the decision, one array entry per candidate (in input order)."""
+
+    need: HelpNeed
+    now_s: float
+    candidates: tuple[Candidate, ...]
+    exclusions: tuple[Optional[Exclusion], ...]
+    continue_cost_s: float
+    help_time_s: float
+    a: np.ndarray
+    b: np.ndarray
+    mean: np.ndarray
+    busyness: np.ndarray
+    ask_load: np.ndarray
+    c: np.ndarray
+    p: np.ndarray
+    interruption_s: np.ndarray
+    advantage_s: np.ndarray
+    voi_s: np.ndarray
+    future_requests: np.ndarray
+    score_s: np.ndarray
+    params_hash: str
+
+    @property
+    def eligible(self) -> np.ndarray:
+        return np.array([e is None for e in self.exclusions], dtype=bool)
+
+
+@dataclass(frozen=True)
+class Decision:
+    """An action with its rationale. `person_index` points into evaluation.candidates."""
+
+    evaluation: Evaluation
+    action: str                        # "ask" or "continue"
+    person_index: Optional[int]
+    why: str                           # short reason for the action
+    policy: str = "lookahead"
+
+    @property
+    def person_id(self) -> Optional[str]:
+        if self.person_index is None:
+            return None
+        return self.evaluation.candidates[self.person_index].person_id
+
+    def rationale(self) -> list[dict]:
+        """Per candidate: belief, context, A, VOI, N, Q, or the exclusion that ruled them out."""
+        ev = self.evaluation
+        rows = []
+        for i, cand in enumerate(ev.candidates):
+            excl = ev.exclusions[i]
+            rows.append({
+                "person_id": cand.person_id,
+                "excluded": excl.value if excl is not None else None,
+                "a": float(ev.a[i]), "b": float(ev.b[i]), "mean": float(ev.mean[i]),
+                "busyness": float(ev.busyness[i]), "ask_load": float(ev.ask_load[i]),
+                "distance_m": float(cand.distance_m),
+                "c": float(ev.c[i]), "p": float(ev.p[i]),
+                "interruption_s": float(ev.interruption_s[i]),
+                "advantage_s": float(ev.advantage_s[i]), "voi_s": float(ev.voi_s[i]),
+                "future_requests": float(ev.future_requests[i]),
+                "score_s": float(ev.score_s[i]),
+            })
+        return rows
+
+
+def _limits(cand: Candidate, busyness: float, now_s: float, config: DecisionConfig,
+            robot_capped: bool) -> Optional[Exclusion]:
+    if cand.opted_out:
+        return Exclusion.OPTED_OUT
+    if cand.activity and cand.activity in config.protected_activities:
+        return Exclusion.PROTECTED_ACTIVITY
+    if now_s - cand.observed_at_s > config.max_observation_age_s:
+        return Exclusion.STALE_OBSERVATION
+    if cand.distance_m > config.max_distance_m:
+        return Exclusion.TOO_FAR
+    if busyness >= config.busyness_limit:
+        return Exclusion.TOO_BUSY
+    recent = [t for t in cand.ask_times_s if now_s - t < DAY_S]
+    if any(now_s - t < config.min_reask_interval_s for t in recent):
+        return Exclusion.REASK_INTERVAL
+    if len(recent) >= config.max_asks_per_person_per_day:
+        return Exclusion.PERSON_DAILY_CAP
+    if robot_capped:
+        return Exclusion.ROBOT_HOURLY_CAP
+    return None
+
+
+def ask_advantage(p, continue_cost_s, help_time_s, ask_time_s, interruption_s):
+    """A = p (C - t_help) - (1 - p) t_ask - I."""
+    return p * (continue_cost_s - help_time_s) - (1.0 - p) * ask_time_s - interruption_s
+
+
+def typical_gain(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
+    """U(m): advantage of the best choice at a typical future request (never below 0)."""
+    cbar = math.exp(-model.k_busy * config.typical_busyness)
+    ibar = config.interruption_weight_s * (1.0 + config.busy_cost * config.typical_busyness)
+    gain = cbar * (config.typical_continue_cost_s - help_time_s + config.ask_time_s)
+    return np.maximum(0.0, gain * np.asarray(mean) - config.ask_time_s - ibar)
+
+
+def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_time_s: float):
+    """VOI = p U(m_helped) + (1 - p) U(m_declined) - U(m) with the updates the answer causes."""
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    m = a / (a + b)
+    p = c * m
+    m_helped = (a + 1.0) / (a + b + 1.0)
+    m_declined, _ = declined_moments(a, b, c)
+    u = lambda x: typical_gain(x, model, config, help_time_s)  # noqa: E731
+    voi = p * u(m_helped) + (1.0 - p) * u(m_declined) - u(m)
+    # U is convex and the mean a martingale, so VOI >= 0; clip only rounding noise
+    return np.maximum(voi, 0.0)
+
+
+def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
+    """N: expected discounted future requests with this person a candidate.
+
+    Rate (Gamma-Poisson with a prior of `prior_candidate_rate_per_day` over
+    `prior_rate_window_s`), times the discounted length of the look-ahead horizon.
+    """
+    window = config.prior_rate_window_s
+    prior_count = config.prior_candidate_rate_per_day * window / DAY_S
+    span = np.maximum(now_s - first_seen_s, 0.0)
+    rate_per_s = (prior_count + counts) / (window + span)
+    tau = config.future_discount_time_s
+    effective_s = tau * (1.0 - math.exp(-config.lookahead_horizon_s / tau))
+    return rate_per_s * effective_s
+
+
+def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
+             robot_ask_times_s: Sequence[float], model: SiteModel,
+             config: DecisionConfig) -> Evaluation:
+    """Screen every candidate against the hard limits and compute every score (vectorised)."""
+    check_range("now_s", now_s, -1e15, 1e15)
+    cands = tuple(candidates)
+    n = len(cands)
+    continue_cost = (need.continue_cost_s if need.continue_cost_s is not None
+                     else config.continue_cost_s(need.kind, need.urgency))
+    help_time = need.help_time_s if need.help_time_s is not None else config.help_time_s
+    robot_recent = sum(1 for t in robot_ask_times_s if now_s - t < HOUR_S)
+    robot_capped = robot_recent >= config.max_asks_per_hour
+
+    a = np.empty(n)
+    b = np.empty(n)
+    x = np.empty(n)
+    load = np.empty(n)
+    counts = np.empty(n)
+    first = np.empty(n)
+    exclusions = []
+    h = model.ask_memory_half_life_s
+    for i, cand in enumerate(cands):
+        a[i] = cand.belief.a
+        b[i] = cand.belief.b
+        x[i] = model.default_busyness if cand.busyness is None else cand.busyness
+        load[i] = sum(2.0 ** (-max(now_s - t, 0.0) / h) for t in cand.ask_times_s)
+        counts[i] = cand.candidate_count
+        first[i] = now_s if cand.first_seen_s is None else cand.first_seen_s
+        exclusions.append(_limits(cand, x[i], now_s, config, robot_capped))
+
+    mean = a / (a + b) if n else np.empty(0)
+    c = np.asarray(context_factor(x, load, model.k_busy, model.k_load), dtype=float).reshape(n)
+    p = c * mean
+    interruption = config.interruption_weight_s * (1.0 + config.busy_cost * x
+                                                   + config.repeat_cost * load)
+    advantage = ask_advantage(p, continue_cost, help_time, config.ask_time_s, interruption)
+    voi = information_value(a, b, c, model, config, help_time) if n else np.empty(0)
+    fut = future_requests(counts, first, now_s, config)
+    score = advantage + fut * voi
+    return Evaluation(need=need, now_s=now_s, candidates=cands, exclusions=tuple(exclusions),
+                      continue_cost_s=float(continue_cost), help_time_s=float(help_time),
+                      a=a, b=b, mean=mean, busyness=x, ask_load=load, c=c, p=p,
+                      interruption_s=interruption, advantage_s=advantage, voi_s=voi,
+                      future_requests=fut, score_s=score, params_hash=params_hash(model, config))
+
+
+def best_positive(ev: Evaluation, values: np.ndarray) -> Optional[int]:
+    """Index of the eligible candidate with the largest value > 0 (ties: nearer, then id)."""
+    order = sorted((i for i in range(len(ev.candidates)) if ev.exclusions[i] is None),
+                   key=lambda i: (-values[i], ev.candidates[i].distance_m,
+                                  ev.candidates[i].person_id))
+    if not order or not values[order[0]] > 0.0:
+        return None
+    return order[0]
+
+
+def choose_lookahead(ev: Evaluation) -> Optional[int]:
+    return best_positive(ev, ev.score_s)
+
+
+Chooser = Callable[[Evaluation], Optional[int]]
+
+
+def conclude(ev: Evaluation, index: Optional[int], policy: str = "lookahead") -> Decision:
+    """Wrap a chooser's pick into a Decision with the reason for the action."""
+    if index is not None:
+        if ev.exclusions[index] is not None:  # a chooser must never override a hard limit
+            raise CoreInputError(f"policy {policy} picked an excluded candidate "
+                                 f"({ev.exclusions[index].value})")
+        return Decision(ev, "ask", index, "best_score_positive", policy)
+    if not ev.candidates:
+        why = "no_candidates"
+    elif not ev.eligible.any():
+        why = "all_excluded"
+    else:
+        why = "no_positive_score"
+    return Decision(ev, "continue", None, why, policy)
+
+
+def decide(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
+           robot_ask_times_s: Sequence[float], model: SiteModel, config: DecisionConfig,
+           chooser: Chooser = choose_lookahead, policy: str = "lookahead") -> Decision:
+    """The one decision code path of node, simulator and replay."""
+    ev = evaluate(need, candidates, now_s, robot_ask_times_s, model, config)
+    return conclude(ev, chooser(ev), policy)

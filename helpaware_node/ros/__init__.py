@@ -1,0 +1,1 @@
+"""ROS 2 wiring. The only package that imports rclpy."""

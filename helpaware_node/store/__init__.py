@@ -1,0 +1,1 @@
+"""Persistence of outcome events and belief snapshots."""

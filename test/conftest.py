@@ -1,0 +1,23 @@
+"""Test configuration: keep every rclpy process of the run on loopback and its own domain."""
+import os
+import random
+
+import pytest
+from hypothesis import HealthCheck, settings
+
+# Set here, not inherited: DDS stays on loopback, and this run does not hear parallel runs.
+os.environ["ROS_AUTOMATIC_DISCOVERY_RANGE"] = "LOCALHOST"
+os.environ.pop("ROS_LOCALHOST_ONLY", None)
+os.environ["ROS_DOMAIN_ID"] = str(random.Random(os.getpid()).randint(1, 100))
+
+# A slow, noisy 2-core machine: no per-example deadlines.
+settings.register_profile("ci", deadline=None, max_examples=200,
+                          suppress_health_check=[HealthCheck.too_slow])
+settings.load_profile("ci")
+
+DATA_DIR = os.path.join(os.path.dirname(__file__), "data")
+
+
+@pytest.fixture
+def data_dir():
+    return DATA_DIR
