@@ -1,0 +1,19 @@
+"""The in-memory store: idempotent append, fold equals the core fold, forget removes all."""
+from helpaware_node.core import Result, SiteModel, fold_events
+from helpaware_node.store.base import MemoryStore, StoredEvent, person_key
+
+
+def test_append_is_idempotent_and_belief_is_the_fold():
+    store = MemoryStore(site_key=b"k" * 32)
+    key = store.key_for("nurse-a")
+    assert key == person_key(b"k" * 32, "nurse-a") and "nurse-a" not in key
+    evs = [StoredEvent(f"r1/{i}", key, 10.0 * i, r, 0.2, 0.0)
+           for i, r in enumerate([Result.HELPED, Result.DECLINED, Result.HELPED])]
+    assert store.extend(evs) == 3
+    assert store.extend(evs) == 0
+    model = SiteModel()
+    assert store.belief(key, model) == fold_events([e.to_outcome() for e in evs], model)
+    store.opt_out(key)
+    assert store.is_opted_out(key)
+    assert store.forget(key) == 3
+    assert store.keys() == [] and not store.is_opted_out(key)
