@@ -8,6 +8,8 @@ import sys
 # subcommand -> (module under helpaware_node, one-line help). Each module has
 # add_arguments(parser) and run(args) -> exit code; imported only when used.
 SUBCOMMANDS = {
+    "record": ("tools.record", "record the node's topics into a rosbag2 MCAP bag (hashed person ids)"),
+    "review": ("tools.review", "report on a bag: timeline, willingness, calibration, limits, replay"),
     "demo": ("tools.demo", "run the demo scenario (invented hospital night shift)"),
 }
 

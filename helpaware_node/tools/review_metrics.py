@@ -1,0 +1,53 @@
+"""Scores of predicted help probability against what happened, and Beta intervals.
+
+Brier score  = mean (p - y)^2
+log loss     = -mean [y ln p + (1 - y) ln(1 - p)], p clipped to [eps, 1 - eps]
+reliability  = per probability bin: mean predicted p, observed help rate, count
+"""
+from __future__ import annotations
+
+import math
+from typing import Sequence
+
+import numpy as np
+from scipy import stats
+
+LOG_LOSS_EPS = 1e-15
+
+
+def brier_score(p: Sequence[float], y: Sequence[int]) -> float:
+    p = np.asarray(p, dtype=float)
+    y = np.asarray(y, dtype=float)
+    if p.size == 0:
+        return math.nan
+    return float(np.mean((p - y) ** 2))
+
+
+def log_loss(p: Sequence[float], y: Sequence[int], eps: float = LOG_LOSS_EPS) -> float:
+    p = np.clip(np.asarray(p, dtype=float), eps, 1.0 - eps)
+    y = np.asarray(y, dtype=float)
+    if p.size == 0:
+        return math.nan
+    return float(-np.mean(y * np.log(p) + (1.0 - y) * np.log1p(-p)))
+
+
+def reliability_bins(p: Sequence[float], y: Sequence[int], n_bins: int = 10) -> list[dict]:
+    """Equal-width bins on [0, 1]; p = 1 falls in the last bin. Empty bins are left out."""
+    p = np.asarray(p, dtype=float)
+    y = np.asarray(y, dtype=float)
+    idx = np.minimum((p * n_bins).astype(int), n_bins - 1)
+    rows = []
+    for k in range(n_bins):
+        sel = idx == k
+        n = int(sel.sum())
+        if n:
+            rows.append({"bin_low": k / n_bins, "bin_high": (k + 1) / n_bins, "count": n,
+                         "mean_predicted": float(p[sel].mean()),
+                         "observed_rate": float(y[sel].mean())})
+    return rows
+
+
+def beta_interval(a, b, level: float = 0.9):
+    """Central `level` interval of Beta(a, b) (vectorised)."""
+    tail = (1.0 - level) / 2.0
+    return stats.beta.ppf(tail, a, b), stats.beta.ppf(1.0 - tail, a, b)
