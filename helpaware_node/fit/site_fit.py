@@ -1,0 +1,275 @@
+"""Maximum marginal likelihood of the site constants, standard errors and the test of context.
+
+Optimised by L-BFGS-B on theta = (log a0, log b0, k_busy, k_load, logit q, logit tau).  The
+k's stay on their natural scale with the bound k >= 0 because k = 0 is a legitimate value (it
+is the null of the likelihood-ratio test) that a log or softplus map could only approach.
+Gradient: analytic in k_busy, k_load, q, tau (the Gauss-Jacobi nodes do not depend on them);
+in log a0 and log b0 a five-point central difference of the exact quadrature (the nodes move
+with a0, b0; the integral is exact so the function is smooth to rounding).  Standard errors
+come from the Hessian (central differences of that gradient) on the transformed scale,
+carried back by the delta method.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+from scipy import optimize, stats
+from scipy.special import expit, logit
+
+from .data import DECLINED, HELPED, NO_RESPONSE, FitInputError, OutcomeData
+from .progress import Progress
+from .site_likelihood import SiteLikelihood, SiteParams
+
+NAMES = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability", "decline_aloud")
+K_MAX = 50.0                      # SiteModel's range for k_busy, k_load
+LOG_AB_BOUNDS = (math.log(1e-3), math.log(1e6))
+LOGIT_BOUNDS = (-30.0, 30.0)
+MIN_OUTCOMES = 10
+MIN_SPREAD = 1e-9                 # a covariate with less spread than this is "constant"
+
+
+def to_theta(p: SiteParams) -> np.ndarray:
+    q = min(max(p.notice_probability, 1e-12), 1 - 1e-12)
+    t = min(max(p.decline_aloud, 1e-12), 1 - 1e-12)
+    return np.array([math.log(p.prior_a), math.log(p.prior_b), p.k_busy, p.k_load,
+                     float(logit(q)), float(logit(t))])
+
+
+def from_theta(theta: np.ndarray) -> SiteParams:
+    return SiteParams(math.exp(theta[0]), math.exp(theta[1]), float(theta[2]), float(theta[3]),
+                      float(expit(theta[4])), float(expit(theta[5])))
+
+
+def natural_jacobian(theta: np.ndarray) -> np.ndarray:
+    """d natural / d theta (diagonal) for the delta method."""
+    q, t = expit(theta[4]), expit(theta[5])
+    return np.array([math.exp(theta[0]), math.exp(theta[1]), 1.0, 1.0, q * (1 - q), t * (1 - t)])
+
+
+class Objective:
+    """Negative log-likelihood and its gradient in theta, on the free coordinates only."""
+
+    def __init__(self, lik: SiteLikelihood, free: np.ndarray, fixed_theta: np.ndarray,
+                 fd_step: float = 2e-3):
+        self.lik, self.free, self.base, self.h = lik, free, fixed_theta.copy(), fd_step
+
+    def full(self, z: np.ndarray) -> np.ndarray:
+        th = self.base.copy()
+        th[self.free] = z
+        return th
+
+    def loglik_theta(self, th: np.ndarray) -> float:
+        return self.lik.loglik(from_theta(th))
+
+    def loglik_and_grad(self, th: np.ndarray) -> tuple[float, np.ndarray]:
+        p = from_theta(th)
+        ll_i, g_i = self.lik.per_person(p, want_grad=True)
+        rep, rep_q, rep_t = self.lik.reporting_term(p)
+        ll = float(np.sum(ll_i)) + rep
+        g = np.zeros(6)
+        g[2], g[3] = np.sum(g_i[:, 0]), np.sum(g_i[:, 1])
+        dq = float(np.sum(g_i[:, 2])) + rep_q
+        jac = natural_jacobian(th)
+        g[4] = dq * jac[4]
+        g[5] = rep_t * jac[5]
+        for k in (0, 1):     # five-point stencil: error O(h^4)
+            if not self.free[k]:
+                continue
+            vals = []
+            for m in (-2, -1, 1, 2):
+                t2 = th.copy()
+                t2[k] += m * self.h
+                vals.append(self.loglik_theta(t2))
+            g[k] = (vals[0] - 8 * vals[1] + 8 * vals[2] - vals[3]) / (12 * self.h)
+        return ll, g
+
+    def __call__(self, z: np.ndarray) -> tuple[float, np.ndarray]:
+        ll, g = self.loglik_and_grad(self.full(z))
+        if not math.isfinite(ll):
+            return 1e300, np.zeros(int(np.sum(self.free)))
+        return -ll, -g[self.free]
+
+
+@dataclass
+class SiteFit:
+    params: SiteParams
+    loglik: float
+    free: tuple[str, ...]
+    fixed: dict[str, str]                      # name -> reason it was fixed
+    std_errors: dict[str, float] = field(default_factory=dict)   # natural scale
+    at_bound: tuple[str, ...] = ()
+    iterations: int = 0
+    converged: bool = True
+    messages: list[str] = field(default_factory=list)
+    n_people: int = 0
+    n_outcomes: int = 0
+
+
+def moments_start(data: OutcomeData) -> tuple[float, float]:
+    """Method of moments on per-person help rates (mean and sd with ddof = 1 of y/n)."""
+    n = np.bincount(data.person, minlength=data.n_people).astype(float)
+    y = np.bincount(data.person, (data.result == HELPED).astype(float), minlength=data.n_people)
+    rate = (y / np.maximum(n, 1))[n > 0]
+    m = float(np.mean(rate))
+    v = float(np.var(rate, ddof=1)) if rate.size > 1 else 0.0
+    m = min(max(m, 0.02), 0.98)
+    if v <= 0.0 or v >= m * (1 - m):
+        s = 4.0
+    else:
+        s = m * (1 - m) / v - 1.0
+    s = min(max(s, 0.05), 1e5)
+    return m * s, (1 - m) * s
+
+
+def check_data(data: OutcomeData, fix_k_busy: bool = False, fix_k_load: bool = False,
+               notice_probability: float = 0.8) -> tuple[dict[str, float], dict[str, str], list[str]]:
+    """Decide which constants the data can identify. Returns (fixed values, reasons, notes).
+    Raises FitInputError when nothing sensible can be fitted."""
+    counts = data.counts()
+    n = data.n_outcomes
+    if n < MIN_OUTCOMES:
+        raise FitInputError(f"too little data: {n} answered asks; need at least {MIN_OUTCOMES}")
+    helped, not_helped = counts["helped"], counts["declined"] + counts["no_response"]
+    if helped == 0:
+        raise FitInputError(f"no helped asks among {n}: the prior cannot be estimated "
+                            "(willingness would go to 0)")
+    if not_helped == 0:
+        raise FitInputError(f"no declines or no-responses among {n} answered asks: the prior "
+                            "cannot be estimated (willingness would go to 1)")
+    values, reasons, notes = {}, {}, []
+    if data.n_people == 1:
+        notes.append("a single person: prior_a and prior_b describe only that person's "
+                     "history; their spread across people is not identified")
+    for name, column, forced in (("k_busy", data.busyness, fix_k_busy),
+                                 ("k_load", data.load, fix_k_load)):
+        if forced:
+            values[name], reasons[name] = 0.0, "fixed at 0 on request"
+        elif np.ptp(column) <= MIN_SPREAD:
+            values[name] = 0.0
+            label = "busyness" if name == "k_busy" else "ask load"
+            reasons[name] = (f"{label} does not vary in the data (always {column[0]:g}); "
+                             f"{name} cannot be told apart from the prior mean: fixed at 0")
+    if counts["no_response"] == 0:
+        values["notice_probability"] = notice_probability
+        values["decline_aloud"] = 1.0
+        reasons["notice_probability"] = (f"no no-response rows: notice_probability cannot be "
+                                         f"estimated; kept at {notice_probability:g}")
+    elif counts["declined"] == 0:
+        notes.append("no explicit declines: the decline-aloud rate sits at its bound 0 and "
+                     "notice_probability is weakly determined")
+    for r in reasons.values():
+        notes.append(r)
+    return values, reasons, notes
+
+
+def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | None = None,
+             fix_k_busy: bool = False, fix_k_load: bool = False,
+             notice_probability: float = 0.8, progress: Progress | None = None,
+             standard_errors: bool = True, max_iter: int = 500) -> SiteFit:
+    fixed_values, reasons, notes = check_data(data, fix_k_busy, fix_k_load, notice_probability)
+    for k, v in (fixed or {}).items():
+        fixed_values[k] = v
+        reasons.setdefault(k, "fixed by the caller")
+    lik = SiteLikelihood(data)
+    if start is None:
+        a, b = moments_start(data)
+        start = SiteParams(a, b, 0.5, 0.3, notice_probability if 0 < notice_probability < 1
+                           else 0.5, 0.5)
+    start = replace(start, **{k: v for k, v in fixed_values.items()})
+    theta0 = to_theta(start)
+    free = np.array([name not in fixed_values for name in NAMES])
+    if not lik.use_reporting_factor:
+        free[5] = False
+    bounds_all = [LOG_AB_BOUNDS, LOG_AB_BOUNDS, (0.0, K_MAX), (0.0, K_MAX), LOGIT_BOUNDS,
+                  LOGIT_BOUNDS]
+    obj = Objective(lik, free, theta0)
+    prog = progress or Progress("fit", enabled=False)
+
+    def callback(z):
+        prog.step(f"log-likelihood {obj.loglik_theta(obj.full(z)):.3f}")
+
+    res = optimize.minimize(obj, theta0[free], jac=True, method="L-BFGS-B",
+                            bounds=[b for b, f in zip(bounds_all, free) if f],
+                            callback=callback if prog.enabled else None,
+                            options={"maxiter": max_iter, "ftol": 1e-13, "gtol": 1e-7})
+    theta = obj.full(res.x)
+    ll = obj.loglik_theta(theta)
+    prog.done(f"log-likelihood {ll:.3f}")
+    params = from_theta(theta)
+    for k, v in fixed_values.items():       # exact fixed values (no logit round trip)
+        params = replace(params, **{k: v})
+    free_names = tuple(n for n, f in zip(NAMES, free) if f)
+    at_bound = []
+    for i, (name, f) in enumerate(zip(NAMES, free)):
+        if f and (theta[i] <= bounds_all[i][0] + 1e-8 or theta[i] >= bounds_all[i][1] - 1e-8):
+            at_bound.append(name)
+    fit = SiteFit(params, ll, free_names, reasons, iterations=int(res.nit),
+                  converged=bool(res.success), messages=notes, at_bound=tuple(at_bound),
+                  n_people=data.n_people, n_outcomes=data.n_outcomes)
+    if not res.success:
+        notes.append(f"optimiser stopped: {res.message}")
+    if standard_errors:
+        fit.std_errors = hessian_std_errors(obj, theta, free, at_bound)
+    return fit
+
+
+def hessian_std_errors(obj: Objective, theta: np.ndarray, free: np.ndarray,
+                       at_bound: list[str], h: float = 1e-4) -> dict[str, float]:
+    """Observed information from central differences of the gradient, on the interior free
+    coordinates; delta method to the natural scale."""
+    idx = [i for i in range(6) if free[i] and NAMES[i] not in at_bound]
+    if not idx:
+        return {}
+    hess = np.zeros((len(idx), len(idx)))
+    for col, i in enumerate(idx):
+        tp, tm = theta.copy(), theta.copy()
+        tp[i] += h
+        tm[i] -= h
+        gp = obj.loglik_and_grad(tp)[1]
+        gm = obj.loglik_and_grad(tm)[1]
+        hess[:, col] = (gp[idx] - gm[idx]) / (2 * h)
+    hess = 0.5 * (hess + hess.T)
+    try:
+        cov = np.linalg.inv(-hess)
+    except np.linalg.LinAlgError:
+        return {NAMES[i]: math.nan for i in idx}
+    jac = natural_jacobian(theta)
+    out = {}
+    for col, i in enumerate(idx):
+        var = cov[col, col]
+        out[NAMES[i]] = float(jac[i] * math.sqrt(var)) if var > 0 else math.nan
+    return out
+
+
+@dataclass
+class ContextTest:
+    statistic: float
+    df: int
+    p_value: float               # naive chi-square(df)
+    p_value_boundary: float      # chi-bar-square mixture for a null on the boundary k = 0
+    loglik_null: float
+
+
+def context_test(data: OutcomeData, full: SiteFit, notice_probability: float = 0.8
+                 ) -> ContextTest | None:
+    """Likelihood-ratio test of k_busy = k_load = 0 (only the terms that were free)."""
+    tested = [k for k in ("k_busy", "k_load") if k in full.free]
+    if not tested:
+        return None
+    start = replace(full.params, k_busy=0.0, k_load=0.0)
+    null = fit_site(data, start=start, fixed={k: 0.0 for k in tested},
+                    fix_k_busy="k_busy" not in full.free, fix_k_load="k_load" not in full.free,
+                    notice_probability=full.params.notice_probability
+                    if "notice_probability" not in full.free else notice_probability,
+                    standard_errors=False)
+    stat = max(0.0, 2.0 * (full.loglik - null.loglik))
+    df = len(tested)
+    p = float(stats.chi2.sf(stat, df))
+    # each k >= 0: under the null the statistic is a mixture of chi-square(0..df) with
+    # binomial(df, 1/2) weights (independent components; Self and Liang 1987)
+    weights = stats.binom.pmf(np.arange(df + 1), df, 0.5)
+    p_bar = float(sum(w * (stats.chi2.sf(stat, j) if j > 0 else float(stat <= 0))
+                      for j, w in enumerate(weights)))
+    return ContextTest(stat, df, p, p_bar, null.loglik)
