@@ -11,6 +11,7 @@ SUBCOMMANDS = {
     "record": ("tools.record", "record the node's topics into a rosbag2 MCAP bag (hashed person ids)"),
     "review": ("tools.review", "report on a bag: timeline, willingness, calibration, limits, replay"),
     "demo": ("tools.demo", "run the demo scenario (invented hospital night shift)"),
+    "fit": ("tools.fit", "fit the site constants from logged outcomes; writes a parameter file"),
 }
 
 

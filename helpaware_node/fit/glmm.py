@@ -148,7 +148,7 @@ def sequential_help_probability(beta, sigma, X, group, y, nodes: int = 40) -> np
     cum = np.cumsum(logp, axis=0)
     starts = np.flatnonzero(np.r_[True, gs[1:] != gs[:-1]])
     first = np.repeat(starts, np.diff(np.r_[starts, gs.size]))
-    excl = cum - logp - (cum[first] - logp[first])[:, None] + logw[None, :]
+    excl = cum - logp - (cum[first] - logp[first]) + logw[None, :]
     post = np.exp(excl - logsumexp(excl, axis=1, keepdims=True))
     out = np.empty(gs.size)
     out[order] = np.sum(post * expit(etak), axis=1)

@@ -111,6 +111,11 @@ class SiteParams:
     notice_probability: float
     decline_aloud: float = 1.0     # tau: the w-free nuisance constant (see module doc)
 
+    @property
+    def noticed(self) -> float:
+        """nu = tau + q (1 - tau): chance an ask is noticed (1 without no-response data)."""
+        return self.decline_aloud + self.notice_probability * (1.0 - self.decline_aloud)
+
     def as_tuple(self) -> tuple[float, ...]:
         return (self.prior_a, self.prior_b, self.k_busy, self.k_load,
                 self.notice_probability, self.decline_aloud)

@@ -1,0 +1,44 @@
+"""Outcomes from bags: each outcome joined with the decision that asked (same request id and
+person), whose candidate row carries the busyness and ask load in force at the ask.
+Uses the review's bag loader (tools/review_data.py over tools/bagio.py)."""
+from __future__ import annotations
+
+from .data import RESULT_CODE, FitInputError, OutcomeData, from_arrays
+from ..core.person import Result
+
+
+def read_outcome_bags(paths) -> OutcomeData:
+    try:
+        from ..tools import review_data
+    except ImportError as exc:   # the bag reader is not available in this checkout
+        raise FitInputError(f"reading bags needs tools/review_data.py ({exc}); "
+                            "export the outcomes to CSV instead") from None
+    person, xs, fs, res, skipped = [], [], [], [], 0
+    for path in paths:
+        try:
+            bag = review_data.load(str(path))
+        except Exception as exc:   # BagReadError and friends: name the bag
+            raise FitInputError(f"{path}: cannot read bag ({exc})") from None
+        asked = {}
+        for d in bag.decisions:
+            if d.action == "ask" and d.person_key:
+                for cand in d.candidates:
+                    if cand.get("person_id") == d.person_key:
+                        asked[(d.request_id, d.person_key)] = cand
+        for o in sorted(bag.outcomes, key=lambda o: (o.person_key, o.time_s)):
+            result = Result.parse(o.result)
+            if result is Result.COULD_NOT_ASK:
+                continue
+            cand = asked.get((o.request_id, o.person_key))
+            if cand is None:
+                skipped += 1
+                continue
+            person.append(o.person_key)
+            xs.append(float(cand["busyness"]))
+            fs.append(float(cand["ask_load"]))
+            res.append(RESULT_CODE[result])
+    if not res:
+        raise FitInputError(f"{', '.join(map(str, paths))}: no answered asks joined to their "
+                            f"decisions ({skipped} outcomes without a matching ask)")
+    keys = sorted(set(person))
+    return from_arrays(person, xs, fs, res, keys, sources=[str(p) for p in paths])

@@ -1,0 +1,32 @@
+"""The fitted constants as the node's ROS 2 parameter file (YAML keyed by node name)."""
+from __future__ import annotations
+
+from typing import Iterable, Mapping
+
+import yaml
+
+from ..core.model import SiteModel
+
+FITTED_NAMES = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability")
+DEFAULT_NODE_NAME = "helpaware_node"
+
+
+def _float_text(v: float) -> str:
+    text = repr(float(v))          # repr keeps a decimal point: 1.0, not 1
+    return text if any(ch in text for ch in ".en") else text + ".0"
+
+
+def render_param_file(values: Mapping[str, float], comments: Iterable[str],
+                      node_name: str = DEFAULT_NODE_NAME) -> str:
+    SiteModel(**{k: float(values[k]) for k in FITTED_NAMES})   # refuse out-of-range values
+    lines = [f"# {c}" if c else "#" for c in comments]
+    lines += [f"{node_name}:", "  ros__parameters:"]
+    for k in FITTED_NAMES:
+        lines.append(f"    {k}: {_float_text(values[k])}")
+    return "\n".join(lines) + "\n"
+
+
+def read_param_file(path: str, node_name: str = DEFAULT_NODE_NAME) -> dict:
+    with open(path, encoding="utf-8") as fh:
+        doc = yaml.safe_load(fh)
+    return dict(doc[node_name]["ros__parameters"])
