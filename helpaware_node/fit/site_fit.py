@@ -87,6 +87,7 @@ class Objective:
 
     def __call__(self, z: np.ndarray) -> tuple[float, np.ndarray]:
         ll, g = self.loglik_and_grad(self.full(z))
+        self.last_loglik = ll          # for progress lines, without another evaluation
         if not math.isfinite(ll):
             return 1e300, np.zeros(int(np.sum(self.free)))
         return -ll, -g[self.free]
@@ -188,7 +189,7 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
     prog = progress or Progress("fit", enabled=False)
 
     def callback(z):
-        prog.step(f"log-likelihood {obj.loglik_theta(obj.full(z)):.3f}")
+        prog.step(f"log-likelihood {getattr(obj, 'last_loglik', float('nan')):.3f}")
 
     res = optimize.minimize(obj, theta0[free], jac=True, method="L-BFGS-B",
                             bounds=[b for b, f in zip(bounds_all, free) if f],
