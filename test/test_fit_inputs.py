@@ -140,3 +140,24 @@ def test_integer_valued_estimates_are_written_as_floats(tmp_path):
     with pytest.raises(Exception, match="notice_probability"):
         render_param_file({"prior_a": 1, "prior_b": 2.0, "k_busy": 0, "k_load": 0.0,
                            "notice_probability": 1.5}, [])
+
+
+@pytest.mark.parametrize("k_busy_truth,expected", [(0.0, "ask"), (4.0, "continue")])
+def test_written_file_changes_the_decision_as_expected(tmp_path, k_busy_truth, expected):
+    # core.policy.decide (the one decision path) on a busy candidate (x = 0.6) under the
+    # constants read back from the written file: where busyness lowered help in the data,
+    # asking the busy person stops paying (p = c a0/(a0+b0) falls by exp(-0.6 k_busy))
+    from helpaware_node.core.belief import Belief
+    from helpaware_node.core.model import DecisionConfig
+    from helpaware_node.core.policy import Candidate, HelpNeed, decide
+    d = simulate(SiteParams(2.0, 3.0, k_busy_truth, 0.7, 0.6, 0.7), 150, 8, seed=31)
+    out = tmp_path / "tuned.yaml"
+    assert cli_main(["fit", write_csv(tmp_path / "o.csv", d), "--out", str(out),
+                     "--folds", "0"]) == 0
+    model = SiteModel(**read_param_file(str(out)))
+    cand = Candidate("busy", 2.0, 100.0, Belief(model.prior_a, model.prior_b), busyness=0.6)
+    decision = decide(HelpNeed("r1", "door", 100.0), [cand], 100.0, [], model, DecisionConfig())
+    assert decision.action == expected
+    p = decision.rationale()[0]["p"]
+    assert p == pytest.approx(math.exp(-0.6 * model.k_busy) * model.prior_a
+                              / (model.prior_a + model.prior_b), rel=1e-9)
