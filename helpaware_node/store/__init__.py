@@ -1,10 +1,40 @@
 """Persistence of outcome events and belief snapshots."""
+from __future__ import annotations
+
+import os
+import socket
+
+from ..core import SiteModel
 from .base import BeliefStore, MemoryStore, StoredEvent, person_key
+from .keys import (KEY_FILE_NAME, SiteKeyError, default_key_path, default_store_path, key_fingerprint,
+                   load_site_key)
+from .sqlite import SqliteStore, StoreCorruptError, StoreHealth
+from .schema import SCHEMA_VERSION, StoreVersionError
+
+def default_robot_id() -> str:
+    """HELPAWARE_ROBOT_ID, else the host name (no '/'), so each robot's ids are its own."""
+    rid = os.environ.get("HELPAWARE_ROBOT_ID") or socket.gethostname().split(".")[0] or "robot"
+    return rid.replace("/", "_")
 
 
-def open_store(path: str = "", robot_id: str = "robot") -> BeliefStore:
-    """The store the node uses: in memory when `path` is empty."""
-    return MemoryStore()
+def open_store(path: str = "", robot_id: str = "", model: SiteModel | None = None,
+               key_path: str = "", retention_days: float = 0.0) -> BeliefStore:
+    """The store the node uses.
+
+    `path` empty: in this process only (MemoryStore, a random key per run).  Otherwise an
+    SQLite file (the node's default is `default_store_path()`: ROS_HOME or ~/.ros, then
+    helpaware/beliefs.sqlite3).  The site key is read from `key_path`, by default the file
+    `site_key` beside the store, and created owner-only if missing.
+    """
+    if not path:
+        return MemoryStore(robot_id=robot_id or default_robot_id())
+    site_key = load_site_key(key_path or os.path.join(os.path.dirname(os.path.abspath(path)),
+                                                      KEY_FILE_NAME))
+    return SqliteStore(path, robot_id or default_robot_id(), site_key, model=model,
+                       retention_days=retention_days)
 
 
-__all__ = ["BeliefStore", "MemoryStore", "StoredEvent", "person_key", "open_store"]
+__all__ = ["BeliefStore", "MemoryStore", "SqliteStore", "StoredEvent", "StoreHealth",
+           "StoreCorruptError", "StoreVersionError", "SiteKeyError", "SCHEMA_VERSION",
+           "person_key", "open_store", "load_site_key", "key_fingerprint", "default_robot_id",
+           "default_store_path", "default_key_path"]

@@ -41,7 +41,8 @@ class BeliefStore(Protocol):
     """What the node, the tools and the fleet exchange need from a store."""
 
     def key_for(self, raw_id: str) -> str: ...
-    def append(self, event: StoredEvent) -> bool: ...          # durable on return; False: duplicate
+    def next_event_id(self) -> str: ...                        # "<robot_id>/<sequence>", never reused
+    def append(self, event: StoredEvent) -> bool: ...          # durable on return; False: not stored (duplicate, opted out)
     def events_for(self, key: str) -> list[StoredEvent]: ...
     def keys(self) -> list[str]: ...
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, float | None]: ...
@@ -54,8 +55,10 @@ class BeliefStore(Protocol):
 class MemoryStore:
     """A store that keeps everything in this process (tests, simulator, no-disk runs)."""
 
-    def __init__(self, site_key: bytes | None = None) -> None:
+    def __init__(self, site_key: bytes | None = None, robot_id: str = "robot") -> None:
         self._site_key = site_key if site_key is not None else os.urandom(32)
+        self.robot_id = robot_id
+        self._next_seq = 1
         self._events: dict[str, StoredEvent] = {}
         self._by_key: dict[str, list[str]] = {}
         self._opted_out: set[str] = set()
@@ -63,8 +66,12 @@ class MemoryStore:
     def key_for(self, raw_id: str) -> str:
         return person_key(self._site_key, raw_id)
 
+    def next_event_id(self) -> str:
+        seq, self._next_seq = self._next_seq, self._next_seq + 1
+        return f"{self.robot_id}/{seq}"
+
     def append(self, event: StoredEvent) -> bool:
-        if event.event_id in self._events:
+        if event.event_id in self._events or event.person_key in self._opted_out:
             return False
         self._events[event.event_id] = event
         self._by_key.setdefault(event.person_key, []).append(event.event_id)

@@ -1,0 +1,473 @@
+"""The SQLite store: a durable, append-only outcome log with a per-person fold cache.
+
+- `events` is the source of truth; `snapshot` caches each person's fold
+  (core.person.fold_events in (time, event id) order) and is updated in the same
+  transaction as the event, so the two never disagree.
+- WAL mode, synchronous=FULL, one transaction per outcome: when append() returns the
+  outcome survives a crash or power loss.
+- secure_delete is on, and forget() checkpoints the WAL with TRUNCATE, so erased rows do not
+  linger in free pages or in the log.
+- A damaged file is moved aside (never deleted) and the store starts on priors with
+  health ERROR, so the robot keeps working and diagnostics say what happened.
+"""
+from __future__ import annotations
+
+import datetime
+import hashlib
+import json
+import os
+import re
+import sqlite3
+import threading
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Iterable, Iterator
+
+from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
+from ..core.model import CoreInputError, to_plain
+from .base import StoredEvent, person_key
+from .keys import SiteKeyError, key_fingerprint
+from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
+
+DAY_S = 86400.0
+PERSON_KEY_RE = re.compile(r"^[0-9a-f]{64}$")
+EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
+SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+class StoreCorruptError(RuntimeError):
+    """The file is not a readable store (damaged, truncated, or not SQLite)."""
+
+
+@dataclass(frozen=True)
+class StoreHealth:
+    level: str          # "OK" or "ERROR" (diagnostic_msgs levels by name)
+    message: str = ""
+
+
+def model_hash(model: SiteModel) -> str:
+    text = json.dumps(to_plain(model), sort_keys=True, separators=(",", ":"))
+    return hashlib.sha256(text.encode()).hexdigest()[:16]
+
+
+def check_event(event: StoredEvent) -> None:
+    """Refuse anything that is not a hashed key or a well-formed event (names the field)."""
+    if not PERSON_KEY_RE.match(event.person_key or ""):
+        raise CoreInputError("person_key: expected 64 lowercase hex digits (HMAC-SHA256 of the "
+                             "perceived id); raw ids are never stored")
+    robot, sep, seq = event.event_id.rpartition("/")
+    if not sep or not robot or not seq:
+        raise CoreInputError(f"event_id: {event.event_id!r} is not '<robot_id>/<sequence>'")
+    event.to_outcome()          # validates time, busyness, ask load and result ranges
+
+
+def row_to_event(row) -> StoredEvent:
+    return StoredEvent(row[0], row[1], row[2], Result(row[5]), row[3], row[4], row[6])
+
+
+def event_to_row(e: StoredEvent) -> tuple:
+    result = e.result.value if isinstance(e.result, Result) else Result.parse(e.result).value
+    return (e.event_id, e.person_key, float(e.time_s), float(e.busyness), float(e.ask_load),
+            result, e.request_kind or "")
+
+
+def utc_stamp() -> str:
+    return datetime.datetime.now(datetime.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+
+
+def move_aside(path: Path) -> Path:
+    """Rename the file and its -wal/-shm companions to '<name>.corrupt-<UTC time>[-wal]'."""
+    stamp = utc_stamp()
+    target = path.with_name(f"{path.name}.corrupt-{stamp}")
+    n = 1
+    while target.exists():
+        n += 1
+        target = path.with_name(f"{path.name}.corrupt-{stamp}-{n}")
+    for suffix in ("", "-wal", "-shm", "-journal"):
+        src = Path(str(path) + suffix)
+        if src.exists():
+            os.replace(src, Path(str(target) + suffix))
+    return target
+
+
+class SqliteStore:
+    """BeliefStore on one SQLite file (see the module doc and docs/store.md)."""
+
+    def __init__(self, path: str | os.PathLike, robot_id: str, site_key: bytes,
+                 model: SiteModel | None = None, retention_days: float = 0.0,
+                 integrity_check: bool = True) -> None:
+        if not robot_id or "/" in robot_id:
+            raise CoreInputError(f"robot_id: {robot_id!r} must be non-empty and without '/'")
+        self.path = Path(path)
+        self.robot_id = robot_id
+        self.model = model or SiteModel()
+        self._model_hash = model_hash(self.model)
+        self._site_key = site_key
+        self._fingerprint = key_fingerprint(site_key)
+        self._lock = threading.RLock()
+        self.health = StoreHealth("OK", f"store {self.path}")
+        self.moved_aside: Path | None = None
+        self.path.parent.mkdir(parents=True, exist_ok=True, mode=0o700)
+        try:
+            self._conn = self._open_checked(integrity_check)
+        except StoreCorruptError as exc:
+            self.moved_aside = move_aside(self.path)
+            self._conn = self._open_checked(integrity_check=False)
+            self.health = StoreHealth(
+                "ERROR", f"store file {self.path} was unreadable ({exc}); moved aside to "
+                f"{self.moved_aside}; started on priors")
+        self._next_seq = self._load_next_seq()
+        if retention_days > 0:
+            self.compact(retention_days * DAY_S)
+
+    # -- opening -----------------------------------------------------------------------
+    def _open_checked(self, integrity_check: bool) -> sqlite3.Connection:
+        existed = self.path.exists() and self.path.stat().st_size > 0
+        if existed:
+            with open(self.path, "rb") as fh:
+                if fh.read(16) != SQLITE_HEADER:
+                    raise StoreCorruptError("not an SQLite file")
+        conn = None
+        try:
+            old_umask = os.umask(0o077)     # db, -wal and -shm owner-only
+            try:
+                conn = sqlite3.connect(str(self.path), isolation_level=None,
+                                       check_same_thread=False, timeout=10.0)
+                mode = conn.execute("PRAGMA journal_mode=WAL").fetchone()[0]
+            finally:
+                os.umask(old_umask)
+            if str(mode).lower() != "wal":
+                raise StoreCorruptError(f"cannot switch to WAL mode (got {mode})")
+            conn.execute("PRAGMA synchronous=FULL")
+            conn.execute("PRAGMA secure_delete=ON")
+            if existed and integrity_check:
+                problems = [r[0] for r in conn.execute("PRAGMA quick_check(5)")]
+                if problems != ["ok"]:
+                    raise StoreCorruptError("; ".join(problems)[:300])
+            version_before = file_version(conn)
+            applied = migrate(conn)
+            self._check_meta(conn)
+            if applied and version_before >= 1 and 2 in applied:
+                self._rebuild_all(conn)
+            return conn
+        except StoreVersionError:
+            if conn is not None:
+                conn.close()
+            raise
+        except SiteKeyError:
+            if conn is not None:
+                conn.close()
+            raise
+        except sqlite3.DatabaseError as exc:
+            if conn is not None:
+                conn.close()
+            raise StoreCorruptError(str(exc)) from None
+        except StoreCorruptError:
+            if conn is not None:
+                conn.close()
+            raise
+
+    def _check_meta(self, conn: sqlite3.Connection) -> None:
+        rows = dict(conn.execute("SELECT name, value FROM meta"))
+        stored = rows.get("key_fingerprint")
+        if stored is None:
+            conn.execute("INSERT INTO meta VALUES ('key_fingerprint', ?)", (self._fingerprint,))
+            conn.execute("INSERT OR IGNORE INTO meta VALUES ('created_utc', ?)", (utc_stamp(),))
+        elif stored != self._fingerprint:
+            raise SiteKeyError(
+                f"store file {self.path} was made with a different site key (fingerprint "
+                f"{stored[:12]}..., this key {self._fingerprint[:12]}...). Give the key file "
+                "that created it, or a new store path; the file was left untouched")
+
+    def _load_next_seq(self) -> int:
+        row = self._conn.execute("SELECT next_seq FROM sequences WHERE robot_id = ?",
+                                 (self.robot_id,)).fetchone()
+        return int(row[0]) if row else 1
+
+    # -- BeliefStore -------------------------------------------------------------------
+    def key_for(self, raw_id: str) -> str:
+        return person_key(self._site_key, raw_id)
+
+    def next_event_id(self) -> str:
+        """A new event id for this robot; never reused, even after restarts or forget."""
+        with self._lock:
+            seq = self._next_seq
+            self._next_seq += 1
+            return f"{self.robot_id}/{seq}"
+
+    def append(self, event: StoredEvent) -> bool:
+        """Store one outcome durably before returning.
+
+        False when nothing was stored: a duplicate event id, an opted-out person, or an
+        event older than the person's compacted history.
+        """
+        check_event(event)
+        row = event_to_row(event)
+        with self._lock:
+            c = self._conn
+            c.execute("BEGIN IMMEDIATE")
+            try:
+                stored = self._append_in_tx(event, row)
+                if not stored:
+                    c.execute("ROLLBACK")
+                    return False
+                c.execute("COMMIT")
+                return True
+            except BaseException:
+                if c.in_transaction:
+                    c.execute("ROLLBACK")
+                raise
+
+    def _append_in_tx(self, event: StoredEvent, row: tuple) -> bool:
+        c = self._conn
+        key = event.person_key
+        if c.execute("SELECT 1 FROM opt_out WHERE person_key = ?", (key,)).fetchone():
+            return False
+        snap = c.execute("SELECT a, b, last_time_s, last_event_id, event_count, model_hash, "
+                         "base_time_s, base_event_id FROM snapshot WHERE person_key = ?",
+                         (key,)).fetchone()
+        order = (float(event.time_s), event.event_id)
+        if snap is not None and snap[6] is not None and order <= (snap[6], snap[7]):
+            return False        # older than the compacted base: cannot be folded in order
+        cur = c.execute(f"INSERT OR IGNORE INTO events ({EVENT_COLUMNS}) VALUES (?,?,?,?,?,?,?)",
+                        row)
+        if cur.rowcount == 0:
+            return False
+        if (snap is not None and snap[5] == self._model_hash and snap[2] is not None
+                and order > (snap[2], snap[3])):
+            belief, last = fold_events([event.to_outcome()], self.model,
+                                       Belief(snap[0], snap[1]), snap[2])
+            c.execute("UPDATE snapshot SET a = ?, b = ?, last_time_s = ?, last_event_id = ?, "
+                      "event_count = event_count + 1 WHERE person_key = ?",
+                      (belief.a, belief.b, last, event.event_id, key))
+        elif snap is None:
+            belief, last = fold_events([event.to_outcome()], self.model)
+            c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
+                      "event_count, model_hash) VALUES (?,?,?,?,?,1,?)",
+                      (key, belief.a, belief.b, last, event.event_id, self._model_hash))
+        else:                   # arrived out of order (fleet) or cached under another model
+            self._refold(c, key)
+        robot, _, seq = event.event_id.rpartition("/")
+        if robot == self.robot_id and seq.isdigit():
+            c.execute("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
+                      "SET next_seq = max(next_seq, excluded.next_seq)",
+                      (self.robot_id, int(seq) + 1))
+            self._next_seq = max(self._next_seq, int(seq) + 1)
+        return True
+
+    def extend(self, events: Iterable[StoredEvent]) -> int:
+        return sum(self.append(e) for e in events)
+
+    def _events(self, c, key: str) -> list[StoredEvent]:
+        return [row_to_event(r) for r in c.execute(
+            f"SELECT {EVENT_COLUMNS} FROM events WHERE person_key = ? ORDER BY time_s, event_id",
+            (key,))]
+
+    def _fold(self, c, key: str, model: SiteModel):
+        """(belief, last time, last event id, count) refolded from the base and the events."""
+        base = c.execute("SELECT base_a, base_b, base_time_s, base_event_id, base_count "
+                         "FROM snapshot WHERE person_key = ?", (key,)).fetchone()
+        events = self._events(c, key)
+        start, start_t, start_id, count = None, None, None, 0
+        if base is not None and base[0] is not None:
+            start, start_t, start_id, count = Belief(base[0], base[1]), base[2], base[3], base[4]
+        belief, last = fold_events([e.to_outcome() for e in events], model, start, start_t)
+        last_id = max(((e.time_s, e.event_id) for e in events), default=(None, start_id))[1]
+        return belief, last, last_id, count + len(events)
+
+    def _refold(self, c, key: str) -> None:
+        belief, last, last_id, count = self._fold(c, key, self.model)
+        c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
+                  "event_count, model_hash) VALUES (?,?,?,?,?,?,?) ON CONFLICT(person_key) DO "
+                  "UPDATE SET a = excluded.a, b = excluded.b, last_time_s = excluded.last_time_s,"
+                  " last_event_id = excluded.last_event_id, event_count = excluded.event_count,"
+                  " model_hash = excluded.model_hash",
+                  (key, belief.a, belief.b, last, last_id, count, self._model_hash))
+
+    def _rebuild_all(self, conn) -> None:
+        conn.execute("BEGIN IMMEDIATE")
+        try:
+            for (key,) in conn.execute("SELECT DISTINCT person_key FROM events").fetchall():
+                self._refold(conn, key)
+            conn.execute("COMMIT")
+        except BaseException:
+            conn.execute("ROLLBACK")
+            raise
+
+    def events_for(self, key: str) -> list[StoredEvent]:
+        with self._lock:
+            return self._events(self._conn, key)
+
+    def keys(self) -> list[str]:
+        with self._lock:
+            return [r[0] for r in self._conn.execute(
+                "SELECT person_key FROM snapshot ORDER BY person_key")]
+
+    def belief(self, key: str, model: SiteModel | None = None) -> tuple[Belief, float | None]:
+        """The cached fold under the store's model; any other model refolds (not cached)."""
+        model = model or self.model
+        with self._lock:
+            c = self._conn
+            if model_hash(model) != self._model_hash:
+                belief, last, _, _ = self._fold(c, key, model)
+                return belief, last
+            snap = c.execute("SELECT a, b, last_time_s, model_hash FROM snapshot "
+                             "WHERE person_key = ?", (key,)).fetchone()
+            if snap is None:
+                return Belief.prior(model), None
+            if snap[3] != self._model_hash:     # cached under an older model: refresh
+                c.execute("BEGIN IMMEDIATE")
+                self._refold(c, key)
+                c.execute("COMMIT")
+                snap = c.execute("SELECT a, b, last_time_s FROM snapshot WHERE person_key = ?",
+                                 (key,)).fetchone()
+            return Belief(snap[0], snap[1]), snap[2]
+
+    def beliefs(self) -> dict[str, tuple[Belief, float | None]]:
+        """Every known person's belief (for the node's start-up and for tests)."""
+        return {k: self.belief(k) for k in self.keys()}
+
+    def is_opted_out(self, key: str) -> bool:
+        with self._lock:
+            return self._conn.execute("SELECT 1 FROM opt_out WHERE person_key = ?",
+                                      (key,)).fetchone() is not None
+
+    def opt_out(self, key: str) -> None:
+        """No more learning about this person (their existing events stay until forget)."""
+        if not PERSON_KEY_RE.match(key or ""):
+            raise CoreInputError("person_key: expected 64 lowercase hex digits")
+        with self._lock:
+            self._conn.execute("INSERT OR IGNORE INTO opt_out VALUES (?, ?)", (key, time.time()))
+
+    def opted_out(self) -> list[str]:
+        with self._lock:
+            return [r[0] for r in self._conn.execute("SELECT person_key FROM opt_out")]
+
+    def forget(self, key: str) -> int:
+        """Delete every row that holds the key, then truncate the WAL so no copy lingers."""
+        with self._lock:
+            c = self._conn
+            c.execute("BEGIN IMMEDIATE")
+            try:
+                n = c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
+                c.execute("DELETE FROM snapshot WHERE person_key = ?", (key,))
+                c.execute("DELETE FROM opt_out WHERE person_key = ?", (key,))
+                c.execute("COMMIT")
+            except BaseException:
+                c.execute("ROLLBACK")
+                raise
+            self.checkpoint()
+            return n
+
+    def checkpoint(self) -> None:
+        busy, _, _ = self._conn.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
+        if busy:
+            self.health = StoreHealth("ERROR", f"store {self.path}: WAL checkpoint blocked by "
+                                      "another reader; erased rows may remain in the WAL")
+
+    def compact(self, older_than_s: float, now_s: float | None = None) -> int:
+        """Fold events older than `older_than_s` into each person's base and delete them.
+
+        Beliefs do not change: the fold is sequential, and the base is exactly the fold of
+        the deleted prefix.  Returns the number of events removed.
+        """
+        if older_than_s < 0:
+            raise CoreInputError(f"older_than_s: {older_than_s!r} must be >= 0")
+        cutoff = (time.time() if now_s is None else now_s) - older_than_s
+        removed = 0
+        with self._lock:
+            c = self._conn
+            keys = [r[0] for r in c.execute(
+                "SELECT DISTINCT person_key FROM events WHERE time_s < ?", (cutoff,))]
+            c.execute("BEGIN IMMEDIATE")
+            try:
+                for key in keys:
+                    removed += self._compact_key(c, key, cutoff)
+                c.execute("COMMIT")
+            except BaseException:
+                c.execute("ROLLBACK")
+                raise
+            if removed:
+                self.checkpoint()
+        return removed
+
+    def _compact_key(self, c, key: str, cutoff: float) -> int:
+        snap = c.execute("SELECT model_hash FROM snapshot WHERE person_key = ?",
+                         (key,)).fetchone()
+        if snap is None or snap[0] != self._model_hash:
+            self._refold(c, key)
+        base = c.execute("SELECT base_a, base_b, base_time_s, base_event_id, base_count "
+                         "FROM snapshot WHERE person_key = ?", (key,)).fetchone()
+        old = [row_to_event(r) for r in c.execute(
+            f"SELECT {EVENT_COLUMNS} FROM events WHERE person_key = ? AND time_s < ? "
+            "ORDER BY time_s, event_id", (key, cutoff))]
+        start = Belief(base[0], base[1]) if base[0] is not None else None
+        belief, last = fold_events([e.to_outcome() for e in old], self.model, start, base[2])
+        last_id = old[-1].event_id
+        c.execute("UPDATE snapshot SET base_a = ?, base_b = ?, base_time_s = ?, "
+                  "base_event_id = ?, base_count = ? WHERE person_key = ?",
+                  (belief.a, belief.b, last, last_id, base[4] + len(old), key))
+        c.execute("DELETE FROM events WHERE person_key = ? AND time_s < ?", (key, cutoff))
+        return len(old)
+
+    # -- admin -------------------------------------------------------------------------
+    def counts(self) -> dict[str, int | str]:
+        with self._lock:
+            q = lambda sql: self._conn.execute(sql).fetchone()[0]   # noqa: E731
+            return {
+                "schema_version": file_version(self._conn),
+                "events": q("SELECT count(*) FROM events"),
+                "persons": q("SELECT count(*) FROM snapshot"),
+                "compacted_events": q("SELECT coalesce(sum(base_count), 0) FROM snapshot"),
+                "opted_out": q("SELECT count(*) FROM opt_out"),
+                "robots": len(self.robot_ids()),
+            }
+
+    def robot_ids(self) -> list[str]:
+        with self._lock:
+            ids = {r[0] for r in self._conn.execute("SELECT robot_id FROM sequences")}
+            ids |= {r[0] for r in self._conn.execute(
+                "SELECT DISTINCT substr(event_id, 1, instr(event_id, '/') - 1) FROM events")}
+        return sorted(ids)
+
+    def iter_events(self) -> Iterator[StoredEvent]:
+        """Every stored event in (time, event id) order."""
+        with self._lock:
+            rows = self._conn.execute(f"SELECT {EVENT_COLUMNS} FROM events "
+                                      "ORDER BY time_s, event_id").fetchall()
+        return (row_to_event(r) for r in rows)
+
+    def recent_events(self, limit: int) -> list[StoredEvent]:
+        with self._lock:
+            rows = self._conn.execute(f"SELECT {EVENT_COLUMNS} FROM events ORDER BY time_s "
+                                      "DESC, event_id DESC LIMIT ?", (int(limit),)).fetchall()
+        return [row_to_event(r) for r in reversed(rows)]
+
+    def bulk_load(self, events: Iterable[StoredEvent]) -> int:
+        """Insert many events in one transaction and rebuild their snapshots (imports, bench)."""
+        with self._lock:
+            c = self._conn
+            c.execute("BEGIN IMMEDIATE")
+            try:
+                before = c.total_changes
+                c.executemany(f"INSERT OR IGNORE INTO events ({EVENT_COLUMNS}) VALUES "
+                              "(?,?,?,?,?,?,?)", (event_to_row(e) for e in events))
+                n = c.total_changes - before
+                for (key,) in c.execute("SELECT DISTINCT person_key FROM events").fetchall():
+                    self._refold(c, key)
+                c.execute("COMMIT")
+            except BaseException:
+                c.execute("ROLLBACK")
+                raise
+            return n
+
+    def close(self) -> None:
+        with self._lock:
+            if self._conn is not None:
+                try:
+                    self._conn.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+                except sqlite3.Error:
+                    pass
+                self._conn.close()
+                self._conn = None
