@@ -12,6 +12,7 @@ SUBCOMMANDS = {
     "review": ("tools.review", "report on a bag: timeline, willingness, calibration, limits, replay"),
     "demo": ("tools.demo", "run the demo scenario (invented hospital night shift)"),
     "fit": ("tools.fit", "fit the site constants from logged outcomes; writes a parameter file"),
+    "store": ("tools.store_admin", "inspect the belief store; opt out, forget, compact, export CSV"),
 }
 
 

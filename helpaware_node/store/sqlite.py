@@ -25,7 +25,7 @@ from pathlib import Path
 from typing import Iterable, Iterator
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
-from ..core.model import CoreInputError, to_plain
+from ..core.model import CoreInputError, from_plain, to_plain
 from .base import StoredEvent, person_key
 from .keys import SiteKeyError, key_fingerprint
 from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
@@ -101,6 +101,7 @@ class SqliteStore:
             raise CoreInputError(f"robot_id: {robot_id!r} must be non-empty and without '/'")
         self.path = Path(path)
         self.robot_id = robot_id
+        self._given_model = model
         self.model = model or SiteModel()
         self._model_hash = model_hash(self.model)
         self._site_key = site_key
@@ -179,6 +180,13 @@ class SqliteStore:
                 f"store file {self.path} was made with a different site key (fingerprint "
                 f"{stored[:12]}..., this key {self._fingerprint[:12]}...). Give the key file "
                 "that created it, or a new store path; the file was left untouched")
+        # the snapshot is cached under one site model: the node records it, tools reuse it
+        if self._given_model is not None:
+            conn.execute("INSERT OR REPLACE INTO meta VALUES ('site_model', ?)",
+                         (json.dumps(to_plain(self.model), sort_keys=True),))
+        elif "site_model" in rows:
+            self.model = from_plain(SiteModel, json.loads(rows["site_model"]))
+            self._model_hash = model_hash(self.model)
 
     def _load_next_seq(self) -> int:
         row = self._conn.execute("SELECT next_seq FROM sequences WHERE robot_id = ?",
@@ -345,12 +353,18 @@ class SqliteStore:
             return [r[0] for r in self._conn.execute("SELECT person_key FROM opt_out")]
 
     def forget(self, key: str) -> int:
-        """Delete every row that holds the key, then truncate the WAL so no copy lingers."""
+        """Delete every row that holds the key, then truncate the WAL so no copy lingers.
+
+        Returns the events removed, compacted ones included.
+        """
         with self._lock:
             c = self._conn
             c.execute("BEGIN IMMEDIATE")
             try:
-                n = c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
+                row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
+                                (key,)).fetchone()
+                n = row[0] if row else 0       # compacted events count as removed too
+                n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
                 c.execute("DELETE FROM snapshot WHERE person_key = ?", (key,))
                 c.execute("DELETE FROM opt_out WHERE person_key = ?", (key,))
                 c.execute("COMMIT")

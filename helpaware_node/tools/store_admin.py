@@ -1,0 +1,157 @@
+"""`helpaware store`: look into and look after the belief store file.
+
+Actions: inspect (counts, or one person's belief by perceived id), opt-out, forget, compact,
+export (hashed events as CSV for `helpaware fit`).  Perceived ids given here are hashed with
+the site key at once and never written anywhere.
+"""
+from __future__ import annotations
+
+import argparse
+import csv
+import os
+import sys
+import time
+
+from ..core import CoreInputError
+from ..store import SiteKeyError, SqliteStore, StoreVersionError, default_store_path, load_site_key
+from ..store.keys import KEY_FILE_NAME
+from .table import fmt, render_table
+
+EXPORT_COLUMNS = ("event_id", "person_key", "time_s", "busyness", "ask_load", "result",
+                  "request_kind")
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument("--path", default="", help=f"store file (default {default_store_path()})")
+    parser.add_argument("--key-file", default="", help="site key file (default: site_key "
+                        "beside the store file)")
+    acts = parser.add_subparsers(dest="action", metavar="ACTION")
+    acts.required = True
+    p = acts.add_parser("inspect", help="counts; with --person/--key one person's belief")
+    _person_args(p, required=False)
+    p = acts.add_parser("opt-out", help="stop learning about a person")
+    _person_args(p)
+    p = acts.add_parser("forget", help="delete every trace of a person (events, snapshot, "
+                        "opt-out), securely")
+    _person_args(p)
+    p = acts.add_parser("compact", help="fold events older than N days into the snapshot "
+                        "base and delete them (beliefs unchanged)")
+    p.add_argument("--older-than-days", type=float, required=True, metavar="DAYS")
+    p.add_argument("--now", type=float, default=None, metavar="TIME_S",
+                   help="reference time in seconds since the epoch (default: now)")
+    p = acts.add_parser("export", help="hashed events as CSV (columns: "
+                        + ",".join(EXPORT_COLUMNS) + ")")
+    p.add_argument("-o", "--out", default="-", help="CSV file to write (default: stdout)")
+
+
+def _person_args(p: argparse.ArgumentParser, required: bool = True) -> None:
+    g = p.add_mutually_exclusive_group(required=required)
+    g.add_argument("--person", metavar="PERCEIVED_ID", help="perceived id (hashed at once)")
+    g.add_argument("--key", metavar="PERSON_KEY", help="hashed person key (64 hex digits)")
+
+
+def open_for_admin(args) -> SqliteStore:
+    path = args.path or str(default_store_path())
+    if not os.path.exists(path):
+        raise SystemExit(f"store: {path} does not exist (give --path)")
+    key_file = args.key_file or os.path.join(os.path.dirname(os.path.abspath(path)),
+                                             KEY_FILE_NAME)
+    site_key = load_site_key(key_file, create=False)
+    return SqliteStore(path, "admin", site_key)
+
+
+def _key(store: SqliteStore, args) -> str:
+    if args.person is not None:
+        return store.key_for(args.person)
+    key = args.key.strip().lower()
+    if len(key) != 64 or any(ch not in "0123456789abcdef" for ch in key):
+        raise SystemExit("store: --key must be 64 hex digits (a hashed person key)")
+    return key
+
+
+def run(args: argparse.Namespace) -> int:
+    try:
+        store = open_for_admin(args)
+    except (SiteKeyError, StoreVersionError) as exc:
+        print(f"store: {exc}", file=sys.stderr)
+        return 2
+    try:
+        if store.health.level != "OK":
+            print(f"store: {store.health.level}: {store.health.message}", file=sys.stderr)
+        return ACTIONS[args.action](store, args)
+    except CoreInputError as exc:
+        print(f"store: {exc}", file=sys.stderr)
+        return 2
+    finally:
+        store.close()
+
+
+def do_inspect(store: SqliteStore, args) -> int:
+    if args.person is None and args.key is None:
+        counts = store.counts()
+        print(f"store {store.path}")
+        print(render_table(["item", "value"], [[k, v] for k, v in counts.items()],
+                           [False, True]))
+        return 0
+    key = _key(store, args)
+    belief, last = store.belief(key)
+    events = store.events_for(key)
+    known = key in set(store.keys())
+    print(f"person key {key}")
+    rows = [["known", "yes" if known else "no (site prior)"],
+            ["opted out", "yes" if store.is_opted_out(key) else "no"],
+            ["a", fmt(belief.a, 4)], ["b", fmt(belief.b, 4)],
+            ["mean willingness", fmt(belief.mean, 3)],
+            ["events stored", len(events)],
+            ["last event time_s", "-" if last is None else fmt(last, 1)]]
+    print(render_table(["item", "value"], rows, [False, True]))
+    return 0
+
+
+def do_opt_out(store: SqliteStore, args) -> int:
+    key = _key(store, args)
+    store.opt_out(key)
+    print(f"opted out {key[:16]}...: no new outcomes will be stored for this person")
+    return 0
+
+
+def do_forget(store: SqliteStore, args) -> int:
+    key = _key(store, args)
+    n = store.forget(key)
+    print(f"forgot {key[:16]}...: {n} event(s) deleted, snapshot and opt-out removed")
+    return 0
+
+
+def do_compact(store: SqliteStore, args) -> int:
+    if args.older_than_days < 0:
+        print("store: --older-than-days must be >= 0", file=sys.stderr)
+        return 2
+    now = time.time() if args.now is None else args.now
+    n = store.compact(args.older_than_days * 86400.0, now_s=now)
+    print(f"compacted {n} event(s) older than {args.older_than_days:g} day(s)")
+    return 0
+
+
+def write_csv(store: SqliteStore, handle) -> int:
+    w = csv.writer(handle, lineterminator="\n")
+    w.writerow(EXPORT_COLUMNS)
+    n = 0
+    for e in store.iter_events():
+        w.writerow([e.event_id, e.person_key, repr(float(e.time_s)), repr(float(e.busyness)),
+                    repr(float(e.ask_load)), e.result.value, e.request_kind])
+        n += 1
+    return n
+
+
+def do_export(store: SqliteStore, args) -> int:
+    if args.out == "-":
+        n = write_csv(store, sys.stdout)
+    else:
+        with open(args.out, "w", newline="", encoding="utf-8") as fh:
+            n = write_csv(store, fh)
+        print(f"exported {n} event(s) to {args.out}", file=sys.stderr)
+    return 0
+
+
+ACTIONS = {"inspect": do_inspect, "opt-out": do_opt_out, "forget": do_forget,
+           "compact": do_compact, "export": do_export}
