@@ -1,0 +1,204 @@
+"""Fleet exchange: robots share outcome events on `fleet/outcomes` and merge them by event id.
+
+Each message is one std_msgs/String JSON document (format in docs/store.md):
+  {"v": 1, "kind": "outcome", "event_id": ..., "person_key": ..., "time_s": ...,
+   "result": ..., "busyness": ..., "ask_load": ..., "request_kind": ...}
+  {"v": 1, "kind": "forget", "person_key": ..., "from": "<robot_id>"}
+Only hashed person keys travel; a message with anything else is refused.  The topic is
+reliable and transient local with a deep history, and a robot re-offers its most recent
+stored events at start, so a robot that starts late catches up.  The merge is store.append:
+idempotent by event id, and the fold orders events by (time, event id), so any arrival order
+and any duplication yield the same beliefs on every robot.
+"""
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import threading
+from typing import Callable, Iterable, Optional
+
+from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
+from std_msgs.msg import String
+
+from ..core import CoreInputError, Result
+from ..store.base import StoredEvent
+from ..store.sqlite import PERSON_KEY_RE, check_event
+
+FLEET_TOPIC = "fleet/outcomes"
+FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
+FORMAT_VERSION = 1
+
+Merged = Callable[[list[StoredEvent]], None]
+
+
+def fleet_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
+    return QoSProfile(history=HistoryPolicy.KEEP_LAST, depth=depth,
+                      reliability=ReliabilityPolicy.RELIABLE,
+                      durability=DurabilityPolicy.TRANSIENT_LOCAL)
+
+
+def encode_event(e: StoredEvent) -> str:
+    check_event(e)       # refuses anything but a hashed key
+    return json.dumps({"v": FORMAT_VERSION, "kind": "outcome", "event_id": e.event_id,
+                       "person_key": e.person_key, "time_s": float(e.time_s),
+                       "result": Result(e.result).value, "busyness": float(e.busyness),
+                       "ask_load": float(e.ask_load), "request_kind": e.request_kind or ""},
+                      separators=(",", ":"), sort_keys=True)
+
+
+def encode_forget(person_key: str, robot_id: str) -> str:
+    if not PERSON_KEY_RE.match(person_key or ""):
+        raise CoreInputError("person_key: expected 64 lowercase hex digits")
+    return json.dumps({"v": FORMAT_VERSION, "kind": "forget", "person_key": person_key,
+                       "from": robot_id}, separators=(",", ":"), sort_keys=True)
+
+
+def decode(text: str):
+    """('outcome', StoredEvent) or ('forget', key); raises CoreInputError on a bad document."""
+    try:
+        doc = json.loads(text)
+    except ValueError as exc:
+        raise CoreInputError(f"fleet message: not JSON ({exc})") from None
+    if not isinstance(doc, dict) or doc.get("v") != FORMAT_VERSION:
+        raise CoreInputError(f"fleet message: expected a JSON object with v={FORMAT_VERSION}")
+    kind = doc.get("kind")
+    if kind == "forget":
+        key = doc.get("person_key", "")
+        if not isinstance(key, str) or not PERSON_KEY_RE.match(key):
+            raise CoreInputError("fleet message: person_key must be 64 lowercase hex digits")
+        return "forget", key
+    if kind != "outcome":
+        raise CoreInputError(f"fleet message: kind {kind!r} is not outcome or forget")
+    try:
+        e = StoredEvent(str(doc["event_id"]), str(doc["person_key"]), doc["time_s"],
+                        Result.parse(str(doc["result"])), doc["busyness"], doc["ask_load"],
+                        str(doc.get("request_kind", "")))
+    except KeyError as exc:
+        raise CoreInputError(f"fleet message: missing field {exc.args[0]}") from None
+    check_event(e)
+    return "outcome", e
+
+
+def merge(store, text: str, forgotten: set[str] | None = None) -> list[StoredEvent]:
+    """Apply one fleet message to the store; returns the events that were new here."""
+    kind, value = decode(text)
+    if kind == "forget":
+        if forgotten is not None:
+            forgotten.add(value)
+        store.forget(value)
+        return []
+    if forgotten is not None and value.person_key in forgotten:
+        return []        # forgotten this session: an older copy replayed by a peer
+    return [value] if store.append(value) else []
+
+
+class FleetLink:
+    """Publishes this robot's outcomes and merges everyone else's into the store."""
+
+    def __init__(self, node, store, on_merged: Optional[Merged] = None,
+                 topic: str = FLEET_TOPIC, depth: int = FLEET_HISTORY_DEPTH,
+                 replay: bool = True) -> None:
+        self._node = node
+        self._store = store
+        self._on_merged = on_merged
+        self._forgotten: set[str] = set()
+        self._lock = threading.Lock()
+        self.merged_count = 0
+        self.refused_count = 0
+        qos = fleet_qos(depth)
+        self._pub = node.create_publisher(String, topic, qos)
+        self._sub = node.create_subscription(String, topic, self._on_message, qos)
+        if replay and hasattr(store, "recent_events"):
+            self.publish_many(store.recent_events(depth))   # re-offer after a restart
+
+    def publish(self, event: StoredEvent) -> None:
+        """Share one outcome (call after store.append has returned True)."""
+        self._pub.publish(String(data=encode_event(event)))
+
+    def publish_many(self, events: Iterable[StoredEvent]) -> None:
+        for e in events:
+            self.publish(e)
+
+    def forget(self, person_key: str) -> int:
+        """Forget here and ask every robot to forget too."""
+        with self._lock:
+            self._forgotten.add(person_key)
+        n = self._store.forget(person_key)
+        self._pub.publish(String(data=encode_forget(person_key, getattr(
+            self._store, "robot_id", ""))))
+        return n
+
+    def _on_message(self, msg: String) -> None:
+        try:
+            with self._lock:
+                new = merge(self._store, msg.data, self._forgotten)
+        except CoreInputError as exc:
+            self.refused_count += 1
+            self._node.get_logger().warning(f"{FLEET_TOPIC}: refused a message: {exc}",
+                                            throttle_duration_sec=10.0)
+            return
+        if new:
+            self.merged_count += len(new)
+            if self._on_merged is not None:
+                self._on_merged(new)
+
+
+# -- a small stand-alone peer (tests, trying the exchange by hand) ------------------------
+def run_peer(argv: list[str] | None = None) -> int:
+    """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'quit'.
+
+    Prints 'ready', 'ack EVENT_ID', 'merged EVENT_ID', 'belief A B' (repr floats).
+    """
+    import rclpy
+    from rclpy.executors import SingleThreadedExecutor
+
+    from ..store import open_store
+
+    p = argparse.ArgumentParser(prog="fleet-peer")
+    p.add_argument("--store", required=True)
+    p.add_argument("--key-file", required=True)
+    p.add_argument("--robot-id", required=True)
+    args = p.parse_args(argv)
+    store = open_store(args.store, args.robot_id, key_path=args.key_file)
+    out_lock = threading.Lock()
+
+    def say(line: str) -> None:
+        with out_lock:
+            sys.stdout.write(line + "\n")
+            sys.stdout.flush()
+
+    rclpy.init()
+    node = rclpy.create_node(f"fleet_peer_{args.robot_id}")
+    link = FleetLink(node, store, lambda evs: [say(f"merged {e.event_id}") for e in evs])
+    executor = SingleThreadedExecutor()
+    executor.add_node(node)
+    spin = threading.Thread(target=executor.spin, daemon=True)
+    spin.start()
+    say("ready")
+    try:
+        for line in sys.stdin:
+            parts = line.split()
+            if not parts:
+                continue
+            if parts[0] == "quit":
+                break
+            if parts[0] == "outcome":
+                e = StoredEvent(store.next_event_id(), store.key_for(parts[1]), float(parts[3]),
+                                Result.parse(parts[2]), 0.2, 0.0, "door")
+                if store.append(e):
+                    link.publish(e)
+                say(f"ack {e.event_id}")
+            elif parts[0] == "belief":
+                b, _ = store.belief(store.key_for(parts[1]))
+                say(f"belief {b.a!r} {b.b!r}")
+    finally:
+        executor.shutdown(timeout_sec=1.0)
+        node.destroy_node()
+        rclpy.try_shutdown()
+        store.close()
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(run_peer())
