@@ -1,0 +1,63 @@
+"""Privacy: raw ids never reach the store's bytes; forget leaves no trace of the key."""
+import glob
+import os
+
+from helpaware_node.core import Result
+from helpaware_node.store import SqliteStore, StoredEvent
+
+KEY = os.urandom(32)
+RAW_IDS = ["badge-7731-ward-C", "nurse-ingrid-olsen", "porter_42_night"]
+
+
+def store_bytes(path):
+    """The database and every companion file (-wal, -shm, -journal) as bytes."""
+    return {p: open(p, "rb").read() for p in glob.glob(str(path) + "*")}
+
+
+def scenario(store):
+    keys = [store.key_for(r) for r in RAW_IDS]
+    for i in range(90):
+        e = StoredEvent(store.next_event_id(), keys[i % 3], 10.0 * i, list(Result)[i % 4],
+                        0.4, 0.2, "door")
+        assert store.append(e)
+    store.opt_out(keys[2])
+    return keys
+
+
+def test_no_raw_id_in_db_wal_or_journal(tmp_path):
+    path = tmp_path / "b.sqlite3"
+    store = SqliteStore(path, "r1", KEY)
+    scenario(store)
+    open_files = store_bytes(path)          # while open: the WAL holds recent pages
+    assert any(p.endswith("-wal") and len(b) > 0 for p, b in open_files.items())
+    store.compact(older_than_s=0.0, now_s=450.0)
+    store.close()
+    for files in (open_files, store_bytes(path)):
+        for name, data in files.items():
+            for raw in RAW_IDS:
+                assert raw.encode() not in data, f"{raw} found in {name}"
+            assert KEY not in data and KEY.hex().encode() not in data
+
+
+def test_forget_removes_every_row_and_every_byte_of_the_key(tmp_path):
+    path = tmp_path / "b.sqlite3"
+    store = SqliteStore(path, "r1", KEY)
+    keys = scenario(store)
+    store.compact(older_than_s=0.0, now_s=300.0)    # some history folded into the base
+    gone, kept = keys[0], keys[1]
+    store.opt_out(gone)
+    assert store.forget(gone) == 30
+    # no row in any table holds the key
+    conn = store._conn
+    tables = [r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type='table'")]
+    for table in tables:
+        for row in conn.execute(f"SELECT * FROM {table}"):
+            assert gone not in [str(v) for v in row], f"key still in {table}"
+    assert not store.is_opted_out(gone) and gone not in store.keys()
+    assert kept in store.keys() and store.is_opted_out(keys[2])
+    # and no byte of it lingers in the file, its free pages or the WAL (secure_delete + TRUNCATE)
+    for name, data in store_bytes(path).items():
+        assert gone.encode() not in data, f"forgotten key bytes in {name}"
+    store.close()
+    for name, data in store_bytes(path).items():
+        assert gone.encode() not in data and kept.encode() in open(path, "rb").read()
