@@ -161,3 +161,25 @@ def test_written_file_changes_the_decision_as_expected(tmp_path, k_busy_truth, e
     p = decision.rationale()[0]["p"]
     assert p == pytest.approx(math.exp(-0.6 * model.k_busy) * model.prior_a
                               / (model.prior_a + model.prior_b), rel=1e-9)
+
+
+def test_reads_the_store_export(tmp_path):
+    # the store's own CSV export (tools/store_admin.write_csv) read back by the fit reader
+    from helpaware_node.core.person import Result
+    from helpaware_node.store.base import StoredEvent, person_key
+    from helpaware_node.store.sqlite import SqliteStore
+    from helpaware_node.tools.store_admin import write_csv as store_write_csv
+    key = b"k" * 32
+    store = SqliteStore(tmp_path / "s.db", "r1", key)
+    results = [Result.HELPED, Result.DECLINED, Result.NO_RESPONSE, Result.COULD_NOT_ASK]
+    for i in range(12):
+        store.append(StoredEvent(f"r1/{i}", person_key(key, f"nurse{i % 3}"), 100.0 * i,
+                                 results[i % 4], 0.1 * (i % 5), 0.25 * (i % 3), "door"))
+    path = tmp_path / "export.csv"
+    with open(path, "w", newline="") as fh:
+        assert store_write_csv(store, fh) == 12
+    d = read_outcome_csv([str(path)])
+    assert d.n_outcomes == 9 and d.n_people == 3          # could_not_ask rows skipped
+    assert d.counts() == {"helped": 3, "declined": 3, "no_response": 3}
+    assert sorted(np.round(d.load, 6)) == sorted(np.round([0.25 * (i % 3) for i in range(12)
+                                                           if i % 4 != 3], 6))
