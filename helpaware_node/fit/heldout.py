@@ -63,7 +63,7 @@ class HeldOut:
 
 
 def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: float = 0.8,
-          glmm_nodes: int = 15) -> HeldOut:
+          glmm_nodes: int = 15, progress=None) -> HeldOut:
     if data.n_people < folds:
         raise ValueError(f"k-fold over people: {data.n_people} people for {folds} folds; "
                          "use fewer folds")
@@ -72,6 +72,8 @@ def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: 
     y = (data.result == HELPED).astype(float)
     preds = {k: np.zeros(data.n_outcomes) for k in ("ss", "sn", "ns", "gs", "gn")}
     for k in range(folds):
+        if progress is not None:
+            progress.step(f"fold {k + 1} of {folds}")
         train = data.subset_people(np.flatnonzero(fold_of != k))
         test_people = np.flatnonzero(fold_of == k)
         test = data.subset_people(test_people)

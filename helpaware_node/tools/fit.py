@@ -98,7 +98,8 @@ def run(args: argparse.Namespace) -> int:
     held = None
     if args.folds and args.folds > 1:
         try:
-            held = kfold(data, args.folds, args.seed, args.notice_probability)
+            held = kfold(data, args.folds, args.seed, args.notice_probability,
+                         progress=Progress("held-out", enabled=show, every_s=0.0))
         except (FitInputError, ValueError) as exc:
             print(f"held-out: skipped ({exc})")
     if held is not None:
