@@ -1,0 +1,516 @@
+"""Versioned JSON documents carried in std_msgs/String on the node's topics (no rclpy here).
+
+Documents: `people`, `task_status`, `outcome` (inputs) and `decision` (output).  Each has
+`doc` (its name) and `version`; every field is checked by one table (`SPECS`), which also
+produces the JSON Schema files under docs/schemas/, so code and schemas cannot drift apart.
+Errors are `WireError` (a ValueError) naming the field path and the allowed range.
+
+The decision document carries everything needed to rebuild the exact core inputs
+(`replay_inputs`) and the parameter values in force (`recorded_params`), so an offline review
+can re-run `core.policy.decide` and get the recorded action and person back.
+"""
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from typing import Any, Iterable, Mapping, Optional, Sequence
+
+from .core.belief import Belief
+from .core.model import DecisionConfig, SiteModel, from_plain, to_plain
+from .core.person import Result
+from .core.policy import HOUR_S, Candidate, Decision, HelpNeed
+
+VERSION = 1
+MAX_DOCUMENT_BYTES = 1_000_000
+MAX_PEOPLE = 500
+MAX_ID_CHARS = 128
+MAX_LABEL_CHARS = 64
+MAX_TEXT_CHARS = 256
+MAX_TIMES = 1000
+MAX_CANDIDATES = MAX_PEOPLE
+TIME_LIMIT_S = 1e15
+BIG = 1e15
+
+TASK_STATES = ("open", "resolved", "cancelled")
+RESULTS = tuple(r.value for r in Result)
+ACTIONS = ("ask", "continue")
+
+
+class WireError(ValueError):
+    """A document is not valid; the message names the field and what is allowed."""
+
+
+# ----------------------------------------------------------------------------------------
+# One small field-spec language; both the validator and the JSON Schema come from it.
+
+@dataclass(frozen=True)
+class F:
+    kind: str                       # string | number | integer | boolean | enum | array | object | any_object
+    required: bool = True
+    nullable: bool = False
+    low: float = -BIG
+    high: float = BIG
+    low_open: bool = False
+    min_len: int = 0
+    max_len: int = MAX_TEXT_CHARS
+    choices: tuple = ()
+    items: Optional["F"] = None
+    fields: Mapping[str, "F"] = field(default_factory=dict)
+    description: str = ""
+
+
+def _id(desc: str, **kw) -> F:
+    return F("string", min_len=1, max_len=MAX_ID_CHARS, description=desc, **kw)
+
+
+def _time(desc: str, **kw) -> F:
+    return F("number", low=-TIME_LIMIT_S, high=TIME_LIMIT_S, description=desc, **kw)
+
+
+def _header(name: str) -> dict:
+    return {"doc": F("enum", choices=(name,), description="document name"),
+            "version": F("enum", choices=(VERSION,), description="document version")}
+
+
+PERSON = F("object", fields={
+    "id": _id("perceived person id (opaque, from perception)"),
+    "distance_m": F("number", low=0.0, high=1e6, description="distance from the robot, metres"),
+    "busyness": F("number", required=False, nullable=True, low=0.0, high=1.0,
+                  description="busyness in [0, 1]; null or absent: the site default"),
+    "activity": F("string", required=False, max_len=MAX_LABEL_CHARS,
+                  description="activity label, e.g. charting, with_patient"),
+    "position": F("array", required=False, items=F("number"), min_len=3, max_len=3,
+                  description="[x, y, z] in frame_id, metres"),
+})
+
+PEOPLE = F("object", fields={
+    **_header("people"),
+    "stamp_s": _time("time of the observation, seconds (node clock)"),
+    "frame_id": F("string", required=False, max_len=MAX_LABEL_CHARS,
+                  description="frame of the positions"),
+    "people": F("array", items=PERSON, max_len=MAX_PEOPLE, description="people in view"),
+})
+
+TASK_STATUS = F("object", fields={
+    **_header("task_status"),
+    "request_id": _id("help need id, unique per robot"),
+    "state": F("enum", choices=TASK_STATES, description="open, resolved or cancelled"),
+    "kind": F("string", required=False, min_len=1, max_len=MAX_LABEL_CHARS,
+              description="request kind, e.g. door, elevator (required when state is open)"),
+    "urgency": F("number", required=False, low=0.0, high=1.0, description="urgency in [0, 1]"),
+    "continue_cost_s": F("number", required=False, nullable=True, low=0.0, high=1e9,
+                         description="override of the cost of continuing alone, seconds"),
+    "help_time_s": F("number", required=False, nullable=True, low=0.0, high=1e9,
+                     description="override of the seconds a successful ask takes"),
+    "stamp_s": _time("time of the status, seconds", required=False),
+})
+
+OUTCOME = F("object", fields={
+    **_header("outcome"),
+    "request_id": _id("help need id the ask belonged to"),
+    "person_id": _id("perceived id of the person asked"),
+    "result": F("enum", choices=RESULTS, description="what happened"),
+    "stamp_s": _time("time of the outcome, seconds", required=False),
+})
+
+NEED = F("object", fields={
+    "request_id": _id("help need id"),
+    "kind": F("string", min_len=1, max_len=MAX_LABEL_CHARS, description="request kind"),
+    "urgency": F("number", low=0.0, high=1.0, description="urgency"),
+    "continue_cost_s": F("number", nullable=True, low=0.0, high=1e9, description="override or null"),
+    "help_time_s": F("number", nullable=True, low=0.0, high=1e9, description="override or null"),
+    "opened_at_s": _time("when the need opened, seconds"),
+})
+
+TIMES = F("array", items=_time("time, seconds"), max_len=MAX_TIMES)
+
+CANDIDATE = F("object", fields={
+    "person_id": _id("perceived id"),
+    "distance_m": F("number", low=0.0, high=1e6, description="metres"),
+    "observed_at_s": _time("time of the observation used"),
+    "a": F("number", low=0.0, low_open=True, high=1e12, description="belief a as used"),
+    "b": F("number", low=0.0, low_open=True, high=1e12, description="belief b as used"),
+    "busyness": F("number", nullable=True, low=0.0, high=1.0, description="null: site default"),
+    "activity": F("string", max_len=MAX_LABEL_CHARS, description="activity label"),
+    "ask_times_s": TIMES,
+    "candidate_count": F("integer", low=0, high=1e12, description="earlier needs as candidate"),
+    "first_seen_s": _time("first time seen as candidate", nullable=True),
+    "opted_out": F("boolean", description="on the opt-out list"),
+})
+
+RATIONALE_ROW = F("object", fields={
+    "person_id": _id("perceived id"),
+    "excluded": F("string", nullable=True, max_len=MAX_LABEL_CHARS, description="exclusion code"),
+    **{name: F("number", description=desc) for name, desc in (
+        ("a", "belief a"), ("b", "belief b"), ("mean", "belief mean"),
+        ("busyness", "busyness used"), ("ask_load", "ask load f"), ("distance_m", "metres"),
+        ("c", "context factor"), ("p", "predicted help probability"),
+        ("interruption_s", "interruption cost, robot-s"), ("advantage_s", "A, robot-s"),
+        ("voi_s", "information value, robot-s"), ("future_requests", "N"),
+        ("score_s", "Q, robot-s"))},
+})
+
+PARAMETERS = F("object", fields={
+    "model": F("any_object", description="core.model.to_plain(SiteModel)"),
+    "config": F("any_object", description="core.model.to_plain(DecisionConfig)"),
+})
+
+DECISION = F("object", fields={
+    **_header("decision"),
+    "robot_id": F("string", max_len=MAX_ID_CHARS, description="robot that decided"),
+    "request_id": _id("help need id"),
+    "stamp_s": _time("decision time now_s, seconds"),
+    "action": F("enum", choices=ACTIONS, description="ask or continue"),
+    "person_id": _id("person to ask (null when continuing)", nullable=True),
+    "why": F("string", max_len=MAX_LABEL_CHARS, description="reason code of the action"),
+    "policy": F("string", max_len=MAX_LABEL_CHARS, description="policy name"),
+    "params_hash": F("string", max_len=64, description="hash of the parameters in force"),
+    "continue_cost_s": F("number", low=0.0, high=1e12, description="C_r used, robot-s"),
+    "help_time_s": F("number", low=0.0, high=1e9, description="t_help used, seconds"),
+    "need": NEED,
+    "robot_ask_times_s": F("array", items=_time("ask time"), max_len=MAX_TIMES,
+                           description="the robot's asks within the hour before stamp_s"),
+    "candidates": F("array", items=CANDIDATE, max_len=MAX_CANDIDATES,
+                    description="full core inputs per candidate"),
+    "rationale": F("array", items=RATIONALE_ROW, max_len=MAX_CANDIDATES,
+                   description="Decision.rationale() rows"),
+    "parameters": F("object", required=False, fields=PARAMETERS.fields,
+                    description="parameter values in force"),
+})
+
+SPECS: dict[str, F] = {"people": PEOPLE, "task_status": TASK_STATUS, "outcome": OUTCOME,
+                       "decision": DECISION}
+
+
+def _fmt(v: float) -> str:
+    return "inf" if v >= BIG else ("-inf" if v <= -BIG else f"{v:g}")
+
+
+def _check(spec: F, value: Any, path: str) -> None:
+    if value is None:
+        if spec.nullable:
+            return
+        raise WireError(f"{path}: must not be null")
+    k = spec.kind
+    if k == "string":
+        if not isinstance(value, str):
+            raise WireError(f"{path}: expected a string, got {type(value).__name__}")
+        if not spec.min_len <= len(value) <= spec.max_len:
+            raise WireError(f"{path}: length {len(value)} is outside the allowed "
+                            f"[{spec.min_len}, {spec.max_len}] characters")
+    elif k in ("number", "integer"):
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise WireError(f"{path}: expected a number, got {type(value).__name__}")
+        if k == "integer" and not float(value).is_integer():
+            raise WireError(f"{path}: expected a whole number, got {value!r}")
+        v = float(value)
+        lo_ok = v > spec.low if spec.low_open else v >= spec.low
+        if not math.isfinite(v) or not lo_ok or v > spec.high:
+            lb = "(" if spec.low_open else "["
+            raise WireError(f"{path}: {value!r} is outside the allowed range "
+                            f"{lb}{_fmt(spec.low)}, {_fmt(spec.high)}]")
+    elif k == "boolean":
+        if not isinstance(value, bool):
+            raise WireError(f"{path}: expected true or false, got {type(value).__name__}")
+    elif k == "enum":
+        if isinstance(value, bool) or value not in spec.choices:
+            allowed = ", ".join(str(c) for c in spec.choices)
+            raise WireError(f"{path}: {str(value)[:40]!r} is not one of {allowed}")
+    elif k == "array":
+        if not isinstance(value, list):
+            raise WireError(f"{path}: expected an array, got {type(value).__name__}")
+        if not spec.min_len <= len(value) <= spec.max_len:
+            raise WireError(f"{path}: {len(value)} items is outside the allowed "
+                            f"[{spec.min_len}, {spec.max_len}]")
+        for i, item in enumerate(value):
+            _check(spec.items, item, f"{path}[{i}]")
+    elif k == "any_object":
+        if not isinstance(value, dict):
+            raise WireError(f"{path}: expected an object, got {type(value).__name__}")
+    elif k == "object":
+        if not isinstance(value, dict):
+            raise WireError(f"{path}: expected an object, got {type(value).__name__}")
+        unknown = sorted(set(value) - set(spec.fields))
+        if unknown:
+            raise WireError(f"{path}: unknown field {str(unknown[0])[:40]!r} "
+                            f"(allowed: {', '.join(spec.fields)})")
+        for name, sub in spec.fields.items():
+            sub_path = f"{path}.{name}" if path else name
+            if name not in value:
+                if sub.required:
+                    raise WireError(f"{sub_path}: required field is missing")
+                continue
+            _check(sub, value[name], sub_path)
+
+
+def validate(name: str, document: Any) -> dict:
+    """Check a decoded document against its spec; returns it or raises WireError."""
+    spec = SPECS.get(name)
+    if spec is None:
+        raise WireError(f"doc: unknown document {name!r} (allowed: {', '.join(SPECS)})")
+    if not isinstance(document, dict):
+        raise WireError(f"{name}: expected a JSON object, got {type(document).__name__}")
+    _check(spec, document, "")
+    if name == "task_status" and document["state"] == "open" and "kind" not in document:
+        raise WireError("kind: required when state is open")
+    if name == "decision":
+        if (document["action"] == "ask") != (document["person_id"] is not None):
+            raise WireError("person_id: must be set exactly when action is ask")
+    return document
+
+
+def _refuse_constant(text: str):
+    raise WireError(f"document: {text} is not allowed (numbers must be finite)")
+
+
+def decode(name: str, text: Any) -> dict:
+    """Parse and validate the JSON text of document `name`."""
+    if isinstance(text, (bytes, bytearray)):
+        try:
+            text = bytes(text).decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise WireError(f"document: not UTF-8 ({exc.reason})") from None
+    if not isinstance(text, str):
+        raise WireError(f"document: expected text, got {type(text).__name__}")
+    if len(text) > MAX_DOCUMENT_BYTES or len(text.encode("utf-8", "replace")) > MAX_DOCUMENT_BYTES:
+        raise WireError(f"document: larger than the allowed {MAX_DOCUMENT_BYTES} bytes")
+    try:
+        data = json.loads(text, parse_constant=_refuse_constant)
+    except WireError:
+        raise
+    except (ValueError, RecursionError) as exc:
+        raise WireError(f"document: not valid JSON ({str(exc)[:80]})") from None
+    return validate(name, data)
+
+
+def encode(name: str, document: Mapping[str, Any]) -> str:
+    """Validate and serialise a document (compact, NaN refused)."""
+    doc = validate(name, dict(document))
+    try:
+        text = json.dumps(doc, separators=(",", ":"), allow_nan=False)
+    except ValueError as exc:
+        raise WireError(f"document: {exc}") from None
+    if len(text.encode("utf-8")) > MAX_DOCUMENT_BYTES:
+        raise WireError(f"document: larger than the allowed {MAX_DOCUMENT_BYTES} bytes")
+    return text
+
+
+# ----------------------------------------------------------------------------------------
+# One-call builders for integrators (each returns validated JSON text).
+
+def people_document(people: Iterable[Mapping[str, Any]], stamp_s: float, frame_id: str = "") -> str:
+    """people: mappings with id, distance_m and optional busyness, activity, position."""
+    doc = {"doc": "people", "version": VERSION, "stamp_s": float(stamp_s),
+           "people": [dict(p) for p in people]}
+    if frame_id:
+        doc["frame_id"] = frame_id
+    return encode("people", doc)
+
+
+def task_status_document(request_id: str, state: str = "open", kind: str = "",
+                         urgency: float = 0.0, continue_cost_s: Optional[float] = None,
+                         help_time_s: Optional[float] = None,
+                         stamp_s: Optional[float] = None) -> str:
+    doc: dict[str, Any] = {"doc": "task_status", "version": VERSION,
+                           "request_id": request_id, "state": state}
+    if kind:
+        doc["kind"] = kind
+    if state == "open":
+        doc["urgency"] = float(urgency)
+    if continue_cost_s is not None:
+        doc["continue_cost_s"] = float(continue_cost_s)
+    if help_time_s is not None:
+        doc["help_time_s"] = float(help_time_s)
+    if stamp_s is not None:
+        doc["stamp_s"] = float(stamp_s)
+    return encode("task_status", doc)
+
+
+def outcome_document(request_id: str, person_id: str, result: str,
+                     stamp_s: Optional[float] = None) -> str:
+    doc: dict[str, Any] = {"doc": "outcome", "version": VERSION, "request_id": request_id,
+                           "person_id": person_id, "result": str(getattr(result, "value", result))}
+    if stamp_s is not None:
+        doc["stamp_s"] = float(stamp_s)
+    return encode("outcome", doc)
+
+
+# ----------------------------------------------------------------------------------------
+# Decoded inputs as plain values for the node.
+
+@dataclass(frozen=True)
+class SeenPerson:
+    person_id: str
+    distance_m: float
+    busyness: Optional[float]
+    activity: str
+    position: Optional[tuple[float, float, float]]
+
+
+def people_from(doc: Mapping[str, Any]) -> list[SeenPerson]:
+    out = []
+    for p in doc["people"]:
+        pos = p.get("position")
+        out.append(SeenPerson(p["id"], float(p["distance_m"]),
+                              None if p.get("busyness") is None else float(p["busyness"]),
+                              p.get("activity", ""), tuple(float(v) for v in pos) if pos else None))
+    return out
+
+
+def help_need_from(doc: Mapping[str, Any], opened_at_s: float) -> HelpNeed:
+    """A HelpNeed from an `open` task_status document (opened at the node's clock time)."""
+    return HelpNeed(request_id=doc["request_id"], kind=doc["kind"], opened_at_s=opened_at_s,
+                    urgency=float(doc.get("urgency", 0.0)),
+                    continue_cost_s=doc.get("continue_cost_s"), help_time_s=doc.get("help_time_s"))
+
+
+# ----------------------------------------------------------------------------------------
+# The decision document and its exact replay.
+
+def _need_plain(need: HelpNeed) -> dict:
+    return {"request_id": need.request_id, "kind": need.kind, "urgency": float(need.urgency),
+            "continue_cost_s": need.continue_cost_s, "help_time_s": need.help_time_s,
+            "opened_at_s": float(need.opened_at_s)}
+
+
+def _candidate_plain(c: Candidate) -> dict:
+    return {"person_id": c.person_id, "distance_m": float(c.distance_m),
+            "observed_at_s": float(c.observed_at_s), "a": float(c.belief.a),
+            "b": float(c.belief.b), "busyness": None if c.busyness is None else float(c.busyness),
+            "activity": c.activity, "ask_times_s": [float(t) for t in c.ask_times_s],
+            "candidate_count": int(c.candidate_count),
+            "first_seen_s": None if c.first_seen_s is None else float(c.first_seen_s),
+            "opted_out": bool(c.opted_out)}
+
+
+def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
+                         model: Optional[SiteModel] = None,
+                         config: Optional[DecisionConfig] = None, robot_id: str = "") -> dict:
+    """The decision as a plain document (validated); `encode("decision", doc)` makes the text.
+
+    Only the robot's asks within the hour before the decision are kept: those are all the
+    robot-hourly cap looks at, so the replay reproduces the decision exactly.
+    """
+    ev = decision.evaluation
+    now = float(ev.now_s)
+    doc: dict[str, Any] = {
+        "doc": "decision", "version": VERSION, "robot_id": robot_id,
+        "request_id": ev.need.request_id, "stamp_s": now, "action": decision.action,
+        "person_id": decision.person_id, "why": decision.why, "policy": decision.policy,
+        "params_hash": ev.params_hash, "continue_cost_s": float(ev.continue_cost_s),
+        "help_time_s": float(ev.help_time_s), "need": _need_plain(ev.need),
+        "robot_ask_times_s": [float(t) for t in robot_ask_times_s if now - t < HOUR_S],
+        "candidates": [_candidate_plain(c) for c in ev.candidates],
+        "rationale": decision.rationale(),
+    }
+    if model is not None and config is not None:
+        doc["parameters"] = {"model": to_plain(model), "config": to_plain(config)}
+    return validate("decision", doc)
+
+
+def decision_text(decision: Decision, robot_ask_times_s: Sequence[float],
+                  model: Optional[SiteModel] = None, config: Optional[DecisionConfig] = None,
+                  robot_id: str = "") -> str:
+    return encode("decision", decision_to_document(decision, robot_ask_times_s, model, config,
+                                                   robot_id))
+
+
+def replay_inputs(document: Mapping[str, Any]
+                  ) -> tuple[HelpNeed, list[Candidate], float, tuple[float, ...]]:
+    """(need, candidates, now_s, robot_ask_times_s) exactly as the decision saw them."""
+    if isinstance(document, (str, bytes)):
+        document = decode("decision", document)
+    else:
+        validate("decision", dict(document))
+    n = document["need"]
+    need = HelpNeed(request_id=n["request_id"], kind=n["kind"], opened_at_s=n["opened_at_s"],
+                    urgency=n["urgency"], continue_cost_s=n["continue_cost_s"],
+                    help_time_s=n["help_time_s"])
+    cands = [Candidate(person_id=c["person_id"], distance_m=c["distance_m"],
+                       observed_at_s=c["observed_at_s"], belief=Belief(c["a"], c["b"]),
+                       busyness=c["busyness"], activity=c["activity"],
+                       ask_times_s=tuple(c["ask_times_s"]), candidate_count=int(c["candidate_count"]),
+                       first_seen_s=c["first_seen_s"], opted_out=c["opted_out"])
+             for c in document["candidates"]]
+    return need, cands, float(document["stamp_s"]), tuple(document["robot_ask_times_s"])
+
+
+def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionConfig]:
+    """The SiteModel and DecisionConfig in force at the decision (from its `parameters`)."""
+    params = document.get("parameters")
+    if not isinstance(params, dict):
+        raise WireError("parameters: absent from this decision document")
+    try:
+        return from_plain(SiteModel, params["model"]), from_plain(DecisionConfig, params["config"])
+    except (KeyError, TypeError, ValueError) as exc:
+        raise WireError(f"parameters: {exc}") from None
+
+
+# ----------------------------------------------------------------------------------------
+# JSON Schema (draft 2020-12) generated from the same specs.
+
+def _schema(spec: F) -> dict:
+    k = spec.kind
+    if k == "string":
+        out: dict[str, Any] = {"type": "string", "minLength": spec.min_len, "maxLength": spec.max_len}
+    elif k in ("number", "integer"):
+        out = {"type": k}
+        out["exclusiveMinimum" if spec.low_open else "minimum"] = spec.low
+        out["maximum"] = spec.high
+    elif k == "boolean":
+        out = {"type": "boolean"}
+    elif k == "enum":
+        out = {"enum": list(spec.choices)}
+    elif k == "array":
+        out = {"type": "array", "items": _schema(spec.items), "maxItems": spec.max_len}
+        if spec.min_len:
+            out["minItems"] = spec.min_len
+    elif k == "any_object":
+        out = {"type": "object"}
+    else:
+        out = {"type": "object", "additionalProperties": False,
+               "properties": {n: _schema(s) for n, s in spec.fields.items()},
+               "required": [n for n, s in spec.fields.items() if s.required]}
+    if spec.nullable:
+        if "type" in out:
+            out["type"] = [out["type"], "null"]
+        else:
+            out["enum"] = out["enum"] + [None]
+    if spec.description:
+        out["description"] = spec.description
+    return out
+
+
+def json_schema(name: str) -> dict:
+    schema = _schema(SPECS[name])
+    schema = {"$schema": "https://json-schema.org/draft/2020-12/schema",
+              "$id": f"helpaware_node/{name}/v{VERSION}", "title": f"helpaware {name} document",
+              **schema}
+    if name == "task_status":
+        schema["if"] = {"properties": {"state": {"const": "open"}}}
+        schema["then"] = {"required": ["kind"]}
+    if name == "decision":
+        schema["if"] = {"properties": {"action": {"const": "ask"}}}
+        schema["then"] = {"properties": {"person_id": {"type": "string"}}}
+        schema["else"] = {"properties": {"person_id": {"type": "null"}}}
+    return schema
+
+
+def write_schemas(directory: str) -> list[str]:
+    import os
+    os.makedirs(directory, exist_ok=True)
+    paths = []
+    for name in SPECS:
+        path = os.path.join(directory, f"{name}.json")
+        with open(path, "w", encoding="utf-8") as fh:
+            json.dump(json_schema(name), fh, indent=2)
+            fh.write("\n")
+        paths.append(path)
+    return paths
+
+
+if __name__ == "__main__":  # python -m helpaware_node.wire docs/schemas
+    import sys
+    for p in write_schemas(sys.argv[1] if len(sys.argv) > 1 else "docs/schemas"):
+        print(p)
