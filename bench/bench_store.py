@@ -56,12 +56,12 @@ def main(argv=None) -> int:
     p.add_argument("--people", type=int, default=None)
     p.add_argument("--events", type=int, default=None)
     p.add_argument("--commits", type=int, default=200, help="timed commits of each kind")
-    p.add_argument("--dir", default=None, help="directory for the store (default: a temp dir "
-                   "under the current directory, so it is on a real disk)")
+    p.add_argument("--dir", default=None, help="directory for the store (default: the system "
+                   "temp directory; give a directory on the robot's real disk if that is tmpfs)")
     args = p.parse_args(argv)
     n_people = args.people or (2000 if args.quick else 100_000)
     n_events = args.events or (20_000 if args.quick else 1_000_000)
-    workdir = tempfile.mkdtemp(prefix="bench_store_", dir=args.dir or os.getcwd())
+    workdir = tempfile.mkdtemp(prefix="bench_store_", dir=args.dir)
     path = os.path.join(workdir, "beliefs.sqlite3")
     try:
         return run(path, n_people, n_events, args.commits)

@@ -191,3 +191,13 @@ def test_damaged_file_is_moved_aside_and_store_starts_on_priors(tmp_path, damage
     assert again.append(StoredEvent("r1/1000", k, 2.0, Result.HELPED, 0.2, 0.0))  # keeps working
     again.close()
     assert make_store(tmp_path).health.level == "OK"
+
+
+def test_all_beliefs_in_one_query_match_each_belief(tmp_path):
+    store = make_store(tmp_path)
+    for i in range(30):
+        store.append(StoredEvent(f"r1/{i}", store.key_for(f"p{i % 4}"), float(i * 13 % 7),
+                                 list(Result)[i % 4], 0.5, 0.1))
+    everyone = store.beliefs()
+    assert set(everyone) == set(store.keys()) and len(everyone) == 4
+    assert all(everyone[k] == store.belief(k) for k in everyone)
