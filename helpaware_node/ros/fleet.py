@@ -144,6 +144,71 @@ class FleetLink:
                 self._on_merged(new)
 
 
+PRIVACY_TOPIC = "privacy_request"
+PRIVACY_ACTIONS = ("opt_out", "forget")
+
+
+def parse_privacy_request(text: str, key_for: Callable[[str], str]) -> tuple[str, str]:
+    """(action, person_key) from {"action": "opt_out"|"forget", "person_id"|"person_key": ...}.
+
+    A perceived id is hashed at once and never kept or logged.
+    """
+    try:
+        doc = json.loads(text)
+    except ValueError as exc:
+        raise CoreInputError(f"{PRIVACY_TOPIC}: not JSON ({exc})") from None
+    if not isinstance(doc, dict):
+        raise CoreInputError(f"{PRIVACY_TOPIC}: expected a JSON object")
+    action = doc.get("action")
+    if action not in PRIVACY_ACTIONS:
+        raise CoreInputError(f"{PRIVACY_TOPIC}: action {action!r} is not one of "
+                             f"{', '.join(PRIVACY_ACTIONS)}")
+    if isinstance(doc.get("person_key"), str):
+        key = doc["person_key"].strip().lower()
+        if not PERSON_KEY_RE.match(key):
+            raise CoreInputError(f"{PRIVACY_TOPIC}: person_key must be 64 hex digits")
+    elif isinstance(doc.get("person_id"), str) and doc["person_id"]:
+        key = key_for(doc["person_id"])
+    else:
+        raise CoreInputError(f"{PRIVACY_TOPIC}: give person_id (perceived id) or person_key")
+    return action, key
+
+
+class PrivacyRequests:
+    """Live opt-out and forget through the node: a std_msgs/String JSON topic.
+
+    `on_applied(action, key)` lets the node drop what it holds in memory at once.
+    """
+
+    def __init__(self, node, store, fleet: Optional[FleetLink] = None,
+                 on_applied: Optional[Callable[[str, str], None]] = None,
+                 topic: str = PRIVACY_TOPIC) -> None:
+        self._node, self._store, self._fleet, self._on_applied = node, store, fleet, on_applied
+        qos = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE,
+                         durability=DurabilityPolicy.VOLATILE)
+        self._sub = node.create_subscription(String, topic, self._on_message, qos)
+
+    def apply(self, text: str) -> tuple[str, str]:
+        action, key = parse_privacy_request(text, self._store.key_for)
+        if action == "opt_out":
+            self._store.opt_out(key)
+        elif self._fleet is not None:
+            self._fleet.forget(key)
+        else:
+            self._store.forget(key)
+        if self._on_applied is not None:
+            self._on_applied(action, key)
+        return action, key
+
+    def _on_message(self, msg: String) -> None:
+        try:
+            action, key = self.apply(msg.data)
+        except CoreInputError as exc:
+            self._node.get_logger().warning(str(exc))
+            return
+        self._node.get_logger().info(f"{PRIVACY_TOPIC}: {action} applied to {key[:12]}...")
+
+
 # -- a small stand-alone peer (tests, trying the exchange by hand) ------------------------
 def run_peer(argv: list[str] | None = None) -> int:
     """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'quit'.
