@@ -25,6 +25,7 @@ setup(
     entry_points={
         "console_scripts": [
             "helpaware = helpaware_node.cli:main",
+            "helpaware_decider = helpaware_node.ros.node:main",
         ],
     },
 )

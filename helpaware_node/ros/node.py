@@ -1,0 +1,502 @@
+"""The decision node: people, help needs and outcomes in; decisions, markers, diagnostics out.
+
+Topics (all relative names, so namespaces and remaps work):
+  in  people       std_msgs/String (wire `people`), sensor-data QoS (best effort, depth 5)
+  in  task_status  std_msgs/String (wire `task_status`), reliable, depth 50
+  in  outcome      std_msgs/String (wire `outcome`), reliable, depth 50
+  in  <navigation_status_topic> action_msgs/GoalStatusArray (when the parameter is set)
+  out decision     std_msgs/String (wire `decision`), reliable, depth 50
+  out markers      visualization_msgs/MarkerArray
+  out /diagnostics diagnostic_msgs/DiagnosticArray, about 1 Hz
+Every decision goes through core.policy.decide; every outcome becomes a StoredEvent appended to
+the store before the belief changes (`_ingest_event`, also the entry point for fleet events).
+"""
+from __future__ import annotations
+
+import sys
+from dataclasses import dataclass, replace
+from typing import Optional
+
+import rclpy
+from rclpy.executors import ExternalShutdownException
+from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
+from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
+from std_msgs.msg import String
+
+from .. import wire
+from ..core import (HelpNeed, PersonRecord, Result, candidate_from_record, decide, note_ask,
+                    note_candidate)
+from ..core.model import CoreInputError
+from ..store import StoredEvent, open_store
+from . import diagnostics as diag
+from . import markers as mk
+from .params import NodeParameters
+
+NODE_NAME = "helpaware_decider"
+NAV_FAILURE_KIND = "navigation_failure"
+RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
+IN_VIEW_EXTRA_S = 5.0          # people stay listed (and marked) a little past the staleness limit
+HOUSEKEEPING_PERIOD_S = 0.5
+
+
+class StartupError(RuntimeError):
+    """The node cannot start (refused parameters, store unavailable)."""
+
+
+@dataclass
+class Seen:
+    person: wire.SeenPerson
+    key: str
+    observed_at_s: float
+    frame_id: str
+
+
+@dataclass
+class OpenNeed:
+    need: HelpNeed
+    asks: int = 0
+    served: bool = False          # someone helped: no further decisions for it
+    waiting_for_clock: bool = False
+
+
+@dataclass
+class PendingAsk:
+    request_id: str
+    person_id: str
+    key: str
+    asked_at_s: float
+    busyness: float
+    ask_load: float
+    kind: str
+    expires_at_s: float
+
+
+def _never(ev) -> None:
+    return None
+
+
+class HelpAwareNode(LifecycleNode):
+    """Decides at each help need whether to ask a nearby person, and whom."""
+
+    def __init__(self, node_name: str = NODE_NAME, **kwargs) -> None:
+        super().__init__(node_name, **kwargs)
+        self.store = None
+        self.records: dict[str, PersonRecord] = {}
+        try:
+            self.params = NodeParameters(self, on_change=self._on_parameters_changed)
+        except (CoreInputError, rclpy.exceptions.ParameterException) as exc:
+            raise StartupError(f"parameters refused: {exc}") from exc
+        self.counters = diag.InputCounters()
+        self.store_ok = True
+        self.store_error = ""
+        self.seen: dict[str, Seen] = {}
+        self.needs: dict[str, OpenNeed] = {}
+        self.pending: dict[str, PendingAsk] = {}
+        self.robot_ask_times_s: list[float] = []
+        self.last_action: dict[str, str] = {}        # perceived id -> "asked"/"passed over"
+        self.decisions_published = 0
+        self.expired_asks = 0
+        self.could_not_ask = 0
+        self.last_decision: Optional[dict] = None
+        self._nav_handled: dict[str, str] = {}
+        self._marker_ids = mk.MarkerIds()
+        self._marked: set[str] = set()
+        self._beliefs_model = None
+        self._active = False
+        self._entities = []
+        if self.params.settings.autostart:
+            self.trigger_configure()
+            if self._entities:
+                self.trigger_activate()
+
+    # ---------------------------------------------------------------- lifecycle
+    def on_configure(self, state: LifecycleState) -> TransitionCallbackReturn:
+        s = self.params.settings
+        try:
+            self.store = open_store(s.store_path, s.robot_id, model=self.params.model)
+        except Exception as exc:  # an unreadable store must not start a node that forgets
+            self.get_logger().error(f"store {s.store_path or '(memory)'} could not open: {exc}")
+            return TransitionCallbackReturn.FAILURE
+        self._beliefs_model = self.params.model
+        from rclpy.event_handler import SubscriptionEventCallbacks, PublisherEventCallbacks
+        sub_events = SubscriptionEventCallbacks(incompatible_qos=self._on_qos_incompatible)
+        pub_events = PublisherEventCallbacks(incompatible_qos=self._on_qos_incompatible)
+        self.decision_pub = self.create_publisher(String, "decision", RELIABLE,
+                                                  event_callbacks=pub_events)
+        from visualization_msgs.msg import MarkerArray
+        from diagnostic_msgs.msg import DiagnosticArray
+        self.marker_pub = self.create_publisher(MarkerArray, "markers", 10)
+        self.diag_pub = self.create_publisher(DiagnosticArray, "/diagnostics", 10)
+        subs = [
+            self.create_subscription(String, "people", self._on_people, qos_profile_sensor_data,
+                                     event_callbacks=sub_events),
+            self.create_subscription(String, "task_status", self._on_task_status, RELIABLE,
+                                     event_callbacks=sub_events),
+            self.create_subscription(String, "outcome", self._on_outcome, RELIABLE,
+                                     event_callbacks=sub_events),
+        ]
+        if s.navigation_status_topic:
+            from action_msgs.msg import GoalStatusArray
+            subs.append(self.create_subscription(GoalStatusArray, s.navigation_status_topic,
+                                                 self._on_navigation_status, 10,
+                                                 event_callbacks=sub_events))
+        timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
+                  self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
+        self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
+        self.get_logger().info(f"configured: store {s.store_path or '(memory)'}, "
+                               f"params {self.params_hash()}")
+        return TransitionCallbackReturn.SUCCESS
+
+    def on_activate(self, state: LifecycleState) -> TransitionCallbackReturn:
+        self._active = True
+        return TransitionCallbackReturn.SUCCESS
+
+    def on_deactivate(self, state: LifecycleState) -> TransitionCallbackReturn:
+        self._active = False
+        return TransitionCallbackReturn.SUCCESS
+
+    def on_cleanup(self, state: LifecycleState) -> TransitionCallbackReturn:
+        self._teardown()
+        return TransitionCallbackReturn.SUCCESS
+
+    def on_shutdown(self, state: LifecycleState) -> TransitionCallbackReturn:
+        self._teardown()
+        return TransitionCallbackReturn.SUCCESS
+
+    def _teardown(self) -> None:
+        self._active = False
+        for e in self._entities:
+            try:
+                if hasattr(e, "cancel"):
+                    self.destroy_timer(e)
+                elif hasattr(e, "publish"):
+                    self.destroy_publisher(e)
+                else:
+                    self.destroy_subscription(e)
+            except Exception:  # already gone at shutdown
+                pass
+        self._entities = []
+        if self.store is not None:
+            self.store.close()
+            self.store = None
+
+    def destroy_node(self) -> None:
+        if self.store is not None:
+            self.store.close()
+            self.store = None
+        super().destroy_node()
+
+    # ---------------------------------------------------------------- helpers
+    def now_s(self) -> float:
+        return self.get_clock().now().nanoseconds * 1e-9
+
+    def params_hash(self) -> str:
+        from ..core import params_hash
+        return params_hash(self.params.model, self.params.config)
+
+    def _reject(self, topic: str, reason: str) -> None:
+        self.counters.reject(topic, reason)
+        self.get_logger().warning(f"rejected {topic}: {reason[:200]}",
+                                  throttle_duration_sec=1.0)
+
+    def _on_qos_incompatible(self, event) -> None:
+        self.counters.qos_incompatible += 1
+        self.get_logger().warning(f"incompatible QoS: {event}", throttle_duration_sec=5.0)
+
+    def _on_parameters_changed(self) -> None:
+        # the belief of each person is the fold of their events under the model in force
+        if self.store is not None and self._beliefs_model != self.params.model:
+            self._beliefs_model = self.params.model
+            for key, rec in list(self.records.items()):
+                belief, t = self.store.belief(key, self.params.model)
+                self.records[key] = replace(rec, belief=belief, belief_time_s=t)
+
+    def record_for(self, key: str) -> PersonRecord:
+        rec = self.records.get(key)
+        if rec is None:
+            rec = PersonRecord.new(self.params.model)
+            if self.store is not None and self.store.events_for(key):
+                belief, t = self.store.belief(key, self.params.model)
+                rec = replace(rec, belief=belief, belief_time_s=t)
+            self.records[key] = rec
+        return rec
+
+    def opted_out_keys(self) -> list[str]:
+        """Keys on the store's opt-out list among the people this node knows."""
+        if self.store is None:
+            return []
+        keys = set(self.records) | set(self.store.keys()) | {s.key for s in self.seen.values()}
+        return sorted(k for k in keys if self.store.is_opted_out(k))
+
+    # ---------------------------------------------------------------- inputs
+    def _on_people(self, msg: String) -> None:
+        self.counters.received["people"] += 1
+        try:
+            doc = wire.decode("people", msg.data)
+            people = wire.people_from(doc)
+        except (wire.WireError, CoreInputError) as exc:
+            self._reject("people", str(exc))
+            return
+        now = self.now_s()
+        frame = doc.get("frame_id", "") or "base_link"
+        for p in people:
+            key = self.store.key_for(p.person_id) if self.store is not None else ""
+            self.seen[p.person_id] = Seen(p, key, now, frame)
+
+    def _on_task_status(self, msg: String) -> None:
+        self.counters.received["task_status"] += 1
+        try:
+            doc = wire.decode("task_status", msg.data)
+            rid = doc["request_id"]
+            if doc["state"] == "open":
+                if rid in self.needs:
+                    raise wire.WireError(f"request_id: {rid!r} is already open")
+                need = wire.help_need_from(doc, self.now_s())
+        except (wire.WireError, CoreInputError) as exc:
+            self._reject("task_status", str(exc))
+            return
+        if doc["state"] == "open":
+            self.open_need(need)
+        else:
+            self.close_need(rid, doc["state"])
+
+    def open_need(self, need: HelpNeed) -> None:
+        state = OpenNeed(need)
+        self.needs[need.request_id] = state
+        if len(self.needs) > 1000:   # a behaviour layer that never resolves: drop the oldest
+            self.needs.pop(next(iter(self.needs)))
+        self._decide(state)
+
+    def close_need(self, request_id: str, how: str) -> None:
+        if self.needs.pop(request_id, None) is None:
+            self.get_logger().info(f"{how} for unknown or finished request {request_id!r}")
+
+    def _on_outcome(self, msg: String) -> None:
+        self.counters.received["outcome"] += 1
+        try:
+            doc = wire.decode("outcome", msg.data)
+            ask = self.pending.get(doc["request_id"])
+            if ask is None:
+                raise wire.WireError(f"request_id: no pending ask for {doc['request_id'][:64]!r}")
+            if ask.person_id != doc["person_id"]:
+                raise wire.WireError(f"person_id: the pending ask of {ask.request_id!r} "
+                                     f"went to another person")
+            result = Result.parse(doc["result"])
+        except (wire.WireError, CoreInputError) as exc:
+            self._reject("outcome", str(exc))
+            return
+        del self.pending[ask.request_id]
+        if result is Result.COULD_NOT_ASK:
+            self.could_not_ask += 1
+            rec = self.records.get(ask.key)
+            if rec is not None:   # the ask never reached them: it adds no ask load either
+                times = list(rec.ask_times_s)
+                if ask.asked_at_s in times:
+                    times.remove(ask.asked_at_s)
+                self.records[ask.key] = replace(rec, ask_times_s=tuple(times))
+            self.get_logger().info(f"could not ask for {ask.request_id!r}: no belief change")
+        else:
+            event = StoredEvent(event_id=self.store.next_event_id(), person_key=ask.key,
+                                time_s=ask.asked_at_s, result=result, busyness=ask.busyness,
+                                ask_load=ask.ask_load, request_kind=ask.kind)
+            self._ingest_event(event)
+        need = self.needs.get(ask.request_id)
+        if need is not None:
+            if result is Result.HELPED:
+                need.served = True
+            else:
+                self._decide(need)
+
+    def _ingest_event(self, event: StoredEvent) -> bool:
+        """Store first, then learn: the belief is the store's fold of the person's events.
+
+        Local outcomes and fleet events both come through here; a duplicate or opted-out
+        event is not stored and changes nothing.
+        """
+        try:
+            stored = self.store.append(event)
+        except Exception as exc:
+            self.store_ok = False
+            self.store_error = str(exc)[:200]
+            self.get_logger().error(f"store append failed, belief unchanged: {exc}")
+            return False
+        self.store_ok = True
+        if not stored:
+            return False
+        rec = self.records.get(event.person_key) or PersonRecord.new(self.params.model)
+        belief, t = self.store.belief(event.person_key, self.params.model)
+        self.records[event.person_key] = replace(rec, belief=belief, belief_time_s=t)
+        return True
+
+    def _on_navigation_status(self, msg) -> None:
+        from action_msgs.msg import GoalStatus
+        self.counters.received["navigation_status"] += 1
+        try:
+            for st in msg.status_list:
+                gid = bytes(st.goal_info.goal_id.uuid).hex()
+                rid = f"nav-{gid[:12]}"
+                if st.status == GoalStatus.STATUS_ABORTED:
+                    if self._nav_handled.get(gid) != "aborted":
+                        self._nav_handled[gid] = "aborted"
+                        if rid not in self.needs:
+                            self.open_need(HelpNeed(rid, NAV_FAILURE_KIND, self.now_s()))
+                elif st.status in (GoalStatus.STATUS_SUCCEEDED, GoalStatus.STATUS_CANCELED):
+                    if self._nav_handled.get(gid) == "aborted":
+                        self.close_need(rid, "resolved")
+                    self._nav_handled[gid] = "done"
+            while len(self._nav_handled) > 1000:
+                self._nav_handled.pop(next(iter(self._nav_handled)))
+        except (CoreInputError, ValueError) as exc:
+            self._reject("navigation_status", str(exc))
+
+    # ---------------------------------------------------------------- the decision
+    def _decide(self, state: OpenNeed) -> None:
+        if not self._active or state.served:
+            return
+        if state.need.request_id in self.pending:
+            return   # one ask at a time per need; the outcome or expiry decides again
+        now = self.now_s()
+        if now <= 0.0:   # sim time before /clock: never decide on time zero
+            state.waiting_for_clock = True
+            return
+        if state.need.opened_at_s <= 0.0:
+            state.need = replace(state.need, opened_at_s=now)
+        state.waiting_for_clock = False
+        model, config = self.params.model, self.params.config
+        horizon = config.max_observation_age_s + IN_VIEW_EXTRA_S
+        cands = []
+        for pid, s in self.seen.items():
+            if now - s.observed_at_s > horizon:
+                continue
+            rec = self.record_for(s.key)
+            cands.append(candidate_from_record(
+                pid, rec, now, model, s.person.distance_m, s.observed_at_s,
+                busyness=s.person.busyness, activity=s.person.activity,
+                opted_out=self.store.is_opted_out(s.key)))
+        if state.asks >= self.params.settings.max_asks_per_need or not self.params.settings.asking_enabled:
+            why = "asking_disabled" if not self.params.settings.asking_enabled else "need_ask_limit"
+            decision = decide(state.need, cands, now, self.robot_ask_times_s, model, config,
+                              chooser=_never, policy=why)
+        else:
+            decision = decide(state.need, cands, now, self.robot_ask_times_s, model, config)
+        robot_asks = [t for t in self.robot_ask_times_s if now - t < 3600.0]
+        doc = wire.decision_to_document(decision, robot_asks, model, config,
+                                        self.store.robot_id if hasattr(self.store, "robot_id") else "")
+        for c in cands:
+            self.records[self.seen[c.person_id].key] = note_candidate(
+                self.records[self.seen[c.person_id].key], now)
+            self.last_action[c.person_id] = "passed over"
+        if decision.action == "ask":
+            i = decision.person_index
+            ev = decision.evaluation
+            pid = decision.person_id
+            key = self.seen[pid].key
+            self.records[key] = note_ask(self.records[key], now, model)
+            self.robot_ask_times_s = robot_asks + [now]
+            state.asks += 1
+            self.pending[state.need.request_id] = PendingAsk(
+                state.need.request_id, pid, key, now, float(ev.busyness[i]), float(ev.ask_load[i]),
+                state.need.kind, now + self.params.settings.pending_ask_timeout_s)
+            self.last_action[pid] = "asked"
+        self.last_decision = doc
+        self.decision_pub.publish(String(data=wire.encode("decision", doc)))
+        self.decisions_published += 1
+
+    # ---------------------------------------------------------------- timers
+    def _housekeeping(self) -> None:
+        now = self.now_s()
+        if now <= 0.0:
+            return
+        for rid, ask in list(self.pending.items()):
+            if now >= ask.expires_at_s:
+                del self.pending[rid]
+                self.expired_asks += 1
+                self.get_logger().info(f"ask for {rid!r} expired without outcome: no belief change")
+                need = self.needs.get(rid)
+                if need is not None:
+                    self._decide(need)
+        for need in list(self.needs.values()):
+            if need.waiting_for_clock:
+                self._decide(need)
+        limit = self.params.config.max_observation_age_s + IN_VIEW_EXTRA_S
+        for pid in [p for p, s in self.seen.items() if now - s.observed_at_s > limit]:
+            del self.seen[pid]
+
+    def _publish_status(self) -> None:
+        if not self._active:
+            return
+        stamp = self.get_clock().now().to_msg()
+        self._publish_markers(stamp)
+        period = self.params.settings.diagnostics_period_s
+        rates = self.counters.rates_since_tick(period)
+        new_rej = self.counters.new_rejections_since_tick()
+        level, message = diag.level_for(new_rej, self.counters.qos_incompatible, self.store_ok)
+        values = {}
+        for k in diag.INPUTS:
+            values[f"{k}.rate_hz"] = f"{rates[k]:.2f}"
+            values[f"{k}.received"] = self.counters.received[k]
+            values[f"{k}.rejected"] = self.counters.rejected[k]
+            values[f"{k}.last_rejection"] = self.counters.last_reason[k]
+        store_name = type(self.store).__name__ if self.store is not None else "closed"
+        values.update({
+            "open_needs": len(self.needs), "pending_asks": len(self.pending),
+            "expired_asks": self.expired_asks, "could_not_ask": self.could_not_ask,
+            "decisions": self.decisions_published, "people_in_view": len(self.seen),
+            "people_known": len(self.records), "store": store_name,
+            "store_ok": self.store_ok, "store_last_error": self.store_error,
+            "qos_incompatible_events": self.counters.qos_incompatible,
+            "parameters_rejected": self.params.rejected,
+            "parameters_last_rejection": self.params.last_rejection,
+            "params_hash": self.params_hash(),
+        })
+        self.diag_pub.publish(diag.status_array(f"{self.get_name()}: decision",
+                                                self.get_fully_qualified_name(), stamp, values,
+                                                level, message))
+
+    def _publish_markers(self, stamp) -> None:
+        markers = []
+        model = self.params.model
+        now = self.now_s()
+        lifetime = max(2.0 * self.params.settings.diagnostics_period_s, 1.0)
+        in_view = set()
+        for pid, s in self.seen.items():
+            in_view.add(pid)
+            rec = self.records.get(s.key) or PersonRecord.new(model)
+            from ..core import belief_at
+            mean = belief_at(rec, now, model).mean
+            pos = s.person.position or (s.person.distance_m, 0.0, 0.0)
+            pos = (pos[0], pos[1], pos[2] + 2.0)   # above the head
+            text = f"w={mean:.2f} {self.last_action.get(pid, '')}".strip()
+            markers.append(mk.person_marker(self._marker_ids.get(pid), s.frame_id, stamp, pos,
+                                            text, lifetime))
+        for pid in self._marked - in_view:
+            mid = self._marker_ids.drop(pid)
+            self.last_action.pop(pid, None)
+            if mid is not None:
+                markers.append(mk.delete_marker(mid, "base_link", stamp))
+        self._marked = in_view
+        if markers:
+            self.marker_pub.publish(mk.marker_array(markers))
+
+
+def main(args=None) -> int:
+    rclpy.init(args=args)
+    node = None
+    code = 0
+    try:
+        node = HelpAwareNode()
+        rclpy.spin(node)
+    except (KeyboardInterrupt, ExternalShutdownException):
+        pass
+    except StartupError as exc:
+        print(f"{NODE_NAME}: {exc}", file=sys.stderr)
+        code = 2
+    finally:
+        if node is not None:
+            node.destroy_node()
+        rclpy.try_shutdown()
+    return code
+
+
+if __name__ == "__main__":
+    sys.exit(main())
