@@ -58,6 +58,12 @@ def _fmt(v: float) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
+    for name, value, low, high in (("--notice-probability", args.notice_probability, 0.0, 1.0),
+                                   ("--ask-memory-half-life-s", args.ask_memory_half_life_s,
+                                    1e-9, 1e12), ("--folds", args.folds, 0, 1000)):
+        if not low <= value <= high:
+            print(f"fit: {name} {value!r} is outside [{low:g}, {high:g}]", file=sys.stderr)
+            return 2
     try:
         data = _load(args.inputs, args.ask_memory_half_life_s)
         show = args.progress == "on" or (args.progress == "auto"
