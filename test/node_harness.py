@@ -70,8 +70,9 @@ class Rig:
     def open_need(self, request_id, kind="door", **kw):
         n = len(self.decisions)
         self.task_pub.publish(String(data=wire.task_status_document(request_id, "open", kind, **kw)))
-        assert self.spin_until(lambda: len(self.decisions) > n), "no decision arrived"
-        return self.decisions[-1]
+        mine = lambda: [d for d in self.decisions[n:] if d["request_id"] == request_id]  # noqa: E731
+        assert self.spin_until(lambda: bool(mine())), "no decision arrived"
+        return mine()[0]
 
     def report(self, request_id, person_id, result):
         n = self.node.counters.received["outcome"]

@@ -225,6 +225,10 @@ class HelpAwareNode(LifecycleNode):
         """Keys on the store's opt-out list among the people this node knows."""
         if self.store is None:
             return []
+        if hasattr(self.store, "opted_out"):      # the store keeps the full list
+            return sorted(self.store.opted_out())
+        if hasattr(self.store, "_opted_out"):     # MemoryStore
+            return sorted(self.store._opted_out)
         keys = set(self.records) | set(self.store.keys()) | {s.key for s in self.seen.values()}
         return sorted(k for k in keys if self.store.is_opted_out(k))
 
