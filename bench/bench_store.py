@@ -123,6 +123,9 @@ def run(path: str, n_people: int, n_events: int, commits: int) -> int:
                 conn.execute("INSERT INTO bench_bare VALUES (?,?,?,?,?,?,?)", row)
                 conn.execute("COMMIT")
                 bare_s.append(time.perf_counter() - t)
+    t = time.perf_counter()
+    removed = store.forget(keys[0])
+    forget_s = time.perf_counter() - t
     store.close()
     med_store, med_bare = statistics.median(store_s), statistics.median(bare_s)
     p95 = lambda xs: sorted(xs)[int(0.95 * (len(xs) - 1))]  # noqa: E731
@@ -140,6 +143,7 @@ def run(path: str, n_people: int, n_events: int, commits: int) -> int:
     print(f"{'bare insert + commit, p95 (ms)':<44}{p95(bare_s) * 1e3:>14.3f}")
     ratio = med_store / med_bare
     print(f"{'ratio append / bare (target <= 1.5)':<44}{ratio:>14.2f}")
+    print(f"{f'forget one person ({removed} events; s)':<44}{forget_s:>14.3f}")
     return 0
 
 

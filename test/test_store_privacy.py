@@ -1,6 +1,9 @@
 """Privacy: raw ids never reach the store's bytes; forget leaves no trace of the key."""
 import glob
 import os
+import random
+
+import pytest
 
 from helpaware_node.core import Result
 from helpaware_node.store import SqliteStore, StoredEvent
@@ -39,9 +42,11 @@ def test_no_raw_id_in_db_wal_or_journal(tmp_path):
             assert KEY not in data and KEY.hex().encode() not in data
 
 
-def test_forget_removes_every_row_and_every_byte_of_the_key(tmp_path):
+@pytest.mark.parametrize("seed", range(3))
+def test_forget_removes_every_row_and_every_byte_of_the_key(tmp_path, seed):
+    # several site keys: whether a key lands in an interior index page depends on its value
     path = tmp_path / "b.sqlite3"
-    store = SqliteStore(path, "r1", KEY)
+    store = SqliteStore(path, "r1", random.Random(seed).randbytes(32))
     keys = scenario(store)
     store.compact(older_than_s=0.0, now_s=300.0)    # some history folded into the base
     gone, kept = keys[0], keys[1]
@@ -61,3 +66,22 @@ def test_forget_removes_every_row_and_every_byte_of_the_key(tmp_path):
     store.close()
     for name, data in store_bytes(path).items():
         assert gone.encode() not in data and kept.encode() in open(path, "rb").read()
+
+
+def test_forget_leaves_no_bytes_in_a_store_with_deep_indexes(tmp_path):
+    # enough people that every index has interior pages holding keys as dividers
+    path = tmp_path / "big.sqlite3"
+    store = SqliteStore(path, "r1", KEY)
+    keys = [store.key_for(f"visitor-{i}") for i in range(1500)]
+    store.bulk_load(StoredEvent(f"r1/{i}", keys[i % 1500], float(i), list(Result)[i % 4],
+                                0.2, 0.1) for i in range(6000))
+    for k in keys[::50]:
+        store.opt_out(k)
+    victims = keys[::37]
+    for k in victims:
+        store.forget(k)
+    blob = b"".join(store_bytes(path).values())
+    assert keys[1].encode() in blob                # the search does find present keys
+    for k in victims:
+        assert k.encode() not in blob
+    store.close()

@@ -5,10 +5,10 @@ import os
 import socket
 
 from ..core import SiteModel
-from .base import BeliefStore, MemoryStore, StoredEvent, person_key
+from .base import BeliefStore, MemoryStore, StoredEvent, StoreHealth, person_key
 from .keys import (KEY_FILE_NAME, SiteKeyError, default_key_path, default_store_path, key_fingerprint,
                    load_site_key)
-from .sqlite import SqliteStore, StoreCorruptError, StoreHealth
+from .sqlite import SqliteStore, StoreCorruptError
 from .schema import SCHEMA_VERSION, StoreVersionError
 
 def default_robot_id() -> str:

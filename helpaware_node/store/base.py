@@ -16,6 +16,14 @@ from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 
 
 @dataclass(frozen=True)
+class StoreHealth:
+    """For the node's diagnostics: "OK", or "ERROR" with what happened."""
+
+    level: str          # "OK" or "ERROR" (diagnostic_msgs level names)
+    message: str = ""
+
+
+@dataclass(frozen=True)
 class StoredEvent:
     """One outcome as stored and shared: hashed person key, never the raw id."""
 
@@ -58,6 +66,7 @@ class MemoryStore:
     def __init__(self, site_key: bytes | None = None, robot_id: str = "robot") -> None:
         self._site_key = site_key if site_key is not None else os.urandom(32)
         self.robot_id = robot_id
+        self.health = StoreHealth("OK", "in memory (nothing kept after exit)")
         self._next_seq = 1
         self._events: dict[str, StoredEvent] = {}
         self._by_key: dict[str, list[str]] = {}

@@ -13,23 +13,27 @@ MIGRATIONS: list[list[str]] = [
     # 1: the event log (source of truth), the opt-out list, file facts
     [
         """CREATE TABLE meta (name TEXT PRIMARY KEY, value TEXT NOT NULL)""",
+        # rowid tables: interior b-tree pages then hold only integers, and every copy of a
+        # person key sits in an index that forget() rebuilds (REINDEX) so none lingers
         """CREATE TABLE events (
-               event_id     TEXT PRIMARY KEY,   -- "<robot_id>/<sequence>"
+               row_id       INTEGER PRIMARY KEY,
+               event_id     TEXT NOT NULL UNIQUE,  -- "<robot_id>/<sequence>"
                person_key   TEXT NOT NULL,      -- HMAC-SHA256 hex, never a raw id
                time_s       REAL NOT NULL,
                busyness     REAL NOT NULL,
                ask_load     REAL NOT NULL,
                result       TEXT NOT NULL,
                request_kind TEXT NOT NULL DEFAULT ''
-           ) WITHOUT ROWID""",
+           )""",
         """CREATE INDEX events_by_person ON events (person_key, time_s, event_id)""",
-        """CREATE TABLE opt_out (person_key TEXT PRIMARY KEY, since_s REAL NOT NULL)
-           WITHOUT ROWID""",
+        """CREATE TABLE opt_out (row_id INTEGER PRIMARY KEY, person_key TEXT NOT NULL UNIQUE,
+                                 since_s REAL NOT NULL)""",
     ],
     # 2: the per-person fold cache with its compaction base, and the sequence counters
     [
         """CREATE TABLE snapshot (
-               person_key    TEXT PRIMARY KEY,
+               row_id        INTEGER PRIMARY KEY,
+               person_key    TEXT NOT NULL UNIQUE,
                a             REAL NOT NULL,     -- belief after every event (and the base)
                b             REAL NOT NULL,
                last_time_s   REAL,              -- order key of the last event folded in
@@ -41,7 +45,7 @@ MIGRATIONS: list[list[str]] = [
                base_time_s   REAL,
                base_event_id TEXT,
                base_count    INTEGER NOT NULL DEFAULT 0
-           ) WITHOUT ROWID""",
+           )""",
         """CREATE TABLE sequences (robot_id TEXT PRIMARY KEY, next_seq INTEGER NOT NULL)
            WITHOUT ROWID""",
     ],

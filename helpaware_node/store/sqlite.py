@@ -20,13 +20,12 @@ import re
 import sqlite3
 import threading
 import time
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Iterator
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import CoreInputError, from_plain, to_plain
-from .base import StoredEvent, person_key
+from .base import StoredEvent, StoreHealth, person_key
 from .keys import SiteKeyError, key_fingerprint
 from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
 
@@ -38,12 +37,6 @@ SQLITE_HEADER = b"SQLite format 3\x00"
 
 class StoreCorruptError(RuntimeError):
     """The file is not a readable store (damaged, truncated, or not SQLite)."""
-
-
-@dataclass(frozen=True)
-class StoreHealth:
-    level: str          # "OK" or "ERROR" (diagnostic_msgs levels by name)
-    message: str = ""
 
 
 def model_hash(model: SiteModel) -> str:
@@ -352,7 +345,8 @@ class SqliteStore:
         if not PERSON_KEY_RE.match(key or ""):
             raise CoreInputError("person_key: expected 64 lowercase hex digits")
         with self._lock:
-            self._conn.execute("INSERT OR IGNORE INTO opt_out VALUES (?, ?)", (key, time.time()))
+            self._conn.execute("INSERT OR IGNORE INTO opt_out (person_key, since_s) VALUES (?, ?)",
+                               (key, time.time()))
 
     def opted_out(self) -> list[str]:
         with self._lock:
@@ -373,6 +367,10 @@ class SqliteStore:
                 n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
                 c.execute("DELETE FROM snapshot WHERE person_key = ?", (key,))
                 c.execute("DELETE FROM opt_out WHERE person_key = ?", (key,))
+                # interior index pages may still hold the key as a divider: rebuild them
+                # (secure_delete zeroes the freed pages)
+                for table in ("events_by_person", "snapshot", "opt_out"):
+                    c.execute(f"REINDEX {table}")
                 c.execute("COMMIT")
             except BaseException:
                 c.execute("ROLLBACK")
