@@ -80,17 +80,25 @@ def decode(text: str):
     return "outcome", e
 
 
-def merge(store, text: str, forgotten: set[str] | None = None) -> list[StoredEvent]:
-    """Apply one fleet message to the store; returns the events that were new here."""
+def merge(store, text: str, forgotten: set[str] | None = None,
+          append: Optional[Callable[[StoredEvent], bool]] = None,
+          on_forgotten: Optional[Callable[[str], None]] = None) -> list[StoredEvent]:
+    """Apply one fleet message to the store; returns the events that were new here.
+
+    `append` defaults to store.append (the node passes its own ingest, which appends and
+    then updates what it holds in memory).
+    """
     kind, value = decode(text)
     if kind == "forget":
         if forgotten is not None:
             forgotten.add(value)
         store.forget(value)
+        if on_forgotten is not None:
+            on_forgotten(value)
         return []
     if forgotten is not None and value.person_key in forgotten:
         return []        # forgotten this session: an older copy replayed by a peer
-    return [value] if store.append(value) else []
+    return [value] if (append or store.append)(value) else []
 
 
 class FleetLink:
@@ -98,10 +106,13 @@ class FleetLink:
 
     def __init__(self, node, store, on_merged: Optional[Merged] = None,
                  topic: str = FLEET_TOPIC, depth: int = FLEET_HISTORY_DEPTH,
-                 replay: bool = True) -> None:
+                 replay: bool = True, append: Optional[Callable[[StoredEvent], bool]] = None,
+                 on_forgotten: Optional[Callable[[str], None]] = None) -> None:
         self._node = node
         self._store = store
         self._on_merged = on_merged
+        self._append = append
+        self._on_forgotten = on_forgotten
         self._forgotten: set[str] = set()
         self._lock = threading.Lock()
         self.merged_count = 0
@@ -111,6 +122,11 @@ class FleetLink:
         self._sub = node.create_subscription(String, topic, self._on_message, qos)
         if replay and hasattr(store, "recent_events"):
             self.publish_many(store.recent_events(depth))   # re-offer after a restart
+
+    @property
+    def entities(self) -> list:
+        """Publisher and subscription, for the owner's teardown."""
+        return [self._pub, self._sub]
 
     def publish(self, event: StoredEvent) -> None:
         """Share one outcome (call after store.append has returned True)."""
@@ -125,6 +141,8 @@ class FleetLink:
         with self._lock:
             self._forgotten.add(person_key)
         n = self._store.forget(person_key)
+        if self._on_forgotten is not None:
+            self._on_forgotten(person_key)
         self._pub.publish(String(data=encode_forget(person_key, getattr(
             self._store, "robot_id", ""))))
         return n
@@ -132,7 +150,8 @@ class FleetLink:
     def _on_message(self, msg: String) -> None:
         try:
             with self._lock:
-                new = merge(self._store, msg.data, self._forgotten)
+                new = merge(self._store, msg.data, self._forgotten, self._append,
+                            self._on_forgotten)
         except CoreInputError as exc:
             self.refused_count += 1
             self._node.get_logger().warning(f"{FLEET_TOPIC}: refused a message: {exc}",

@@ -30,6 +30,7 @@ from ..core.model import CoreInputError
 from ..store import StoredEvent, open_store
 from . import diagnostics as diag
 from . import markers as mk
+from .fleet import FleetLink, PrivacyRequests
 from .params import NodeParameters
 
 NODE_NAME = "helpaware_decider"
@@ -118,6 +119,10 @@ class HelpAwareNode(LifecycleNode):
             self.get_logger().error(f"store {s.store_path or '(memory)'} could not open: {exc}")
             return TransitionCallbackReturn.FAILURE
         self._beliefs_model = self.params.model
+        health = getattr(self.store, "health", None)
+        if health is not None and health.level != "OK":   # e.g. a damaged file moved aside
+            self.store_ok, self.store_error = False, health.message[:200]
+            self.get_logger().error(health.message)
         from rclpy.event_handler import SubscriptionEventCallbacks, PublisherEventCallbacks
         sub_events = SubscriptionEventCallbacks(incompatible_qos=self._on_qos_incompatible)
         pub_events = PublisherEventCallbacks(incompatible_qos=self._on_qos_incompatible)
@@ -143,6 +148,12 @@ class HelpAwareNode(LifecycleNode):
         timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
+        # fleet/outcomes in and out, and live opt-out/forget on privacy_request (docs/store.md)
+        self.fleet = FleetLink(self, self.store, append=self._ingest_event,
+                               on_forgotten=self._forget_in_memory)
+        self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
+            self._forget_in_memory(key) if action == "forget" else None))
+        self._entities += self.fleet.entities + [self.privacy._sub]
         self.get_logger().info(f"configured: store {s.store_path or '(memory)'}, "
                                f"params {self.params_hash()}")
         return TransitionCallbackReturn.SUCCESS
@@ -303,7 +314,8 @@ class HelpAwareNode(LifecycleNode):
             event = StoredEvent(event_id=self.store.next_event_id(), person_key=ask.key,
                                 time_s=ask.asked_at_s, result=result, busyness=ask.busyness,
                                 ask_load=ask.ask_load, request_kind=ask.kind)
-            self._ingest_event(event)
+            if self._ingest_event(event) and getattr(self, "fleet", None) is not None:
+                self.fleet.publish(event)      # shared only once durable here
         need = self.needs.get(ask.request_id)
         if need is not None:
             if result is Result.HELPED:
@@ -324,13 +336,18 @@ class HelpAwareNode(LifecycleNode):
             self.store_error = str(exc)[:200]
             self.get_logger().error(f"store append failed, belief unchanged: {exc}")
             return False
-        self.store_ok = True
+        self.store_ok = getattr(self.store, "health", None) is None or self.store.health.level == "OK"
         if not stored:
             return False
         rec = self.records.get(event.person_key) or PersonRecord.new(self.params.model)
         belief, t = self.store.belief(event.person_key, self.params.model)
         self.records[event.person_key] = replace(rec, belief=belief, belief_time_s=t)
         return True
+
+    def _forget_in_memory(self, key: str) -> None:
+        """The store has forgotten a person: drop their record and any pending ask too."""
+        self.records.pop(key, None)
+        self.pending = {r: a for r, a in self.pending.items() if a.key != key}
 
     def _on_navigation_status(self, msg) -> None:
         from action_msgs.msg import GoalStatus
