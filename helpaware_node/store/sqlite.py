@@ -109,8 +109,8 @@ class SqliteStore:
             self.moved_aside = move_aside(self.path)
             self._conn = self._open_checked(integrity_check=False)
             self.health = StoreHealth(
-                "ERROR", f"store file {self.path} was unreadable ({exc}); moved aside to "
-                f"{self.moved_aside}; started on priors")
+                "ERROR", f"damaged store moved aside to {self.moved_aside}; started on priors "
+                f"(cause: {str(exc)[:80]})")
         self._next_seq = self._load_next_seq()
         if retention_days > 0:
             self.compact(retention_days * DAY_S)

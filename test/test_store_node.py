@@ -1,0 +1,62 @@
+"""The node on a damaged store file: starts on priors, file moved aside, ERROR in diagnostics,
+keeps deciding and learning; and a live forget through privacy_request."""
+import json
+import os
+
+import pytest
+import rclpy
+from diagnostic_msgs.msg import DiagnosticStatus
+from std_msgs.msg import String
+
+from helpaware_node.core.belief import Belief
+from helpaware_node.store.keys import load_site_key
+
+from node_harness import Rig
+
+
+@pytest.fixture(scope="module")
+def ctx():
+    context = rclpy.Context()
+    rclpy.init(context=context)
+    yield context
+    rclpy.shutdown(context=context)
+
+
+def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_path):
+    load_site_key(tmp_path / "site_key")
+    path = tmp_path / "beliefs.sqlite3"
+    damaged = b"SQLite format 3\x00" + os.urandom(5000)     # right header, garbage after
+    path.write_bytes(damaged)
+    rig = Rig(ctx, namespace="/damaged", store_path=str(path), robot_id="rX")
+    try:
+        assert rig.connected()
+        aside = [p for p in os.listdir(tmp_path) if ".corrupt-" in p]
+        assert len(aside) == 1 and (tmp_path / aside[0]).read_bytes() == damaged
+        assert rig.node.store.health.level == "ERROR"
+
+        def error_reported():
+            return any(s.level == DiagnosticStatus.ERROR and aside[0] in dict(
+                (v.key, v.value) for v in s.values).get("store_last_error", "")
+                for a in rig.diagnostics for s in a.status)
+        assert rig.spin_until(error_reported)
+        # keeps working: decides on the prior and learns from an outcome
+        assert rig.show_people([{"id": "nurse-a", "distance_m": 1.0, "busyness": 0.0}])
+        d = rig.open_need("n1", "handover", urgency=1.0)
+        assert d["action"] == "ask" and (d["candidates"][0]["a"], d["candidates"][0]["b"]) == (2.0, 2.0)
+        rig.report("n1", "nurse-a", "helped")
+        key = rig.node.store.key_for("nurse-a")
+        assert rig.node.records[key].belief == Belief(3.0, 2.0)
+        assert len(rig.node.store.events_for(key)) == 1
+        # live forget through the node: store and memory both drop the person at once
+        pub = rig.driver.create_publisher(String, "privacy_request", 10)
+        assert rig.spin_until(lambda: pub.get_subscription_count() > 0)
+        pub.publish(String(data=json.dumps({"action": "forget", "person_id": "nurse-a"})))
+        assert rig.spin_until(lambda: key not in rig.node.records and
+                              key not in rig.node.store.keys())
+        pub.publish(String(data=json.dumps({"action": "opt_out", "person_id": "nurse-a"})))
+        assert rig.spin_until(lambda: rig.node.store.is_opted_out(key))
+        d = rig.open_need("n2", "handover", urgency=1.0)
+        assert d["action"] == "continue"
+        assert [r for r in d["rationale"] if r["person_id"] == "nurse-a"][0]["excluded"] == "opted_out"
+    finally:
+        rig.close()
