@@ -76,7 +76,7 @@ def test_declared_defaults_are_the_core_defaults(node):
 @pytest.mark.parametrize("name", ["default.yaml", "hospital_night.yaml"])
 def test_shipped_files_are_keyed_by_node_name_and_typed(name):
     data = yaml.safe_load(open(os.path.join(ROOT, "config", name)))
-    values = data["helpaware_decider"]["ros__parameters"]
+    values = data["/**/helpaware_decider"]["ros__parameters"]
     specs = {s.name: s for s in params.all_specs()}
     assert set(values) == set(specs)
     for k, v in values.items():

@@ -250,7 +250,7 @@ def markdown_table() -> str:
 def yaml_text(node_name: str, overrides: Optional[dict] = None) -> str:
     """A parameter file keyed by the node name, floats always written with a decimal point."""
     overrides = overrides or {}
-    lines = [f"{node_name}:", "  ros__parameters:"]
+    lines = [f"/**/{node_name}:", "  ros__parameters:"]  # this node name in any namespace
     for s in all_specs():
         v = overrides.get(s.name, s.default)
         if isinstance(v, str):
