@@ -33,6 +33,7 @@ test: $(STAMP)
 
 bench: $(STAMP)
 	$(PY) bench/bench_core.py
+	$(PY) bench/bench_store.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache .hypothesis out
