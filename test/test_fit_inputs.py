@@ -116,7 +116,7 @@ def test_fit_command_writes_a_parameter_file_the_model_loads(tmp_path, capsys):
     text = out.read_text()
     assert "outcomes.csv" in text and "Log marginal likelihood" in text   # comments name both
     doc = yaml.safe_load(text)
-    params = doc[DEFAULT_NODE_NAME]["ros__parameters"]
+    params = doc["/**/" + DEFAULT_NODE_NAME]["ros__parameters"]
     assert set(params) == set(FITTED_NAMES)
     assert all(isinstance(v, float) for v in params.values())          # 1.0, never 1
     model = SiteModel(**params)                                         # SiteModel validation

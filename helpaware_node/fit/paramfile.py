@@ -8,7 +8,7 @@ import yaml
 from ..core.model import SiteModel
 
 FITTED_NAMES = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability")
-DEFAULT_NODE_NAME = "helpaware_node"
+DEFAULT_NODE_NAME = "helpaware_decider"   # ros/node.py NODE_NAME (tested)
 
 
 def _float_text(v: float) -> str:
@@ -20,13 +20,19 @@ def render_param_file(values: Mapping[str, float], comments: Iterable[str],
                       node_name: str = DEFAULT_NODE_NAME) -> str:
     SiteModel(**{k: float(values[k]) for k in FITTED_NAMES})   # refuse out-of-range values
     lines = [f"# {c}" if c else "#" for c in comments]
-    lines += [f"{node_name}:", "  ros__parameters:"]
+    lines += [f"{node_key(node_name)}:", "  ros__parameters:"]
     for k in FITTED_NAMES:
         lines.append(f"    {k}: {_float_text(values[k])}")
     return "\n".join(lines) + "\n"
 
 
+def node_key(node_name: str) -> str:
+    """`/**/name` (this node name in any namespace), as config/default.yaml does; a name
+    that already starts with '/' is used as given."""
+    return node_name if node_name.startswith("/") else f"/**/{node_name}"
+
+
 def read_param_file(path: str, node_name: str = DEFAULT_NODE_NAME) -> dict:
     with open(path, encoding="utf-8") as fh:
         doc = yaml.safe_load(fh)
-    return dict(doc[node_name]["ros__parameters"])
+    return dict(doc[node_key(node_name)]["ros__parameters"])
