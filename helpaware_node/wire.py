@@ -11,6 +11,7 @@ can re-run `core.policy.decide` and get the recorded action and person back.
 """
 from __future__ import annotations
 
+import functools
 import json
 import math
 from dataclasses import dataclass, field
@@ -386,8 +387,12 @@ def _candidate_plain(c: Candidate) -> dict:
 
 def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
                          model: Optional[SiteModel] = None,
-                         config: Optional[DecisionConfig] = None, robot_id: str = "") -> dict:
-    """The decision as a plain document (validated); `encode("decision", doc)` makes the text.
+                         config: Optional[DecisionConfig] = None, robot_id: str = "",
+                         check: bool = True) -> dict:
+    """The decision as a plain document; `encode("decision", doc)` makes the text.
+
+    `check=False` skips validation (the node: every value comes from validated core values,
+    and validating costs more than deciding; the tests check its output documents).
 
     Only the robot's asks within the hour before the decision are kept: those are all the
     robot-hourly cap looks at, so the replay reproduces the decision exactly.
@@ -405,8 +410,22 @@ def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
         "rationale": decision.rationale(),
     }
     if model is not None and config is not None:
-        doc["parameters"] = {"model": to_plain(model), "config": to_plain(config)}
-    return validate("decision", doc)
+        doc["parameters"] = _parameters_plain(model, config)
+    return validate("decision", doc) if check else doc
+
+
+@functools.lru_cache(maxsize=16)
+def _parameters_plain_cached(model: SiteModel, config: DecisionConfig) -> str:
+    return json.dumps({"model": to_plain(model), "config": to_plain(config)})
+
+
+def _parameters_plain(model: SiteModel, config: DecisionConfig) -> dict:
+    return json.loads(_parameters_plain_cached(model, config))
+
+
+def fast_text(document: Mapping[str, Any]) -> str:
+    """Serialise a document built here without validating it again (NaN still refused)."""
+    return json.dumps(document, separators=(",", ":"), allow_nan=False)
 
 
 def decision_text(decision: Decision, robot_ask_times_s: Sequence[float],

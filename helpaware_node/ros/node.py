@@ -402,7 +402,7 @@ class HelpAwareNode(LifecycleNode):
             decision = decide(state.need, cands, now, self.robot_ask_times_s, model, config)
         robot_asks = [t for t in self.robot_ask_times_s if now - t < 3600.0]
         doc = wire.decision_to_document(decision, robot_asks, model, config,
-                                        self.store.robot_id if hasattr(self.store, "robot_id") else "")
+                                        getattr(self.store, "robot_id", ""), check=False)
         for c in cands:
             self.records[self.seen[c.person_id].key] = note_candidate(
                 self.records[self.seen[c.person_id].key], now)
@@ -420,7 +420,7 @@ class HelpAwareNode(LifecycleNode):
                 state.need.kind, now + self.params.settings.pending_ask_timeout_s)
             self.last_action[pid] = "asked"
         self.last_decision = doc
-        self.decision_pub.publish(String(data=wire.encode("decision", doc)))
+        self.decision_pub.publish(String(data=wire.fast_text(doc)))
         self.decisions_published += 1
 
     # ---------------------------------------------------------------- timers

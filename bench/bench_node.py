@@ -1,0 +1,156 @@
+"""Benchmark: help need -> decision latency across processes, beside a bare relay (the floor).
+
+Prints median and 99th percentile of the round trip (publish a task_status `open`, receive its
+decision) with 20 people in view, the same for a relay node that republishes a String, their
+ratio (target <= 1.5), and the node's CPU seconds per second with 100 people at 30 Hz.
+Run: .venv/bin/python bench/bench_node.py [--needs 300]  (loopback, own domain id)
+"""
+from __future__ import annotations
+
+import argparse
+import os
+import random
+import signal
+import statistics
+import subprocess
+import sys
+import time
+
+os.environ.setdefault("ROS_AUTOMATIC_DISCOVERY_RANGE", "LOCALHOST")
+os.environ.pop("ROS_LOCALHOST_ONLY", None)
+os.environ["ROS_DOMAIN_ID"] = os.environ.get("ROS_DOMAIN_ID") or str(random.randint(101, 200))
+
+RELAY_CODE = """
+import rclpy
+from rclpy.executors import ExternalShutdownException
+from rclpy.qos import QoSProfile, ReliabilityPolicy
+from std_msgs.msg import String
+q = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
+rclpy.init()
+n = rclpy.create_node('relay', namespace='/relay')
+pub = n.create_publisher(String, 'decision', q)
+n.create_subscription(String, 'task_status', lambda m: pub.publish(String(data=m.data)), q)
+try:
+    rclpy.spin(n)
+except (KeyboardInterrupt, ExternalShutdownException):
+    pass
+rclpy.try_shutdown()
+"""
+
+
+def cpu_s(pid: int) -> float:
+    with open(f"/proc/{pid}/stat") as fh:
+        fields = fh.read().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+
+
+def percentile(xs, q):
+    xs = sorted(xs)
+    return xs[min(len(xs) - 1, int(round(q * (len(xs) - 1))))]
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--needs", type=int, default=300)
+    ap.add_argument("--cpu-seconds", type=float, default=10.0)
+    args = ap.parse_args()
+
+    import rclpy
+    from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
+    from std_msgs.msg import String
+
+    from helpaware_node import wire
+    from helpaware_node.ros import launch_config
+
+    q = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
+    node_proc = launch_config.start(namespace="/bench", stderr=subprocess.DEVNULL,
+                                    overrides={"max_asks_per_hour": 0})  # decide, never ask
+    relay_proc = subprocess.Popen([sys.executable, "-c", RELAY_CODE])
+    rclpy.init()
+    me = rclpy.create_node("bench_driver")
+    got = {}
+
+    def on_decision(msg, tag):
+        if tag == "node":
+            rid = msg.data.split('"request_id":"', 1)[1].split('"', 1)[0]
+        else:
+            rid = wire.decode("task_status", msg.data)["request_id"]
+        got[rid] = time.perf_counter()
+
+    targets = {}
+    for tag, ns in (("node", "/bench"), ("relay", "/relay")):
+        targets[tag] = me.create_publisher(String, f"{ns}/task_status", q)
+        me.create_subscription(String, f"{ns}/decision", lambda m, t=tag: on_decision(m, t), q)
+    people_pub = me.create_publisher(String, "/bench/people", qos_profile_sensor_data)
+
+    def spin_until(pred, timeout_s):
+        end = time.monotonic() + timeout_s
+        while time.monotonic() < end and not pred():
+            rclpy.spin_once(me, timeout_sec=0.005)
+        return pred()
+
+    try:
+        ok = spin_until(lambda: all(p.get_subscription_count() for p in targets.values())
+                        and me.count_publishers("/bench/decision")
+                        and me.count_publishers("/relay/decision"), 60)
+        if not ok:
+            print("bench: processes did not connect")
+            return 1
+        rng = random.Random(1)
+        view20 = [{"id": f"p{i}", "distance_m": round(rng.uniform(1, 7), 1),
+                   "busyness": round(rng.random(), 2), "activity": "charting"} for i in range(20)]
+        lat = {"node": [], "relay": []}
+        last_people = 0.0
+        for k in range(args.needs):
+            for tag in ("node", "relay"):        # interleaved: both see the same machine load
+                if time.monotonic() - last_people > 0.1:
+                    people_pub.publish(String(data=wire.people_document(view20, time.time())))
+                    last_people = time.monotonic()
+                    spin_until(lambda: False, 0.002)
+                rid = f"{tag}-{k}"
+                text = wire.task_status_document(rid, "open", "door")
+                t0 = time.perf_counter()
+                targets[tag].publish(String(data=text))
+                if spin_until(lambda: rid in got, 5.0):
+                    lat[tag].append(got[rid] - t0)
+                if tag == "node":
+                    targets[tag].publish(String(data=wire.task_status_document(rid, "resolved")))
+        print(f"help need -> decision across processes, 20 people in view, {args.needs} needs each")
+        print(f"{'':8}  {'median ms':>9}  {'p99 ms':>7}  {'received':>8}")
+        for tag in ("node", "relay"):
+            xs = lat[tag]
+            print(f"{tag:8}  {statistics.median(xs) * 1e3:9.3f}  {percentile(xs, 0.99) * 1e3:7.3f}  "
+                  f"{len(xs):8d}")
+        ratio = statistics.median(lat["node"]) / statistics.median(lat["relay"])
+        print(f"ratio node/relay (median): {ratio:.2f}  (target <= 1.5)")
+
+        view100 = [{"id": f"q{i}", "distance_m": round(rng.uniform(1, 7), 1),
+                    "busyness": round(rng.random(), 2), "activity": "walking_fast"}
+                   for i in range(100)]
+        c0, t0 = cpu_s(node_proc.pid), time.monotonic()
+        next_t = t0
+        sent = 0
+        while time.monotonic() - t0 < args.cpu_seconds:
+            people_pub.publish(String(data=wire.people_document(view100, time.time())))
+            sent += 1
+            next_t += 1.0 / 30.0
+            spin_until(lambda: False, max(0.0, next_t - time.monotonic()))
+        elapsed = time.monotonic() - t0
+        c1 = cpu_s(node_proc.pid)
+        print(f"node CPU with 100 people at 30 Hz: {(c1 - c0) / elapsed:.3f} CPU-s per s "
+              f"({sent / elapsed:.1f} documents/s sent, {elapsed:.1f} s)")
+        return 0
+    finally:
+        for p in (node_proc, relay_proc):
+            p.send_signal(signal.SIGINT)
+        for p in (node_proc, relay_proc):
+            try:
+                p.wait(timeout=20)
+            except subprocess.TimeoutExpired:
+                p.kill()
+        me.destroy_node()
+        rclpy.try_shutdown()
+
+
+if __name__ == "__main__":
+    sys.exit(main())
