@@ -34,6 +34,7 @@ test: $(STAMP)
 bench: $(STAMP)
 	$(PY) bench/bench_core.py
 	$(PY) bench/bench_store.py
+	$(PY) bench/bench_node.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache .hypothesis out

@@ -178,3 +178,23 @@ def test_markers_and_diagnostics(rig):
                    .get("outcome.rejected") == "1" for a in rig.diagnostics for s in a.status)
     assert rig.spin_until(warned, 30)
     assert isinstance(rig.diagnostics[-1].status[0].level, bytes)
+
+
+def test_managed_mode_waits_for_transitions(ctx):
+    from helpaware_node.ros.node import HelpAwareNode
+    node = HelpAwareNode(context=ctx, namespace="/managed",
+                         parameter_overrides=[Parameter("autostart", value=False)])
+    try:
+        assert node.store is None and not node._active          # unconfigured
+        node.trigger_configure()
+        assert node.store is not None and not node._active      # inactive: no decisions
+        node.open_need(__import__("helpaware_node.core", fromlist=["HelpNeed"]).HelpNeed(
+            "m1", "door", 1.0))
+        assert node.decisions_published == 0
+        node.trigger_activate()
+        assert node._active
+        node.trigger_deactivate()
+        node.trigger_cleanup()
+        assert node.store is None
+    finally:
+        node.destroy_node()
