@@ -8,8 +8,8 @@ import pytest
 
 from helpaware_node.fit.data import HELPED
 
-review_data = pytest.importorskip("helpaware_node.tools.review_data")
-review_sample = pytest.importorskip("helpaware_node.tools.review_sample")
+review_data = pytest.importorskip("helpaware_node.tools.review_data", exc_type=ImportError)
+review_sample = pytest.importorskip("helpaware_node.tools.review_sample", exc_type=ImportError)
 
 
 def test_outcomes_from_a_sample_bag(tmp_path):
