@@ -13,6 +13,7 @@ SUBCOMMANDS = {
     "demo": ("tools.demo", "run the demo scenario (invented hospital night shift)"),
     "fit": ("tools.fit", "fit the site constants from logged outcomes; writes a parameter file"),
     "store": ("tools.store_admin", "inspect the belief store; opt out, forget, compact, export CSV"),
+    "simulate": ("tools.simulate", "run every policy on a simulated site; table, JSON, plots"),
 }
 
 

@@ -1,0 +1,115 @@
+"""Comparison policies: pure choosers over a core.policy.Evaluation (DESIGN.md section 4).
+
+Each chooser returns the index of an eligible candidate or None (continue). They pick only
+among candidates with no exclusion, so every hard limit holds for every policy; `conclude`
+re-checks that. All of them go through core.policy.decide like the look-ahead policy.
+"""
+from __future__ import annotations
+
+from typing import Callable, Optional
+
+import numpy as np
+
+from .model import DecisionConfig
+from .policy import Evaluation, ask_advantage, best_positive, choose_lookahead
+
+
+def _eligible(ev: Evaluation) -> list[int]:
+    return [i for i in range(len(ev.candidates)) if ev.exclusions[i] is None]
+
+
+def choose_never(ev: Evaluation) -> Optional[int]:
+    """Never ask: the robot always continues on its own."""
+    return None
+
+
+def choose_nearest(ev: Evaluation) -> Optional[int]:
+    """Ask the nearest eligible person at every need (ties: person id)."""
+    idx = _eligible(ev)
+    if not idx:
+        return None
+    return min(idx, key=lambda i: (ev.candidates[i].distance_m, ev.candidates[i].person_id))
+
+
+class BusynessThreshold:
+    """Context only: ask the nearest eligible person whose busyness is under a threshold."""
+
+    def __init__(self, threshold: float = 0.3):
+        self.threshold = threshold
+
+    def __call__(self, ev: Evaluation) -> Optional[int]:
+        idx = [i for i in _eligible(ev) if ev.busyness[i] < self.threshold]
+        if not idx:
+            return None
+        return min(idx, key=lambda i: (ev.candidates[i].distance_m, ev.candidates[i].person_id))
+
+
+class WillingnessOnly:
+    """Willingness alone: the advantage with p = belief mean, ignoring busyness and recent
+    asks (interruption at its context-free base weight), and no information value."""
+
+    def __init__(self, config: DecisionConfig):
+        self.config = config
+
+    def __call__(self, ev: Evaluation) -> Optional[int]:
+        adv = ask_advantage(ev.mean, ev.continue_cost_s, ev.help_time_s, self.config.ask_time_s,
+                            self.config.interruption_weight_s)
+        return best_positive(ev, adv)
+
+
+class ThompsonSampling:
+    """Draw w from each candidate's Beta belief (seeded), ask the best positive advantage
+    with p = c * w in the same context and with the same interruption cost."""
+
+    def __init__(self, config: DecisionConfig, seed: int = 0):
+        self.config = config
+        self.rng = np.random.default_rng(seed)
+
+    def __call__(self, ev: Evaluation) -> Optional[int]:
+        if not len(ev.candidates):
+            return None
+        w = self.rng.beta(ev.a, ev.b)
+        adv = ask_advantage(ev.c * w, ev.continue_cost_s, ev.help_time_s, self.config.ask_time_s,
+                            ev.interruption_s)
+        return best_positive(ev, adv)
+
+
+class Oracle:
+    """The ceiling: knows each candidate's true probability of helping now and asks the best
+    positive true advantage. `true_p(ev)` returns one probability per candidate."""
+
+    def __init__(self, config: DecisionConfig, true_p: Callable[[Evaluation], np.ndarray]):
+        self.config = config
+        self.true_p = true_p
+
+    def __call__(self, ev: Evaluation) -> Optional[int]:
+        if not len(ev.candidates):
+            return None
+        adv = ask_advantage(np.asarray(self.true_p(ev), dtype=float), ev.continue_cost_s,
+                            ev.help_time_s, self.config.ask_time_s, ev.interruption_s)
+        return best_positive(ev, adv)
+
+
+POLICY_NAMES = ("ours", "never", "nearest", "busyness", "willingness", "thompson", "oracle")
+
+
+def make_chooser(name: str, config: DecisionConfig, seed: int = 0, true_p=None,
+                 busyness_threshold: float = 0.3):
+    """A fresh chooser by name (stateful ones carry their own seeded generator)."""
+    if name == "ours":
+        return choose_lookahead
+    if name == "never":
+        return choose_never
+    if name == "nearest":
+        return choose_nearest
+    if name == "busyness":
+        return BusynessThreshold(busyness_threshold)
+    if name == "willingness":
+        return WillingnessOnly(config)
+    if name == "thompson":
+        return ThompsonSampling(config, seed)
+    if name == "oracle":
+        if true_p is None:
+            raise ValueError("oracle: needs the true help probabilities")
+        return Oracle(config, true_p)
+    raise ValueError(f"policy: {name!r} is not one of {', '.join(POLICY_NAMES)}")

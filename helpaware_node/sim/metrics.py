@@ -1,0 +1,60 @@
+"""Metrics of one run and their 95 % t intervals over seeds.
+
+Evenness of asks: the Gini coefficient of asks over every person who was ever a candidate
+(0 = every such person asked equally often, towards 1 = all asks on one person).
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from scipy import stats
+
+from .run import RunResult
+
+METRICS = ("reward_s", "asks", "helps", "declines", "asks_per_help", "max_asks_person_day",
+           "gini_asks")
+
+
+def gini(values) -> float:
+    """Gini coefficient: mean absolute difference over all pairs / (2 * mean); 0 when all zero."""
+    x = np.sort(np.asarray(values, dtype=float))
+    n = x.size
+    if n == 0 or x.sum() == 0:
+        return 0.0
+    ranks = np.arange(1, n + 1)
+    return float((2.0 * np.sum(ranks * x) / (n * x.sum())) - (n + 1.0) / n)
+
+
+def run_metrics(res: RunResult) -> dict:
+    people = sorted(res.candidates_seen)
+    asks = [res.asks_by_person.get(p, 0) for p in people]
+    return {
+        "reward_s": float(res.reward_s.sum()),
+        "lost_s": float(res.continue_cost_s.sum() - res.reward_s.sum()),
+        "needs": int(res.reward_s.size),
+        "asks": res.asks, "helps": res.helps, "declines": res.declines,
+        "no_responses": res.no_responses,
+        "asks_per_help": res.asks / res.helps if res.helps else math.nan,
+        "max_asks_person_day": max(res.asks_by_person_day.values(), default=0),
+        "gini_asks": gini(asks),
+    }
+
+
+def t_interval(values, level: float = 0.95) -> tuple[float, float, int]:
+    """Mean and half-width of the t interval (scipy.stats.t), ignoring NaN runs."""
+    x = np.asarray([v for v in values if not math.isnan(v)], dtype=float)
+    if x.size == 0:
+        return math.nan, math.nan, 0
+    if x.size == 1:
+        return float(x[0]), math.nan, 1
+    half = stats.t.ppf(0.5 + level / 2.0, x.size - 1) * x.std(ddof=1) / math.sqrt(x.size)
+    return float(x.mean()), float(half), int(x.size)
+
+
+def summarise(per_seed: list[dict]) -> dict:
+    out = {}
+    for key in METRICS + ("lost_s", "no_responses"):
+        mean, half, n = t_interval([m[key] for m in per_seed])
+        out[key] = {"mean": mean, "ci95": half, "n": n}
+    return out

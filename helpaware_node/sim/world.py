@@ -1,0 +1,144 @@
+"""One simulated site for one seed: people, busyness schedules, encounters, ground truth.
+
+Everything here is drawn before any policy runs and does not depend on the policy, so all
+policies face the same needs, the same people and the same random outcome draws (common
+random numbers): differences between policies are differences of decisions, not of luck.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..core.person import DAY_S
+from .scenario import Scenario
+
+
+@dataclass(frozen=True)
+class SeenPerson:
+    person_id: str
+    distance_m: float
+    busyness: float
+    activity: str
+
+
+@dataclass(frozen=True)
+class SimNeed:
+    request_id: str
+    time_s: float
+    kind: str
+    continue_cost_s: float
+    help_time_s: float
+    seen: tuple[SeenPerson, ...]
+    u_help: float          # uniform draw deciding help: helped when u_help < true p
+    u_silent: float        # uniform draw deciding no response vs declined
+
+
+@dataclass
+class World:
+    scenario: Scenario
+    seed: int
+    needs: list[SimNeed]
+    willingness: dict[str, float]   # true willingness (help probability when free, unasked)
+
+    def true_help_probability(self, person_id: str, busyness: float, ask_load: float) -> float:
+        """P(help | person, busyness, true ask load) under the scenario's ground truth."""
+        sc = self.scenario
+        w = self.willingness[person_id]
+        if sc.truth_model == "ours":
+            return w * math.exp(-(sc.truth_k_busy * busyness + sc.truth_k_load * ask_load))
+        if w <= 0.0:
+            return 0.0
+        if w >= 1.0:
+            return 1.0
+        z = math.log(w / (1.0 - w)) - sc.truth_k_busy * busyness - sc.truth_k_load * ask_load
+        return 1.0 / (1.0 + math.exp(-z))
+
+
+def _draw_mixture(rng: np.random.Generator, mixture, size: int) -> np.ndarray:
+    weights = np.array([m[0] for m in mixture], dtype=float)
+    comp = rng.choice(len(mixture), size=size, p=weights / weights.sum())
+    a = np.array([m[1] for m in mixture])[comp]
+    b = np.array([m[2] for m in mixture])[comp]
+    return rng.beta(a, b)
+
+
+def _willingness(rng, sc: Scenario, mixture, size: int) -> np.ndarray:
+    w = _draw_mixture(rng, mixture, size)
+    if sc.truth_model == "logistic" and size:
+        # random-intercept logistic truth: logit intercept = logit(mixture mean) + sd * z
+        mean = float(sum(m[0] * m[1] / (m[1] + m[2]) for m in mixture)
+                     / sum(m[0] for m in mixture))
+        mean = min(max(mean, 1e-6), 1 - 1e-6)
+        z = math.log(mean / (1 - mean)) + sc.truth_logit_sd * rng.standard_normal(size)
+        w = 1.0 / (1.0 + np.exp(-z))
+    return w
+
+
+class _Schedules:
+    """Each regular moves through activities (weights, exponential durations) over a shift."""
+
+    def __init__(self, sc: Scenario, rng: np.random.Generator, n: int):
+        self.sc = sc
+        self.rng = rng
+        w = np.array([a.weight for a in sc.activities], dtype=float)
+        self.p = w / w.sum()
+        self.end = np.full(n, -np.inf)
+        self.act = np.zeros(n, dtype=int)
+        self.busy = np.zeros(n)
+
+    def draw(self) -> tuple[int, float, float]:
+        k = int(self.rng.choice(len(self.sc.activities), p=self.p))
+        a = self.sc.activities[k]
+        busy = a.busyness_low + (a.busyness_high - a.busyness_low) * self.rng.random()
+        return k, busy, float(self.rng.exponential(a.mean_duration_s))
+
+    def start_day(self, day_start_s: float) -> None:
+        self.end[:] = day_start_s  # everyone starts the shift with a fresh activity
+
+    def at(self, i: int, t: float) -> tuple[str, float]:
+        while self.end[i] <= t:
+            k, busy, dur = self.draw()
+            self.act[i], self.busy[i] = k, busy
+            self.end[i] += dur
+        return self.sc.activities[self.act[i]].name, float(self.busy[i])
+
+
+def build_world(sc: Scenario, seed: int) -> World:
+    rng = np.random.default_rng([seed, 0x5151])
+    n = sc.regulars
+    ids = [f"{sc.name}-r{i:03d}" for i in range(n)]
+    will = dict(zip(ids, _willingness(rng, sc, sc.willingness, n).tolist()))
+    around = rng.gamma(sc.encounter_spread, 1.0 / sc.encounter_spread, size=n) if n else np.empty(0)
+    around_p = around / around.sum() if n else around
+    sched = _Schedules(sc, rng, n)
+    kind_w = np.array([k.weight for k in sc.kinds], dtype=float)
+    kind_p = kind_w / kind_w.sum()
+    needs: list[SimNeed] = []
+    stranger_count = 0
+    for day in range(sc.days):
+        start = day * DAY_S
+        sched.start_day(start)
+        count = int(rng.poisson(sc.needs_per_hour * sc.hours_per_day))
+        times = np.sort(start + rng.random(count) * sc.hours_per_day * 3600.0)
+        for t in times.tolist():
+            kind = sc.kinds[int(rng.choice(len(sc.kinds), p=kind_p))]
+            seen = []
+            k_reg = min(int(rng.poisson(sc.regulars_per_need)), n)
+            if k_reg:
+                for i in rng.choice(n, size=k_reg, replace=False, p=around_p).tolist():
+                    act, busy = sched.at(i, t)
+                    seen.append(SeenPerson(ids[i], float(rng.uniform(0.5, sc.max_distance_m)),
+                                           busy, act))
+            for _ in range(int(rng.poisson(sc.strangers_per_need))):
+                pid = f"{sc.name}-s{stranger_count:06d}"
+                stranger_count += 1
+                will[pid] = float(_willingness(rng, sc, sc.stranger_willingness, 1)[0])
+                k, busy, _ = sched.draw()
+                seen.append(SeenPerson(pid, float(rng.uniform(0.5, sc.max_distance_m)), busy,
+                                       sc.activities[k].name))
+            needs.append(SimNeed(f"n{len(needs):06d}", t, kind.kind, kind.continue_cost_s,
+                                 kind.help_time_s, tuple(seen), float(rng.random()),
+                                 float(rng.random())))
+    return World(sc, seed, needs, will)

@@ -1,0 +1,73 @@
+"""`helpaware simulate SCENARIO.yaml`: every policy on the same seeds of a simulated site.
+
+Writes a table (terminal), results.json and two PNG plots into --out. Every decision of every
+policy goes through core.policy.decide, the node's own decision code path.
+"""
+from __future__ import annotations
+
+import json
+import math
+import os
+import sys
+
+from ..core.baselines import POLICY_NAMES
+from ..core.model import CoreInputError
+from ..sim.compare import compare, headline, summary_table
+from ..sim.plots import write_plots
+from ..sim.scenario import load
+
+
+def add_arguments(parser) -> None:
+    parser.add_argument("scenario", help="scenario file (YAML, see docs/scenarios.md)")
+    parser.add_argument("--policies", nargs="+", default=list(POLICY_NAMES),
+                        choices=list(POLICY_NAMES), metavar="POLICY",
+                        help=f"policies to run (default all: {' '.join(POLICY_NAMES)})")
+    parser.add_argument("--seeds", type=int, default=20, help="number of seeds (default 20)")
+    parser.add_argument("--first-seed", type=int, default=0, help="first seed (default 0)")
+    parser.add_argument("--out", default="out/simulate", help="output directory for JSON and PNGs")
+    parser.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def _plain(value):
+    if isinstance(value, float) and (math.isnan(value) or math.isinf(value)):
+        return None
+    if isinstance(value, dict):
+        return {k: _plain(v) for k, v in value.items()}
+    if isinstance(value, list):
+        return [_plain(v) for v in value]
+    return value
+
+
+def run(args) -> int:
+    if args.seeds < 1:
+        print("simulate: --seeds must be at least 1", file=sys.stderr)
+        return 2
+    try:
+        sc = load(args.scenario)
+    except CoreInputError as exc:
+        print(f"simulate: {exc}", file=sys.stderr)
+        return 2
+    summary, per_seed, runs = compare(sc, args.policies, args.seeds, progress=not args.quiet,
+                                      first_seed=args.first_seed)
+    print(f"scenario {sc.name}: {sc.description}")
+    print(f"{args.seeds} seeds, mean ± 95 % t half-width over seeds; saved robot-s = help "
+          "gained - time lost - interruption cost, against continuing alone")
+    print(summary_table(summary))
+    head = headline(summary)
+    if head:
+        print(f"ours vs best baseline ({head['best_baseline']}): reward x"
+              f"{head['reward_ratio_vs_best']:.2f}, asks {head['ask_reduction_vs_best']:.2f}x fewer"
+              + (f"; {100 * head['share_of_oracle']:.1f} % of the oracle"
+                 if "share_of_oracle" in head else ""))
+    os.makedirs(args.out, exist_ok=True)
+    doc = {"scenario": sc.name, "seeds": args.seeds, "first_seed": args.first_seed,
+           "summary": summary, "headline": head, "per_seed": per_seed,
+           "evenness": "Gini coefficient of asks over everyone ever a candidate"}
+    with open(os.path.join(args.out, "results.json"), "w", encoding="utf-8") as fh:
+        json.dump(_plain(doc), fh, indent=1, sort_keys=True)
+    written = [os.path.join(args.out, "results.json")]
+    if not args.no_plots:
+        written += write_plots(runs, args.out, sc.name)
+    print("wrote " + ", ".join(written))
+    return 0
