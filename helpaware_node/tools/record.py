@@ -25,7 +25,7 @@ NODE_TOPICS = {
     "markers": "visualization_msgs/msg/MarkerArray",
     "/diagnostics": "diagnostic_msgs/msg/DiagnosticArray",
 }
-ID_TOPICS = ("decision", "people")     # the topics that carry perceived ids
+ID_TOPICS = ("decision", "people", "outcome")   # the topics that carry perceived ids
 # JSON fields that hold a perceived person id, wherever they appear in a document
 PERSON_ID_FIELDS = frozenset({"person_id", "id"})
 HASHED_MARK = "helpaware.person_ids"
