@@ -69,8 +69,7 @@ def normalise_type(msgtype: str) -> str:
 def serialize_string(text: str) -> bytes:
     """CDR (little endian) bytes of a std_msgs/String, as ROS 2 puts them on the wire."""
     raw = text.encode("utf-8") + b"\x00"
-    pad = (-len(raw)) % 4
-    return b"\x00\x01\x00\x00" + struct.pack("<I", len(raw)) + raw + b"\x00" * pad
+    return b"\x00\x01\x00\x00" + struct.pack("<I", len(raw)) + raw
 
 
 def deserialize_string(data: bytes | memoryview) -> str:
