@@ -416,16 +416,25 @@ def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
 
 @functools.lru_cache(maxsize=16)
 def _parameters_plain_cached(model: SiteModel, config: DecisionConfig) -> str:
-    return json.dumps({"model": to_plain(model), "config": to_plain(config)})
+    return json.dumps({"model": to_plain(model), "config": to_plain(config)},
+                      separators=(",", ":"), allow_nan=False)
 
 
 def _parameters_plain(model: SiteModel, config: DecisionConfig) -> dict:
     return json.loads(_parameters_plain_cached(model, config))
 
 
-def fast_text(document: Mapping[str, Any]) -> str:
-    """Serialise a document built here without validating it again (NaN still refused)."""
-    return json.dumps(document, separators=(",", ":"), allow_nan=False)
+def fast_text(document: Mapping[str, Any], model: Optional[SiteModel] = None,
+              config: Optional[DecisionConfig] = None) -> str:
+    """Serialise a document built here without validating it again (NaN still refused).
+
+    With model and config, their `parameters` object is spliced in from a cache: it is the
+    same text at every decision until a parameter changes.
+    """
+    text = json.dumps(document, separators=(",", ":"), allow_nan=False)
+    if model is None or config is None:
+        return text
+    return text[:-1] + ',"parameters":' + _parameters_plain_cached(model, config) + "}"
 
 
 def decision_text(decision: Decision, robot_ask_times_s: Sequence[float],

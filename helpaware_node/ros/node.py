@@ -401,7 +401,8 @@ class HelpAwareNode(LifecycleNode):
         else:
             decision = decide(state.need, cands, now, self.robot_ask_times_s, model, config)
         robot_asks = [t for t in self.robot_ask_times_s if now - t < 3600.0]
-        doc = wire.decision_to_document(decision, robot_asks, model, config,
+        # parameters are spliced into the text from a cache (fast_text), not built per decision
+        doc = wire.decision_to_document(decision, robot_asks, None, None,
                                         getattr(self.store, "robot_id", ""), check=False)
         for c in cands:
             self.records[self.seen[c.person_id].key] = note_candidate(
@@ -420,7 +421,7 @@ class HelpAwareNode(LifecycleNode):
                 state.need.kind, now + self.params.settings.pending_ask_timeout_s)
             self.last_action[pid] = "asked"
         self.last_decision = doc
-        self.decision_pub.publish(String(data=wire.fast_text(doc)))
+        self.decision_pub.publish(String(data=wire.fast_text(doc, model, config)))
         self.decisions_published += 1
 
     # ---------------------------------------------------------------- timers
