@@ -32,9 +32,8 @@ test: $(STAMP)
 	$(PY) -m pytest
 
 bench: $(STAMP)
-	$(PY) bench/bench_core.py
-	$(PY) bench/bench_store.py
-	$(PY) bench/bench_node.py
+	@# every bench/bench_*.py, each with a time limit; failures recorded in bench/RESULTS.md
+	$(PY) bench/run_all.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache .hypothesis out

@@ -36,7 +36,7 @@ class RunResult:
     asks_by_person: dict = field(default_factory=dict)
     asks_by_person_day: dict = field(default_factory=dict)
     candidates_seen: set = field(default_factory=set)
-    decisions: list = field(default_factory=list)   # (request id, action, person) when kept
+    decisions: list = field(default_factory=list)   # every Decision, when asked to keep them
 
 
 def site_config(world: World, config: DecisionConfig) -> DecisionConfig:
@@ -109,7 +109,7 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
         decision = robot.decide(need, chooser, policy)
         res.candidates_seen.update(s.person_id for s in need.seen)
         if keep_decisions:
-            res.decisions.append((need.request_id, decision.action, decision.person_id))
+            res.decisions.append(decision)
         if progress is not None:
             progress(1)
         if decision.action != "ask":

@@ -59,6 +59,13 @@ class Scenario:
         return tuple(a.name for a in self.activities if a.never_ask)
 
 
+def _chk(name, value, low, high, **kw) -> float:
+    try:
+        return check_range(name, value, low, high, **kw)
+    except CoreInputError as exc:
+        raise ScenarioError(str(exc)) from None
+
+
 def _get(data: Mapping, key: str, where: str, default: Any = ...):
     if not isinstance(data, Mapping):
         raise ScenarioError(f"{where}: expected a mapping, got {type(data).__name__}")
@@ -71,10 +78,7 @@ def _get(data: Mapping, key: str, where: str, default: Any = ...):
 
 def _num(data, key, where, low, high=float("inf"), default: Any = ..., low_open=False):
     value = _get(data, key, where, default)
-    try:
-        return check_range(f"{where}.{key}", value, low, high, low_open=low_open)
-    except CoreInputError as exc:
-        raise ScenarioError(str(exc)) from None
+    return _chk(f"{where}.{key}", value, low, high, low_open=low_open)
 
 
 def _mixture(data, where) -> tuple[tuple[float, float, float], ...]:
@@ -90,8 +94,8 @@ def _mixture(data, where) -> tuple[tuple[float, float, float], ...]:
         ab = _get(part, "beta", w)
         if not isinstance(ab, list) or len(ab) != 2:
             raise ScenarioError(f"{w}.beta: must be a list [a, b] of two numbers > 0")
-        a = check_range(f"{w}.beta[0]", ab[0], 0.0, 1e6, low_open=True)
-        b = check_range(f"{w}.beta[1]", ab[1], 0.0, 1e6, low_open=True)
+        a = _chk(f"{w}.beta[0]", ab[0], 0.0, 1e6, low_open=True)
+        b = _chk(f"{w}.beta[1]", ab[1], 0.0, 1e6, low_open=True)
         out.append((_num(part, "weight", w, 0.0, 1e6, default=1.0), a, b))
     if sum(p[0] for p in out) <= 0:
         raise ScenarioError(f"{where}: mixture weights must not all be 0")
@@ -124,8 +128,8 @@ def parse(data: Mapping, source: str = "scenario") -> Scenario:
         lo, hi = (busy, busy) if not isinstance(busy, list) else tuple(busy + [None])[:2]
         if hi is None:
             raise ScenarioError(f"{w}.busyness: a number or a list [low, high] in [0, 1]")
-        lo = check_range(f"{w}.busyness", lo, 0.0, 1.0)
-        hi = check_range(f"{w}.busyness", hi, lo, 1.0)
+        lo = _chk(f"{w}.busyness", lo, 0.0, 1.0)
+        hi = _chk(f"{w}.busyness", hi, lo, 1.0)
         never = _get(item, "never_ask", w, False)
         if not isinstance(never, bool):
             raise ScenarioError(f"{w}.never_ask: must be true or false")

@@ -6,7 +6,9 @@ random numbers): differences between policies are differences of decisions, not 
 """
 from __future__ import annotations
 
+import bisect
 import math
+import random
 from dataclasses import dataclass
 
 import numpy as np
@@ -76,26 +78,39 @@ def _willingness(rng, sc: Scenario, mixture, size: int) -> np.ndarray:
     return w
 
 
+def _pick(cumulative: np.ndarray, rng: np.random.Generator) -> int:
+    """One index drawn with the probabilities whose running sum is `cumulative`."""
+    return min(int(np.searchsorted(cumulative, rng.random(), side="right")), cumulative.size - 1)
+
+
+def _weighted_sample(weights: np.ndarray, k: int, rng: np.random.Generator) -> np.ndarray:
+    """k distinct indices, drawn one after another with probability proportional to weight
+    (exponential-race keys: the k smallest E_i / w_i), in draw order."""
+    keys = rng.exponential(size=weights.size) / weights
+    top = np.argpartition(keys, k - 1)[:k] if k < weights.size else np.arange(weights.size)
+    return top[np.argsort(keys[top], kind="stable")]
+
+
 class _Schedules:
     """Each regular moves through activities (weights, exponential durations) over a shift."""
 
-    def __init__(self, sc: Scenario, rng: np.random.Generator, n: int):
+    def __init__(self, sc: Scenario, rng: random.Random, n: int):
         self.sc = sc
-        self.rng = rng
+        self.rng = rng   # plain Python generator: thousands of scalar draws, fast
         w = np.array([a.weight for a in sc.activities], dtype=float)
-        self.p = w / w.sum()
-        self.end = np.full(n, -np.inf)
-        self.act = np.zeros(n, dtype=int)
-        self.busy = np.zeros(n)
+        self.cum = np.cumsum(w / w.sum()).tolist()
+        self.end = [-math.inf] * n
+        self.act = [0] * n
+        self.busy = [0.0] * n
 
     def draw(self) -> tuple[int, float, float]:
-        k = int(self.rng.choice(len(self.sc.activities), p=self.p))
+        k = min(bisect.bisect_right(self.cum, self.rng.random()), len(self.cum) - 1)
         a = self.sc.activities[k]
         busy = a.busyness_low + (a.busyness_high - a.busyness_low) * self.rng.random()
-        return k, busy, float(self.rng.exponential(a.mean_duration_s))
+        return k, busy, self.rng.expovariate(1.0 / a.mean_duration_s)
 
     def start_day(self, day_start_s: float) -> None:
-        self.end[:] = day_start_s  # everyone starts the shift with a fresh activity
+        self.end = [day_start_s] * len(self.end)  # everyone starts the shift with a fresh activity
 
     def at(self, i: int, t: float) -> tuple[str, float]:
         while self.end[i] <= t:
@@ -111,10 +126,9 @@ def build_world(sc: Scenario, seed: int) -> World:
     ids = [f"{sc.name}-r{i:03d}" for i in range(n)]
     will = dict(zip(ids, _willingness(rng, sc, sc.willingness, n).tolist()))
     around = rng.gamma(sc.encounter_spread, 1.0 / sc.encounter_spread, size=n) if n else np.empty(0)
-    around_p = around / around.sum() if n else around
-    sched = _Schedules(sc, rng, n)
+    sched = _Schedules(sc, random.Random(int(rng.integers(2**63))), n)
     kind_w = np.array([k.weight for k in sc.kinds], dtype=float)
-    kind_p = kind_w / kind_w.sum()
+    kind_cum = np.cumsum(kind_w / kind_w.sum())
     needs: list[SimNeed] = []
     stranger_count = 0
     for day in range(sc.days):
@@ -123,11 +137,11 @@ def build_world(sc: Scenario, seed: int) -> World:
         count = int(rng.poisson(sc.needs_per_hour * sc.hours_per_day))
         times = np.sort(start + rng.random(count) * sc.hours_per_day * 3600.0)
         for t in times.tolist():
-            kind = sc.kinds[int(rng.choice(len(sc.kinds), p=kind_p))]
+            kind = sc.kinds[_pick(kind_cum, rng)]
             seen = []
             k_reg = min(int(rng.poisson(sc.regulars_per_need)), n)
             if k_reg:
-                for i in rng.choice(n, size=k_reg, replace=False, p=around_p).tolist():
+                for i in _weighted_sample(around, k_reg, rng).tolist():
                     act, busy = sched.at(i, t)
                     seen.append(SeenPerson(ids[i], float(rng.uniform(0.5, sc.max_distance_m)),
                                            busy, act))
