@@ -117,7 +117,7 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
 
 def render_replay(replay: dict, figure: Optional[bytes]) -> str:
     parts = ["<h2>Counterfactual replay</h2>",
-             '<p class="warn">Estimates from the model, not observations: the outcomes of '
+             '<p class="warn">These are model-based estimates, not observations: the outcomes of '
              "people who were not asked are unknown, so expected helps and costs use each "
              "candidate's predicted help probability p under the recorded beliefs.</p>"]
     parts.append(f"<p>Other parameters: {esc(replay['params_file'])} (hash "
