@@ -513,9 +513,16 @@ def main(args=None) -> int:
     except StartupError as exc:
         print(f"{NODE_NAME}: {exc}", file=sys.stderr)
         code = 2
+    except Exception:
+        if rclpy.ok():
+            raise
+        # a signal shut the context down while the node was still starting: a clean exit
     finally:
         if node is not None:
-            node.destroy_node()
+            try:
+                node.destroy_node()
+            except Exception:  # the context may already be gone after a signal
+                pass
         rclpy.try_shutdown()
     return code
 
