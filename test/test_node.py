@@ -198,3 +198,29 @@ def test_managed_mode_waits_for_transitions(ctx):
         assert node.store is None
     finally:
         node.destroy_node()
+
+
+def test_incompatible_qos_is_counted(rig):
+    from rclpy.qos import QoSProfile, ReliabilityPolicy
+    best_effort = QoSProfile(depth=5, reliability=ReliabilityPolicy.BEST_EFFORT)
+    rig.driver.create_publisher(String, "task_status", best_effort)   # the node wants reliable
+    assert rig.spin_until(lambda: rig.node.counters.qos_incompatible > 0, 30)
+
+
+def test_learned_belief_survives_a_restart_with_a_store_file(ctx, tmp_path):
+    store = str(tmp_path / "beliefs.sqlite3")
+    rig = Rig(ctx, namespace="/persist", store_path=store, robot_id="r1")
+    try:
+        assert rig.connected() and rig.show_people(TWO)
+        d = rig.open_need("s1", "handover", urgency=1.0)
+        rig.report("s1", d["person_id"], "helped")
+        key = rig.node.store.key_for(d["person_id"])
+        learned = rig.node.records[key].belief
+        assert learned == Belief(3.0, 2.0)
+    finally:
+        rig.close()
+    rig = Rig(ctx, namespace="/persist2", store_path=store, robot_id="r1")
+    try:
+        assert rig.node.record_for(key).belief == learned        # folded again from the file
+    finally:
+        rig.close()
