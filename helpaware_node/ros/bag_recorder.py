@@ -15,6 +15,7 @@ from typing import Callable, Optional
 import rclpy
 from rclpy.executors import ExternalShutdownException
 from rclpy.node import Node
+from rclpy.parameter import Parameter
 from rclpy.qos import DurabilityPolicy, QoSProfile, ReliabilityPolicy
 
 from ..tools.bagio import BagWriter, normalise_type
@@ -40,8 +41,10 @@ def qos_for(publishers) -> QoSProfile:
 
 class BagRecorder(Node):
     def __init__(self, writer: BagWriter, topics: dict[str, Optional[str]],
-                 transforms: dict[str, Transform], namespace: str = "") -> None:
-        super().__init__("helpaware_recorder", namespace=namespace)
+                 transforms: dict[str, Transform], namespace: str = "",
+                 use_sim_time: bool = False) -> None:
+        super().__init__("helpaware_recorder", namespace=namespace,
+                         parameter_overrides=[Parameter("use_sim_time", value=use_sim_time)])
         self.writer = writer
         self.wanted = {self.resolve_topic_name(t): ty for t, ty in topics.items()}
         self.transforms = {self.resolve_topic_name(t): f for t, f in transforms.items()}
@@ -101,14 +104,15 @@ def progress_line(counts: dict[str, int], elapsed_s: float) -> str:
 
 def record(writer: BagWriter, topics: dict[str, Optional[str]],
            transforms: dict[str, Transform], duration_s: Optional[float] = None,
-           namespace: str = "", progress_every_s: float = 1.0, out=sys.stderr) -> dict[str, int]:
+           namespace: str = "", progress_every_s: float = 1.0, out=sys.stderr,
+           use_sim_time: bool = False) -> dict[str, int]:
     """Record until Ctrl-C, SIGTERM or `duration_s`; the bag is always closed cleanly."""
     rclpy.init()
     node = None
     start = time.monotonic()
     tty = hasattr(out, "isatty") and out.isatty()
     try:
-        node = BagRecorder(writer, topics, transforms, namespace)
+        node = BagRecorder(writer, topics, transforms, namespace, use_sim_time)
         last_print = 0.0
         last_flush = start
         while rclpy.ok():

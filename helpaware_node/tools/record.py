@@ -102,6 +102,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--duration", type=float, metavar="SECONDS",
                         help="stop by itself after this many seconds")
     parser.add_argument("--namespace", default="", help="namespace of the node's topics")
+    parser.add_argument("--use-sim-time", action="store_true",
+                        help="stamp messages with /clock time (as a node with use_sim_time)")
     parser.add_argument("--site-key-file", metavar="FILE",
                         help="site key used to hash person ids (HMAC-SHA256)")
     parser.add_argument("--keep-raw-ids", action="store_true",
@@ -134,6 +136,6 @@ def run(args: argparse.Namespace) -> int:
     from ..ros.bag_recorder import record
     writer = BagWriter(out, custom_data=custom)
     counts = record(writer, topics, transforms, duration_s=args.duration,
-                    namespace=args.namespace)
+                    namespace=args.namespace, use_sim_time=args.use_sim_time)
     print(f"bag written: {out} ({sum(counts.values())} messages)")
     return 0

@@ -141,7 +141,7 @@ def load(path: str) -> ReviewData:
 
 def _decision_row(doc: dict, bag_time_s: float) -> DecisionRow:
     fields = rw.decision_fields(doc)
-    time_s = fields.get("time_s", bag_time_s)
+    time_s = bag_time_s   # one clock for every row: the recorder's (documents may use sim time)
     cands = fields["candidates"]
     p = None
     if fields["action"] == "ask":
@@ -156,11 +156,11 @@ def _decision_row(doc: dict, bag_time_s: float) -> DecisionRow:
 
 def _outcome_row(doc: dict, bag_time_s: float) -> OutcomeRow:
     fields = rw.outcome_fields(doc)
-    return OutcomeRow(fields.get("time_s", bag_time_s), fields["request_id"],
+    return OutcomeRow(bag_time_s, fields["request_id"],
                       fields["person_id"], fields["result"])
 
 
 def _need_row(doc: dict, bag_time_s: float) -> NeedRow:
     fields = rw.task_status_fields(doc)
-    return NeedRow(fields.get("time_s", bag_time_s), fields["request_id"],
+    return NeedRow(bag_time_s, fields["request_id"],
                    fields.get("kind", ""), fields["state"])
