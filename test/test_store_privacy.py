@@ -85,3 +85,12 @@ def test_forget_leaves_no_bytes_in_a_store_with_deep_indexes(tmp_path):
     for k in victims:
         assert k.encode() not in blob
     store.close()
+
+
+def test_store_files_are_owner_only(tmp_path):
+    path = tmp_path / "b.sqlite3"
+    store = SqliteStore(path, "r1", KEY)
+    scenario(store)
+    modes = {p: os.stat(p).st_mode & 0o777 for p in glob.glob(str(path) + "*")}
+    assert len(modes) >= 2 and set(modes.values()) == {0o600}, modes
+    store.close()
