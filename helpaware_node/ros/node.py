@@ -404,6 +404,10 @@ class HelpAwareNode(LifecycleNode):
         # parameters are spliced into the text from a cache (fast_text), not built per decision
         doc = wire.decision_to_document(decision, robot_asks, None, None,
                                         getattr(self.store, "robot_id", ""), check=False)
+        # publish first: the bookkeeping below is not needed by whoever waits for the decision
+        # (an outcome cannot be handled before this callback returns)
+        self.decision_pub.publish(String(data=wire.fast_text(doc, model, config)))
+        self.decisions_published += 1
         for c in cands:
             self.records[self.seen[c.person_id].key] = note_candidate(
                 self.records[self.seen[c.person_id].key], now)
@@ -421,8 +425,6 @@ class HelpAwareNode(LifecycleNode):
                 state.need.kind, now + self.params.settings.pending_ask_timeout_s)
             self.last_action[pid] = "asked"
         self.last_decision = doc
-        self.decision_pub.publish(String(data=wire.fast_text(doc, model, config)))
-        self.decisions_published += 1
 
     # ---------------------------------------------------------------- timers
     def _housekeeping(self) -> None:
