@@ -224,3 +224,20 @@ def test_learned_belief_survives_a_restart_with_a_store_file(ctx, tmp_path):
         assert rig.node.record_for(key).belief == learned        # folded again from the file
     finally:
         rig.close()
+
+
+def test_diagnostics_report_store_state(ctx, tmp_path):
+    rig = Rig(ctx, namespace="/diagstore", store_path=str(tmp_path / "b.sqlite3"), robot_id="r2")
+    try:
+        assert rig.connected() and rig.show_people(TWO)
+        d = rig.open_need("q1", "handover", urgency=1.0)
+        rig.report("q1", d["person_id"], "helped")
+        def has_event():
+            for arr in rig.diagnostics:
+                vals = {v.key: v.value for s in arr.status for v in s.values}
+                if vals.get("store") == "SqliteStore" and vals.get("store.events") == "1":
+                    return True
+            return False
+        assert rig.spin_until(has_event, 30)
+    finally:
+        rig.close()

@@ -473,6 +473,13 @@ class HelpAwareNode(LifecycleNode):
             "parameters_last_rejection": self.params.last_rejection,
             "params_hash": self.params_hash(),
         })
+        if self.store is not None and hasattr(self.store, "counts"):
+            try:
+                values.update({f"store.{k}": v for k, v in self.store.counts().items()})
+            except Exception as exc:  # report, never stop the node over a status query
+                values["store.counts_error"] = str(exc)[:200]
+        elif self.store is not None:
+            values["store.persons"] = len(self.store.keys())
         self.diag_pub.publish(diag.status_array(f"{self.get_name()}: decision",
                                                 self.get_fully_qualified_name(), stamp, values,
                                                 level, message))
