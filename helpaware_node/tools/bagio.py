@@ -224,6 +224,43 @@ class BagSource:
         custom = getattr(getattr(self._reader.storage, "metadata", None), "custom", None)
         self.info.custom_data = dict(custom or {})
 
+    @property
+    def index_counts(self) -> Optional[dict[str, int]]:
+        """Per-topic counts from the bag's own index, when the bag opened intact and its index
+        accounts for every message (else None: count by reading)."""
+        if self._reader is None:
+            return None
+        total = self._reader.message_count
+        if total and sum(self.info.counts.values()) == total:
+            return dict(self.info.counts)
+        return None
+
+    @property
+    def time_range_ns(self) -> Optional[tuple[int, int]]:
+        if self._reader is None or not self._reader.message_count:
+            return None
+        return self._reader.start_time, self._reader.end_time - 1
+
+    def raw(self, topics: Optional[set[str]] = None) -> Iterator[tuple[str, int, bytes]]:
+        """(topic, time ns, data) without wrapping each message in an object (fast path)."""
+        if self._reader is None:
+            for m in self._salvage(topics):
+                yield m.topic, m.time_ns, m.data
+            return
+        conns = [c for c in self._reader.connections if topics is None or c.topic in topics]
+        if not conns:
+            return
+        count = 0
+        last = None
+        try:
+            for conn, t_ns, data in self._reader.messages(connections=conns):
+                count += 1
+                last = t_ns
+                yield conn.topic, t_ns, data
+        except Exception as exc:  # ReaderError, sqlite3.DatabaseError, zstd errors, ...
+            self.error = BagReadError(str(self.path), f"reading stopped: "
+                                      f"{type(exc).__name__}: {exc}", count, last_time_ns=last)
+
     def messages(self, topics: Optional[set[str]] = None) -> Iterator[BagMessage]:
         if self._reader is None:
             yield from self._salvage(topics)

@@ -90,31 +90,41 @@ def _reject(data: ReviewData, kind: str, reason: str) -> None:
 
 
 def load(path: str) -> ReviewData:
-    """Read the bag once; on damage keep what was read and set `error`."""
+    """Read the bag once; on damage keep what was read and set `error`.
+
+    An intact bag's own index gives the per-topic counts, so only the documents the review
+    parses are read; a damaged bag (or one whose index does not add up) is read in full.
+    """
     source = BagSource(path)
     data = ReviewData(str(path), source.storage)
     counts = data.counts
-    first_ns = None
-    last_ns = None
-    kinds: dict[str, str] = {}
+    kinds = {topic: topic_kind(topic) for topic in source.info.topics}
+    index = source.index_counts
+    if index is not None:
+        for topic, n in index.items():
+            counts[kinds[topic]] += n
+        wanted = {t for t, k in kinds.items() if k in PARSED_TOPICS}
+    else:
+        wanted = None
+    first_ns = last_ns = None
     try:
-        for msg in source.messages():
-            kind = kinds.get(msg.topic)
-            if kind is None:
-                kind = kinds[msg.topic] = topic_kind(msg.topic)
-                data.topic_names.setdefault(kind, msg.topic)
-            counts[kind] += 1
-            if first_ns is None:
-                first_ns = msg.time_ns
-            last_ns = msg.time_ns
+        for topic, t_ns, raw in source.raw(wanted):
+            kind = kinds.get(topic)
+            if kind is None:      # first seen while salvaging a damaged file
+                kind = kinds[topic] = topic_kind(topic)
+            if index is None:
+                counts[kind] += 1
+                if first_ns is None:
+                    first_ns = t_ns
+                last_ns = t_ns
             if kind not in PARSED_TOPICS:
                 continue
             try:
-                doc = json.loads(deserialize_string(msg.data))
+                doc = json.loads(deserialize_string(raw))
             except (ValueError, UnicodeDecodeError) as exc:
                 _reject(data, kind, f"not a JSON std_msgs/String: {exc}")
                 continue
-            t_s = msg.time_ns * 1e-9
+            t_s = t_ns * 1e-9
             try:
                 if kind == "decision":
                     data.decisions.append(_decision_row(doc, t_s))
@@ -125,7 +135,10 @@ def load(path: str) -> ReviewData:
             except (rw.WireError, KeyError, TypeError, ValueError) as exc:
                 _reject(data, kind, str(exc))
     finally:
+        time_range = source.time_range_ns
         source.close()
+    if index is not None and time_range is not None:
+        first_ns, last_ns = time_range
     data.error = source.error
     data.custom_data = source.info.custom_data
     for topic in source.info.topics:   # topics with no messages still count as present (0)

@@ -23,7 +23,7 @@ def short_key(key: str) -> str:
 
 def _png(fig) -> bytes:
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=90, bbox_inches="tight")
+    fig.savefig(buf, format="png", dpi=90)
     plt.close(fig)
     return buf.getvalue()
 
@@ -34,7 +34,7 @@ def _hours(t_s, t0_s):
 
 def timeline(data) -> bytes:
     """Help needs, asks, continues and outcomes against time since the bag started."""
-    fig, ax = plt.subplots(figsize=(10, 3.2))
+    fig, ax = plt.subplots(layout="constrained", figsize=(10, 3.2))
     t0 = data.start_s
     rows = {"help needs": 3, "continue": 2, "ask": 1, "outcome": 0}
     needs = [n.time_s for n in data.needs if n.state == "open"]
@@ -65,7 +65,7 @@ def willingness(data) -> bytes:
     """Mean and 90 % interval of each person's Beta belief at each decision they were in."""
     series = data.belief_series()
     keys = sorted(series, key=lambda k: -len(series[k]))[:MAX_PEOPLE_PLOTTED]
-    fig, ax = plt.subplots(figsize=(10, 4))
+    fig, ax = plt.subplots(layout="constrained", figsize=(10, 4))
     for key in sorted(keys):
         pts = sorted(series[key])
         t = _hours([p[0] for p in pts], data.start_s)
@@ -73,7 +73,7 @@ def willingness(data) -> bytes:
         b = np.array([p[2] for p in pts])
         lo, hi = beta_interval(a, b, 0.9)
         line, = ax.plot(t, a / (a + b), marker=".", label=short_key(key))
-        ax.fill_between(t, lo, hi, color=line.get_color(), alpha=0.15, step=None)
+        ax.fill_between(t, lo, hi, color=line.get_color(), alpha=0.25 / max(1, len(keys)) ** 0.5)
     ax.set_ylim(0, 1)
     ax.set_xlabel("hours since the bag started")
     ax.set_ylabel("willingness (mean, 90 % interval)")
@@ -87,7 +87,7 @@ def willingness(data) -> bytes:
 
 
 def reliability(bins: list[dict], brier: float, logloss: float, n: int) -> bytes:
-    fig, ax = plt.subplots(figsize=(5, 5))
+    fig, ax = plt.subplots(layout="constrained", figsize=(5, 5))
     ax.plot([0, 1], [0, 1], color="gray", linestyle="--", label="perfect calibration")
     if bins:
         x = [r["mean_predicted"] for r in bins]
@@ -105,7 +105,7 @@ def reliability(bins: list[dict], brier: float, logloss: float, n: int) -> bytes
 
 
 def bars(counts: dict, title: str, xlabel: str, rotate: bool = True) -> bytes:
-    fig, ax = plt.subplots(figsize=(8, 3.2))
+    fig, ax = plt.subplots(layout="constrained", figsize=(8, 3.2))
     labels = list(counts.keys())
     ax.bar(range(len(labels)), list(counts.values()), color="tab:blue")
     ax.set_xticks(range(len(labels)), labels, rotation=60 if rotate else 0, ha="right"

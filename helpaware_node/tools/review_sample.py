@@ -90,8 +90,10 @@ def write_sample_bag(path: str, needs: int = 40, people: int = 12, seed: int = 3
             seen = rng.sample(staff, min(people_per_need, people))
             obs = [(key[p], rng.random() ** 1.5, rng.uniform(0.5, 10.0), rng.choice(ACTIVITIES))
                    for p in seen]
+            if pad_per_need:
+                padding = rw.people_document(obs, now - 1.0)
             for j in range(pad_per_need):
-                emit("people", now - 1.0 + j * 1e-6, rw.people_document(obs, now - 1.0))
+                emit("people", now - 1.0 + j * 1e-6, padding)
             emit("people", now - 0.5, rw.people_document(obs, now - 0.5))
             counts.people_messages += pad_per_need + 1
             need = HelpNeed(f"need-{k:04d}", KINDS[k % len(KINDS)], now,
