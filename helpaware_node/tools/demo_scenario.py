@@ -133,7 +133,7 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         if time.monotonic() > real_end:
             out("scenario: time budget used up; stopping early")
             break
-        t += rng.uniform(180.0, 720.0)                       # 3 to 12 minutes between needs
+        t += rng.uniform(120.0, 600.0)                       # 2 to 10 minutes between needs
         ward = rng.randint(1, 6)
         local = [s for s in staff if s.ward == ward] + rng.sample(staff, 4)
         view, seen = [], set()
