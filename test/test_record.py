@@ -16,7 +16,7 @@ from helpaware_node.store.base import person_key
 from helpaware_node.tools.bagio import BagSource, deserialize_string, serialize_string
 from helpaware_node.tools.record import id_hasher
 
-KEY = b"test-site-key"
+KEY = b"test-site-key-of-32-bytes-length"
 RAW = ["nurse-ward3-a", "porter-b"]
 
 

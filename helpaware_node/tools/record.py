@@ -9,7 +9,6 @@ from __future__ import annotations
 import argparse
 import datetime
 import json
-import os
 import sys
 from pathlib import Path
 from typing import Callable, Optional
@@ -67,25 +66,18 @@ def id_hasher(site_key: bytes) -> Callable[[bytes], bytes]:
 
 
 def load_site_key(path: Optional[str]) -> bytes:
-    """The site key: from --site-key-file, else from the store's own key loading."""
-    if path:
-        p = Path(path)
-        try:
-            data = p.read_bytes()
-        except OSError as exc:
-            raise SystemExit(f"--site-key-file {path}: cannot read ({exc.strerror})")
-        if not data.strip():
-            raise SystemExit(f"--site-key-file {path}: file is empty")
-        if os.name == "posix" and p.stat().st_mode & 0o077:
-            print(f"warning: {path} is readable by others; the site key should be owner-only "
-                  "(chmod 600)", file=sys.stderr)
-        return data.strip()
-    from .. import store
-    loader = getattr(store, "load_site_key", None)
-    if loader is not None:
-        return loader()
-    raise SystemExit("record: no site key to hash person ids with; give --site-key-file FILE "
-                     "(the site key file, readable only by its owner) or --keep-raw-ids")
+    """The site key the store uses (`store.load_site_key`): from --site-key-file, else the
+    store's default key file.  Never created here: a new key would not match the store."""
+    from ..store import SiteKeyError, default_key_path
+    from ..store import load_site_key as store_load_site_key
+    try:
+        return store_load_site_key(path or None, create=False)
+    except SiteKeyError as exc:
+        hint = "" if path else f" (the default {default_key_path()})"
+        raise SystemExit(f"record: {exc}{hint}; give --site-key-file FILE (the site key, "
+                         "readable only by its owner) or --keep-raw-ids") from None
+    except OSError as exc:
+        raise SystemExit(f"record: site key file {path}: {exc.strerror}") from None
 
 
 def parse_topic(text: str) -> tuple[str, Optional[str]]:
@@ -105,7 +97,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--use-sim-time", action="store_true",
                         help="stamp messages with /clock time (as a node with use_sim_time)")
     parser.add_argument("--site-key-file", metavar="FILE",
-                        help="site key used to hash person ids (HMAC-SHA256)")
+                        help="site key used to hash person ids (HMAC-SHA256); default: the "
+                        "store's key file under the ROS home")
     parser.add_argument("--keep-raw-ids", action="store_true",
                         help="keep perceived person ids in the bag (not recommended)")
 
@@ -130,9 +123,12 @@ def run(args: argparse.Namespace) -> int:
               "personal data", file=sys.stderr)
         custom[HASHED_MARK] = "raw"
     else:
-        hasher = id_hasher(load_site_key(args.site_key_file))
+        site_key = load_site_key(args.site_key_file)
+        hasher = id_hasher(site_key)
         transforms = {t: hasher for t in ID_TOPICS}
         custom[HASHED_MARK] = "hmac-sha256"
+        from ..store import key_fingerprint
+        custom["helpaware.site_key_fingerprint"] = key_fingerprint(site_key)
     from ..ros.bag_recorder import record
     writer = BagWriter(out, custom_data=custom)
     counts = record(writer, topics, transforms, duration_s=args.duration,
