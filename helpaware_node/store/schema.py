@@ -49,10 +49,6 @@ MIGRATIONS: list[list[str]] = [
         """CREATE TABLE sequences (robot_id TEXT PRIMARY KEY, next_seq INTEGER NOT NULL)
            WITHOUT ROWID""",
     ],
-    # 3: time order for the fleet's re-offer of recent events, export and compaction
-    [
-        """CREATE INDEX events_by_time ON events (time_s, event_id)""",
-    ],
 ]
 SCHEMA_VERSION = len(MIGRATIONS)
 
