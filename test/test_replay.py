@@ -73,3 +73,18 @@ def test_bad_parameter_file_names_file_and_field(tmp_path):
     g.write_text("just: text\n")
     with pytest.raises(ParamFileError, match="none.yaml: no 'ros__parameters'"):
         load_params(str(g))
+
+
+def test_a_decision_the_node_forced_to_continue_replays_as_forced():
+    from helpaware_node import wire
+    from helpaware_node.core import HelpNeed, PersonRecord, candidate_from_record, decide
+    model, config = SiteModel(), DecisionConfig()
+    need = HelpNeed("need-9", "door", 50.0)
+    cands = [candidate_from_record("k1", PersonRecord.new(model), 50.0, model, 1.0, 50.0, 0.0)]
+    assert decide(need, cands, 50.0, (), model, config).action == "ask"
+    forced = decide(need, cands, 50.0, (), model, config, chooser=lambda ev: None,
+                    policy="need_ask_limit")
+    doc = wire.decision_to_document(forced, (), model, config)
+    again = review_replay.replay_one(doc, model, config)
+    assert (again.action, again.policy) == ("continue", "need_ask_limit")
+    assert again.rationale() == doc["rationale"]

@@ -50,6 +50,7 @@ class BagRecorder(Node):
         self.transforms = {self.resolve_topic_name(t): f for t, f in transforms.items()}
         self.subs = {}
         self.dropped: dict[str, int] = {}
+        self.before_clock = 0
         self.create_timer(0.5, self.discover)
         self.discover()
 
@@ -83,6 +84,10 @@ class BagRecorder(Node):
         clock = self.get_clock()
 
         def on_message(data: bytes) -> None:
+            stamp_ns = clock.now().nanoseconds
+            if stamp_ns == 0:     # sim time before the first /clock: no time to file it under
+                self.before_clock += 1
+                return
             if transform is not None:
                 try:
                     data = transform(data)
@@ -91,7 +96,7 @@ class BagRecorder(Node):
                     self.get_logger().warning(f"{topic}: message not recorded ({exc})",
                                               throttle_duration_sec=5.0)
                     return
-            writer.write(topic, clock.now().nanoseconds, data)
+            writer.write(topic, stamp_ns, data)
 
         return on_message
 
@@ -137,6 +142,9 @@ def record(writer: BagWriter, topics: dict[str, Optional[str]],
         if node is not None:
             for topic, n in node.dropped.items():
                 out.write(f"{topic}: {n} messages not recorded (could not hash person ids)\n")
+            if node.before_clock:
+                out.write(f"{node.before_clock} messages arrived before /clock started "
+                          "(sim time) and were not recorded\n")
             node.destroy_node()
         rclpy.try_shutdown()
     return dict(writer.counts)

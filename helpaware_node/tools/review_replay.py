@@ -35,8 +35,19 @@ def expected_costs(decision: Decision, ask_time_s: float) -> dict:
     return {"ask": 1, "p": p, "interruption_s": float(ev.interruption_s[i]), "time_lost_s": lost}
 
 
+def _never(_ev) -> None:
+    return None
+
+
 def replay_one(document: dict, model: SiteModel, config: DecisionConfig) -> Decision:
+    """Decide again. A decision the node forced to continue (its policy is not the look-ahead,
+    e.g. the per-need ask limit or the operator switch) is forced again: those are node
+    settings the parameter set does not change."""
     need, candidates, now_s, robot_asks = rw.replay_inputs(document)
+    policy = document.get("policy", "lookahead")
+    if policy != "lookahead":
+        return decide(need, candidates, now_s, robot_asks, model, config, chooser=_never,
+                      policy=policy)
     return decide(need, candidates, now_s, robot_asks, model, config)
 
 
