@@ -2,8 +2,9 @@
 
 Messages are never deserialised by rclpy (raw=True): the bytes go into the bag as they came,
 except on topics given a `transform` (the person-id hashing of `decision` and `people`).
-A topic is subscribed once a publisher for it appears, with a QoS that fits every publisher
-(reliable / transient local only if all publishers offer it), as `ros2 bag record` does.
+The node's own topics are subscribed at once with the QoS of the topic contract; any other
+topic once a publisher for it appears, with a QoS that fits every publisher (reliable /
+transient local only if all publishers offer it), as `ros2 bag record` does.
 """
 from __future__ import annotations
 
@@ -29,6 +30,19 @@ def message_class(msgtype: str):
     return getattr(importlib.import_module(f"{pkg}.{kind}"), name)
 
 
+# The node's topic contract (docs/parameters.md, DESIGN section 5): these are subscribed at
+# once, before any publisher appears, so the first messages of a run are not missed.
+# people is best effort (sensor data); the rest reliable. Other topics use discovery.
+CONTRACT_QOS = {
+    "people": QoSProfile(depth=100, reliability=ReliabilityPolicy.BEST_EFFORT),
+    "decision": QoSProfile(depth=100, reliability=ReliabilityPolicy.RELIABLE),
+    "task_status": QoSProfile(depth=100, reliability=ReliabilityPolicy.RELIABLE),
+    "outcome": QoSProfile(depth=100, reliability=ReliabilityPolicy.RELIABLE),
+    "markers": QoSProfile(depth=100, reliability=ReliabilityPolicy.BEST_EFFORT),
+    "/diagnostics": QoSProfile(depth=100, reliability=ReliabilityPolicy.BEST_EFFORT),
+}
+
+
 def qos_for(publishers) -> QoSProfile:
     reliable = all(p.qos_profile.reliability == ReliabilityPolicy.RELIABLE for p in publishers)
     latched = all(p.qos_profile.durability == DurabilityPolicy.TRANSIENT_LOCAL for p in publishers)
@@ -51,6 +65,13 @@ class BagRecorder(Node):
         self.subs = {}
         self.dropped: dict[str, int] = {}
         self.before_clock = 0
+        for name, qos in CONTRACT_QOS.items():
+            msgtype = topics.get(name)
+            if msgtype:
+                topic = self.resolve_topic_name(name)
+                writer.add_topic(topic, msgtype)
+                self.subs[topic] = self.create_subscription(
+                    message_class(msgtype), topic, self._callback_for(topic), qos, raw=True)
         self.create_timer(0.5, self.discover)
         self.discover()
 
