@@ -10,7 +10,7 @@ import os
 import numpy as np
 import pytest
 from scipy import integrate, stats
-from scipy.special import expit, gammaln
+from scipy.special import expit
 
 from helpaware_node.fit.glmm import (RandomInterceptLogit, new_group_help_probability,
                                      sequential_help_probability)

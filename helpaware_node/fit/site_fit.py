@@ -18,7 +18,7 @@ import numpy as np
 from scipy import optimize, stats
 from scipy.special import expit, logit
 
-from .data import DECLINED, HELPED, NO_RESPONSE, FitInputError, OutcomeData
+from .data import HELPED, FitInputError, OutcomeData
 from .progress import Progress
 from .site_likelihood import SiteLikelihood, SiteParams
 

@@ -29,7 +29,7 @@ import numpy as np
 from scipy.linalg import eigh_tridiagonal
 from scipy.special import logsumexp
 
-from .data import DECLINED, HELPED, NO_RESPONSE, OutcomeData
+from .data import HELPED, NO_RESPONSE, OutcomeData
 
 # node counts actually used (a person needing n nodes uses the next one up), so few rules
 # are computed per evaluation however many distinct history lengths there are
