@@ -98,7 +98,10 @@ def test_live_recording_hashes_ids_and_closes_cleanly_on_sigterm(tmp_path):
     assert (bag / "metadata.yaml").exists()
     src = BagSource(bag)
     texts = [deserialize_string(m.data) for m in src.messages()]
-    assert src.error is None and src.info.topics == {"/people": "std_msgs/msg/String"}
+    assert src.error is None and src.info.topics["/people"] == "std_msgs/msg/String"
+    # the node's other topics are in the bag with their types, and no messages
+    assert src.info.topics["/diagnostics"] == "diagnostic_msgs/msg/DiagnosticArray"
+    assert {t for t, n in src.info.counts.items() if n} == {"/people"}
     assert 0 < len(texts) <= 40
     assert src.info.custom_data["helpaware.person_ids"] == "hmac-sha256"
     assert all("nurse-ward3-a" not in t for t in texts)
