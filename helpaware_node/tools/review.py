@@ -40,7 +40,11 @@ def build(bag: str, out_dir: str, params_file: Optional[str] = None,
         other = None
         if params_file:
             from . import review_params, review_wire
-            base_model, base_config = review_wire.recorded_params(data.decisions[0].document)
+            try:
+                base_model, base_config = review_wire.recorded_params(data.decisions[0].document)
+            except review_wire.WireError:   # decisions without their parameters: defaults
+                from ..core.model import DecisionConfig, SiteModel
+                base_model, base_config = SiteModel(), DecisionConfig()
             other = review_params.load_params(params_file, base_model, base_config)
         try:
             replay = review_replay.replay(data, other.model if other else None,

@@ -70,6 +70,7 @@ def replay(data: ReviewData, other_model: Optional[SiteModel] = None,
     recorded, other, changes, mismatches = [], [], [], []
     rec_configs, other_configs = [], []
     skipped = 0
+    other_pair = None
     for row in data.decisions:
         try:
             model, config = rw.recorded_params(row.document)
@@ -90,16 +91,14 @@ def replay(data: ReviewData, other_model: Optional[SiteModel] = None,
             alt = replay_one(row.document, om, oc)
             other.append(alt)
             other_configs.append(oc)
+            other_pair = other_pair or (om, oc)
             if (alt.action, alt.person_id) != (again.action, again.person_id):
                 changes.append({"request_id": row.request_id, "recorded": describe(again),
                                 "other": describe(alt)})
     totals = [_totals("recorded", recorded, rec_configs)]
     if other:
         totals.append(_totals("other", other, other_configs))
-    other_hash = ""
-    if other_configs:
-        other_hash = params_hash(other_model or rw.recorded_params(data.decisions[0].document)[0],
-                                 other_configs[0])
+    other_hash = params_hash(*other_pair) if other_pair else ""
     return {"params_file": params_file, "other_hash": other_hash, "needs": len(recorded),
             "skipped": skipped, "reproduced": len(recorded) - len(mismatches),
             "mismatches": mismatches, "changed": len(changes), "changes": changes,
