@@ -18,7 +18,7 @@ from dataclasses import dataclass, replace
 from typing import Optional
 
 import rclpy
-from rclpy.executors import ExternalShutdownException
+from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
 from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
 from std_msgs.msg import String
@@ -515,8 +515,12 @@ def main(args=None) -> int:
     node = None
     code = 0
     try:
+        # the executor exists before the node announces itself, so a signal that follows the
+        # announcement never lands inside the executor's construction
+        executor = SingleThreadedExecutor()
         node = HelpAwareNode()
-        rclpy.spin(node)
+        executor.add_node(node)
+        executor.spin()
     except (KeyboardInterrupt, ExternalShutdownException):
         pass
     except StartupError as exc:
