@@ -83,7 +83,7 @@ def main(argv=None) -> int:
     ytr = (train.result == HELPED).astype(float)
     glmm, t_g, m_g = measured(lambda: RandomInterceptLogit(
         ytr, np.ones_like(ytr), glmm_design(train), train.person, nodes=15).fit(
-            progress=Progress("glmm fit", enabled=True)))
+            progress=Progress("glmm fit", enabled=True), standard_errors=False))
     p_g = sequential_help_probability(glmm.beta, glmm.sigma, glmm_design(test), test.person, y_test)
     rows.append(["GLMM, adaptive Gauss-Hermite (ours)", t_g, m_g, log_loss(p_g, y_test)])
 

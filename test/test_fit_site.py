@@ -124,14 +124,14 @@ def test_parameter_recovery_within_three_standard_errors():
 
 
 def test_context_test_detects_and_accepts():
-    strong = simulate(SiteParams(2.0, 3.0, 2.0, 0.8, 0.6, 0.7), 300, 8, seed=5)
+    strong = simulate(SiteParams(2.0, 3.0, 2.0, 0.8, 0.6, 0.7), 150, 8, seed=5)
     fit = fit_site(strong, standard_errors=False)
     t = context_test(strong, fit)
     assert t.df == 2 and t.p_value < 1e-6
     assert t.statistic == pytest.approx(2 * (fit.loglik - t.loglik_null), abs=1e-9)
     assert t.p_value_boundary <= t.p_value     # mixture puts weight on chi-square(0), (1)
     # no context in truth: the statistic is small
-    none = simulate(SiteParams(2.0, 3.0, 0.0, 0.0, 0.6, 0.7), 300, 8, seed=6)
+    none = simulate(SiteParams(2.0, 3.0, 0.0, 0.0, 0.6, 0.7), 150, 8, seed=6)
     fit0 = fit_site(none, standard_errors=False)
     assert context_test(none, fit0).p_value > 1e-3
 

@@ -14,9 +14,10 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy import optimize
-from scipy.special import expit, gammaln, logsumexp, roots_hermite
+from scipy.special import expit, gammaln, roots_hermite
 
 from .progress import Progress
+from .site_likelihood import logsumexp
 
 
 @dataclass
@@ -102,7 +103,8 @@ class RandomInterceptLogit:
                 break
         return np.append(beta, math.log(0.5))
 
-    def fit(self, names=None, progress: Progress | None = None, max_iter: int = 200) -> GlmmFit:
+    def fit(self, names=None, progress: Progress | None = None, max_iter: int = 200,
+            standard_errors: bool = True) -> GlmmFit:
         theta0 = self.start()
         prog = progress or Progress("glmm", enabled=False)
         bounds = [(None, None)] * (theta0.size - 1) + [(math.log(1e-4), math.log(50.0))]
@@ -116,6 +118,10 @@ class RandomInterceptLogit:
         prog.done(f"log-likelihood {ll:.3f}")
         # Hessian by central differences of the gradient
         k = theta.size
+        names = tuple(names) if names else tuple(f"b{i}" for i in range(k - 1))
+        if not standard_errors:
+            return GlmmFit(theta[:-1].copy(), float(math.exp(theta[-1])), ll, np.full(k, math.nan),
+                           names, int(res.nit), bool(res.success))
         hess = np.zeros((k, k))
         h = 1e-4
         for i in range(k):
@@ -128,7 +134,6 @@ class RandomInterceptLogit:
             se = np.sqrt(np.maximum(np.diag(np.linalg.inv(hess)), 0.0))
         except np.linalg.LinAlgError:
             se = np.full(k, math.nan)
-        names = tuple(names) if names else tuple(f"b{i}" for i in range(k - 1))
         return GlmmFit(theta[:-1].copy(), float(math.exp(theta[-1])), ll, se, names,
                        int(res.nit), bool(res.success))
 

@@ -27,9 +27,20 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import eigh_tridiagonal
-from scipy.special import logsumexp
 
 from .data import HELPED, NO_RESPONSE, OutcomeData
+
+
+
+def logsumexp(x: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:
+    """log(sum(exp(x))) along `axis`, stable; plain numpy (scipy's version costs ~1 ms a call
+    in array-API bookkeeping, which dominated small fits)."""
+    m = np.max(x, axis=axis, keepdims=True)
+    m = np.where(np.isfinite(m), m, 0.0)
+    with np.errstate(divide="ignore"):
+        out = m + np.log(np.sum(np.exp(x - m), axis=axis, keepdims=True))
+    return out if keepdims else (np.squeeze(out, axis=axis) if axis is not None else out.item())
+
 
 # node counts actually used (a person needing n nodes uses the next one up), so few rules
 # are computed per evaluation however many distinct history lengths there are
