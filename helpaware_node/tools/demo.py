@@ -15,7 +15,7 @@ import sys
 import tempfile
 import time
 
-from . import demo_core
+from . import demo_core, review_demo
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -70,16 +70,19 @@ def run_night_shift(args: argparse.Namespace) -> int:
                 print(node.stderr.read() if node.poll() is not None else "(no output)")
                 return 1
             print(f"node up in {args.namespace} (site parameters config/hospital_night.yaml)\n")
+            recorder = review_demo.start_recorder(args.namespace, os.path.join(store_dir, "site_key"))
             # 2. the scenario process: owns /clock, shows people, opens needs, answers asks
             scenario = subprocess.run(
                 [sys.executable, "-m", "helpaware_node.tools.demo_scenario",
                  "--namespace", args.namespace, "--needs", str(args.needs),
                  "--seed", str(args.seed)], timeout=120)
+            bag = review_demo.stop_recorder(recorder)
         finally:
             # 3. stop the node cleanly (it keeps what it learned in its store until here)
             code = stop_node(node)
     # 4. report
     print(f"\nnode exited with code {code}; demo took {time.monotonic() - started:.1f} s")
+    review_demo.review_bag(bag)
     return scenario.returncode or (0 if code == 0 else 1)
 
 
