@@ -3,7 +3,6 @@ import base64
 import json
 import os
 import re
-import shutil
 import subprocess
 import sys
 from collections import Counter

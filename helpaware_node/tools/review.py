@@ -11,7 +11,6 @@ import argparse
 import csv
 import json
 import sys
-from collections import Counter
 from pathlib import Path
 from typing import Optional
 

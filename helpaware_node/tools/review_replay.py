@@ -9,19 +9,12 @@ different asks had been made (each need is replayed on the recorded history).
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
 from typing import Optional
 
 from ..core.model import DecisionConfig, SiteModel, params_hash
 from ..core.policy import Decision, decide
 from . import review_wire as rw
 from .review_data import ReviewData
-
-
-@dataclass
-class Replayed:
-    request_id: str
-    decision: Decision
 
 
 def expected_costs(decision: Decision, ask_time_s: float) -> dict:
