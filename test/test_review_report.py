@@ -159,3 +159,27 @@ def test_not_a_bag_exits_with_the_file_named(tmp_path):
                            str(tmp_path / "absent"), "--out", str(tmp_path / "o")],
                           capture_output=True, text=True, timeout=60)
     assert proc.returncode == 2 and str(tmp_path / "absent") in proc.stderr
+
+
+@pytest.mark.parametrize("plugin", ["sqlite3", "mcap"])
+def test_a_bag_in_the_ros2_recorder_layout_reviews_the_same(sample, tmp_path, plugin):
+    # the sample bag copied message by message into what `ros2 bag record` writes: another
+    # storage, format version 8, namespaced topic names
+    from rosbags.rosbag2 import Writer
+    from rosbags.rosbag2.enums import StoragePlugin
+    bag, _, summary, _ = sample
+    copy = tmp_path / "recorded"
+    store = typestore()
+    with Reader(bag) as reader, Writer(copy, version=8,
+                                       storage_plugin=StoragePlugin[plugin.upper()]) as w:
+        conns = {}
+        for c in reader.connections:
+            name = c.topic if c.topic == "/diagnostics" else "/robot1" + c.topic
+            conns[c.id] = w.add_connection(name, c.msgtype, typestore=store)
+        for c, t, raw in reader.messages():
+            w.write(conns[c.id], t, raw)
+    again = review.build(str(copy), str(tmp_path / "out"))
+    for key in ("messages", "decisions", "asks", "outcomes", "help_needs", "calibration",
+                "asks_per_person", "limits_fired", "pending_asks", "people"):
+        assert again[key] == summary[key], key
+    assert again["storage"] == plugin and again["topics"]["decision"] == "/robot1/decision"

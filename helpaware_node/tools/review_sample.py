@@ -75,13 +75,16 @@ def write_sample_bag(path: str, needs: int = 40, people: int = 12, seed: int = 3
     counts = SampleCounts()
     asks_made = 0
     with BagWriter(path, custom_data={HASHED_MARK: "hmac-sha256"}) as bag:
+        def name(t: str) -> str:      # names as a node in the root namespace has them
+            return t if t.startswith("/") else "/" + t
+
         for t in topics:
-            bag.add_topic(t, MARKER_ARRAY_TYPE if t == "markers" else
+            bag.add_topic(name(t), MARKER_ARRAY_TYPE if t == "markers" else
                           DIAGNOSTIC_ARRAY_TYPE if t == "/diagnostics" else STRING_TYPE)
 
         def emit(topic: str, t_s: float, text: str) -> None:
             if topic in topics:
-                bag.write_string(topic, int(round(t_s * 1e9)), text)
+                bag.write_string(name(topic), int(round(t_s * 1e9)), text)
 
         now = start_s
         pad_per_need = extra_people_messages // max(needs, 1)
@@ -110,7 +113,7 @@ def write_sample_bag(path: str, needs: int = 40, people: int = 12, seed: int = 3
             for hk, *_ in obs:
                 records[hk] = note_candidate(records[hk], now)
             if "markers" in topics:
-                bag.write("markers", int(round(now * 1e9)) + 1, _markers_bytes())
+                bag.write("/markers", int(round(now * 1e9)) + 1, _markers_bytes())
             if "/diagnostics" in topics:
                 bag.write("/diagnostics", int(round(now * 1e9)) + 2, _diagnostics_bytes(now))
             if decision.action == "ask":
