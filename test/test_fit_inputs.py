@@ -87,6 +87,13 @@ def test_degenerate_data_messages():
     one = simulate(truth, 1, 40, seed=4)
     fit1 = fit_site(one, standard_errors=False)
     assert any("single person" in m for m in fit1.messages)
+    # every group helps exactly 5 times in 10 (less spread than binomial): the Beta
+    # concentration runs to its bound, with a warning that the node would barely learn
+    from helpaware_node.fit.data import from_group_counts
+    flat = fit_site(from_group_counts([5] * 20, [10] * 20), standard_errors=False)
+    assert flat.params.prior_a + flat.params.prior_b > 1000
+    assert flat.params.prior_a / (flat.params.prior_a + flat.params.prior_b) == pytest.approx(0.5, abs=1e-3)
+    assert any("no detectable spread" in m for m in flat.messages)
     # no no-response rows: notice probability kept at the given value, with a message
     d2 = from_arrays([f"p{i % 5}" for i in range(30)], np.linspace(0, 1, 30), zeros[:1].repeat(30),
                      [HELPED, DECLINED, DECLINED] * 10)

@@ -206,6 +206,13 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
     for i, (name, f) in enumerate(zip(NAMES, free)):
         if f and (theta[i] <= bounds_all[i][0] + 1e-8 or theta[i] >= bounds_all[i][1] - 1e-8):
             at_bound.append(name)
+        elif f and i >= 4 and abs(theta[i]) > 14.0:   # a probability within 1e-6 of 0 or 1
+            at_bound.append(name)
+    strength = params.prior_a + params.prior_b
+    if strength > 1000.0:
+        notes.append(f"willingness shows no detectable spread across people (prior_a + prior_b "
+                     f"= {strength:.3g}): with this prior the node would barely learn per person; "
+                     "collect more asks per person before using it")
     fit = SiteFit(params, ll, free_names, reasons, iterations=int(res.nit),
                   converged=bool(res.success), messages=notes, at_bound=tuple(at_bound),
                   n_people=data.n_people, n_outcomes=data.n_outcomes)

@@ -137,6 +137,7 @@ def run(args: argparse.Namespace) -> int:
             f" ({'fixed: ' + fit.fixed[name]})" if name in fit.fixed else " (at bound)" \
             if name in fit.at_bound else ""
         comments.append(f"{name} = {getattr(fit.params, name):.4g}{extra}")
+    comments += [f"Note: {n}" for n in fit.messages]
     if test is not None:
         comments.append(f"Context terms: LR {test.statistic:.2f} on {test.df} df, "
                         f"p = {test.p_value:.3g}.")
