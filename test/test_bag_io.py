@@ -92,3 +92,15 @@ def test_missing_path_is_a_clear_error(tmp_path):
 def test_short_string_payload_refused():
     with pytest.raises(ValueError):
         deserialize_string(b"\x00\x01\x00\x00" + struct.pack("<I", 50) + b"ab")
+
+
+def test_record_scan_of_an_intact_file_agrees_with_rosbags(tmp_path):
+    # two independent readers of the same MCAP: rosbags' indexed reader and our record scan
+    from helpaware_node.tools.bagio import McapSalvage
+    mcap = _big_bag(tmp_path / "bag", n=30000)
+    scan = McapSalvage(mcap)
+    scanned = [(t, m, ts, bytes(d)) for t, m, ts, d in scan.records()]
+    assert scan.stop_reason == ""
+    with Reader(tmp_path / "bag") as reader:
+        indexed = [(c.topic, c.msgtype, ts, bytes(d)) for c, ts, d in reader.messages()]
+    assert scanned == indexed and len(indexed) == 30000
