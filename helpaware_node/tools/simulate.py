@@ -56,8 +56,10 @@ def run(args) -> int:
     print(summary_table(summary))
     head = headline(summary)
     if head:
-        print(f"ours vs best baseline ({head['best_baseline']}): reward x"
-              f"{head['reward_ratio_vs_best']:.2f}, asks {head['ask_reduction_vs_best']:.2f}x fewer"
+        ratio = lambda v: "n/a" if math.isinf(v) else f"{v:.2f}x"  # noqa: E731
+        print(f"ours vs best baseline ({head['best_baseline']}): reward "
+              f"{ratio(head['reward_ratio_vs_best'])}, its asks / ours "
+              f"{ratio(head['ask_reduction_vs_best'])}"
               + (f"; {100 * head['share_of_oracle']:.1f} % of the oracle"
                  if "share_of_oracle" in head else ""))
     os.makedirs(args.out, exist_ok=True)
