@@ -19,7 +19,7 @@ def write_plots(runs_by_policy: dict, out_dir: str, title: str) -> list[str]:
         curves = [np.interp(grid_h, r.times_s / 3600.0, np.cumsum(r.reward_s), left=0.0)
                   if r.times_s.size else np.zeros_like(grid_h) for r in runs]
         ax.plot(grid_h, np.mean(curves, axis=0) / 3600.0, label=policy)
-    ax.set_xlabel("simulated time (h, days laid end to end)")
+    ax.set_xlabel("simulated clock time (h; one shift per day, flat between shifts)")
     ax.set_ylabel("cumulative robot-hours saved (mean over seeds)")
     ax.set_title(f"{title}: cumulative reward")
     ax.legend(fontsize=8)
