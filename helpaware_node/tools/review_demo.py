@@ -52,10 +52,13 @@ def stop_recorder(proc: Optional[subprocess.Popen]) -> Optional[str]:
         return None
     proc.send_signal(signal.SIGINT)
     try:
-        out, _ = proc.communicate(timeout=30)
+        out, err = proc.communicate(timeout=30)
     except subprocess.TimeoutExpired:
         proc.kill()
-        out, _ = proc.communicate()
+        out, err = proc.communicate()
+    for line in err.splitlines():     # what the recorder could not record, if anything
+        if "not recorded" in line or "warning" in line.lower():
+            print(f"recorder: {line.strip()}")
     bag = os.path.abspath(os.path.join(OUT_DIR, BAG_NAME))
     if proc.returncode != 0 or not os.path.exists(os.path.join(bag, "metadata.yaml")):
         print(f"demo: recorder exited with code {proc.returncode}; no bag")
