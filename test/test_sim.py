@@ -45,7 +45,6 @@ def scenario(**changes):
 
 
 def test_same_seed_same_results_to_the_last_digit():
-    sc = load("scenarios/hospital_night.yaml")
     sc = parse({**_yaml("scenarios/hospital_night.yaml"), "shift": {"days": 2, "hours_per_day": 6.0}})
     one = compare(sc, seeds=2, progress=False)
     two = compare(sc, seeds=2, progress=False)
