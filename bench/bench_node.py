@@ -64,7 +64,8 @@ def main() -> int:
 
     q = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
     node_proc = launch_config.start(namespace="/bench", stderr=subprocess.DEVNULL,
-                                    overrides={"max_asks_per_hour": 0})  # decide, never ask
+                                    overrides={"max_asks_per_hour": 0,   # decide, never ask
+                                               "store_path": "memory"})
     relay_proc = subprocess.Popen([sys.executable, "-c", RELAY_CODE])
     rclpy.init()
     me = rclpy.create_node("bench_driver")

@@ -21,3 +21,10 @@ DATA_DIR = os.path.join(os.path.dirname(__file__), "data")
 @pytest.fixture
 def data_dir():
     return DATA_DIR
+
+
+@pytest.fixture(autouse=True)
+def _own_ros_home(tmp_path_factory, monkeypatch):
+    """Each test gets its own ROS home, so a node's default store file never crosses tests
+    and nothing is written under the real ~/.ros."""
+    monkeypatch.setenv("ROS_HOME", str(tmp_path_factory.mktemp("ros_home")))

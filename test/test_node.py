@@ -241,3 +241,19 @@ def test_diagnostics_report_store_state(ctx, tmp_path):
         assert rig.spin_until(has_event, 30)
     finally:
         rig.close()
+
+
+def test_default_store_is_a_file_under_the_ros_home(ctx, tmp_path, monkeypatch):
+    # DESIGN.md section 7: SQLite by default, path under the ROS home; 'memory' opts out.
+    from helpaware_node.ros.node import resolve_store_path
+    monkeypatch.setenv("ROS_HOME", str(tmp_path))
+    expected = tmp_path / "helpaware" / "beliefs.sqlite3"
+    assert resolve_store_path("") == str(expected)
+    assert resolve_store_path("memory") == ""
+    assert resolve_store_path("/x/y.sqlite3") == "/x/y.sqlite3"
+    rig = Rig(ctx, namespace="/defaultstore", robot_id="r3")
+    try:
+        assert type(rig.node.store).__name__ == "SqliteStore"
+        assert expected.exists()
+    finally:
+        rig.close()

@@ -27,7 +27,7 @@ from .. import wire
 from ..core import (HelpNeed, PersonRecord, Result, candidate_from_record, decide, note_ask,
                     note_candidate)
 from ..core.model import CoreInputError
-from ..store import StoredEvent, open_store
+from ..store import StoredEvent, default_store_path, open_store
 from . import diagnostics as diag
 from . import markers as mk
 from .fleet import FleetLink, PrivacyRequests
@@ -42,6 +42,9 @@ HOUSEKEEPING_PERIOD_S = 0.5
 
 class StartupError(RuntimeError):
     """The node cannot start (refused parameters, store unavailable)."""
+
+
+MEMORY_STORE = "memory"   # store_path value for a store that lives only in this process
 
 
 @dataclass
@@ -110,13 +113,18 @@ class HelpAwareNode(LifecycleNode):
             if self._entities:
                 self.trigger_activate()
 
+    @property
+    def _store_file(self) -> str:
+        """store_path resolved: empty means the default file under the ROS home."""
+        return resolve_store_path(self.params.settings.store_path)
+
     # ---------------------------------------------------------------- lifecycle
     def on_configure(self, state: LifecycleState) -> TransitionCallbackReturn:
         s = self.params.settings
         try:
-            self.store = open_store(s.store_path, s.robot_id, model=self.params.model)
+            self.store = open_store(self._store_file, s.robot_id, model=self.params.model)
         except Exception as exc:  # an unreadable store must not start a node that forgets
-            self.get_logger().error(f"store {s.store_path or '(memory)'} could not open: {exc}")
+            self.get_logger().error(f"store {self._store_file or '(memory)'} could not open: {exc}")
             return TransitionCallbackReturn.FAILURE
         self._beliefs_model = self.params.model
         health = getattr(self.store, "health", None)
@@ -154,7 +162,7 @@ class HelpAwareNode(LifecycleNode):
         self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
             self._forget_in_memory(key) if action == "forget" else None))
         self._entities += self.fleet.entities + [self.privacy._sub]
-        self.get_logger().info(f"configured: store {s.store_path or '(memory)'}, "
+        self.get_logger().info(f"configured: store {self._store_file or '(memory)'}, "
                                f"params {self.params_hash()}")
         return TransitionCallbackReturn.SUCCESS
 
@@ -508,6 +516,13 @@ class HelpAwareNode(LifecycleNode):
         self._marked = in_view
         if markers:
             self.marker_pub.publish(mk.marker_array(markers))
+
+
+def resolve_store_path(store_path: str) -> str:
+    """'' -> <ROS_HOME or ~/.ros>/helpaware/beliefs.sqlite3; 'memory' -> '' (in this process)."""
+    if store_path == MEMORY_STORE:
+        return ""
+    return store_path or str(default_store_path())
 
 
 def main(args=None) -> int:

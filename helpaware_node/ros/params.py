@@ -93,7 +93,8 @@ CONFIG_PARAMS = [
 NODE_PARAMS = [
     ParamSpec("robot_id", "", "robot id in event ids (empty: HELPAWARE_ROBOT_ID or host name)",
               "text", read_only=True),
-    ParamSpec("store_path", "", "belief store file (empty: in memory, lost at exit)", "path",
+    ParamSpec("store_path", "", "belief store file (empty: ROS_HOME or ~/.ros, then helpaware/beliefs.sqlite3; "
+              "'memory': kept in this process only, lost at exit)", "path",
               read_only=True),
     ParamSpec("navigation_status_topic", "",
               "action_msgs/GoalStatusArray topic; an aborted goal opens a navigation_failure need "
