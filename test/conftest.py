@@ -28,3 +28,13 @@ def _own_ros_home(tmp_path_factory, monkeypatch):
     """Each test gets its own ROS home, so a node's default store file never crosses tests
     and nothing is written under the real ~/.ros."""
     monkeypatch.setenv("ROS_HOME", str(tmp_path_factory.mktemp("ros_home")))
+
+
+@pytest.fixture(scope="module")
+def ctx():
+    """An rclpy context of its own for each module of node tests (imported only when used)."""
+    import rclpy
+    context = rclpy.Context()
+    rclpy.init(context=context)
+    yield context
+    rclpy.shutdown(context=context)

@@ -3,7 +3,6 @@ import importlib.util
 import os
 
 import pytest
-import rclpy
 from std_msgs.msg import String
 
 from helpaware_node import wire
@@ -19,14 +18,6 @@ def _load(name):
     mod = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(mod)
     return mod
-
-
-@pytest.fixture(scope="module")
-def ctx():
-    context = rclpy.Context()
-    rclpy.init(context=context)
-    yield context
-    rclpy.shutdown(context=context)
 
 
 def test_behaviour_layer_and_ask_delivery_close_the_loop(ctx):

@@ -11,14 +11,6 @@ from helpaware_node.core.belief import Belief
 from node_harness import Rig
 
 
-@pytest.fixture(scope="module")
-def ctx():
-    context = rclpy.Context()
-    rclpy.init(context=context)
-    yield context
-    rclpy.shutdown(context=context)
-
-
 @pytest.fixture
 def rig(ctx, request):
     params = getattr(request, "param", {})

@@ -6,7 +6,6 @@ import json
 import random
 
 import pytest
-import rclpy
 from std_msgs.msg import String
 
 from helpaware_node import wire
@@ -82,14 +81,6 @@ def hostile_corpus(topic, now, n, seed):
         bad.append(text)
     assert len(bad) >= n, (topic, len(bad))
     return bad[: max(n, len(bad))]
-
-
-@pytest.fixture(scope="module")
-def ctx():
-    context = rclpy.Context()
-    rclpy.init(context=context)
-    yield context
-    rclpy.shutdown(context=context)
 
 
 def _snapshot(node):

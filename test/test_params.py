@@ -17,14 +17,6 @@ ROS_OWN = {"use_sim_time", "start_type_description_service"}  # declared by rclp
 ROOT = os.path.join(os.path.dirname(__file__), "..")
 
 
-@pytest.fixture(scope="module")
-def ctx():
-    context = rclpy.Context()
-    rclpy.init(context=context)
-    yield context
-    rclpy.shutdown(context=context)
-
-
 @pytest.fixture
 def node(ctx):
     n = HelpAwareNode(context=ctx)

@@ -4,7 +4,6 @@ import json
 import os
 
 import pytest
-import rclpy
 from diagnostic_msgs.msg import DiagnosticStatus
 from std_msgs.msg import String
 
@@ -12,14 +11,6 @@ from helpaware_node.core.belief import Belief
 from helpaware_node.store.keys import load_site_key
 
 from node_harness import Rig
-
-
-@pytest.fixture(scope="module")
-def ctx():
-    context = rclpy.Context()
-    rclpy.init(context=context)
-    yield context
-    rclpy.shutdown(context=context)
 
 
 def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_path):
