@@ -57,6 +57,8 @@ def compare(sc: Scenario, policies: Sequence[str] = POLICY_NAMES, seeds: int = 2
 
 
 def _ci(cell: dict, digits: int = 0) -> str:
+    if cell["mean"] != cell["mean"]:   # NaN: undefined for this policy (asks per help, no help)
+        return "-"
     return f"{cell['mean']:.{digits}f} ± {cell['ci95']:.{digits}f}"
 
 
