@@ -30,6 +30,7 @@ class Ledger:
     asks_of_opted_out: int = 0
     decisions: int = 0
     exclusions: dict[str, int] = field(default_factory=dict)
+    ask_steps: list[tuple[int, str]] = field(default_factory=list)   # (decision index, person)
 
 
 def run_sequence(rng: np.random.Generator, n_decisions: int, times_s, model: SiteModel,
@@ -73,6 +74,7 @@ def run_sequence(rng: np.random.Generator, n_decisions: int, times_s, model: Sit
             ledger.asks_of_opted_out += 1
         ledger.person_asks_s.setdefault(pid, []).append(now_s)
         ledger.robot_asks_s.append(now_s)
+        ledger.ask_steps.append((k, pid))
         robot_memory.append(now_s)
         # pruned the way the node prunes it: asks 'in the future' after a backward jump stay
         robot_memory = [t for t in robot_memory if now_s - t < 3600.0]
@@ -83,6 +85,15 @@ def run_sequence(rng: np.random.Generator, n_decisions: int, times_s, model: Sit
                              ask_load=load, event_id=f"robot1-{k}")
         records[pid] = note_outcome(records[pid], event, model)
     return ledger
+
+
+def retimed(ledger: Ledger, times_s) -> Ledger:
+    """The same asks placed at other times (e.g. real elapsed time instead of a jumpy clock)."""
+    out = Ledger(asks_of_opted_out=ledger.asks_of_opted_out, decisions=ledger.decisions)
+    for k, pid in ledger.ask_steps:
+        out.person_asks_s.setdefault(pid, []).append(float(times_s[k]))
+        out.robot_asks_s.append(float(times_s[k]))
+    return out
 
 
 def limit_breaches(ledger: Ledger, config: DecisionConfig) -> dict[str, int]:
