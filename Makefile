@@ -12,7 +12,7 @@ export ROS_DOMAIN_ID := $(shell python3 -c "import random; print(random.randint(
 unexport ROS_LOCALHOST_ONLY
 export PYTHONDONTWRITEBYTECODE := 1
 
-.PHONY: demo test bench venv clean
+.PHONY: demo test bench soak venv clean
 
 venv: $(STAMP)
 
@@ -34,6 +34,10 @@ test: $(STAMP)
 bench: $(STAMP)
 	@# every bench/bench_*.py, each with a time limit; failures recorded in bench/RESULTS.md
 	$(PY) bench/run_all.py
+
+soak: $(STAMP)
+	@# the reliability suite at soak length (100 000 decisions etc.); not part of make test
+	HELPAWARE_SOAK=1 $(PY) -m pytest -q test/reliability
 
 clean:
 	rm -rf $(VENV) build *.egg-info .pytest_cache .hypothesis out
