@@ -1,12 +1,10 @@
 """Limits under stress: many seeded random decisions through core.policy.decide.
 
 20 000 decisions in `make test`, 100 000 under `make soak` (HELPAWARE_SOAK=1). Checked against
-an independent ledger of every ask (exact counting, see reliability_sequence.limit_breaches): no opted-out
-person asked, no re-ask inside min_reask_interval_s, no per-person daily cap or robot hourly cap
+an independent ledger of every ask (exact counting, reliability_sequence.limit_breaches): no
+opted-out person asked, no re-ask inside min_reask_interval_s, no per-person daily cap or robot hourly cap
 exceeded.
 """
-import dataclasses
-
 import numpy as np
 import pytest
 
@@ -16,8 +14,8 @@ from reliability_sequence import limit_breaches, run_sequence, scaled
 
 TOTAL = scaled(20_000, 100_000)
 
-# Each configuration makes a different limit the binding one; cheap asks so the policy wants
-# to ask often and the limits, not the score, decide.
+# Each configuration makes a different limit the binding one (needs often enough that the
+# limits, not the score, stop most asks); the binding one is checked to exclude > 100 times.
 CONFIGS = [
     ("defaults", DecisionConfig(), 60.0, "person_daily_cap"),
     ("hourly_cap_binds", DecisionConfig(max_asks_per_hour=3, max_asks_per_person_per_day=50,
@@ -31,7 +29,7 @@ CONFIGS = [
 
 @pytest.mark.parametrize("name,config,mean_gap_s,binding", CONFIGS, ids=[c[0] for c in CONFIGS])
 def test_no_limit_breached(name, config, mean_gap_s, binding):
-    rng = np.random.default_rng(len(name) * 7919)
+    rng = np.random.default_rng(len(name) * 7919)   # one fixed seed per configuration
     n = TOTAL // len(CONFIGS)
     times = np.cumsum(rng.exponential(mean_gap_s, size=n))
     model = SiteModel(evidence_half_life_s=float(rng.choice([0.0, 86400.0])))
