@@ -1,6 +1,8 @@
 """Test configuration: keep every rclpy process of the run on loopback and its own domain."""
+import fcntl
 import os
 import random
+import tempfile
 
 import pytest
 from hypothesis import HealthCheck, settings
@@ -8,7 +10,31 @@ from hypothesis import HealthCheck, settings
 # Set here, not inherited: DDS stays on loopback, and this run does not hear parallel runs.
 os.environ["ROS_AUTOMATIC_DISCOVERY_RANGE"] = "LOCALHOST"
 os.environ.pop("ROS_LOCALHOST_ONLY", None)
-os.environ["ROS_DOMAIN_ID"] = str(random.SystemRandom().randint(1, 101))  # Linux-safe range
+
+
+def _claim_domain_id() -> int:
+    """A domain id in the Linux-safe range 1-101 that no other test run on this machine holds.
+
+    Each run keeps an exclusive lock on a file named after its id until it exits, so
+    concurrent runs never share a domain; random order keeps runs from queueing on one id.
+    """
+    ids = list(range(1, 102))
+    random.SystemRandom().shuffle(ids)
+    for domain_id in ids:
+        path = os.path.join(tempfile.gettempdir(), f"helpaware-ros-domain-{domain_id}.lock")
+        handle = open(path, "a")
+        try:
+            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            handle.close()
+            continue
+        _DOMAIN_LOCKS.append(handle)   # held (open) for the life of this run
+        return domain_id
+    return ids[0]   # every id taken: share one rather than refuse to test
+
+
+_DOMAIN_LOCKS: list = []
+os.environ["ROS_DOMAIN_ID"] = str(_claim_domain_id())
 
 # A slow, noisy 2-core machine: no per-example deadlines.
 settings.register_profile("ci", deadline=None, max_examples=200,
