@@ -18,6 +18,7 @@ from dataclasses import dataclass, replace
 from typing import Optional
 
 import rclpy
+from rclpy._rclpy_pybind11 import RCLError
 from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
 from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
@@ -526,7 +527,11 @@ def resolve_store_path(store_path: str) -> str:
 
 
 def main(args=None) -> int:
-    rclpy.init(args=args)
+    try:
+        rclpy.init(args=args)
+    except RCLError as exc:   # e.g. a parameter file rcl cannot parse: say so, no traceback
+        print(f"{NODE_NAME}: cannot start: {str(exc).strip()}", file=sys.stderr)
+        return 2
     node = None
     code = 0
     try:

@@ -45,12 +45,11 @@ def test_corrupt_yaml_exits_non_zero_naming_the_file(tmp_path):
     assert str(path) in err
 
 
-@pytest.mark.xfail(strict=True, reason="found by this suite: rcl's parse error reaches the user "
-                   "as a Python traceback from rclpy.init (ros/node.py main); see RELIABILITY.md")
 def test_corrupt_yaml_gives_a_message_not_a_traceback(tmp_path):
     path = _params(tmp_path, "    k_busy: [1.0\n   broken: : :\n")
     rc, err = _run_node(path)
-    assert rc == 2 and "Traceback" not in err
+    assert rc == 2 and "Traceback" not in err, err[-2000:]
+    assert "cannot start" in err and str(path) in err     # the file is named
 
 
 @pytest.mark.parametrize("line, name", [
