@@ -1,7 +1,6 @@
 """Hostile input: >= 1000 malformed documents per input topic; the node stays up, counts each
 rejection, keeps its beliefs, and still decides afterwards. Most go straight to the handlers
 (fast); a smaller set goes through the real topics and is read back from /diagnostics."""
-import copy
 import json
 import random
 
@@ -10,6 +9,7 @@ from std_msgs.msg import String
 
 from helpaware_node import wire
 
+from document_paths import field_paths, replaced
 from node_harness import Rig
 
 N_PER_TOPIC = 1000
@@ -23,27 +23,6 @@ def _valid(topic, now):
     if topic == "task_status":
         return json.loads(wire.task_status_document("fz", "open", "door", 0.3, stamp_s=now))
     return json.loads(wire.outcome_document("nope-unknown", "nurse-a", "helped", stamp_s=now))
-
-
-def _leaf_paths(doc, prefix=()):
-    yield prefix
-    if isinstance(doc, dict):
-        for k, v in doc.items():
-            yield from _leaf_paths(v, prefix + (k,))
-    elif isinstance(doc, list):
-        for i, v in enumerate(doc):
-            yield from _leaf_paths(v, prefix + (i,))
-
-
-def _with(doc, path, value):
-    d = copy.deepcopy(doc)
-    if not path:
-        return value
-    cur = d
-    for p in path[:-1]:
-        cur = cur[p]
-    cur[path[-1]] = value
-    return d
 
 
 HOSTILE_VALUES = [None, "", " ", "x" * 5000, -1, -1e300, 1e300, 2, 10**30, True, False, [],
@@ -63,9 +42,9 @@ def hostile_corpus(topic, now, n, seed):
     if topic == "people":
         out.append(json.dumps({**base, "people": base["people"] * 501}))
         out.append(json.dumps({**base, "people": [{"id": "", "distance_m": 1.0}]}))
-    paths = list(_leaf_paths(base))
+    paths = list(field_paths(base))
     while len(out) < n * 2:
-        doc = _with(base, rng.choice(paths), rng.choice(HOSTILE_VALUES))
+        doc = replaced(base, rng.choice(paths), rng.choice(HOSTILE_VALUES))
         if rng.random() < 0.3 and isinstance(doc, dict):   # a second hit, or an unknown field
             doc = {**doc, rng.choice(list(doc) + ["unknown_field"]): rng.choice(HOSTILE_VALUES)}
         text = json.dumps(doc) if rng.random() < 0.9 else json.dumps(doc)[: rng.randint(0, 80)]

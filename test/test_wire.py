@@ -17,6 +17,8 @@ from helpaware_node.core import DecisionConfig, HelpNeed, SiteModel, decide
 from helpaware_node.core.belief import Belief
 from helpaware_node.core.policy import Candidate
 
+from document_paths import field_paths, replaced
+
 SCHEMA_DIR = os.path.join(os.path.dirname(__file__), "..", "docs", "schemas")
 
 
@@ -112,27 +114,6 @@ def valid_documents():
     }
 
 
-def _paths(value, prefix=()):
-    yield prefix
-    if isinstance(value, dict):
-        for k, v in value.items():
-            yield from _paths(v, prefix + (k,))
-    elif isinstance(value, list):
-        for i, v in enumerate(value[:2]):
-            yield from _paths(v, prefix + (i,))
-
-
-def _set(doc, path, new):
-    d = copy.deepcopy(doc)
-    if not path:
-        return new
-    cur = d
-    for p in path[:-1]:
-        cur = cur[p]
-    cur[path[-1]] = new
-    return d
-
-
 def _drop(doc, path):
     d = copy.deepcopy(doc)
     cur = d
@@ -147,9 +128,9 @@ REPLACEMENTS = [None, "", "x", "x" * 300, -1, 0, 0.5, 1, 2, 1e16, -1e16, float("
 
 
 def mutants(doc):
-    for path in _paths(doc):
+    for path in field_paths(doc, items_per_list=2):
         for r in REPLACEMENTS:
-            yield _set(doc, path, r)
+            yield replaced(doc, path, r)
         if path and isinstance(path[-1], str):
             yield _drop(doc, path)
     yield {**doc, "unexpected": 1}
