@@ -247,6 +247,19 @@ class BagSource:
             for m in self._salvage(topics):
                 yield m.topic, m.time_ns, m.data
             return
+        for conn, t_ns, data in self._indexed(topics):
+            yield conn.topic, t_ns, data
+
+    def messages(self, topics: Optional[set[str]] = None) -> Iterator[BagMessage]:
+        if self._reader is None:
+            yield from self._salvage(topics)
+            return
+        for conn, t_ns, data in self._indexed(topics):
+            yield BagMessage(conn.topic, conn.msgtype, t_ns, data)
+
+    def _indexed(self, topics: Optional[set[str]]):
+        """Messages of an intact bag through its index; a failure part-way is kept in
+        `self.error` with how far the reading got, instead of ending the caller."""
         conns = [c for c in self._reader.connections if topics is None or c.topic in topics]
         if not conns:
             return
@@ -256,23 +269,7 @@ class BagSource:
             for conn, t_ns, data in self._reader.messages(connections=conns):
                 count += 1
                 last = t_ns
-                yield conn.topic, t_ns, data
-        except Exception as exc:  # ReaderError, sqlite3.DatabaseError, zstd errors, ...
-            self.error = BagReadError(str(self.path), f"reading stopped: "
-                                      f"{type(exc).__name__}: {exc}", count, last_time_ns=last)
-
-    def messages(self, topics: Optional[set[str]] = None) -> Iterator[BagMessage]:
-        if self._reader is None:
-            yield from self._salvage(topics)
-            return
-        conns = [c for c in self._reader.connections if topics is None or c.topic in topics]
-        count = 0
-        last = None
-        try:
-            for conn, t_ns, data in self._reader.messages(connections=conns):
-                count += 1
-                last = t_ns
-                yield BagMessage(conn.topic, conn.msgtype, t_ns, data)
+                yield conn, t_ns, data
         except (ReaderError, OSError, ValueError, struct.error, IndexError, EOFError) as exc:
             self.error = BagReadError(str(self.path), f"reading stopped: {exc}", count,
                                       last_time_ns=last)
