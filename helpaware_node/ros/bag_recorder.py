@@ -14,7 +14,8 @@ import time
 from typing import Callable, Optional
 
 import rclpy
-from rclpy.executors import ExternalShutdownException
+from rclpy._rclpy_pybind11 import RCLError
+from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.node import Node
 from rclpy.parameter import Parameter
 from rclpy.qos import DurabilityPolicy, QoSProfile, ReliabilityPolicy
@@ -138,11 +139,14 @@ def record(writer: BagWriter, topics: dict[str, Optional[str]],
     start = time.monotonic()
     tty = hasattr(out, "isatty") and out.isatty()
     try:
+        # one executor for the whole recording, not one per spin_once
+        executor = SingleThreadedExecutor()
         node = BagRecorder(writer, topics, transforms, namespace, use_sim_time)
+        executor.add_node(node)
         last_print = 0.0
         last_flush = start
         while rclpy.ok():
-            rclpy.spin_once(node, timeout_sec=0.1)
+            executor.spin_once(timeout_sec=0.1)
             now = time.monotonic()
             if duration_s is not None and now - start >= duration_s:
                 break
@@ -156,6 +160,10 @@ def record(writer: BagWriter, topics: dict[str, Optional[str]],
                 last_print = now
     except (KeyboardInterrupt, ExternalShutdownException):
         pass
+    except RCLError:
+        if rclpy.ok():
+            raise
+        # SIGTERM/SIGINT shut the context down while the executor was waiting: a clean stop
     finally:
         writer.close()
         line = progress_line(writer.counts, time.monotonic() - start)
