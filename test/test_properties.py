@@ -10,6 +10,7 @@ from helpaware_node.core import (Belief, Candidate, DecisionConfig, HelpNeed, Ou
                                  Result, SiteModel, decide, evaluate, fold_events,
                                  information_value)
 from helpaware_node.core.belief import declined_moments, update_declined, update_helped
+from helpaware_node.core.person import keep_recent_asks
 from helpaware_node.core.policy import Exclusion
 
 ab = st.floats(min_value=0.05, max_value=500.0, allow_nan=False)
@@ -109,3 +110,20 @@ def test_limits_are_never_traded_for_value(people, cost, cap, interval):
     for cand_, excl in zip(people, ev.exclusions):
         if cand_.opted_out:
             assert excl is Exclusion.OPTED_OUT
+
+
+@given(st.lists(st.floats(-1e7, 1e7), max_size=40), st.floats(-1e7, 1e7),
+       st.floats(1.0, 1e6), st.integers(0, 50))
+def test_kept_asks_hold_the_recent_ones_and_the_newest_cap(times, now, horizon, keep_last):
+    """DESIGN.md limits under clock jumps: pruning keeps every ask inside the horizon and the
+    newest `keep_last` whatever their time, in order, and drops only asks past the horizon."""
+    kept = list(keep_recent_asks(times, now, horizon, keep_last))
+    it = iter(times)
+    assert all(any(t == u for u in it) for t in kept)          # an order-keeping subsequence
+    tail = min(keep_last, len(times))
+    assert kept[len(kept) - tail:] == times[len(times) - tail:]
+    dropped = list(times)
+    for t in kept:
+        dropped.remove(t)
+    assert all(now - t >= horizon for t in dropped)
+    assert len(kept) == len(times) - len(dropped)

@@ -4,7 +4,7 @@ from .belief import (Belief, declined_ab, declined_moments, forget, predictive_h
 from .context import ask_load, context_factor
 from .model import CoreInputError, DecisionConfig, SiteModel, params_hash
 from .person import (OutcomeEvent, PersonRecord, Result, apply_event, belief_at, fold_events,
-                     note_ask, note_candidate, note_outcome)
+                     keep_recent_asks, note_ask, note_candidate, note_outcome)
 from .policy import (Candidate, Decision, Evaluation, Exclusion, HelpNeed, candidate_from_record,
                      choose_lookahead, conclude, decide, evaluate, information_value)
 

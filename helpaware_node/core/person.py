@@ -110,8 +110,23 @@ def note_candidate(record: PersonRecord, now_s: float) -> PersonRecord:
     return replace(record, candidate_count=record.candidate_count + 1, first_seen_s=first)
 
 
+def keep_recent_asks(ask_times_s, now_s: float, horizon_s: float, keep_last: int) -> tuple:
+    """The asks inside the horizon, and always the newest `keep_last` of them in any case.
+
+    Pruning by time alone lets one decision at a clock far ahead (a bad /clock, a wrong system
+    time) drop every real ask; when the clock came back the caps would count from zero. The
+    newest `keep_last` asks (the cap) are enough for a cap to bind again. Order is kept.
+    """
+    times = tuple(ask_times_s)
+    first_kept = len(times) - max(int(keep_last), 0)
+    return tuple(t for i, t in enumerate(times) if i >= first_kept or now_s - t < horizon_s)
+
+
 def note_ask(record: PersonRecord, now_s: float, model: SiteModel) -> PersonRecord:
-    """Remember an ask; asks older than a day and ten memory half-lives are dropped."""
+    """Remember an ask; asks older than a day and ten memory half-lives are dropped.
+
+    Pruning by time is safe here under clock excursions: the ask made at a clock far ahead
+    stays "in the future" once the clock is back, and excludes the person until then."""
     horizon = max(DAY_S, 10.0 * model.ask_memory_half_life_s)
     kept = tuple(t for t in record.ask_times_s if now_s - t < horizon)
     return replace(record, ask_times_s=kept + (now_s,))

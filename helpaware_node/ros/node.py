@@ -25,8 +25,8 @@ from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
 from std_msgs.msg import String
 
 from .. import wire
-from ..core import (HelpNeed, PersonRecord, Result, candidate_from_record, decide, note_ask,
-                    note_candidate)
+from ..core import (HelpNeed, PersonRecord, Result, candidate_from_record, decide,
+                    keep_recent_asks, note_ask, note_candidate)
 from ..core.model import CoreInputError
 from ..store import StoredEvent, default_store_path, open_store
 from . import diagnostics as diag
@@ -39,6 +39,9 @@ NAV_FAILURE_KIND = "navigation_failure"
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 IN_VIEW_EXTRA_S = 5.0          # people stay listed (and marked) a little past the staleness limit
 HOUSEKEEPING_PERIOD_S = 0.5
+HOUR_S = 3600.0
+MAX_UNSAVED_EVENTS = 10_000    # outcomes held in memory while the store refuses writes
+STORE_UNAVAILABLE = "store_unavailable"   # decision policy while outcomes cannot be saved
 
 
 class StartupError(RuntimeError):
@@ -94,6 +97,10 @@ class HelpAwareNode(LifecycleNode):
         self.counters = diag.InputCounters()
         self.store_ok = True
         self.store_error = ""
+        # outcomes the store refused (disk full, read-only): kept in order and retried; while
+        # any are held the node asks nobody, so it never acts on beliefs it could not save
+        self.unsaved: list[StoredEvent] = []
+        self.unsaved_dropped = 0
         self.seen: dict[str, Seen] = {}
         self.needs: dict[str, OpenNeed] = {}
         self.pending: dict[str, PendingAsk] = {}
@@ -323,8 +330,10 @@ class HelpAwareNode(LifecycleNode):
             event = StoredEvent(event_id=self.store.next_event_id(), person_key=ask.key,
                                 time_s=ask.asked_at_s, result=result, busyness=ask.busyness,
                                 ask_load=ask.ask_load, request_kind=ask.kind)
-            if self._ingest_event(event) and getattr(self, "fleet", None) is not None:
-                self.fleet.publish(event)      # shared only once durable here
+            if self.unsaved:       # keep the store's order: older refused outcomes go first
+                self._hold_unsaved(event)
+            elif self._ingest_event(event, hold_on_failure=True):
+                self._share(event)
         need = self.needs.get(ask.request_id)
         if need is not None:
             if result is Result.HELPED:
@@ -332,18 +341,20 @@ class HelpAwareNode(LifecycleNode):
             else:
                 self._decide(need)
 
-    def _ingest_event(self, event: StoredEvent) -> bool:
+    def _ingest_event(self, event: StoredEvent, hold_on_failure: bool = False) -> bool:
         """Store first, then learn: the belief is the store's fold of the person's events.
 
         Local outcomes and fleet events both come through here; a duplicate or opted-out
-        event is not stored and changes nothing.
+        event is not stored and changes nothing. When the store refuses the write (disk full,
+        read-only, I/O error) the belief is unchanged; a local outcome is held for retry
+        (`hold_on_failure`), a fleet event is left to its sender's re-offer at restart.
         """
         try:
             stored = self.store.append(event)
         except Exception as exc:
-            self.store_ok = False
-            self.store_error = str(exc)[:200]
-            self.get_logger().error(f"store append failed, belief unchanged: {exc}")
+            self._store_failed("append", exc)
+            if hold_on_failure:
+                self._hold_unsaved(event)
             return False
         self.store_ok = getattr(self.store, "health", None) is None or self.store.health.level == "OK"
         if not stored:
@@ -353,9 +364,54 @@ class HelpAwareNode(LifecycleNode):
         self.records[event.person_key] = replace(rec, belief=belief, belief_time_s=t)
         return True
 
+    def _store_failed(self, what: str, exc: Exception) -> None:
+        self.store_ok = False
+        self.store_error = f"{what}: {exc}"[:200]
+        self.get_logger().error(f"store {self._store_file or '(memory)'} refused {what} ({exc}); "
+                                f"belief unchanged, asking paused until it accepts writes again "
+                                f"(check free disk space and that the file is writable)",
+                                throttle_duration_sec=5.0)
+
+    def _hold_unsaved(self, event: StoredEvent) -> None:
+        if len(self.unsaved) >= MAX_UNSAVED_EVENTS:   # bounded memory: the oldest goes
+            self.unsaved.pop(0)
+            self.unsaved_dropped += 1
+        self.unsaved.append(event)
+
+    def _share(self, event: StoredEvent) -> None:
+        if getattr(self, "fleet", None) is not None:
+            self.fleet.publish(event)      # shared only once durable here
+
+    def _retry_unsaved(self) -> None:
+        """Write held outcomes in order; stop at the first refusal and keep the rest."""
+        while self.unsaved and self.store is not None:
+            event = self.unsaved[0]
+            try:
+                stored = self.store.append(event)
+            except Exception as exc:
+                self._store_failed("append (retry)", exc)
+                return
+            self.unsaved.pop(0)
+            if stored:      # False: opted out meanwhile, or already there
+                belief, t = self.store.belief(event.person_key, self.params.model)
+                rec = self.records.get(event.person_key) or PersonRecord.new(self.params.model)
+                self.records[event.person_key] = replace(rec, belief=belief, belief_time_s=t)
+                self._share(event)
+        if self.store is not None:
+            health = getattr(self.store, "health", None)
+            self.store_ok = health is None or health.level == "OK"
+            self.get_logger().info("store accepts writes again: held outcomes saved, "
+                                   "asking resumes")
+
+    @property
+    def asking_paused_for_store(self) -> bool:
+        return bool(self.unsaved)
+
     def _forget_in_memory(self, key: str) -> None:
-        """The store has forgotten a person: drop their record and any pending ask too."""
+        """The store has forgotten a person: drop their record, any pending ask and any
+        outcome still held for a store that refused it."""
         self.records.pop(key, None)
+        self.unsaved = [e for e in self.unsaved if e.person_key != key]
         self.pending = {r: a for r, a in self.pending.items() if a.key != key}
 
     def _on_navigation_status(self, msg) -> None:
@@ -395,21 +451,33 @@ class HelpAwareNode(LifecycleNode):
         model, config = self.params.model, self.params.config
         horizon = config.max_observation_age_s + IN_VIEW_EXTRA_S
         cands = []
+        store_failed = False
         for pid, s in self.seen.items():
             if now - s.observed_at_s > horizon:
                 continue
-            rec = self.record_for(s.key)
+            try:
+                rec = self.record_for(s.key)
+                opted_out = self.store.is_opted_out(s.key)
+            except Exception as exc:   # a store that cannot be read: nobody is asked
+                self._store_failed("read", exc)
+                store_failed, rec, opted_out = True, PersonRecord.new(model), True
             cands.append(candidate_from_record(
                 pid, rec, now, model, s.person.distance_m, s.observed_at_s,
                 busyness=s.person.busyness, activity=s.person.activity,
-                opted_out=self.store.is_opted_out(s.key)))
-        if state.asks >= self.params.settings.max_asks_per_need or not self.params.settings.asking_enabled:
-            why = "asking_disabled" if not self.params.settings.asking_enabled else "need_ask_limit"
+                opted_out=opted_out))
+        settings = self.params.settings
+        why = ("asking_disabled" if not settings.asking_enabled
+               else STORE_UNAVAILABLE if store_failed or self.asking_paused_for_store
+               else "need_ask_limit" if state.asks >= settings.max_asks_per_need else None)
+        if why is not None:
             decision = decide(state.need, cands, now, self.robot_ask_times_s, model, config,
                               chooser=_never, policy=why)
         else:
             decision = decide(state.need, cands, now, self.robot_ask_times_s, model, config)
-        robot_asks = [t for t in self.robot_ask_times_s if now - t < 3600.0]
+        # the newest max_asks_per_hour asks are always kept: a clock excursion far ahead must
+        # not empty the memory that the hourly cap counts on when the clock comes back
+        robot_asks = list(keep_recent_asks(self.robot_ask_times_s, now, HOUR_S,
+                                           config.max_asks_per_hour))
         # parameters are spliced into the text from a cache (fast_text), not built per decision
         doc = wire.decision_to_document(decision, robot_asks, None, None,
                                         getattr(self.store, "robot_id", ""), check=False)
@@ -437,6 +505,8 @@ class HelpAwareNode(LifecycleNode):
 
     # ---------------------------------------------------------------- timers
     def _housekeeping(self) -> None:
+        if self.unsaved:
+            self._retry_unsaved()
         now = self.now_s()
         if now <= 0.0:
             return
@@ -464,6 +534,9 @@ class HelpAwareNode(LifecycleNode):
         rates = self.counters.rates_since_tick(period)
         new_rej = self.counters.new_rejections_since_tick()
         level, message = diag.level_for(new_rej, self.counters.qos_incompatible, self.store_ok)
+        if self.unsaved:
+            message = (f"store refuses writes: asking paused, {len(self.unsaved)} outcome(s) "
+                       f"held in memory ({self.store_error})")[:250]
         values = {}
         for k in diag.INPUTS:
             values[f"{k}.rate_hz"] = f"{rates[k]:.2f}"
@@ -477,6 +550,9 @@ class HelpAwareNode(LifecycleNode):
             "decisions": self.decisions_published, "people_in_view": len(self.seen),
             "people_known": len(self.records), "store": store_name,
             "store_ok": self.store_ok, "store_last_error": self.store_error,
+            "store_unsaved_outcomes": len(self.unsaved),
+            "store_unsaved_dropped": self.unsaved_dropped,
+            "asking_paused_for_store": self.asking_paused_for_store,
             "qos_incompatible_events": self.counters.qos_incompatible,
             "parameters_rejected": self.params.rejected,
             "parameters_last_rejection": self.params.last_rejection,

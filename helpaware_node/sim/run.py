@@ -14,7 +14,8 @@ from typing import Callable, Optional
 import numpy as np
 
 from ..core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result, SiteModel,
-                    candidate_from_record, decide, note_ask, note_candidate, note_outcome)
+                    candidate_from_record, decide, keep_recent_asks, note_ask, note_candidate,
+                    note_outcome)
 from ..core.baselines import make_chooser
 from ..core.context import ask_load
 from ..core.person import DAY_S
@@ -68,7 +69,8 @@ class SimRobot:
                 rec = self.records[s.person_id] = PersonRecord.new(model)
             cands.append(candidate_from_record(s.person_id, rec, t, model, s.distance_m, t,
                                                s.busyness, s.activity))
-        self.robot_asks = [a for a in self.robot_asks if t - a < HOUR_S]
+        self.robot_asks = list(keep_recent_asks(self.robot_asks, t, HOUR_S,
+                                                self.config.max_asks_per_hour))
         help_need = HelpNeed(need.request_id, need.kind, t, continue_cost_s=need.continue_cost_s,
                              help_time_s=need.help_time_s)
         decision = decide(help_need, cands, t, self.robot_asks, model, self.config, chooser, policy)

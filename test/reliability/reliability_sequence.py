@@ -11,8 +11,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from helpaware_node.core.model import DecisionConfig, SiteModel
-from helpaware_node.core.person import OutcomeEvent, PersonRecord, Result, note_ask, \
-    note_candidate, note_outcome
+from helpaware_node.core.person import (OutcomeEvent, PersonRecord, Result, keep_recent_asks,
+                                        note_ask, note_candidate, note_outcome)
 from helpaware_node.core.policy import HelpNeed, candidate_from_record, decide
 
 SOAK = os.environ.get("HELPAWARE_SOAK", "") not in ("", "0")
@@ -75,9 +75,10 @@ def run_sequence(rng: np.random.Generator, n_decisions: int, times_s, model: Sit
         ledger.person_asks_s.setdefault(pid, []).append(now_s)
         ledger.robot_asks_s.append(now_s)
         ledger.ask_steps.append((k, pid))
-        robot_memory.append(now_s)
-        # pruned the way the node prunes it: asks 'in the future' after a backward jump stay
-        robot_memory = [t for t in robot_memory if now_s - t < 3600.0]
+        # pruned the way the node prunes it (core keep_recent_asks): asks 'in the future'
+        # after a backward jump stay, and so do the newest max_asks_per_hour
+        robot_memory = list(keep_recent_asks(robot_memory, now_s, 3600.0,
+                                             config.max_asks_per_hour)) + [now_s]
         load = float(decision.evaluation.ask_load[decision.person_index])
         records[pid] = note_ask(records[pid], now_s, model)
         event = OutcomeEvent(time_s=now_s, result=results[int(rng.integers(0, len(results)))],

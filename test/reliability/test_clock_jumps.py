@@ -11,14 +11,16 @@ What the core does (helpaware_node/core/policy.py `_limits`, `evaluate`):
 So a backward jump cannot open a burst of asks; a forward jump only ages asks as real time would.
 """
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
 
 from helpaware_node.core.belief import Belief
 from helpaware_node.core.model import DecisionConfig, SiteModel
-from helpaware_node.core.person import PersonRecord, note_ask
-from helpaware_node.core.policy import Candidate, Exclusion, HelpNeed, decide, evaluate
+from helpaware_node.core.person import PersonRecord, keep_recent_asks, note_ask
+from helpaware_node.core.policy import (Candidate, Exclusion, HelpNeed, candidate_from_record,
+                                        decide, evaluate)
 
 from reliability_sequence import limit_breaches, retimed, run_sequence, scaled
 
@@ -143,12 +145,11 @@ def test_paused_clock_gives_at_most_one_ask_per_person():
     assert len(ledger.robot_asks_s) == CONFIG.max_asks_per_hour
 
 
-@pytest.mark.xfail(strict=True, reason="known limitation (docs/RELIABILITY.md): a forward clock "
-                   "excursion prunes the robot's ask memory, so a jump back reopens the hour")
 def test_forward_excursion_then_back_keeps_the_hourly_cap():
-    """Reproducer: 12 asks in an hour, one need at a clock 5 days ahead prunes them (the node
-    keeps asks with now - t < 3600, ros/node.py), the clock comes back: 12 more asks allowed
-    inside the same real hour, 24 in all."""
+    """Regression (found by this suite): 12 asks in an hour, one need at a clock 5 days ahead,
+    the clock comes back. Pruning by `now - t < 3600` alone dropped the 12 real asks and
+    allowed 12 more inside the same real hour (24). The node and the simulator prune with
+    core `keep_recent_asks`, which always keeps the newest `max_asks_per_hour`."""
     config = DecisionConfig(max_asks_per_person_per_day=100, min_reask_interval_s=0.0)
     robot = []
     asks = 0
@@ -159,6 +160,23 @@ def test_forward_excursion_then_back_keeps_the_hourly_cap():
         d = decide(_need(now), [cand], now, robot, MODEL, config)
         if d.action == "ask":
             asks += 1
-            robot = [t for t in robot if now - t < 3600.0] + [now]
-    # 12 in the first hour, 1 in the excursion, at most 0 more in the first hour after return
-    assert asks <= 13
+            robot = list(keep_recent_asks(robot, now, 3600.0, config.max_asks_per_hour)) + [now]
+    # 12 in the first hour, 1 in the excursion, none more in the first hour after return
+    assert asks == 13
+
+
+def test_forward_excursion_then_back_keeps_the_daily_cap():
+    """One person's memory (`note_ask`, horizon a day) prunes by time alone, and that is safe:
+    3 asks, the third at a clock 5 days ahead, back: the excursion ask counts as recent until
+    the clock catches up, so the person is not asked again on the real day."""
+    config = DecisionConfig(max_asks_per_person_per_day=3, min_reask_interval_s=0.0,
+                            max_asks_per_hour=1000)
+    rec = replace(PersonRecord.new(MODEL), belief=Belief(8.0, 1.0))
+    asks = 0
+    for now in [1000.0, 1100.0, 1000.0 + 5 * 86_400.0, 1200.0, 1300.0, 1400.0]:
+        cand = candidate_from_record("p", rec, now, MODEL, 1.0, now, busyness=0.0)
+        d = decide(_need(now), [cand], now, [], MODEL, config)
+        if d.action == "ask":
+            asks += 1
+            rec = note_ask(rec, now, MODEL)
+    assert asks == 3   # two real, one in the excursion, none after the return
