@@ -1,0 +1,136 @@
+"""Clock faults through the running node: sim time (`use_sim_time`) paused, jumped forward
+and back on /clock. The core-level checks are in test_clock_jumps.py; these drive the node's
+own bookkeeping (robot ask memory, person records, pending asks) through the real topics.
+
+What must hold (DESIGN.md limits; docs/RELIABILITY.md): no burst of asks, no negative
+interval in any number the node publishes, every limit holds on the clock the node runs on.
+"""
+import math
+
+from rosgraph_msgs.msg import Clock
+from std_msgs.msg import String
+
+from helpaware_node import wire
+
+from node_harness import Rig
+
+CAP_PER_HOUR = 12
+PEOPLE = [{"id": f"porter-{i:02d}", "distance_m": 1.0 + 0.1 * i, "busyness": 0.0}
+          for i in range(16)]
+
+
+class SimClock:
+    def __init__(self, rig):
+        self.rig = rig
+        self.pub = rig.driver.create_publisher(Clock, "/clock", 10)
+
+    def set(self, t_s: float) -> None:
+        msg = Clock()
+        msg.clock.sec = int(t_s)
+        msg.clock.nanosec = int(round((t_s - int(t_s)) * 1e9))
+
+        def there():
+            self.pub.publish(msg)
+            return abs(self.rig.node.now_s() - t_s) < 1e-6
+        assert self.rig.spin_until(there), f"node clock never reached {t_s}"
+
+
+def _sim_rig(ctx, namespace):
+    return Rig(ctx, namespace=namespace, use_sim_time=True, store_path="memory",
+               max_asks_per_hour=CAP_PER_HOUR, max_asks_per_person_per_day=3,
+               min_reask_interval_s=600.0, max_observation_age_s=5.0,
+               pending_ask_timeout_s=30.0)
+
+
+def _need_and_answer(rig, request_id):
+    d = rig.open_need(request_id, "handover", urgency=1.0)
+    if d["action"] == "ask":
+        rig.report(request_id, d["person_id"], "helped")   # no second ask for the need
+        rig.task_pub.publish(String(data=wire.task_status_document(request_id, "resolved")))
+    return d
+
+
+def _check_no_negative_interval(d):
+    for row in d["rationale"]:
+        for field in ("p", "mean", "c"):
+            v = row.get(field)
+            assert v is None or (math.isfinite(v) and 0.0 <= v <= 1.0), (field, row)
+    for c in d["candidates"]:
+        assert all(math.isfinite(t) for t in c["ask_times_s"])
+
+
+def test_paused_sim_clock_gives_no_burst_of_asks(ctx):
+    """40 needs at one frozen sim time with 16 people in view: each person asked at most once
+    (the re-ask interval sees a gap of 0 s) and the robot at most its hourly cap."""
+    rig = _sim_rig(ctx, "/paused")
+    try:
+        assert rig.connected()
+        clock = SimClock(rig)
+        clock.set(20_000.0)
+        assert rig.show_people(PEOPLE)
+        decisions = [_need_and_answer(rig, f"p{k}") for k in range(40)]
+        asked = [d["person_id"] for d in decisions if d["action"] == "ask"]
+        assert len(asked) == CAP_PER_HOUR                  # the cap binds, and only the cap
+        assert len(set(asked)) == len(asked)               # nobody twice at a gap of 0 s
+        assert all(d["stamp_s"] == 20_000.0 for d in decisions)
+        capped = [d for d in decisions if d["action"] == "continue"]
+        assert all(any(r.get("excluded") == "robot_hourly_cap" for r in d["rationale"])
+                   for d in capped)
+        for d in decisions:
+            _check_no_negative_interval(d)
+    finally:
+        rig.close()
+
+
+def test_sim_clock_forward_excursion_and_back_keeps_the_hourly_cap(ctx):
+    """12 asks in a sim hour, one need at a clock 5 days ahead, the clock back inside the hour:
+    no more asks there (the node's robot ask memory keeps its newest max_asks_per_hour)."""
+    rig = _sim_rig(ctx, "/excursion")
+    try:
+        assert rig.connected()
+        clock = SimClock(rig)
+        asks = 0
+        for k in range(CAP_PER_HOUR):
+            clock.set(10_000.0 + 30.0 * k)
+            assert rig.show_people(PEOPLE)
+            asks += _need_and_answer(rig, f"a{k}")["action"] == "ask"
+        assert asks == CAP_PER_HOUR
+        clock.set(10_000.0 + 5 * 86_400.0)
+        assert rig.show_people(PEOPLE)
+        asks += _need_and_answer(rig, "ahead")["action"] == "ask"
+        for k in range(6):                                 # back inside the first hour
+            clock.set(10_400.0 + 60.0 * k)
+            assert rig.show_people(PEOPLE)
+            d = _need_and_answer(rig, f"b{k}")
+            _check_no_negative_interval(d)
+            assert d["action"] == "continue", d["why"]
+        assert asks == CAP_PER_HOUR + 1
+    finally:
+        rig.close()
+
+
+def test_sim_clock_jump_back_asks_nobody_already_asked(ctx):
+    """Asks at t = 50 000 s, the clock back to 40 000 s: every earlier ask is 'in the future',
+    so the re-ask interval excludes each of those people; the others may still be asked."""
+    rig = _sim_rig(ctx, "/jumpback")
+    try:
+        assert rig.connected()
+        clock = SimClock(rig)
+        clock.set(50_000.0)
+        assert rig.show_people(PEOPLE)
+        first = [_need_and_answer(rig, f"f{k}") for k in range(4)]
+        asked = {d["person_id"] for d in first if d["action"] == "ask"}
+        assert len(asked) == 4
+        clock.set(40_000.0)
+        assert rig.show_people(PEOPLE)
+        later = [_need_and_answer(rig, f"g{k}") for k in range(4)]
+        for d in later:
+            _check_no_negative_interval(d)
+            assert d["person_id"] not in asked
+            rows = {r["person_id"]: r for r in d["rationale"]}
+            assert all(rows[p].get("excluded") == "reask_interval" for p in asked)
+        # the pending-ask timeout measures from the ask's own (sim) time: an ask made at
+        # 40 000 s is not expired by an earlier one's bookkeeping
+        assert rig.node.expired_asks == 0
+    finally:
+        rig.close()
