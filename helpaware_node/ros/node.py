@@ -116,10 +116,17 @@ class HelpAwareNode(LifecycleNode):
         self._beliefs_model = None
         self._active = False
         self._entities = []
+        self._configure_error = ""
         if self.params.settings.autostart:
             self.trigger_configure()
-            if self._entities:
-                self.trigger_activate()
+            if not self._entities:
+                # started on its own (no lifecycle manager to retry): exit with the reason
+                # rather than stay up unconfigured and silently decide nothing
+                self.destroy_node()
+                raise StartupError(f"{self._configure_error}; not started (autostart: a "
+                                   f"managed node, autostart:=false, would stay unconfigured "
+                                   f"for its manager instead)")
+            self.trigger_activate()
 
     @property
     def _store_file(self) -> str:
@@ -132,7 +139,8 @@ class HelpAwareNode(LifecycleNode):
         try:
             self.store = open_store(self._store_file, s.robot_id, model=self.params.model)
         except Exception as exc:  # an unreadable store must not start a node that forgets
-            self.get_logger().error(f"store {self._store_file or '(memory)'} could not open: {exc}")
+            self._configure_error = f"store {self._store_file or '(memory)'} could not open: {exc}"
+            self.get_logger().error(self._configure_error)
             return TransitionCallbackReturn.FAILURE
         self._beliefs_model = self.params.model
         health = getattr(self.store, "health", None)

@@ -79,15 +79,27 @@ def create_key_file(path: Path) -> bytes:
 def load_site_key(path: str | os.PathLike | None = None, create: bool = True) -> bytes:
     """The site key from `path` (default under the ROS home), created if missing and allowed."""
     p = Path(path) if path else default_key_path()
-    if not p.exists():
-        if not create:
-            raise SiteKeyError(f"site key file {p} does not exist")
-        try:
-            return create_key_file(p)
-        except FileExistsError:     # another process created it first: use theirs
-            pass
-    check_key_file_mode(p)
-    key = p.read_bytes()
+    try:
+        if not p.exists():
+            if not create:
+                raise SiteKeyError(f"site key file {p} does not exist")
+            try:
+                return create_key_file(p)
+            except FileExistsError:     # another process created it first: use theirs
+                pass
+        if p.is_dir():
+            raise IsADirectoryError(p)
+        check_key_file_mode(p)
+        key = p.read_bytes()
+    except IsADirectoryError:
+        raise SiteKeyError(f"site key file {p} is a directory; point the store at the key "
+                           f"file itself, or move the directory away") from None
+    except PermissionError as exc:
+        raise SiteKeyError(f"site key file {p} cannot be read by this user ({exc.strerror}); "
+                           f"run the node as the key's owner, or fix ownership with "
+                           f"chown <user> {p} (keep mode 600)") from None
+    except OSError as exc:
+        raise SiteKeyError(f"site key file {p} cannot be read or created: {exc}") from None
     if len(key) < 16:
         raise SiteKeyError(f"site key file {p} holds {len(key)} bytes; expected {KEY_BYTES} "
                            "(a damaged or wrong file)")

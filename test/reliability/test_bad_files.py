@@ -77,16 +77,43 @@ def _stderr_until(proc, text, deadline_s=60.0):
 
 
 def test_node_refuses_a_world_readable_site_key(tmp_path):
-    """The lifecycle node fails its configure transition (stays up, unconfigured, deciding
-    nothing) and logs the file and the chmod to run; the key is left as it was."""
+    """Started on its own (autostart, the default), the node exits 2 with one line naming the
+    key and the chmod to run; the key is left as it was and the store is not written."""
+    store = tmp_path / "beliefs.sqlite3"
+    key = tmp_path / "site_key"
+    key.write_bytes(os.urandom(32))
+    os.chmod(key, 0o644)
+    code, err = _run_node_with(overrides={"store_path": str(store)})
+    assert code == 2, err[-2000:]
+    assert f"chmod 600 {key}" in err and "not started" in err, err[-2000:]
+    assert "Traceback" not in err
+    assert key.stat().st_mode & 0o777 == 0o644       # not silently "fixed" or replaced
+    assert not store.exists() or store.stat().st_size == 0
+
+
+def test_node_refuses_a_site_key_that_is_a_directory(tmp_path):
+    store = tmp_path / "beliefs.sqlite3"
+    (tmp_path / "site_key").mkdir()
+    code, err = _run_node_with(overrides={"store_path": str(store)})
+    assert code == 2 and "is a directory" in err and str(tmp_path / "site_key") in err, err
+    assert "Traceback" not in err
+
+
+def test_managed_node_with_a_bad_key_stays_up_unconfigured(tmp_path):
+    """With autostart:=false a lifecycle manager owns the transitions: a failed configure
+    leaves the node up, unconfigured, for the manager to report or retry."""
     store = tmp_path / "beliefs.sqlite3"
     key = tmp_path / "site_key"
     key.write_bytes(os.urandom(32))
     os.chmod(key, 0o644)
     proc = launch_config.start(stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
-                               overrides={"store_path": str(store)})
+                               overrides={"store_path": str(store), "autostart": False})
     try:
-        err = _stderr_until(proc, f"chmod 600 {key}")
+        try:
+            proc.wait(timeout=3)
+        except subprocess.TimeoutExpired:
+            pass
+        assert proc.poll() is None          # still up: nothing configured it yet
     finally:
         proc.terminate()
         try:
@@ -94,10 +121,53 @@ def test_node_refuses_a_world_readable_site_key(tmp_path):
         except subprocess.TimeoutExpired:
             proc.kill()
             proc.wait()
-    assert f"chmod 600 {key}" in err and "could not open" in err, err[-2000:]
-    assert "Traceback" not in err
-    assert key.stat().st_mode & 0o777 == 0o644       # not silently "fixed" or replaced
-    assert not store.exists() or store.stat().st_size == 0
+
+
+UNREADABLE_KEY_READER = r"""
+import os, sys
+from helpaware_node.store.keys import SiteKeyError, load_site_key
+os.setgid(65534); os.setuid(65534)          # the 'nobody' user: not the key's owner
+try:
+    load_site_key(sys.argv[1], create=False)
+except SiteKeyError as exc:
+    print(exc)
+    sys.exit(3)
+sys.exit(0)
+"""
+
+
+def test_unreadable_site_key_is_a_site_key_error_naming_what_to_do(tmp_path):
+    """Mode 0600 owned by another user. The tests run as root here, where a mode never stops
+    a read, so the reader drops to the 'nobody' user first (skipped where that is not
+    possible); run as a normal user, mode 000 does the same."""
+    key = tmp_path / "site_key"
+    key.write_bytes(os.urandom(32))
+    os.chmod(key, 0o600)
+    if os.geteuid() == 0:
+        os.chmod(tmp_path, 0o755)
+        cmd = [sys.executable, "-c", UNREADABLE_KEY_READER, str(key)]
+    else:
+        os.chmod(key, 0o000)
+        cmd = [sys.executable, "-c", UNREADABLE_KEY_READER.replace(
+            "os.setgid(65534); os.setuid(65534)", "pass"), str(key)]
+    proc = subprocess.run(cmd, capture_output=True, text=True, timeout=60)
+    if os.geteuid() == 0 and "Operation not permitted" in proc.stderr:
+        pytest.skip("cannot drop to the nobody user here")
+    assert proc.returncode == 3, proc.stderr[-2000:]
+    assert str(key) in proc.stdout and "cannot be read by this user" in proc.stdout
+    assert "chown" in proc.stdout and "Traceback" not in proc.stderr
+
+
+def _run_node_with(overrides, timeout_s=60):
+    proc = launch_config.start(stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                               overrides=overrides)
+    try:
+        out, err = proc.communicate(timeout=timeout_s)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        out, err = proc.communicate()
+        pytest.fail(f"node did not exit on a bad site key: {err[-1000:]}")
+    return proc.returncode, err
 
 
 @pytest.mark.parametrize("content", [b"", b"\x89MCAP0\r\n" + b"\x00" * 64,
