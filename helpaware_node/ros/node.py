@@ -42,6 +42,7 @@ HOUSEKEEPING_PERIOD_S = 0.5
 HOUR_S = 3600.0
 MAX_UNSAVED_EVENTS = 10_000    # outcomes held in memory while the store refuses writes
 STORE_UNAVAILABLE = "store_unavailable"   # decision policy while outcomes cannot be saved
+MAX_PEOPLE_IN_MEMORY = 20_000  # person records kept in memory; beliefs stay in the store
 
 
 class StartupError(RuntimeError):
@@ -90,6 +91,9 @@ class HelpAwareNode(LifecycleNode):
         super().__init__(node_name, **kwargs)
         self.store = None
         self.records: dict[str, PersonRecord] = {}
+        self.max_records = MAX_PEOPLE_IN_MEMORY
+        self.records_evicted = 0
+        self._last_seen_s: dict[str, float] = {}     # person key -> when last in view
         try:
             self.params = NodeParameters(self, on_change=self._on_parameters_changed)
         except (CoreInputError, rclpy.exceptions.ParameterException) as exc:
@@ -281,6 +285,7 @@ class HelpAwareNode(LifecycleNode):
         for p in people:
             key = self.store.key_for(p.person_id) if self.store is not None else ""
             self.seen[p.person_id] = Seen(p, key, now, frame)
+            self._last_seen_s[key] = now
 
     def _on_task_status(self, msg: String) -> None:
         self.counters.received["task_status"] += 1
@@ -419,6 +424,7 @@ class HelpAwareNode(LifecycleNode):
         """The store has forgotten a person: drop their record, any pending ask and any
         outcome still held for a store that refused it."""
         self.records.pop(key, None)
+        self._last_seen_s.pop(key, None)
         self.unsaved = [e for e in self.unsaved if e.person_key != key]
         self.pending = {r: a for r, a in self.pending.items() if a.key != key}
 
@@ -532,6 +538,28 @@ class HelpAwareNode(LifecycleNode):
         limit = self.params.config.max_observation_age_s + IN_VIEW_EXTRA_S
         for pid in [p for p, s in self.seen.items() if now - s.observed_at_s > limit]:
             del self.seen[pid]
+        if (len(self.records) > self.max_records
+                or len(self._last_seen_s) > 2 * self.max_records):
+            self._evict_records(now)
+
+    def _evict_records(self, now: float) -> None:
+        """Keep memory bounded on a busy site: drop the records of the people seen longest
+        ago, down to 90 % of the limit. Their beliefs stay in the store and come back when
+        they are seen again; only their encounter count and first-seen time are lost. People
+        in view, with a pending ask or asked within the ask memory are never dropped, so no
+        limit (re-ask interval, daily cap) and no ask load is forgotten."""
+        model = self.params.model
+        horizon = max(86_400.0, 10.0 * model.ask_memory_half_life_s)
+        keep = {s.key for s in self.seen.values()} | {a.key for a in self.pending.values()}
+        droppable = [k for k, r in self.records.items() if k not in keep
+                     and not any(now - t < horizon for t in r.ask_times_s)]
+        droppable.sort(key=lambda k: self._last_seen_s.get(k, float("-inf")))
+        for key in droppable[:max(len(self.records) - int(0.9 * self.max_records), 0)]:
+            del self.records[key]
+            self._last_seen_s.pop(key, None)
+            self.records_evicted += 1
+        for key in [k for k in self._last_seen_s if k not in self.records and k not in keep]:
+            del self._last_seen_s[key]     # seen, never a candidate: nothing to keep
 
     def _publish_status(self) -> None:
         if not self._active:
@@ -556,7 +584,8 @@ class HelpAwareNode(LifecycleNode):
             "open_needs": len(self.needs), "pending_asks": len(self.pending),
             "expired_asks": self.expired_asks, "could_not_ask": self.could_not_ask,
             "decisions": self.decisions_published, "people_in_view": len(self.seen),
-            "people_known": len(self.records), "store": store_name,
+            "people_known": len(self.records), "people_evicted": self.records_evicted,
+            "store": store_name,
             "store_ok": self.store_ok, "store_last_error": self.store_error,
             "store_unsaved_outcomes": len(self.unsaved),
             "store_unsaved_dropped": self.unsaved_dropped,

@@ -1,0 +1,47 @@
+"""The node's person records stay bounded on a busy site, without forgetting any limit.
+
+Many distinct people (a concourse of strangers, or a fleet sharing everyone it met) would
+otherwise grow `node.records` by one entry per person forever. Beliefs live in the store, so
+a dropped record comes back from it when the person is seen again.
+"""
+from helpaware_node.core.person import Result
+from helpaware_node.store import StoredEvent
+
+from node_harness import Rig
+
+
+def test_records_are_bounded_and_come_back_from_the_store(ctx, tmp_path):
+    rig = Rig(ctx, namespace="/bounded", store_path=str(tmp_path / "b.sqlite3"),
+              robot_id="rM", min_reask_interval_s=3600.0)
+    try:
+        assert rig.connected()
+        node = rig.node
+        node.max_records = 20
+        assert rig.show_people([{"id": "nurse-kept", "distance_m": 1.0, "busyness": 0.0}])
+        d = rig.open_need("keep1", "handover", urgency=1.0)
+        assert d["action"] == "ask" and d["person_id"] == "nurse-kept"
+        rig.report("keep1", "nurse-kept", "helped")
+        kept = node.store.key_for("nurse-kept")
+        # 200 people learned from the fleet, never in view here
+        for i in range(200):
+            key = node.store.key_for(f"visitor-{i}")
+            assert node._ingest_event(StoredEvent(f"peer/{i}", key, 100.0 + i,
+                                                  Result.DECLINED, 0.2, 0.0))
+        assert len(node.records) > 200
+        assert rig.spin_until(lambda: len(node.records) <= 20)
+        assert node.records_evicted >= 180
+        # the person asked within the ask memory keeps their record (and so their asks)
+        assert kept in node.records and node.records[kept].ask_times_s
+        # a dropped person comes back with the store's belief: Beta(2, 2) prior, one declined
+        back = node.store.key_for("visitor-0")
+        assert back not in node.records
+        belief_in_store = node.store.belief(back, node.params.model)[0]
+        assert node.record_for(back).belief == belief_in_store
+        assert belief_in_store.b > 2.0          # the declined outcome is still in it
+        # and the re-ask interval of the kept person still holds: asked again, refused
+        assert rig.show_people([{"id": "nurse-kept", "distance_m": 1.0, "busyness": 0.0}])
+        d = rig.open_need("keep2", "handover", urgency=1.0)
+        rows = {r["person_id"]: r for r in d["rationale"]}
+        assert rows["nurse-kept"]["excluded"] == "reask_interval"
+    finally:
+        rig.close()
