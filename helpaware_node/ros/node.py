@@ -14,6 +14,7 @@ the store before the belief changes (`_ingest_event`, also the entry point for f
 from __future__ import annotations
 
 import sys
+import time
 from dataclasses import dataclass, replace
 from typing import Optional
 
@@ -42,6 +43,7 @@ HOUSEKEEPING_PERIOD_S = 0.5
 HOUR_S = 3600.0
 MAX_UNSAVED_EVENTS = 10_000    # outcomes held in memory while the store refuses writes
 STORE_UNAVAILABLE = "store_unavailable"   # decision policy while outcomes cannot be saved
+CLOCK_JUMP_TOLERANCE_S = 5.0  # system time moving this much more than the steady clock
 MAX_PEOPLE_IN_MEMORY = 20_000  # person records kept in memory; beliefs stay in the store
 
 
@@ -94,6 +96,8 @@ class HelpAwareNode(LifecycleNode):
         self.max_records = MAX_PEOPLE_IN_MEMORY
         self.records_evicted = 0
         self._last_seen_s: dict[str, float] = {}     # person key -> when last in view
+        self._clock_mark: Optional[tuple[float, float]] = None   # (node time, steady time)
+        self.clock_jumps_forward = 0
         try:
             self.params = NodeParameters(self, on_change=self._on_parameters_changed)
         except (CoreInputError, rclpy.exceptions.ParameterException) as exc:
@@ -228,6 +232,39 @@ class HelpAwareNode(LifecycleNode):
     # ---------------------------------------------------------------- helpers
     def now_s(self) -> float:
         return self.get_clock().now().nanoseconds * 1e-9
+
+    @staticmethod
+    def steady_s() -> float:
+        return time.monotonic()
+
+    def _follow_clock_jump(self, now: float) -> None:
+        """On system time, a jump forward (an NTP step, a clock set by hand) would age every
+        remembered ask at once and reopen the hourly cap, the re-ask interval and the daily
+        cap. The steady clock says how much time really passed: everything the node keeps in
+        node time moves forward with the jump, so each ask keeps its real age. Sim time is
+        the truth when it is used, and a jump back is already safe (asks 'in the future'
+        count as recent), so neither is touched."""
+        steady = self.steady_s()
+        mark, self._clock_mark = self._clock_mark, (now, steady)
+        if mark is None or self.get_clock().ros_time_is_active:
+            return
+        jump = (now - mark[0]) - (steady - mark[1])
+        if jump <= CLOCK_JUMP_TOLERANCE_S:
+            return
+        self.clock_jumps_forward += 1
+        self.get_logger().warning(f"system time jumped {jump:.0f} s ahead of the steady clock: "
+                                  f"remembered asks moved with it, so the limits count real time")
+        self.robot_ask_times_s = [t + jump for t in self.robot_ask_times_s]
+        for key, rec in self.records.items():
+            if rec.ask_times_s:
+                moved = tuple(t + jump for t in rec.ask_times_s)
+                self.records[key] = replace(rec, ask_times_s=moved)
+        for rid, ask in self.pending.items():
+            self.pending[rid] = replace(ask, asked_at_s=ask.asked_at_s + jump,
+                                        expires_at_s=ask.expires_at_s + jump)
+        for seen in self.seen.values():
+            if seen.observed_at_s <= mark[0]:     # seen before the jump (not since)
+                seen.observed_at_s += jump
 
     def params_hash(self) -> str:
         from ..core import params_hash
@@ -369,7 +406,8 @@ class HelpAwareNode(LifecycleNode):
             if hold_on_failure:
                 self._hold_unsaved(event)
             return False
-        self.store_ok = getattr(self.store, "health", None) is None or self.store.health.level == "OK"
+        health = getattr(self.store, "health", None)
+        self.store_ok = health is None or health.level == "OK"
         if not stored:
             return False
         rec = self.records.get(event.person_key) or PersonRecord.new(self.params.model)
@@ -456,6 +494,7 @@ class HelpAwareNode(LifecycleNode):
         if state.need.request_id in self.pending:
             return   # one ask at a time per need; the outcome or expiry decides again
         now = self.now_s()
+        self._follow_clock_jump(now)
         if now <= 0.0:   # sim time before /clock: never decide on time zero
             state.waiting_for_clock = True
             return
@@ -522,6 +561,7 @@ class HelpAwareNode(LifecycleNode):
         if self.unsaved:
             self._retry_unsaved()
         now = self.now_s()
+        self._follow_clock_jump(now)
         if now <= 0.0:
             return
         for rid, ask in list(self.pending.items()):

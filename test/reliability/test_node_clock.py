@@ -134,3 +134,43 @@ def test_sim_clock_jump_back_asks_nobody_already_asked(ctx):
         assert rig.node.expired_asks == 0
     finally:
         rig.close()
+
+
+class _JumpyWallClock:
+    """System time with a step added at will (what an NTP step does to the node's clock);
+    the steady clock underneath keeps counting real time."""
+
+    def __init__(self, node):
+        self.offset_s = 0.0
+        real = node.now_s
+        node.now_s = lambda: real() + self.offset_s
+
+
+def test_system_time_jump_forward_keeps_the_limits_on_real_time(ctx):
+    """On system time (no sim), 12 asks, then the wall clock steps 2 days ahead: the hourly
+    cap and the re-ask interval still count the asks' real ages, so no burst follows."""
+    rig = Rig(ctx, namespace="/ntpstep", store_path="memory", max_asks_per_hour=CAP_PER_HOUR,
+              max_asks_per_person_per_day=3, min_reask_interval_s=600.0,
+              pending_ask_timeout_s=30.0)
+    try:
+        assert rig.connected()
+        wall = _JumpyWallClock(rig.node)
+        assert rig.show_people(PEOPLE)
+        first = [_need_and_answer(rig, f"s{k}") for k in range(CAP_PER_HOUR)]
+        asked = {d["person_id"] for d in first if d["action"] == "ask"}
+        assert len(asked) == CAP_PER_HOUR
+        wall.offset_s = 2 * 86_400.0
+        assert rig.show_people(PEOPLE)
+        after = [_need_and_answer(rig, f"t{k}") for k in range(4)]
+        for d in after:
+            _check_no_negative_interval(d)
+            assert d["action"] == "continue", d["why"]
+            rows = {r["person_id"]: r for r in d["rationale"]}
+            assert all(rows[p]["excluded"] in ("reask_interval", "robot_hourly_cap")
+                       for p in asked)
+        assert rig.node.clock_jumps_forward == 1
+        # the asks kept their real age: still inside the hour, just moved into the new time
+        ages = [d["stamp_s"] - t for d in after[-1:] for t in d["robot_ask_times_s"]]
+        assert len(ages) == CAP_PER_HOUR and all(0.0 <= a < 600.0 for a in ages)
+    finally:
+        rig.close()
