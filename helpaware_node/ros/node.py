@@ -625,6 +625,7 @@ class HelpAwareNode(LifecycleNode):
             "expired_asks": self.expired_asks, "could_not_ask": self.could_not_ask,
             "decisions": self.decisions_published, "people_in_view": len(self.seen),
             "people_known": len(self.records), "people_evicted": self.records_evicted,
+            "clock_jumps_forward": self.clock_jumps_forward,
             "store": store_name,
             "store_ok": self.store_ok, "store_last_error": self.store_error,
             "store_unsaved_outcomes": len(self.unsaved),
