@@ -3,9 +3,8 @@ from __future__ import annotations
 
 from typing import Iterable, Mapping
 
-import yaml
-
 from ..core.model import SiteModel
+from ..yamlfile import load_yaml_file
 
 FITTED_NAMES = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability")
 DEFAULT_NODE_NAME = "helpaware_decider"   # ros/node.py NODE_NAME (tested)
@@ -33,6 +32,10 @@ def node_key(node_name: str) -> str:
 
 
 def read_param_file(path: str, node_name: str = DEFAULT_NODE_NAME) -> dict:
-    with open(path, encoding="utf-8") as fh:
-        doc = yaml.safe_load(fh)
-    return dict(doc[node_key(node_name)]["ros__parameters"])
+    """The parameters of `node_name` in a file written by `write_param_file`."""
+    doc = load_yaml_file(path, ValueError, "parameter file")
+    try:
+        return dict(doc[node_key(node_name)]["ros__parameters"])
+    except (KeyError, TypeError):
+        raise ValueError(f"parameter file {path}: no '{node_key(node_name)}: ros__parameters' "
+                         f"section") from None

@@ -4,9 +4,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any, Mapping
 
-import yaml
-
 from ..core.model import CoreInputError, check_range
+from ..yamlfile import load_yaml_file
 
 
 class ScenarioError(CoreInputError):
@@ -180,13 +179,7 @@ def parse(data: Mapping, source: str = "scenario") -> Scenario:
 
 
 def load(path: str) -> Scenario:
-    try:
-        with open(path, encoding="utf-8") as fh:
-            data = yaml.safe_load(fh)
-    except OSError as exc:
-        raise ScenarioError(f"scenario file {path}: {exc.strerror}") from None
-    except yaml.YAMLError as exc:
-        raise ScenarioError(f"scenario file {path}: not valid YAML ({exc})") from None
+    data = load_yaml_file(path, ScenarioError, "scenario file")
     if not isinstance(data, Mapping):
         raise ScenarioError(f"scenario file {path}: top level must be a mapping")
     return parse(data, path)

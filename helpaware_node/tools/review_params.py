@@ -11,9 +11,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Optional
 
-import yaml
-
 from ..core.model import CoreInputError, DecisionConfig, SiteModel, to_plain
+from ..yamlfile import load_yaml_file
 
 
 class ParamFileError(ValueError):
@@ -57,13 +56,7 @@ def _flatten(params: Mapping, prefix: str = "") -> dict:
 
 
 def parameters_from_yaml(path: str) -> dict:
-    try:
-        with open(path, encoding="utf-8") as f:
-            doc = yaml.safe_load(f)
-    except OSError as exc:
-        raise ParamFileError(f"{path}: cannot read ({exc.strerror})") from None
-    except yaml.YAMLError as exc:
-        raise ParamFileError(f"{path}: not valid YAML ({exc})") from None
+    doc = load_yaml_file(path, ParamFileError, "parameter file")
     params = _find_parameters(doc, path)
     if not params:
         raise ParamFileError(f"{path}: no 'ros__parameters' section found")

@@ -1,0 +1,32 @@
+"""Corrupt YAML given to the offline tools: scenario files (`helpaware simulate`), parameter
+files (`helpaware review --params`, the files `helpaware fit` writes). Each gives its own
+error naming the file and the reason; none escapes as a raw yaml, OS or decode error."""
+import pytest
+
+from helpaware_node.fit.paramfile import read_param_file
+from helpaware_node.sim.scenario import ScenarioError, load as load_scenario
+from helpaware_node.tools.review_params import ParamFileError, parameters_from_yaml
+
+BAD = {
+    "unclosed_bracket": (b"a: [1, 2\n", "not valid YAML"),
+    "tab_indent": (b"a:\n\t- 1\n", "not valid YAML"),
+    "latin1_bytes": (b"name: caf\xe9\n", "not UTF-8"),
+    "directory": (None, "cannot read"),
+    "missing": ("absent", "cannot read"),
+}
+LOADERS = [(load_scenario, ScenarioError), (parameters_from_yaml, ParamFileError),
+           (read_param_file, ValueError)]
+
+
+@pytest.mark.parametrize("case", sorted(BAD))
+@pytest.mark.parametrize("loader,error", LOADERS, ids=["scenario", "review_params", "fit_file"])
+def test_corrupt_yaml_names_the_file_and_the_reason(tmp_path, case, loader, error):
+    content, reason = BAD[case]
+    path = tmp_path / "site.yaml"
+    if content is None:
+        path.mkdir()
+    elif content != "absent":
+        path.write_bytes(content)
+    with pytest.raises(error) as info:
+        loader(str(path))
+    assert str(path) in str(info.value) and reason in str(info.value)
