@@ -1,6 +1,7 @@
 """Simulator: determinism, known answers, reward accounting, one decision code path."""
 from __future__ import annotations
 
+import os
 import copy
 import json
 import math
@@ -235,3 +236,37 @@ def test_shipped_scenarios_load_and_differ_in_kind():
     assert lab.strangers_per_need < 0.1 * lab.regulars_per_need  # few regulars, nearly no strangers
     assert hub.needs_per_hour > 4 * lab.needs_per_hour  # very busy vs quiet
     assert hub.truth_model == "logistic"
+
+
+def _simulate_with(tmp_path, params_text):
+    import json as _json
+    from helpaware_node import cli
+    params = tmp_path / "site.yaml"
+    params.write_text(params_text)
+    out = tmp_path / "sim"
+    scenario = os.path.join(os.path.dirname(os.path.dirname(os.path.abspath(__file__))),
+                            "scenarios", "research_lab_quiet.yaml")
+    code = cli.main(["simulate", scenario, "--seeds", "1",
+                     "--policies", "ours", "--no-plots", "--quiet", "--out", str(out),
+                     "--params", str(params)])
+    doc = _json.loads((out / "results.json").read_text()) if code == 0 else None
+    return code, doc
+
+
+def test_simulate_uses_the_node_parameter_file(tmp_path):
+    """A node parameter file drives the simulated decision: with the hourly cap at 0 the
+    robot never asks; with the shipped defaults it does (same seed, same world)."""
+    code, capped = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
+                                            "    max_asks_per_hour: 0\n")
+    assert code == 0 and capped["summary"]["ours"]["asks"]["mean"] == 0.0
+    assert capped["params_file"].endswith("site.yaml")
+    code, free = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
+                                          "    max_asks_per_hour: 100\n")
+    assert code == 0 and free["summary"]["ours"]["asks"]["mean"] > 0.0
+
+
+def test_simulate_refuses_a_bad_parameter_file_naming_it(tmp_path, capsys):
+    code, _ = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
+                                       "    max_asks_per_hour: -3\n")
+    err = capsys.readouterr().err
+    assert code == 2 and "site.yaml" in err and "max_asks_per_hour" in err

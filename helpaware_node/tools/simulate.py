@@ -24,6 +24,9 @@ def add_arguments(parser) -> None:
                         help=f"policies to run (default all: {' '.join(POLICY_NAMES)})")
     parser.add_argument("--seeds", type=int, default=20, help="number of seeds (default 20)")
     parser.add_argument("--first-seed", type=int, default=0, help="first seed (default 0)")
+    parser.add_argument("--params", metavar="FILE",
+                        help="the node's parameter file (ROS 2 YAML, e.g. config/hospital_night.yaml)"
+                             ": simulate with the site's own costs and limits")
     parser.add_argument("--out", default="out/simulate", help="output directory for JSON and PNGs")
     parser.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -48,8 +51,20 @@ def run(args) -> int:
     except CoreInputError as exc:
         print(f"simulate: {exc}", file=sys.stderr)
         return 2
-    summary, per_seed, runs = compare(sc, args.policies, args.seeds, progress=not args.quiet,
-                                      first_seed=args.first_seed)
+    model = config = None
+    if args.params:
+        from .review_params import ParamFileError, load_params
+        try:
+            loaded = load_params(args.params)
+        except ParamFileError as exc:
+            print(f"simulate: {exc}", file=sys.stderr)
+            return 2
+        model, config = loaded.model, loaded.config
+        print(f"parameters from {args.params}: {len(loaded.applied)} applied"
+              + (f", not used by the decision: {', '.join(loaded.ignored)}" if loaded.ignored
+                 else ""))
+    summary, per_seed, runs = compare(sc, args.policies, args.seeds, model=model, config=config,
+                                      progress=not args.quiet, first_seed=args.first_seed)
     print(f"scenario {sc.name}: {sc.description}")
     print(f"{args.seeds} seeds, mean ± 95 % t half-width over seeds; saved robot-s = help "
           "gained - time lost - interruption cost, against continuing alone")
@@ -64,6 +79,7 @@ def run(args) -> int:
                  if "share_of_oracle" in head else ""))
     os.makedirs(args.out, exist_ok=True)
     doc = {"scenario": sc.name, "seeds": args.seeds, "first_seed": args.first_seed,
+           "params_file": args.params or None,
            "summary": summary, "headline": head, "per_seed": per_seed,
            "evenness": "Gini coefficient of asks over everyone ever a candidate"}
     with open(os.path.join(args.out, "results.json"), "w", encoding="utf-8") as fh:
