@@ -1,10 +1,10 @@
 """Simulator: determinism, known answers, reward accounting, one decision code path."""
 from __future__ import annotations
 
-import os
 import copy
 import json
 import math
+import os
 
 import numpy as np
 import pytest
