@@ -64,8 +64,8 @@ class Phase:
     redecide_latency_s: list = field(default_factory=list)  # outcome -> next decision
     elapsed_s: float = 0.0
     cpu_s: float = 0.0
-    people_received_at_start: int = 0   # node's count at the start (last /diagnostics tick)
-    people_received: int = 0            # node's count over the phase (to about a second)
+    people_received_at_start: int = 0   # node's count before the phase (/diagnostics)
+    people_received: int = 0            # people messages of this phase the node received
 
 
 def main(argv=None) -> int:
@@ -182,6 +182,13 @@ def main(argv=None) -> int:
         for _ in range(WARMUP_PEOPLE_MESSAGES):
             people_pub.publish(String(data=wire.people_document(warm, time.time())))
             spin_until(lambda: False, 0.05)
+        def fresh_people_count() -> int:
+            # two more /diagnostics ticks (about 2 s with nothing sent on people): the count
+            # then holds every people message sent so far that the node will ever get
+            ticks0 = diag["ticks"]
+            spin_until(lambda: diag["ticks"] >= ticks0 + 2, 10.0)
+            return node_count("people.received")
+
         load_t0 = time.monotonic()
         next_rss = load_t0
         rss.append((0.0, rss_kib(args.node_pid)))
@@ -191,7 +198,7 @@ def main(argv=None) -> int:
             view = [dict(p) for p in staff[:n_people]]
             state["phase"] = ph
             spin_until(lambda: False, 0.0)
-            ph.people_received_at_start = node_count("people.received")
+            ph.people_received_at_start = fresh_people_count()
             c0, t0 = cpu_s(args.node_pid), time.monotonic()
             next_people, next_need = t0, t0
             while True:
@@ -227,13 +234,11 @@ def main(argv=None) -> int:
         spin_until(lambda: all(rid in resolved for rid in open_at), SETTLE_TIMEOUT_S)
         spin_until(lambda: node_count("outcome.received") >= len(outcomes)
                    and node_count("task_status.received") >= tasks_sent[0], SETTLE_TIMEOUT_S)
-        # two more diagnostics ticks: the people count then includes every late arrival
-        ticks0 = diag["ticks"]
-        spin_until(lambda: diag["ticks"] >= ticks0 + 2, SETTLE_TIMEOUT_S)
+        received_end = fresh_people_count()
         last = diag["last"]
         for i, ph in enumerate(phases):
             end = (phases[i + 1].people_received_at_start if i + 1 < len(phases)
-                   else node_count("people.received"))
+                   else received_end)
             ph.people_received = end - ph.people_received_at_start
         out.update({
             "load_elapsed_s": load_elapsed,
@@ -256,6 +261,8 @@ def main(argv=None) -> int:
                 "need_rate_hz": ph.needs_sent / ph.elapsed_s, "node_cpu_s": ph.cpu_s,
                 "first_decision_ms": percentiles_ms(ph.first_latency_s),
                 "redecision_ms": percentiles_ms(ph.redecide_latency_s),
+                "first_decision_s": ph.first_latency_s,
+                "redecision_s": ph.redecide_latency_s,
             } for ph in phases],
         })
         print(json.dumps(out), flush=True)
