@@ -200,16 +200,27 @@ def _check(spec: F, value: Any, path: str) -> None:
         if not spec.min_len <= len(value) <= spec.max_len:
             raise WireError(f"{path}: length {len(value)} is outside the allowed "
                             f"[{spec.min_len}, {spec.max_len}] characters")
+        if not value.isascii():
+            try:   # a lone surrogate (JSON "\\ud800") cannot be hashed, stored or published
+                value.encode("utf-8")
+            except UnicodeEncodeError as exc:
+                raise WireError(f"{path}: not valid Unicode text (lone surrogate at "
+                                f"character {exc.start})") from None
     elif k in ("number", "integer"):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise WireError(f"{path}: expected a number, got {type(value).__name__}")
-        if k == "integer" and not float(value).is_integer():
+        try:
+            v = float(value)
+        except OverflowError:   # an integer literal beyond any float, e.g. 1 then 400 zeros
+            v = math.inf if value > 0 else -math.inf
+        if k == "integer" and math.isfinite(v) and not v.is_integer():
             raise WireError(f"{path}: expected a whole number, got {value!r}")
-        v = float(value)
         lo_ok = v > spec.low if spec.low_open else v >= spec.low
         if not math.isfinite(v) or not lo_ok or v > spec.high:
             lb = "(" if spec.low_open else "["
-            raise WireError(f"{path}: {value!r} is outside the allowed range "
+            shown = repr(value) if math.isfinite(v) or not isinstance(value, int) else (
+                f"an integer of {len(str(abs(value)))} digits")
+            raise WireError(f"{path}: {shown} is outside the allowed range "
                             f"{lb}{_fmt(spec.low)}, {_fmt(spec.high)}]")
     elif k == "boolean":
         if not isinstance(value, bool):
@@ -234,7 +245,7 @@ def _check(spec: F, value: Any, path: str) -> None:
             raise WireError(f"{path}: expected an object, got {type(value).__name__}")
         unknown = sorted(set(value) - set(spec.fields))
         if unknown:
-            raise WireError(f"{path}: unknown field {str(unknown[0])[:40]!r} "
+            raise WireError(f"{path or 'document'}: unknown field {str(unknown[0])[:40]!r} "
                             f"(allowed: {', '.join(spec.fields)})")
         for name, sub in spec.fields.items():
             sub_path = f"{path}.{name}" if path else name
@@ -265,6 +276,18 @@ def _refuse_constant(text: str):
     raise WireError(f"document: {text} is not allowed (numbers must be finite)")
 
 
+def _refuse_duplicates(pairs: list) -> dict:
+    """JSON objects with a repeated name are ambiguous (parsers keep the first or the last)."""
+    obj = dict(pairs)
+    if len(obj) != len(pairs):
+        seen: set = set()
+        for name, _ in pairs:
+            if name in seen:
+                raise WireError(f"document: duplicate field {str(name)[:40]!r} in one JSON object")
+            seen.add(name)
+    return obj
+
+
 def decode(name: str, text: Any) -> dict:
     """Parse and validate the JSON text of document `name`."""
     if isinstance(text, (bytes, bytearray)):
@@ -277,7 +300,8 @@ def decode(name: str, text: Any) -> dict:
     if len(text) > MAX_DOCUMENT_BYTES or len(text.encode("utf-8", "replace")) > MAX_DOCUMENT_BYTES:
         raise WireError(f"document: larger than the allowed {MAX_DOCUMENT_BYTES} bytes")
     try:
-        data = json.loads(text, parse_constant=_refuse_constant)
+        data = json.loads(text, parse_constant=_refuse_constant,
+                          object_pairs_hook=_refuse_duplicates)
     except WireError:
         raise
     except (ValueError, RecursionError) as exc:

@@ -54,14 +54,35 @@ def encode_forget(person_key: str, robot_id: str) -> str:
                        "from": robot_id}, separators=(",", ":"), sort_keys=True)
 
 
+def _load_json(text: str, what: str):
+    """Parsed JSON, or CoreInputError (too deep nesting included)."""
+    try:
+        return json.loads(text)
+    except (ValueError, RecursionError) as exc:
+        raise CoreInputError(f"{what}: not JSON ({str(exc)[:80]})") from None
+
+
+def _refuse_surrogates(doc: dict, what: str, fields: tuple) -> None:
+    """A lone surrogate (JSON "\\ud800") cannot be hashed, stored in SQLite or published."""
+    for name in fields:
+        value = doc.get(name)
+        if isinstance(value, str) and not value.isascii():
+            try:
+                value.encode("utf-8")
+            except UnicodeEncodeError:
+                raise CoreInputError(f"{what}: {name} is not valid Unicode text "
+                                     f"(a lone surrogate)") from None
+
+
+EVENT_TEXT_FIELDS = ("kind", "event_id", "person_key", "result", "request_kind", "from")
+
+
 def decode(text: str):
     """('outcome', StoredEvent) or ('forget', key); raises CoreInputError on a bad document."""
-    try:
-        doc = json.loads(text)
-    except ValueError as exc:
-        raise CoreInputError(f"fleet message: not JSON ({exc})") from None
+    doc = _load_json(text, "fleet message")
     if not isinstance(doc, dict) or doc.get("v") != FORMAT_VERSION:
         raise CoreInputError(f"fleet message: expected a JSON object with v={FORMAT_VERSION}")
+    _refuse_surrogates(doc, "fleet message", EVENT_TEXT_FIELDS)
     kind = doc.get("kind")
     if kind == "forget":
         key = doc.get("person_key", "")
@@ -74,9 +95,12 @@ def decode(text: str):
         e = StoredEvent(str(doc["event_id"]), str(doc["person_key"]), doc["time_s"],
                         Result.parse(str(doc["result"])), doc["busyness"], doc["ask_load"],
                         str(doc.get("request_kind", "")))
+        check_event(e)
     except KeyError as exc:
         raise CoreInputError(f"fleet message: missing field {exc.args[0]}") from None
-    check_event(e)
+    except OverflowError:   # an integer beyond any float in time_s, busyness or ask_load
+        raise CoreInputError("fleet message: time_s, busyness and ask_load must be finite "
+                             "numbers in range") from None
     return "outcome", e
 
 
@@ -117,6 +141,7 @@ class FleetLink:
         self._lock = threading.Lock()
         self.merged_count = 0
         self.refused_count = 0
+        self.last_refusal = ""
         qos = fleet_qos(depth)
         self._pub = node.create_publisher(String, topic, qos)
         self._sub = node.create_subscription(String, topic, self._on_message, qos)
@@ -154,6 +179,7 @@ class FleetLink:
                             self._on_forgotten)
         except CoreInputError as exc:
             self.refused_count += 1
+            self.last_refusal = str(exc)[:200]
             self._node.get_logger().warning(f"{FLEET_TOPIC}: refused a message: {exc}",
                                             throttle_duration_sec=10.0)
             return
@@ -172,12 +198,10 @@ def parse_privacy_request(text: str, key_for: Callable[[str], str]) -> tuple[str
 
     A perceived id is hashed at once and never kept or logged.
     """
-    try:
-        doc = json.loads(text)
-    except ValueError as exc:
-        raise CoreInputError(f"{PRIVACY_TOPIC}: not JSON ({exc})") from None
+    doc = _load_json(text, PRIVACY_TOPIC)
     if not isinstance(doc, dict):
         raise CoreInputError(f"{PRIVACY_TOPIC}: expected a JSON object")
+    _refuse_surrogates(doc, PRIVACY_TOPIC, ("action", "person_id", "person_key"))
     action = doc.get("action")
     if action not in PRIVACY_ACTIONS:
         raise CoreInputError(f"{PRIVACY_TOPIC}: action {action!r} is not one of "
@@ -203,6 +227,8 @@ class PrivacyRequests:
                  on_applied: Optional[Callable[[str, str], None]] = None,
                  topic: str = PRIVACY_TOPIC) -> None:
         self._node, self._store, self._fleet, self._on_applied = node, store, fleet, on_applied
+        self.refused_count = 0        # counted like the node's input topics (diagnostics)
+        self.last_refusal = ""
         qos = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE,
                          durability=DurabilityPolicy.VOLATILE)
         self._sub = node.create_subscription(String, topic, self._on_message, qos)
@@ -223,7 +249,9 @@ class PrivacyRequests:
         try:
             action, key = self.apply(msg.data)
         except CoreInputError as exc:
-            self._node.get_logger().warning(str(exc))
+            self.refused_count += 1
+            self.last_refusal = str(exc)[:200]
+            self._node.get_logger().warning(str(exc), throttle_duration_sec=1.0)
             return
         self._node.get_logger().info(f"{PRIVACY_TOPIC}: {action} applied to {key[:12]}...")
 
