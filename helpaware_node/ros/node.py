@@ -108,6 +108,7 @@ class HelpAwareNode(LifecycleNode):
         # outcomes the store refused (disk full, read-only): kept in order and retried; while
         # any are held the node asks nobody, so it never acts on beliefs it could not save
         self.unsaved: list[StoredEvent] = []
+        self._unsaved_own: set[str] = set()     # ids of held outcomes made here: shared once saved
         self.unsaved_dropped = 0
         self.seen: dict[str, Seen] = {}
         self.needs: dict[str, OpenNeed] = {}
@@ -181,7 +182,7 @@ class HelpAwareNode(LifecycleNode):
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
         # fleet/outcomes in and out, and live opt-out/forget on privacy_request (docs/store.md)
-        self.fleet = FleetLink(self, self.store, append=self._ingest_event,
+        self.fleet = FleetLink(self, self.store, append=self._ingest_fleet_event,
                                on_forgotten=self._forget_in_memory)
         self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
             self._forget_in_memory(key) if action == "forget" else None))
@@ -380,9 +381,9 @@ class HelpAwareNode(LifecycleNode):
             event = StoredEvent(event_id=self.store.next_event_id(), person_key=ask.key,
                                 time_s=ask.asked_at_s, result=result, busyness=ask.busyness,
                                 ask_load=ask.ask_load, request_kind=ask.kind)
-            if self.unsaved:       # keep the store's order: older refused outcomes go first
-                self._hold_unsaved(event)
-            elif self._ingest_event(event, hold_on_failure=True):
+            if self.unsaved:       # the store is refusing writes: wait behind the others
+                self._hold_unsaved(event, own=True)
+            elif self._ingest_event(event, hold_on_failure=True, own=True):
                 self._share(event)
         need = self.needs.get(ask.request_id)
         if need is not None:
@@ -391,20 +392,21 @@ class HelpAwareNode(LifecycleNode):
             else:
                 self._decide(need)
 
-    def _ingest_event(self, event: StoredEvent, hold_on_failure: bool = False) -> bool:
+    def _ingest_event(self, event: StoredEvent, hold_on_failure: bool = False,
+                      own: bool = False) -> bool:
         """Store first, then learn: the belief is the store's fold of the person's events.
 
         Local outcomes and fleet events both come through here; a duplicate or opted-out
         event is not stored and changes nothing. When the store refuses the write (disk full,
-        read-only, I/O error) the belief is unchanged; a local outcome is held for retry
-        (`hold_on_failure`), a fleet event is left to its sender's re-offer at restart.
+        read-only, I/O error) the belief is unchanged and, with `hold_on_failure`, the event
+        is held for retry; `own` marks an outcome made here, shared with the fleet once saved.
         """
         try:
             stored = self.store.append(event)
         except Exception as exc:
             self._store_failed("append", exc)
             if hold_on_failure:
-                self._hold_unsaved(event)
+                self._hold_unsaved(event, own)
             return False
         health = getattr(self.store, "health", None)
         self.store_ok = health is None or health.level == "OK"
@@ -423,11 +425,18 @@ class HelpAwareNode(LifecycleNode):
                                 f"(check free disk space and that the file is writable)",
                                 throttle_duration_sec=5.0)
 
-    def _hold_unsaved(self, event: StoredEvent) -> None:
+    def _ingest_fleet_event(self, event: StoredEvent) -> bool:
+        """A peer's event: held like our own if the store refuses it (the peer sent it once),
+        but never re-shared, since the peer shares its own."""
+        return self._ingest_event(event, hold_on_failure=True)
+
+    def _hold_unsaved(self, event: StoredEvent, own: bool) -> None:
         if len(self.unsaved) >= MAX_UNSAVED_EVENTS:   # bounded memory: the oldest goes
-            self.unsaved.pop(0)
+            self._unsaved_own.discard(self.unsaved.pop(0).event_id)
             self.unsaved_dropped += 1
         self.unsaved.append(event)
+        if own:
+            self._unsaved_own.add(event.event_id)
 
     def _share(self, event: StoredEvent) -> None:
         if getattr(self, "fleet", None) is not None:
@@ -443,11 +452,14 @@ class HelpAwareNode(LifecycleNode):
                 self._store_failed("append (retry)", exc)
                 return
             self.unsaved.pop(0)
+            own = event.event_id in self._unsaved_own
+            self._unsaved_own.discard(event.event_id)
             if stored:      # False: opted out meanwhile, or already there
                 belief, t = self.store.belief(event.person_key, self.params.model)
                 rec = self.records.get(event.person_key) or PersonRecord.new(self.params.model)
                 self.records[event.person_key] = replace(rec, belief=belief, belief_time_s=t)
-                self._share(event)
+                if own:
+                    self._share(event)
         if self.store is not None:
             health = getattr(self.store, "health", None)
             self.store_ok = health is None or health.level == "OK"
@@ -464,6 +476,7 @@ class HelpAwareNode(LifecycleNode):
         self.records.pop(key, None)
         self._last_seen_s.pop(key, None)
         self.unsaved = [e for e in self.unsaved if e.person_key != key]
+        self._unsaved_own &= {e.event_id for e in self.unsaved}
         self.pending = {r: a for r, a in self.pending.items() if a.key != key}
 
     def _on_navigation_status(self, msg) -> None:

@@ -184,3 +184,37 @@ def test_forget_drops_an_outcome_held_for_a_full_store(ctx, tmp_path):
         assert store.events_for(key) == [] and rig.node.unsaved == []
     finally:
         rig.close()
+
+
+def test_fleet_event_during_a_full_store_is_held_and_not_shared_again(ctx, tmp_path):
+    """A peer's event arrives once (transient local history is not resent to a subscriber
+    that already has it), so a refused one is held like our own outcome; once saved, only
+    our own outcome goes out on fleet/outcomes, never the peer's copy."""
+    from std_msgs.msg import String
+    from helpaware_node.ros.fleet import FLEET_TOPIC, encode_event, fleet_qos
+    load_site_key(tmp_path / "site_key")
+    rig = Rig(ctx, namespace="/fleetfull", store_path=str(tmp_path / "b.sqlite3"),
+              robot_id="rP", pending_ask_timeout_s=600.0)
+    shared = []
+    rig.driver.create_subscription(String, FLEET_TOPIC, lambda m: shared.append(m.data),
+                                   fleet_qos())
+    try:
+        assert rig.connected() and rig.show_people([NURSE])
+        store = rig.node.store
+        assert rig.open_need("q1", "handover", urgency=1.0)["action"] == "ask"
+        _fill_until_full(store)
+        visitor = store.key_for("visitor-1")
+        peer = StoredEvent("peer/7", visitor, 50.0, Result.HELPED, 0.1, 0.0)
+        rig.node.fleet._on_message(String(data=encode_event(peer)))   # as the topic delivers it
+        rig.report("q1", "nurse-a", "helped")
+        assert [e.event_id for e in rig.node.unsaved][0] == "peer/7"
+        assert len(rig.node.unsaved) == 2
+        _unlimit(store)
+        assert rig.spin_until(lambda: not rig.node.unsaved)
+        assert [e.event_id for e in store.events_for(visitor)] == ["peer/7"]
+        own = store.events_for(store.key_for("nurse-a"))[0].event_id
+        assert rig.spin_until(lambda: any(f'"{own}"' in m for m in shared))
+        rig.spin_until(lambda: False, timeout_s=1.0)
+        assert not any('"peer/7"' in m for m in shared)
+    finally:
+        rig.close()
