@@ -2,8 +2,8 @@
 
 Topics (all relative names, so namespaces and remaps work):
   in  people       std_msgs/String (wire `people`), sensor-data QoS (best effort, depth 5)
-  in  task_status  std_msgs/String (wire `task_status`), reliable, depth 50
-  in  outcome      std_msgs/String (wire `outcome`), reliable, depth 50
+  in  task_status  std_msgs/String (wire `task_status`), reliable, depth 1000
+  in  outcome      std_msgs/String (wire `outcome`), reliable, depth 1000
   in  <navigation_status_topic> action_msgs/GoalStatusArray (when the parameter is set)
   out decision     std_msgs/String (wire `decision`), reliable, depth 50
   out markers      visualization_msgs/MarkerArray
@@ -38,6 +38,10 @@ from .params import NodeParameters
 NODE_NAME = "helpaware_decider"
 NAV_FAILURE_KIND = "navigation_failure"
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
+# inputs that must not be lost in a burst while a long callback holds the executor: a
+# KEEP_LAST reader overwrites the oldest unread message silently (depth is not part of QoS
+# matching, so publishers with any depth still connect)
+INPUT_QUEUE = QoSProfile(depth=1000, reliability=ReliabilityPolicy.RELIABLE)
 IN_VIEW_EXTRA_S = 5.0          # people stay listed (and marked) a little past the staleness limit
 HOUSEKEEPING_PERIOD_S = 0.5
 HOUR_S = 3600.0
@@ -168,9 +172,9 @@ class HelpAwareNode(LifecycleNode):
         subs = [
             self.create_subscription(String, "people", self._on_people, qos_profile_sensor_data,
                                      event_callbacks=sub_events),
-            self.create_subscription(String, "task_status", self._on_task_status, RELIABLE,
+            self.create_subscription(String, "task_status", self._on_task_status, INPUT_QUEUE,
                                      event_callbacks=sub_events),
-            self.create_subscription(String, "outcome", self._on_outcome, RELIABLE,
+            self.create_subscription(String, "outcome", self._on_outcome, INPUT_QUEUE,
                                      event_callbacks=sub_events),
         ]
         if s.navigation_status_topic:

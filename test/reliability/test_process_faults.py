@@ -12,9 +12,9 @@ CI size: 4 kills of the node, 1 fleet peer kill; HELPAWARE_SOAK=1 (make soak): 1
 plus the late-joiner check below. Run with -s to see the figures.
 
 Found here, pinned (not fixed in this file):
-- A burst of more than 50 outcomes while the node's executor is busy is overwritten in the
-  `outcome` subscription's reliable KEEP_LAST(50) history: 150 reported, 50 stored
-  (strict xfail; the change to node.py is requested in the session notes).
+- A burst of more than 50 outcomes while the node's executor was busy was overwritten in the
+  `outcome` subscription's reliable KEEP_LAST(50) history: 150 reported, 50 stored. Fixed:
+  `outcome` and `task_status` now keep 1000 (ros/node.py INPUT_QUEUE); regression test below.
 - A late joiner offered two peers' histories of 3 000 events each merged about 5 100 of
   6 000 (eight runs, baseline and variants: 5 034-5 918). Neither a KEEP_ALL reader, a 20x
   deeper reader history, nor draining the reader into memory at once fixed it with SQLite
@@ -215,12 +215,9 @@ def test_fleet_peer_killed_mid_exchange_catches_up_and_every_store_converges(tmp
         print(f"{n:>5} {v:>7} {b:>12} {d:>16} {t:>11} {e:>12} {0:>5} {c:>10.2f}")
 
 
-@pytest.mark.xfail(strict=True, reason="node.py subscribes to outcome with a reliable "
-                   "KEEP_LAST depth of 50: a burst beyond it is overwritten before the "
-                   "executor takes it (a change to ros/node.py is requested of its owner)")
 def test_a_burst_of_outcomes_beyond_the_queue_depth_reaches_the_store(ctx, tmp_path):
-    """150 answered asks reported at once while the node's executor is not spinning (as when
-    a long callback holds it): every outcome must be stored, none silently dropped."""
+    """Regression: 150 answered asks reported at once while the node's executor is not
+    spinning (as when a long callback holds it): every outcome is stored, none dropped."""
     from node_harness import Rig
     from rclpy.qos import QoSProfile, ReliabilityPolicy
     from std_msgs.msg import String
