@@ -213,6 +213,7 @@ class HelpAwareNode(LifecycleNode):
 
     def _teardown(self) -> None:
         self._active = False
+        self._report_unsaved()
         for e in self._entities:
             try:
                 if hasattr(e, "cancel"):
@@ -228,7 +229,14 @@ class HelpAwareNode(LifecycleNode):
             self.store.close()
             self.store = None
 
+    def _report_unsaved(self) -> None:
+        if self.unsaved:   # say what a stop while the store refuses writes costs
+            self.get_logger().error(f"stopping with {len(self.unsaved)} outcome(s) the store "
+                                    f"refused ({self.store_error}); they are not saved")
+            self.unsaved, self._unsaved_own = [], set()
+
     def destroy_node(self) -> None:
+        self._report_unsaved()
         if self.store is not None:
             self.store.close()
             self.store = None
@@ -438,6 +446,9 @@ class HelpAwareNode(LifecycleNode):
         if len(self.unsaved) >= MAX_UNSAVED_EVENTS:   # bounded memory: the oldest goes
             self._unsaved_own.discard(self.unsaved.pop(0).event_id)
             self.unsaved_dropped += 1
+            self.get_logger().error(f"{MAX_UNSAVED_EVENTS} outcomes wait for the store: the "
+                                    f"oldest is dropped ({self.unsaved_dropped} so far)",
+                                    throttle_duration_sec=10.0)
         self.unsaved.append(event)
         if own:
             self._unsaved_own.add(event.event_id)
