@@ -156,6 +156,8 @@ def build(values: dict[str, Any], pairs: bool = True
     if any(not a for a in config.protected_activities):
         raise CoreInputError("protected_activities: labels must be non-empty")
     node_values = {f.name: values[f.name] for f in dataclasses.fields(NodeSettings)}
+    if "/" in str(node_values["robot_id"]):   # event ids are "<robot_id>/<sequence>"
+        raise CoreInputError(f"robot_id: {node_values['robot_id']!r} must not contain '/'")
     for s in NODE_PARAMS:
         if s.low is not None and s.name in node_values:
             v = node_values[s.name]
@@ -188,7 +190,12 @@ class NodeParameters:
         node.add_on_set_parameters_callback(self._check)
         kind_desc = ParameterDescriptor(description=_describe(NODE_PARAMS[3]), read_only=True)
         kinds = node.declare_parameter(KINDS_PARAM, list(DEFAULT_CONTINUE_COSTS_S), kind_desc).value
+        if kinds is None:
+            raise CoreInputError(f"{KINDS_PARAM}: {_EMPTY_LIST}")
         kinds = [k for k in kinds if k]
+        if len(set(kinds)) != len(kinds):
+            twice = sorted({k for k in kinds if kinds.count(k) > 1})
+            raise CoreInputError(f"{KINDS_PARAM}: {', '.join(twice)} listed more than once")
         self.values = defaults(kinds)
         self.values[KINDS_PARAM] = list(kinds)
         for spec in all_specs(kinds):
@@ -204,10 +211,23 @@ class NodeParameters:
             node.declare_parameter(spec.name, spec.default, desc)
         self._declaring = False
         self.model, self.config, self.settings = build(self.values)  # pairs, from the file too
+        _check_topic(node, self.settings.navigation_status_topic)
+        # a misspelt name in a parameter file is ignored by ROS: say so, naming it
+        overrides = getattr(node, "_parameter_overrides", {}) or {}
+        self.unknown_overrides = sorted(n for n in overrides if not node.has_parameter(n))
+        if self.unknown_overrides:
+            node.get_logger().warning(
+                "parameter file sets parameters this node does not have (ignored): "
+                + ", ".join(self.unknown_overrides[:20]))
 
     def _check(self, params):
         proposed = dict(self.values)
         for p in params:
+            if p.value is None and p.name in self.values:
+                reason = f"{p.name}: {_EMPTY_LIST}"
+                self.rejected += 1
+                self.last_rejection = reason
+                return self._result(successful=False, reason=reason)
             proposed[p.name] = plain_value(p.value)
         try:
             built = build(proposed, pairs=not self._declaring)
@@ -220,6 +240,22 @@ class NodeParameters:
         if self._on_change is not None:
             self._on_change()
         return self._result(successful=True)
+
+
+_EMPTY_LIST = ("has no value: an empty list [] carries no type in a ROS 2 parameter file; "
+               "leave the parameter out for its default")
+
+
+def _check_topic(node, topic: str) -> None:
+    """A topic name rclpy cannot resolve would fail the configure step with no message."""
+    if not topic:
+        return
+    try:
+        node.resolve_topic_name(topic)
+    except Exception as exc:   # rclpy's InvalidTopicNameException or an RCLError
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+        raise CoreInputError(f"navigation_status_topic: {topic!r} is not a valid topic name "
+                             f"({first[:120]})") from None
 
 
 def _describe(spec: ParamSpec) -> str:

@@ -236,8 +236,7 @@ RAW_STATS = {t: collections.Counter() for t in TOPICS}
 @pytest.fixture(scope="module")
 def rig(ctx, tmp_path_factory):
     store = tmp_path_factory.mktemp("fuzzstore") / "beliefs.sqlite3"
-    r = Rig(ctx, namespace="/infuzz", store_path=str(store), robot_id="fuzzbot",
-            max_asks_per_hour=100000)
+    r = Rig(ctx, namespace="/infuzz", store_path=str(store), robot_id="fuzzbot")
     assert r.connected()
     assert r.show_people([{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1},
                           {"id": "porter-b", "distance_m": 3.0, "busyness": 0.2}])
