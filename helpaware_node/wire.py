@@ -18,7 +18,7 @@ from dataclasses import dataclass, field
 from typing import Any, Iterable, Mapping, Optional, Sequence
 
 from .core.belief import Belief
-from .core.model import DecisionConfig, SiteModel, from_plain, to_plain
+from .core.model import MAX_ASKS_CAP, DecisionConfig, SiteModel, from_plain, to_plain
 from .core.person import Result
 from .core.policy import HOUR_S, Candidate, Decision, HelpNeed
 
@@ -28,7 +28,7 @@ MAX_PEOPLE = 500
 MAX_ID_CHARS = 128
 MAX_LABEL_CHARS = 64
 MAX_TEXT_CHARS = 256
-MAX_TIMES = 1000
+MAX_TIMES = MAX_ASKS_CAP     # every ask a cap counts fits in a decision document
 MAX_CANDIDATES = MAX_PEOPLE
 TIME_LIMIT_S = 1e15
 BIG = 1e15

@@ -225,3 +225,30 @@ def test_builders_round_trip_into_core_values():
     seen = wire.people_from(wire.decode("people", wire.people_document(
         [{"id": "n1", "distance_m": 3.0, "position": [1.0, 2.0, 3.0]}], 5.0)))
     assert seen[0].person_id == "n1" and seen[0].busyness is None and seen[0].position == (1.0, 2.0, 3.0)
+
+
+def test_a_decision_at_the_largest_caps_is_a_valid_document():
+    """Found by the load work: the caps used to allow 100 000 asks while a decision document
+    holds 1 000 ask times, so a robot allowed that many would publish decisions that review
+    and replay refuse. The caps now stop at MAX_ASKS_CAP = wire.MAX_TIMES, and a decision at
+    that cap, with a person asked that often too, still decodes."""
+    from helpaware_node.core import PersonRecord, candidate_from_record, note_ask
+    from helpaware_node.core.model import MAX_ASKS_CAP, CoreInputError
+    assert wire.MAX_TIMES == MAX_ASKS_CAP
+    model = SiteModel()
+    config = DecisionConfig(max_asks_per_hour=MAX_ASKS_CAP,
+                            max_asks_per_person_per_day=MAX_ASKS_CAP, min_reask_interval_s=0.0)
+    with pytest.raises(CoreInputError, match=r"max_asks_per_hour.*\[0, 1000\]"):
+        DecisionConfig(max_asks_per_hour=MAX_ASKS_CAP + 1)
+    now = 10_000.0
+    rec = PersonRecord.new(model)
+    for k in range(3 * MAX_ASKS_CAP):          # more asks than any cap lets through
+        rec = note_ask(rec, now - 3000.0 + k * 0.5, model)
+    assert len(rec.ask_times_s) == MAX_ASKS_CAP
+    robot = [now - 3000.0 + k * 3.0 for k in range(MAX_ASKS_CAP)]
+    cand = candidate_from_record("p1", rec, now, model, 1.0, now, busyness=0.0)
+    decision = decide(HelpNeed("r1", "door", now), [cand], now, robot, model, config)
+    text = wire.decision_text(decision, robot, model, config, robot_id="r")
+    doc = wire.decode("decision", text)
+    assert len(doc["robot_ask_times_s"]) == MAX_ASKS_CAP
+    assert len(doc["candidates"][0]["ask_times_s"]) == MAX_ASKS_CAP

@@ -15,6 +15,10 @@ from dataclasses import dataclass, field
 from typing import Any, Mapping
 
 
+# the most asks a cap may allow: every ask the cap counts travels in each decision document,
+# whose time lists hold at most this many (wire.MAX_TIMES), so review and replay can read it
+MAX_ASKS_CAP = 1000
+
 class CoreInputError(ValueError):
     """A value given to the core is outside what the model allows (names field and range)."""
 
@@ -112,8 +116,9 @@ class DecisionConfig:
         check_range("max_observation_age_s", self.max_observation_age_s, 0.0, 1e9)
         for name in ("max_asks_per_person_per_day", "max_asks_per_hour"):
             v = getattr(self, name)
-            if isinstance(v, bool) or not isinstance(v, int) or v < 0 or v > 100000:
-                raise CoreInputError(f"{name}: {v!r} must be a whole number in [0, 100000]")
+            if isinstance(v, bool) or not isinstance(v, int) or v < 0 or v > MAX_ASKS_CAP:
+                raise CoreInputError(f"{name}: {v!r} must be a whole number in "
+                                     f"[0, {MAX_ASKS_CAP}]")
         for kind, cost in self.continue_costs_s.items():
             if not isinstance(kind, str) or not kind:
                 raise CoreInputError(f"continue_costs_s: kind {kind!r} must be a non-empty string")

@@ -11,7 +11,7 @@ from typing import Iterable
 
 from .belief import Belief, forget, update_declined, update_helped, update_no_response
 from .context import context_factor
-from .model import CoreInputError, SiteModel, check_range
+from .model import MAX_ASKS_CAP, CoreInputError, SiteModel, check_range
 
 DAY_S = 86400.0
 
@@ -129,6 +129,9 @@ def note_ask(record: PersonRecord, now_s: float, model: SiteModel) -> PersonReco
     stays "in the future" once the clock is back, and excludes the person until then."""
     horizon = max(DAY_S, 10.0 * model.ask_memory_half_life_s)
     kept = tuple(t for t in record.ask_times_s if now_s - t < horizon)
+    # at most MAX_ASKS_CAP in all (what a decision document carries); with any daily cap
+    # allowed, the ones beyond are over a day old
+    kept = kept[len(kept) - min(len(kept), MAX_ASKS_CAP - 1):]
     return replace(record, ask_times_s=kept + (now_s,))
 
 

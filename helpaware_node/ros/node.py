@@ -230,7 +230,8 @@ class HelpAwareNode(LifecycleNode):
             self.store = None
 
     def _report_unsaved(self) -> None:
-        if self.unsaved:   # say what a stop while the store refuses writes costs
+        if getattr(self, "unsaved", None):   # what a stop while the store refuses writes costs
+            # (getattr: destroy_node also runs for a node whose parameters were refused)
             self.get_logger().error(f"stopping with {len(self.unsaved)} outcome(s) the store "
                                     f"refused ({self.store_error}); they are not saved")
             self.unsaved, self._unsaved_own = [], set()

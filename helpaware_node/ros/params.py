@@ -12,7 +12,8 @@ import math
 from dataclasses import dataclass
 from typing import Any, Callable, Optional
 
-from ..core.model import DEFAULT_CONTINUE_COSTS_S, CoreInputError, DecisionConfig, SiteModel
+from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, CoreInputError, DecisionConfig,
+                          SiteModel)
 
 MODEL_DEFAULTS = SiteModel()
 CONFIG_DEFAULTS = DecisionConfig()
@@ -81,8 +82,10 @@ CONFIG_PARAMS = [
     _c("prior_candidate_rate_per_day", "prior rate of being a candidate at a need", "per day", 0.0, 1e9),
     _c("prior_rate_window_s", "weight of that prior rate", "seconds", 1e-3, 1e12),
     _c("min_reask_interval_s", "minimum interval before asking the same person again", "seconds", 0.0, 1e9),
-    _c("max_asks_per_person_per_day", "most asks of one person in 24 h", "asks per day", 0, 100000),
-    _c("max_asks_per_hour", "most asks by this robot in one hour", "asks per hour", 0, 100000),
+    _c("max_asks_per_person_per_day", "most asks of one person in 24 h", "asks per day", 0,
+       MAX_ASKS_CAP),
+    _c("max_asks_per_hour", "most asks by this robot in one hour", "asks per hour", 0,
+       MAX_ASKS_CAP),
     _c("busyness_limit", "never ask at or above this busyness", "fraction [0, 1]", 0.0, 1.0),
     _c("max_distance_m", "never ask someone farther away", "metres", 0.0, 1e6),
     _c("max_observation_age_s", "never ask on an observation older than this", "seconds", 0.0, 1e9),

@@ -35,7 +35,7 @@ NAMESPACE = "/loadtest"
 # limits opened so the node keeps asking for the whole run (limits have their own suite):
 # at most one ask of a person every 5 s, no daily or hourly cap in reach
 LOAD_OVERRIDES = {"robot_id": "load-robot", "min_reask_interval_s": 5.0,
-                  "max_asks_per_person_per_day": 100000, "max_asks_per_hour": 100000}
+                  "max_asks_per_person_per_day": 1000, "max_asks_per_hour": 1000}
 
 # Bounded memory: the RSS at the end minus the RSS at the midpoint of the run.
 # In the second half of the CI run (5 s) the node takes 150 people documents of 100 people
