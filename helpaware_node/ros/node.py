@@ -94,7 +94,10 @@ class HelpAwareNode(LifecycleNode):
     """Decides at each help need whether to ask a nearby person, and whom."""
 
     def __init__(self, node_name: str = NODE_NAME, **kwargs) -> None:
-        super().__init__(node_name, **kwargs)
+        try:
+            super().__init__(node_name, **kwargs)
+        except rclpy.exceptions.ParameterException as exc:   # e.g. use_sim_time: 1 in a file
+            raise StartupError(f"parameters refused: {exc}") from exc
         self.store = None
         self.records: dict[str, PersonRecord] = {}
         self.max_records = MAX_PEOPLE_IN_MEMORY
@@ -160,6 +163,19 @@ class HelpAwareNode(LifecycleNode):
         if health is not None and health.level != "OK":   # e.g. a damaged file moved aside
             self.store_ok, self.store_error = False, health.message[:200]
             self.get_logger().error(health.message)
+        try:
+            self._create_entities(s)
+        except Exception as exc:   # the lifecycle machinery would swallow it without a word
+            self._configure_error = f"configure failed: {type(exc).__name__}: {exc}"
+            self.get_logger().error(self._configure_error)
+            self._teardown()
+            return TransitionCallbackReturn.FAILURE
+        self.get_logger().info(f"configured: store {self._store_file or '(memory)'}, "
+                               f"params {self.params_hash()}")
+        return TransitionCallbackReturn.SUCCESS
+
+    def _create_entities(self, s) -> None:
+        """Publishers, subscriptions, timers, fleet link and privacy requests (configure)."""
         from rclpy.event_handler import SubscriptionEventCallbacks, PublisherEventCallbacks
         sub_events = SubscriptionEventCallbacks(incompatible_qos=self._on_qos_incompatible)
         pub_events = PublisherEventCallbacks(incompatible_qos=self._on_qos_incompatible)
@@ -191,9 +207,6 @@ class HelpAwareNode(LifecycleNode):
         self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
             self._forget_in_memory(key) if action == "forget" else None))
         self._entities += self.fleet.entities + [self.privacy._sub]
-        self.get_logger().info(f"configured: store {self._store_file or '(memory)'}, "
-                               f"params {self.params_hash()}")
-        return TransitionCallbackReturn.SUCCESS
 
     def on_activate(self, state: LifecycleState) -> TransitionCallbackReturn:
         self._active = True
@@ -637,7 +650,7 @@ class HelpAwareNode(LifecycleNode):
         self._publish_markers(stamp)
         period = self.params.settings.diagnostics_period_s
         rates = self.counters.rates_since_tick(period)
-        new_rej = self.counters.new_rejections_since_tick()
+        new_rej = self.counters.new_rejections_since_tick() + self._new_side_refusals()
         level, message = diag.level_for(new_rej, self.counters.qos_incompatible, self.store_ok)
         if self.unsaved:
             message = (f"store refuses writes: asking paused, {len(self.unsaved)} outcome(s) "
@@ -648,6 +661,9 @@ class HelpAwareNode(LifecycleNode):
             values[f"{k}.received"] = self.counters.received[k]
             values[f"{k}.rejected"] = self.counters.rejected[k]
             values[f"{k}.last_rejection"] = self.counters.last_reason[k]
+        for name, part in self._side_inputs():
+            values[f"{name}.rejected"] = part.refused_count
+            values[f"{name}.last_rejection"] = part.last_refusal
         store_name = type(self.store).__name__ if self.store is not None else "closed"
         values.update({
             "open_needs": len(self.needs), "pending_asks": len(self.pending),
@@ -675,6 +691,17 @@ class HelpAwareNode(LifecycleNode):
         self.diag_pub.publish(diag.status_array(f"{self.get_name()}: decision",
                                                 self.get_fully_qualified_name(), stamp, values,
                                                 level, message))
+
+    def _side_inputs(self) -> list:
+        """The fleet and privacy topics: refusals counted by their own handlers."""
+        return [(name, part) for name, part in (("fleet_outcomes", getattr(self, "fleet", None)),
+                                                ("privacy_request", getattr(self, "privacy", None)))
+                if part is not None]
+
+    def _new_side_refusals(self) -> int:
+        total = sum(part.refused_count for _, part in self._side_inputs())
+        new, self._side_refusals_seen = total - getattr(self, "_side_refusals_seen", 0), total
+        return max(new, 0)
 
     def _publish_markers(self, stamp) -> None:
         markers = []

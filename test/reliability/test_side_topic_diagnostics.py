@@ -1,0 +1,37 @@
+"""Refusals on fleet/outcomes and privacy_request reach /diagnostics like the main inputs:
+counted, the last reason shown, and the status WARN for the period they happened in."""
+from diagnostic_msgs.msg import DiagnosticStatus
+from std_msgs.msg import String
+
+from helpaware_node.ros.fleet import FLEET_TOPIC, PRIVACY_TOPIC, fleet_qos
+
+from node_harness import Rig
+
+
+def test_fleet_and_privacy_refusals_are_reported(ctx):
+    rig = Rig(ctx, namespace="/sidediag", store_path="memory")
+    try:
+        assert rig.connected()
+        fleet_pub = rig.driver.create_publisher(String, FLEET_TOPIC, fleet_qos())
+        privacy_pub = rig.driver.create_publisher(String, PRIVACY_TOPIC, 10)
+        assert rig.spin_until(lambda: fleet_pub.get_subscription_count() > 0
+                              and privacy_pub.get_subscription_count() > 0)
+        fleet_pub.publish(String(data='{"v": 1, "kind": "outcome", "person_key": "nurse-a"}'))
+        privacy_pub.publish(String(data='{"action": "shout", "person_id": "nurse-a"}'))
+
+        def reported():
+            for arr in rig.diagnostics:
+                for s in arr.status:
+                    v = {x.key: x.value for x in s.values}
+                    if (v.get("fleet_outcomes.rejected") == "1"
+                            and v.get("privacy_request.rejected") == "1"):
+                        return s
+            return None
+        assert rig.spin_until(lambda: reported() is not None)
+        status = reported()
+        values = {x.key: x.value for x in status.values}
+        assert values["fleet_outcomes.last_rejection"] and values["privacy_request.last_rejection"]
+        assert "action" in values["privacy_request.last_rejection"]
+        assert status.level == DiagnosticStatus.WARN
+    finally:
+        rig.close()
