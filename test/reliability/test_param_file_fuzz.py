@@ -109,6 +109,8 @@ CHAR_EDITS = scaled(80, 1500)
 LINE_EDITS = scaled(40, 600)
 WRONG_TYPES_PER_PARAM = 2             # of the 7 other YAML types (all 7 under soak)
 CHILDREN = 2                          # batch processes side by side (a 2-core machine)
+CHUNK = 160                           # files per child process
+CHILD_TIMEOUT_S = 300                 # per chunk; a hang fails naming the file it was on
 SEED = 20261202
 SEED_FILES = ("hospital_night.yaml", "default.yaml")
 SPECS = {s.name: s for s in params.all_specs()}
@@ -226,42 +228,50 @@ def corpus(tmp_path) -> list[dict]:
     return cases
 
 
+def _start_child(cases, mine, tmp_path, k):
+    ros_home = tmp_path / f"ros_home_{k}"      # a store of its own for each child
+    ros_home.mkdir()
+    workdir = tmp_path / f"cwd_{k}"           # a flipped store_path may name a relative file
+    workdir.mkdir()
+    manifest = tmp_path / f"manifest_{k}.json"
+    manifest.write_text(json.dumps([cases[i] for i in mine]))
+    return subprocess.Popen([sys.executable, os.path.abspath(__file__), str(manifest)],
+                            cwd=workdir, env=dict(os.environ, ROS_HOME=str(ros_home)),
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+
+
+def _collect(cases, mine, proc):
+    try:
+        out, err = proc.communicate(timeout=CHILD_TIMEOUT_S)
+    except subprocess.TimeoutExpired:
+        proc.kill()
+        out, err = proc.communicate()
+    got, started = {}, None
+    for line in out.splitlines():
+        if line.startswith("{"):
+            row = json.loads(line)
+            if "start" in row:
+                started = row["start"]
+            else:
+                got[mine[row["i"]]] = {**row, "i": mine[row["i"]]}
+    if proc.returncode != 0 or len(got) != len(mine):
+        culprit = cases[mine[started]]["path"] if started is not None else "(none started)"
+        pytest.fail(f"a batch child ended with {proc.returncode} at {culprit}: {err[-1500:]}")
+    return got
+
+
 def run_batch(cases, tmp_path):
-    """The files split over CHILDREN child processes; returns {index: result}.
-    A child that dies (a segfault in rcl, say) names the file it was on."""
-    procs = []
-    for k in range(CHILDREN):
-        ros_home = tmp_path / f"ros_home_{k}"      # a store of its own for each child
-        ros_home.mkdir()
-        workdir = tmp_path / f"cwd_{k}"           # a flipped store_path may name a relative file
-        workdir.mkdir()
-        env = dict(os.environ, ROS_HOME=str(ros_home))
-        mine = list(range(k, len(cases), CHILDREN))
-        manifest = tmp_path / f"manifest_{k}.json"
-        manifest.write_text(json.dumps([cases[i] for i in mine]))
-        procs.append((mine, subprocess.Popen(
-            [sys.executable, os.path.abspath(__file__), str(manifest)], cwd=workdir, env=env,
-            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)))
-    results = {}
-    for mine, proc in procs:
-        try:
-            out, err = proc.communicate(timeout=300)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            out, err = proc.communicate()
-        got, started = {}, None
-        for line in out.splitlines():
-            if line.startswith("{"):
-                row = json.loads(line)
-                if "start" in row:
-                    started = row["start"]
-                else:
-                    got[mine[row["i"]]] = {**row, "i": mine[row["i"]]}
-        if proc.returncode != 0 or len(got) != len(mine):
-            culprit = cases[mine[started]]["path"] if started is not None else "(none started)"
-            pytest.fail(f"a batch child ended with {proc.returncode} at {culprit}: "
-                        f"{err[-1500:]}")
-        results.update(got)
+    """The files in chunks of CHUNK, CHILDREN child processes at a time (a fresh process per
+    chunk: the cost per context grows over thousands of them); returns {index: result}.
+    A child that dies (a segfault in rcl, say) or hangs names the file it was on."""
+    chunks = [list(range(i, min(i + CHUNK, len(cases)))) for i in range(0, len(cases), CHUNK)]
+    results, running = {}, []
+    for k, mine in enumerate(chunks):
+        if len(running) == CHILDREN:
+            results.update(_collect(cases, *running.pop(0)))
+        running.append((mine, _start_child(cases, mine, tmp_path, k)))
+    for mine, proc in running:
+        results.update(_collect(cases, mine, proc))
     return results
 
 
@@ -344,7 +354,7 @@ def test_zz_report_counts(fuzz, capsys):
         table[case["kind"]][results[i]["outcome"]] += 1
     with capsys.disabled():
         print(f"\nparameter-file fuzz: {len(cases)} files in {seconds:.1f} s "
-              f"({CHILDREN} child processes)")
+              f"({CHILDREN} child processes at a time, {CHUNK} files each)")
         print(f"{'kind':<20}{'files':>7}{'config':>8}{'rcl':>6}{'startup':>9}")
         for kind, c in sorted(table.items()):
             print(f"{kind:<20}{sum(c.values()):>7}{c['config']:>8}{c['rcl']:>6}{c['startup']:>9}")
