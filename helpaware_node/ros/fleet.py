@@ -9,6 +9,13 @@ reliable and transient local with a deep history, and a robot re-offers its most
 stored events at start, so a robot that starts late catches up.  The merge is store.append:
 idempotent by event id, and the fold orders events by (time, event id), so any arrival order
 and any duplication yield the same beliefs on every robot.
+
+Catch-up of a late joiner: the topic has no key, so a reader's KEEP_LAST depth is shared by
+ALL writers, and several peers' histories together (2 x 3 000) overflow a 5 000-deep reader
+while it is still taking them (DDS delivers them faster than Python takes them; a slow store
+makes it worse).  So the reader keeps all (KEEP_ALL: a reliable reader that is full makes the
+writers resend instead of losing), the callback only decodes and queues, and a short timer
+stores the queue in batches (one transaction, sorted by time) before anything learns from it.
 """
 from __future__ import annotations
 
@@ -16,6 +23,8 @@ import argparse
 import json
 import sys
 import threading
+import time
+from collections import deque
 from typing import Callable, Iterable, Optional
 
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
@@ -28,12 +37,26 @@ from ..store.sqlite import PERSON_KEY_RE, check_event
 FLEET_TOPIC = "fleet/outcomes"
 FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
 FORMAT_VERSION = 1
+MERGE_PERIOD_S = 0.05           # how often the queue of received fleet events is looked at
+MERGE_BATCH = 500               # events stored per tick at most (one transaction)
+MERGE_TICK_BUDGET_S = 0.1       # one-by-one appends (the node's ingest): work per tick at most
+MERGE_WAIT_S = 0.2              # a smaller batch waits this long for more (catch-up: 6 000
+                                # events out of order take 24 s one by one, 2 s in 500s)
+MAX_QUEUED = 200_000            # bound on events received but not yet stored (~40 peers' histories)
 
 Merged = Callable[[list[StoredEvent]], None]
 
 
 def fleet_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
     return QoSProfile(history=HistoryPolicy.KEEP_LAST, depth=depth,
+                      reliability=ReliabilityPolicy.RELIABLE,
+                      durability=DurabilityPolicy.TRANSIENT_LOCAL)
+
+
+def fleet_reader_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
+    """The subscription's QoS: keeps all, since one reader holds every peer's history at
+    once (`depth` only matters to readers that fall back to keep-last)."""
+    return QoSProfile(history=HistoryPolicy.KEEP_ALL, depth=depth,
                       reliability=ReliabilityPolicy.RELIABLE,
                       durability=DurabilityPolicy.TRANSIENT_LOCAL)
 
@@ -126,32 +149,55 @@ def merge(store, text: str, forgotten: set[str] | None = None,
 
 
 class FleetLink:
-    """Publishes this robot's outcomes and merges everyone else's into the store."""
+    """Publishes this robot's outcomes and merges everyone else's into the store.
+
+    Received events are decoded (and refused) at once, queued, and stored by a timer in
+    batches of up to MERGE_BATCH (a smaller batch after MERGE_WAIT_S), sorted by (time,
+    event id): with the store's `append_many` in one transaction, else one `append` (or the
+    owner's `append`) per event; an owner that learns per batch passes `append_many` (store
+    the batch, then learn; returns the events stored).  Only after an event is stored does
+    anything learn from it (`on_merged`, or the owner's callback itself).  A forget is
+    applied at once, and a queued event of a forgotten key is dropped when its batch is
+    stored.
+    """
 
     def __init__(self, node, store, on_merged: Optional[Merged] = None,
                  topic: str = FLEET_TOPIC, depth: int = FLEET_HISTORY_DEPTH,
                  replay: bool = True, append: Optional[Callable[[StoredEvent], bool]] = None,
-                 on_forgotten: Optional[Callable[[str], None]] = None) -> None:
+                 on_forgotten: Optional[Callable[[str], None]] = None,
+                 append_many: Optional[Callable[[list[StoredEvent]],
+                                                list[StoredEvent]]] = None) -> None:
         self._node = node
         self._store = store
         self._on_merged = on_merged
         self._append = append
+        self._append_many = append_many
         self._on_forgotten = on_forgotten
         self._forgotten: set[str] = set()
-        self._lock = threading.Lock()
+        self._lock = threading.RLock()
+        self._queued: deque[StoredEvent] = deque()
+        self._queued_since_s = 0.0      # monotonic time the oldest queued event arrived
         self.merged_count = 0
         self.refused_count = 0
         self.last_refusal = ""
-        qos = fleet_qos(depth)
-        self._pub = node.create_publisher(String, topic, qos)
-        self._sub = node.create_subscription(String, topic, self._on_message, qos)
+        self.dropped_count = 0          # queue full (MAX_QUEUED): counted and logged
+        self.store_failures = 0         # a batch the store refused: kept and tried again
+        self._pub = node.create_publisher(String, topic, fleet_qos(depth))
+        self._sub = node.create_subscription(String, topic, self._on_delivery,
+                                             fleet_reader_qos(depth))
+        self._timer = node.create_timer(MERGE_PERIOD_S, self._on_tick)
         if replay and hasattr(store, "recent_events"):
             self.publish_many(store.recent_events(depth))   # re-offer after a restart
 
     @property
     def entities(self) -> list:
-        """Publisher and subscription, for the owner's teardown."""
-        return [self._pub, self._sub]
+        """Publisher, subscription and merge timer, for the owner's teardown."""
+        return [self._pub, self._sub, self._timer]
+
+    @property
+    def queued_count(self) -> int:
+        """Events received but not yet stored."""
+        return len(self._queued)
 
     def publish(self, event: StoredEvent) -> None:
         """Share one outcome (call after store.append has returned True)."""
@@ -165,28 +211,119 @@ class FleetLink:
         """Forget here and ask every robot to forget too."""
         with self._lock:
             self._forgotten.add(person_key)
-        n = self._store.forget(person_key)
+            n = self._store.forget(person_key)
         if self._on_forgotten is not None:
             self._on_forgotten(person_key)
         self._pub.publish(String(data=encode_forget(person_key, getattr(
             self._store, "robot_id", ""))))
         return n
 
+    # -- receiving
+    def _on_delivery(self, msg: String) -> None:
+        """The subscription callback: decode, queue, return (storing is the timer's job)."""
+        item = self._decode_counted(msg.data)
+        if item is None:
+            return
+        kind, value = item
+        if kind == "forget":
+            self._apply_forget(value)
+        elif len(self._queued) >= MAX_QUEUED:
+            self.dropped_count += 1
+            self._node.get_logger().error(
+                f"{FLEET_TOPIC}: {MAX_QUEUED} events waiting to be stored; dropped "
+                f"{value.event_id} (is the store very slow?)", throttle_duration_sec=10.0)
+        else:
+            if not self._queued:
+                self._queued_since_s = time.monotonic()
+            self._queued.append(value)
+
     def _on_message(self, msg: String) -> None:
+        """Apply one message now, after everything queued (as one delivery, stored at once)."""
+        self._on_delivery(msg)
+        self.flush()
+
+    def flush(self) -> int:
+        """Store everything queued now; returns the events that were new here."""
+        n = 0
+        while self._queued:
+            stored = self._store_queued()
+            if stored is None:
+                break          # the store refused: the rest waits for the timer
+            n += stored
+        return n
+
+    def _decode_counted(self, text: str):
         try:
-            with self._lock:
-                new = merge(self._store, msg.data, self._forgotten, self._append,
-                            self._on_forgotten)
+            return decode(text)
         except CoreInputError as exc:
             self.refused_count += 1
             self.last_refusal = str(exc)[:200]
             self._node.get_logger().warning(f"{FLEET_TOPIC}: refused a message: {exc}",
                                             throttle_duration_sec=10.0)
-            return
+            return None
+
+    def _apply_forget(self, key: str) -> None:
+        with self._lock:
+            self._forgotten.add(key)
+            self._store.forget(key)
+        if self._on_forgotten is not None:
+            self._on_forgotten(key)
+
+    def _on_tick(self) -> None:
+        """The timer: store a full batch at once, a smaller one once it waited MERGE_WAIT_S."""
+        if self._queued and (len(self._queued) >= MERGE_BATCH
+                             or time.monotonic() - self._queued_since_s >= MERGE_WAIT_S):
+            self._store_queued()
+
+    def _store_queued(self) -> Optional[int]:
+        """One batch from the queue into the store, then learn from it (the timer callback).
+
+        Returns how many were new, or None when the store refused (the rest stays queued).
+        """
+        if not self._queued:
+            return 0
+        with self._lock:
+            batch = [self._queued.popleft() for _ in range(min(MERGE_BATCH, len(self._queued)))]
+            fresh = [e for e in batch if e.person_key not in self._forgotten]
+            fresh.sort(key=lambda e: (float(e.time_s), e.event_id))
+            new, rest, error = self._store_batch(fresh)
+            if rest:                         # back at the front, still in order
+                self._queued.extendleft(reversed(rest))
+            if self._queued:
+                self._queued_since_s = time.monotonic()     # the rest: next batch
+        if error is not None:                # disk full, read-only...: kept, tried again
+            self.store_failures += 1
+            self._node.get_logger().error(
+                f"{FLEET_TOPIC}: the store refused fleet events ({error}); {len(rest)} kept "
+                "and tried again", throttle_duration_sec=10.0)
         if new:
             self.merged_count += len(new)
             if self._on_merged is not None:
                 self._on_merged(new)
+        return None if error is not None else len(new)
+
+    def _store_batch(self, events: list[StoredEvent]):
+        """(stored, not yet tried, error): a batch call is all or nothing; one call per event
+        stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not held long."""
+        whole = self._append_many or (None if self._append is not None
+                                      else getattr(self._store, "append_many", None))
+        if whole is not None:
+            try:
+                return list(whole(events)), [], None
+            except Exception as exc:
+                return [], events, exc
+        one = self._append or self._store.append
+        stored: list[StoredEvent] = []
+        deadline_s = time.monotonic() + MERGE_TICK_BUDGET_S
+        for i, e in enumerate(events):
+            if i and time.monotonic() > deadline_s:
+                return stored, events[i:], None
+            try:
+                if one(e):
+                    stored.append(e)
+            except Exception as exc:
+                return stored, events[i:], exc
+        return stored, [], None
 
 
 PRIVACY_TOPIC = "privacy_request"
@@ -271,7 +408,11 @@ def run_peer(argv: list[str] | None = None) -> int:
     p.add_argument("--store", required=True)
     p.add_argument("--key-file", required=True)
     p.add_argument("--robot-id", required=True)
+    p.add_argument("--depth", type=int, default=FLEET_HISTORY_DEPTH,
+                   help="history kept per publisher and re-offered at start (messages)")
     args = p.parse_args(argv)
+    if args.depth < 1:
+        p.error(f"--depth: {args.depth} must be >= 1")
     store = open_store(args.store, args.robot_id, key_path=args.key_file)
     out_lock = threading.Lock()
 
@@ -282,7 +423,8 @@ def run_peer(argv: list[str] | None = None) -> int:
 
     rclpy.init()
     node = rclpy.create_node(f"fleet_peer_{args.robot_id}")
-    link = FleetLink(node, store, lambda evs: [say(f"merged {e.event_id}") for e in evs])
+    link = FleetLink(node, store, lambda evs: [say(f"merged {e.event_id}") for e in evs],
+                     depth=args.depth)
     executor = SingleThreadedExecutor()
     executor.add_node(node)
     spin = threading.Thread(target=executor.spin, daemon=True)

@@ -4,7 +4,8 @@
   (core.person.fold_events in (time, event id) order) and is updated in the same
   transaction as the event, so the two never disagree.
 - WAL mode, synchronous=FULL, one transaction per outcome: when append() returns the
-  outcome survives a crash or power loss.
+  outcome survives a crash or power loss.  append_many() stores a batch (fleet catch-up) in
+  one such transaction.
 - secure_delete is on, and forget() checkpoints the WAL with TRUNCATE, so erased rows do not
   linger in free pages or in the log.
 - A damaged file is moved aside (never deleted) and the store starts on priors with
@@ -220,7 +221,13 @@ class SqliteStore:
                     c.execute("ROLLBACK")
                 raise
 
-    def _append_in_tx(self, event: StoredEvent, row: tuple) -> bool:
+    def _append_in_tx(self, event: StoredEvent, row: tuple,
+                      refold_later: set[str] | None = None) -> bool:
+        """Insert one event inside the open transaction and keep its snapshot the fold.
+
+        With `refold_later` (a batch), a person whose event arrives out of order is refolded
+        once at the end of the batch instead of at every such event.
+        """
         c = self._conn
         key = event.person_key
         if c.execute("SELECT 1 FROM opt_out WHERE person_key = ?", (key,)).fetchone():
@@ -235,7 +242,9 @@ class SqliteStore:
                         row)
         if cur.rowcount == 0:
             return False
-        if (snap is not None and snap[5] == self._model_hash and snap[2] is not None
+        if refold_later is not None and key in refold_later:
+            pass                # refolded once when the batch ends
+        elif (snap is not None and snap[5] == self._model_hash and snap[2] is not None
                 and order > (snap[2], snap[3])):
             belief, last = fold_events([event.to_outcome()], self.model,
                                        Belief(snap[0], snap[1]), snap[2])
@@ -247,6 +256,8 @@ class SqliteStore:
             c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
                       "event_count, model_hash) VALUES (?,?,?,?,?,1,?)",
                       (key, belief.a, belief.b, last, event.event_id, self._model_hash))
+        elif refold_later is not None:
+            refold_later.add(key)
         else:                   # arrived out of order (fleet) or cached under another model
             self._refold(c, key)
         robot, _, seq = event.event_id.rpartition("/")
@@ -258,7 +269,41 @@ class SqliteStore:
         return True
 
     def extend(self, events: Iterable[StoredEvent]) -> int:
-        return sum(self.append(e) for e in events)
+        return len(self.append_many(events))
+
+    def append_many(self, events: Iterable[StoredEvent]) -> list[StoredEvent]:
+        """Store a batch durably in ONE transaction; returns the events that were stored.
+
+        Sorted by (time, event id) first, so most events extend their person's fold; a person
+        whose events still arrive behind what is stored is refolded once per batch.  All or
+        nothing: a malformed event refuses the whole batch (CoreInputError names the field),
+        and nothing is stored when the commit fails.  Skipped like append(): duplicates (also
+        within the batch), opted-out people, events older than a compacted base.
+        """
+        batch = sorted(events, key=lambda e: (float(e.time_s), e.event_id))
+        rows = []
+        for e in batch:
+            check_event(e)
+            rows.append(event_to_row(e))
+        if not batch:
+            return []
+        with self._lock:
+            c = self._conn
+            next_seq = self._next_seq
+            c.execute("BEGIN IMMEDIATE")
+            try:
+                refold_later: set[str] = set()
+                stored = [e for e, row in zip(batch, rows)
+                          if self._append_in_tx(e, row, refold_later)]
+                for key in refold_later:
+                    self._refold(c, key)
+                c.execute("COMMIT")
+                return stored
+            except BaseException:
+                if c.in_transaction:
+                    c.execute("ROLLBACK")
+                self._next_seq = next_seq       # nothing of the batch was stored
+                raise
 
     def _events(self, c, key: str) -> list[StoredEvent]:
         return [row_to_event(r) for r in c.execute(

@@ -348,14 +348,16 @@ def staff(n: int, seed: int) -> list[dict]:
 class FleetPeer:
     """`python -m helpaware_node.ros.fleet` (FleetLink on an SQLite store), read line by line."""
 
-    def __init__(self, store_path: Path, key_path: Path, robot_id: str) -> None:
+    def __init__(self, store_path: Path, key_path: Path, robot_id: str,
+                 depth: int | None = None) -> None:
         import queue
         import sys
         import threading
         self.lines: "queue.Queue[str]" = queue.Queue()
+        extra = [] if depth is None else ["--depth", str(depth)]   # history per publisher
         self.proc = subprocess.Popen(
             [sys.executable, "-m", "helpaware_node.ros.fleet", "--store", str(store_path),
-             "--key-file", str(key_path), "--robot-id", robot_id],
+             "--key-file", str(key_path), "--robot-id", robot_id] + extra,
             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
             text=True, bufsize=1)
         threading.Thread(target=lambda: [self.lines.put(x.strip()) for x in self.proc.stdout],
