@@ -42,8 +42,8 @@ SHARED_FLEET_TOPIC = "/fleet/outcomes"
 # test of the write path, not of the limits (those have their own suite)
 FAST_ASKING = {
     "min_reask_interval_s": 0.0,
-    "max_asks_per_person_per_day": 100000,
-    "max_asks_per_hour": 100000,
+    "max_asks_per_person_per_day": 1000,
+    "max_asks_per_hour": 1000,
     "ask_memory_half_life_s": 0.5,
     "interruption_weight_s": 0.0,
 }
