@@ -9,7 +9,8 @@ Topics (all relative names, so namespaces and remaps work):
   out markers      visualization_msgs/MarkerArray
   out /diagnostics diagnostic_msgs/DiagnosticArray, about 1 Hz
 Every decision goes through core.policy.decide; every outcome becomes a StoredEvent appended to
-the store before the belief changes (`_ingest_event`, also the entry point for fleet events).
+the store before the belief changes (`_ingest_event`; peers' events in batches through
+`_ingest_fleet_events`).
 """
 from __future__ import annotations
 
@@ -202,7 +203,7 @@ class HelpAwareNode(LifecycleNode):
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
         # fleet/outcomes in and out, and live opt-out/forget on privacy_request (docs/store.md)
-        self.fleet = FleetLink(self, self.store, append=self._ingest_fleet_event,
+        self.fleet = FleetLink(self, self.store, append_many=self._ingest_fleet_events,
                                on_forgotten=self._forget_in_memory)
         self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
             self._forget_in_memory(key) if action == "forget" else None))
@@ -226,6 +227,12 @@ class HelpAwareNode(LifecycleNode):
 
     def _teardown(self) -> None:
         self._active = False
+        fleet = getattr(self, "fleet", None)
+        if fleet is not None and self.store is not None:
+            try:
+                fleet.flush()          # peers' events received but not yet stored
+            except Exception:  # noqa: BLE001 - a failing store: peers offer them again
+                pass
         self._report_unsaved()
         for e in self._entities:
             try:
@@ -422,8 +429,8 @@ class HelpAwareNode(LifecycleNode):
                       own: bool = False) -> bool:
         """Store first, then learn: the belief is the store's fold of the person's events.
 
-        Local outcomes and fleet events both come through here; a duplicate or opted-out
-        event is not stored and changes nothing. When the store refuses the write (disk full,
+        Local outcomes come through here; a duplicate or opted-out event is not stored and
+        changes nothing. When the store refuses the write (disk full,
         read-only, I/O error) the belief is unchanged and, with `hold_on_failure`, the event
         is held for retry; `own` marks an outcome made here, shared with the fleet once saved.
         """
@@ -447,14 +454,29 @@ class HelpAwareNode(LifecycleNode):
         self.store_ok = False
         self.store_error = f"{what}: {exc}"[:200]
         self.get_logger().error(f"store {self._store_file or '(memory)'} refused {what} ({exc}); "
-                                f"belief unchanged, asking paused until it accepts writes again "
-                                f"(check free disk space and that the file is writable)",
-                                throttle_duration_sec=5.0)
+                                f"belief unchanged, outcomes kept and retried, nobody asked "
+                                f"while one waits (check free disk space and that the file "
+                                f"is writable)", throttle_duration_sec=5.0)
 
-    def _ingest_fleet_event(self, event: StoredEvent) -> bool:
-        """A peer's event: held like our own if the store refuses it (the peer sent it once),
-        but never re-shared, since the peer shares its own."""
-        return self._ingest_event(event, hold_on_failure=True)
+    def _ingest_fleet_events(self, events: list[StoredEvent]) -> list[StoredEvent]:
+        """A batch of peers' events: one transaction, then each touched belief once. A store
+        that refuses raises, and the fleet link keeps the batch queued and tries again (peer
+        events are never shared again from here: each peer shares its own)."""
+        try:
+            if hasattr(self.store, "append_many"):
+                stored = self.store.append_many(events)
+            else:
+                stored = [e for e in events if self.store.append(e)]
+        except Exception as exc:
+            self._store_failed("append (fleet events)", exc)
+            raise
+        health = getattr(self.store, "health", None)
+        self.store_ok = health is None or health.level == "OK"
+        for key in {e.person_key for e in stored}:
+            rec = self.records.get(key) or PersonRecord.new(self.params.model)
+            belief, t = self.store.belief(key, self.params.model)
+            self.records[key] = replace(rec, belief=belief, belief_time_s=t)
+        return stored
 
     def _hold_unsaved(self, event: StoredEvent, own: bool) -> None:
         if len(self.unsaved) >= MAX_UNSAVED_EVENTS:   # bounded memory: the oldest goes
@@ -664,6 +686,11 @@ class HelpAwareNode(LifecycleNode):
         for name, part in self._side_inputs():
             values[f"{name}.rejected"] = part.refused_count
             values[f"{name}.last_rejection"] = part.last_refusal
+        fleet = getattr(self, "fleet", None)
+        if fleet is not None:
+            values.update({"fleet_outcomes.queued": fleet.queued_count,
+                           "fleet_outcomes.dropped": fleet.dropped_count,
+                           "fleet_outcomes.store_failures": fleet.store_failures})
         store_name = type(self.store).__name__ if self.store is not None else "closed"
         values.update({
             "open_needs": len(self.needs), "pending_asks": len(self.pending),

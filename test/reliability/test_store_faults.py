@@ -186,10 +186,11 @@ def test_forget_drops_an_outcome_held_for_a_full_store(ctx, tmp_path):
         rig.close()
 
 
-def test_fleet_event_during_a_full_store_is_held_and_not_shared_again(ctx, tmp_path):
+def test_fleet_event_during_a_full_store_is_kept_and_not_shared_again(ctx, tmp_path):
     """A peer's event arrives once (transient local history is not resent to a subscriber
-    that already has it), so a refused one is held like our own outcome; once saved, only
-    our own outcome goes out on fleet/outcomes, never the peer's copy."""
+    that already has it), so one the store refuses stays queued in the fleet link and is
+    stored once space returns; only our own outcome then goes out on fleet/outcomes, never
+    the peer's copy."""
     from std_msgs.msg import String
     from helpaware_node.ros.fleet import FLEET_TOPIC, encode_event, fleet_qos
     load_site_key(tmp_path / "site_key")
@@ -207,11 +208,13 @@ def test_fleet_event_during_a_full_store_is_held_and_not_shared_again(ctx, tmp_p
         peer = StoredEvent("peer/7", visitor, 50.0, Result.HELPED, 0.1, 0.0)
         rig.node.fleet._on_message(String(data=encode_event(peer)))   # as the topic delivers it
         rig.report("q1", "nurse-a", "helped")
-        assert [e.event_id for e in rig.node.unsaved][0] == "peer/7"
-        assert len(rig.node.unsaved) == 2
+        assert rig.node.fleet.queued_count == 1 and rig.node.fleet.store_failures >= 1
+        assert [e.person_key for e in rig.node.unsaved] == [store.key_for("nurse-a")]
+        assert visitor not in rig.node.records
         _unlimit(store)
-        assert rig.spin_until(lambda: not rig.node.unsaved)
+        assert rig.spin_until(lambda: not rig.node.unsaved and rig.node.fleet.queued_count == 0)
         assert [e.event_id for e in store.events_for(visitor)] == ["peer/7"]
+        assert rig.node.records[visitor].belief == store.belief(visitor)[0]
         own = store.events_for(store.key_for("nurse-a"))[0].event_id
         assert rig.spin_until(lambda: any(f'"{own}"' in m for m in shared))
         rig.spin_until(lambda: False, timeout_s=1.0)
