@@ -486,21 +486,20 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
     still_decides(rig, "raw")
 
 
-def test_zz_report_counts(rig, capsys):
+def test_zz_report_counts(rig):
     """The figures for docs/RELIABILITY.md (run with -s to see them)."""
-    with capsys.disabled():
-        print("\ninput fuzz at the handlers (hypothesis, derandomized)")
-        print(f"{'topic':<18}{'tried':>7}{'rejected':>10}{'accepted':>10}")
-        for t in TOPICS:
-            s = STATS[t]
-            print(f"{t:<18}{s['tried']:>7}{s['rejected']:>10}{s['accepted']:>10}")
-        for t in TOPICS:
-            print(f"reasons for {t}:")
-            for reason, n in STATS[t]["reasons"].most_common(12):
-                print(f"  {n:>6}  {reason}")
-        print("through the topics (random text and raw CDR bytes, seeded)")
-        for t in TOPICS:
-            print(f"  {t:<16} " + ", ".join(f"{k} {v}" for k, v in sorted(RAW_STATS[t].items())))
+    print("\ninput fuzz at the handlers (hypothesis, derandomized)")
+    print(f"{'topic':<18}{'tried':>7}{'rejected':>10}{'accepted':>10}")
+    for t in TOPICS:
+        s = STATS[t]
+        print(f"{t:<18}{s['tried']:>7}{s['rejected']:>10}{s['accepted']:>10}")
+    for t in TOPICS:
+        print(f"reasons for {t}:")
+        for reason, n in STATS[t]["reasons"].most_common(12):
+            print(f"  {n:>6}  {reason}")
+    print("through the topics (random text and raw CDR bytes, seeded)")
+    for t in TOPICS:
+        print(f"  {t:<16} " + ", ".join(f"{k} {v}" for k, v in sorted(RAW_STATS[t].items())))
     for t in TOPICS:
         if STATS[t]["tried"]:     # this module ran in full
             assert STATS[t]["rejected"] >= 0.5 * STATS[t]["tried"]

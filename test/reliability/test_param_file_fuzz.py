@@ -350,17 +350,16 @@ def test_seed_files_load_with_the_values_pyyaml_reads(fuzz):
     assert checked > 300
 
 
-def test_zz_report_counts(fuzz, capsys):
+def test_zz_report_counts(fuzz):
     cases, results, seconds = fuzz
     table = collections.defaultdict(collections.Counter)
     for i, case in enumerate(cases):
         table[case["kind"]][results[i]["outcome"]] += 1
-    with capsys.disabled():
-        print(f"\nparameter-file fuzz: {len(cases)} files in {seconds:.1f} s "
-              f"({CHILDREN} child processes at a time, {CHUNK} files each)")
-        print(f"{'kind':<20}{'files':>7}{'config':>8}{'rcl':>6}{'startup':>9}")
-        for kind, c in sorted(table.items()):
-            print(f"{kind:<20}{sum(c.values()):>7}{c['config']:>8}{c['rcl']:>6}{c['startup']:>9}")
+    print(f"\nparameter-file fuzz: {len(cases)} files in {seconds:.1f} s "
+          f"({CHILDREN} child processes at a time, {CHUNK} files each)")
+    print(f"{'kind':<20}{'files':>7}{'config':>8}{'rcl':>6}{'startup':>9}")
+    for kind, c in sorted(table.items()):
+        print(f"{kind:<20}{sum(c.values()):>7}{c['config']:>8}{c['rcl']:>6}{c['startup']:>9}")
     assert sum(c["rcl"] for c in table.values()) > 0
     assert sum(c["startup"] for c in table.values()) > 0
     assert sum(c["config"] for c in table.values()) > 0
