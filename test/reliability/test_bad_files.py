@@ -19,10 +19,11 @@ from helpaware_node.ros import launch_config
 pytestmark = pytest.mark.ros
 
 
-def _run_node(params_path, overrides=None, timeout_s=60):
+def _run_node(params_path=None, overrides=None, timeout_s=60):
     """Start the node the way launch files do; a refused start must exit on its own."""
     proc = launch_config.start(stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                               params=str(params_path), overrides=overrides)
+                               params=str(params_path) if params_path else None,
+                               overrides=overrides)
     try:
         out, err = proc.communicate(timeout=timeout_s)
     except subprocess.TimeoutExpired:
@@ -84,7 +85,7 @@ def test_node_refuses_a_world_readable_site_key(tmp_path):
     key = tmp_path / "site_key"
     key.write_bytes(os.urandom(32))
     os.chmod(key, 0o644)
-    code, err = _run_node_with(overrides={"store_path": str(store)})
+    code, err = _run_node(overrides={"store_path": str(store)})
     assert code == 2, err[-2000:]
     assert f"chmod 600 {key}" in err and "not started" in err, err[-2000:]
     assert "Traceback" not in err
@@ -95,7 +96,7 @@ def test_node_refuses_a_world_readable_site_key(tmp_path):
 def test_node_refuses_a_site_key_that_is_a_directory(tmp_path):
     store = tmp_path / "beliefs.sqlite3"
     (tmp_path / "site_key").mkdir()
-    code, err = _run_node_with(overrides={"store_path": str(store)})
+    code, err = _run_node(overrides={"store_path": str(store)})
     assert code == 2 and "is a directory" in err and str(tmp_path / "site_key") in err, err
     assert "Traceback" not in err
 
@@ -157,18 +158,6 @@ def test_unreadable_site_key_is_a_site_key_error_naming_what_to_do(tmp_path):
     assert proc.returncode == 3, proc.stderr[-2000:]
     assert str(key) in proc.stdout and "cannot be read by this user" in proc.stdout
     assert "chown" in proc.stdout and "Traceback" not in proc.stderr
-
-
-def _run_node_with(overrides, timeout_s=60):
-    proc = launch_config.start(stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                               overrides=overrides)
-    try:
-        out, err = proc.communicate(timeout=timeout_s)
-    except subprocess.TimeoutExpired:
-        proc.kill()
-        out, err = proc.communicate()
-        pytest.fail(f"node did not exit on a bad site key: {err[-1000:]}")
-    return proc.returncode, err
 
 
 @pytest.mark.parametrize("content", [b"", b"\x89MCAP0\r\n" + b"\x00" * 64,
