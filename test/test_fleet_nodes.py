@@ -6,7 +6,6 @@ drives each robot over its topics and reads beliefs from the candidates of its d
 """
 import json
 import os
-import signal
 import subprocess
 import sys
 import time
@@ -20,6 +19,7 @@ from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data  # 
 from std_msgs.msg import String  # noqa: E402
 
 from helpaware_node import wire  # noqa: E402
+from helpaware_node.ros import launch_config  # noqa: E402
 from helpaware_node.ros.fleet import fleet_qos  # noqa: E402
 from helpaware_node.store.keys import load_site_key  # noqa: E402
 
@@ -132,13 +132,7 @@ class Fleet:
 
 
 def stop(proc):
-    if proc.poll() is None:
-        proc.send_signal(signal.SIGINT)
-        try:
-            proc.wait(timeout=10)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait()
+    launch_config.stop(proc, timeout_s=10)
 
 
 def test_outcome_on_one_robot_changes_the_others_belief_and_late_robot_catches_up(tmp_path):

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import os
 import shutil
+import signal
 import subprocess
 import sys
 from typing import Mapping, Optional, Sequence
@@ -83,3 +84,15 @@ def start(stdout=None, stderr=None, env: Optional[Mapping[str, str]] = None,
     """Start the node as a separate process (inherits ROS_DOMAIN_ID and discovery range)."""
     return subprocess.Popen(command(**kwargs), stdout=stdout, stderr=stderr,
                             env=dict(env if env is not None else os.environ), text=True)
+
+
+def stop(proc: subprocess.Popen, timeout_s: float = 20.0) -> int:
+    """SIGINT (as Ctrl-C, a clean shutdown), then SIGKILL if it does not exit in time."""
+    if proc.poll() is None:
+        proc.send_signal(signal.SIGINT)
+        try:
+            proc.wait(timeout=timeout_s)
+        except subprocess.TimeoutExpired:
+            proc.kill()
+            proc.wait()
+    return proc.returncode

@@ -9,12 +9,12 @@ from __future__ import annotations
 
 import argparse
 import os
-import signal
 import subprocess
 import sys
 import tempfile
 import time
 
+from ..ros import launch_config
 from . import demo_core, review_demo
 
 
@@ -27,7 +27,6 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def start_node(namespace: str, store_dir: str) -> subprocess.Popen:
-    from ..ros import launch_config
     return launch_config.start(
         params=launch_config.SITE_PARAMS_FILE, namespace=namespace,
         overrides={"use_sim_time": True, "store_path": os.path.join(store_dir, "beliefs.sqlite3"),
@@ -44,17 +43,6 @@ def wait_configured(node: subprocess.Popen, timeout_s: float = 30.0) -> bool:
         if not line and node.poll() is not None:
             return False
     return False
-
-
-def stop_node(node: subprocess.Popen) -> int:
-    if node.poll() is None:
-        node.send_signal(signal.SIGINT)
-        try:
-            node.wait(timeout=20)
-        except subprocess.TimeoutExpired:
-            node.kill()
-            node.wait()
-    return node.returncode
 
 
 def run_night_shift(args: argparse.Namespace) -> int:
@@ -79,7 +67,7 @@ def run_night_shift(args: argparse.Namespace) -> int:
             bag = review_demo.stop_recorder(recorder)
         finally:
             # 3. stop the node cleanly (it keeps what it learned in its store until here)
-            code = stop_node(node)
+            code = launch_config.stop(node)
     # 4. report
     print(f"\nnode exited with code {code}; demo took {time.monotonic() - started:.1f} s")
     review_demo.review_bag(bag)

@@ -81,13 +81,7 @@ def kill_hard(proc: subprocess.Popen) -> None:
 
 
 def stop_gently(proc: subprocess.Popen) -> None:
-    if proc.poll() is None:
-        proc.send_signal(signal.SIGINT)
-        try:
-            proc.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            proc.kill()
-            proc.wait()
+    launch_config.stop(proc, timeout_s=15)
 
 
 # ---------------------------------------------------------------- the store, read-only
