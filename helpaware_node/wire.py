@@ -200,12 +200,10 @@ def _check(spec: F, value: Any, path: str) -> None:
         if not spec.min_len <= len(value) <= spec.max_len:
             raise WireError(f"{path}: length {len(value)} is outside the allowed "
                             f"[{spec.min_len}, {spec.max_len}] characters")
-        if not value.isascii():
-            try:   # a lone surrogate (JSON "\\ud800") cannot be hashed, stored or published
-                value.encode("utf-8")
-            except UnicodeEncodeError as exc:
-                raise WireError(f"{path}: not valid Unicode text (lone surrogate at "
-                                f"character {exc.start})") from None
+        at = lone_surrogate_at(value)
+        if at is not None:
+            raise WireError(f"{path}: not valid Unicode text (lone surrogate at "
+                            f"character {at})")
     elif k in ("number", "integer"):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise WireError(f"{path}: expected a number, got {type(value).__name__}")
@@ -270,6 +268,18 @@ def validate(name: str, document: Any) -> dict:
         if (document["action"] == "ask") != (document["person_id"] is not None):
             raise WireError("person_id: must be set exactly when action is ask")
     return document
+
+
+def lone_surrogate_at(text: str) -> Optional[int]:
+    """Where a lone surrogate (JSON "\\ud800") sits in `text`, or None. Such text cannot be
+    hashed, stored in SQLite or published, so every input refuses it by field."""
+    if text.isascii():
+        return None
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError as exc:
+        return exc.start
+    return None
 
 
 def _refuse_constant(text: str):

@@ -33,6 +33,7 @@ from std_msgs.msg import String
 from ..core import CoreInputError, Result
 from ..store.base import StoredEvent
 from ..store.sqlite import PERSON_KEY_RE, check_event
+from ..wire import lone_surrogate_at
 
 FLEET_TOPIC = "fleet/outcomes"
 FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
@@ -89,12 +90,8 @@ def _refuse_surrogates(doc: dict, what: str, fields: tuple) -> None:
     """A lone surrogate (JSON "\\ud800") cannot be hashed, stored in SQLite or published."""
     for name in fields:
         value = doc.get(name)
-        if isinstance(value, str) and not value.isascii():
-            try:
-                value.encode("utf-8")
-            except UnicodeEncodeError:
-                raise CoreInputError(f"{what}: {name} is not valid Unicode text "
-                                     f"(a lone surrogate)") from None
+        if isinstance(value, str) and lone_surrogate_at(value) is not None:
+            raise CoreInputError(f"{what}: {name} is not valid Unicode text (a lone surrogate)")
 
 
 EVENT_TEXT_FIELDS = ("kind", "event_id", "person_key", "result", "request_kind", "from")
