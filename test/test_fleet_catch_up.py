@@ -33,6 +33,8 @@ from helpaware_node.core.model import CoreInputError  # noqa: E402
 from helpaware_node.ros.fleet import FleetLink, encode_event, encode_forget  # noqa: E402
 from helpaware_node.store import SqliteStore, StoredEvent  # noqa: E402
 
+from site_keys import write_site_key  # noqa: E402
+
 SITE_KEY = bytes(range(40, 72))
 DEPTH = 300                  # history per publisher; the peers hold exactly that many each
 PEERS = ("ward1", "ward2")
@@ -43,16 +45,6 @@ def peer_events(store, robot_id: str, n: int, offset_s: float) -> list[StoredEve
     return [StoredEvent(f"{robot_id}/{i + 1}", store.key_for(f"night-staff-{i % STAFF}"),
                         1000.0 + i + offset_s, list(Result)[i % 3], 0.2, 0.0, "door")
             for i in range(n)]
-
-
-def write_key(tmp_path):
-    path = tmp_path / "site_key"
-    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
-    try:
-        os.write(fd, SITE_KEY)
-    finally:
-        os.close(fd)
-    return path
 
 
 def start_peer(tmp_path, key_path, robot_id):
@@ -90,7 +82,7 @@ def read_late_store(path):
 
 
 def test_late_joiner_merges_every_event_of_two_full_peer_histories(tmp_path):
-    key_path = write_key(tmp_path)
+    key_path = write_site_key(tmp_path, SITE_KEY)
     offered = {}
     for j, rid in enumerate(PEERS):
         s = SqliteStore(tmp_path / f"{rid}.sqlite3", rid, SITE_KEY)

@@ -35,6 +35,8 @@ from helpaware_node.ros import launch_config
 from helpaware_node.ros.fleet import fleet_qos
 from helpaware_node.store.base import StoredEvent, person_key
 
+import site_keys
+
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 SITE_KEY = bytes(range(7, 39))            # fixed 32-byte site key shared by the test robots
 SHARED_FLEET_TOPIC = "/fleet/outcomes"
@@ -51,13 +53,7 @@ FAST_ASKING = {
 
 def write_site_key(directory: Path) -> Path:
     """The store looks for `site_key` beside the store file; owner-only, as the store demands."""
-    path = directory / "site_key"
-    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
-    try:
-        os.write(fd, SITE_KEY)
-    finally:
-        os.close(fd)
-    return path
+    return site_keys.write_site_key(directory, SITE_KEY)
 
 
 def start_node(store_path: Path, robot_id: str, namespace: str, log_path: Path,

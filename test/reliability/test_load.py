@@ -25,6 +25,7 @@ import pytest
 from helpaware_node.ros import launch_config
 
 from reliability_sequence import SOAK
+from site_keys import write_site_key
 
 pytestmark = pytest.mark.ros
 
@@ -56,14 +57,6 @@ RSS_SECOND_HALF_GROWTH_LIMIT_KIB = 2048
 def _key(person_id: str) -> str:
     """The store's person key, computed here with the standard library's HMAC-SHA256."""
     return hmac.new(SITE_KEY, person_id.encode("utf-8"), hashlib.sha256).hexdigest()
-
-
-def _write_site_key(directory) -> None:
-    fd = os.open(directory / "site_key", os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
-    try:
-        os.write(fd, SITE_KEY)
-    finally:
-        os.close(fd)
 
 
 def _stop(proc, sig=signal.SIGINT):
@@ -106,7 +99,7 @@ def _print_report(r, stored, rss_mid, rss_end):
 def test_ten_times_nominal_load_loses_nothing_and_memory_stays_flat(tmp_path):
     store_dir = tmp_path / "store"
     store_dir.mkdir()
-    _write_site_key(store_dir)
+    write_site_key(store_dir, SITE_KEY)
     store_file = store_dir / "beliefs.sqlite3"
     node = launch_config.start(stdout=subprocess.DEVNULL, stderr=subprocess.PIPE,
                                namespace=NAMESPACE,
