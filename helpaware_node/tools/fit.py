@@ -18,7 +18,7 @@ from ..fit.heldout import kfold
 from ..fit.paramfile import DEFAULT_NODE_NAME, render_param_file
 from ..fit.progress import Progress
 from ..fit.site_fit import NAMES, context_test, fit_site
-from .table import render_table
+from ..text_table import render_table
 
 LONG_FIT_ROWS = 20000
 

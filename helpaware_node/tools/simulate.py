@@ -53,7 +53,7 @@ def run(args) -> int:
         return 2
     model = config = None
     if args.params:
-        from .review_params import ParamFileError, load_params
+        from ..node_param_file import ParamFileError, load_params
         try:
             loaded = load_params(args.params)
         except ParamFileError as exc:
