@@ -1,11 +1,12 @@
-"""Persistence of outcome events and belief snapshots."""
+"""Persistence of outcome events, asks and belief snapshots."""
 from __future__ import annotations
 
 import os
 import socket
 
 from ..core import SiteModel
-from .base import BeliefStore, MemoryStore, StoredEvent, StoreHealth, person_key
+from .base import (AskEvent, BeliefStore, MemoryStore, StoredEvent, StoreHealth, append_batch,
+                   person_key)
 from .keys import (KEY_FILE_NAME, SiteKeyError, default_key_path, default_store_path, key_fingerprint,
                    load_site_key)
 from .sqlite import SqliteStore, StoreCorruptError
@@ -34,7 +35,8 @@ def open_store(path: str = "", robot_id: str = "", model: SiteModel | None = Non
                        retention_days=retention_days)
 
 
-__all__ = ["BeliefStore", "MemoryStore", "SqliteStore", "StoredEvent", "StoreHealth",
+__all__ = ["AskEvent", "BeliefStore", "MemoryStore", "SqliteStore", "StoredEvent", "StoreHealth",
+           "append_batch",
            "StoreCorruptError", "StoreVersionError", "SiteKeyError", "SCHEMA_VERSION",
            "person_key", "open_store", "load_site_key", "key_fingerprint", "default_robot_id",
            "default_store_path", "default_key_path"]
