@@ -4,8 +4,8 @@ from hypothesis import given, settings, strategies as st
 
 from helpaware_node.core import Result, SiteModel, fold_events
 from helpaware_node.core.model import CoreInputError
-from helpaware_node.ros.fleet import decode, encode_event, encode_forget, merge
-from helpaware_node.store import MemoryStore, SqliteStore, StoredEvent
+from helpaware_node.ros.fleet import decode, encode_ask, encode_event, encode_forget, merge
+from helpaware_node.store import AskEvent, MemoryStore, SqliteStore, StoredEvent
 
 MODEL = SiteModel(evidence_half_life_s=3600.0)
 SITE_KEY = b"f" * 32
@@ -67,3 +67,42 @@ def test_forget_message_erases_and_blocks_replayed_copies(tmp_path):
     assert store.keys() == []
     assert merge(store, encode_event(e), forgotten) == []    # a peer's older copy replayed
     assert store.keys() == []
+
+
+asks_st = st.lists(st.tuples(st.sampled_from(["r1", "r2"]), st.integers(0, 2),
+                             st.floats(0, 2000, allow_nan=False)), min_size=1, max_size=15)
+
+
+@settings(max_examples=30)
+@given(asks_st, st.randoms(use_true_random=False))
+def test_asks_merge_idempotently_in_any_order(tmp_path_factory, rows, rng):
+    """Asks from the fleet: any order and duplication store each ask once, and a person's
+    asks read back are the same set on every robot, in (time, event id) order."""
+    asks = [AskEvent(f"{r}/{i}", PEOPLE[p], t, "door", f"need-{i}")
+            for i, (r, p, t) in enumerate(rows)]
+    messages = [encode_ask(a) for a in asks]
+    delivery = messages + [rng.choice(messages) for _ in range(rng.randint(0, 8))]
+    rng.shuffle(delivery)
+    store = SqliteStore(tmp_path_factory.mktemp("asks") / "b.sqlite3", "r3", SITE_KEY)
+    merged = [a for m in delivery for a in merge(store, m)]
+    assert sorted(a.event_id for a in merged) == sorted(a.event_id for a in asks)
+    for key in PEOPLE:
+        mine = sorted((a for a in asks if a.person_key == key), key=lambda a: (a.time_s, a.event_id))
+        assert store.asks(person_key=key) == mine
+    store.close()
+
+
+def test_ask_messages_round_trip_and_refuse_bad_fields():
+    a = AskEvent("r1/9", PEOPLE[2], 30.0, "door", "need-3")
+    assert decode(encode_ask(a)) == ("ask", a)
+    good = encode_ask(a)
+    for old, new, field in [(PEOPLE[2], "nurse-ingrid", "person_key"),
+                            ('"r1/9"', '"r19"', "event_id"),
+                            ('"time_s":30.0', '"time_s":"soon"', "time_s"),
+                            ('"time_s":30.0', '"time_s":1e400', "time_s"),
+                            ('"need-3"', '"' + "x" * 200 + '"', "request_id"),
+                            ('"need-3"', "7", "request_id")]:
+        with pytest.raises(CoreInputError, match=field):
+            decode(good.replace(old, new))
+    with pytest.raises(CoreInputError, match="time_s"):
+        decode(good.replace(',"time_s":30.0', ""))

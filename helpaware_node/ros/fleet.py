@@ -1,14 +1,10 @@
-"""Fleet exchange: robots share outcome events on `fleet/outcomes` and merge them by event id.
+"""Fleet exchange: robots share outcomes and asks on `fleet/outcomes` and merge them by event id.
 
-Each message is one std_msgs/String JSON document (format in docs/store.md):
-  {"v": 1, "kind": "outcome", "event_id": ..., "person_key": ..., "time_s": ...,
-   "result": ..., "busyness": ..., "ask_load": ..., "request_kind": ...}
-  {"v": 1, "kind": "forget", "person_key": ..., "from": "<robot_id>"}
-Only hashed person keys travel; a message with anything else is refused.  The topic is
-reliable and transient local with a deep history, and a robot re-offers its most recent
-stored events at start, so a robot that starts late catches up.  The merge is store.append:
-idempotent by event id, and the fold orders events by (time, event id), so any arrival order
-and any duplication yield the same beliefs on every robot.
+The documents (outcome, ask, forget) are defined in fleet_messages.py. The topic is reliable
+and transient local with a deep history, and a robot re-offers its most recent stored events
+and asks at start, so a robot that starts late catches up.  The merge is store.append (asks:
+store.append_asks): idempotent by event id, and the fold orders events by (time, event id), so
+any arrival order and any duplication yield the same beliefs and ask histories on every robot.
 
 Catch-up of a late joiner: the topic has no key, so a reader's KEEP_LAST depth is shared by
 ALL writers, and several peers' histories together (2 x 3 000) overflow a 5 000-deep reader
@@ -20,7 +16,6 @@ stores the queue in batches (one transaction, sorted by time) before anything le
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 import threading
 import time
@@ -31,13 +26,14 @@ from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPo
 from std_msgs.msg import String
 
 from ..core import CoreInputError, Result
-from ..store.base import StoredEvent
-from ..store.sqlite import PERSON_KEY_RE, check_event
-from ..wire import lone_surrogate_at
+from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
+from ..store.sqlite import PERSON_KEY_RE
+from .fleet_messages import (FORMAT_VERSION, decode, encode_any, encode_ask,  # noqa: F401
+                             encode_event, encode_forget, encode_message, load_json,
+                             refuse_surrogates)
 
 FLEET_TOPIC = "fleet/outcomes"
 FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
-FORMAT_VERSION = 1
 MERGE_PERIOD_S = 0.05           # how often the queue of received fleet events is looked at
 MERGE_BATCH = 500               # events stored per tick at most (one transaction)
 MERGE_TICK_BUDGET_S = 0.1       # one-by-one appends (the node's ingest): work per tick at most
@@ -45,7 +41,7 @@ MERGE_WAIT_S = 0.2              # a smaller batch waits this long for more (catc
                                 # events out of order take 24 s one by one, 2 s in 500s)
 MAX_QUEUED = 200_000            # bound on events received but not yet stored (~40 peers' histories)
 
-Merged = Callable[[list[StoredEvent]], None]
+Merged = Callable[[list[AnyEvent]], None]
 
 
 def fleet_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
@@ -62,77 +58,19 @@ def fleet_reader_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
                       durability=DurabilityPolicy.TRANSIENT_LOCAL)
 
 
-def encode_event(e: StoredEvent) -> str:
-    check_event(e)       # refuses anything but a hashed key
-    return json.dumps({"v": FORMAT_VERSION, "kind": "outcome", "event_id": e.event_id,
-                       "person_key": e.person_key, "time_s": float(e.time_s),
-                       "result": Result(e.result).value, "busyness": float(e.busyness),
-                       "ask_load": float(e.ask_load), "request_kind": e.request_kind or ""},
-                      separators=(",", ":"), sort_keys=True)
-
-
-def encode_forget(person_key: str, robot_id: str) -> str:
-    if not PERSON_KEY_RE.match(person_key or ""):
-        raise CoreInputError("person_key: expected 64 lowercase hex digits")
-    return json.dumps({"v": FORMAT_VERSION, "kind": "forget", "person_key": person_key,
-                       "from": robot_id}, separators=(",", ":"), sort_keys=True)
-
-
-def _load_json(text: str, what: str):
-    """Parsed JSON, or CoreInputError (too deep nesting included)."""
-    try:
-        return json.loads(text)
-    except (ValueError, RecursionError) as exc:
-        raise CoreInputError(f"{what}: not JSON ({str(exc)[:80]})") from None
-
-
-def _refuse_surrogates(doc: dict, what: str, fields: tuple) -> None:
-    """A lone surrogate (JSON "\\ud800") cannot be hashed, stored in SQLite or published."""
-    for name in fields:
-        value = doc.get(name)
-        if isinstance(value, str) and lone_surrogate_at(value) is not None:
-            raise CoreInputError(f"{what}: {name} is not valid Unicode text (a lone surrogate)")
-
-
-EVENT_TEXT_FIELDS = ("kind", "event_id", "person_key", "result", "request_kind", "from")
-
-
-def decode(text: str):
-    """('outcome', StoredEvent) or ('forget', key); raises CoreInputError on a bad document."""
-    doc = _load_json(text, "fleet message")
-    if not isinstance(doc, dict) or doc.get("v") != FORMAT_VERSION:
-        raise CoreInputError(f"fleet message: expected a JSON object with v={FORMAT_VERSION}")
-    _refuse_surrogates(doc, "fleet message", EVENT_TEXT_FIELDS)
-    kind = doc.get("kind")
-    if kind == "forget":
-        key = doc.get("person_key", "")
-        if not isinstance(key, str) or not PERSON_KEY_RE.match(key):
-            raise CoreInputError("fleet message: person_key must be 64 lowercase hex digits")
-        return "forget", key
-    if kind != "outcome":
-        raise CoreInputError(f"fleet message: kind {kind!r} is not outcome or forget")
-    try:
-        e = StoredEvent(str(doc["event_id"]), str(doc["person_key"]), doc["time_s"],
-                        Result.parse(str(doc["result"])), doc["busyness"], doc["ask_load"],
-                        str(doc.get("request_kind", "")))
-        check_event(e)
-    except KeyError as exc:
-        raise CoreInputError(f"fleet message: missing field {exc.args[0]}") from None
-    except OverflowError:   # an integer beyond any float in time_s, busyness or ask_load
-        raise CoreInputError("fleet message: time_s, busyness and ask_load must be finite "
-                             "numbers in range") from None
-    return "outcome", e
-
-
 def merge(store, text: str, forgotten: set[str] | None = None,
           append: Optional[Callable[[StoredEvent], bool]] = None,
           on_forgotten: Optional[Callable[[str], None]] = None) -> list[StoredEvent]:
-    """Apply one fleet message to the store; returns the events that were new here.
+    """Apply one fleet message to the store; returns the events (or asks) new here.
 
     `append` defaults to store.append (the node passes its own ingest, which appends and
-    then updates what it holds in memory).
+    then updates what it holds in memory); asks go to store.append_asks.
     """
     kind, value = decode(text)
+    if kind == "ask":
+        if forgotten is not None and value.person_key in forgotten:
+            return []
+        return list(store.append_asks([value]))
     if kind == "forget":
         if forgotten is not None:
             forgotten.add(value)
@@ -146,7 +84,7 @@ def merge(store, text: str, forgotten: set[str] | None = None,
 
 
 class FleetLink:
-    """Publishes this robot's outcomes and merges everyone else's into the store.
+    """Publishes this robot's outcomes and asks and merges everyone else's into the store.
 
     Received events are decoded (and refused) at once, queued, and stored by a timer in
     batches of up to MERGE_BATCH (a smaller batch after MERGE_WAIT_S), sorted by (time,
@@ -155,7 +93,8 @@ class FleetLink:
     the batch, then learn; returns the events stored).  Only after an event is stored does
     anything learn from it (`on_merged`, or the owner's callback itself).  A forget is
     applied at once, and a queued event of a forgotten key is dropped when its batch is
-    stored.
+    stored.  Asks travel and queue like outcomes; without an owner's `append_many` they go
+    to the store's `append_asks`.
     """
 
     def __init__(self, node, store, on_merged: Optional[Merged] = None,
@@ -172,7 +111,7 @@ class FleetLink:
         self._on_forgotten = on_forgotten
         self._forgotten: set[str] = set()
         self._lock = threading.RLock()
-        self._queued: deque[StoredEvent] = deque()
+        self._queued: deque[AnyEvent] = deque()
         self._queued_since_s = 0.0      # monotonic time the oldest queued event arrived
         self.merged_count = 0
         self.refused_count = 0
@@ -183,8 +122,10 @@ class FleetLink:
         self._sub = node.create_subscription(String, topic, self._on_delivery,
                                              fleet_reader_qos(depth))
         self._timer = node.create_timer(MERGE_PERIOD_S, self._on_tick)
-        if replay and hasattr(store, "recent_events"):
-            self.publish_many(store.recent_events(depth))   # re-offer after a restart
+        if replay and hasattr(store, "recent_events"):   # re-offer after a restart
+            self.publish_many(store.recent_events(depth))
+            if hasattr(store, "recent_asks"):
+                self.publish_many(store.recent_asks(depth))
 
     @property
     def entities(self) -> list:
@@ -196,11 +137,11 @@ class FleetLink:
         """Events received but not yet stored."""
         return len(self._queued)
 
-    def publish(self, event: StoredEvent) -> None:
-        """Share one outcome (call after store.append has returned True)."""
-        self._pub.publish(String(data=encode_event(event)))
+    def publish(self, event: AnyEvent) -> None:
+        """Share one outcome or ask (call once the store has it)."""
+        self._pub.publish(String(data=encode_any(event)))
 
-    def publish_many(self, events: Iterable[StoredEvent]) -> None:
+    def publish_many(self, events: Iterable[AnyEvent]) -> None:
         for e in events:
             self.publish(e)
 
@@ -299,24 +240,27 @@ class FleetLink:
                 self._on_merged(new)
         return None if error is not None else len(new)
 
-    def _store_batch(self, events: list[StoredEvent]):
+    def _store_batch(self, events: list[AnyEvent]):
         """(stored, not yet tried, error): a batch call is all or nothing; one call per event
         stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not held long."""
         whole = self._append_many or (None if self._append is not None
-                                      else getattr(self._store, "append_many", None))
+                                      else lambda batch: append_batch(self._store, batch))
         if whole is not None:
             try:
                 return list(whole(events)), [], None
             except Exception as exc:
                 return [], events, exc
-        one = self._append or self._store.append
-        stored: list[StoredEvent] = []
+        stored: list[AnyEvent] = []
         deadline_s = time.monotonic() + MERGE_TICK_BUDGET_S
         for i, e in enumerate(events):
             if i and time.monotonic() > deadline_s:
                 return stored, events[i:], None
             try:
-                if one(e):
+                if isinstance(e, AskEvent):
+                    new = bool(self._store.append_asks([e]))
+                else:
+                    new = self._append(e)
+                if new:
                     stored.append(e)
             except Exception as exc:
                 return stored, events[i:], exc
@@ -332,10 +276,10 @@ def parse_privacy_request(text: str, key_for: Callable[[str], str]) -> tuple[str
 
     A perceived id is hashed at once and never kept or logged.
     """
-    doc = _load_json(text, PRIVACY_TOPIC)
+    doc = load_json(text, PRIVACY_TOPIC)
     if not isinstance(doc, dict):
         raise CoreInputError(f"{PRIVACY_TOPIC}: expected a JSON object")
-    _refuse_surrogates(doc, PRIVACY_TOPIC, ("action", "person_id", "person_key"))
+    refuse_surrogates(doc, PRIVACY_TOPIC, ("action", "person_id", "person_key"))
     action = doc.get("action")
     if action not in PRIVACY_ACTIONS:
         raise CoreInputError(f"{PRIVACY_TOPIC}: action {action!r} is not one of "
