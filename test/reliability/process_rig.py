@@ -57,11 +57,13 @@ def write_site_key(directory: Path) -> Path:
 
 
 def start_node(store_path: Path, robot_id: str, namespace: str, log_path: Path,
-               shared_fleet: bool = False) -> subprocess.Popen:
+               shared_fleet: bool = False, limits: dict | None = None) -> subprocess.Popen:
+    """`limits`: parameters set over FAST_ASKING (tests of the limits themselves)."""
     remaps = launch_config.REMAPS
     if shared_fleet:                     # every robot's fleet/outcomes onto one topic
         remaps = remaps + (("fleet/outcomes", SHARED_FLEET_TOPIC),)
-    overrides = dict(FAST_ASKING, store_path=str(store_path), robot_id=robot_id)
+    overrides = dict(FAST_ASKING, **(limits or {}), store_path=str(store_path),
+                     robot_id=robot_id)
     log = open(log_path, "a")
     try:
         return launch_config.start(stdout=log, stderr=subprocess.STDOUT, namespace=namespace,
@@ -108,6 +110,16 @@ def read_store(path: Path) -> StoreView:
         conn.close()
     return StoreView(integrity, events, snapshot,
                      from_plain(SiteModel, json.loads(meta["site_model"])))
+
+
+def stored_asks(path: Path) -> list[tuple[str, str, float]]:
+    """(event id, person key, time) of every stored ask, read-only (not through the store)."""
+    conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=10.0)
+    try:
+        return [tuple(r) for r in conn.execute("SELECT event_id, person_key, time_s FROM asks "
+                                               "ORDER BY time_s, event_id")]
+    finally:
+        conn.close()
 
 
 def event_ids(path: Path) -> set[str]:
