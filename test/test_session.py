@@ -5,8 +5,6 @@ reason codes); nothing here is computed by the code under test.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import pytest
 
 from helpaware_node.core import DecisionConfig, HelpNeed, Result, SiteModel
@@ -14,19 +12,13 @@ from helpaware_node.session import (STORE_UNAVAILABLE, HelpSession, SessionInput
                                     SessionRules)
 from helpaware_node.store import AskEvent, MemoryStore, StoredEvent
 
+from session_people import Person
+
 MODEL = SiteModel()
 # asking always pays here (no interruption cost, a costly need), so the limits decide
 CONFIG = DecisionConfig(interruption_weight_s=0.0, min_reask_interval_s=900.0,
                         max_asks_per_person_per_day=3, max_asks_per_hour=12)
 T0 = 100_000.0
-
-
-@dataclass(frozen=True)
-class Person:
-    person_id: str
-    distance_m: float = 1.0
-    busyness: float = 0.0
-    activity: str = ""
 
 
 STAFF = [Person("ann", 1.0), Person("bo", 2.0), Person("cy", 3.0)]

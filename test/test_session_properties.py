@@ -25,20 +25,14 @@ from helpaware_node.core import DecisionConfig, HelpNeed, SiteModel
 from helpaware_node.session import HelpSession, SessionRules
 from helpaware_node.store import AskEvent, MemoryStore, SqliteStore
 
+from session_people import Person
+
 PEOPLE = ["ann", "bo", "cy", "di", "ed", "fay"]
 DAY_S, HOUR_S = 86_400.0, 3600.0
 MODEL = SiteModel()
 CONFIG = DecisionConfig(interruption_weight_s=0.0, min_reask_interval_s=600.0,
                         max_asks_per_person_per_day=3, max_asks_per_hour=3)
 TIMEOUT_S = 120.0
-
-
-@dataclass(frozen=True)
-class Person:
-    person_id: str
-    distance_m: float
-    busyness: float = 0.0
-    activity: str = ""
 
 
 _open = st.tuples(st.just("open"))

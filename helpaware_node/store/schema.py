@@ -63,7 +63,7 @@ MIGRATIONS: list[list[str]] = [
            )""",
         """CREATE INDEX asks_by_person ON asks (person_key, time_s)""",
         """CREATE INDEX asks_by_robot ON asks (robot_id, time_s)""",
-        """CREATE INDEX asks_by_request ON asks (request_id)""",
+        """CREATE INDEX asks_by_request ON asks (request_id, robot_id)""",
     ],
 ]
 SCHEMA_VERSION = len(MIGRATIONS)

@@ -16,6 +16,7 @@ the log of asks the hard limits count.
 """
 from __future__ import annotations
 
+import contextlib
 import datetime
 import hashlib
 import json
@@ -307,18 +308,24 @@ class SqliteStore:
             rows.append(event_to_row(e))
         if not batch:
             return []
+        with self._batch() as c:
+            refold_later: set[str] = set()
+            stored = [e for e, row in zip(batch, rows)
+                      if self._append_in_tx(e, row, refold_later)]
+            for key in refold_later:
+                self._refold(c, key)
+            return stored
+
+    @contextlib.contextmanager
+    def _batch(self):
+        """One durable transaction for a batch: all of it, or nothing and the sequence back."""
         with self._lock:
             c = self._conn
             next_seq = self._next_seq
             c.execute("BEGIN IMMEDIATE")
             try:
-                refold_later: set[str] = set()
-                stored = [e for e, row in zip(batch, rows)
-                          if self._append_in_tx(e, row, refold_later)]
-                for key in refold_later:
-                    self._refold(c, key)
+                yield c
                 c.execute("COMMIT")
-                return stored
             except BaseException:
                 if c.in_transaction:
                     c.execute("ROLLBACK")
@@ -523,12 +530,14 @@ class SqliteStore:
             ids |= {r[0] for r in self._conn.execute("SELECT DISTINCT robot_id FROM asks")}
         return sorted(ids)
 
+    def _in_order(self, table: str, columns: str) -> list:
+        with self._lock:
+            return self._conn.execute(f"SELECT {columns} FROM {table} "
+                                      "ORDER BY time_s, event_id").fetchall()
+
     def iter_events(self) -> Iterator[StoredEvent]:
         """Every stored event in (time, event id) order."""
-        with self._lock:
-            rows = self._conn.execute(f"SELECT {EVENT_COLUMNS} FROM events "
-                                      "ORDER BY time_s, event_id").fetchall()
-        return (row_to_event(r) for r in rows)
+        return (row_to_event(r) for r in self._in_order("events", EVENT_COLUMNS))
 
     def recent_events(self, limit: int) -> list[StoredEvent]:
         with self._lock:
@@ -549,30 +558,20 @@ class SqliteStore:
             check_ask(a)
         if not batch:
             return []
-        with self._lock:
-            c = self._conn
-            next_seq = self._next_seq
-            c.execute("BEGIN IMMEDIATE")
-            try:
-                stored = []
-                for a in batch:
-                    if c.execute("SELECT 1 FROM opt_out WHERE person_key = ?",
-                                 (a.person_key,)).fetchone():
-                        continue
-                    cur = c.execute(f"INSERT OR IGNORE INTO asks ({ASK_COLUMNS}) VALUES "
-                                    "(?,?,?,?,?,?)", (a.event_id, a.robot_id, a.person_key,
-                                                      float(a.time_s), a.request_kind,
-                                                      a.request_id))
-                    if cur.rowcount:
-                        stored.append(a)
-                        self._note_own_sequence(c, a.event_id)
-                c.execute("COMMIT")
-                return stored
-            except BaseException:
-                if c.in_transaction:
-                    c.execute("ROLLBACK")
-                self._next_seq = next_seq
-                raise
+        with self._batch() as c:
+            stored = []
+            for a in batch:
+                if c.execute("SELECT 1 FROM opt_out WHERE person_key = ?",
+                             (a.person_key,)).fetchone():
+                    continue
+                cur = c.execute(f"INSERT OR IGNORE INTO asks ({ASK_COLUMNS}) VALUES "
+                                "(?,?,?,?,?,?)", (a.event_id, a.robot_id, a.person_key,
+                                                  float(a.time_s), a.request_kind,
+                                                  a.request_id))
+                if cur.rowcount:
+                    stored.append(a)
+                    self._note_own_sequence(c, a.event_id)
+            return stored
 
     def _note_own_sequence(self, c, event_id: str) -> None:
         robot, _, seq = event_id.rpartition("/")
@@ -596,7 +595,9 @@ class SqliteStore:
         if since_s is not None:
             where.append("time_s >= ?")
             args.append(float(since_s))
-        sql = (f"SELECT {ASK_COLUMNS} FROM asks"
+        # by request id the planner would walk the robot's index (it sorts by time): say which
+        hint = " INDEXED BY asks_by_request" if request_id is not None else ""
+        sql = (f"SELECT {ASK_COLUMNS} FROM asks{hint}"
                + (" WHERE " + " AND ".join(where) if where else "")
                + " ORDER BY time_s DESC, event_id DESC LIMIT ?")
         with self._lock:
@@ -612,10 +613,7 @@ class SqliteStore:
 
     def iter_asks(self) -> Iterator[AskEvent]:
         """Every stored ask in (time, event id) order."""
-        with self._lock:
-            rows = self._conn.execute(f"SELECT {ASK_COLUMNS} FROM asks "
-                                      "ORDER BY time_s, event_id").fetchall()
-        return (row_to_ask(r) for r in rows)
+        return (row_to_ask(r) for r in self._in_order("asks", ASK_COLUMNS))
 
     def recent_asks(self, limit: int) -> list[AskEvent]:
         return self.asks(limit=limit)
