@@ -45,6 +45,7 @@ class RunResult:
     asks_by_person_day: dict = field(default_factory=dict)
     candidates_seen: set = field(default_factory=set)
     decisions: list = field(default_factory=list)   # every Decision, when asked to keep them
+    decisions_made: int = 0      # decisions at all needs (a need decided again after a decline)
 
 
 def site_config(world: World, config: DecisionConfig) -> DecisionConfig:
@@ -96,6 +97,7 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
         k = 0                                   # asks made at this need so far
         while step.decisions:
             decision = step.decisions[-1].decision
+            res.decisions_made += 1
             if keep_decisions:
                 res.decisions.append(decision)
             if decision.action != "ask":
