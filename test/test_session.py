@@ -326,3 +326,21 @@ def test_asking_disabled_always_continues_with_its_policy():
     s.people_seen(STAFF, T0)
     d = only(s.need_opened(need(), T0))
     assert d.action == "continue" and d.policy == "asking_disabled" and s.pending == {}
+
+
+def test_a_need_decided_again_counts_each_candidate_once():
+    """candidate_count is 'help needs where the person was a candidate' (core.person): a need
+    decided three times (two declines) adds one per person, not three."""
+    s = session(rules=SessionRules(max_asks_per_need=3))
+    s.people_seen(STAFF, T0)
+    d = only(s.need_opened(need(), T0))
+    s.people_seen(STAFF, T0 + 1)
+    d = only(s.outcome("n1", d.person_id, "declined", T0 + 1))
+    s.people_seen(STAFF, T0 + 2)
+    only(s.outcome("n1", d.person_id, "declined", T0 + 2))
+    counts = {p.person_id: s.memory.records[s.store.key_for(p.person_id)].candidate_count
+              for p in STAFF}
+    assert counts == {"ann": 1, "bo": 1, "cy": 1}
+    s.people_seen(STAFF, T0 + 3)
+    s.need_opened(need("n2", T0 + 3), T0 + 3)
+    assert s.memory.records[s.store.key_for("ann")].candidate_count == 2

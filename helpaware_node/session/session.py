@@ -321,8 +321,10 @@ class HelpSession:
             if ask is None:       # not stored, so not made: nobody is asked
                 decision = conclude(decision.evaluation, None, STORE_UNAVAILABLE)
         self.decisions += 1
-        for key in read:
-            self.memory.note_candidate(key, now_s)
+        for key in read:      # a candidate once per need, however often it is decided
+            if key not in state.candidates:
+                state.candidates.add(key)
+                self.memory.note_candidate(key, now_s)
         if ask is not None:
             i = decision.person_index
             ev = decision.evaluation
