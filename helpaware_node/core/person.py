@@ -12,6 +12,7 @@ from typing import Iterable
 from .belief import Belief, forget, update_declined, update_helped, update_no_response
 from .context import context_factor
 from .model import MAX_ASKS_CAP, CoreInputError, SiteModel, check_range
+from .preview import quoted
 
 DAY_S = 86400.0
 
@@ -26,11 +27,13 @@ class Result(str, enum.Enum):
 
     @classmethod
     def parse(cls, text: str) -> "Result":
-        try:
-            return cls(text)
-        except ValueError:
-            allowed = ", ".join(r.value for r in cls)
-            raise CoreInputError(f"result: {text!r} is not one of {allowed}") from None
+        if isinstance(text, str):   # anything else: Enum's own message repr()s the value
+            try:
+                return cls(text)
+            except ValueError:
+                pass
+        allowed = ", ".join(r.value for r in cls)
+        raise CoreInputError(f"result: {quoted(text)} is not one of {allowed}")
 
 
 @dataclass(frozen=True)
