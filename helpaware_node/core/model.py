@@ -21,6 +21,12 @@ from .preview import describe, short_name, short_number
 # whose time lists hold at most this many (wire.MAX_TIMES), so review and replay can read it
 MAX_ASKS_CAP = 1000
 
+# the longest re-ask interval allowed (30 days): the core keeps each person's latest ask this
+# long (core.person.note_ask), so every allowed interval holds; a longer one would need an
+# ask history kept without end. Common practice, no source: a month covers any "not again
+# soon" policy a site has asked for; longer is an opt-out, which the store keeps for good.
+MAX_REASK_INTERVAL_S = 30 * 86400.0
+
 class CoreInputError(ValueError):
     """A value given to the core is outside what the model allows (names field and range)."""
 
@@ -114,8 +120,9 @@ class DecisionConfig:
         for name in ("help_time_s", "ask_time_s", "interruption_weight_s", "busy_cost",
                      "repeat_cost", "urgency_cost_gain", "default_continue_cost_s",
                      "typical_continue_cost_s", "lookahead_horizon_s",
-                     "prior_candidate_rate_per_day", "min_reask_interval_s"):
+                     "prior_candidate_rate_per_day"):
             check_range(name, getattr(self, name), 0.0, 1e9)
+        check_range("min_reask_interval_s", self.min_reask_interval_s, 0.0, MAX_REASK_INTERVAL_S)
         check_range("future_discount_time_s", self.future_discount_time_s, 0.0, 1e12, low_open=True)
         check_range("prior_rate_window_s", self.prior_rate_window_s, 0.0, 1e12, low_open=True)
         check_range("typical_busyness", self.typical_busyness, 0.0, 1.0)
