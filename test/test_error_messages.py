@@ -166,7 +166,8 @@ def test_wire_validate_any_field_of_any_document(value, where):
                               errors=(wire.WireError, CoreInputError))
 
 
-@given(json_like, st.sampled_from(["model", "config"]), st.sampled_from(SITE_FIELDS + CONFIG_FIELDS))
+@given(json_like, st.sampled_from(["model", "config"]),
+       st.sampled_from(SITE_FIELDS + CONFIG_FIELDS))
 def test_wire_recorded_parameters_with_any_value(value, part, field):
     value = value.value
     doc = dict(DOCS["decision"])
@@ -226,8 +227,8 @@ def test_range_limits_print_as_they_are():
         wire.validate("outcome", dict(DOCS["outcome"], stamp_s=1e16))
     with pytest.raises(wire.WireError, match=r"\[-1e\+15, 1e\+15\]$"):
         wire.validate("outcome", dict(DOCS["outcome"], stamp_s=math.inf))
-    with pytest.raises(CoreInputError, match=r"^opened_at_s: -2000000000000000.0 is outside the allowed "
-                                             r"range \[-1e\+15, 1e\+15\]$"):
+    with pytest.raises(CoreInputError, match=r"^opened_at_s: -2000000000000000.0 is outside "
+                                             r"the allowed range \[-1e\+15, 1e\+15\]$"):
         HelpNeed("r", "door", -2e15)
     # only a true infinity prints as inf (and closes with a parenthesis)
     with pytest.raises(CoreInputError, match=r"^x: -1.0 is outside the allowed range \[0, inf\)$"):
