@@ -12,8 +12,8 @@ import math
 from dataclasses import dataclass
 from typing import Any, Callable, Optional
 
-from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, CoreInputError, DecisionConfig,
-                          SiteModel)
+from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, MAX_REASK_INTERVAL_S,
+                          CoreInputError, DecisionConfig, SiteModel)
 
 MODEL_DEFAULTS = SiteModel()
 CONFIG_DEFAULTS = DecisionConfig()
@@ -81,7 +81,8 @@ CONFIG_PARAMS = [
     _c("future_discount_time_s", "exponential discount time of later requests", "seconds", 1e-3, 1e12),
     _c("prior_candidate_rate_per_day", "prior rate of being a candidate at a need", "per day", 0.0, 1e9),
     _c("prior_rate_window_s", "weight of that prior rate", "seconds", 1e-3, 1e12),
-    _c("min_reask_interval_s", "minimum interval before asking the same person again", "seconds", 0.0, 1e9),
+    _c("min_reask_interval_s", "minimum interval before asking the same person again "
+       "(at most 30 days)", "seconds", 0.0, MAX_REASK_INTERVAL_S),
     _c("max_asks_per_person_per_day", "most asks of one person in 24 h", "asks per day", 0,
        MAX_ASKS_CAP),
     _c("max_asks_per_hour", "most asks by this robot in one hour", "asks per hour", 0,
