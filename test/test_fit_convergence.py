@@ -24,6 +24,7 @@ from hypothesis import given, strategies as st
 from scipy import integrate, optimize, stats
 from scipy.special import digamma, expit, gammaln, logit, polygamma
 
+from helpaware_node.cli import main as cli_main
 from helpaware_node.fit.convergence import (NEWTON_STEP_TOL, SCALED_GRADIENT_TOL, Coordinate,
                                             assess_convergence, hessian_by_differences)
 from helpaware_node.fit.data import DECLINED, HELPED, from_arrays, from_group_counts
@@ -375,3 +376,47 @@ def test_verdict_travels_as_plain_values():
     back = json.loads(json.dumps(v.to_dict()))
     assert back["converged"] is True and back["names"] == ["prior_a", "prior_b"]
     assert back["scaled_gradient"] == v.scaled_gradient and back["gradient"] == list(v.gradient)
+
+
+# -- the command ---------------------------------------------------------------------------
+
+HEADER = "event_id,person_key,time_s,busyness,ask_load,result,request_kind\n"
+
+
+def groups_csv(path, y, n):
+    with open(path, "w") as fh:
+        fh.write(HEADER)
+        for g, (yg, ng) in enumerate(zip(y, n)):
+            for j in range(int(ng)):
+                fh.write(f"e{g}-{j},g{g:02d},{3600.0 * j},0,0,"
+                         f"{'declined' if j < ng - yg else 'helped'},door\n")
+    return str(path)
+
+
+def test_fit_command_prints_the_verdict(tmp_path, capsys):
+    # the issue's case: all 71 rat groups as people (declines first), kind door
+    y, n = rat_tumour_groups()
+    out = tmp_path / "tuned.yaml"
+    assert cli_main(["fit", groups_csv(tmp_path / "rats.csv", y, n), "--out", str(out),
+                     "--folds", "0"]) == 0
+    printed = capsys.readouterr().out
+    assert "\nconverged: scaled gradient " in printed and "last change" in printed
+    assert "NOT converged" not in printed and "ABNORMAL" not in printed
+    assert "log marginal likelihood -730.338" in printed                 # issue 17's value
+    assert "converged: scaled gradient" in out.read_text()                 # in the file's notes
+    # an iteration budget too small: exit 3, the reason and the option, no file written
+    short = tmp_path / "short.yaml"
+    assert cli_main(["fit", str(tmp_path / "rats.csv"), "--out", str(short), "--folds", "0",
+                     "--max-iter", "2"]) == 3
+    captured = capsys.readouterr()
+    assert "NOT converged: scaled gradient" in captured.out
+    assert "allow more iterations (--max-iter)" in captured.out
+    assert "no parameter file written" in captured.err and not short.exists()
+    # no maximum in range (every group 5 of 10): exit 3 with the edge named
+    flat = groups_csv(tmp_path / "flat.csv", [5] * 20, [10] * 20)
+    assert cli_main(["fit", flat, "--out", str(short), "--folds", "0"]) == 3
+    assert "NOT converged: prior_a ran to the upper edge" in capsys.readouterr().out
+    assert not short.exists()
+    # a bad budget is a bad argument (exit 2), like the other options
+    assert cli_main(["fit", flat, "--out", str(short), "--max-iter", "0"]) == 2
+    assert "--max-iter 0 is outside [1, 100000]" in capsys.readouterr().err
