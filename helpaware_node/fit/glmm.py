@@ -138,11 +138,14 @@ class RandomInterceptLogit:
         prog.done(f"log-likelihood {ll:.3f}")
         k = theta.size
         names = tuple(names) if names else tuple(f"b{i}" for i in range(k - 1))
-        # Hessian of the log-likelihood by central differences of the gradient: the verdict
-        # needs it, the standard errors reuse it (sigma > 0 is defined past its search bound)
-        hess = hessian_by_differences(lambda t: -self._grad(t), theta, range(k))
-        verdict = assess_convergence(self.coordinates(names), theta, ll, -np.asarray(res.jac),
-                                     hess, log.history, max_iter, str(res.message))
+        # Hessian of the log-likelihood from differences of the gradient: the verdict needs
+        # it, the standard errors reuse it (central for those; sigma > 0 is defined past its
+        # search bound)
+        grad = -np.asarray(res.jac)                # L-BFGS-B's last gradient is at res.x
+        hess = hessian_by_differences(lambda t: -self._grad(t), theta, range(k),
+                                      central=standard_errors, grad_at_z=grad)
+        verdict = assess_convergence(self.coordinates(names), theta, ll, grad, hess,
+                                     log.history, max_iter, str(res.message))
         se = np.full(k, math.nan)
         if standard_errors:
             try:

@@ -221,7 +221,9 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
                             callback=log.callback,
                             options={"maxiter": max_iter, "ftol": 1e-13, "gtol": 1e-7})
     theta = obj.full(res.x)
-    ll, grad = obj.loglik_and_grad(theta)
+    grad = np.zeros(6)
+    grad[free] = -np.asarray(res.jac)            # L-BFGS-B's last gradient is at res.x
+    ll = -float(res.fun) if res.fun < 1e300 else obj.loglik_theta(theta)
     prog.done(f"log-likelihood {ll:.3f}")
     params = from_theta(theta)
     for k, v in fixed_values.items():       # exact fixed values (no logit round trip)
@@ -241,9 +243,11 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
                      f"= {strength:.3g}): with this prior the node would barely learn per person; "
                      "collect more asks per person before using it")
     # curvature on every free coordinate: the verdict needs it, the standard errors reuse it
+    # (central differences for those; one-sided, half the gradients, for the verdict alone)
     lows, highs = np.array([b[0] for b in bounds_all]), np.array([b[1] for b in bounds_all])
     hess = hessian_by_differences(lambda t: obj.loglik_and_grad(t)[1], theta, free_idx,
-                                  lower=lows, upper=highs)
+                                  lower=lows, upper=highs, central=standard_errors,
+                                  grad_at_z=grad)
     coords = coordinates()
     verdict = assess_convergence([coords[i] for i in free_idx], theta[free_idx], ll,
                                  grad[free_idx], hess[np.ix_(free_idx, free_idx)], log.history,
