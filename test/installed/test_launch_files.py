@@ -34,7 +34,7 @@ def test_every_launch_file_has_a_launch_test():
     shipped = sorted(os.listdir(os.path.join(os.path.dirname(__file__), "..", "..", "launch")))
     assert shipped == ["example_loop.launch.py", "helpaware.launch.py"]
     for name in shipped:
-        assert any(f'installed_launch_file("{name}")' in open(p).read() for p in LAUNCH_TESTS), name
+        assert any(f'described_launch("{name}"' in open(p).read() for p in LAUNCH_TESTS), name
 
 
 @pytest.mark.parametrize("path", LAUNCH_TESTS, ids=[os.path.basename(p) for p in LAUNCH_TESTS])

@@ -9,24 +9,15 @@ import os
 import sys
 import unittest
 
-import launch
-import launch_testing.actions
-import launch_testing.asserts
 import pytest
-from launch.actions import IncludeLaunchDescription
-from launch.launch_description_sources import PythonLaunchDescriptionSource
 
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, installed_launch_file, process_environment  # noqa: E402
+from probe import Probe, clean_shutdown_test, described_launch, process_environment  # noqa: E402
 
 
 @pytest.mark.launch_test
 def generate_test_description():
-    return launch.LaunchDescription([
-        IncludeLaunchDescription(PythonLaunchDescriptionSource(
-            installed_launch_file("helpaware.launch.py"))),
-        launch_testing.actions.ReadyToTest(),
-    ])
+    return described_launch("helpaware.launch.py")
 
 
 class TestDecider(unittest.TestCase):
@@ -47,9 +38,4 @@ class TestDecider(unittest.TestCase):
             probe.close()
 
 
-@launch_testing.post_shutdown_test()
-class TestShutdown(unittest.TestCase):
-    def test_sigint_stops_it_cleanly(self, proc_info, proc_output):
-        launch_testing.asserts.assertExitCodes(proc_info, allowable_exit_codes=[0])
-        for output in proc_output:
-            self.assertNotIn("Traceback", output.text.decode(errors="replace"))
+TestShutdown = clean_shutdown_test()

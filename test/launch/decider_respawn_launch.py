@@ -9,16 +9,11 @@ import signal
 import sys
 import unittest
 
-import launch
-import launch_testing.actions
-import launch_testing.asserts
 import pytest
-from launch.actions import IncludeLaunchDescription
 from launch.events.process import ProcessStarted
-from launch.launch_description_sources import PythonLaunchDescriptionSource
 
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, installed_launch_file  # noqa: E402
+from probe import Probe, clean_shutdown_test, described_launch  # noqa: E402
 from std_msgs.msg import String  # noqa: E402
 
 from helpaware_node import wire  # noqa: E402
@@ -26,12 +21,7 @@ from helpaware_node import wire  # noqa: E402
 
 @pytest.mark.launch_test
 def generate_test_description():
-    return launch.LaunchDescription([
-        IncludeLaunchDescription(PythonLaunchDescriptionSource(
-            installed_launch_file("helpaware.launch.py")),
-            launch_arguments={"respawn": "true", "respawn_delay_s": "1.0"}.items()),
-        launch_testing.actions.ReadyToTest(),
-    ])
+    return described_launch("helpaware.launch.py", {"respawn": "true", "respawn_delay_s": "1.0"})
 
 
 def decisions_for(probe, request_id):
@@ -88,9 +78,4 @@ class TestRespawn(unittest.TestCase):
             probe.close()
 
 
-@launch_testing.post_shutdown_test()
-class TestShutdown(unittest.TestCase):
-    def test_the_respawned_node_stops_cleanly(self, proc_info, proc_output):
-        launch_testing.asserts.assertExitCodes(proc_info, allowable_exit_codes=[0])
-        for output in proc_output:
-            self.assertNotIn("Traceback", output.text.decode(errors="replace"))
+TestShutdown = clean_shutdown_test()

@@ -8,18 +8,13 @@ import os
 import sys
 import unittest
 
-import launch
-import launch_testing.actions
-import launch_testing.asserts
 import pytest
 import yaml
-from launch.actions import IncludeLaunchDescription
-from launch.launch_description_sources import PythonLaunchDescriptionSource
 
 from helpaware_node import wire
 
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, installed_launch_file  # noqa: E402
+from probe import Probe, clean_shutdown_test, described_launch  # noqa: E402
 
 ARGUMENTS = {"params_file": "hospital_night.yaml", "namespace": "ward3",
              "people_topic": "perception/people"}
@@ -27,11 +22,7 @@ ARGUMENTS = {"params_file": "hospital_night.yaml", "namespace": "ward3",
 
 @pytest.mark.launch_test
 def generate_test_description():
-    return launch.LaunchDescription([
-        IncludeLaunchDescription(PythonLaunchDescriptionSource(
-            installed_launch_file("helpaware.launch.py")), launch_arguments=ARGUMENTS.items()),
-        launch_testing.actions.ReadyToTest(),
-    ])
+    return described_launch("helpaware.launch.py", ARGUMENTS)
 
 
 def site_file_values():
@@ -63,9 +54,4 @@ class TestSiteNamespaceRemap(unittest.TestCase):
             probe.close()
 
 
-@launch_testing.post_shutdown_test()
-class TestShutdown(unittest.TestCase):
-    def test_sigint_stops_it_cleanly(self, proc_info, proc_output):
-        launch_testing.asserts.assertExitCodes(proc_info, allowable_exit_codes=[0])
-        for output in proc_output:
-            self.assertNotIn("Traceback", output.text.decode(errors="replace"))
+TestShutdown = clean_shutdown_test()

@@ -8,27 +8,18 @@ import os
 import sys
 import unittest
 
-import launch
-import launch_testing.actions
-import launch_testing.asserts
+import launch_testing
 import pytest
-from launch.actions import IncludeLaunchDescription
-from launch.launch_description_sources import PythonLaunchDescriptionSource
 
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, installed_launch_file  # noqa: E402
+from probe import Probe, assert_clean_shutdown, described_launch  # noqa: E402
 
 STAND_IN_PEOPLE = {"nurse-ward3-a", "porter-b", "doctor-c"}   # ros/examples/perception.py
 
 
 @pytest.mark.launch_test
 def generate_test_description():
-    return launch.LaunchDescription([
-        IncludeLaunchDescription(PythonLaunchDescriptionSource(
-            installed_launch_file("example_loop.launch.py")),
-            launch_arguments={"namespace": "loop", "stuck_period_s": "2.0"}.items()),
-        launch_testing.actions.ReadyToTest(),
-    ])
+    return described_launch("example_loop.launch.py", {"namespace": "loop", "stuck_period_s": "2.0"})
 
 
 class TestLoop(unittest.TestCase):
@@ -55,6 +46,4 @@ class TestLoop(unittest.TestCase):
 class TestShutdown(unittest.TestCase):
     def test_all_four_stop_cleanly(self, proc_info, proc_output):
         self.assertEqual(len(list(proc_info.processes())), 4)
-        launch_testing.asserts.assertExitCodes(proc_info, allowable_exit_codes=[0])
-        for output in proc_output:
-            self.assertNotIn("Traceback", output.text.decode(errors="replace"))
+        assert_clean_shutdown(self, proc_info, proc_output)

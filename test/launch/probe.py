@@ -27,6 +27,41 @@ def installed_launch_file(name: str) -> str:
     return os.path.join(get_package_share_directory("helpaware_node"), "launch", name)
 
 
+def described_launch(launch_file: str, arguments=None):
+    """The installed launch file with these arguments, then ReadyToTest."""
+    import launch
+    import launch_testing.actions
+    from launch.actions import IncludeLaunchDescription
+    from launch.launch_description_sources import PythonLaunchDescriptionSource
+    return launch.LaunchDescription([
+        IncludeLaunchDescription(PythonLaunchDescriptionSource(installed_launch_file(launch_file)),
+                                 launch_arguments=(arguments or {}).items()),
+        launch_testing.actions.ReadyToTest(),
+    ])
+
+
+def assert_clean_shutdown(case, proc_info, proc_output) -> None:
+    """Post-shutdown: every process ended with code 0 (launch sent SIGINT), no traceback."""
+    import launch_testing.asserts
+    launch_testing.asserts.assertExitCodes(proc_info, allowable_exit_codes=[0])
+    for output in proc_output:
+        case.assertNotIn("Traceback", output.text.decode(errors="replace"))
+
+
+def clean_shutdown_test():
+    """A post-shutdown TestCase for a launch test module: `TestShutdown = clean_shutdown_test()`
+    (launch_testing finds post-shutdown tests among the module's classes)."""
+    import unittest
+
+    import launch_testing
+
+    @launch_testing.post_shutdown_test()
+    class TestShutdown(unittest.TestCase):
+        def test_sigint_stops_it_cleanly(self, proc_info, proc_output):
+            assert_clean_shutdown(self, proc_info, proc_output)
+    return TestShutdown
+
+
 def process_environment(pid: int) -> dict:
     """The environment a launched process really has (Linux /proc)."""
     with open(f"/proc/{pid}/environ", "rb") as fh:

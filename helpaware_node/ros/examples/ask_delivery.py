@@ -17,7 +17,7 @@ from rclpy.node import Node
 from std_msgs.msg import String
 
 from ... import wire
-from .running import RELIABLE, spin_node
+from .running import RELIABLE, decode_or_warn, spin_node
 
 RESULTS = ("helped", "declined", "no_response", "could_not_ask")
 
@@ -34,10 +34,8 @@ class AskDelivery(Node):
         self.delivered: list[tuple[str, str, str]] = []
 
     def _on_decision(self, msg: String) -> None:
-        try:
-            d = wire.decode("decision", msg.data)
-        except wire.WireError as exc:
-            self.get_logger().warning(f"bad decision document: {exc}")
+        d = decode_or_warn(self, "decision", msg.data)
+        if d is None:
             return
         if d["action"] != "ask":
             return

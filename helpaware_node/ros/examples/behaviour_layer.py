@@ -18,7 +18,7 @@ from rclpy.node import Node
 from std_msgs.msg import String
 
 from ... import wire
-from .running import RELIABLE, spin_node
+from .running import RELIABLE, decode_or_warn, spin_node
 
 
 class BehaviourLayer(Node):
@@ -50,10 +50,8 @@ class BehaviourLayer(Node):
             self.finished[rid] = state
 
     def _on_decision(self, msg: String) -> None:
-        try:
-            d = wire.decode("decision", msg.data)
-        except wire.WireError as exc:
-            self.get_logger().warning(f"bad decision document: {exc}")
+        d = decode_or_warn(self, "decision", msg.data)
+        if d is None:
             return
         if d["request_id"] not in self.open:
             return

@@ -2,15 +2,26 @@
 from __future__ import annotations
 
 import sys
-from typing import Callable
+from typing import Callable, Optional
 
 import rclpy
 from rclpy.executors import ExternalShutdownException
 from rclpy.node import Node
 from rclpy.qos import QoSProfile, ReliabilityPolicy
 
+from ... import wire
+
 # the decider's QoS for task_status, outcome and decision (docs/integration.md)
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
+
+
+def decode_or_warn(node: Node, name: str, text: str) -> Optional[dict]:
+    """The document, or None after a warning that names what was wrong with it."""
+    try:
+        return wire.decode(name, text)
+    except wire.WireError as exc:
+        node.get_logger().warning(f"bad {name} document: {exc}")
+        return None
 
 
 def spin_node(make_node: Callable[[], Node], args=None) -> int:
