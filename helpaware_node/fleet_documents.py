@@ -165,7 +165,7 @@ def load_document(text: Any, what: str = WHAT) -> dict:
     if not isinstance(text, str):
         raise CoreInputError(f"{what}: expected text, got {type(text).__name__}")
     if len(text) > MAX_DOCUMENT_CHARS:
-        raise CoreInputError(f"{what}: longer than {MAX_DOCUMENT_CHARS} characters")
+        raise CoreInputError(f"{what}: JSON text longer than {MAX_DOCUMENT_CHARS} characters")
     try:
         doc = json.loads(text, parse_constant=_refuse_constant,
                          object_pairs_hook=_refuse_duplicates)
@@ -182,14 +182,15 @@ def decode_parsed(doc: Mapping, keys: KeyRing, now_s: Optional[float] = None,
                   what: str = WHAT) -> tuple[str, Any]:
     version = doc.get("v")
     if version == UNSIGNED_VERSION and not isinstance(version, bool):
-        raise Refused(OLD_FORMAT, f"{what}: format v1 (unsigned) from {_sender(doc)}: refused. "
-                      "This robot takes only signed v2 documents; update helpaware_node on that "
-                      "robot (docs/store.md, 'Migration to signed documents')")
+        raise Refused(OLD_FORMAT, f"{what}: v=1, the unsigned format of older versions, from "
+                      f"{_sender(doc)}: refused. This robot takes only signed v=2 documents; "
+                      "update helpaware_node on that robot (docs/store.md, 'Migration to signed "
+                      "documents')")
     if version != FORMAT_VERSION or isinstance(version, bool):
         raise CoreInputError(f"{what}: v must be {FORMAT_VERSION} (got {str(version)[:20]})")
     keys.check(doc, time.time() if now_s is None else now_s, what)
     kind = doc.get("kind")
-    if kind not in KINDS:
+    if not isinstance(kind, str) or kind not in KINDS:
         raise CoreInputError(f"{what}: kind {str(kind)[:40]!r} is not one of "
                              f"{', '.join(KINDS)}")
     return kind, KINDS[kind].from_fields(doc)
@@ -205,7 +206,7 @@ def _sender(doc: Mapping) -> str:
 
 
 def _refuse_constant(text: str):
-    raise CoreInputError(f"{text} is not allowed (numbers must be finite)")
+    raise CoreInputError(f"not valid JSON ({text} is not a number JSON allows)")
 
 
 def _refuse_duplicates(pairs: list) -> dict:

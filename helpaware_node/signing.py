@@ -101,11 +101,15 @@ def _u32(n: int) -> bytes:
     return struct.pack(">I", n)
 
 
+def _field(path: str) -> str:
+    return f"field {path!r}" if path else "document"
+
+
 def _text(value: str, path: str) -> bytes:
     try:
         return value.encode("utf-8")
     except UnicodeEncodeError:
-        raise CanonicalError(f"{path or 'document'}: not valid Unicode text (a lone "
+        raise CanonicalError(f"{_field(path)}: not valid Unicode text (a lone "
                              "surrogate)") from None
 
 
@@ -113,18 +117,19 @@ def _number(value, path: str) -> float:
     try:
         x = float(value)
     except OverflowError:
-        raise CanonicalError(f"{path}: {str(value)[:24]}... is beyond any finite number") from None
+        raise CanonicalError(f"{_field(path)}: {str(value)[:24]}... is beyond any finite "
+                             "number") from None
     if not math.isfinite(x):
-        raise CanonicalError(f"{path}: {value!r} is not a finite number")
+        raise CanonicalError(f"{_field(path)}: {value!r} is not a finite number")
     if isinstance(value, int) and x != value:
-        raise CanonicalError(f"{path}: the integer {str(value)[:24]} has no exact binary64 "
-                             "value; send it as a decimal number")
+        raise CanonicalError(f"{_field(path)}: the integer {str(value)[:24]} has no exact "
+                             "binary64 value; send it as a decimal number")
     return x + 0.0          # -0.0 becomes 0.0: the same JSON number
 
 
 def _put(out: bytearray, value: Any, path: str, depth: int) -> None:
     if depth > MAX_DEPTH:
-        raise CanonicalError(f"{path}: nested deeper than {MAX_DEPTH} levels")
+        raise CanonicalError(f"{_field(path)}: nested deeper than {MAX_DEPTH} levels")
     if value is None:
         out += b"n"
     elif value is True:
@@ -132,7 +137,7 @@ def _put(out: bytearray, value: Any, path: str, depth: int) -> None:
     elif value is False:
         out += b"F"
     elif isinstance(value, (int, float)):
-        out += b"d" + struct.pack(">d", _number(value, path or "document"))
+        out += b"d" + struct.pack(">d", _number(value, path))
     elif isinstance(value, str):
         raw = _text(value, path)
         out += b"s" + _u32(len(raw)) + raw
@@ -144,14 +149,14 @@ def _put(out: bytearray, value: Any, path: str, depth: int) -> None:
         names = []
         for name in value:
             if not isinstance(name, str):
-                raise CanonicalError(f"{path or 'document'}: field name {name!r} is not text")
+                raise CanonicalError(f"{_field(path)}: field name {name!r} is not text")
             names.append((_text(name, f"{path}.{name[:40]}" if path else name[:40]), name))
         out += b"o" + _u32(len(names))
         for raw, name in sorted(names):
             out += b"s" + _u32(len(raw)) + raw
             _put(out, value[name], f"{path}.{name}" if path else name, depth + 1)
     else:
-        raise CanonicalError(f"{path or 'document'}: {type(value).__name__} is not a JSON value")
+        raise CanonicalError(f"{_field(path)}: {type(value).__name__} is not a JSON value")
 
 
 # ---------------------------------------------------------------------------- keys
@@ -212,7 +217,11 @@ class KeyRing:
         key = self._key_for(key_id, now_s, what)
         if not isinstance(sig, str) or not _HEX64.match(sig):
             raise Refused(BAD_SIGNATURE, f"{what}: sig must be 64 lowercase hex digits")
-        if not hmac.compare_digest(key.mac(document), sig):
+        try:
+            mac = key.mac(document)
+        except CanonicalError as exc:
+            raise CanonicalError(f"{what}: {exc}") from None
+        if not hmac.compare_digest(mac, sig):
             raise Refused(BAD_SIGNATURE, f"{what}: sig does not match the document (changed on "
                           f"the way, or forged without the site key); key {key_id}")
         return key_id
@@ -223,10 +232,10 @@ class KeyRing:
         if self.previous is not None and key_id == self.previous.key_id:
             if now_s <= self.previous_until_s:
                 return self.previous
-            raise Refused(EXPIRED_KEY, f"{what}: signed with the previous key {key_id}, "
-                          f"accepted only until {utc_text(self.previous_until_s)}; give that "
-                          "robot the current site key file")
-        raise Refused(UNKNOWN_KEY, f"{what}: signed with key {key_id}, which this robot does "
+            raise Refused(EXPIRED_KEY, f"{what}: key_id {key_id} is the previous signing "
+                          f"key, accepted only until {utc_text(self.previous_until_s)}; give "
+                          "that robot the current site key file")
+        raise Refused(UNKNOWN_KEY, f"{what}: key_id {key_id} is a signing key this robot does "
                       f"not hold (it signs with {self.current.key_id}): copy the current site "
                       "key file to every robot of the site")
 

@@ -1,7 +1,8 @@
 """Two robots in two processes share outcomes; a third started late catches up.
 
 The peers are `python -m helpaware_node.ros.fleet` (FleetLink on an SQLite store). The test
-process also listens on fleet/outcomes to check that no raw id travels on the topic.
+process also listens on the fleet topic to check that no raw id travels on it, and that every
+document there is signed for the site.
 """
 import os
 import queue

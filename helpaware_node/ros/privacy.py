@@ -11,7 +11,6 @@ listening) and tells the console who applied it.  Unsigned requests ({"action": 
 """
 from __future__ import annotations
 
-import os
 import socket
 import time
 from collections import Counter
@@ -131,8 +130,24 @@ class ConsoleResult:
     elapsed_s: float = 0.0               # from sending until every answer came (or time ran out)
 
 
+CONSOLE_NODE = "helpaware_privacy_console"
+
+
 def console_name() -> str:
     return f"console@{socket.gethostname().split('.')[0] or 'host'}"[:64]
+
+
+def open_console(context, on_fleet: Callable[[String], None], topic: str = PRIVACY_TOPIC,
+                 fleet_topic: str = ""):
+    """The console's node: publishes on the privacy topic, reads the fleet topic, and has
+    nothing else (no parameter services, no /rosout), so its SROS2 profile stays small
+    (config/sros2/helpaware.policy.xml).  Returns (node, publisher)."""
+    import rclpy
+    from .fleet import FLEET_TOPIC, fleet_reader_qos
+    node = rclpy.create_node(CONSOLE_NODE, context=context, start_parameter_services=False,
+                             enable_rosout=False)
+    node.create_subscription(String, fleet_topic or FLEET_TOPIC, on_fleet, fleet_reader_qos())
+    return node, node.create_publisher(String, topic, PRIVACY_QOS)
 
 
 def send_privacy_request(action: str, person_key: str, keys: KeyRing, *,
@@ -147,17 +162,10 @@ def send_privacy_request(action: str, person_key: str, keys: KeyRing, *,
     import rclpy
     from rclpy.executors import SingleThreadedExecutor
 
-    from .fleet import FLEET_TOPIC, fleet_reader_qos
-
     if action not in PRIVACY_KINDS:
         raise CoreInputError(f"action: {action!r} is not one of {', '.join(PRIVACY_KINDS)}")
     act = PrivacyAct.new(action, person_key, sender or console_name())
     encode_document(action, act, keys)     # refuses a bad key before any ROS start-up
-    ctx = rclpy.Context()
-    rclpy.init(args=[], context=ctx)
-    node = rclpy.create_node(f"helpaware_privacy_console_{os.getpid()}", context=ctx)
-    executor = SingleThreadedExecutor(context=ctx)
-    executor.add_node(node)
     result = ConsoleResult(act.act_id, 0)
 
     def heard(msg: String) -> None:
@@ -177,9 +185,13 @@ def send_privacy_request(action: str, person_key: str, keys: KeyRing, *,
             executor.spin_once(timeout_sec=0.05)
         return predicate()
 
+    ctx = rclpy.Context()
+    rclpy.init(args=[], context=ctx)
+    executor = SingleThreadedExecutor(context=ctx)
+    node = None
     try:
-        node.create_subscription(String, fleet_topic or FLEET_TOPIC, heard, fleet_reader_qos())
-        pub = node.create_publisher(String, topic, PRIVACY_QOS)
+        node, pub = open_console(ctx, heard, topic, fleet_topic)
+        executor.add_node(node)
         want = max(robots, 1)
         if spin_until(lambda: pub.get_subscription_count() >= want, wait_s) and robots <= 0:
             spin_until(lambda: False, 1.0)      # the other robots are usually found together
@@ -197,5 +209,6 @@ def send_privacy_request(action: str, person_key: str, keys: KeyRing, *,
         return result
     finally:
         executor.shutdown(timeout_sec=1.0)
-        node.destroy_node()
+        if node is not None:
+            node.destroy_node()
         rclpy.try_shutdown(context=ctx)
