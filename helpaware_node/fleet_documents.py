@@ -17,7 +17,6 @@ Unknown extra fields are covered by the signature and otherwise ignored.
 from __future__ import annotations
 
 import json
-import re
 import secrets
 import time
 from dataclasses import dataclass
@@ -27,6 +26,7 @@ from .core import CoreInputError, Result
 from .signing import SIGNATURE_FIELDS, KeyRing, Refused
 from .store.base import StoredEvent
 from .store.sqlite import PERSON_KEY_RE, check_event
+from .wire import WireError, parse_json
 
 FORMAT_VERSION = 2
 UNSIGNED_VERSION = 1          # the format before signatures: refused, with a message saying so
@@ -167,12 +167,11 @@ def load_document(text: Any, what: str = WHAT) -> dict:
     if len(text) > MAX_DOCUMENT_CHARS:
         raise CoreInputError(f"{what}: JSON text longer than {MAX_DOCUMENT_CHARS} characters")
     try:
-        doc = json.loads(text, parse_constant=_refuse_constant,
-                         object_pairs_hook=_refuse_duplicates)
-    except CoreInputError as exc:
-        raise CoreInputError(f"{what}: {exc}") from None
-    except (ValueError, RecursionError) as exc:
-        raise CoreInputError(f"{what}: not JSON ({str(exc)[:80]})") from None
+        doc = parse_json(text)
+    except WireError as exc:      # "document: ..." (not JSON, NaN, a repeated name)
+        reason = str(exc).removeprefix("document: ")
+        raise CoreInputError(f"{what}: {reason}" if "JSON" in reason
+                             else f"{what}: not valid JSON ({reason})") from None
     if not isinstance(doc, dict):
         raise CoreInputError(f"{what}: expected a JSON object")
     return doc
@@ -203,22 +202,6 @@ def _sender(doc: Mapping) -> str:
         sender = event_id.rpartition("/")[0] if isinstance(event_id, str) else ""
     sender = sender[:64] if sender and sender.isprintable() else ""
     return f"robot {sender!r}" if sender else "an old peer"
-
-
-def _refuse_constant(text: str):
-    raise CoreInputError(f"not valid JSON ({text} is not a number JSON allows)")
-
-
-def _refuse_duplicates(pairs: list) -> dict:
-    """A name given twice is read differently by different parsers: never signed as one."""
-    obj = dict(pairs)
-    if len(obj) != len(pairs):
-        seen: set = set()
-        for name, _ in pairs:
-            if name in seen:
-                raise CoreInputError(f"duplicate field {str(name)[:40]!r} in one JSON object")
-            seen.add(name)
-    return obj
 
 
 # ---------------------------------------------------------------------------- privacy topic

@@ -117,7 +117,7 @@ def test_unsigned_requests_are_refused_by_default_and_change_nothing(tmp_path):
         assert "allow_unsigned_privacy_requests:=true" in robot.privacy.last_refusal
         assert "helpaware privacy" in robot.privacy.last_refusal
         assert not robot.store.is_opted_out(robot.kb) and robot.ka in robot.store.keys()
-        assert robot.applied == [] and robot.privacy._log.lines == 1    # logged once
+        assert robot.applied == [] and robot.privacy._refused.lines == 1    # logged once
         # stale, foreign and wrongly signed requests are refused too
         _, old = request("opt_out", robot.kb, issued_s=time.time() - REQUEST_MAX_AGE_S - 60)
         _, foreign = request("opt_out", robot.kb, keys=SiteKeys.single(b"q" * 32).key_ring())

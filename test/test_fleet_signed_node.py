@@ -106,7 +106,7 @@ def test_a_peer_without_the_key_publishes_1000_documents_and_none_is_stored(ctx,
                                         "unsigned": 200, "old_format": 200, "unknown_key": 200}
         assert stored_rows(path) == before_rows       # not one event, opt-out or forget
         assert rig.node.records[key_of(NURSE)].belief == before_belief
-        assert fleet._log.lines == 5                  # each reason logged once (throttled)
+        assert fleet._refused.lines == 5                  # each reason logged once (throttled)
 
         def reported():
             for arr in rig.diagnostics:

@@ -30,7 +30,7 @@ import argparse
 import sys
 import threading
 import time
-from collections import Counter, OrderedDict, deque
+from collections import OrderedDict, deque
 from typing import Callable, Iterable, Optional
 
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
@@ -38,11 +38,11 @@ from std_msgs.msg import String
 
 from ..core import CoreInputError, Result
 from ..fleet_documents import (MALFORMED, OLD_FORMAT, PRIVACY_KINDS, PrivacyAct,
-                               decode_document, encode_document, refusal_reason)
+                               decode_document, encode_document)
 from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
                        utc_text)
 from ..store.base import StoredEvent
-from .refusal_log import RefusalLog
+from .refusal_log import CountsRefusals, Refusals
 
 FLEET_TOPIC = "/helpaware/fleet"    # site-wide: every robot of the site, whatever its namespace
 FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
@@ -104,7 +104,7 @@ def merge(store, text: str, keys: KeyRing, forgotten: set[str] | None = None,
     return [value] if (append or store.append)(value) else []
 
 
-class FleetLink:
+class FleetLink(CountsRefusals):
     """Publishes this robot's outcomes and privacy acts, and merges everyone else's.
 
     Received events are decoded (and refused) at once, queued, and stored by a timer in
@@ -142,13 +142,10 @@ class FleetLink:
         self._queued: deque[StoredEvent] = deque()
         self._queued_since_s = 0.0      # monotonic time the oldest queued event arrived
         self.merged_count = 0
-        self.refused_count = 0
-        self.refusals: Counter = Counter()      # by reason (REFUSAL_REASONS)
-        self.last_refusal = ""
         self.dropped_count = 0          # queue full (MAX_QUEUED): counted and logged
         self.store_failures = 0         # a batch the store refused: kept and tried again
         self.acts_applied = 0           # forgets and opt-outs applied (each request once)
-        self._log = RefusalLog(node.get_logger().warning, topic)
+        self._refused = Refusals(node.get_logger().warning, topic)   # by reason, logged once
         self._pub = node.create_publisher(String, topic, fleet_qos(depth))
         self._sub = node.create_subscription(String, topic, self._on_delivery,
                                              fleet_reader_qos(depth))
@@ -293,11 +290,7 @@ class FleetLink:
         try:
             return decode_document(text, self._keys, self._clock())
         except CoreInputError as exc:
-            reason = refusal_reason(exc)
-            self.refused_count += 1
-            self.refusals[reason] += 1
-            self.last_refusal = str(exc)[:200]
-            self._log.note(reason, str(exc))
+            self._refused.add(exc)
             return None
 
     def _on_tick(self) -> None:

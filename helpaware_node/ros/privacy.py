@@ -13,7 +13,6 @@ from __future__ import annotations
 
 import socket
 import time
-from collections import Counter
 from dataclasses import dataclass, field
 from typing import Callable, Optional
 
@@ -23,10 +22,10 @@ from std_msgs.msg import String
 from ..core import CoreInputError
 from ..fleet_documents import (MALFORMED, PRIVACY_KINDS, PrivacyAct, check_fresh,
                                decode_document, decode_parsed, encode_document, load_document,
-                               parse_unsigned_request, refusal_reason)
+                               parse_unsigned_request)
 from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
                        Refused)
-from .refusal_log import RefusalLog
+from .refusal_log import CountsRefusals, Refusals
 
 PRIVACY_TOPIC = "/helpaware/privacy_request"   # site-wide, like the fleet topic
 PRIVACY_QOS = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE,
@@ -35,7 +34,7 @@ PRIVACY_REFUSALS = (UNSIGNED, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, BAD_SIGNATUR
 ALLOW_UNSIGNED_PARAM = "allow_unsigned_privacy_requests"
 
 
-class PrivacyRequests:
+class PrivacyRequests(CountsRefusals):
     """The node's privacy topic.  `fleet` (a FleetLink) applies and passes on each request;
     `on_applied(action, key)` lets the node drop what it holds in memory at once."""
 
@@ -49,12 +48,9 @@ class PrivacyRequests:
         self._clock = clock
         self.topic = topic
         self.allow_unsigned = bool(allow_unsigned)
-        self.refused_count = 0        # counted like the node's input topics (diagnostics)
-        self.refusals: Counter = Counter()
-        self.last_refusal = ""
         self.applied_count = 0
         self.duplicate_count = 0      # a request applied here already (a replay, an echo)
-        self._log = RefusalLog(node.get_logger().warning, topic)
+        self._refused = Refusals(node.get_logger().warning, topic)   # by reason, logged once
         self._sub = node.create_subscription(String, topic, self._on_message, PRIVACY_QOS)
         if self.allow_unsigned:
             node.get_logger().warning(f"{topic}: {ALLOW_UNSIGNED_PARAM} is true: anyone on the "
@@ -111,11 +107,7 @@ class PrivacyRequests:
         try:
             action, key = self.apply(msg.data)
         except CoreInputError as exc:
-            reason = refusal_reason(exc)
-            self.refused_count += 1
-            self.refusals[reason] += 1
-            self.last_refusal = str(exc)[:200]
-            self._log.note(reason, str(exc))
+            self._refused.add(exc)
             return
         done = "was applied already" if self.duplicate_count > n else "applied"
         self._node.get_logger().info(f"{self.topic}: {action} {done} to {key[:12]}...")

@@ -83,13 +83,18 @@ def create_key_file(path: Path) -> bytes:
     """Write a new key with mode 0o600 from the start (never briefly world-readable)."""
     path.parent.mkdir(parents=True, exist_ok=True, mode=0o700)
     key = new_key_bytes()
+    write_new_owner_only(path, key)
+    return key
+
+
+def write_new_owner_only(path: Path, data: bytes) -> None:
+    """Create `path` (it must not exist) with mode 0o600, write `data` and sync it."""
     fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
     try:
-        os.write(fd, key)
+        os.write(fd, data)
         os.fsync(fd)
     finally:
         os.close(fd)
-    return key
 
 
 def load_site_key(path: str | os.PathLike | None = None, create: bool = True) -> bytes:
@@ -258,12 +263,7 @@ def rotate_signing_key(path: str | os.PathLike, window_s: float, now_s: float | 
 
 def write_key_file_atomically(path: Path, data: bytes) -> None:
     tmp = path.with_name(f".{path.name}.new-{os.getpid()}")
-    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
-    try:
-        os.write(fd, data)
-        os.fsync(fd)
-    finally:
-        os.close(fd)
+    write_new_owner_only(tmp, data)
     os.replace(tmp, path)
     dir_fd = os.open(path.parent, os.O_RDONLY)
     try:
