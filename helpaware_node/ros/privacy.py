@@ -109,7 +109,7 @@ class PrivacyRequests(CountsRefusals):
         except CoreInputError as exc:
             self._refused.add(exc)
             return
-        done = "was applied already" if self.duplicate_count > n else "applied"
+        done = "already applied" if self.duplicate_count > n else "applied"
         self._node.get_logger().info(f"{self.topic}: {action} {done} to {key[:12]}...")
 
 
