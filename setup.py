@@ -15,6 +15,7 @@ setup(
         (share, ["package.xml"]),
         (share + "/launch", glob("launch/*.launch.py")),
         (share + "/config", glob("config/*.yaml")),
+        (share + "/config/sros2", glob("config/sros2/*.xml")),
         (share + "/scenarios", glob("scenarios/*.yaml")),
         (share + "/schemas", glob("docs/schemas/*.json")),
     ],

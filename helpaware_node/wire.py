@@ -306,14 +306,19 @@ def decode(name: str, text: Any) -> dict:
         raise WireError(f"document: expected text, got {describe(text)}")
     if len(text) > MAX_DOCUMENT_BYTES or len(text.encode("utf-8", "replace")) > MAX_DOCUMENT_BYTES:
         raise WireError(f"document: larger than the allowed {MAX_DOCUMENT_BYTES} bytes")
+    return validate(name, parse_json(text))
+
+
+def parse_json(text: str) -> Any:
+    """JSON text to values, strictly: NaN/Infinity and repeated names in one object refused
+    (WireError, "document: ..."); also used for the signed fleet documents."""
     try:
-        data = json.loads(text, parse_constant=_refuse_constant,
+        return json.loads(text, parse_constant=_refuse_constant,
                           object_pairs_hook=_refuse_duplicates)
     except WireError:
         raise
     except (ValueError, RecursionError) as exc:
         raise WireError(f"document: not valid JSON ({str(exc)[:80]})") from None
-    return validate(name, data)
 
 
 def encode(name: str, document: Mapping[str, Any]) -> str:
