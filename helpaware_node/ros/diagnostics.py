@@ -94,11 +94,7 @@ def decision_values(node, rates: dict) -> dict:
     for name, part in side_inputs(node):
         values[f"{name}.rejected"] = part.refused_count
         values[f"{name}.last_rejection"] = part.last_refusal
-    fleet = getattr(node, "fleet", None)
-    if fleet is not None:
-        values.update({"fleet_outcomes.queued": fleet.queued_count,
-                       "fleet_outcomes.dropped": fleet.dropped_count,
-                       "fleet_outcomes.store_failures": fleet.store_failures})
+        values.update(part.diagnostic_values())   # queue, refusals by reason, keys in force
     session, held, store = node.session, node.held, node.store
     values.update({
         "open_needs": len(session.needs), "pending_asks": len(session.pending),

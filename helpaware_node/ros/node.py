@@ -1,6 +1,7 @@
 """The decision node: people, help needs and outcomes in; decisions, markers, diagnostics out.
 
-Topics (all relative names, so namespaces and remaps work):
+Topics (relative names, so namespaces and remaps work; the fleet and privacy topics are
+site-wide, absolute by default: parameters fleet_topic and privacy_topic):
   in  people       std_msgs/String (wire `people`), sensor-data QoS (best effort, depth 5)
   in  task_status  std_msgs/String (wire `task_status`), reliable, depth 1000
   in  outcome      std_msgs/String (wire `outcome`), reliable, depth 1000
@@ -8,11 +9,11 @@ Topics (all relative names, so namespaces and remaps work):
   out decision     std_msgs/String (wire `decision`), reliable, depth 50
   out markers      visualization_msgs/MarkerArray
   out /diagnostics diagnostic_msgs/DiagnosticArray, about 1 Hz
-Wiring only: each message becomes an event of the help session (helpaware_node/session),
-which keeps the needs, asks and limits and makes every decision through core.policy.decide;
-its Step comes back here as documents to publish, events to share on the fleet topic and log
-lines. The fleet link (fleet.py), the retry of outcomes the store refused (store_retry.py),
-the diagnostics values (diagnostics.py) and the markers (markers.py) live beside this file.
+  in+out <fleet_topic> (default /helpaware/fleet) signed fleet documents (ros/fleet.py)
+  in  <privacy_topic> (default /helpaware/privacy_request) signed requests (ros/privacy.py)
+Wiring only: messages become events of the help session (helpaware_node/session: needs, asks,
+limits, every decision through core.policy.decide); its Steps come back as documents, fleet
+events and log lines. Beside this file: fleet.py, store_retry.py, diagnostics.py, markers.py.
 """
 from __future__ import annotations
 
@@ -154,12 +155,13 @@ class HelpAwareNode(LifecycleNode):
         timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
-        # fleet/outcomes in and out (outcomes and asks), and live opt-out/forget on
-        # privacy_request (docs/store.md)
+        # signed fleet documents in and out (outcomes and asks) and live opt-out/forget on the
+        # site-wide topics from parameters (docs/store.md, docs/security.md)
         self.fleet = FleetLink(self, self.store, append_many=self.session.peer_events,
-                               on_forgotten=self.session.forgotten)
+                               on_forgotten=self.session.forgotten, topic=s.fleet_topic)
         self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
-            self.session.forgotten(key) if action == "forget" else None))
+            self.session.forgotten(key) if action == "forget" else None),
+            topic=s.privacy_topic, allow_unsigned=s.allow_unsigned_privacy_requests)
         self._entities += self.fleet.entities + [self.privacy._sub]
 
     def on_activate(self, state: LifecycleState) -> TransitionCallbackReturn:
@@ -229,8 +231,7 @@ class HelpAwareNode(LifecycleNode):
 
     def _reject(self, topic: str, reason: str) -> None:
         self.counters.reject(topic, reason)
-        self.get_logger().warning(f"rejected {topic}: {reason[:200]}",
-                                  throttle_duration_sec=1.0)
+        self.get_logger().warning(f"rejected {topic}: {reason[:200]}", throttle_duration_sec=1.0)
 
     def _on_qos_incompatible(self, event) -> None:
         self.counters.qos_incompatible += 1
@@ -295,8 +296,7 @@ class HelpAwareNode(LifecycleNode):
         except (CoreInputError, ValueError) as exc:
             self._reject("navigation_status", str(exc))
 
-    def _on_saved_late(self, event) -> None:
-        """A held outcome the store took at last: learn from it, then share it."""
+    def _on_saved_late(self, event) -> None:   # a held outcome stored at last: learn, share
         self.session.outcome_saved(event)
         self.fleet.publish(event)
 

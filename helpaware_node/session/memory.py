@@ -11,8 +11,8 @@ from dataclasses import replace
 from typing import Iterable
 
 from ..core import PersonRecord, SiteModel, note_ask, note_candidate
-from ..core.person import DAY_S
 from ..core.model import DecisionConfig
+from ..core.person import ask_history_horizon_s
 from ..store.base import AskEvent
 from .ports import SessionStore
 
@@ -119,8 +119,7 @@ class PersonMemory:
         memory are never dropped."""
         if len(self.records) <= self.max_records and len(self.last_seen_s) <= 2 * self.max_records:
             return
-        horizon = max(DAY_S, 10.0 * self.model.ask_memory_half_life_s,
-                      config.min_reask_interval_s)
+        horizon = ask_history_horizon_s(self.model)
         droppable = [k for k, r in self.records.items() if k not in keep
                      and not any(now_s - t < horizon for t in r.ask_times_s)]
         droppable.sort(key=lambda k: self.last_seen_s.get(k, float("-inf")))

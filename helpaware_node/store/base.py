@@ -16,6 +16,7 @@ from typing import Iterable, Optional, Protocol, Union
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP
+from .keys import SiteKeys
 
 
 @dataclass(frozen=True)
@@ -105,8 +106,11 @@ class BeliefStore(Protocol):
 class MemoryStore:
     """A store that keeps everything in this process (tests, simulator, no-disk runs)."""
 
-    def __init__(self, site_key: bytes | None = None, robot_id: str = "robot") -> None:
-        self._site_key = site_key if site_key is not None else os.urandom(32)
+    def __init__(self, site_key: bytes | SiteKeys | None = None, robot_id: str = "robot") -> None:
+        if not isinstance(site_key, SiteKeys):
+            site_key = SiteKeys.single(site_key if site_key is not None else os.urandom(32))
+        self.site_keys = site_key          # hashing key, and the fleet signing roots
+        self._site_key = site_key.person_id_key
         self.robot_id = robot_id
         self.health = StoreHealth("OK", "in memory (nothing kept after exit)")
         self._next_seq = 1

@@ -6,8 +6,9 @@ store holds is read with the sqlite3 module read-only (process_rig.stored_asks),
 the store's own code. Each check reads the reason code from the decision document's
 rationale, as a user reviewing a bag would.
 
-The two-robot test runs the robots in two namespaces (/siteA, /siteB) and remaps each one's
-relative fleet/outcomes onto the shared /fleet/outcomes (process_rig.SHARED_FLEET_TOPIC).
+The two-robot test runs the robots in two namespaces (/siteA, /siteB) on the site-wide fleet
+topic (/helpaware/fleet, the default, process_rig.SHARED_FLEET_TOPIC); the single-robot tests
+give each robot a fleet topic of its own (process_rig.own_fleet_topic).
 """
 import random
 
@@ -16,7 +17,8 @@ import pytest
 pytest.importorskip("rclpy")
 
 from process_rig import (SHARED_FLEET_TOPIC, SITE_KEY, Drive, Every, Robot,  # noqa: E402
-                         kill_hard, start_node, stop_gently, stored_asks, write_site_key)
+                         kill_hard, own_fleet_topic, start_node, stop_gently, stored_asks,
+                         write_site_key)
 
 from helpaware_node.store.base import person_key  # noqa: E402
 
@@ -41,7 +43,8 @@ def test_sigkill_after_a_decline_and_after_an_unanswered_ask_keeps_the_reask_int
     write_site_key(tmp_path)
     store, log = tmp_path / "beliefs.sqlite3", tmp_path / "node.log"
     drive = Drive("reask_driver")
-    robot = drive.add(Robot("rk1", "/reask", "/reask/fleet/outcomes", [NURSE], random.Random(1)))
+    robot = drive.add(Robot("rk1", "/reask", own_fleet_topic("/reask"), [NURSE],
+                                  random.Random(1)))
     proc = start_node(store, "rk1", "/reask", log, limits=REASK_LIMITS)
     try:
         # 1. nurse-a asked, she declines; SIGKILL right after the node stored the decline
@@ -79,7 +82,7 @@ def test_the_hourly_cap_counts_the_asks_made_before_a_sigkill(tmp_path):
     write_site_key(tmp_path)
     store, log = tmp_path / "beliefs.sqlite3", tmp_path / "node.log"
     drive = Drive("hourly_driver")
-    robot = drive.add(Robot("rh1", "/hourly", "/hourly/fleet/outcomes", people,
+    robot = drive.add(Robot("rh1", "/hourly", own_fleet_topic("/hourly"), people,
                             random.Random(2)))
     proc = start_node(store, "rh1", "/hourly", log, limits=limits)
     try:
