@@ -4,6 +4,7 @@ Format v2 (docs/store.md, "Fleet exchange"; signatures in docs/security.md).  Ev
   {"v": 2, "kind": <kind>, ...the kind's own fields..., "site": ..., "key_id": ..., "sig": ...}
 where `sig` is the HMAC of signing.canonical_bytes over the whole document but `sig`.  Kinds:
   outcome  event_id, person_key, time_s, result, busyness, ask_load, request_kind
+  ask      event_id, person_key, time_s, request_kind, request_id   (an ask, before its outcome)
   forget   id, person_key, from, request_id, issued_s     (a privacy act: erase the person)
   opt_out  id, person_key, from, request_id, issued_s     (a privacy act: never learn again)
 A new kind is one entry in KINDS (its fields, and the two functions between value and fields).
@@ -24,8 +25,8 @@ from typing import Any, Callable, Mapping, Optional
 
 from .core import CoreInputError, Result
 from .signing import SIGNATURE_FIELDS, KeyRing, Refused
-from .store.base import StoredEvent
-from .store.sqlite import PERSON_KEY_RE, check_event
+from .store.base import AskEvent, StoredEvent
+from .store.sqlite import PERSON_KEY_RE, check_ask, check_event
 from .wire import WireError, parse_json
 
 FORMAT_VERSION = 2
@@ -107,6 +108,28 @@ def _outcome_from(doc: Mapping) -> StoredEvent:
     return e
 
 
+def _ask_fields(a: AskEvent) -> dict:
+    return {"event_id": a.event_id, "person_key": a.person_key, "time_s": float(a.time_s),
+            "request_kind": a.request_kind, "request_id": a.request_id}
+
+
+def _ask_from(doc: Mapping) -> AskEvent:
+    for name in ("event_id", "person_key", "request_kind", "request_id"):
+        if name in doc and not isinstance(doc[name], str):
+            raise CoreInputError(f"{WHAT}: {name} must be text")
+    if "time_s" not in doc:
+        raise CoreInputError(f"{WHAT}: missing field time_s")
+    if isinstance(doc["time_s"], bool) or not isinstance(doc["time_s"], (int, float)):
+        raise CoreInputError(f"{WHAT}: time_s must be a number")
+    try:
+        a = AskEvent(doc.get("event_id", ""), doc.get("person_key", ""), float(doc["time_s"]),
+                     doc.get("request_kind", ""), doc.get("request_id", ""))
+    except OverflowError:   # an integer beyond any float
+        raise CoreInputError(f"{WHAT}: time_s must be a finite number in range") from None
+    check_ask(a)            # names the field: person_key, event_id, time_s, request_*
+    return a
+
+
 def _act_fields(act: PrivacyAct) -> dict:
     return {"id": act.act_id, "person_key": act.person_key, "from": act.sender,
             "request_id": act.request_id, "issued_s": float(act.issued_s)}
@@ -138,6 +161,8 @@ ACT_FIELDS = ("id", "person_key", "from", "request_id", "issued_s")
 KINDS: dict[str, Kind] = {
     "outcome": Kind(("event_id", "person_key", "time_s", "result", "busyness", "ask_load",
                      "request_kind"), _outcome_fields, _outcome_from),
+    "ask": Kind(("event_id", "person_key", "time_s", "request_kind", "request_id"),
+                _ask_fields, _ask_from),
     "forget": Kind(ACT_FIELDS, _act_fields, _act_from("forget")),
     "opt_out": Kind(ACT_FIELDS, _act_fields, _act_from("opt_out")),
 }
@@ -155,8 +180,8 @@ def encode_document(kind: str, value: Any, keys: KeyRing) -> str:
 
 def decode_document(text: Any, keys: KeyRing, now_s: Optional[float] = None,
                     what: str = WHAT) -> tuple[str, Any]:
-    """(kind, value) of a signed document: StoredEvent for outcome, PrivacyAct for forget and
-    opt_out.  The signature is checked before any field is looked at."""
+    """(kind, value) of a signed document: StoredEvent for outcome, AskEvent for ask,
+    PrivacyAct for forget and opt_out.  The signature is checked before any field is looked at."""
     return decode_parsed(load_document(text, what), keys, now_s, what)
 
 

@@ -27,6 +27,7 @@ class LoadedParams:
     applied: dict = field(default_factory=dict)
     ignored: list = field(default_factory=list)
     pending_ask_timeout_s: Optional[float] = None
+    rules: Any = None               # session.SessionRules from the node settings in the file
 
 
 def _find_parameters(doc: Any, path: str) -> dict:
@@ -90,6 +91,7 @@ def apply_parameters(flat: Mapping[str, Any], base_model: SiteModel, base_config
         raise ParamFileError(f"{path}: {exc}") from None
     loaded = LoadedParams(model, config, path, applied, sorted(ignored))
     loaded.pending_ask_timeout_s = settings.pending_ask_timeout_s
+    loaded.rules = settings.session_rules()
     return loaded
 
 

@@ -59,8 +59,8 @@ class Rig:
         text = wire.people_document(people, self.node.now_s())
         ids = {p["id"] for p in people}
         def seen():
-            return ids <= set(self.node.seen) and all(
-                self.node.seen[p["id"]].person.distance_m == p["distance_m"] for p in people)
+            return ids <= set(self.node.session.seen) and all(
+                self.node.session.seen[p["id"]].person.distance_m == p["distance_m"] for p in people)
         for _ in range(100):
             self.people_pub.publish(String(data=text))
             if self.spin_until(seen, 0.3):

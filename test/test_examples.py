@@ -24,12 +24,12 @@ def test_behaviour_layer_and_ask_delivery_close_the_loop(ctx):
                               and delivery.outcome_pub.get_subscription_count() > 0)
         assert rig.show_people([{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1}])
         rid = behaviour.open_need("handover", urgency=1.0)
-        assert rig.spin_until(lambda: rid in behaviour.finished and not rig.node.needs)
+        assert rig.spin_until(lambda: rid in behaviour.finished and not rig.node.session.needs)
         assert behaviour.finished[rid] == "resolved"
         assert delivery.delivered == [(rid, "nurse-a", "helped")]
-        assert rig.node.records[rig.node.store.key_for("nurse-a")].belief == Belief(3.0, 2.0)
+        assert rig.node.session.memory.records[rig.node.store.key_for("nurse-a")].belief == Belief(3.0, 2.0)
         # nobody in view: the node says continue and the behaviour layer gives the need up
-        rig.node.seen.clear()
+        rig.node.session.seen.clear()
         rid2 = behaviour.open_need("door")
         assert rig.spin_until(lambda: rid2 in behaviour.finished)
         assert behaviour.finished[rid2] == "cancelled"
@@ -47,8 +47,8 @@ def test_perception_stand_in_shows_its_people_to_the_node(ctx):
         Parameter("people", value=people), Parameter("rate_hz", value=10.0)])
     rig.executor.add_node(seer)
     try:
-        assert rig.spin_until(lambda: {"nurse-x", "porter-y"} <= set(rig.node.seen))
-        seen = rig.node.seen["nurse-x"].person
+        assert rig.spin_until(lambda: {"nurse-x", "porter-y"} <= set(rig.node.session.seen))
+        seen = rig.node.session.seen["nurse-x"].person
         assert (seen.distance_m, seen.busyness) == (1.5, 0.25)
     finally:
         seer.destroy_node()

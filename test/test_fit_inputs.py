@@ -179,12 +179,19 @@ def test_reads_the_store_export(tmp_path):
     key = b"k" * 32
     store = SqliteStore(tmp_path / "s.db", "r1", key)
     results = [Result.HELPED, Result.DECLINED, Result.NO_RESPONSE, Result.COULD_NOT_ASK]
+    from helpaware_node.store.base import AskEvent
     for i in range(12):
         store.append(StoredEvent(f"r1/{i}", person_key(key, f"nurse{i % 3}"), 100.0 * i,
                                  results[i % 4], 0.1 * (i % 5), 0.25 * (i % 3), "door"))
+        # the ask each outcome answered, stored too (the export carries both)
+        store.append_asks([AskEvent(f"r1/{100 + i}", person_key(key, f"nurse{i % 3}"),
+                                    100.0 * i, "door", f"need-{i}")])
     path = tmp_path / "export.csv"
     with open(path, "w", newline="") as fh:
-        assert store_write_csv(store, fh) == 12
+        assert store_write_csv(store, fh) == 24
+    rows = path.read_text().splitlines()
+    assert rows[0].endswith(",record,request_id")
+    assert sum(r.split(",")[7] == "ask" for r in rows[1:]) == 12
     d = read_outcome_csv([str(path)])
     assert d.n_outcomes == 9 and d.n_people == 3          # could_not_ask rows skipped
     assert d.counts() == {"helped": 3, "declined": 3, "no_response": 3}

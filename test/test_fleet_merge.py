@@ -6,7 +6,7 @@ from helpaware_node.core import Result, SiteModel, fold_events
 from helpaware_node.core.model import CoreInputError
 from helpaware_node.fleet_documents import PrivacyAct, decode_document, encode_document
 from helpaware_node.ros.fleet import merge
-from helpaware_node.store import MemoryStore, SiteKeys, SqliteStore, StoredEvent
+from helpaware_node.store import AskEvent, MemoryStore, SiteKeys, SqliteStore, StoredEvent
 
 MODEL = SiteModel(evidence_half_life_s=3600.0)
 SITE_KEY = b"f" * 32
@@ -78,3 +78,46 @@ def test_forget_message_erases_and_blocks_replayed_copies(tmp_path):
     assert store.keys() == []
     assert merge(store, encode_event(e), KEYS, forgotten) == []    # a peer's older copy replayed
     assert store.keys() == []
+
+
+asks_st = st.lists(st.tuples(st.sampled_from(["r1", "r2"]), st.integers(0, 2),
+                             st.floats(0, 2000, allow_nan=False)), min_size=1, max_size=15)
+
+
+@settings(max_examples=30)
+@given(asks_st, st.randoms(use_true_random=False))
+def test_asks_merge_idempotently_in_any_order(tmp_path_factory, rows, rng):
+    """Asks from the fleet: any order and duplication store each ask once, and a person's
+    asks read back are the same set on every robot, in (time, event id) order."""
+    asks = [AskEvent(f"{r}/{i}", PEOPLE[p], t, "door", f"need-{i}")
+            for i, (r, p, t) in enumerate(rows)]
+    messages = [encode_document("ask", a, KEYS) for a in asks]
+    delivery = messages + [rng.choice(messages) for _ in range(rng.randint(0, 8))]
+    rng.shuffle(delivery)
+    store = SqliteStore(tmp_path_factory.mktemp("asks") / "b.sqlite3", "r3", SITE_KEY)
+    merged = [a for m in delivery for a in merge(store, m, KEYS)]
+    assert sorted(a.event_id for a in merged) == sorted(a.event_id for a in asks)
+    for key in PEOPLE:
+        mine = sorted((a for a in asks if a.person_key == key), key=lambda a: (a.time_s, a.event_id))
+        assert store.asks(person_key=key) == mine
+    store.close()
+
+
+def test_ask_documents_round_trip_and_refuse_bad_fields_naming_them():
+    import json
+    a = AskEvent("r1/9", PEOPLE[2], 30.0, "door", "need-3")
+    assert decode_document(encode_document("ask", a, KEYS), KEYS) == ("ask", a)
+    with pytest.raises(CoreInputError, match="person_key"):       # a raw id never travels
+        encode_document("ask", AskEvent("r1/9", "nurse-ingrid", 30.0), KEYS)
+    good = {"v": 2, "kind": "ask", "event_id": "r1/9", "person_key": PEOPLE[2], "time_s": 30.0,
+            "request_kind": "door", "request_id": "need-3"}
+    for field, bad in [("person_key", "nurse-ingrid"), ("event_id", "r19"),
+                       ("time_s", "soon"), ("time_s", True), ("time_s", 1e16),
+                       ("request_id", "x" * 200), ("request_id", 7), ("request_kind", None)]:
+        doc = dict(good, **{field: bad})       # signed as a peer would sign it: the fields
+        text = json.dumps(KEYS.sign(doc), sort_keys=True)     # are what is refused
+        with pytest.raises(CoreInputError, match=field):
+            decode_document(text, KEYS)
+    missing = {k: v for k, v in good.items() if k != "time_s"}
+    with pytest.raises(CoreInputError, match="time_s"):
+        decode_document(json.dumps(KEYS.sign(missing), sort_keys=True), KEYS)

@@ -93,7 +93,7 @@ def test_a_peer_without_the_key_publishes_1000_documents_and_none_is_stored(ctx,
         assert rig.open_need("n1", "handover", urgency=1.0)["action"] == "ask"
         rig.report("n1", NURSE, "helped")
         before_rows = stored_rows(path)
-        before_belief = rig.node.records[key_of(NURSE)].belief
+        before_belief = rig.node.session.memory.records[key_of(NURSE)].belief
         intruder = rig.driver.create_publisher(String, FLEET_TOPIC, fleet_qos(FORGED))
         assert rig.spin_until(lambda: intruder.get_subscription_count() > 0)
         for text in forged_documents(FORGED, random.Random(7)):
@@ -105,7 +105,7 @@ def test_a_peer_without_the_key_publishes_1000_documents_and_none_is_stored(ctx,
         assert dict(fleet.refusals) == {"other_site": 200, "bad_signature": 200,
                                         "unsigned": 200, "old_format": 200, "unknown_key": 200}
         assert stored_rows(path) == before_rows       # not one event, opt-out or forget
-        assert rig.node.records[key_of(NURSE)].belief == before_belief
+        assert rig.node.session.memory.records[key_of(NURSE)].belief == before_belief
         assert fleet._refused.lines == 5                  # each reason logged once (throttled)
 
         def reported():
@@ -133,7 +133,7 @@ def test_a_peer_without_the_key_publishes_1000_documents_and_none_is_stored(ctx,
         assert {f"ward4/{i}" for i in range(3)} <= events.keys()
         assert not any(eid.startswith("intruder/") for eid in events)
         expected = fold_events([e.to_outcome() for e in friend], rig.node.params.model)[0]
-        assert rig.node.records[key_of(PORTER)].belief == expected
+        assert rig.node.session.memory.record_for(key_of(PORTER)).belief == expected
     finally:
         rig.close()
 

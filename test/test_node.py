@@ -33,7 +33,7 @@ def test_two_in_view_asks_the_one_the_core_prefers(rig):
     assert d["person_id"] == again.person_id == "nurse-a"   # both at the prior: less busy wins
     scores = {r["person_id"]: r["score_s"] for r in d["rationale"]}
     assert scores["nurse-a"] > scores["porter-b"] > 0
-    assert rig.node.pending["r1"].person_id == "nurse-a"
+    assert rig.node.session.pending["r1"].person_id == "nurse-a"
 
 
 @pytest.mark.parametrize("rig", [{"k_load": 0.0}], indirect=True)
@@ -46,13 +46,13 @@ def test_outcomes_update_beliefs_by_the_exact_algebra(rig):
     rig.report("r1", first, "helped")
     key = rig.node.store.key_for(first)
     # helped is conjugate: Beta(2, 2) -> Beta(3, 2)
-    assert rig.node.records[key].belief == Belief(3.0, 2.0)
+    assert rig.node.session.memory.records[key].belief == Belief(3.0, 2.0)
     assert rig.node.store.events_for(key)[0].result.value == "helped"   # stored first
     d2 = rig.open_need("r2", "handover", urgency=1.0)
     assert d2["action"] == "ask" and d2["person_id"] != first           # re-ask interval
     rig.report("r2", d2["person_id"], "declined")
     # declined at c = exp(0) = 1 is exactly Beta(a, b + 1)
-    b2 = rig.node.records[rig.node.store.key_for(d2["person_id"])].belief
+    b2 = rig.node.session.memory.records[rig.node.store.key_for(d2["person_id"])].belief
     assert b2.a == pytest.approx(2.0, rel=1e-9) and b2.b == pytest.approx(3.0, rel=1e-9)
 
 
@@ -92,12 +92,12 @@ def test_pending_asks_unknown_could_not_ask_and_expiry(ctx):
         assert "no pending ask" in rig.node.counters.last_reason["outcome"]
         d = rig.open_need("e1", "handover", urgency=1.0)
         key = rig.node.store.key_for(d["person_id"])
-        assert rig.spin_until(lambda: rig.node.expired_asks == 1, 30)
-        assert rig.node.records[key].belief == Belief(2.0, 2.0)       # expiry: no evidence
+        assert rig.spin_until(lambda: rig.node.session.expired_asks == 1, 30)
+        assert rig.node.session.memory.records[key].belief == Belief(2.0, 2.0)       # expiry: no evidence
         d = rig.open_need("e2", "handover", urgency=1.0)
         rig.report("e2", d["person_id"], "could_not_ask")
-        assert rig.node.could_not_ask == 1
-        assert rig.node.records[rig.node.store.key_for(d["person_id"])].belief == Belief(2.0, 2.0)
+        assert rig.node.session.could_not_ask == 1
+        assert rig.node.session.memory.records[rig.node.store.key_for(d["person_id"])].belief == Belief(2.0, 2.0)
         assert rig.node.store.keys() == []
         rig.report("e2", d["person_id"], "helped")                      # no longer pending
         assert rig.node.counters.rejected["outcome"] == 2
@@ -112,7 +112,7 @@ def test_sim_time_never_decides_on_time_zero(ctx):
         assert rig.connected()
         clock_pub = rig.driver.create_publisher(Clock, "/clock", 10)
         rig.task_pub.publish(String(data=wire.task_status_document("z1", "open", "door")))
-        assert rig.spin_until(lambda: "z1" in rig.node.needs, 30)
+        assert rig.spin_until(lambda: "z1" in rig.node.session.needs, 30)
         rig.spin_until(lambda: False, 0.5)
         assert rig.decisions == []                                      # time is still zero
         def tick():
@@ -146,7 +146,7 @@ def test_navigation_abort_opens_and_success_resolves(ctx):
         assert rig.decisions[0]["need"]["kind"] == "navigation_failure"
         pub.publish(status(GoalStatus.STATUS_ABORTED))      # repeated status: no second need
         pub.publish(status(GoalStatus.STATUS_SUCCEEDED))
-        assert rig.spin_until(lambda: not rig.node.needs)
+        assert rig.spin_until(lambda: not rig.node.session.needs)
         assert len(rig.decisions) == 1
     finally:
         rig.close()
@@ -180,9 +180,9 @@ def test_managed_mode_waits_for_transitions(ctx):
         assert node.store is None and not node._active          # unconfigured
         node.trigger_configure()
         assert node.store is not None and not node._active      # inactive: no decisions
-        node.open_need(__import__("helpaware_node.core", fromlist=["HelpNeed"]).HelpNeed(
-            "m1", "door", 1.0))
-        assert node.decisions_published == 0
+        from helpaware_node.core import HelpNeed
+        step = node.session.need_opened(HelpNeed("m1", "door", 1.0), 1.0)
+        assert step.decisions == [] and "m1" in node.session.needs   # kept, not decided
         node.trigger_activate()
         assert node._active
         node.trigger_deactivate()
@@ -207,13 +207,13 @@ def test_learned_belief_survives_a_restart_with_a_store_file(ctx, tmp_path):
         d = rig.open_need("s1", "handover", urgency=1.0)
         rig.report("s1", d["person_id"], "helped")
         key = rig.node.store.key_for(d["person_id"])
-        learned = rig.node.records[key].belief
+        learned = rig.node.session.memory.records[key].belief
         assert learned == Belief(3.0, 2.0)
     finally:
         rig.close()
     rig = Rig(ctx, namespace="/persist2", store_path=store, robot_id="r1")
     try:
-        assert rig.node.record_for(key).belief == learned        # folded again from the file
+        assert rig.node.session.memory.record_for(key).belief == learned        # folded again from the file
     finally:
         rig.close()
 

@@ -63,8 +63,8 @@ def hostile_corpus(topic, now, n, seed):
 
 
 def _snapshot(node):
-    return ({k: (r.belief, r.ask_times_s) for k, r in node.records.items()},
-            set(node.needs), set(node.pending), [e for k in node.store.keys()
+    return ({k: (r.belief, r.ask_times_s) for k, r in node.session.memory.records.items()},
+            set(node.session.needs), set(node.session.pending), [e for k in node.store.keys()
                                                  for e in node.store.events_for(k)])
 
 
@@ -78,7 +78,7 @@ def test_thousands_of_hostile_documents_per_topic_at_the_handlers(ctx):
         d = rig.open_need("real", "handover", urgency=1.0)
         assert d["action"] == "ask"
         rig.report("real", d["person_id"], "declined")  # learned state to protect
-        node.needs.clear()
+        node.session.needs.clear()
         before = _snapshot(node)
         handlers = {"people": node._on_people, "task_status": node._on_task_status,
                     "outcome": node._on_outcome}
@@ -89,7 +89,7 @@ def test_thousands_of_hostile_documents_per_topic_at_the_handlers(ctx):
                 handler(String(data=text))
             assert node.counters.rejected[topic] - r0 == len(corpus) >= N_PER_TOPIC
             assert node.counters.last_reason[topic]
-        seen_ids = set(node.seen)
+        seen_ids = set(node.session.seen)
         assert seen_ids == {"nurse-a", "porter-b"}          # nothing hostile got in
         assert _snapshot(node) == before                    # beliefs, needs, asks, store intact
         d2 = rig.open_need("after", "handover", urgency=1.0)
@@ -130,6 +130,6 @@ def test_hostile_documents_through_the_topics_are_counted_in_diagnostics(ctx):
                     return True
             return False
         assert rig.spin_until(diag_says, 30)
-        assert node.records == {} and node.needs == {}
+        assert node.session.memory.records == {} and node.session.needs == {}
     finally:
         rig.close()

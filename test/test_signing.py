@@ -23,7 +23,7 @@ from helpaware_node.fleet_documents import (KINDS, OLD_FORMAT, PrivacyAct, decod
 from helpaware_node.signing import (BAD_SIGNATURE, DOCUMENT_PREFIX, EXPIRED_KEY, OTHER_SITE,
                                     UNKNOWN_KEY, UNSIGNED, CanonicalError, KeyRing, Refused,
                                     SigningKey, canonical_bytes, hkdf_sha256)
-from helpaware_node.store import MemoryStore, SiteKeys, StoredEvent, person_key
+from helpaware_node.store import AskEvent, MemoryStore, SiteKeys, StoredEvent, person_key
 
 DATA = os.path.join(os.path.dirname(__file__), "data", "rfc5869_hkdf_sha256.json")
 SITE_KEY = bytes(range(100, 132))
@@ -40,7 +40,11 @@ def act(action: str) -> PrivacyAct:
     return PrivacyAct.new(action, NURSE, "console@desk", issued_s=NOW_S)
 
 
-VALID = {"outcome": outcome(), "forget": act("forget"), "opt_out": act("opt_out")}
+def ask() -> AskEvent:
+    return AskEvent("ward3/16", NURSE, 1_764_630_990.0, "door", "door-3F-0231")
+
+
+VALID = {"outcome": outcome(), "ask": ask(), "forget": act("forget"), "opt_out": act("opt_out")}
 
 
 # ---------------------------------------------------------------------------- derivation

@@ -12,13 +12,15 @@ from scipy import stats
 
 from helpaware_node.core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result,
                                  SiteModel, candidate_from_record, decide, note_ask,
-                                 note_candidate, note_outcome)
+                                 note_outcome)
 from helpaware_node.core.baselines import choose_nearest
-from helpaware_node.core.policy import choose_lookahead
 from helpaware_node.core.person import DAY_S
 from helpaware_node.sim.compare import compare
 from helpaware_node.sim.metrics import gini, t_interval
-from helpaware_node.sim.run import SimRobot, run_policy
+from helpaware_node.core.model import CoreInputError
+from helpaware_node.session import HelpSession, SessionRules
+from helpaware_node.sim.run import SIM_ROBOT_ID, open_sim_need, run_policy
+from helpaware_node.store import AskEvent, MemoryStore, StoredEvent
 from helpaware_node.sim.scenario import ScenarioError, load, parse
 from helpaware_node.sim.world import SeenPerson, SimNeed, build_world
 
@@ -165,28 +167,74 @@ def test_reward_is_the_decision_cost_terms():
 
 
 def test_simulator_decision_equals_core_decide_for_a_scripted_need():
+    """The simulator's session, given a store with some history, decides as core.decide does
+    on records built by the core's own functions (note_ask, note_outcome)."""
     model, config = SiteModel(), DecisionConfig()
-    robot = SimRobot(model, config)
-    # some history: p1 helped once, p2 declined once while busy
-    r1 = note_outcome(note_ask(note_candidate(PersonRecord.new(model), 100.0), 100.0, model),
+    store = MemoryStore(robot_id=SIM_ROBOT_ID)
+    k1, k2 = store.key_for("p1"), store.key_for("p2")
+    # some history: p1 helped once, p2 declined once while busy; both asks by this robot
+    store.append(StoredEvent("sim/1", k1, 100.0, Result.HELPED, 0.2, 0.0))
+    store.append(StoredEvent("sim/2", k2, 200.0, Result.DECLINED, 0.6, 0.0))
+    store.append_asks([AskEvent("sim/3", k1, 100.0), AskEvent("sim/4", k2, 200.0)])
+    r1 = note_outcome(note_ask(PersonRecord.new(model), 100.0, model),
                       OutcomeEvent(100.0, Result.HELPED, 0.2, 0.0, "x/1"), model)
-    r2 = note_outcome(note_ask(note_candidate(PersonRecord.new(model), 200.0), 200.0, model),
+    r2 = note_outcome(note_ask(PersonRecord.new(model), 200.0, model),
                       OutcomeEvent(200.0, Result.DECLINED, 0.6, 0.0, "x/2"), model)
-    robot.records = {"p1": r1, "p2": r2}
-    robot.robot_asks = [100.0, 200.0]
+    session = HelpSession(store, model, config, now_s=2000.0)
     seen = (SeenPerson("p1", 3.0, 0.4, "charting"), SeenPerson("p2", 1.0, 0.1, "idle"),
             SeenPerson("p3", 2.0, 0.9, "with_patient"))
-    need = SimNeed("need-7", 2000.0, "door", 150.0, 15.0, seen, 0.5, 0.5)
+    need = SimNeed("need-7", 2000.0, "door", 150.0, 15.0, seen, (0.5,), (0.5,))
     cands = [candidate_from_record(s.person_id, {"p1": r1, "p2": r2}.get(
         s.person_id, PersonRecord.new(model)), 2000.0, model, s.distance_m, 2000.0, s.busyness,
         s.activity) for s in seen]
     direct = decide(HelpNeed("need-7", "door", 2000.0, continue_cost_s=150.0, help_time_s=15.0),
                     cands, 2000.0, [100.0, 200.0], model, config)
-    sim = robot.decide(need, choose_lookahead, "lookahead")
+    [out] = open_sim_need(session, need).decisions
+    sim = out.decision
+    assert out.robot_ask_times_s == (100.0, 200.0)          # loaded from the store
     assert (sim.action, sim.person_id, sim.why) == (direct.action, direct.person_id, direct.why)
     assert sim.rationale() == direct.rationale()
     assert sim.evaluation.params_hash == direct.evaluation.params_hash
     assert direct.rationale()[2]["excluded"] == "protected_activity"
+
+
+def test_simulator_asks_again_after_a_decline_as_the_node_does():
+    """Nobody ever helps (w ~ 0): at every need with two or more eligible people the session
+    asks twice (max_asks_per_need 2, the node's default), never the same person twice, and
+    the second ask uses the need's second draw pair; with max_asks_per_need 1, once."""
+    sc = scenario(people__willingness={"beta": [1e-6, 1e6]}, people__regulars=30,
+                  people__regulars_per_need=4.0, shift__days=1)
+    world = build_world(sc, 8)
+    config = DecisionConfig(interruption_weight_s=0.0)
+    res = run_policy(world, "nearest", SiteModel(), config, keep_decisions=True)
+    by_need: dict = {}
+    for d in res.decisions:
+        by_need.setdefault(d.evaluation.need.request_id, []).append(d)
+    twice = [ds for ds in by_need.values() if sum(d.action == "ask" for d in ds) == 2]
+    assert len(twice) > 10 and all(len(ds) <= 3 for ds in by_need.values())
+    for ds in twice:
+        first, second = ds[0], ds[1]
+        assert first.person_id != second.person_id
+        row = next(r for r in second.rationale() if r["person_id"] == first.person_id)
+        assert row["excluded"] == "reask_interval"
+    assert res.declines == res.asks == sum(sum(d.action == "ask" for d in ds)
+                                           for ds in by_need.values())
+    once = run_policy(world, "nearest", SiteModel(), config,
+                      rules=SessionRules(max_asks_per_need=1))
+    assert once.asks == len([ds for ds in by_need.values() if ds[0].action == "ask"])
+    with pytest.raises(CoreInputError, match="max_asks_per_need"):
+        run_policy(world, "nearest", SiteModel(), config,
+                   rules=SessionRules(max_asks_per_need=len(world.needs[0].u_help) + 1))
+
+
+def test_later_ask_draws_do_not_change_the_world():
+    """More draw pairs per need change nothing else: the same needs, people and first draws
+    (common random numbers hold whatever the number of asks per need)."""
+    sc = scenario()
+    two, five = build_world(sc, 4, ask_draws=2), build_world(sc, 4, ask_draws=5)
+    assert [(n.time_s, n.seen, n.u_help[:2], n.u_silent[:2]) for n in two.needs] == \
+        [(n.time_s, n.seen, n.u_help[:2], n.u_silent[:2]) for n in five.needs]
+    assert all(len(n.u_help) == 5 and len(set(n.u_help)) == 5 for n in five.needs)
 
 
 def test_t_interval_matches_scipy():
@@ -270,3 +318,15 @@ def test_simulate_refuses_a_bad_parameter_file_naming_it(tmp_path, capsys):
                                        "    max_asks_per_hour: -3\n")
     err = capsys.readouterr().err
     assert code == 2 and "site.yaml" in err and "max_asks_per_hour" in err
+
+
+def test_simulate_takes_max_asks_per_need_from_the_node_parameter_file(tmp_path):
+    """The session's rules come from the same file: one ask per need asks less than three
+    (same seed, same world; the later asks at a need are the asks again after a decline)."""
+    code, one = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
+                                         "    max_asks_per_need: 1\n")
+    assert code == 0
+    code, three = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
+                                           "    max_asks_per_need: 3\n")
+    assert code == 0
+    assert one["summary"]["ours"]["asks"]["mean"] < three["summary"]["ours"]["asks"]["mean"]

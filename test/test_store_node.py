@@ -34,11 +34,11 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         assert d["action"] == "ask" and (d["candidates"][0]["a"], d["candidates"][0]["b"]) == (2.0, 2.0)
         rig.report("n1", "nurse-a", "helped")
         key = rig.node.store.key_for("nurse-a")
-        assert rig.node.records[key].belief == Belief(3.0, 2.0)
+        assert rig.node.session.memory.records[key].belief == Belief(3.0, 2.0)
         assert len(rig.node.store.events_for(key)) == 1
         # live forget through the node: store and memory both drop the person at once
         rig.send_privacy("forget", "nurse-a")
-        assert rig.spin_until(lambda: key not in rig.node.records and
+        assert rig.spin_until(lambda: key not in rig.node.session.memory.records and
                               key not in rig.node.store.keys())
         rig.send_privacy("opt_out", "nurse-a")
         assert rig.spin_until(lambda: rig.node.store.is_opted_out(key))

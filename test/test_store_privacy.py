@@ -6,7 +6,7 @@ import random
 import pytest
 
 from helpaware_node.core import Result
-from helpaware_node.store import SqliteStore, StoredEvent
+from helpaware_node.store import AskEvent, SqliteStore, StoredEvent
 
 KEY = os.urandom(32)
 RAW_IDS = ["badge-7731-ward-C", "nurse-ingrid-olsen", "porter_42_night"]
@@ -23,6 +23,10 @@ def scenario(store):
         e = StoredEvent(store.next_event_id(), keys[i % 3], 10.0 * i, list(Result)[i % 4],
                         0.4, 0.2, "door")
         assert store.append(e)
+        if i % 2 == 0:     # the asks behind them (a peer's every fourth): the limits' history
+            eid = f"r2/{i}" if i % 4 == 0 else store.next_event_id()
+            ask = AskEvent(eid, keys[i % 3], 10.0 * i, "door", f"need-{i}")
+            assert store.append_asks([ask]) == [ask]
     store.opt_out(keys[2])
     return keys
 

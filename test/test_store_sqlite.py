@@ -121,9 +121,45 @@ def test_migration_from_version_1_rebuilds_snapshots(tmp_path):
     conn.execute("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, request_kind) VALUES ('r9/2', ?, 6.0, 0.2, 0.0, 'declined', '')", (k,))
     conn.close()
     store = SqliteStore(path, "r1", KEY, model=MODEL)
-    assert store.counts()["schema_version"] == schema.SCHEMA_VERSION == 2
+    assert store.counts()["schema_version"] == schema.SCHEMA_VERSION == 3
     assert store.belief(k) == refold(store.events_for(k), k)
     assert store.belief(k)[0] != Belief.prior(MODEL)
+
+
+def test_migration_of_a_version_2_file_with_data_keeps_everything_and_adds_asks(
+        tmp_path, monkeypatch):
+    """A file written at version 2 (the store's own write path, migrations stopped at 2),
+    opened by this version: events, snapshot and sequences as they were, asks usable."""
+    import functools
+    from helpaware_node.store import AskEvent
+    from helpaware_node.store import sqlite as sqlite_module
+    with monkeypatch.context() as m:
+        m.setattr(sqlite_module, "migrate", functools.partial(schema.migrate, target=2))
+        old = make_store(tmp_path)
+        keys = [old.key_for(f"porter-{i}") for i in range(3)]
+        events = [StoredEvent(old.next_event_id(), keys[i % 3], 60.0 * i, list(Result)[i % 4],
+                              (i % 5) / 5, 0.1 * i) for i in range(12)]
+        for e in events:
+            assert old.append(e)
+        old.close()
+    conn = sqlite3.connect(tmp_path / "b.sqlite3")
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == 2
+    snapshot_v2 = conn.execute("SELECT person_key, a, b, last_time_s FROM snapshot").fetchall()
+    assert conn.execute("SELECT name FROM sqlite_master WHERE name = 'asks'").fetchone() is None
+    conn.close()
+
+    store = make_store(tmp_path)
+    assert store.counts()["schema_version"] == 3 and store.counts()["events"] == 12
+    for key, a, b, last in snapshot_v2:         # the cached folds untouched, bit for bit
+        assert store.belief(key) == (Belief(a, b), last) == refold(events, key)
+    assert store.next_event_id() == "r1/13"     # the sequence goes on: no id reused
+    ask = AskEvent("r1/14", keys[0], 900.0, "door", "n-1")
+    assert store.append_asks([ask]) == [ask]
+    store.close()
+    again = make_store(tmp_path)
+    assert again.asks(person_key=keys[0]) == [ask] and again.next_event_id() == "r1/15"
+    with sqlite3.connect(tmp_path / "b.sqlite3") as c:
+        assert c.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
 
 
 def test_newer_schema_is_refused(tmp_path):

@@ -1,9 +1,11 @@
 """Outcome tables for fitting: one row per answered ask, grouped by person.
 
-The CSV is the store export: event_id,person_key,time_s,busyness,ask_load,result,request_kind.
-`ask_load` may be missing; it is then rebuilt from each person's earlier asks in the file with
-the core's own `ask_load` (asks that could not be made do not count).  Rows whose result is
-could_not_ask carry no evidence and are skipped.  Lines starting with '#' are comments.
+The CSV is the store export: event_id,person_key,time_s,busyness,ask_load,result,request_kind,
+record,request_id (the last two since asks are stored; older exports lack them).  Rows whose
+`record` is `ask` are asks without evidence and are skipped.  `ask_load` may be missing; it is
+then rebuilt from each person's earlier answered asks in the file with the core's own
+`ask_load` (asks that could not be made do not count).  Rows whose result is could_not_ask
+carry no evidence and are skipped.  Lines starting with '#' are comments.
 """
 from __future__ import annotations
 
@@ -128,6 +130,8 @@ def read_outcome_csv(paths: Iterable[str], ask_memory_half_life_s: float = 1800.
                     raise FitInputError(f"{path}:{line}: {len(fields)} fields, header has "
                                         f"{len(header)}")
                 get = lambda name: fields[col[name]].strip()   # noqa: E731
+                if "record" in col and get("record") == "ask":
+                    continue            # an ask: what the limits count, not evidence
                 try:
                     result = Result.parse(get("result"))
                 except CoreInputError as exc:

@@ -1,4 +1,8 @@
-"""/diagnostics: input rates, rejected documents with the last reason, asks, store state."""
+"""/diagnostics: input rates, rejected documents with the last reason, asks, store state.
+
+`InputCounters` counts the node's own input topics; `decision_values` gathers every value the
+node reports (inputs, fleet and privacy topics, session, store, parameters) in one place.
+"""
 from __future__ import annotations
 
 from dataclasses import dataclass, field
@@ -57,3 +61,63 @@ def level_for(new_rejections: int, qos_incompatible: int, store_ok: bool) -> tup
     if new_rejections:
         return DiagnosticStatus.WARN, f"{new_rejections} input document(s) rejected"
     return DiagnosticStatus.OK, "running"
+
+
+def side_inputs(node) -> list:
+    """The fleet and privacy topics: refusals counted by their own handlers."""
+    return [(name, part) for name, part in (("fleet_outcomes", getattr(node, "fleet", None)),
+                                            ("privacy_request", getattr(node, "privacy", None)))
+            if part is not None]
+
+
+class SideRefusals:
+    """New refusals on the fleet and privacy topics since the last status (its level)."""
+
+    def __init__(self) -> None:
+        self._seen = 0
+
+    def new_since_tick(self, node) -> int:
+        total = sum(part.refused_count for _, part in side_inputs(node))
+        new, self._seen = max(total - self._seen, 0), total
+        return new
+
+
+def decision_values(node, rates: dict) -> dict:
+    """Every value of the node's decision status, by key (docs/integration.md lists them)."""
+    values: dict = {}
+    counters = node.counters
+    for k in INPUTS:
+        values[f"{k}.rate_hz"] = f"{rates[k]:.2f}"
+        values[f"{k}.received"] = counters.received[k]
+        values[f"{k}.rejected"] = counters.rejected[k]
+        values[f"{k}.last_rejection"] = counters.last_reason[k]
+    for name, part in side_inputs(node):
+        values[f"{name}.rejected"] = part.refused_count
+        values[f"{name}.last_rejection"] = part.last_refusal
+        values.update(part.diagnostic_values())   # queue, refusals by reason, keys in force
+    session, held, store = node.session, node.held, node.store
+    values.update({
+        "open_needs": len(session.needs), "pending_asks": len(session.pending),
+        "expired_asks": session.expired_asks, "could_not_ask": session.could_not_ask,
+        "decisions": session.decisions, "people_in_view": len(session.seen),
+        "people_known": len(session.memory.records), "people_evicted": session.memory.evicted,
+        "clock_jumps_forward": session.clock_jumps_forward,
+        "count_peer_asks": session.rules.count_peer_asks,
+        "store": type(store).__name__ if store is not None else "closed",
+        "store_ok": session.status.ok, "store_last_error": session.status.error,
+        "store_unsaved_outcomes": held.waiting,
+        "store_unsaved_dropped": held.dropped,
+        "asking_paused_for_store": bool(held.waiting),
+        "qos_incompatible_events": counters.qos_incompatible,
+        "parameters_rejected": node.params.rejected,
+        "parameters_last_rejection": node.params.last_rejection,
+        "params_hash": node.params_hash(),
+    })
+    if store is not None and hasattr(store, "counts"):
+        try:
+            values.update({f"store.{k}": v for k, v in store.counts().items()})
+        except Exception as exc:  # report, never stop the node over a status query
+            values["store.counts_error"] = str(exc)[:200]
+    elif store is not None:
+        values["store.persons"] = len(store.keys())
+    return values

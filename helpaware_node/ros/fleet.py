@@ -3,16 +3,18 @@
 The topic is `/helpaware/fleet` by default (the node's `fleet_topic` parameter): an absolute
 name, so robots in their own namespaces share it without remapping.  Each message is one
 std_msgs/String holding a signed document (helpaware_node/fleet_documents.py; format in
-docs/store.md, signatures and keys in docs/security.md): outcome events, forgets, opt-outs.
+docs/store.md, signatures and keys in docs/security.md): outcome events, asks, forgets,
+opt-outs.
 A document that is unsigned, of the old unsigned format, signed for another site, signed with
 a key this robot does not hold, or whose signature does not match is dropped and counted by
 reason (`refusals`, shown in /diagnostics); the first of each reason is logged at once, later
 ones at most once a minute with their number.  None of them is stored or merged.
 
 The topic is reliable and transient local with a deep history, and a robot re-offers its most
-recent stored events and its opt-out list at start, so a robot that starts late catches up.
-The merge is store.append: idempotent by event id, and the fold orders events by (time, event
-id), so any arrival order and any duplication (a replay) yield the same beliefs everywhere.
+recent stored events and asks and its opt-out list at start, so a robot that starts late
+catches up. The merge is store.append (asks: store.append_asks): idempotent by event id, and
+the fold orders events by (time, event id), so any arrival order and any duplication (a
+replay) yield the same beliefs and ask histories everywhere.
 A forget or opt-out belongs to a request (its `request_id`); each robot applies one request
 once and answers it once with its own signed act, so the request reaches every robot, also
 those that were not listening when it was sent (they get it from a peer's history).
@@ -41,7 +43,7 @@ from ..fleet_documents import (MALFORMED, OLD_FORMAT, PRIVACY_KINDS, PrivacyAct,
                                decode_document, encode_document)
 from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
                        utc_text)
-from ..store.base import StoredEvent
+from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
 from .refusal_log import CountsRefusals, Refusals
 
 FLEET_TOPIC = "/helpaware/fleet"    # site-wide: every robot of the site, whatever its namespace
@@ -57,7 +59,7 @@ REFUSAL_REASONS = (UNSIGNED, OLD_FORMAT, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, B
                    MALFORMED)
 DIAGNOSTICS_PREFIX = "fleet_outcomes"     # the /diagnostics keys of this link (unchanged name)
 
-Merged = Callable[[list[StoredEvent]], None]
+Merged = Callable[[list[AnyEvent]], None]
 
 
 def fleet_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
@@ -101,11 +103,13 @@ def merge(store, text: str, keys: KeyRing, forgotten: set[str] | None = None,
         return []
     if forgotten is not None and value.person_key in forgotten:
         return []        # forgotten this session: an older copy replayed by a peer
+    if kind == "ask":
+        return list(store.append_asks([value]))
     return [value] if (append or store.append)(value) else []
 
 
 class FleetLink(CountsRefusals):
-    """Publishes this robot's outcomes and privacy acts, and merges everyone else's.
+    """Publishes this robot's outcomes, asks and privacy acts, and merges everyone else's.
 
     Received events are decoded (and refused) at once, queued, and stored by a timer in
     batches of up to MERGE_BATCH (a smaller batch after MERGE_WAIT_S), sorted by (time,
@@ -114,8 +118,9 @@ class FleetLink(CountsRefusals):
     the batch, then learn; returns the events stored).  Only after an event is stored does
     anything learn from it (`on_merged`, or the owner's callback itself).  A forget or an
     opt-out is applied at once, and a queued event of a forgotten key is dropped when its
-    batch is stored.  Documents are signed with `keys` (default: the store's site key file)
-    and only documents signed with a key of that ring are taken.
+    batch is stored.  Asks travel and queue like outcomes; without an owner's `append_many`
+    they go to the store's `append_asks`.  Documents are signed with `keys` (default: the
+    store's site key file) and only documents signed with a key of that ring are taken.
     """
 
     def __init__(self, node, store, on_merged: Optional[Merged] = None,
@@ -139,7 +144,7 @@ class FleetLink(CountsRefusals):
         self._forgotten: set[str] = set()
         self._applied: OrderedDict[str, None] = OrderedDict()   # privacy requests done here
         self._lock = threading.RLock()
-        self._queued: deque[StoredEvent] = deque()
+        self._queued: deque[AnyEvent] = deque()
         self._queued_since_s = 0.0      # monotonic time the oldest queued event arrived
         self.merged_count = 0
         self.dropped_count = 0          # queue full (MAX_QUEUED): counted and logged
@@ -158,6 +163,8 @@ class FleetLink(CountsRefusals):
         if replay:                      # re-offer after a restart
             if hasattr(store, "recent_events"):
                 self.publish_many(store.recent_events(depth))
+            if hasattr(store, "recent_asks"):
+                self.publish_many(store.recent_asks(depth))
             if hasattr(store, "opted_out"):
                 for key in store.opted_out():
                     self.publish_act(PrivacyAct.new("opt_out", key, self.sender, request_id=""))
@@ -176,11 +183,12 @@ class FleetLink(CountsRefusals):
         """Events received but not yet stored."""
         return len(self._queued)
 
-    def publish(self, event: StoredEvent) -> None:
-        """Share one outcome (call after store.append has returned True)."""
-        self._pub.publish(String(data=encode_document("outcome", event, self._keys)))
+    def publish(self, event: AnyEvent) -> None:
+        """Share one outcome or ask (call once the store has it)."""
+        kind = "ask" if isinstance(event, AskEvent) else "outcome"
+        self._pub.publish(String(data=encode_document(kind, event, self._keys)))
 
-    def publish_many(self, events: Iterable[StoredEvent]) -> None:
+    def publish_many(self, events: Iterable[AnyEvent]) -> None:
         for e in events:
             self.publish(e)
 
@@ -259,7 +267,7 @@ class FleetLink(CountsRefusals):
         kind, value = item
         if kind in PRIVACY_KINDS:
             self.apply_act(value)
-        elif kind != "outcome":
+        elif kind not in ("outcome", "ask"):
             return              # a kind this link does not merge
         elif len(self._queued) >= MAX_QUEUED:
             self.dropped_count += 1
@@ -326,24 +334,25 @@ class FleetLink(CountsRefusals):
                 self._on_merged(new)
         return None if error is not None else len(new)
 
-    def _store_batch(self, events: list[StoredEvent]):
+    def _store_batch(self, events: list[AnyEvent]):
         """(stored, not yet tried, error): a batch call is all or nothing; one call per event
         stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not held long."""
         whole = self._append_many or (None if self._append is not None
-                                      else getattr(self._store, "append_many", None))
+                                      else lambda batch: append_batch(self._store, batch))
         if whole is not None:
             try:
                 return list(whole(events)), [], None
             except Exception as exc:
                 return [], events, exc
-        one = self._append or self._store.append
-        stored: list[StoredEvent] = []
+        stored: list[AnyEvent] = []
         deadline_s = time.monotonic() + MERGE_TICK_BUDGET_S
         for i, e in enumerate(events):
             if i and time.monotonic() > deadline_s:
                 return stored, events[i:], None
             try:
-                if one(e):
+                new = (bool(self._store.append_asks([e])) if isinstance(e, AskEvent)
+                       else self._append(e))
+                if new:
                     stored.append(e)
             except Exception as exc:
                 return stored, events[i:], exc

@@ -58,3 +58,36 @@ def marker_array(markers: Iterable[Marker]) -> MarkerArray:
     arr = MarkerArray()
     arr.markers = list(markers)
     return arr
+
+
+class PersonMarkers:
+    """The markers of the people in view: belief mean and what the last decision did with
+    each ("asked" / "passed over"); people who left get a delete."""
+
+    def __init__(self) -> None:
+        self._ids = MarkerIds()
+        self._marked: set[str] = set()
+        self._last_action: dict[str, str] = {}    # perceived id -> "asked" / "passed over"
+
+    def note_decision(self, decision) -> None:
+        for cand in decision.evaluation.candidates:
+            self._last_action[cand.person_id] = "passed over"
+        if decision.action == "ask":
+            self._last_action[decision.person_id] = "asked"
+
+    def update(self, seen: dict, mean_of, stamp, lifetime_s: float) -> Optional[MarkerArray]:
+        """`seen`: perceived id -> session.Seen; `mean_of(key)`: the belief mean now."""
+        markers = []
+        for pid, s in seen.items():
+            pos = s.person.position or (s.person.distance_m, 0.0, 0.0)
+            pos = (pos[0], pos[1], pos[2] + 2.0)   # above the head
+            text = f"w={mean_of(s.key):.2f} {self._last_action.get(pid, '')}".strip()
+            markers.append(person_marker(self._ids.get(pid), s.frame_id, stamp, pos, text,
+                                         lifetime_s))
+        for pid in self._marked - set(seen):
+            mid = self._ids.drop(pid)
+            self._last_action.pop(pid, None)
+            if mid is not None:
+                markers.append(delete_marker(mid, "base_link", stamp))
+        self._marked = set(seen)
+        return marker_array(markers) if markers else None

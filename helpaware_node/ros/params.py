@@ -115,10 +115,14 @@ NODE_PARAMS = [
     ParamSpec("diagnostics_period_s", 1.0, "period of /diagnostics and markers", "seconds", 0.1, 60.0,
               read_only=True),
     ParamSpec("asking_enabled", True, "operator switch: false means always continue", "flag"),
+    ParamSpec("count_peer_asks", True,
+              "fleet peers' asks count here for the re-ask interval, the per-person daily cap and "
+              "the ask load (a site-wide re-ask interval); the hourly cap counts this robot's "
+              "own asks only", "flag"),
     # site-wide topics (absolute by default, so robots in their own namespaces share them)
     ParamSpec("fleet_topic", "/helpaware/fleet",
-              "signed fleet documents shared by every robot of the site (outcomes, forgets, "
-              "opt-outs)", "topic name", read_only=True),
+              "signed fleet documents shared by every robot of the site (outcomes, asks, "
+              "forgets, opt-outs)", "topic name", read_only=True),
     ParamSpec("privacy_topic", "/helpaware/privacy_request",
               "signed opt-out and forget requests from `helpaware privacy`", "topic name",
               read_only=True),
@@ -149,9 +153,18 @@ class NodeSettings:
     max_asks_per_need: int
     diagnostics_period_s: float
     asking_enabled: bool
+    count_peer_asks: bool
     fleet_topic: str
     privacy_topic: str
     allow_unsigned_privacy_requests: bool
+
+    def session_rules(self):
+        """The help session's rules from these settings (session.SessionRules)."""
+        from ..session import SessionRules
+        return SessionRules(max_asks_per_need=self.max_asks_per_need,
+                            pending_ask_timeout_s=self.pending_ask_timeout_s,
+                            asking_enabled=self.asking_enabled,
+                            count_peer_asks=self.count_peer_asks)
 
 
 def build(values: dict[str, Any], pairs: bool = True

@@ -7,11 +7,12 @@ from typing import Optional, Sequence
 
 from ..core import DecisionConfig, SiteModel
 from ..core.baselines import POLICY_NAMES
+from ..session import SessionRules
 from ..text_table import render_table
 from .metrics import run_metrics, summarise
 from .run import run_policy
 from .scenario import Scenario
-from .world import build_world
+from .world import ASK_DRAWS_PER_NEED, build_world
 
 
 class ProgressBar:
@@ -40,17 +41,21 @@ class ProgressBar:
 
 def compare(sc: Scenario, policies: Sequence[str] = POLICY_NAMES, seeds: int = 20,
             model: Optional[SiteModel] = None, config: Optional[DecisionConfig] = None,
-            progress: bool = True, first_seed: int = 0):
-    """Returns (summary by policy, per-seed metrics by policy, runs by policy)."""
+            progress: bool = True, first_seed: int = 0, rules: Optional[SessionRules] = None):
+    """Returns (summary by policy, per-seed metrics by policy, runs by policy).
+
+    `rules`: the help session's rules (max_asks_per_need ...), the node's defaults if None."""
     model = model or SiteModel()
     config = config or DecisionConfig()
-    worlds = [build_world(sc, first_seed + s) for s in range(seeds)]
+    rules = rules or SessionRules()
+    draws = max(ASK_DRAWS_PER_NEED, rules.max_asks_per_need)   # more draws change no other
+    worlds = [build_world(sc, first_seed + s, ask_draws=draws) for s in range(seeds)]
     total = sum(len(w.needs) for w in worlds) * len(policies)
     bar = ProgressBar(total, f"simulate {sc.name}", enabled=progress)
     runs = {p: [] for p in policies}
     for w in worlds:
         for p in policies:
-            runs[p].append(run_policy(w, p, model, config, progress=bar))
+            runs[p].append(run_policy(w, p, model, config, progress=bar, rules=rules))
     per_seed = {p: [run_metrics(r) for r in rs] for p, rs in runs.items()}
     summary = {p: summarise(m) for p, m in per_seed.items()}
     return summary, per_seed, runs

@@ -1,9 +1,14 @@
-"""The run loop: every decision goes through core.policy.decide, outcomes from the ground truth.
+"""The run loop: the help session the node runs, outcomes from the ground truth.
 
-Reward (robot-seconds saved against continuing alone), with the decision's own cost terms:
-a help saves C_r - t_help, a declined (or unanswered) ask costs t_ask, and every ask costs its
-interruption I (the evaluation's interruption_s for that person). Continuing scores 0, so the
-robot-seconds lost at a need are C_r - reward and never asking loses exactly sum(C_r).
+Each need goes through `session.HelpSession` exactly as the node's needs do: the view at the
+need, the need opened, each ask answered from the world's draws, and a decline or no response
+decides again (up to max_asks_per_need asks, the node's rule). Every decision is
+core.policy.decide's.
+
+Reward (robot-seconds saved against continuing alone), with the decision's own cost terms,
+summed over the asks at a need: a help saves C_r - t_help, a declined (or unanswered) ask
+costs t_ask, and every ask costs its interruption I (the evaluation's interruption_s for that
+person). Continuing scores 0, so never asking loses exactly sum(C_r).
 """
 from __future__ import annotations
 
@@ -13,14 +18,16 @@ from typing import Callable, Optional
 
 import numpy as np
 
-from ..core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result, SiteModel,
-                    candidate_from_record, decide, keep_recent_asks, note_ask, note_candidate,
-                    note_outcome)
+from ..core import DecisionConfig, HelpNeed, Result, SiteModel
 from ..core.baselines import make_chooser
 from ..core.context import ask_load
+from ..core.model import CoreInputError
 from ..core.person import DAY_S
-from ..core.policy import HOUR_S, Decision
+from ..session import HelpSession, SessionRules, Step
+from ..store.base import MemoryStore
 from .world import SimNeed, World
+
+SIM_ROBOT_ID = "sim"
 
 
 @dataclass
@@ -38,6 +45,7 @@ class RunResult:
     asks_by_person_day: dict = field(default_factory=dict)
     candidates_seen: set = field(default_factory=set)
     decisions: list = field(default_factory=list)   # every Decision, when asked to keep them
+    decisions_made: int = 0      # decisions at all needs (a need decided again after a decline)
 
 
 def site_config(world: World, config: DecisionConfig) -> DecisionConfig:
@@ -49,51 +57,25 @@ def site_config(world: World, config: DecisionConfig) -> DecisionConfig:
     return dataclasses.replace(config, protected_activities=config.protected_activities + extra)
 
 
-class SimRobot:
-    """What one robot remembers while a policy runs: person records and its own asks."""
-
-    def __init__(self, model: SiteModel, config: DecisionConfig):
-        self.model = model
-        self.config = config
-        self.records: dict[str, PersonRecord] = {}
-        self.robot_asks: list[float] = []
-
-    def decide(self, need: SimNeed, chooser, policy: str) -> Decision:
-        """Build candidates from records exactly as the node does, and call core.decide."""
-        t = need.time_s
-        model = self.model
-        cands = []
-        for s in need.seen:
-            rec = self.records.get(s.person_id)
-            if rec is None:
-                rec = self.records[s.person_id] = PersonRecord.new(model)
-            cands.append(candidate_from_record(s.person_id, rec, t, model, s.distance_m, t,
-                                               s.busyness, s.activity))
-        self.robot_asks = list(keep_recent_asks(self.robot_asks, t, HOUR_S,
-                                                self.config.max_asks_per_hour))
-        help_need = HelpNeed(need.request_id, need.kind, t, continue_cost_s=need.continue_cost_s,
-                             help_time_s=need.help_time_s)
-        decision = decide(help_need, cands, t, self.robot_asks, model, self.config, chooser, policy)
-        for s in need.seen:
-            self.records[s.person_id] = note_candidate(self.records[s.person_id], t)
-        return decision
-
-    def learn(self, decision: Decision, result: Result, event_id: str) -> None:
-        ev = decision.evaluation
-        i = decision.person_index
-        pid = decision.person_id
-        t = ev.now_s
-        event = OutcomeEvent(t, result, float(ev.busyness[i]), float(ev.ask_load[i]), event_id)
-        self.records[pid] = note_outcome(note_ask(self.records[pid], t, self.model), event,
-                                         self.model)
-        self.robot_asks.append(t)
+def open_sim_need(session: HelpSession, need: SimNeed) -> Step:
+    """The view at the need (everyone else has left), then the need: the first decision."""
+    t = need.time_s
+    session.people_seen(need.seen, t, complete_view=True)
+    return session.need_opened(HelpNeed(need.request_id, need.kind, t,
+                                        continue_cost_s=need.continue_cost_s,
+                                        help_time_s=need.help_time_s), t)
 
 
 def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConfig,
-               keep_decisions: bool = False, progress: Optional[Callable[[int], None]] = None
-               ) -> RunResult:
+               keep_decisions: bool = False, progress: Optional[Callable[[int], None]] = None,
+               rules: SessionRules = SessionRules()) -> RunResult:
     sc = world.scenario
     config = site_config(world, config)
+    draws = min(len(n.u_help) for n in world.needs) if world.needs else rules.max_asks_per_need
+    if rules.max_asks_per_need > draws:
+        raise CoreInputError(f"max_asks_per_need: {rules.max_asks_per_need} is more than the "
+                             f"{draws} outcome draws per need of this world (build_world "
+                             f"ask_draws)")
     true_asks: dict[str, list[float]] = {}
 
     def true_p(ev) -> np.ndarray:
@@ -103,40 +85,54 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
             for k, c in enumerate(ev.candidates)])
 
     chooser = make_chooser(policy, config, seed=world.seed, true_p=true_p)
-    robot = SimRobot(model, config)
+    session = HelpSession(MemoryStore(robot_id=SIM_ROBOT_ID), model, config, rules,
+                          chooser=chooser, policy=policy)
     n = len(world.needs)
     res = RunResult(policy, world.seed, np.array([s.time_s for s in world.needs]), np.zeros(n),
                     np.array([s.continue_cost_s for s in world.needs]))
     for j, need in enumerate(world.needs):
-        decision = robot.decide(need, chooser, policy)
+        session.tick(need.time_s)
+        step = open_sim_need(session, need)
         res.candidates_seen.update(s.person_id for s in need.seen)
-        if keep_decisions:
-            res.decisions.append(decision)
+        k = 0                                   # asks made at this need so far
+        while step.decisions:
+            decision = step.decisions[-1].decision
+            res.decisions_made += 1
+            if keep_decisions:
+                res.decisions.append(decision)
+            if decision.action != "ask":
+                break
+            result = _answer(world, decision, need, k, true_asks, res, j, config)
+            k += 1
+            step = session.outcome(need.request_id, decision.person_id, result, need.time_s)
+        session.need_closed(need.request_id)
         if progress is not None:
             progress(1)
-        if decision.action != "ask":
-            continue
-        ev = decision.evaluation
-        i = decision.person_index
-        pid = decision.person_id
-        past = true_asks.setdefault(pid, [])
-        p = world.true_help_probability(pid, float(ev.busyness[i]),
-                                        ask_load(past, need.time_s, sc.truth_ask_half_life_s))
-        past.append(need.time_s)
-        res.asks += 1
-        res.asks_by_person[pid] = res.asks_by_person.get(pid, 0) + 1
-        day_key = (pid, int(need.time_s // DAY_S))
-        res.asks_by_person_day[day_key] = res.asks_by_person_day.get(day_key, 0) + 1
-        interruption = float(ev.interruption_s[i])
-        if need.u_help < p:
-            result = Result.HELPED
-            res.helps += 1
-            res.reward_s[j] = ev.continue_cost_s - ev.help_time_s - interruption
-        else:
-            silent = need.u_silent < sc.no_response_fraction
-            result = Result.NO_RESPONSE if silent else Result.DECLINED
-            res.declines += 1
-            res.no_responses += int(silent)
-            res.reward_s[j] = -config.ask_time_s - interruption
-        robot.learn(decision, result, f"sim/{j:06d}")
     return res
+
+
+def _answer(world: World, decision, need: SimNeed, k: int, true_asks: dict,
+            res: RunResult, j: int, config: DecisionConfig) -> Result:
+    """The world's answer to the k-th ask at need j (its k-th draw pair), with the reward."""
+    sc = world.scenario
+    ev = decision.evaluation
+    i = decision.person_index
+    pid = decision.person_id
+    past = true_asks.setdefault(pid, [])
+    p = world.true_help_probability(pid, float(ev.busyness[i]),
+                                    ask_load(past, need.time_s, sc.truth_ask_half_life_s))
+    past.append(need.time_s)
+    res.asks += 1
+    res.asks_by_person[pid] = res.asks_by_person.get(pid, 0) + 1
+    day_key = (pid, int(need.time_s // DAY_S))
+    res.asks_by_person_day[day_key] = res.asks_by_person_day.get(day_key, 0) + 1
+    interruption = float(ev.interruption_s[i])
+    if need.u_help[k] < p:
+        res.helps += 1
+        res.reward_s[j] += ev.continue_cost_s - ev.help_time_s - interruption
+        return Result.HELPED
+    silent = need.u_silent[k] < sc.no_response_fraction
+    res.declines += 1
+    res.no_responses += int(silent)
+    res.reward_s[j] += -config.ask_time_s - interruption
+    return Result.NO_RESPONSE if silent else Result.DECLINED

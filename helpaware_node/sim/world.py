@@ -3,10 +3,15 @@
 Everything here is drawn before any policy runs and does not depend on the policy, so all
 policies face the same needs, the same people and the same random outcome draws (common
 random numbers): differences between policies are differences of decisions, not of luck.
+Each need carries one pair of outcome draws per ask the robot may make there (the first ask,
+and the asks again after a decline): the k-th ask at a need uses the k-th pair, whoever is
+asked. The first pair comes from the world's stream as before; the later pairs come from a
+stream of their own, one column per ask, so how many pairs are drawn changes no other draw.
 """
 from __future__ import annotations
 
 import bisect
+import dataclasses
 import math
 import random
 from dataclasses import dataclass
@@ -15,6 +20,8 @@ import numpy as np
 
 from ..core.person import DAY_S
 from .scenario import Scenario
+
+ASK_DRAWS_PER_NEED = 5     # outcome draw pairs per need: asks at one need the world can answer
 
 
 @dataclass(frozen=True)
@@ -33,8 +40,8 @@ class SimNeed:
     continue_cost_s: float
     help_time_s: float
     seen: tuple[SeenPerson, ...]
-    u_help: float          # uniform draw deciding help: helped when u_help < true p
-    u_silent: float        # uniform draw deciding no response vs declined
+    u_help: tuple[float, ...]    # per ask k: helped when u_help[k] < true p
+    u_silent: tuple[float, ...]  # per ask k: no response (below the fraction) or declined
 
 
 @dataclass
@@ -120,7 +127,15 @@ class _Schedules:
         return self.sc.activities[self.act[i]].name, float(self.busy[i])
 
 
-def build_world(sc: Scenario, seed: int) -> World:
+def _later_ask_draws(seed: int, n: int, draws: int) -> np.ndarray:
+    """(n, draws - 1, 2) uniforms for the asks after the first; column k from its own stream."""
+    cols = [np.random.default_rng([seed, 0xA5C, k]).random((n, 2)) for k in range(1, draws)]
+    return np.stack(cols, axis=1) if cols else np.empty((n, 0, 2))
+
+
+def build_world(sc: Scenario, seed: int, ask_draws: int = ASK_DRAWS_PER_NEED) -> World:
+    if ask_draws < 1:
+        raise ValueError(f"ask_draws: {ask_draws} must be >= 1")
     rng = np.random.default_rng([seed, 0x5151])
     n = sc.regulars
     ids = [f"{sc.name}-r{i:03d}" for i in range(n)]
@@ -153,6 +168,10 @@ def build_world(sc: Scenario, seed: int) -> World:
                 seen.append(SeenPerson(pid, float(rng.uniform(0.5, sc.max_distance_m)), busy,
                                        sc.activities[k].name))
             needs.append(SimNeed(f"n{len(needs):06d}", t, kind.kind, kind.continue_cost_s,
-                                 kind.help_time_s, tuple(seen), float(rng.random()),
-                                 float(rng.random())))
+                                 kind.help_time_s, tuple(seen), (float(rng.random()),),
+                                 (float(rng.random()),)))
+    later = _later_ask_draws(seed, len(needs), ask_draws).tolist()
+    needs = [dataclasses.replace(nd, u_help=nd.u_help + tuple(p[0] for p in later[j]),
+                                 u_silent=nd.u_silent + tuple(p[1] for p in later[j]))
+             for j, nd in enumerate(needs)]
     return World(sc, seed, needs, will)

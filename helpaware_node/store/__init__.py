@@ -1,11 +1,12 @@
-"""Persistence of outcome events and belief snapshots."""
+"""Persistence of outcome events, asks and belief snapshots."""
 from __future__ import annotations
 
 import os
 import socket
 
 from ..core import SiteModel
-from .base import BeliefStore, MemoryStore, StoredEvent, StoreHealth, person_key
+from .base import (AskEvent, BeliefStore, MemoryStore, StoredEvent, StoreHealth, append_batch,
+                   person_key)
 from .keys import (KEY_FILE_NAME, SiteKeyError, SiteKeys, default_key_path, default_store_path,
                    key_fingerprint, load_site_key, load_site_keys)
 from .sqlite import SqliteStore, StoreCorruptError
@@ -38,7 +39,8 @@ def key_path_for(store_path: str) -> str:
     return os.path.join(os.path.dirname(os.path.abspath(store_path)), KEY_FILE_NAME)
 
 
-__all__ = ["BeliefStore", "MemoryStore", "SqliteStore", "StoredEvent", "StoreHealth",
+__all__ = ["AskEvent", "BeliefStore", "MemoryStore", "SqliteStore", "StoredEvent", "StoreHealth",
+           "append_batch",
            "StoreCorruptError", "StoreVersionError", "SiteKeyError", "SCHEMA_VERSION",
            "person_key", "open_store", "load_site_key", "load_site_keys", "SiteKeys",
            "key_path_for", "key_fingerprint", "default_robot_id",

@@ -1,8 +1,10 @@
 """The store interface every backend implements, and the in-memory backend.
 
 The append-only log of outcome events is the source of truth; a person's belief is the fold
-(`core.person.fold_events`) of their events in (time, event id) order.  Persons are known only
-by `person_key`, an HMAC of the perceived id: raw ids never enter a store.
+(`core.person.fold_events`) of their events in (time, event id) order.  Asks are events too
+(`AskEvent`, written before the decision to ask is published): they carry no evidence, only
+what the hard limits count after a restart.  Persons are known only by `person_key`, an HMAC
+of the perceived id: raw ids never enter a store.
 """
 from __future__ import annotations
 
@@ -10,9 +12,10 @@ import hashlib
 import hmac
 import os
 from dataclasses import dataclass
-from typing import Iterable, Protocol
+from typing import Iterable, Optional, Protocol, Union
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
+from ..core.model import MAX_ASKS_CAP
 from .keys import SiteKeys
 
 
@@ -41,6 +44,40 @@ class StoredEvent:
                             event_id=self.event_id)
 
 
+@dataclass(frozen=True)
+class AskEvent:
+    """One ask as stored and shared, keyed like outcomes (hashed person key, never the raw id)."""
+
+    event_id: str          # "<robot_id>/<sequence>": the robot's own sequence, shared with outcomes
+    person_key: str
+    time_s: float          # when the ask was made (the robot's clock)
+    request_kind: str = ""
+    request_id: str = ""   # the help need it was made for (unique per robot)
+
+    @property
+    def robot_id(self) -> str:
+        return self.event_id.rpartition("/")[0]
+
+
+AnyEvent = Union[StoredEvent, AskEvent]
+
+
+def append_batch(store, events: Iterable[AnyEvent]) -> list[AnyEvent]:
+    """Store a mixed batch (a fleet delivery): outcomes in one transaction, then asks in
+    another; returns what was new. Both are idempotent, so a batch retried after a refusal
+    stores each event once."""
+    events = list(events)
+    outcomes = [e for e in events if isinstance(e, StoredEvent)]
+    asks = [e for e in events if isinstance(e, AskEvent)]
+    stored: list[AnyEvent] = []
+    if outcomes:
+        stored += (store.append_many(outcomes) if hasattr(store, "append_many")
+                   else [e for e in outcomes if store.append(e)])
+    if asks:
+        stored += store.append_asks(asks)
+    return stored
+
+
 def person_key(site_key: bytes, raw_id: str) -> str:
     """HMAC-SHA256(site_key, raw_id) as hex: stable per site, not reversible without the key."""
     return hmac.new(site_key, raw_id.encode("utf-8"), hashlib.sha256).hexdigest()
@@ -57,7 +94,12 @@ class BeliefStore(Protocol):
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, float | None]: ...
     def is_opted_out(self, key: str) -> bool: ...
     def opt_out(self, key: str) -> None: ...
-    def forget(self, key: str) -> int: ...                     # events removed
+    def forget(self, key: str) -> int: ...                     # events removed (asks go too)
+    def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...   # durable; new ones
+    def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
+             request_id: Optional[str] = None, since_s: Optional[float] = None,
+             limit: int = MAX_ASKS_CAP) -> list[AskEvent]: ...   # newest `limit`, in time order
+    def move_asks_forward(self, by_s: float) -> int: ...      # a forward jump of the clock
     def close(self) -> None: ...
 
 
@@ -75,6 +117,9 @@ class MemoryStore:
         self._events: dict[str, StoredEvent] = {}
         self._by_key: dict[str, list[str]] = {}
         self._opted_out: set[str] = set()
+        self._folds: dict[str, tuple] = {}      # key -> (model, belief, last time, last order)
+        self._asks: dict[str, AskEvent] = {}
+        self._asks_by: dict[tuple[str, str], list[str]] = {}   # (field, value) -> ask ids
 
     def key_for(self, raw_id: str) -> str:
         return person_key(self._site_key, raw_id)
@@ -100,7 +145,22 @@ class MemoryStore:
         return sorted(self._by_key)
 
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, float | None]:
-        return fold_events([e.to_outcome() for e in self.events_for(key)], model)
+        """The fold of the person's events; extended by the newest event when it comes last
+        in (time, event id) order (the same arithmetic as folding all again), else refolded."""
+        ids = self._by_key.get(key, [])
+        cached = self._folds.get(key)
+        if cached is not None and cached[0] == model and cached[4] == len(ids):
+            return cached[1], cached[2]
+        newest = self._events[ids[-1]] if ids else None
+        if (cached is not None and cached[0] == model and cached[4] == len(ids) - 1
+                and (newest.time_s, newest.event_id) > cached[3]):
+            belief, last = fold_events([newest.to_outcome()], model, cached[1], cached[2])
+        else:
+            belief, last = fold_events([e.to_outcome() for e in self.events_for(key)], model)
+        if ids:
+            order = max((self._events[i].time_s, i) for i in ids)
+            self._folds[key] = (model, belief, last, order, len(ids))
+        return belief, last
 
     def is_opted_out(self, key: str) -> bool:
         return key in self._opted_out
@@ -115,8 +175,50 @@ class MemoryStore:
         ids = self._by_key.pop(key, [])
         for i in ids:
             del self._events[i]
+        self._folds.pop(key, None)
+        for i in self._asks_by.pop(("person_key", key), []):
+            ask = self._asks.pop(i)
+            for field in ("robot_id", "request_id"):
+                self._asks_by[(field, getattr(ask, field))].remove(i)
         self._opted_out.discard(key)
         return len(ids)
+
+    # -- asks
+    def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]:
+        stored = []
+        for ask in asks:
+            if ask.event_id in self._asks or ask.person_key in self._opted_out:
+                continue
+            self._asks[ask.event_id] = ask
+            for field in ("person_key", "robot_id", "request_id"):
+                self._asks_by.setdefault((field, getattr(ask, field)), []).append(ask.event_id)
+            stored.append(ask)
+        return stored
+
+    def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
+             request_id: Optional[str] = None, since_s: Optional[float] = None,
+             limit: int = MAX_ASKS_CAP) -> list[AskEvent]:
+        """Asks matching every filter given (and at or after `since_s`): the newest `limit`
+        of them, in (time, event id) order."""
+        filters = [(f, v) for f, v in (("person_key", person_key), ("robot_id", robot_id),
+                                       ("request_id", request_id)) if v is not None]
+        if filters:      # the shortest index list, then the other filters on each ask
+            lists = [self._asks_by.get(f, []) for f in filters]
+            ids = min(lists, key=len)
+            found = [self._asks[i] for i in ids
+                     if all(getattr(self._asks[i], f) == v for f, v in filters)]
+        else:
+            found = list(self._asks.values())
+        found = sorted((a for a in found if since_s is None or a.time_s >= since_s),
+                       key=lambda a: (a.time_s, a.event_id))
+        return found[max(len(found) - max(int(limit), 0), 0):]
+
+    def move_asks_forward(self, by_s: float) -> int:
+        moved = list(self._asks.values())
+        for a in moved:
+            self._asks[a.event_id] = AskEvent(a.event_id, a.person_key, a.time_s + by_s,
+                                              a.request_kind, a.request_id)
+        return len(moved)
 
     def close(self) -> None:
         pass

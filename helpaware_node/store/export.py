@@ -1,23 +1,36 @@
-"""The store's events as CSV (hashed keys only): what `helpaware store export` writes and
-`helpaware fit` reads."""
+"""The store's events and asks as CSV (hashed keys only): what `helpaware store export` writes
+and `helpaware fit` reads.
+
+One row per stored outcome (`record` outcome) and per stored ask (`record` ask), merged in
+(time, event id) order. An ask row has no busyness, ask load or result (it is not evidence:
+fit skips it); an outcome row has no request id (outcomes are stored without one).
+"""
 from __future__ import annotations
 
 import csv
+import heapq
 from typing import TextIO
 
 from .sqlite import SqliteStore
 
 EXPORT_COLUMNS = ("event_id", "person_key", "time_s", "busyness", "ask_load", "result",
-                  "request_kind")
+                  "request_kind", "record", "request_id")
+OUTCOME_RECORD, ASK_RECORD = "outcome", "ask"
 
 
 def write_csv(store: SqliteStore, handle: TextIO) -> int:
-    """Every stored event in (time, event id) order; returns how many were written."""
+    """Every stored outcome and ask in (time, event id) order; returns how many rows."""
     w = csv.writer(handle, lineterminator="\n")
     w.writerow(EXPORT_COLUMNS)
+    outcomes = ((e.time_s, e.event_id, [e.event_id, e.person_key, repr(float(e.time_s)),
+                                        repr(float(e.busyness)), repr(float(e.ask_load)),
+                                        e.result.value, e.request_kind, OUTCOME_RECORD, ""])
+                for e in store.iter_events())
+    asks = ((a.time_s, a.event_id, [a.event_id, a.person_key, repr(float(a.time_s)), "", "",
+                                    "", a.request_kind, ASK_RECORD, a.request_id])
+            for a in store.iter_asks())
     n = 0
-    for e in store.iter_events():
-        w.writerow([e.event_id, e.person_key, repr(float(e.time_s)), repr(float(e.busyness)),
-                    repr(float(e.ask_load)), e.result.value, e.request_kind])
+    for _, _, row in heapq.merge(outcomes, asks, key=lambda r: (r[0], r[1])):
+        w.writerow(row)
         n += 1
     return n

@@ -49,6 +49,22 @@ MIGRATIONS: list[list[str]] = [
         """CREATE TABLE sequences (robot_id TEXT PRIMARY KEY, next_seq INTEGER NOT NULL)
            WITHOUT ROWID""",
     ],
+    # 3: asks, written before each decision to ask is published, so the hard limits (re-ask
+    # interval, daily and hourly caps) count the asks made before a restart; peers' too
+    [
+        """CREATE TABLE asks (
+               row_id       INTEGER PRIMARY KEY,
+               event_id     TEXT NOT NULL UNIQUE,  -- "<robot_id>/<sequence>", as events
+               robot_id     TEXT NOT NULL,      -- the part of event_id before the last '/'
+               person_key   TEXT NOT NULL,      -- HMAC-SHA256 hex, never a raw id
+               time_s       REAL NOT NULL,
+               request_kind TEXT NOT NULL DEFAULT '',
+               request_id   TEXT NOT NULL DEFAULT ''
+           )""",
+        """CREATE INDEX asks_by_person ON asks (person_key, time_s)""",
+        """CREATE INDEX asks_by_robot ON asks (robot_id, time_s)""",
+        """CREATE INDEX asks_by_request ON asks (request_id, robot_id)""",
+    ],
 ]
 SCHEMA_VERSION = len(MIGRATIONS)
 

@@ -1,4 +1,5 @@
-"""The SQLite store: a durable, append-only outcome log with a per-person fold cache.
+"""The SQLite store: a durable, append-only outcome log with a per-person fold cache, and
+the log of asks the hard limits count.
 
 - `events` is the source of truth; `snapshot` caches each person's fold
   (core.person.fold_events in (time, event id) order) and is updated in the same
@@ -8,11 +9,14 @@
   one such transaction.
 - secure_delete is on, and forget() checkpoints the WAL with TRUNCATE, so erased rows do not
   linger in free pages or in the log.
+- `asks` holds every ask (own, and peers' from the fleet), one durable transaction each,
+  written before the decision is published; it never changes a belief.
 - A damaged file is moved aside (never deleted) and the store starts on priors with
   health ERROR, so the robot keeps working and diagnostics say what happened.
 """
 from __future__ import annotations
 
+import contextlib
 import datetime
 import hashlib
 import json
@@ -25,14 +29,16 @@ from pathlib import Path
 from typing import Iterable, Iterator
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
-from ..core.model import CoreInputError, from_plain, to_plain
-from .base import StoredEvent, StoreHealth, person_key
+from ..core.model import MAX_ASKS_CAP, CoreInputError, check_range, from_plain, to_plain
+from .base import AskEvent, StoredEvent, StoreHealth, person_key
 from .keys import SiteKeyError, SiteKeys, key_fingerprint
 from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
 
 DAY_S = 86400.0
 PERSON_KEY_RE = re.compile(r"^[0-9a-f]{64}$")
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
+ASK_COLUMNS = "event_id, robot_id, person_key, time_s, request_kind, request_id"
+MAX_ASK_TEXT_CHARS = 128       # request kind and request id of an ask (wire's id limit)
 SQLITE_HEADER = b"SQLite format 3\x00"
 
 
@@ -54,6 +60,26 @@ def check_event(event: StoredEvent) -> None:
     if not sep or not robot or not seq:
         raise CoreInputError(f"event_id: {event.event_id!r} is not '<robot_id>/<sequence>'")
     event.to_outcome()          # validates time, busyness, ask load and result ranges
+
+
+def check_ask(ask: AskEvent) -> None:
+    """Refuse an ask that is not keyed like an event (names the field and the allowed range)."""
+    if not PERSON_KEY_RE.match(ask.person_key or ""):
+        raise CoreInputError("person_key: expected 64 lowercase hex digits (HMAC-SHA256 of the "
+                             "perceived id); raw ids are never stored")
+    robot, sep, seq = ask.event_id.rpartition("/") if isinstance(ask.event_id, str) else ("", "", "")
+    if not sep or not robot or not seq:
+        raise CoreInputError(f"event_id: {ask.event_id!r} is not '<robot_id>/<sequence>'")
+    check_range("time_s", ask.time_s, -1e15, 1e15)
+    for name in ("request_kind", "request_id"):
+        value = getattr(ask, name)
+        if not isinstance(value, str) or len(value) > MAX_ASK_TEXT_CHARS:
+            raise CoreInputError(f"{name}: expected text of at most {MAX_ASK_TEXT_CHARS} "
+                                 f"characters")
+
+
+def row_to_ask(row) -> AskEvent:
+    return AskEvent(row[0], row[2], row[3], row[4], row[5])
 
 
 def row_to_event(row) -> StoredEvent:
@@ -264,12 +290,7 @@ class SqliteStore:
             refold_later.add(key)
         else:                   # arrived out of order (fleet) or cached under another model
             self._refold(c, key)
-        robot, _, seq = event.event_id.rpartition("/")
-        if robot == self.robot_id and seq.isdigit():
-            c.execute("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
-                      "SET next_seq = max(next_seq, excluded.next_seq)",
-                      (self.robot_id, int(seq) + 1))
-            self._next_seq = max(self._next_seq, int(seq) + 1)
+        self._note_own_sequence(c, event.event_id)
         return True
 
     def extend(self, events: Iterable[StoredEvent]) -> int:
@@ -291,18 +312,24 @@ class SqliteStore:
             rows.append(event_to_row(e))
         if not batch:
             return []
+        with self._batch() as c:
+            refold_later: set[str] = set()
+            stored = [e for e, row in zip(batch, rows)
+                      if self._append_in_tx(e, row, refold_later)]
+            for key in refold_later:
+                self._refold(c, key)
+            return stored
+
+    @contextlib.contextmanager
+    def _batch(self):
+        """One durable transaction for a batch: all of it, or nothing and the sequence back."""
         with self._lock:
             c = self._conn
             next_seq = self._next_seq
             c.execute("BEGIN IMMEDIATE")
             try:
-                refold_later: set[str] = set()
-                stored = [e for e, row in zip(batch, rows)
-                          if self._append_in_tx(e, row, refold_later)]
-                for key in refold_later:
-                    self._refold(c, key)
+                yield c
                 c.execute("COMMIT")
-                return stored
             except BaseException:
                 if c.in_transaction:
                     c.execute("ROLLBACK")
@@ -402,7 +429,8 @@ class SqliteStore:
             return [r[0] for r in self._conn.execute("SELECT person_key FROM opt_out")]
 
     def forget(self, key: str) -> int:
-        """Delete every row that holds the key, then truncate the WAL so no copy lingers.
+        """Delete every row that holds the key (asks too), then truncate the WAL so no copy
+        lingers.
 
         Returns the events removed, compacted ones included.
         """
@@ -414,11 +442,12 @@ class SqliteStore:
                                 (key,)).fetchone()
                 n = row[0] if row else 0       # compacted events count as removed too
                 n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
+                c.execute("DELETE FROM asks WHERE person_key = ?", (key,))
                 c.execute("DELETE FROM snapshot WHERE person_key = ?", (key,))
                 c.execute("DELETE FROM opt_out WHERE person_key = ?", (key,))
                 # interior index pages may still hold the key as a divider: rebuild them
                 # (secure_delete zeroes the freed pages)
-                for table in ("events_by_person", "snapshot", "opt_out"):
+                for table in ("events_by_person", "asks_by_person", "snapshot", "opt_out"):
                     c.execute(f"REINDEX {table}")
                 c.execute("COMMIT")
             except BaseException:
@@ -434,10 +463,13 @@ class SqliteStore:
                                       "another reader; erased rows may remain in the WAL")
 
     def compact(self, older_than_s: float, now_s: float | None = None) -> int:
-        """Fold events older than `older_than_s` into each person's base and delete them.
+        """Fold events older than `older_than_s` into each person's base and delete them;
+        asks older than that go too (they carry no evidence).
 
         Beliefs do not change: the fold is sequential, and the base is exactly the fold of
-        the deleted prefix.  Returns the number of events removed.
+        the deleted prefix.  Returns the number of events removed.  A retention shorter than
+        the longest limit window (a day, or min_reask_interval_s) shortens what the limits
+        see after a restart: docs/store.md.
         """
         if older_than_s < 0:
             raise CoreInputError(f"older_than_s: {older_than_s!r} must be >= 0")
@@ -451,11 +483,13 @@ class SqliteStore:
             try:
                 for key in keys:
                     removed += self._compact_key(c, key, cutoff)
+                asks_removed = c.execute("DELETE FROM asks WHERE time_s < ?",
+                                         (cutoff,)).rowcount
                 c.execute("COMMIT")
             except BaseException:
                 c.execute("ROLLBACK")
                 raise
-            if removed:
+            if removed or asks_removed:
                 self.checkpoint()
         return removed
 
@@ -488,6 +522,7 @@ class SqliteStore:
                 "persons": q("SELECT count(*) FROM snapshot"),
                 "compacted_events": q("SELECT coalesce(sum(base_count), 0) FROM snapshot"),
                 "opted_out": q("SELECT count(*) FROM opt_out"),
+                "asks": q("SELECT count(*) FROM asks"),
                 "robots": len(self.robot_ids()),
             }
 
@@ -496,20 +531,96 @@ class SqliteStore:
             ids = {r[0] for r in self._conn.execute("SELECT robot_id FROM sequences")}
             ids |= {r[0] for r in self._conn.execute(
                 "SELECT DISTINCT substr(event_id, 1, instr(event_id, '/') - 1) FROM events")}
+            ids |= {r[0] for r in self._conn.execute("SELECT DISTINCT robot_id FROM asks")}
         return sorted(ids)
+
+    def _in_order(self, table: str, columns: str) -> list:
+        with self._lock:
+            return self._conn.execute(f"SELECT {columns} FROM {table} "
+                                      "ORDER BY time_s, event_id").fetchall()
 
     def iter_events(self) -> Iterator[StoredEvent]:
         """Every stored event in (time, event id) order."""
-        with self._lock:
-            rows = self._conn.execute(f"SELECT {EVENT_COLUMNS} FROM events "
-                                      "ORDER BY time_s, event_id").fetchall()
-        return (row_to_event(r) for r in rows)
+        return (row_to_event(r) for r in self._in_order("events", EVENT_COLUMNS))
 
     def recent_events(self, limit: int) -> list[StoredEvent]:
         with self._lock:
             rows = self._conn.execute(f"SELECT {EVENT_COLUMNS} FROM events ORDER BY time_s "
                                       "DESC, event_id DESC LIMIT ?", (int(limit),)).fetchall()
         return [row_to_event(r) for r in reversed(rows)]
+
+    # -- asks --------------------------------------------------------------------------
+    def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]:
+        """Store asks durably in ONE transaction; returns the ones that were new.
+
+        The node's own ask is a batch of one, committed before its decision is published.
+        Skipped: a duplicate event id, an opted-out person. All or nothing: a malformed ask
+        refuses the batch (CoreInputError names the field).
+        """
+        batch = sorted(asks, key=lambda a: (float(a.time_s), a.event_id))
+        for a in batch:
+            check_ask(a)
+        if not batch:
+            return []
+        with self._batch() as c:
+            stored = []
+            for a in batch:
+                if c.execute("SELECT 1 FROM opt_out WHERE person_key = ?",
+                             (a.person_key,)).fetchone():
+                    continue
+                cur = c.execute(f"INSERT OR IGNORE INTO asks ({ASK_COLUMNS}) VALUES "
+                                "(?,?,?,?,?,?)", (a.event_id, a.robot_id, a.person_key,
+                                                  float(a.time_s), a.request_kind,
+                                                  a.request_id))
+                if cur.rowcount:
+                    stored.append(a)
+                    self._note_own_sequence(c, a.event_id)
+            return stored
+
+    def _note_own_sequence(self, c, event_id: str) -> None:
+        robot, _, seq = event_id.rpartition("/")
+        if robot == self.robot_id and seq.isdigit():
+            c.execute("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
+                      "SET next_seq = max(next_seq, excluded.next_seq)",
+                      (self.robot_id, int(seq) + 1))
+            self._next_seq = max(self._next_seq, int(seq) + 1)
+
+    def asks(self, *, person_key: str | None = None, robot_id: str | None = None,
+             request_id: str | None = None, since_s: float | None = None,
+             limit: int = MAX_ASKS_CAP) -> list[AskEvent]:
+        """Asks matching every filter given (and at or after `since_s`): the newest `limit`
+        of them, in (time, event id) order."""
+        where, args = [], []
+        for column, value in (("person_key", person_key), ("robot_id", robot_id),
+                              ("request_id", request_id)):
+            if value is not None:
+                where.append(f"{column} = ?")
+                args.append(value)
+        if since_s is not None:
+            where.append("time_s >= ?")
+            args.append(float(since_s))
+        # by request id the planner would walk the robot's index (it sorts by time): say which
+        hint = " INDEXED BY asks_by_request" if request_id is not None else ""
+        sql = (f"SELECT {ASK_COLUMNS} FROM asks{hint}"
+               + (" WHERE " + " AND ".join(where) if where else "")
+               + " ORDER BY time_s DESC, event_id DESC LIMIT ?")
+        with self._lock:
+            rows = self._conn.execute(sql, args + [max(int(limit), 0)]).fetchall()
+        return [row_to_ask(r) for r in reversed(rows)]
+
+    def move_asks_forward(self, by_s: float) -> int:
+        """A forward jump of the system clock (seen against the steady clock while the node
+        ran): every stored ask moves with it, so after a restart each keeps its real age."""
+        with self._lock:
+            return self._conn.execute("UPDATE asks SET time_s = time_s + ?",
+                                      (float(by_s),)).rowcount
+
+    def iter_asks(self) -> Iterator[AskEvent]:
+        """Every stored ask in (time, event id) order."""
+        return (row_to_ask(r) for r in self._in_order("asks", ASK_COLUMNS))
+
+    def recent_asks(self, limit: int) -> list[AskEvent]:
+        return self.asks(limit=limit)
 
     def bulk_load(self, events: Iterable[StoredEvent]) -> int:
         """Insert many events in one transaction and rebuild their snapshots (imports, bench)."""

@@ -1,7 +1,8 @@
 """`helpaware simulate SCENARIO.yaml`: every policy on the same seeds of a simulated site.
 
-Writes a table (terminal), results.json and two PNG plots into --out. Every decision of every
-policy goes through core.policy.decide, the node's own decision code path.
+Writes a table (terminal), results.json and two PNG plots into --out. Every policy runs in the
+node's own help session (asking again after a decline, up to max_asks_per_need), and every
+decision goes through core.policy.decide, the node's own decision code path.
 """
 from __future__ import annotations
 
@@ -59,7 +60,7 @@ def run(args) -> int:
     except CoreInputError as exc:
         print(f"simulate: {exc}", file=sys.stderr)
         return 2
-    model = config = None
+    model = config = rules = None
     if args.params:
         from ..node_param_file import ParamFileError, load_params
         try:
@@ -67,12 +68,17 @@ def run(args) -> int:
         except ParamFileError as exc:
             print(f"simulate: {exc}", file=sys.stderr)
             return 2
-        model, config = loaded.model, loaded.config
+        model, config, rules = loaded.model, loaded.config, loaded.rules
         print(f"parameters from {args.params}: {len(loaded.applied)} applied"
               + (f", not used by the decision: {', '.join(loaded.ignored)}" if loaded.ignored
                  else ""))
-    summary, per_seed, runs = compare(sc, args.policies, args.seeds, model=model, config=config,
-                                      progress=not args.quiet, first_seed=args.first_seed)
+    try:
+        summary, per_seed, runs = compare(sc, args.policies, args.seeds, model=model,
+                                          config=config, progress=not args.quiet,
+                                          first_seed=args.first_seed, rules=rules)
+    except CoreInputError as exc:      # e.g. more asks per need than the world draws
+        print(f"simulate: {exc}", file=sys.stderr)
+        return 2
     print(f"scenario {sc.name}: {sc.description}")
     print(f"{args.seeds} seeds, mean ± 95 % t half-width over seeds; saved robot-s = help "
           "gained - time lost - interruption cost, against continuing alone")

@@ -1,7 +1,7 @@
 """`helpaware store`: look into and look after the belief store file.
 
-Actions: inspect (counts, or one person's belief by perceived id), opt-out, forget, compact,
-export (hashed events as CSV for `helpaware fit`).  Perceived ids given here are hashed with
+Actions: inspect (counts, or one person's belief and asks by perceived id), opt-out, forget,
+compact, export (hashed events and asks as CSV for `helpaware fit`).  Perceived ids given here are hashed with
 the site key at once and never written anywhere.
 """
 from __future__ import annotations
@@ -23,19 +23,20 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         "beside the store file)")
     acts = parser.add_subparsers(dest="action", metavar="ACTION")
     acts.required = True
-    p = acts.add_parser("inspect", help="counts; with --person/--key one person's belief")
+    p = acts.add_parser("inspect", help="counts; with --person/--key one person's belief "
+                        "and asks")
     _person_args(p, required=False)
     p = acts.add_parser("opt-out", help="stop learning about a person")
     _person_args(p)
-    p = acts.add_parser("forget", help="delete every trace of a person (events, snapshot, "
-                        "opt-out), securely")
+    p = acts.add_parser("forget", help="delete every trace of a person (events, asks, "
+                        "snapshot, opt-out), securely")
     _person_args(p)
     p = acts.add_parser("compact", help="fold events older than N days into the snapshot "
-                        "base and delete them (beliefs unchanged)")
+                        "base and delete them, and asks older than that (beliefs unchanged)")
     p.add_argument("--older-than-days", type=float, required=True, metavar="DAYS")
     p.add_argument("--now", type=float, default=None, metavar="TIME_S",
                    help="reference time in seconds since the epoch (default: now)")
-    p = acts.add_parser("export", help="hashed events as CSV (columns: "
+    p = acts.add_parser("export", help="hashed events and asks as CSV (columns: "
                         + ",".join(EXPORT_COLUMNS) + ")")
     p.add_argument("-o", "--out", default="-", help="CSV file to write (default: stdout)")
 
@@ -100,8 +101,20 @@ def do_inspect(store: SqliteStore, args) -> int:
             ["mean willingness", fmt(belief.mean, 3)],
             ["events stored", len(events)],
             ["last event time_s", "-" if last is None else fmt(last, 1)]]
+    asks = store.asks(person_key=key)
+    rows.append(["asks stored", len(asks)])
     print(render_table(["item", "value"], rows, [False, True]))
+    if asks:
+        shown = asks[-INSPECT_ASKS:]
+        print(f"asks (newest {len(shown)} of {len(asks)}; every robot's, as the limits "
+              f"count them)")
+        print(render_table(["time_s", "robot", "request kind", "request id"],
+                           [[fmt(a.time_s, 1), a.robot_id, a.request_kind or "-",
+                             a.request_id or "-"] for a in shown], [True, False, False, False]))
     return 0
+
+
+INSPECT_ASKS = 20     # newest asks listed by inspect
 
 
 def do_opt_out(store: SqliteStore, args) -> int:
@@ -114,7 +127,7 @@ def do_opt_out(store: SqliteStore, args) -> int:
 def do_forget(store: SqliteStore, args) -> int:
     key = _key(store, args)
     n = store.forget(key)
-    print(f"forgot {key[:16]}...: {n} event(s) deleted, snapshot and opt-out removed")
+    print(f"forgot {key[:16]}...: {n} event(s) deleted, asks, snapshot and opt-out removed")
     return 0
 
 
@@ -123,8 +136,11 @@ def do_compact(store: SqliteStore, args) -> int:
         print("store: --older-than-days must be >= 0", file=sys.stderr)
         return 2
     now = time.time() if args.now is None else args.now
+    asks_before = store.counts()["asks"]
     n = store.compact(args.older_than_days * 86400.0, now_s=now)
-    print(f"compacted {n} event(s) older than {args.older_than_days:g} day(s)")
+    asks_removed = asks_before - store.counts()["asks"]
+    print(f"compacted {n} event(s) older than {args.older_than_days:g} day(s); "
+          f"deleted {asks_removed} ask(s) as old")
     return 0
 
 
@@ -134,7 +150,7 @@ def do_export(store: SqliteStore, args) -> int:
     else:
         with open(args.out, "w", newline="", encoding="utf-8") as fh:
             n = write_csv(store, fh)
-        print(f"exported {n} event(s) to {args.out}", file=sys.stderr)
+        print(f"exported {n} row(s) (outcomes and asks) to {args.out}", file=sys.stderr)
     return 0
 
 

@@ -62,9 +62,11 @@ def own_fleet_topic(namespace: str) -> str:
 
 
 def start_node(store_path: Path, robot_id: str, namespace: str, log_path: Path,
-               shared_fleet: bool = False) -> subprocess.Popen:
+               shared_fleet: bool = False, limits: dict | None = None) -> subprocess.Popen:
+    """`limits`: parameters set over FAST_ASKING (tests of the limits themselves)."""
     remaps = launch_config.REMAPS
-    overrides = dict(FAST_ASKING, store_path=str(store_path), robot_id=robot_id)
+    overrides = dict(FAST_ASKING, **(limits or {}), store_path=str(store_path),
+                     robot_id=robot_id)
     if not shared_fleet:                 # the shared one is the default, /helpaware/fleet
         overrides["fleet_topic"] = own_fleet_topic(namespace)
     log = open(log_path, "a")
@@ -113,6 +115,16 @@ def read_store(path: Path) -> StoreView:
         conn.close()
     return StoreView(integrity, events, snapshot,
                      from_plain(SiteModel, json.loads(meta["site_model"])))
+
+
+def stored_asks(path: Path) -> list[tuple[str, str, float]]:
+    """(event id, person key, time) of every stored ask, read-only (not through the store)."""
+    conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=10.0)
+    try:
+        return [tuple(r) for r in conn.execute("SELECT event_id, person_key, time_s FROM asks "
+                                               "ORDER BY time_s, event_id")]
+    finally:
+        conn.close()
 
 
 def event_ids(path: Path) -> set[str]:

@@ -306,14 +306,14 @@ def rig(ctx, tmp_path_factory):
     node = r.node
     r.known_keys = [node.store.key_for(p) for p in ("nurse-a", "porter-b")]
     assert sum(len(node.store.events_for(k)) for k in r.known_keys) >= 1   # learned state
-    node.needs.clear()
+    node.session.needs.clear()
     yield r
     r.close()
 
 
 def known_state(rig):
     node = rig.node
-    return [(node.records[k].belief if k in node.records else None,
+    return [(node.session.memory.records[k].belief if k in node.session.memory.records else None,
              tuple(node.store.events_for(k)), node.store.is_opted_out(k))
             for k in rig.known_keys]
 
@@ -373,9 +373,9 @@ def feed(rig, topic, text):
         st_["accepted"] += 1
         assert decodes(topic, text, node), ("taken but does not decode", topic, text[:200])
     assert known_state(rig) == before_state, ("known beliefs changed", topic, text[:200])
-    assert node.store_ok, (node.store_error, topic, text[:200])
-    node.needs.clear()            # accepted opens must not turn later ones into duplicates
-    node.pending.clear()
+    assert node.session.status.ok, (node.session.status.error, topic, text[:200])
+    node.session.needs.clear()            # accepted opens must not turn later ones into duplicates
+    node.session.pending.clear()
     return rejected, reason
 
 
@@ -386,8 +386,8 @@ def still_decides(rig, tag):
                             {"id": "porter-b", "distance_m": 3.0, "busyness": 0.2}])
     d = rig.open_need(f"after-{tag}", "door", urgency=1.0)  # decoded and validated by wire
     assert d["action"] in ("ask", "continue") and d["request_id"] == f"after-{tag}"
-    node.needs.clear()
-    node.pending.clear()
+    node.session.needs.clear()
+    node.session.pending.clear()
 
 
 @pytest.mark.parametrize("topic", TOPICS)
@@ -510,9 +510,9 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
         tag = f"sentinel-{i}"
         if topic == "people":
             return wire.people_document([{"id": tag, "distance_m": 1.0}], 1.0), \
-                lambda: tag in node.seen
+                lambda: tag in node.session.seen
         if topic == "task_status":
-            return wire.task_status_document(tag, "open", "door", 0.5), lambda: tag in node.needs
+            return wire.task_status_document(tag, "open", "door", 0.5), lambda: tag in node.session.needs
         if topic == "outcome":
             return wire.outcome_document(tag, "nobody", "helped"), \
                 lambda: tag in node.counters.last_reason["outcome"]
@@ -546,14 +546,14 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
                 if rig.spin_until(arrived, 0.5 if topic == "people" else 30.0):
                     break
             assert arrived(), (topic, "a valid document after garbage was not handled")
-            node.needs.clear()
-            node.pending.clear()
+            node.session.needs.clear()
+            node.session.pending.clear()
         RAW_STATS[topic]["refused by the node"] = rejections(node, topic)[0] - r0
         if topic in WIRE_TOPICS:
             RAW_STATS[topic]["delivered to the handler (sentinels included)"] = (
                 node.counters.received[topic] - got0)
         assert rejections(node, topic)[0] > r0          # garbage that got through was counted
-    assert known_state(rig) == before and node.store_ok
+    assert known_state(rig) == before and node.session.status.ok
     still_decides(rig, "raw")
 
 

@@ -131,7 +131,7 @@ def test_sim_clock_jump_back_asks_nobody_already_asked(ctx):
             assert all(rows[p].get("excluded") == "reask_interval" for p in asked)
         # the pending-ask timeout measures from the ask's own (sim) time: an ask made at
         # 40 000 s is not expired by an earlier one's bookkeeping
-        assert rig.node.expired_asks == 0
+        assert rig.node.session.expired_asks == 0
     finally:
         rig.close()
 
@@ -168,7 +168,7 @@ def test_system_time_jump_forward_keeps_the_limits_on_real_time(ctx):
             rows = {r["person_id"]: r for r in d["rationale"]}
             assert all(rows[p]["excluded"] in ("reask_interval", "robot_hourly_cap")
                        for p in asked)
-        assert rig.node.clock_jumps_forward == 1
+        assert rig.node.session.clock_jumps_forward == 1
         # the asks kept their real age: still inside the hour, just moved into the new time
         ages = [d["stamp_s"] - t for d in after[-1:] for t in d["robot_ask_times_s"]]
         assert len(ages) == CAP_PER_HOUR and all(0.0 <= a < 600.0 for a in ages)

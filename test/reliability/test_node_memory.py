@@ -1,7 +1,7 @@
 """The node's person records stay bounded on a busy site, without forgetting any limit.
 
 Many distinct people (a concourse of strangers, or a fleet sharing everyone it met) would
-otherwise grow `node.records` by one entry per person forever. Beliefs live in the store, so
+otherwise grow the session's records by one entry per person forever. Beliefs live in the store, so
 a dropped record comes back from it when the person is seen again.
 """
 from helpaware_node.core.person import Result
@@ -16,27 +16,29 @@ def test_records_are_bounded_and_come_back_from_the_store(ctx, tmp_path):
     try:
         assert rig.connected()
         node = rig.node
-        node.max_records = 20
+        node.session.memory.max_records = 20
         assert rig.show_people([{"id": "nurse-kept", "distance_m": 1.0, "busyness": 0.0}])
         d = rig.open_need("keep1", "handover", urgency=1.0)
         assert d["action"] == "ask" and d["person_id"] == "nurse-kept"
         rig.report("keep1", "nurse-kept", "helped")
         kept = node.store.key_for("nurse-kept")
-        # 200 people learned from the fleet, never in view here
+        # 200 people learned from the fleet, their records loaded (as a decision loads the
+        # records of everyone in view), then out of view
         for i in range(200):
             key = node.store.key_for(f"visitor-{i}")
-            assert node._ingest_event(StoredEvent(f"peer/{i}", key, 100.0 + i,
-                                                  Result.DECLINED, 0.2, 0.0))
-        assert len(node.records) > 200
-        assert rig.spin_until(lambda: len(node.records) <= 20)
-        assert node.records_evicted >= 180
+            assert node.session.peer_events([StoredEvent(f"peer/{i}", key, 100.0 + i,
+                                                         Result.DECLINED, 0.2, 0.0)])
+            node.session.memory.record_for(key)
+        assert len(node.session.memory.records) > 200
+        assert rig.spin_until(lambda: len(node.session.memory.records) <= 20)
+        assert node.session.memory.evicted >= 180
         # the person asked within the ask memory keeps their record (and so their asks)
-        assert kept in node.records and node.records[kept].ask_times_s
+        assert kept in node.session.memory.records and node.session.memory.records[kept].ask_times_s
         # a dropped person comes back with the store's belief: Beta(2, 2) prior, one declined
         back = node.store.key_for("visitor-0")
-        assert back not in node.records
+        assert back not in node.session.memory.records
         belief_in_store = node.store.belief(back, node.params.model)[0]
-        assert node.record_for(back).belief == belief_in_store
+        assert node.session.memory.record_for(back).belief == belief_in_store
         assert belief_in_store.b > 2.0          # the declined outcome is still in it
         # and the re-ask interval of the kept person still holds: asked again, refused
         assert rig.show_people([{"id": "nurse-kept", "distance_m": 1.0, "busyness": 0.0}])

@@ -125,7 +125,7 @@ LITERALS = {"integer": ["7", "-3", "0x10"], "double": ["1.5", "-0.25", "1.0e3"],
 BAD_VALUES = {"double": [".nan", ".inf", "-.inf", "-1.0e300", "1.0e300"],
               "integer": ["-1", "9223372036854775807"]}
 NO_RANGE = {"robot_id", "store_path", "navigation_status_topic", "autostart",
-            "asking_enabled", "protected_activities", params.KINDS_PARAM}
+            "asking_enabled", "count_peer_asks", "protected_activities", params.KINDS_PARAM}
 
 
 def _seed_text(name: str) -> str:

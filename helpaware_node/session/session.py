@@ -1,0 +1,357 @@
+"""The life of help needs and asks, one module for node, simulator and tests (no ROS here).
+
+Events in, one method each, time always passed in: people_seen, need_opened, need_closed,
+goal_aborted / goal_finished (navigation), outcome, tick (pending asks expire, needs waiting
+for the clock decide), clock (system time against the steady clock), peer_events (peers'
+outcomes and asks), forgotten, outcome_saved, set_parameters. Each returns a `Step`: the
+decisions to publish, the events stored here to share with the fleet, notes for the log.
+Every decision goes through core.policy.decide, the one decision code path.
+
+Rules:
+- one pending ask per need; declined, no response, could not ask or an expired ask decide
+  again, up to max_asks_per_need asks for the need; helped ends its asking;
+- an outcome for an unknown or finished request is refused (SessionInputError names the field);
+- every ask is stored before its decision is returned; if the store refuses it, nobody is
+  asked (policy store_unavailable), and likewise while an outcome waits for the store;
+- asks made before a restart count: the robot's own of the last hour are loaded at start, a
+  person's when their record is loaded, a need's by its request id when it opens; peers'
+  asks count for the per-person limits and the ask load while rules.count_peer_asks is on.
+"""
+from __future__ import annotations
+
+from dataclasses import replace
+from typing import Iterable, Optional
+
+from ..core import (DecisionConfig, HelpNeed, PersonRecord, Result, SiteModel,
+                    candidate_from_record, conclude, decide, keep_recent_asks)
+from ..core.model import CoreInputError
+from ..core.policy import HOUR_S, Chooser, choose_lookahead
+from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
+from .memory import PersonMemory
+from .ports import DirectWrites, OutcomeWriter, SessionStore, StoreStatus
+from .state import (IN_VIEW_EXTRA_S, MAX_GOALS_REMEMBERED, STORE_UNAVAILABLE, DecisionOut,
+                    OpenNeed, PendingAsk, Seen, SessionInputError, SessionRules, Step)
+
+CLOCK_JUMP_TOLERANCE_S = 5.0  # system time moving this much more than the steady clock
+NAV_FAILURE_KIND = "navigation_failure"
+
+
+def _never(ev) -> None:
+    return None
+
+
+class HelpSession:
+    """Help needs, pending asks and the ask histories behind the hard limits."""
+
+    def __init__(self, store: SessionStore, model: SiteModel, config: DecisionConfig,
+                 rules: SessionRules = SessionRules(), now_s: Optional[float] = None,
+                 writer: Optional[OutcomeWriter] = None, status: Optional[StoreStatus] = None,
+                 chooser: Chooser = choose_lookahead, policy: str = "lookahead") -> None:
+        self.store = store
+        self.model, self.config, self.rules = model, config, rules
+        self.writer = writer if writer is not None else DirectWrites(store)
+        self.status = status if status is not None else StoreStatus()
+        self.chooser, self.policy = chooser, policy
+        self.robot_id = getattr(store, "robot_id", "")
+        self.memory = PersonMemory(store, model, self.robot_id, rules.count_peer_asks,
+                                   rules.max_people_in_memory)
+        self.seen: dict[str, Seen] = {}            # perceived id -> in view
+        self.needs: dict[str, OpenNeed] = {}
+        self.pending: dict[str, PendingAsk] = {}   # request id -> the ask waiting for outcome
+        self.robot_ask_times_s = self._stored_robot_asks(now_s)
+        self.active = True                         # False: needs are kept, nothing decided
+        self.decisions = 0
+        self.expired_asks = 0
+        self.could_not_ask = 0
+        self.clock_jumps_forward = 0
+        self._clock_mark: Optional[tuple[float, float]] = None   # (node time, steady time)
+        self._goals: dict[str, str] = {}           # navigation goal id -> "aborted" / "done"
+
+    def _stored_robot_asks(self, now_s: Optional[float]) -> list[float]:
+        """The robot's own asks of the last hour (all of them before a clock runs), and the
+        newest max_asks_per_hour in any case, as keep_recent_asks keeps them."""
+        since = now_s - HOUR_S if now_s is not None and now_s > 0.0 else None
+        found = {a.event_id: a for a in
+                 self.store.asks(robot_id=self.robot_id, since_s=since)
+                 + self.store.asks(robot_id=self.robot_id, limit=self.config.max_asks_per_hour)}
+        return [a.time_s for a in sorted(found.values(), key=lambda a: (a.time_s, a.event_id))]
+
+    # ------------------------------------------------------------------ inputs
+    def people_seen(self, people: Iterable, now_s: float, frame_id: str = "",
+                    complete_view: bool = False) -> None:
+        """People perceived at `now_s`. `complete_view`: everyone else has left (the
+        simulator's view at a need); otherwise they stay until their observation is stale."""
+        if complete_view:
+            self.seen.clear()
+        for p in people:
+            key = self.store.key_for(p.person_id)
+            self.seen[p.person_id] = Seen(p, key, now_s, frame_id)
+            self.memory.saw(key, now_s)
+
+    def need_opened(self, need: HelpNeed, now_s: float) -> Step:
+        if need.request_id in self.needs:
+            raise SessionInputError(f"request_id: {need.request_id!r} is already open")
+        step = Step()
+        state = OpenNeed(need)
+        try:     # asks already made for it (before a restart): request ids are unique per robot
+            state.asks = len(self.store.asks(robot_id=self.robot_id, request_id=need.request_id))
+            store_failed = False
+        except Exception as exc:  # noqa: BLE001 - any store error: decide nothing risky
+            step.notes.append(self.status.failed("read", exc))
+            store_failed = True
+        self.needs[need.request_id] = state
+        if len(self.needs) > self.rules.max_open_needs:
+            self.needs.pop(next(iter(self.needs)))
+        self._decide(state, now_s, step, store_failed)
+        return step
+
+    def need_closed(self, request_id: str, how: str = "resolved") -> Step:
+        step = Step()
+        if self.needs.pop(request_id, None) is None:
+            step.note("info", f"{how} for unknown or finished request {request_id!r}")
+        return step
+
+    def goal_aborted(self, goal_id: str, now_s: float) -> Step:
+        """A navigation goal aborted: a help need of kind navigation_failure, once per goal."""
+        step = Step()
+        if self._goals.get(goal_id) != "aborted":
+            self._goals[goal_id] = "aborted"
+            rid = f"nav-{goal_id[:12]}"
+            if rid not in self.needs:
+                step = self.need_opened(HelpNeed(rid, NAV_FAILURE_KIND, now_s), now_s)
+        self._bound_goals()
+        return step
+
+    def goal_finished(self, goal_id: str) -> Step:
+        """Succeeded or cancelled: the need an abort of this goal opened is resolved."""
+        step = Step()
+        if self._goals.get(goal_id) == "aborted":
+            step = self.need_closed(f"nav-{goal_id[:12]}", "resolved")
+        self._goals[goal_id] = "done"
+        self._bound_goals()
+        return step
+
+    def _bound_goals(self) -> None:
+        while len(self._goals) > MAX_GOALS_REMEMBERED:
+            self._goals.pop(next(iter(self._goals)))
+
+    def outcome(self, request_id: str, person_id: str, result, now_s: float) -> Step:
+        """What happened to the pending ask of `request_id`; refused when there is none."""
+        ask = self.pending.get(request_id)
+        if ask is None:
+            raise SessionInputError(f"request_id: no pending ask for {request_id[:64]!r}")
+        if ask.person_id != person_id:
+            raise SessionInputError(f"person_id: the pending ask of {ask.request_id!r} "
+                                    f"went to another person")
+        try:
+            result = result if isinstance(result, Result) else Result.parse(result)
+        except CoreInputError as exc:
+            raise SessionInputError(str(exc)) from None
+        del self.pending[request_id]
+        step = Step()
+        if result is Result.COULD_NOT_ASK:
+            self.could_not_ask += 1
+            self.memory.withdraw_ask(ask.key, ask.asked_at_s)
+            step.note("info", f"could not ask for {request_id!r}: no belief change")
+        else:
+            event = StoredEvent(event_id=self.store.next_event_id(), person_key=ask.key,
+                                time_s=ask.asked_at_s, result=result, busyness=ask.busyness,
+                                ask_load=ask.ask_load, request_kind=ask.kind)
+            if self._write_outcome(event, step):
+                step.share.append(event)
+        state = self.needs.get(request_id)
+        if state is not None:
+            if result is Result.HELPED:
+                state.served = True
+            else:
+                self._decide(state, now_s, step)
+        return step
+
+    def _write_outcome(self, event: StoredEvent, step: Step) -> bool:
+        """Store first, then learn: the belief is the store's fold of the person's events."""
+        try:
+            stored = self.writer.write(event)
+        except Exception as exc:  # noqa: BLE001 - disk full, read-only, I/O error
+            step.notes.append(self.status.failed("append", exc))
+            return False
+        if stored is None:        # kept behind outcomes the store refused earlier
+            return False
+        self.status.wrote(self.store)
+        if stored:
+            self.memory.refresh_belief(event.person_key)
+        return bool(stored)
+
+    def outcome_saved(self, event: StoredEvent) -> None:
+        """An outcome the store refused earlier is stored now (the writer's retry)."""
+        self.memory.refresh_belief(event.person_key)
+
+    def peer_events(self, events: list[AnyEvent]) -> list[AnyEvent]:
+        """Peers' outcomes and asks: stored as one batch, then learned from. A store that
+        refuses raises, so the caller keeps the batch and tries again."""
+        try:
+            stored = append_batch(self.store, events)
+        except Exception as exc:
+            self.status.failed("append (fleet events)", exc)
+            raise
+        self.status.wrote(self.store)
+        for key in {e.person_key for e in stored if isinstance(e, StoredEvent)}:
+            self.memory.refresh_belief(key)
+        self.memory.note_peer_asks(e for e in stored if isinstance(e, AskEvent))
+        return stored
+
+    def forgotten(self, key: str) -> None:
+        """The store has forgotten a person: drop their record, any pending ask and any
+        outcome still kept for a store that refused it."""
+        self.memory.forget(key)
+        self.writer.drop_person(key)
+        self.pending = {r: a for r, a in self.pending.items() if a.key != key}
+
+    # ------------------------------------------------------------------ time
+    def clock(self, now_s: float, steady_s: Optional[float]) -> Step:
+        """The driver's clock reading. On system time (`steady_s` given), a jump forward (an
+        NTP step, a clock set by hand) would age every remembered ask at once and reopen the
+        hourly cap, the re-ask interval and the daily cap. The steady clock says how much time
+        really passed: everything kept in node time moves forward with the jump, in memory and
+        in the store, so each ask keeps its real age after a restart too. Sim time
+        (`steady_s` None) is the truth, and a jump back is already safe (asks 'in the future'
+        count as recent), so neither is touched."""
+        step = Step()
+        mark = self._clock_mark
+        self._clock_mark = None if steady_s is None else (now_s, steady_s)
+        if mark is None or steady_s is None:
+            return step
+        jump = (now_s - mark[0]) - (steady_s - mark[1])
+        if jump <= CLOCK_JUMP_TOLERANCE_S:
+            return step
+        self.clock_jumps_forward += 1
+        step.note("warning", f"system time jumped {jump:.0f} s ahead of the steady clock: "
+                  f"remembered asks moved with it, so the limits count real time")
+        self.robot_ask_times_s = [t + jump for t in self.robot_ask_times_s]
+        self.memory.move_asks_forward(jump)
+        try:
+            self.store.move_asks_forward(jump)
+        except Exception as exc:  # noqa: BLE001 - memory has moved; say the store did not
+            step.notes.append(self.status.failed("moving asks after a clock jump", exc))
+        for rid, ask in self.pending.items():
+            self.pending[rid] = replace(ask, asked_at_s=ask.asked_at_s + jump,
+                                        expires_at_s=ask.expires_at_s + jump)
+        for seen in self.seen.values():
+            if seen.observed_at_s <= mark[0]:     # seen before the jump (not since)
+                seen.observed_at_s += jump
+        return step
+
+    def tick(self, now_s: float) -> Step:
+        """Housekeeping: expire pending asks (and decide again), decide the needs that waited
+        for the clock, drop people out of view, bound the records in memory."""
+        step = Step()
+        if now_s <= 0.0:
+            return step
+        for rid, ask in list(self.pending.items()):
+            if now_s >= ask.expires_at_s:
+                del self.pending[rid]
+                self.expired_asks += 1
+                step.note("info", f"ask for {rid!r} expired without outcome: no belief change")
+                state = self.needs.get(rid)
+                if state is not None:
+                    self._decide(state, now_s, step)
+        for state in list(self.needs.values()):
+            if state.waiting_for_clock:
+                self._decide(state, now_s, step)
+        limit = self.config.max_observation_age_s + IN_VIEW_EXTRA_S
+        for pid in [p for p, s in self.seen.items() if now_s - s.observed_at_s > limit]:
+            del self.seen[pid]
+        keep = {s.key for s in self.seen.values()} | {a.key for a in self.pending.values()}
+        self.memory.evict_if_needed(now_s, keep, self.config)
+        return step
+
+    def set_parameters(self, model: SiteModel, config: DecisionConfig,
+                       rules: SessionRules) -> None:
+        self.model, self.config, self.rules = model, config, rules
+        self.memory.use_model(model)
+        self.memory.use_peer_rule(rules.count_peer_asks)
+
+    @property
+    def outcomes_waiting(self) -> int:
+        return self.writer.waiting
+
+    # ------------------------------------------------------------------ the decision
+    def _decide(self, state: OpenNeed, now_s: float, step: Step,
+                store_failed: bool = False) -> None:
+        if not self.active or state.served or state.need.request_id in self.pending:
+            return   # one ask at a time per need; the outcome or expiry decides again
+        if now_s <= 0.0:   # sim time before /clock: never decide on time zero
+            state.waiting_for_clock = True
+            return
+        if state.need.opened_at_s <= 0.0:
+            state.need = replace(state.need, opened_at_s=now_s)
+        state.waiting_for_clock = False
+        model, config = self.model, self.config
+        horizon = config.max_observation_age_s + IN_VIEW_EXTRA_S
+        cands, keys, read = [], [], []
+        for pid, s in self.seen.items():
+            if now_s - s.observed_at_s > horizon:
+                continue
+            try:
+                rec = self.memory.record_for(s.key)
+                opted_out = self.store.is_opted_out(s.key)
+                read.append(s.key)
+            except Exception as exc:  # noqa: BLE001 - a store that cannot be read: nobody asked
+                step.notes.append(self.status.failed("read", exc))
+                store_failed, rec, opted_out = True, PersonRecord.new(model), True
+            cands.append(candidate_from_record(
+                pid, rec, now_s, model, s.person.distance_m, s.observed_at_s,
+                busyness=s.person.busyness, activity=s.person.activity, opted_out=opted_out))
+            keys.append(s.key)
+        why = ("asking_disabled" if not self.rules.asking_enabled
+               else STORE_UNAVAILABLE if store_failed or self.writer.waiting
+               else "need_ask_limit" if state.asks >= self.rules.max_asks_per_need else None)
+        if why is not None:
+            decision = decide(state.need, cands, now_s, self.robot_ask_times_s, model, config,
+                              chooser=_never, policy=why)
+        else:
+            decision = decide(state.need, cands, now_s, self.robot_ask_times_s, model, config,
+                              chooser=self.chooser, policy=self.policy)
+        # the newest max_asks_per_hour asks are always kept: a clock excursion far ahead must
+        # not empty the memory that the hourly cap counts on when the clock comes back
+        robot_asks = keep_recent_asks(self.robot_ask_times_s, now_s, HOUR_S,
+                                      config.max_asks_per_hour)
+        ask = None
+        if decision.action == "ask":
+            ask = self._store_ask(keys[decision.person_index], state.need, now_s, step)
+            if ask is None:       # not stored, so not made: nobody is asked
+                decision = conclude(decision.evaluation, None, STORE_UNAVAILABLE)
+        self.decisions += 1
+        for key in read:      # a candidate once per need, however often it is decided
+            if key not in state.candidates:
+                state.candidates.add(key)
+                self.memory.note_candidate(key, now_s)
+        if ask is not None:
+            i = decision.person_index
+            ev = decision.evaluation
+            self.memory.note_ask(ask.person_key, now_s)
+            self.robot_ask_times_s = list(robot_asks) + [now_s]
+            state.asks += 1
+            self.pending[state.need.request_id] = PendingAsk(
+                state.need.request_id, decision.person_id, ask.person_key, now_s,
+                float(ev.busyness[i]), float(ev.ask_load[i]), state.need.kind,
+                now_s + self.rules.pending_ask_timeout_s)
+            step.share.append(ask)
+        step.decisions.append(DecisionOut(decision, tuple(robot_asks), ask))
+
+    def _store_ask(self, key: str, need: HelpNeed, now_s: float,
+                   step: Step) -> Optional[AskEvent]:
+        """Write the ask durably before anyone hears of it; None when the store did not
+        take it (refused, or the person opted out meanwhile)."""
+        ask = AskEvent(self.store.next_event_id(), key, now_s, need.kind, need.request_id)
+        try:
+            stored = self.store.append_asks([ask])
+        except Exception as exc:  # noqa: BLE001 - disk full, read-only, I/O error
+            step.notes.append(self.status.failed("append (ask)", exc))
+            return None
+        self.status.wrote(self.store)
+        if not stored:
+            step.note("warning", f"the store did not take the ask for {need.request_id!r} "
+                      f"(opted out meanwhile?): nobody asked")
+            return None
+        return ask
+
