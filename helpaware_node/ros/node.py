@@ -199,6 +199,8 @@ class HelpAwareNode(LifecycleNode):
             subs.append(self.create_subscription(GoalStatusArray, s.navigation_status_topic,
                                                  self._on_navigation_status, 10,
                                                  event_callbacks=sub_events))
+        self.input_watch = diag.WatchedInputs(      # input watchdog (issue 19)
+            {"people": subs[0], "task_status": subs[1]}, self.get_logger(), self.steady_s())
         timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
@@ -345,6 +347,7 @@ class HelpAwareNode(LifecycleNode):
     # ---------------------------------------------------------------- inputs
     def _on_people(self, msg: String) -> None:
         self.counters.received["people"] += 1
+        self.input_watch.note("people", self.steady_s())           # input watchdog (issue 19)
         try:
             doc = wire.decode("people", msg.data)
             people = wire.people_from(doc)
@@ -360,6 +363,7 @@ class HelpAwareNode(LifecycleNode):
 
     def _on_task_status(self, msg: String) -> None:
         self.counters.received["task_status"] += 1
+        self.input_watch.note("task_status", self.steady_s())      # input watchdog (issue 19)
         try:
             doc = wire.decode("task_status", msg.data)
             rid = doc["request_id"]
@@ -715,6 +719,8 @@ class HelpAwareNode(LifecycleNode):
                 values["store.counts_error"] = str(exc)[:200]
         elif self.store is not None:
             values["store.persons"] = len(self.store.keys())
+        level, message = self.input_watch.report(   # input watchdog (issue 19)
+            self.steady_s(), diag.silence_limits_s(self.params.settings), values, level, message)
         self.diag_pub.publish(diag.status_array(f"{self.get_name()}: decision",
                                                 self.get_fully_qualified_name(), stamp, values,
                                                 level, message))

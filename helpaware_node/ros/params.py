@@ -114,6 +114,14 @@ NODE_PARAMS = [
     ParamSpec("diagnostics_period_s", 1.0, "period of /diagnostics and markers", "seconds", 0.1, 60.0,
               read_only=True),
     ParamSpec("asking_enabled", True, "operator switch: false means always continue", "flag"),
+    # input watchdog (helpaware_node/input_watch.py, docs/integration.md "Respawn")
+    ParamSpec("people_silence_warn_s", 10.0,
+              "/diagnostics WARN, and one log line, when no people message arrived for longer "
+              "than this (0: no warning)", "seconds", 0.0, 86400.0),
+    ParamSpec("task_status_silence_warn_s", 0.0,
+              "the same for task_status; 0 by default because a behaviour layer speaks only at "
+              "help needs: set it when yours publishes at least this often", "seconds",
+              0.0, 86400.0),
 ]
 
 
@@ -138,6 +146,8 @@ class NodeSettings:
     max_asks_per_need: int
     diagnostics_period_s: float
     asking_enabled: bool
+    people_silence_warn_s: float
+    task_status_silence_warn_s: float
 
 
 def build(values: dict[str, Any], pairs: bool = True
