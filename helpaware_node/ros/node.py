@@ -35,6 +35,7 @@ from . import diagnostics as diag
 from . import markers as mk
 from .fleet import FleetLink, PrivacyRequests
 from .params import NodeParameters
+from .shm_files import StartupSweep                  # issue 19
 
 NODE_NAME = "helpaware_decider"
 NAV_FAILURE_KIND = "navigation_failure"
@@ -770,6 +771,7 @@ def resolve_store_path(store_path: str) -> str:
 
 
 def main(args=None) -> int:
+    shm = StartupSweep()   # shared memory of killed instances (issue 19): claimed before rclpy
     try:
         rclpy.init(args=args)
     except RCLError as exc:   # e.g. a parameter file rcl cannot parse: say so, no traceback
@@ -782,6 +784,7 @@ def main(args=None) -> int:
         # announcement never lands inside the executor's construction
         executor = SingleThreadedExecutor()
         node = HelpAwareNode()
+        shm.participant_up(node.get_logger())    # removed, and this process recorded (issue 19)
         executor.add_node(node)
         executor.spin()
     except (KeyboardInterrupt, ExternalShutdownException):
@@ -800,6 +803,7 @@ def main(args=None) -> int:
             except Exception:  # the context may already be gone after a signal
                 pass
         rclpy.try_shutdown()
+        shm.finish()           # what this process leaves, once its participant is gone (issue 19)
     return code
 
 
