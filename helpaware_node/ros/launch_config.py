@@ -17,6 +17,11 @@ EXECUTABLE = "helpaware_decider"
 NODE_NAME = "helpaware_decider"
 DEFAULT_PARAMS_FILE = "default.yaml"
 SITE_PARAMS_FILE = "hospital_night.yaml"
+# the robot's Fast DDS profile (docs/integration.md "Respawn"); set for the node unless the
+# caller's environment names a profile of its own
+MIDDLEWARE_PROFILE_FILE = "fastdds_robot.xml"
+PROFILE_ENV = "FASTDDS_DEFAULT_PROFILES_FILE"
+PROFILE_ENV_OLD = "FASTRTPS_DEFAULT_PROFILES_FILE"
 
 # (from, to): the node's relative topic names, remapped onto a typical robot's topics.
 # Identity by default; an integrator edits the right-hand side (see docs/integration.md).
@@ -47,6 +52,20 @@ def config_dir() -> str:
 
 def params_file(name: str = DEFAULT_PARAMS_FILE) -> str:
     return name if os.path.isabs(name) else os.path.join(config_dir(), name)
+
+
+def middleware_profile() -> str:
+    """The shipped Fast DDS profile for the whole robot ('' if it is not installed)."""
+    path = os.path.join(config_dir(), MIDDLEWARE_PROFILE_FILE)
+    return path if os.path.isfile(path) else ""
+
+
+def profile_environment(base: Mapping[str, str]) -> dict:
+    """What to add to `base` for the robot's middleware profile: nothing when `base` names a
+    profile of its own (or the file is not installed)."""
+    if base.get(PROFILE_ENV) or base.get(PROFILE_ENV_OLD) or not middleware_profile():
+        return {}
+    return {PROFILE_ENV: middleware_profile()}
 
 
 def executable() -> list[str]:
@@ -81,9 +100,11 @@ def command(**kwargs) -> list[str]:
 
 def start(stdout=None, stderr=None, env: Optional[Mapping[str, str]] = None,
           **kwargs) -> subprocess.Popen:
-    """Start the node as a separate process (inherits ROS_DOMAIN_ID and discovery range)."""
+    """Start the node as a separate process (inherits ROS_DOMAIN_ID and discovery range; the
+    middleware profile as `profile_environment` says)."""
+    base = dict(env if env is not None else os.environ)
     return subprocess.Popen(command(**kwargs), stdout=stdout, stderr=stderr,
-                            env=dict(env if env is not None else os.environ), text=True)
+                            env={**base, **profile_environment(base)}, text=True)
 
 
 def stop(proc: subprocess.Popen, timeout_s: float = 20.0) -> int:
