@@ -136,6 +136,19 @@ def test_a_file_created_again_since_the_record_is_not_removed(dirs):
     assert not (shm / (PORT + "_el")).exists() and not (shm / f"sem.{PORT}_mutex").exists()
 
 
+def test_a_port_whose_lock_file_went_at_a_clean_close_is_removed_too(dirs):
+    """Fast DDS removes a listener's lock file at a clean close but leaves the port while other
+    processes still map it (a killed writer never lets go): the rest of the set goes too, and
+    no lock file is left behind."""
+    shm, records = dirs
+    child = Child(shm, records)
+    child.kill()
+    os.unlink(shm / (PORT + "_el"))
+    outcome = shm_files.sweep_dead_instances(records)
+    assert str(shm / PORT) in outcome.removed and str(shm / f"sem.{PORT}_mutex") in outcome.removed
+    assert not any((shm / m).exists() for m in members())
+
+
 def test_the_claim_holds_the_locks_until_the_files_are_removed(dirs):
     """While claimed, a participant's own non-blocking lock fails, so it takes another port."""
     shm, records = dirs

@@ -297,16 +297,27 @@ def claim_dead_instances(directory: Optional[Path] = None,
 
 def _lock_if_same(path: Path, ident: Optional[dict]) -> Optional[int]:
     """An fd holding the exclusive flock of `path` if it is the recorded file and free;
-    -1 if a live process holds it; None if it is gone or another file now."""
+    -1 if a live process holds it; None if another file has the name now.  A lock file that is
+    gone (Fast DDS removes it at a clean close, and leaves the port itself while other
+    processes still map it) is made again and locked, as a listener would, so the rest of the
+    set can go without a participant taking the port meanwhile."""
     if ident is None:
         return None
     try:
         fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_CLOEXEC)
+        made = False
+    except FileNotFoundError:
+        try:
+            fd = os.open(path, os.O_RDONLY | os.O_CREAT | os.O_EXCL | os.O_NOFOLLOW | os.O_CLOEXEC,
+                         0o644)
+            made = True
+        except OSError:
+            return None           # someone made it first: theirs, not ours
     except OSError:
         return None
     try:
         st = os.fstat(fd)
-        if (st.st_dev, st.st_ino) != (ident.get("dev"), ident.get("ino")):
+        if not made and (st.st_dev, st.st_ino) != (ident.get("dev"), ident.get("ino")):
             os.close(fd)
             return None
         fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
