@@ -208,3 +208,53 @@ def test_the_command_lists_then_removes(dirs, capsys):
     out = capsys.readouterr().out
     assert "removed 5 file(s)" in out and "left by 1 dead instance(s)" in out
     assert not any((shm / m).exists() for m in members())
+
+
+def test_ports_that_a_live_process_maps_from_removed_files_are_kept_from_a_start(dirs, tmp_path):
+    """A publisher that still writes into a removed port file would not be heard by a new
+    listener on that port number: the start holds such ports until its participant exists."""
+    shm, records = dirs
+    proc = tmp_path / "proc"
+    (proc / "4242").mkdir(parents=True)
+    (proc / "4242" / "maps").write_text(
+        f"7f0000000000-7f0000010000 rw-s 00000000 00:1b 31098   {shm}/{PORT} (deleted)\n"
+        f"7f0000010000-7f0000020000 rw-s 00000000 00:1b 31099   {shm}/fastdds_port7413\n"
+        f"7f0000020000-7f0000030000 rw-s 00000000 00:1b 31100   {shm}/{SEGMENT} (deleted)\n")
+    (proc / "self").mkdir()        # not a pid: skipped
+    assert shm_files.stale_port_names(shm, proc) == {PORT}
+    claim = shm_files.claim_dead_instances(records, hold_stale_ports=True, shm_dir=shm,
+                                           proc=proc)
+    assert claim.outcome.ports_avoided == [PORT] and (shm / (PORT + "_el")).exists()
+    fd = os.open(shm / (PORT + "_el"), os.O_RDONLY)
+    try:
+        with pytest.raises(BlockingIOError):       # a starting participant cannot take it
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    finally:
+        os.close(fd)
+    claim.remove()
+    assert not (shm / (PORT + "_el")).exists()     # the lock file made for the hold is gone
+    assert not (shm / "fastdds_port7413_el").exists()
+
+
+def test_a_start_holds_the_dead_files_until_its_participant_is_up(dirs, monkeypatch):
+    """StartupSweep: claimed before rclpy starts, removed once the participant exists; with
+    HELPAWARE_SHM_PORT_HOLD=0 removed at once and nothing held (the bench's comparison)."""
+    shm, records = dirs
+    child = Child(shm, records)
+    child.kill()
+    start = shm_files.StartupSweep(records)
+    assert all((shm / m).exists() for m in members())     # held, not yet removed
+    fd = os.open(shm / (PORT + "_el"), os.O_RDONLY)
+    try:
+        with pytest.raises(BlockingIOError):
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    finally:
+        os.close(fd)
+    start.participant_up()
+    assert not any((shm / m).exists() for m in members())
+
+    child = Child(shm, records)
+    child.kill()
+    monkeypatch.setenv(shm_files.HOLD_ENV, "0")
+    start = shm_files.StartupSweep(records)
+    assert start.claim is None and not any((shm / m).exists() for m in members())

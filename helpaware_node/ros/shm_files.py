@@ -6,7 +6,7 @@ Fast DDS (under rmw_fastrtps_cpp) gives every participant, in /dev/shm:
   `sem.fastdds_port<N>_mutex`.
 The owner holds an exclusive flock on each `_el` file for as long as it lives.  A SIGKILLed
 process loses its locks (the kernel closes its files), but nothing removes the files: about
-0.6 MB per kill.  Fast DDS's own rule for a dead set is "its `_el` lock is free"; its cleaner
+0.65 MB per kill.  Fast DDS's own rule for a dead set is "its `_el` lock is free"; its cleaner
 (`fastdds shm clean`, in <prefix>/tools/fastdds of the wheels) applies the rule to every set on
 the machine, lets go of the lock before it deletes, and its command does not start in a venv
 without psutil.  This module applies the same rule, more narrowly:
@@ -17,14 +17,16 @@ without psutil.  This module applies the same rule, more narrowly:
 2. `claim_dead_instances()` (the next start, or `helpaware shm-sweep`) reads the records of
    processes that are gone and takes the `_el` lock of each of their sets that is still the
    recorded file (same device and inode: a port that another participant re-created since is
-   a new file, and not ours; tmpfs numbers its inodes from a counter, so a number is not
-   given to a second file while the machine runs) and that nobody holds.  A set whose lock is held by a live
-   process is left alone.
+   a new file, and not ours; tmpfs numbers its inodes from a counter, so a number is not given
+   to a second file while the machine runs) and that nobody holds.  A set whose lock a live
+   process holds is left alone.
 3. `Claim.remove()` unlinks the claimed files while their locks are held, so a participant that
    starts at that moment fails its own non-blocking lock and takes another port.  The start-up
    holds the claim until the node's participant exists, so the new participant does not take
    the dead instance's port numbers, whose old files the long-lived publishers still have
-   mapped (docs/integration.md, "Respawn").
+   mapped; it holds as well every port that a live process maps from a removed file
+   (`stale_port_names`): a listener there would not hear that process (docs/integration.md,
+   "Respawn").
 No rclpy import: the files, locks and /proc only.  Linux only (elsewhere nothing is recorded).
 """
 from __future__ import annotations
@@ -40,8 +42,10 @@ from typing import Optional
 
 SHM_DIR = Path("/dev/shm")
 RECORD_DIR_NAME = "shm_owners"
+HOLD_ENV = "HELPAWARE_SHM_PORT_HOLD"   # "0": remove before the start, hold no port (diagnosis)
 SEGMENT_LOCK_RE = re.compile(r"^fastdds_[0-9a-f]{16}_el$")
 PORT_LOCK_RE = re.compile(r"^fastdds_port\d{1,5}_el$")
+PORT_RE = re.compile(r"^fastdds_port\d{1,5}$")
 
 
 def records_dir() -> Path:
@@ -208,19 +212,45 @@ class Outcome:
     replaced: list[str] = field(default_factory=list)      # paths re-created by someone else
     records_done: list[str] = field(default_factory=list)  # records of dead processes finished
     live_records: list[str] = field(default_factory=list)  # records of running processes
+    ports_avoided: list[str] = field(default_factory=list)  # stale-mapped ports held at a start
 
     def summary(self) -> str:
+        avoided = (f"; kept off {len(self.ports_avoided)} port(s) that live processes still map "
+                   f"from removed files" if self.ports_avoided else "")
         return (f"removed {len(self.removed)} file(s), {self.removed_bytes / 1e6:.2f} MB, left by "
                 f"{len(self.records_done)} dead instance(s); {len(self.in_use)} set(s) in use by "
-                f"a live process left alone; {len(self.live_records)} running instance(s)")
+                f"a live process left alone; {len(self.live_records)} running instance(s)"
+                + avoided)
+
+
+@dataclass
+class PortHold:
+    """A port number kept from the starting participant: the lock of `fastdds_port<N>_el`."""
+    path: Path
+    fd: int
+    made: bool              # the lock file did not exist: made here, removed on release
+
+    def release(self) -> None:
+        try:
+            if self.made:
+                st = os.fstat(self.fd)
+                now = _identity(self.path)
+                if now is not None and (now["dev"], now["ino"]) == (st.st_dev, st.st_ino):
+                    os.unlink(self.path)
+        except OSError:
+            pass
+        finally:
+            os.close(self.fd)
 
 
 @dataclass
 class Claim:
-    """The locks of the dead instances' sets, held until `remove()` (or `release()`)."""
+    """The locks of the dead instances' sets, held until `remove()` (or `release()`), and of
+    the ports with stale mappings (`stale_port_names`), held until then too."""
     sets: list[ClaimedSet]
     records: list[Record]
     outcome: Outcome
+    holds: list[PortHold] = field(default_factory=list)
 
     def remove(self) -> Outcome:
         """Unlink every claimed file that is still the recorded one, then let go of the locks
@@ -245,6 +275,7 @@ class Claim:
                 pass
             self.outcome.records_done.append(rec.path.name)
         self.records = []
+        self._let_go_of_ports()
         return self.outcome
 
     def release(self) -> None:
@@ -252,6 +283,12 @@ class Claim:
         for claimed in self.sets:
             os.close(claimed.fd)
         self.sets, self.records = [], []
+        self._let_go_of_ports()
+
+    def _let_go_of_ports(self) -> None:
+        for hold in self.holds:
+            hold.release()
+        self.holds = []
 
     def _unlink_if_same(self, path: Path, ident: dict) -> None:
         name = str(path)
@@ -272,10 +309,13 @@ class Claim:
 
 
 def claim_dead_instances(directory: Optional[Path] = None,
-                         also_pid: Optional[int] = None) -> Claim:
+                         also_pid: Optional[int] = None, hold_stale_ports: bool = False,
+                         shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> Claim:
     """Lock the sets that dead instances recorded and nobody holds (see the module text).
     `also_pid`: take that process's record as finished too (this process, at its clean exit,
-    after its participant is gone: ports other processes still map outlive their owner)."""
+    after its participant is gone: ports other processes still map outlive their owner).
+    `hold_stale_ports`: also keep every port in `shm_dir` that a live process has mapped from a
+    removed file (a participant about to start must not listen there; `stale_port_names`)."""
     records, _ = read_records(directory)
     outcome = Outcome()
     claimed, dead = [], []
@@ -292,7 +332,65 @@ def claim_dead_instances(directory: Optional[Path] = None,
                 outcome.in_use.append(lock_name)
                 continue
             claimed.append(ClaimedSet(rec.shm_dir, lock_name, got, members))
-    return Claim(claimed, dead, outcome)
+    claim = Claim(claimed, dead, outcome)
+    if hold_stale_ports:
+        taken = {c.shm_dir / c.lock_name for c in claimed}
+        for name in sorted(stale_port_names(shm_dir, proc)):
+            path = shm_dir / f"{name}_el"
+            if path not in taken:
+                hold = _hold_port(path)
+                if hold is not None:
+                    claim.holds.append(hold)
+                    outcome.ports_avoided.append(name)
+    return claim
+
+
+def stale_port_names(shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> set[str]:
+    """Ports (`fastdds_port<N>`) that some live process still has mapped from a file that was
+    removed: a publisher of a participant that died and whose port was removed or reset since.
+    It writes into that old mapping until its middleware notices (or, when the dead listener
+    was not waiting, perhaps never), so a new listener on port N would not hear it.  Read from
+    /proc/<pid>/maps of every process this user may read."""
+    prefix = f"{shm_dir}/fastdds_port"
+    names = set()
+    try:
+        pids = [p for p in os.listdir(proc) if p.isdigit()]
+    except OSError:
+        return names
+    for pid in pids:
+        try:
+            with open(proc / pid / "maps", encoding="utf-8", errors="replace") as fh:
+                for line in fh:
+                    if prefix in line and line.rstrip().endswith("(deleted)"):
+                        path = line.split(None, 5)[5].rsplit(" (deleted)", 1)[0].strip()
+                        name = os.path.basename(path)
+                        if PORT_RE.match(name):
+                            names.add(name)
+        except (OSError, IndexError):
+            continue
+    return names
+
+
+def _hold_port(path: Path) -> Optional[PortHold]:
+    """Take the lock of a port's `_el` file (made if missing); None if a listener has it."""
+    made = False
+    try:
+        fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_CLOEXEC)
+    except FileNotFoundError:
+        try:
+            fd = os.open(path, os.O_RDONLY | os.O_CREAT | os.O_EXCL | os.O_NOFOLLOW | os.O_CLOEXEC,
+                         0o644)
+            made = True
+        except OSError:
+            return None
+    except OSError:
+        return None
+    try:
+        fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+    except OSError:
+        os.close(fd)
+        return None
+    return PortHold(path, fd, made)
 
 
 def _lock_if_same(path: Path, ident: Optional[dict]) -> Optional[int]:
@@ -339,8 +437,13 @@ class StartupSweep:
 
     def __init__(self, directory: Optional[Path] = None) -> None:
         self.directory = records_dir() if directory is None else Path(directory)
+        hold = os.environ.get(HOLD_ENV, "1") != "0"
         try:
-            self.claim: Optional[Claim] = claim_dead_instances(self.directory)
+            self.claim: Optional[Claim] = claim_dead_instances(self.directory,
+                                                               hold_stale_ports=hold)
+            if not hold:        # removed before the participant starts: nothing is held
+                self.claim.remove()
+                self.claim = None
         except Exception:  # noqa: BLE001 - a sweep must never stop the node from starting
             self.claim = None
 
@@ -353,7 +456,7 @@ class StartupSweep:
             if logger is not None:
                 logger.warning(f"shared-memory record not written: {exc}")
             return
-        if logger is not None and (outcome.removed or outcome.in_use):
+        if logger is not None and (outcome.removed or outcome.in_use or outcome.ports_avoided):
             logger.info(f"shared memory of killed instances: {outcome.summary()}")
 
     def finish(self) -> None:
