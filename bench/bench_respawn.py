@@ -13,12 +13,14 @@ does), on one SQLite store for the whole run.
   long-lived process.
 Variants, interleaved round by round so that all see the same machine:
 - as shipped: the node as launch_config starts it (the robot's middleware profile
-  config/fastdds_robot.xml; at start-up it holds the dead instance's shared-memory ports so
-  its participant takes fresh ones); the long-lived process on the middleware's defaults;
+  config/fastdds_robot.xml; at start-up it holds the dead instance's shared-memory ports and
+  those live processes still map from removed files, so its participant takes fresh ones);
+  the long-lived process on the middleware's defaults;
 - whole robot on the profile: the long-lived process on config/fastdds_robot.xml too;
 - no profile anywhere: both on the middleware's defaults;
-- swept before the restart: as shipped, but the dead instance's files are removed right after
-  the kill, so the node has nothing to hold and takes the dead instance's port numbers again.
+- no port hold: as shipped, but with HELPAWARE_SHM_PORT_HOLD=0 the node removes the dead
+  instance's files before its participant starts and holds no port, so it takes the dead
+  instance's port numbers again (the node before this work, files aside).
 Prints, for the shipped variant, the median, p95 and maximum time from process start to each
 phase: the DDS participant up (the node's shared-memory segment created: Python start, imports,
 rclpy init), node configured (its `configured:` log line: parameters, store, topics), matched
@@ -52,14 +54,14 @@ loopback_own_domain()
 sys.path.insert(0, os.path.join(HERE, "..", "test", "reliability"))
 from long_lived_inputs import LongLivedProcess  # noqa: E402  (the robot's long-lived side)
 
-from helpaware_node.ros.shm_files import SEGMENT_LOCK_RE  # noqa: E402
+from helpaware_node.ros import shm_files  # noqa: E402
 
 NAMESPACE = "/respawn_bench"
 PROFILE_FILE = "fastdds_robot.xml"
 PROFILE_ENV = "FASTDDS_DEFAULT_PROFILES_FILE"
 DECISION_DEADLINE_S = 30.0      # a start that heard nothing by then counts as deaf
-# before a clean start: a participant met within about a second of its own start is often
-# not matched until its next periodic announcement (seen here: 3.6 s instead of 0.6 s)
+# before a clean start: a participant met within about a second of its own start was often
+# not matched until its next periodic announcement (seen while writing this benchmark)
 SETTLE_S = 3.0
 CONFIGURED_RE = re.compile(r"\[INFO\] \[(\d+\.\d+)\] \[[^\]]*\]: configured:")
 PHASES = (("participant", "DDS participant up"), ("configured", "node configured"),
@@ -91,7 +93,8 @@ def participant_up_s(pid: int) -> Optional[float]:
                 target = os.readlink(f"/proc/{pid}/fd/{fd}")
             except OSError:
                 continue
-            if target.startswith("/dev/shm/") and SEGMENT_LOCK_RE.match(target[len("/dev/shm/"):]):
+            if target.startswith("/dev/shm/") and shm_files.SEGMENT_LOCK_RE.match(
+                    target[len("/dev/shm/"):]):
                 times.append(os.stat(target).st_mtime)
     except OSError:
         return None
@@ -116,7 +119,8 @@ def run_start(launch_config, inputs: LongLivedProcess, env: dict, tmp: str, tag:
         spawn = time.time()
         proc = launch_config.start(stdout=log, stderr=subprocess.STDOUT, env=env,
                                    namespace=NAMESPACE,
-                                   overrides={"store_path": store_path, "robot_id": "bench-respawn"})
+                                   overrides={"store_path": store_path,
+                                              "robot_id": "bench-respawn"})
     at = {}
     doc = inputs.wait_probe(tag, DECISION_DEADLINE_S)
     if doc is not None:
@@ -179,7 +183,8 @@ STEPS = (("python", "process start to DDS participant (Python, imports, rclpy in
 
 
 def step_table(starts: list[Start]) -> list[str]:
-    lines = [f"{'where the time goes, s per start':64}  {'clean':>7}  {'respawn':>7}  {'respawn':>7}",
+    lines = [f"{'where the time goes, s per start':64}  {'clean':>7}  {'respawn':>7}  "
+             f"{'respawn':>7}",
              f"{'':64}  {'median':>7}  {'median':>7}  {'p95':>7}"]
     split = {k: [t for t in (step_times(s) for s in starts if s.kind == k) if t]
              for k in ("clean", "respawn")}
@@ -221,18 +226,19 @@ DEFAULTS_PROFILE = ('<?xml version="1.0" encoding="UTF-8" ?>\n<dds xmlns="http:/
 
 
 def variants(profile: str, defaults_profile: str) -> dict:
-    """name -> (environment of the node, of the long-lived process, sweep right after a kill,
-    share of the respawns per round).  Every process gets the variable, so none falls back
-    to what launch_config would choose."""
+    """name -> (environment of the node, of the long-lived process, share of the respawns per
+    round).  Every process gets the profile variable, so none falls back to what
+    launch_config would choose."""
     with_profile = {PROFILE_ENV: profile}
     without = {PROFILE_ENV: defaults_profile}
     return {
         # the node as launch_config starts it: the robot profile; the rest of the robot as is
-        "as shipped": (with_profile, without, False, 1.0),
-        "whole robot on the profile": (with_profile, with_profile, False, 0.6),
-        "no profile anywhere": (without, without, False, 0.6),
-        # nothing of the dead instance left to hold: the node takes its port numbers again
-        "swept before the restart": (with_profile, without, True, 0.6),
+        "as shipped": (with_profile, without, 1.0),
+        "whole robot on the profile": (with_profile, with_profile, 0.6),
+        "no profile anywhere": (without, without, 0.6),
+        # the dead instance's files removed before the participant starts, no port held: the
+        # node takes the dead instance's port numbers again
+        "no port hold": (dict(with_profile, **{shm_files.HOLD_ENV: "0"}), without, 0.6),
     }
 
 
@@ -246,7 +252,7 @@ def main() -> int:
                     help="middleware profile of the 'robot profile' variant")
     ap.add_argument("--seed", type=int, default=19)
     args = ap.parse_args()
-    from helpaware_node.ros import launch_config, shm_files
+    from helpaware_node.ros import launch_config
     rng = random.Random(args.seed)
     tmp_root = tempfile.mkdtemp(prefix="bench_respawn_")
     with open(os.path.join(tmp_root, "defaults.xml"), "w") as fh:
@@ -260,9 +266,8 @@ def main() -> int:
     with tempfile.TemporaryDirectory(dir=tmp_root) as tmp:
         base_env = dict(os.environ, ROS_HOME=os.path.join(tmp, "ros_home"))
         store_path = os.path.join(tmp, "beliefs.sqlite3")
-        node_records = shm_files.Path(base_env["ROS_HOME"], "helpaware", shm_files.RECORD_DIR_NAME)
         for rnd in range(args.rounds):          # rounds interleave the variants: same machine
-            for name, (node_extra, inputs_extra, sweep_first, share) in table.items():
+            for name, (node_extra, inputs_extra, share) in table.items():
                 env = dict(base_env, **node_extra)
                 inputs = LongLivedProcess(NAMESPACE, dict(base_env, **inputs_extra))
                 time.sleep(SETTLE_S)     # a robot's perception has been up a while
@@ -276,8 +281,6 @@ def main() -> int:
                         time.sleep(rng.uniform(0.3, 1.3))   # the kill lands anywhere in a cycle
                         os.kill(proc.pid, signal.SIGKILL)
                         proc.wait(timeout=30)
-                        if sweep_first:
-                            shm_files.sweep_dead_instances(node_records)
                         start, proc = run_start(launch_config, inputs, env, tmp,
                                                 f"r{rnd}-{len(starts)}", "respawn", name,
                                                 store_path)
