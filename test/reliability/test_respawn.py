@@ -109,8 +109,9 @@ def test_every_restart_answers_and_no_shared_memory_of_the_killed_is_left(tmp_pa
             proc = start_node(store, "respawn-robot", NAMESPACE, log)
             inputs.probe(f"run{run}")
             answer = inputs.wait_probe(f"run{run}", ANSWER_DEADLINE_S)
-            assert answer is not None, (f"start {run} answered no help need within "
-                                        f"{ANSWER_DEADLINE_S:.0f} s; log:\n{log.read_text()[-3000:]}")
+            assert answer is not None, (
+                f"start {run} answered no help need within {ANSWER_DEADLINE_S:.0f} s; "
+                f"log:\n{log.read_text()[-3000:]}")
             assert answer["action"] in ("ask", "continue")
             if run == 0 and "FASTDDS_DEFAULT_PROFILES_FILE" not in os.environ:
                 # started as the launch file starts it: on the robot's middleware profile
