@@ -5,6 +5,17 @@ VENV   := .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.helpaware-installed
 
+# ROS 2 launch, launch_ros and launch_testing sources, for machines without a ROS install (CI,
+# developers with ../shared). Installed into the venv once; without the folder, the launch
+# tests skip and say why.
+ROS_LAUNCH_SRC   := ../shared/vendor/ros-launch
+ROS_LAUNCH_STAMP := $(VENV)/.ros-launch-installed
+ifneq ($(wildcard $(ROS_LAUNCH_SRC)/install.sh),)
+TEST_SETUP := $(STAMP) $(ROS_LAUNCH_STAMP)
+else
+TEST_SETUP := $(STAMP)
+endif
+
 # DDS traffic stays on loopback, and each run gets its own domain so parallel runs do not
 # hear each other. Set here on purpose: never inherited from the caller.
 export ROS_AUTOMATIC_DISCOVERY_RANGE := LOCALHOST
@@ -24,11 +35,16 @@ $(STAMP): requirements.txt setup.py
 	for f in $(VENV)/lib/helpaware_node/*; do ln -sf ../lib/helpaware_node/$$(basename $$f) $(VENV)/bin/; done
 	touch $(STAMP)
 
+# after the requirements (install.sh needs them); again whenever they or the sources change
+$(ROS_LAUNCH_STAMP): $(STAMP) $(wildcard $(ROS_LAUNCH_SRC)/install.sh $(ROS_LAUNCH_SRC)/*/setup.py)
+	$(ROS_LAUNCH_SRC)/install.sh $(PY)
+	touch $(ROS_LAUNCH_STAMP)
+
 demo: $(STAMP)
 	@echo "ROS_DOMAIN_ID=$(ROS_DOMAIN_ID) ROS_AUTOMATIC_DISCOVERY_RANGE=$(ROS_AUTOMATIC_DISCOVERY_RANGE)"
 	$(PY) -m helpaware_node.cli demo
 
-test: $(STAMP)
+test: $(TEST_SETUP)
 	$(PY) -m pytest
 
 bench: $(STAMP)

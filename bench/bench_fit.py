@@ -25,7 +25,7 @@ from helpaware_node.fit.progress import Progress
 from helpaware_node.fit.simulate_outcomes import simulate
 from helpaware_node.fit.site_fit import fit_site
 from helpaware_node.fit.site_likelihood import SiteLikelihood, SiteParams
-from helpaware_node.tools.table import render_table
+from helpaware_node.text_table import render_table
 
 TRUTH = SiteParams(2.0, 3.0, 1.5, 0.7, 0.6, 0.7)
 

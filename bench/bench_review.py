@@ -21,7 +21,7 @@ import time
 
 def child_floor(bag: str) -> dict:
     from rosbags.rosbag2 import Reader
-    from helpaware_node.tools.bagio import typestore
+    from helpaware_node.bag import typestore
     store = typestore()
     t0 = time.perf_counter()
     n = 0
@@ -35,7 +35,7 @@ def child_floor(bag: str) -> dict:
 def child_review(bag: str, out: str) -> dict:
     t0 = time.perf_counter()
     import matplotlib  # noqa: F401  (counted: the report needs it)
-    from helpaware_node.tools import review
+    from helpaware_node.review import report as review
     summary = review.build(bag, out)
     return {"seconds": time.perf_counter() - t0, "messages": sum(summary["messages"].values())}
 
@@ -53,7 +53,7 @@ def main() -> int:
         print(json.dumps(res))
         return 0
 
-    from helpaware_node.tools.review_sample import write_sample_bag
+    from helpaware_node.review.sample import write_sample_bag
     with tempfile.TemporaryDirectory(prefix="bench-review-") as tmp:
         bag = os.path.join(tmp, "bag")
         per_need = 6   # about: decision, 2 task_status, outcome, markers, diagnostics, people

@@ -14,6 +14,7 @@ SUBCOMMANDS = {
     "fit": ("tools.fit", "fit the site constants from logged outcomes; writes a parameter file"),
     "store": ("tools.store_admin", "inspect the belief store; opt out, forget, compact, export CSV"),
     "simulate": ("tools.simulate", "run every policy on a simulated site; table, JSON, plots"),
+    "privacy": ("tools.privacy", "opt out or erase a person on every robot (signed requests)"),
     "shm-sweep": ("tools.shm_sweep", "remove the shared-memory files that killed decision nodes left"),
 }
 

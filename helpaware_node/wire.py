@@ -21,6 +21,7 @@ from .core.belief import Belief
 from .core.model import MAX_ASKS_CAP, DecisionConfig, SiteModel, from_plain, to_plain
 from .core.person import Result
 from .core.policy import HOUR_S, Candidate, Decision, HelpNeed
+from .core.preview import describe, quoted, short_number
 
 VERSION = 1
 MAX_DOCUMENT_BYTES = 1_000_000
@@ -184,10 +185,6 @@ SPECS: dict[str, F] = {"people": PEOPLE, "task_status": TASK_STATUS, "outcome": 
                        "decision": DECISION}
 
 
-def _fmt(v: float) -> str:
-    return "inf" if v >= BIG else ("-inf" if v <= -BIG else f"{v:g}")
-
-
 def _check(spec: F, value: Any, path: str) -> None:
     if value is None:
         if spec.nullable:
@@ -196,7 +193,7 @@ def _check(spec: F, value: Any, path: str) -> None:
     k = spec.kind
     if k == "string":
         if not isinstance(value, str):
-            raise WireError(f"{path}: expected a string, got {type(value).__name__}")
+            raise WireError(f"{path}: expected a string, got {describe(value)}")
         if not spec.min_len <= len(value) <= spec.max_len:
             raise WireError(f"{path}: length {len(value)} is outside the allowed "
                             f"[{spec.min_len}, {spec.max_len}] characters")
@@ -206,30 +203,28 @@ def _check(spec: F, value: Any, path: str) -> None:
                             f"character {at})")
     elif k in ("number", "integer"):
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise WireError(f"{path}: expected a number, got {type(value).__name__}")
+            raise WireError(f"{path}: expected a number, got {describe(value)}")
         try:
             v = float(value)
         except OverflowError:   # an integer literal beyond any float, e.g. 1 then 400 zeros
             v = math.inf if value > 0 else -math.inf
         if k == "integer" and math.isfinite(v) and not v.is_integer():
-            raise WireError(f"{path}: expected a whole number, got {value!r}")
+            raise WireError(f"{path}: expected a whole number, got {short_number(value)}")
         lo_ok = v > spec.low if spec.low_open else v >= spec.low
         if not math.isfinite(v) or not lo_ok or v > spec.high:
             lb = "(" if spec.low_open else "["
-            shown = repr(value) if math.isfinite(v) or not isinstance(value, int) else (
-                f"an integer of {len(str(abs(value)))} digits")
-            raise WireError(f"{path}: {shown} is outside the allowed range "
-                            f"{lb}{_fmt(spec.low)}, {_fmt(spec.high)}]")
+            raise WireError(f"{path}: {short_number(value)} is outside the allowed range "
+                            f"{lb}{spec.low:g}, {spec.high:g}]")   # the real limits, e.g. 1e+15
     elif k == "boolean":
         if not isinstance(value, bool):
-            raise WireError(f"{path}: expected true or false, got {type(value).__name__}")
+            raise WireError(f"{path}: expected true or false, got {describe(value)}")
     elif k == "enum":
         if isinstance(value, bool) or value not in spec.choices:
             allowed = ", ".join(str(c) for c in spec.choices)
-            raise WireError(f"{path}: {str(value)[:40]!r} is not one of {allowed}")
+            raise WireError(f"{path}: {quoted(value)} is not one of {allowed}")
     elif k == "array":
         if not isinstance(value, list):
-            raise WireError(f"{path}: expected an array, got {type(value).__name__}")
+            raise WireError(f"{path}: expected an array, got {describe(value)}")
         if not spec.min_len <= len(value) <= spec.max_len:
             raise WireError(f"{path}: {len(value)} items is outside the allowed "
                             f"[{spec.min_len}, {spec.max_len}]")
@@ -237,13 +232,15 @@ def _check(spec: F, value: Any, path: str) -> None:
             _check(spec.items, item, f"{path}[{i}]")
     elif k == "any_object":
         if not isinstance(value, dict):
-            raise WireError(f"{path}: expected an object, got {type(value).__name__}")
+            raise WireError(f"{path}: expected an object, got {describe(value)}")
     elif k == "object":
         if not isinstance(value, dict):
-            raise WireError(f"{path}: expected an object, got {type(value).__name__}")
-        unknown = sorted(set(value) - set(spec.fields))
-        if unknown:
-            raise WireError(f"{path or 'document'}: unknown field {str(unknown[0])[:40]!r} "
+            raise WireError(f"{path}: expected an object, got {describe(value)}")
+        unknown = [name for name in value if name not in spec.fields]
+        if unknown:   # the first by name; a caller's dict may hold other keys: those last
+            first = min(unknown, key=lambda name: (not isinstance(name, str),
+                                                   name if isinstance(name, str) else ""))
+            raise WireError(f"{path or 'document'}: unknown field {quoted(first)} "
                             f"(allowed: {', '.join(spec.fields)})")
         for name, sub in spec.fields.items():
             sub_path = f"{path}.{name}" if path else name
@@ -258,9 +255,9 @@ def validate(name: str, document: Any) -> dict:
     """Check a decoded document against its spec; returns it or raises WireError."""
     spec = SPECS.get(name)
     if spec is None:
-        raise WireError(f"doc: unknown document {name!r} (allowed: {', '.join(SPECS)})")
+        raise WireError(f"doc: unknown document {quoted(name)} (allowed: {', '.join(SPECS)})")
     if not isinstance(document, dict):
-        raise WireError(f"{name}: expected a JSON object, got {type(document).__name__}")
+        raise WireError(f"{name}: expected a JSON object, got {describe(document)}")
     _check(spec, document, "")
     if name == "task_status" and document["state"] == "open" and "kind" not in document:
         raise WireError("kind: required when state is open")
@@ -293,7 +290,7 @@ def _refuse_duplicates(pairs: list) -> dict:
         seen: set = set()
         for name, _ in pairs:
             if name in seen:
-                raise WireError(f"document: duplicate field {str(name)[:40]!r} in one JSON object")
+                raise WireError(f"document: duplicate field {quoted(name)} in one JSON object")
             seen.add(name)
     return obj
 
@@ -306,17 +303,22 @@ def decode(name: str, text: Any) -> dict:
         except UnicodeDecodeError as exc:
             raise WireError(f"document: not UTF-8 ({exc.reason})") from None
     if not isinstance(text, str):
-        raise WireError(f"document: expected text, got {type(text).__name__}")
+        raise WireError(f"document: expected text, got {describe(text)}")
     if len(text) > MAX_DOCUMENT_BYTES or len(text.encode("utf-8", "replace")) > MAX_DOCUMENT_BYTES:
         raise WireError(f"document: larger than the allowed {MAX_DOCUMENT_BYTES} bytes")
+    return validate(name, parse_json(text))
+
+
+def parse_json(text: str) -> Any:
+    """JSON text to values, strictly: NaN/Infinity and repeated names in one object refused
+    (WireError, "document: ..."); also used for the signed fleet documents."""
     try:
-        data = json.loads(text, parse_constant=_refuse_constant,
+        return json.loads(text, parse_constant=_refuse_constant,
                           object_pairs_hook=_refuse_duplicates)
     except WireError:
         raise
     except (ValueError, RecursionError) as exc:
         raise WireError(f"document: not valid JSON ({str(exc)[:80]})") from None
-    return validate(name, data)
 
 
 def encode(name: str, document: Mapping[str, Any]) -> str:
@@ -484,7 +486,7 @@ def replay_inputs(document: Mapping[str, Any]
     if isinstance(document, (str, bytes)):
         document = decode("decision", document)
     else:
-        validate("decision", dict(document))
+        validate("decision", dict(document) if isinstance(document, Mapping) else document)
     n = document["need"]
     need = HelpNeed(request_id=n["request_id"], kind=n["kind"], opened_at_s=n["opened_at_s"],
                     urgency=n["urgency"], continue_cost_s=n["continue_cost_s"],
@@ -500,7 +502,7 @@ def replay_inputs(document: Mapping[str, Any]
 
 def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionConfig]:
     """The SiteModel and DecisionConfig in force at the decision (from its `parameters`)."""
-    params = document.get("parameters")
+    params = document.get("parameters") if isinstance(document, Mapping) else None
     if not isinstance(params, dict):
         raise WireError("parameters: absent from this decision document")
     try:

@@ -79,6 +79,19 @@ class Rig:
         self.outcome_pub.publish(String(data=wire.outcome_document(request_id, person_id, result)))
         assert self.spin_until(lambda: self.node.counters.received["outcome"] > n)
 
+    def send_privacy(self, action, person_id):
+        """A signed opt_out or forget request for a perceived id, as `helpaware privacy`
+        sends it (signed with the node's own site key file)."""
+        from helpaware_node.fleet_documents import PrivacyAct, encode_document
+        from helpaware_node.ros.privacy import PRIVACY_QOS
+        if getattr(self, "_privacy_pub", None) is None:
+            self._privacy_pub = self.driver.create_publisher(String, self.node.privacy.topic,
+                                                             PRIVACY_QOS)
+            assert self.spin_until(lambda: self._privacy_pub.get_subscription_count() > 0)
+        act = PrivacyAct.new(action, self.node.store.key_for(person_id), "console@test")
+        self._privacy_pub.publish(String(data=encode_document(action, act, self.node.fleet.keys)))
+        return act
+
     def close(self):
         self.executor.shutdown()
         self.node.destroy_node()

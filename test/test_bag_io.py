@@ -5,7 +5,7 @@ import pytest
 from rosbags.rosbag2 import Reader, Writer
 from rosbags.rosbag2.enums import StoragePlugin
 
-from helpaware_node.tools.bagio import (BagReadError, BagSource, BagWriter, STRING_TYPE,
+from helpaware_node.bag import (BagReadError, BagSource, BagWriter, STRING_TYPE,
                                         deserialize_string, serialize_string, typestore)
 
 
@@ -96,7 +96,7 @@ def test_short_string_payload_refused():
 
 def test_record_scan_of_an_intact_file_agrees_with_rosbags(tmp_path):
     # two independent readers of the same MCAP: rosbags' indexed reader and our record scan
-    from helpaware_node.tools.bagio import McapSalvage
+    from helpaware_node.bag import McapSalvage
     mcap = _big_bag(tmp_path / "bag", n=30000)
     scan = McapSalvage(mcap)
     scanned = [(t, m, ts, bytes(d)) for t, m, ts, d in scan.records()]

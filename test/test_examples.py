@@ -1,32 +1,21 @@
-"""The two example nodes of docs/integration.md work against the decision node."""
-import importlib.util
-import os
-
+"""The example stand-ins of docs/integration.md (helpaware_node/ros/examples/) work against the
+decision node, in-process as users' own tests would start them."""
 import pytest
-from std_msgs.msg import String
+from rclpy.parameter import Parameter
 
-from helpaware_node import wire
 from helpaware_node.core.belief import Belief
+from helpaware_node.ros.examples import AskDelivery, BehaviourLayer, PerceptionStandIn
+from helpaware_node.ros.examples.perception import parse_people
 
 from node_harness import Rig
-
-EXAMPLES = os.path.join(os.path.dirname(__file__), "..", "examples")
-
-
-def _load(name):
-    spec = importlib.util.spec_from_file_location(name, os.path.join(EXAMPLES, f"{name}.py"))
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    return mod
 
 
 def test_behaviour_layer_and_ask_delivery_close_the_loop(ctx):
     ns = "/examples"
     rig = Rig(ctx, namespace=ns)
-    behaviour = _load("behaviour_layer").BehaviourLayer(context=ctx, namespace=ns)
+    behaviour = BehaviourLayer(context=ctx, namespace=ns)
     answers = {"nurse-a": "helped"}
-    delivery = _load("ask_delivery").AskDelivery(lambda pid: answers.get(pid, "declined"),
-                                                 context=ctx, namespace=ns)
+    delivery = AskDelivery(lambda pid: answers.get(pid, "declined"), context=ctx, namespace=ns)
     rig.executor.add_node(behaviour)
     rig.executor.add_node(delivery)
     try:
@@ -48,3 +37,38 @@ def test_behaviour_layer_and_ask_delivery_close_the_loop(ctx):
         behaviour.destroy_node()
         delivery.destroy_node()
         rig.close()
+
+
+def test_perception_stand_in_shows_its_people_to_the_node(ctx):
+    ns = "/examples_perception"
+    rig = Rig(ctx, namespace=ns)
+    people = ["nurse-x,1.5,0.25,charting", "porter-y,4.0,0.0,"]
+    seer = PerceptionStandIn(context=ctx, namespace=ns, parameter_overrides=[
+        Parameter("people", value=people), Parameter("rate_hz", value=10.0)])
+    rig.executor.add_node(seer)
+    try:
+        assert rig.spin_until(lambda: {"nurse-x", "porter-y"} <= set(rig.node.seen))
+        seen = rig.node.seen["nurse-x"].person
+        assert (seen.distance_m, seen.busyness) == (1.5, 0.25)
+    finally:
+        seer.destroy_node()
+        rig.close()
+
+
+@pytest.mark.parametrize("entry, field", [
+    ("nurse-x,1.5,0.25", "'id,distance_m,busyness,activity'"),
+    (",1.5,0.25,idle", "'id,distance_m,busyness,activity'"),
+    ("nurse-x,near,0.25,idle", "must be numbers"),
+    ("nurse-x,1.5,1.25,idle", "busyness 1.25 must be in [0, 1]"),
+])
+def test_perception_stand_in_names_the_bad_entry(entry, field):
+    with pytest.raises(ValueError) as err:
+        parse_people(["porter-y,4.0,0.0,idle", entry])
+    assert str(err.value).startswith("people[1]: ") and field in str(err.value)
+
+
+def test_stand_ins_refuse_out_of_range_parameters(ctx):
+    with pytest.raises(ValueError, match="answer: 'maybe' is not one of helped"):
+        AskDelivery(context=ctx, parameter_overrides=[Parameter("answer", value="maybe")])
+    with pytest.raises(ValueError, match=r"stuck_period_s: -1 is outside the allowed range"):
+        BehaviourLayer(stuck_period_s=-1.0, context=ctx)

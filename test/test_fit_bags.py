@@ -1,6 +1,6 @@
 """`fit` from bags: outcomes joined to the decisions that asked, via the review's bag loader.
 
-Skipped while the review's loader (tools/review_data.py and its wire module) is not importable.
+Skipped while the review's loader (review/data.py and its documents module) is not importable.
 The check: every answered ask in the sample bag is read, with the busyness and ask load the
 decision's candidate row recorded (the same numbers the core used for p).
 """
@@ -8,8 +8,8 @@ import pytest
 
 from helpaware_node.fit.data import HELPED
 
-review_data = pytest.importorskip("helpaware_node.tools.review_data", exc_type=ImportError)
-review_sample = pytest.importorskip("helpaware_node.tools.review_sample", exc_type=ImportError)
+review_data = pytest.importorskip("helpaware_node.review.data", exc_type=ImportError)
+review_sample = pytest.importorskip("helpaware_node.review.sample", exc_type=ImportError)
 
 
 def test_outcomes_from_a_sample_bag(tmp_path):

@@ -171,11 +171,11 @@ def test_written_file_changes_the_decision_as_expected(tmp_path, k_busy_truth, e
 
 
 def test_reads_the_store_export(tmp_path):
-    # the store's own CSV export (tools/store_admin.write_csv) read back by the fit reader
+    # the store's own CSV export (store/export.write_csv) read back by the fit reader
     from helpaware_node.core.person import Result
     from helpaware_node.store.base import StoredEvent, person_key
     from helpaware_node.store.sqlite import SqliteStore
-    from helpaware_node.tools.store_admin import write_csv as store_write_csv
+    from helpaware_node.store.export import write_csv as store_write_csv
     key = b"k" * 32
     store = SqliteStore(tmp_path / "s.db", "r1", key)
     results = [Result.HELPED, Result.DECLINED, Result.NO_RESPONSE, Result.COULD_NOT_ASK]

@@ -6,7 +6,6 @@ reference values in test/data/REFERENCE_VALUES.md, scipy.stats.betabinom, scipy.
 one-step posterior mean.
 """
 import math
-import os
 
 import numpy as np
 import pytest
@@ -19,21 +18,18 @@ from helpaware_node.fit.data import DECLINED, HELPED, NO_RESPONSE, from_arrays, 
 from helpaware_node.fit.site_fit import Objective, context_test, fit_site, moments_start, to_theta
 from helpaware_node.fit.site_likelihood import SiteLikelihood, SiteParams, beta_rule
 from helpaware_node.fit.simulate_outcomes import simulate
+from reference_tables import rat_tumour_groups
 
 
-def rat_tumour(data_dir):
-    rows = [line.strip().split(",") for line in open(os.path.join(data_dir, "rat_tumor.csv"))
-            if line[:1].isdigit()]
-    y = np.array([int(r[0]) for r in rows])
-    n = np.array([int(r[1]) for r in rows])
-    assert y.size == 71 and y.sum() == 267 and n.sum() == 1739   # counts in the README
+def first_70_rat_groups():
+    y, n = rat_tumour_groups()
     return y[:70], n[:70]
 
 
-def test_rat_tumour_reduces_to_beta_binomial(data_dir):
+def test_rat_tumour_reduces_to_beta_binomial():
     # BDA3 Table 5.1, first 70 groups; reference MLE (REFERENCE_VALUES.md): a = 2.3048,
     # b = 14.0798, log-likelihood without binomial coefficients -721.001
-    y, n = rat_tumour(data_dir)
+    y, n = first_70_rat_groups()
     fit = fit_site(from_group_counts(y, n))
     assert fit.params.prior_a == pytest.approx(2.3048, abs=6e-4)
     assert fit.params.prior_b == pytest.approx(14.0798, abs=6e-4)
@@ -43,17 +39,17 @@ def test_rat_tumour_reduces_to_beta_binomial(data_dir):
     assert fit.std_errors["prior_a"] > 0 and fit.std_errors["prior_b"] > 0
 
 
-def test_rat_tumour_method_of_moments_start(data_dir):
+def test_rat_tumour_method_of_moments_start():
     # BDA3 section 5.3 / REFERENCE_VALUES.md: mean and sd (ddof 1) of y/n give 1.356, 8.615
-    y, n = rat_tumour(data_dir)
+    y, n = first_70_rat_groups()
     a, b = moments_start(from_group_counts(y, n))
     assert a == pytest.approx(1.356, abs=1e-3)
     assert b == pytest.approx(8.615, abs=1e-3)
 
 
-def test_loglik_matches_scipy_betabinom(data_dir):
+def test_loglik_matches_scipy_betabinom():
     # scipy.stats.betabinom.logpmf minus the log binomial coefficient, at points off the MLE
-    y, n = rat_tumour(data_dir)
+    y, n = first_70_rat_groups()
     lik = SiteLikelihood(from_group_counts(y, n))
     log_choose = gammaln(n + 1) - gammaln(y + 1) - gammaln(n - y + 1)
     for a, b in [(2.3048, 14.0798), (0.4, 0.7), (30.0, 200.0), (1.0, 1.0)]:

@@ -30,8 +30,9 @@ from std_msgs.msg import String  # noqa: E402
 
 from helpaware_node.core import Belief, Result, SiteModel, fold_events  # noqa: E402
 from helpaware_node.core.model import CoreInputError  # noqa: E402
-from helpaware_node.ros.fleet import FleetLink, encode_event, encode_forget  # noqa: E402
-from helpaware_node.store import SqliteStore, StoredEvent  # noqa: E402
+from helpaware_node.fleet_documents import PrivacyAct, encode_document  # noqa: E402
+from helpaware_node.ros.fleet import FleetLink  # noqa: E402
+from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402
 
 from site_keys import write_site_key  # noqa: E402
 
@@ -39,6 +40,15 @@ SITE_KEY = bytes(range(40, 72))
 DEPTH = 300                  # history per publisher; the peers hold exactly that many each
 PEERS = ("ward1", "ward2")
 STAFF = 30
+KEYS = SiteKeys.single(SITE_KEY).key_ring()      # what the peers here sign with
+
+
+def encode_event(e: StoredEvent) -> str:
+    return encode_document("outcome", e, KEYS)
+
+
+def encode_forget(key: str, sender: str) -> str:
+    return encode_document("forget", PrivacyAct.new("forget", key, sender), KEYS)
 
 
 def peer_events(store, robot_id: str, n: int, offset_s: float) -> list[StoredEvent]:

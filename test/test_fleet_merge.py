@@ -4,12 +4,22 @@ from hypothesis import given, settings, strategies as st
 
 from helpaware_node.core import Result, SiteModel, fold_events
 from helpaware_node.core.model import CoreInputError
-from helpaware_node.ros.fleet import decode, encode_event, encode_forget, merge
-from helpaware_node.store import MemoryStore, SqliteStore, StoredEvent
+from helpaware_node.fleet_documents import PrivacyAct, decode_document, encode_document
+from helpaware_node.ros.fleet import merge
+from helpaware_node.store import MemoryStore, SiteKeys, SqliteStore, StoredEvent
 
 MODEL = SiteModel(evidence_half_life_s=3600.0)
 SITE_KEY = b"f" * 32
+KEYS = SiteKeys.single(SITE_KEY).key_ring()
 PEOPLE = [MemoryStore(site_key=SITE_KEY).key_for(f"nurse-{i}") for i in range(3)]
+
+
+def encode_event(e: StoredEvent) -> str:
+    return encode_document("outcome", e, KEYS)
+
+
+def encode_forget(key: str, sender: str) -> str:
+    return encode_document("forget", PrivacyAct.new("forget", key, sender), KEYS)
 
 events_st = st.lists(
     st.tuples(st.sampled_from(["r1", "r2", "r3"]), st.integers(0, 2),
@@ -35,7 +45,7 @@ def test_any_delivery_order_and_duplication_gives_the_same_beliefs(tmp_path_fact
         delivery = messages + [rng.choice(messages) for _ in range(rng.randint(0, 10))]
         rng.shuffle(delivery)
         store = SqliteStore(d / f"robot{n}.sqlite3", f"robot{n}", SITE_KEY, model=MODEL)
-        merged = [e for m in delivery for e in merge(store, m)]
+        merged = [e for m in delivery for e in merge(store, m, KEYS)]
         assert sorted(e.event_id for e in merged) == sorted(e.event_id for e in events)
         beliefs.append({k: store.belief(k) for k in store.keys()})
         store.close()
@@ -47,23 +57,24 @@ def test_any_delivery_order_and_duplication_gives_the_same_beliefs(tmp_path_fact
 
 def test_messages_round_trip_and_refuse_raw_ids():
     e = StoredEvent("r1/7", PEOPLE[0], 12.5, Result.DECLINED, 0.25, 1.5, "elevator")
-    assert decode(encode_event(e)) == ("outcome", e)
-    assert decode(encode_forget(PEOPLE[1], "r2")) == ("forget", PEOPLE[1])
+    assert decode_document(encode_event(e), KEYS) == ("outcome", e)
+    kind, act = decode_document(encode_forget(PEOPLE[1], "r2"), KEYS)
+    assert (kind, act.person_key, act.sender) == ("forget", PEOPLE[1], "r2")
     with pytest.raises(CoreInputError, match="person_key"):
         encode_event(StoredEvent("r1/8", "nurse-ingrid", 1.0, Result.HELPED, 0.1, 0.0))
     bad = encode_event(e).replace(PEOPLE[0], "nurse-ingrid")
-    with pytest.raises(CoreInputError, match="person_key"):
-        decode(bad)
+    with pytest.raises(CoreInputError, match="sig does not match"):    # changed on the way
+        decode_document(bad, KEYS)
     with pytest.raises(CoreInputError, match="JSON"):
-        decode("{not json")
+        decode_document("{not json", KEYS)
 
 
 def test_forget_message_erases_and_blocks_replayed_copies(tmp_path):
     store = SqliteStore(tmp_path / "b.sqlite3", "r1", SITE_KEY, model=MODEL)
     e = StoredEvent("r2/1", PEOPLE[0], 1.0, Result.HELPED, 0.1, 0.0)
     forgotten = set()
-    assert merge(store, encode_event(e), forgotten) == [e]
-    assert merge(store, encode_forget(PEOPLE[0], "r2"), forgotten) == []
+    assert merge(store, encode_event(e), KEYS, forgotten) == [e]
+    assert merge(store, encode_forget(PEOPLE[0], "r2"), KEYS, forgotten) == []
     assert store.keys() == []
-    assert merge(store, encode_event(e), forgotten) == []    # a peer's older copy replayed
+    assert merge(store, encode_event(e), KEYS, forgotten) == []    # a peer's older copy replayed
     assert store.keys() == []

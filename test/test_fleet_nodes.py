@@ -1,8 +1,9 @@
 """Two decision-node processes (two robots) share outcomes; a third started late catches up.
 
 Each robot runs `python -m helpaware_node.ros.node` in its own namespace with its own SQLite
-store (one site key), fleet/outcomes remapped to one shared /fleet/outcomes. The test process
-drives each robot over its topics and reads beliefs from the candidates of its decisions.
+store (one site key) and no remapping: the fleet topic is site-wide by default. The test
+process drives each robot over its topics and reads beliefs from the candidates of its
+decisions.
 """
 import json
 import os
@@ -20,7 +21,7 @@ from std_msgs.msg import String  # noqa: E402
 
 from helpaware_node import wire  # noqa: E402
 from helpaware_node.ros import launch_config  # noqa: E402
-from helpaware_node.ros.fleet import fleet_qos  # noqa: E402
+from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos  # noqa: E402
 from helpaware_node.store.keys import load_site_key  # noqa: E402
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
@@ -29,7 +30,7 @@ NURSE, WARM = "nurse-ingrid-olsen", "warmup-visitor-3"
 
 def start_robot(tmp_path, name):
     cmd = [sys.executable, "-m", "helpaware_node.ros.node", "--ros-args",
-           "-r", f"__ns:=/{name}", "-r", "fleet/outcomes:=/fleet/outcomes",
+           "-r", f"__ns:=/{name}",
            "-p", f"store_path:={tmp_path / (name + '.sqlite3')}", "-p", f"robot_id:={name}"]
     return subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
 
@@ -63,7 +64,7 @@ class Fleet:
         self.node = rclpy.create_node("fleet_test_driver", context=self.ctx)
         self.drivers = {}
         self.heard = []
-        self.node.create_subscription(String, "/fleet/outcomes",
+        self.node.create_subscription(String, FLEET_TOPIC,
                                       lambda m: self.heard.append(m.data), fleet_qos())
         self.node.create_timer(0.1, self._tick)
         self.executor = SingleThreadedExecutor(context=self.ctx)

@@ -1,7 +1,8 @@
 """Two robots in two processes share outcomes; a third started late catches up.
 
 The peers are `python -m helpaware_node.ros.fleet` (FleetLink on an SQLite store). The test
-process also listens on fleet/outcomes to check that no raw id travels on the topic.
+process also listens on the fleet topic to check that no raw id travels on it, and that every
+document there is signed for the site.
 """
 import os
 import queue
@@ -18,7 +19,8 @@ from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 from std_msgs.msg import String  # noqa: E402
 
 from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos  # noqa: E402
-from helpaware_node.store.keys import load_site_key  # noqa: E402
+from helpaware_node.fleet_documents import decode_document  # noqa: E402
+from helpaware_node.store.keys import load_site_key, load_site_keys  # noqa: E402
 
 RAW = ["nurse-ingrid-olsen", "porter-7-night", "warmup-person"]
 
@@ -104,9 +106,11 @@ def test_outcome_reaches_the_other_robot_and_a_late_robot_catches_up(tmp_path):
         while len(heard) < 3 and time.monotonic() < deadline:
             time.sleep(0.05)
         assert len(heard) >= 3
+        keys = load_site_keys(tmp_path / "site_key", create=False).key_ring()
         for text in heard:
             for raw in RAW:
                 assert raw not in text
+            assert decode_document(text, keys)[0] == "outcome"     # signed for this site
     finally:
         for p in peers:
             p.stop()

@@ -5,7 +5,6 @@ binomial); values from lme4's tests/glmer-1.R as quoted in test/data/REFERENCE_V
 Cross-checks with scipy.integrate.quad.
 """
 import math
-import os
 
 import numpy as np
 import pytest
@@ -14,17 +13,12 @@ from scipy.special import expit
 
 from helpaware_node.fit.glmm import (RandomInterceptLogit, new_group_help_probability,
                                      sequential_help_probability)
+from reference_tables import cbpp_design
 
 
 @pytest.fixture(scope="module")
 def cbpp():
-    path = os.path.join(os.path.dirname(__file__), "data", "cbpp.csv")
-    rows = np.array([line.strip().split(",") for line in open(path) if line[:1].isdigit()],
-                    dtype=float)
-    herd, inc, size, period = rows.T
-    assert rows.shape[0] == 56 and inc.sum() == 99 and size.sum() == 842   # README counts
-    X = np.column_stack([np.ones(len(rows))] + [(period == k).astype(float) for k in (2, 3, 4)])
-    return inc, size, X, herd
+    return cbpp_design()
 
 
 def test_agq_reproduces_lme4_nagq25(cbpp):

@@ -68,8 +68,75 @@ def test_ctrl_c_exits_cleanly_without_traceback():
     assert code == 0 and "Traceback" not in err, err[-2000:]
 
 
-def test_launch_file_uses_launch_config():
-    text = open(os.path.join(HERE, "..", "launch", "helpaware.launch.py")).read()
-    assert "launch_config" in text and "lc.EXECUTABLE" in text and "lc.REMAPS" in text
+def test_launch_files_take_their_nodes_from_launch_config():
+    for name in ("helpaware.launch.py", "example_loop.launch.py"):
+        text = open(os.path.join(HERE, "..", "launch", name)).read()
+        assert "from helpaware_node.ros import launch_config as lc" in text
+        assert ".launch_kwargs()" in text and "_from_arguments(values)" in text, name
     import helpaware_node.ros.launch_config as mod
     assert "import launch" not in open(mod.__file__).read()
+
+
+def test_launch_arguments_become_the_node_command_line():
+    spec = launch_config.decider_from_arguments({
+        "params_file": "hospital_night.yaml", "namespace": "ward3",
+        "people_topic": "perception/people", "use_sim_time": "true", "respawn": "true",
+        "respawn_delay_s": "1.5"})
+    cmd = spec.command()
+    pairs = list(zip(cmd, cmd[1:]))
+    assert ("-r", "__ns:=/ward3") in pairs and ("-r", "people:=perception/people") in pairs
+    assert ("-r", "__node:=helpaware_decider") in pairs and ("-p", "use_sim_time:=true") in pairs
+    assert ("--params-file", os.path.join(launch_config.config_dir(), "hospital_night.yaml")) in pairs
+    assert not any(a.startswith("task_status:=") for a in cmd)    # identity remaps left out
+    kw = spec.launch_kwargs()
+    assert kw["namespace"] == "/ward3" and kw["remappings"] == [("people", "perception/people")]
+    assert kw["parameters"] == [spec.params_file, {"use_sim_time": True}]
+    assert (kw["respawn"], kw["respawn_delay"]) == (True, 1.5)
+    assert set(kw) <= launch_config.LAUNCH_ROS_NODE_KWARGS
+    defaults = launch_config.decider_from_arguments({}).launch_kwargs()
+    assert "respawn" not in defaults and defaults["namespace"] is None
+    assert defaults["parameters"] == [os.path.join(launch_config.config_dir(), "default.yaml")]
+
+
+@pytest.mark.parametrize("values, message", [
+    ({"respawn": "yes"}, "respawn: 'yes' is not one of true, false"),
+    ({"use_sim_time": "1"}, "use_sim_time: '1' is not one of true, false"),
+    ({"respawn_delay_s": "-2"}, r"respawn_delay_s: '-2' is not a number in \[0, 3600\]"),
+    ({"respawn_delay_s": "soon"}, "respawn_delay_s: 'soon' is not a number"),
+    ({"people_topic": " "}, "people_topic: empty"),
+])
+def test_bad_launch_arguments_are_named(values, message):
+    with pytest.raises(launch_config.LaunchArgumentError, match=message):
+        launch_config.decider_from_arguments(values)
+
+
+def test_loop_arguments_are_checked_and_shared():
+    specs = launch_config.loop_from_arguments({"namespace": "r1", "answer": "declined",
+                                               "stuck_period_s": "3"})
+    assert [s.executable for s in specs] == ["helpaware_decider", "example_perception",
+                                             "example_behaviour_layer", "example_ask_delivery"]
+    assert {s.fully_qualified_namespace for s in specs} == {"/r1"}
+    assert specs[3].overrides == {"answer": "declined"}
+    assert specs[2].overrides == {"stuck_period_s": 3.0}
+    with pytest.raises(launch_config.LaunchArgumentError, match="answer: 'maybe' is not one of"):
+        launch_config.loop_from_arguments({"answer": "maybe"})
+
+
+def test_executable_is_the_one_under_the_ament_prefix_when_one_is_sourced(tmp_path, monkeypatch):
+    """A sourced workspace wins over the venv: lib/helpaware_node/<exe> under its prefix."""
+    index = tmp_path / "share" / "ament_index" / "resource_index" / "packages"
+    index.mkdir(parents=True)
+    (index / "helpaware_node").write_text("")
+    lib = tmp_path / "lib" / "helpaware_node"
+    lib.mkdir(parents=True)
+    exe = lib / "helpaware_decider"
+    exe.write_text("#!/bin/sh\n")
+    exe.chmod(0o755)
+    monkeypatch.setenv("AMENT_PREFIX_PATH", str(tmp_path))
+    assert launch_config.executable() == [str(exe)]
+    monkeypatch.delenv("AMENT_PREFIX_PATH")
+    venv_exe = os.path.join(sys.prefix, "lib", "helpaware_node", "helpaware_decider")
+    if os.access(venv_exe, os.X_OK):   # make venv puts it there (setup.cfg install_scripts)
+        assert launch_config.executable() == [venv_exe]
+    else:
+        assert launch_config.executable()[-2:] == ["-m", "helpaware_node.ros.node"]

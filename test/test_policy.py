@@ -155,3 +155,29 @@ def test_config_is_immutable():
 def test_typical_gain_never_negative():
     u = typical_gain(np.linspace(0, 1, 11), SiteModel(), DecisionConfig(), 20.0)
     assert np.all(u >= 0) and u[0] == 0.0
+
+
+def test_reask_interval_holds_beyond_a_day():
+    # issue 14 item 7: with a 48 h interval and one ask 25 h ago the person was asked
+    config = DecisionConfig(min_reask_interval_s=172800.0)
+    now = 1000.0 + 25 * 3600.0
+    need = HelpNeed("r1", "door", opened_at_s=now, continue_cost_s=5000.0)
+    asked_25h_ago = cand("p", seen=now, ask_times_s=(1000.0,))
+    d = decide(need, [asked_25h_ago], now, [], SiteModel(), config)
+    assert d.action == "continue"
+    assert d.evaluation.exclusions[0] is Exclusion.REASK_INTERVAL
+    later = now + 23 * 3600.0 + 1.0          # 48 h and 1 s after the ask
+    d = decide(HelpNeed("r2", "door", later, continue_cost_s=5000.0),
+               [cand("p", seen=later, ask_times_s=(1000.0,))], later, [], SiteModel(), config)
+    assert d.action == "ask"
+
+
+def test_reask_interval_is_bounded_at_30_days_by_name():
+    from helpaware_node.core.model import MAX_REASK_INTERVAL_S
+    assert MAX_REASK_INTERVAL_S == 30 * 86400.0
+    longest = DecisionConfig(min_reask_interval_s=MAX_REASK_INTERVAL_S)
+    assert longest.min_reask_interval_s == 2592000.0
+    with pytest.raises(CoreInputError,
+                       match=r"min_reask_interval_s: 2592001.0 is outside the allowed range "
+                             r"\[0, 2.592e\+06\]"):
+        DecisionConfig(min_reask_interval_s=MAX_REASK_INTERVAL_S + 1.0)

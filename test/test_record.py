@@ -13,7 +13,7 @@ from helpaware_node import wire
 from helpaware_node.core import DecisionConfig, HelpNeed, PersonRecord, SiteModel
 from helpaware_node.core import candidate_from_record, decide
 from helpaware_node.store.base import person_key
-from helpaware_node.tools.bagio import BagSource, deserialize_string, serialize_string
+from helpaware_node.bag import BagSource, deserialize_string, serialize_string
 from helpaware_node.tools.record import id_hasher
 
 KEY = b"test-site-key-of-32-bytes-length"

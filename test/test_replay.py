@@ -2,9 +2,9 @@
 import pytest
 
 from helpaware_node.core.model import DecisionConfig, SiteModel
-from helpaware_node.tools import review, review_data, review_replay
-from helpaware_node.tools.review_params import ParamFileError, load_params
-from helpaware_node.tools.review_sample import write_sample_bag
+from helpaware_node.review import data as review_data, replay as review_replay, report as review
+from helpaware_node.node_param_file import ParamFileError, load_params
+from helpaware_node.review.sample import write_sample_bag
 
 CONFIG = DecisionConfig(max_asks_per_hour=3, min_reask_interval_s=1200.0)
 MODEL = SiteModel(k_busy=1.5, evidence_half_life_s=86400.0)

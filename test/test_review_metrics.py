@@ -3,7 +3,7 @@ import math
 
 import pytest
 
-from helpaware_node.tools.review_metrics import (beta_interval, brier_score, log_loss,
+from helpaware_node.review.metrics import (beta_interval, brier_score, log_loss,
                                                  reliability_bins)
 
 

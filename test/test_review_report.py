@@ -11,9 +11,9 @@ from html.parser import HTMLParser
 import pytest
 from rosbags.rosbag2 import Reader
 
-from helpaware_node.tools import review
-from helpaware_node.tools.bagio import typestore
-from helpaware_node.tools.review_sample import write_sample_bag
+from helpaware_node.review import report as review
+from helpaware_node.bag import typestore
+from helpaware_node.review.sample import write_sample_bag
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 

@@ -1,11 +1,9 @@
 """The node on a damaged store file: starts on priors, file moved aside, ERROR in diagnostics,
 keeps deciding and learning; and a live forget through privacy_request."""
-import json
 import os
 
 import pytest
 from diagnostic_msgs.msg import DiagnosticStatus
-from std_msgs.msg import String
 
 from helpaware_node.core.belief import Belief
 from helpaware_node.store.keys import load_site_key
@@ -39,12 +37,10 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         assert rig.node.records[key].belief == Belief(3.0, 2.0)
         assert len(rig.node.store.events_for(key)) == 1
         # live forget through the node: store and memory both drop the person at once
-        pub = rig.driver.create_publisher(String, "privacy_request", 10)
-        assert rig.spin_until(lambda: pub.get_subscription_count() > 0)
-        pub.publish(String(data=json.dumps({"action": "forget", "person_id": "nurse-a"})))
+        rig.send_privacy("forget", "nurse-a")
         assert rig.spin_until(lambda: key not in rig.node.records and
                               key not in rig.node.store.keys())
-        pub.publish(String(data=json.dumps({"action": "opt_out", "person_id": "nurse-a"})))
+        rig.send_privacy("opt_out", "nurse-a")
         assert rig.spin_until(lambda: rig.node.store.is_opted_out(key))
         d = rig.open_need("n2", "handover", urgency=1.0)
         assert d["action"] == "continue"

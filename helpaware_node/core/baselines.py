@@ -12,6 +12,7 @@ import numpy as np
 
 from .model import DecisionConfig
 from .policy import Evaluation, ask_advantage, best_positive, choose_lookahead
+from .preview import quoted
 
 
 def _eligible(ev: Evaluation) -> list[int]:
@@ -112,4 +113,4 @@ def make_chooser(name: str, config: DecisionConfig, seed: int = 0, true_p=None,
         if true_p is None:
             raise ValueError("oracle: needs the true help probabilities")
         return Oracle(config, true_p)
-    raise ValueError(f"policy: {name!r} is not one of {', '.join(POLICY_NAMES)}")
+    raise ValueError(f"policy: {quoted(name)} is not one of {', '.join(POLICY_NAMES)}")

@@ -38,56 +38,76 @@ class Belief:
         return cls(model.prior_a, model.prior_b)
 
 
-def beta_raw_moments(a, b):
-    """E[w], E[w^2], E[w^3] of Beta(a, b), from the ratio B(a+k, b)/B(a, b)."""
+_TINY = float(np.nextafter(0.0, 1.0))
+# 0/0 and overflow arise only at c = 1 with b/(a+b) underflowing, where the closed form is used
+_AT_C_ONE_ONLY = {"divide": "ignore", "invalid": "ignore", "over": "ignore"}
+
+
+def _declined_mixture(a, b, c):
+    """The parts of the exact declined posterior, a two-Beta mixture, that never cancel.
+
+    1 - c w = (1 - c) + c (1 - w) and (1 - w) Beta(w; a, b) = b/s Beta(w; a, b + 1), s = a + b:
+
+        (1 - c w) Beta(w; a, b) / Z = [(1 - c) Beta(w; a, b) + c b/s Beta(w; a, b + 1)] / Z,
+        Z = (1 - c) + c b/s = 1 - c a/s.
+
+    Each part is a product or sum of positive terms, so it keeps its relative accuracy for a
+    mean near 0 or 1 and for a, b anywhere in (0, 1e12]: no 1 - x is taken of an x near 1.
+    """
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
+    c = np.asarray(c, dtype=float)
     s = a + b
-    m1 = a / s
-    m2 = m1 * (a + 1.0) / (s + 1.0)
-    m3 = m2 * (a + 2.0) / (s + 2.0)
-    return m1, m2, m3
+    m0 = a / s                   # mean of Beta(a, b) ...
+    n0 = b / s                   # ... and one minus it, each computed directly
+    r1 = 1.0 / (s + 1.0)
+    r2 = 1.0 / (s + 2.0)
+    n1 = (b + 1.0) * r1          # one minus the mean a r1 of Beta(a, b + 1)
+    k = 1.0 - c                  # weight of Beta(a, b) times Z; exact for c >= 1/2
+    z = k + c * n0
+    return a, b, c, s, m0, n0, r1, r2, n1, k, z
 
 
 def declined_moments(a, b, c):
-    """Mean and variance of the exact posterior  ∝ (1 - c w) Beta(w; a, b).
+    """Mean and variance of the exact posterior  ∝ (1 - c w) Beta(w; a, b) (vectorised).
 
-    E[w^k | declined] = [B(a+k, b) - c B(a+k+1, b)] / [B(a, b) - c B(a+1, b)]
-                      = (m_k - c m_{k+1}) / (1 - c m_1)   with m_k the Beta raw moments.
+    mean = a/s [(1 - c) + c b/(s+1)] / Z; variance = the components' variances plus the
+    spread of their means (a sum of positive terms). Algebraically equal to
+    E[w^k] = [B(a+k,b) - c B(a+k+1,b)] / [B(a,b) - c B(a+1,b)] and E[w^2] - E[w]^2, which
+    cancel catastrophically near a mean of 1.
     """
-    m1, m2, m3 = beta_raw_moments(a, b)
-    c = np.asarray(c, dtype=float)
-    z = 1.0 - c * m1
-    e1 = (m1 - c * m2) / z
-    e2 = (m2 - c * m3) / z
-    return e1, e2 - e1 * e1
-
-
-def match_beta(mean, variance, fallback_concentration):
-    """Beta(a, b) with the given mean and variance.
-
-    Where rounding leaves no valid variance (0 < v < m(1-m)), keep the mean and the
-    fallback concentration a + b, so the result is always a valid Beta.
-    """
-    mean = np.asarray(mean, dtype=float)
-    variance = np.asarray(variance, dtype=float)
-    limit = mean * (1.0 - mean)
-    ok = (variance > 0.0) & (variance < limit)
-    s = np.where(ok, limit / np.where(ok, variance, 1.0) - 1.0, fallback_concentration)
-    return mean * s, (1.0 - mean) * s
+    a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
+    with np.errstate(**_AT_C_ONE_ONLY):
+        mean = m0 * ((k + c * b * r1) / z)
+        # u0 v0 + u1 v1 + u0 u1 (a/(s(s+1)))^2, with a/s and b/(s Z) taken out of all three
+        var = m0 * (n0 / z) * (k * r1 + c * s * r1 * n1 * r2 + k * c * m0 * r1 * r1 / z)
+    return _exact_ends(c, mean, var, a * r1, a * r1 * n1 * r2, m0, m0 * n0 * r1)
 
 
 def declined_ab(a, b, c):
-    """(a, b) after a declined ask at context factor c in [0, 1] (moment-matched, vectorised)."""
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    c = np.asarray(c, dtype=float)
-    mean, var = declined_moments(a, b, c)
-    na, nb = match_beta(mean, var, a + b)
-    # c = 0 carries no information: keep the belief bit for bit
-    na = np.where(c <= 0.0, a, na)
-    nb = np.where(c <= 0.0, b, nb)
-    return na, nb
+    """(a, b) after a declined ask at context factor c in [0, 1] (moment-matched, vectorised).
+
+    The matched Beta has the posterior's mean M and variance V; its concentration is
+    M(1-M)/V - 1 = E[w(1-w)]/V (as M(1-M) - V = E[w] - E[w^2]), a ratio of positive sums;
+    a' = M times it and b' = (1 - M) times it, with a and b kept as factors.
+    """
+    a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
+    with np.errstate(**_AT_C_ONE_ONLY):
+        # concentration / s, with the factor b/(s Z) of E[w(1-w)] and V cancelled
+        ratio = (k * r1 + c * n1 * r2) / (k * r1 + c * s * r1 * n1 * r2
+                                          + k * c * m0 * r1 * r1 / z)
+        na = a * (ratio * ((k + c * b * r1) / z))
+        nb = b * (ratio * ((k + c * n1) / z))
+    # below the smallest positive double (a or b near 5e-324 already): hold there, so a, b > 0
+    na, nb = np.maximum(na, _TINY), np.maximum(nb, _TINY)
+    return _exact_ends(c, na, nb, a, b + 1.0, a, b)
+
+
+def _exact_ends(c, mixed_a, mixed_b, full_a, full_b, none_a, none_b):
+    """c = 0 carries no information and c = 1 gives the conjugate Beta(a, b + 1): use the
+    closed forms there (bit for bit, and no 0/0 where b/(a+b) underflows to 0)."""
+    return (np.where(c <= 0.0, none_a, np.where(c >= 1.0, full_a, mixed_a)),
+            np.where(c <= 0.0, none_b, np.where(c >= 1.0, full_b, mixed_b)))
 
 
 def _check_c(c: float, name: str = "c") -> float:

@@ -10,6 +10,7 @@ from typing import Iterable
 import numpy as np
 
 from .model import CoreInputError
+from .preview import short_number
 
 
 def ask_load(ask_times_s: Iterable[float], now_s: float, half_life_s: float) -> float:
@@ -27,9 +28,16 @@ def context_factor(busyness, load, k_busy: float, k_load: float):
     """c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
     x = np.asarray(busyness, dtype=float)
     f = np.asarray(load, dtype=float)
-    if np.any(~np.isfinite(x)) or np.any((x < 0.0) | (x > 1.0)):
-        raise CoreInputError(f"busyness: {x!r} must lie in [0, 1]")
-    if np.any(~np.isfinite(f)) or np.any(f < 0.0):
-        raise CoreInputError(f"ask load: {f!r} must be finite and >= 0")
+    bad_x = ~np.isfinite(x) | (x < 0.0) | (x > 1.0)
+    if np.any(bad_x):   # name the first bad value, not the whole array
+        raise CoreInputError(f"busyness: {_first(x, bad_x)} must lie in [0, 1]")
+    bad_f = ~np.isfinite(f) | (f < 0.0)
+    if np.any(bad_f):
+        raise CoreInputError(f"ask load: {_first(f, bad_f)} must be finite and >= 0")
     c = np.exp(-(k_busy * x + k_load * f))
     return float(c) if c.ndim == 0 else c
+
+
+def _first(values: np.ndarray, bad: np.ndarray) -> str:
+    shown = short_number(float(values[bad].flat[0]))
+    return shown if values.ndim == 0 else f"{shown} (one of {values.size} values)"

@@ -14,10 +14,18 @@ import math
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
+from .preview import describe, short_name, short_number
+
 
 # the most asks a cap may allow: every ask the cap counts travels in each decision document,
 # whose time lists hold at most this many (wire.MAX_TIMES), so review and replay can read it
 MAX_ASKS_CAP = 1000
+
+# the longest re-ask interval allowed (30 days): the core keeps each person's latest ask this
+# long (core.person.note_ask), so every allowed interval holds; a longer one would need an
+# ask history kept without end. Common practice, no source: a month covers any "not again
+# soon" policy a site has asked for; longer is an opt-out, which the store keeps for good.
+MAX_REASK_INTERVAL_S = 30 * 86400.0
 
 class CoreInputError(ValueError):
     """A value given to the core is outside what the model allows (names field and range)."""
@@ -25,17 +33,23 @@ class CoreInputError(ValueError):
 
 def check_range(name: str, value: Any, low: float, high: float = math.inf,
                 low_open: bool = False, high_open: bool = False) -> float:
-    """Return `value` as float or raise CoreInputError naming `name` and the allowed range."""
+    """Return `value` as float or raise CoreInputError naming `name` and the allowed range.
+
+    The message is bounded and never recurses into `value` (core.preview), whatever it is."""
     if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise CoreInputError(f"{name}: expected a number, got {type(value).__name__} {value!r}")
-    v = float(value)
+        raise CoreInputError(f"{short_name(name)}: expected a number, got {describe(value)}")
+    try:
+        v = float(value)
+    except OverflowError:   # an integer beyond any float: outside every range here
+        v = math.inf if value > 0 else -math.inf
     lo_ok = v > low if low_open else v >= low
     hi_ok = v < high if high_open else v <= high
     if math.isnan(v) or not lo_ok or not hi_ok:
         lb = "(" if low_open else "["
         hb = ")" if high_open or math.isinf(high) else "]"
-        hi_txt = "inf" if math.isinf(high) else f"{high:g}"
-        raise CoreInputError(f"{name}: {v!r} is outside the allowed range {lb}{low:g}, {hi_txt}{hb}")
+        shown = short_number(value) if isinstance(value, int) and math.isinf(v) else repr(v)
+        raise CoreInputError(f"{short_name(name)}: {shown} is outside the allowed range "
+                             f"{lb}{low:g}, {high:g}{hb}")
     return v
 
 
@@ -105,9 +119,10 @@ class DecisionConfig:
     def __post_init__(self) -> None:
         for name in ("help_time_s", "ask_time_s", "interruption_weight_s", "busy_cost",
                      "repeat_cost", "urgency_cost_gain", "default_continue_cost_s",
-                     "typical_continue_cost_s", "lookahead_horizon_s", "prior_candidate_rate_per_day",
-                     "min_reask_interval_s"):
+                     "typical_continue_cost_s", "lookahead_horizon_s",
+                     "prior_candidate_rate_per_day"):
             check_range(name, getattr(self, name), 0.0, 1e9)
+        check_range("min_reask_interval_s", self.min_reask_interval_s, 0.0, MAX_REASK_INTERVAL_S)
         check_range("future_discount_time_s", self.future_discount_time_s, 0.0, 1e12, low_open=True)
         check_range("prior_rate_window_s", self.prior_rate_window_s, 0.0, 1e12, low_open=True)
         check_range("typical_busyness", self.typical_busyness, 0.0, 1.0)
@@ -117,12 +132,24 @@ class DecisionConfig:
         for name in ("max_asks_per_person_per_day", "max_asks_per_hour"):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, int) or v < 0 or v > MAX_ASKS_CAP:
-                raise CoreInputError(f"{name}: {v!r} must be a whole number in "
+                raise CoreInputError(f"{name}: {short_number(v)} must be a whole number in "
                                      f"[0, {MAX_ASKS_CAP}]")
+        if not isinstance(self.continue_costs_s, Mapping):
+            raise CoreInputError(f"continue_costs_s: expected a mapping of kind to seconds, "
+                                 f"got {describe(self.continue_costs_s)}")
         for kind, cost in self.continue_costs_s.items():
             if not isinstance(kind, str) or not kind:
-                raise CoreInputError(f"continue_costs_s: kind {kind!r} must be a non-empty string")
+                raise CoreInputError(f"continue_costs_s: kind {describe(kind)} must be a "
+                                     f"non-empty string")
             check_range(f"continue_costs_s[{kind}]", cost, 0.0, 1e9)
+        labels = self.protected_activities
+        if isinstance(labels, (str, bytes)) or not isinstance(labels, (list, tuple)):
+            raise CoreInputError(f"protected_activities: expected a list of labels, "
+                                 f"got {describe(labels)}")
+        for label in labels:
+            if not isinstance(label, str):
+                raise CoreInputError(f"protected_activities: label {describe(label)} must be "
+                                     f"a string")
         # freeze the mapping so the value really is immutable (and hashable by content)
         object.__setattr__(self, "continue_costs_s", _FrozenDict(self.continue_costs_s))
         object.__setattr__(self, "protected_activities", tuple(self.protected_activities))
@@ -159,13 +186,14 @@ def to_plain(value: Any) -> dict:
 def from_plain(cls: type, data: Mapping[str, Any]):
     """Build `cls` from plain values; unknown keys are refused by name."""
     names = {f.name for f in dataclasses.fields(cls)}
-    unknown = sorted(set(data) - names)
+    if not isinstance(data, Mapping):
+        raise CoreInputError(f"{cls.__name__}: expected a mapping of fields, got {describe(data)}")
+    unknown = [k for k in data if k not in names]
     if unknown:
-        raise CoreInputError(f"{cls.__name__}: unknown field(s) {', '.join(unknown)}")
-    kwargs = dict(data)
-    if "protected_activities" in kwargs:
-        kwargs["protected_activities"] = tuple(kwargs["protected_activities"])
-    return cls(**kwargs)
+        shown = ", ".join(short_name(k) for k in unknown[:3])
+        more = f" and {len(unknown) - 3} more" if len(unknown) > 3 else ""
+        raise CoreInputError(f"{cls.__name__}: unknown field(s) {shown}{more}")
+    return cls(**data)
 
 
 @functools.lru_cache(maxsize=64)

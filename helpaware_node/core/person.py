@@ -11,7 +11,8 @@ from typing import Iterable
 
 from .belief import Belief, forget, update_declined, update_helped, update_no_response
 from .context import context_factor
-from .model import MAX_ASKS_CAP, CoreInputError, SiteModel, check_range
+from .model import MAX_ASKS_CAP, MAX_REASK_INTERVAL_S, CoreInputError, SiteModel, check_range
+from .preview import quoted
 
 DAY_S = 86400.0
 
@@ -26,11 +27,13 @@ class Result(str, enum.Enum):
 
     @classmethod
     def parse(cls, text: str) -> "Result":
-        try:
-            return cls(text)
-        except ValueError:
-            allowed = ", ".join(r.value for r in cls)
-            raise CoreInputError(f"result: {text!r} is not one of {allowed}") from None
+        if isinstance(text, str):   # anything else: Enum's own message repr()s the value
+            try:
+                return cls(text)
+            except ValueError:
+                pass
+        allowed = ", ".join(r.value for r in cls)
+        raise CoreInputError(f"result: {quoted(text)} is not one of {allowed}")
 
 
 @dataclass(frozen=True)
@@ -88,7 +91,7 @@ class PersonRecord:
 
     belief: Belief
     belief_time_s: float | None = None      # time of the last evidence (for forgetting)
-    ask_times_s: tuple[float, ...] = ()      # asks of this person (pruned after a day)
+    ask_times_s: tuple[float, ...] = ()      # asks of this person (note_ask says which stay)
     candidate_count: int = 0                 # help needs where the person was a candidate
     first_seen_s: float | None = None
 
@@ -122,17 +125,41 @@ def keep_recent_asks(ask_times_s, now_s: float, horizon_s: float, keep_last: int
     return tuple(t for i, t in enumerate(times) if i >= first_kept or now_s - t < horizon_s)
 
 
-def note_ask(record: PersonRecord, now_s: float, model: SiteModel) -> PersonRecord:
-    """Remember an ask; asks older than a day and ten memory half-lives are dropped.
+def ask_history_horizon_s(model: SiteModel) -> float:
+    """Asks this recent are all remembered: a day (the daily cap) or ten ask-memory
+    half-lives if longer (the ask load; an older ask adds less than 2^-10)."""
+    return max(DAY_S, 10.0 * model.ask_memory_half_life_s)
 
-    Pruning by time is safe here under clock excursions: the ask made at a clock far ahead
-    stays "in the future" once the clock is back, and excludes the person until then."""
-    horizon = max(DAY_S, 10.0 * model.ask_memory_half_life_s)
-    kept = tuple(t for t in record.ask_times_s if now_s - t < horizon)
-    # at most MAX_ASKS_CAP in all (what a decision document carries); with any daily cap
-    # allowed, the ones beyond are over a day old
-    kept = kept[len(kept) - min(len(kept), MAX_ASKS_CAP - 1):]
-    return replace(record, ask_times_s=kept + (now_s,))
+
+def ask_retention_s(model: SiteModel) -> float:
+    """How long after a person's latest ask their record (or a stored ask history) must be
+    kept for every hard limit to hold: the ask history horizon, or the longest re-ask
+    interval allowed (MAX_REASK_INTERVAL_S, 30 days) if longer. Whoever forgets records
+    or ask histories (eviction, a store, a session) keeps them at least this long."""
+    return max(ask_history_horizon_s(model), MAX_REASK_INTERVAL_S)
+
+
+def note_ask(record: PersonRecord, now_s: float, model: SiteModel) -> PersonRecord:
+    """Remember an ask. Kept: every ask within `ask_history_horizon_s` (all that the daily
+    cap and the ask load count) and, of the older ones, the latest while it is within
+    MAX_REASK_INTERVAL_S; at most MAX_ASKS_CAP in all.
+
+    The re-ask interval needs only the latest ask, which always stays: it is this ask or one
+    stamped later (a clock that jumped back, an ask noted late), which pruning by age keeps
+    as "in the future". The latest older ask stays too, so that taking one ask back (it
+    could not be made) still leaves the one before it. Any allowed interval is honoured
+    without keeping a month of asks in every decision document (which carries each
+    candidate's remembered asks); how long a record must be kept is `ask_retention_s`."""
+    horizon = ask_history_horizon_s(model)
+    kept = [t for t in record.ask_times_s if now_s - t < horizon]
+    older = [t for t in record.ask_times_s if not now_s - t < horizon]
+    if older and now_s - max(older) < MAX_REASK_INTERVAL_S:
+        kept.insert(0, max(older))          # older than every kept ask: order stays
+    if len(kept) >= MAX_ASKS_CAP:
+        # at most MAX_ASKS_CAP in all (what a decision document carries): drop the earliest
+        # stamped, never the latest; with any daily cap allowed, 999 others already bind it
+        kept = sorted(kept)[len(kept) - (MAX_ASKS_CAP - 1):]
+    return replace(record, ask_times_s=tuple(kept) + (now_s,))
 
 
 def note_outcome(record: PersonRecord, event: OutcomeEvent, model: SiteModel) -> PersonRecord:

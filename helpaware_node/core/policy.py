@@ -174,10 +174,11 @@ def _limits(cand: Candidate, busyness: float, now_s: float, config: DecisionConf
         return Exclusion.TOO_FAR
     if busyness >= config.busyness_limit:
         return Exclusion.TOO_BUSY
-    recent = [t for t in cand.ask_times_s if now_s - t < DAY_S]
-    if any(now_s - t < config.min_reask_interval_s for t in recent):
+    # the interval against every remembered ask, not only the last day's (an ask stamped
+    # after now_s, from a clock that jumped back, counts as just made)
+    if any(now_s - t < config.min_reask_interval_s for t in cand.ask_times_s):
         return Exclusion.REASK_INTERVAL
-    if len(recent) >= config.max_asks_per_person_per_day:
+    if sum(1 for t in cand.ask_times_s if now_s - t < DAY_S) >= config.max_asks_per_person_per_day:
         return Exclusion.PERSON_DAILY_CAP
     if robot_capped:
         return Exclusion.ROBOT_HOURLY_CAP

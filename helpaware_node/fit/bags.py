@@ -1,6 +1,6 @@
 """Outcomes from bags: each outcome joined with the decision that asked (same request id and
 person), whose candidate row carries the busyness and ask load in force at the ask.
-Uses the review's bag loader (tools/review_data.py over tools/bagio.py)."""
+Uses the review's bag loader (review/data.py over the bag package)."""
 from __future__ import annotations
 
 from .data import RESULT_CODE, FitInputError, OutcomeData, from_arrays
@@ -9,9 +9,9 @@ from ..core.person import Result
 
 def read_outcome_bags(paths) -> OutcomeData:
     try:
-        from ..tools import review_data
+        from ..review import data as review_data
     except ImportError as exc:   # the bag reader is not available in this checkout
-        raise FitInputError(f"reading bags needs tools/review_data.py ({exc}); "
+        raise FitInputError(f"reading bags needs review/data.py ({exc}); "
                             "export the outcomes to CSV instead") from None
     person, xs, fs, res, skipped = [], [], [], [], 0
     for path in paths:

@@ -5,7 +5,8 @@ Each group's integral over u is centred at the mode of its integrand (Newton, ve
 over groups) and scaled by the curvature there, then evaluated with K Gauss-Hermite nodes
 (adaptive GHQ; K = 1 is the Laplace approximation).  Parameters (beta, log sigma) are found
 by L-BFGS-B on central-difference gradients of that smooth objective.  Binomial
-coefficients are included, so the log-likelihood compares with lme4's logLik.
+coefficients are included, so the log-likelihood compares with lme4's logLik.  Whether the fit
+reached its maximum is judged from the solution (fit/convergence.py), as for the site fit.
 """
 from __future__ import annotations
 
@@ -16,6 +17,8 @@ import numpy as np
 from scipy import optimize
 from scipy.special import expit, gammaln, roots_hermite
 
+from .convergence import (ConvergenceVerdict, Coordinate, IterationLog, assess_convergence,
+                          hessian_by_differences)
 from .progress import Progress
 from .site_likelihood import logsumexp
 
@@ -28,7 +31,17 @@ class GlmmFit:
     std_errors: np.ndarray          # beta then log sigma
     names: tuple[str, ...]
     iterations: int
-    converged: bool
+    verdict: ConvergenceVerdict
+
+    @property
+    def converged(self) -> bool:
+        return self.verdict.converged
+
+
+SIGMA_BOUNDS = (1e-4, 50.0)
+# a random-intercept sd below this (logit scale) counts as 0: a singular fit, which is an
+# answer; the optimiser only creeps towards log sigma = -inf, as L-BFGS-B does towards a bound
+SIGMA_AT_ZERO = 1e-3
 
 
 class RandomInterceptLogit:
@@ -103,39 +116,44 @@ class RandomInterceptLogit:
                 break
         return np.append(beta, math.log(0.5))
 
+    def coordinates(self, names: tuple[str, ...]) -> list[Coordinate]:
+        return [Coordinate(n) for n in names] + [Coordinate(
+            "sigma", low=math.log(SIGMA_AT_ZERO), high=math.log(SIGMA_BOUNDS[1]) - 1e-8,
+            low_natural=True, scale="log",
+            high_hint="the groups differ more than a normal random intercept describes: "
+                      "check the grouping column")]
+
     def fit(self, names=None, progress: Progress | None = None, max_iter: int = 200,
             standard_errors: bool = True) -> GlmmFit:
         theta0 = self.start()
         prog = progress or Progress("glmm", enabled=False)
-        bounds = [(None, None)] * (theta0.size - 1) + [(math.log(1e-4), math.log(50.0))]
-        res = optimize.minimize(lambda t: (self._obj(t), self._grad(t)), theta0, jac=True,
-                                method="L-BFGS-B", bounds=bounds,
-                                callback=(lambda t: prog.step(f"log-likelihood {-self._obj(t):.3f}"))
-                                if prog.enabled else None,
+        bounds = [(None, None)] * (theta0.size - 1) + [tuple(math.log(b) for b in SIGMA_BOUNDS)]
+        log = IterationLog(lambda t: (self._obj(t), self._grad(t)),
+                           lambda ll: prog.step(f"log-likelihood {ll:.3f}"))
+        res = optimize.minimize(log, theta0, jac=True, method="L-BFGS-B", bounds=bounds,
+                                callback=log.callback,
                                 options={"maxiter": max_iter, "ftol": 1e-14, "gtol": 1e-7})
         theta = res.x
         ll = -self._obj(theta)
         prog.done(f"log-likelihood {ll:.3f}")
-        # Hessian by central differences of the gradient
         k = theta.size
         names = tuple(names) if names else tuple(f"b{i}" for i in range(k - 1))
-        if not standard_errors:
-            return GlmmFit(theta[:-1].copy(), float(math.exp(theta[-1])), ll, np.full(k, math.nan),
-                           names, int(res.nit), bool(res.success))
-        hess = np.zeros((k, k))
-        h = 1e-4
-        for i in range(k):
-            tp, tm = theta.copy(), theta.copy()
-            tp[i] += h
-            tm[i] -= h
-            hess[:, i] = (self._grad(tp) - self._grad(tm)) / (2 * h)
-        hess = 0.5 * (hess + hess.T)
-        try:
-            se = np.sqrt(np.maximum(np.diag(np.linalg.inv(hess)), 0.0))
-        except np.linalg.LinAlgError:
-            se = np.full(k, math.nan)
+        # Hessian of the log-likelihood from differences of the gradient: the verdict needs
+        # it, the standard errors reuse it (central for those; sigma > 0 is defined past its
+        # search bound)
+        grad = -np.asarray(res.jac)                # L-BFGS-B's last gradient is at res.x
+        hess = hessian_by_differences(lambda t: -self._grad(t), theta, range(k),
+                                      central=standard_errors, grad_at_z=grad)
+        verdict = assess_convergence(self.coordinates(names), theta, ll, grad, hess,
+                                     log.history, max_iter, str(res.message))
+        se = np.full(k, math.nan)
+        if standard_errors:
+            try:
+                se = np.sqrt(np.maximum(np.diag(np.linalg.inv(-hess)), 0.0))
+            except np.linalg.LinAlgError:
+                pass
         return GlmmFit(theta[:-1].copy(), float(math.exp(theta[-1])), ll, se, names,
-                       int(res.nit), bool(res.success))
+                       int(res.nit), verdict)
 
 
 def sequential_help_probability(beta, sigma, X, group, y, nodes: int = 40) -> np.ndarray:

@@ -60,6 +60,7 @@ class HeldOut:
     glmm_brier: float
     calibration: list = field(default_factory=list)
     base_rate: float = math.nan
+    unconverged: list = field(default_factory=list)   # "fold k model: reason" per failed fit
 
 
 def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: float = 0.8,
@@ -71,6 +72,7 @@ def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: 
     fold_of = rng.permutation(data.n_people) % folds
     y = (data.result == HELPED).astype(float)
     preds = {k: np.zeros(data.n_outcomes) for k in ("ss", "sn", "ns", "gs", "gn")}
+    unconverged = []
     for k in range(folds):
         if progress is not None:
             progress.step(f"fold {k + 1} of {folds}")
@@ -79,6 +81,8 @@ def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: 
         test = data.subset_people(test_people)
         rows = np.flatnonzero(np.isin(data.person, test_people))   # same order as `test`
         site = fit_site(train, notice_probability=notice_probability, standard_errors=False)
+        if not site.converged:
+            unconverged.append(f"fold {k + 1} site model: {site.verdict.reason}")
         lik = SiteLikelihood(test)
         node_seq = lik.sequential_help_probability(site.params)
         preds["ns"][rows] = node_seq
@@ -87,6 +91,8 @@ def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: 
         ytr = (train.result == HELPED).astype(float)
         g = RandomInterceptLogit(ytr, np.ones_like(ytr), glmm_design(train), train.person,
                                  nodes=glmm_nodes).fit(standard_errors=False)
+        if not g.converged:
+            unconverged.append(f"fold {k + 1} GLMM: {g.verdict.reason}")
         yte = (test.result == HELPED).astype(float)
         preds["gs"][rows] = sequential_help_probability(g.beta, g.sigma, glmm_design(test),
                                                         test.person, yte)
@@ -95,4 +101,4 @@ def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: 
                    log_loss(preds["gs"], y), log_loss(preds["gn"], y),
                    log_loss(preds["ns"], y),
                    brier(preds["ss"], y), brier(preds["gs"], y),
-                   calibration_table(preds["ss"], y), float(y.mean()))
+                   calibration_table(preds["ss"], y), float(y.mean()), unconverged)

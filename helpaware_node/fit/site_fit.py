@@ -7,7 +7,8 @@ Gradient: analytic in k_busy, k_load, q, tau (the Gauss-Jacobi nodes do not depe
 in log a0 and log b0 a five-point central difference of the exact quadrature (the nodes move
 with a0, b0; the integral is exact so the function is smooth to rounding).  Standard errors
 come from the Hessian (central differences of that gradient) on the transformed scale,
-carried back by the delta method.
+carried back by the delta method.  Whether the fit reached its maximum is judged from the
+solution itself (fit/convergence.py), never from the optimiser's status.
 """
 from __future__ import annotations
 
@@ -18,6 +19,8 @@ import numpy as np
 from scipy import optimize, stats
 from scipy.special import expit, logit
 
+from .convergence import (ConvergenceVerdict, Coordinate, IterationLog, assess_convergence,
+                          hessian_by_differences)
 from .data import HELPED, FitInputError, OutcomeData
 from .progress import Progress
 from .site_likelihood import SiteLikelihood, SiteParams
@@ -28,6 +31,29 @@ LOG_AB_BOUNDS = (math.log(1e-3), math.log(1e6))
 LOGIT_BOUNDS = (-30.0, 30.0)
 MIN_OUTCOMES = 10
 MIN_SPREAD = 1e-9                 # a covariate with less spread than this is "constant"
+BOUND_SLACK = 1e-8                # this close to a box bound counts as at it
+LOGIT_AT_LIMIT = 14.0             # |logit| beyond this: a probability within 1e-6 of 0 or 1
+BOUNDS = (LOG_AB_BOUNDS, LOG_AB_BOUNDS, (0.0, K_MAX), (0.0, K_MAX), LOGIT_BOUNDS, LOGIT_BOUNDS)
+PRIOR_HINTS = {"low_hint": "people look as if each always or never helps: collect more asks "
+                           "per person, or set prior_a and prior_b by hand",
+               "high_hint": "willingness shows no spread across people that the data can "
+                            "measure: collect more asks per person, or set prior_a and prior_b "
+                            "by hand"}
+K_HINT = "help practically stops as this covariate rises: check its scale in the data, or fix it"
+
+
+def coordinates() -> tuple[Coordinate, ...]:
+    """The optimiser's coordinates with their limits: a0, b0 have only search-range edges
+    (a Beta prior of strength 0 or infinity is no answer); k = 0 and probabilities of 0 or 1
+    are values the model allows."""
+    (la, ha), (lk, hk) = LOG_AB_BOUNDS, (0.0, K_MAX)
+    prior = dict(low=la + BOUND_SLACK, high=ha - BOUND_SLACK, scale="log", **PRIOR_HINTS)
+    k = dict(low=lk + BOUND_SLACK, high=hk - BOUND_SLACK, low_natural=True, high_hint=K_HINT)
+    prob = dict(low=-LOGIT_AT_LIMIT, high=LOGIT_AT_LIMIT, low_natural=True, high_natural=True,
+                scale="logit")
+    return (Coordinate("prior_a", **prior), Coordinate("prior_b", **prior),
+            Coordinate("k_busy", **k), Coordinate("k_load", **k),
+            Coordinate("notice_probability", **prob), Coordinate("decline_aloud", **prob))
 
 
 def to_theta(p: SiteParams) -> np.ndarray:
@@ -87,7 +113,6 @@ class Objective:
 
     def __call__(self, z: np.ndarray) -> tuple[float, np.ndarray]:
         ll, g = self.loglik_and_grad(self.full(z))
-        self.last_loglik = ll          # for progress lines, without another evaluation
         if not math.isfinite(ll):
             return 1e300, np.zeros(int(np.sum(self.free)))
         return -ll, -g[self.free]
@@ -102,10 +127,14 @@ class SiteFit:
     std_errors: dict[str, float] = field(default_factory=dict)   # natural scale
     at_bound: tuple[str, ...] = ()
     iterations: int = 0
-    converged: bool = True
     messages: list[str] = field(default_factory=list)
     n_people: int = 0
     n_outcomes: int = 0
+    verdict: ConvergenceVerdict | None = None    # from the solution (fit/convergence.py)
+
+    @property
+    def converged(self) -> bool:
+        return self.verdict is not None and self.verdict.converged
 
 
 def moments_start(data: OutcomeData) -> tuple[float, float]:
@@ -183,64 +212,63 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
     free = np.array([name not in fixed_values for name in NAMES])
     if not lik.use_reporting_factor:
         free[5] = False
-    bounds_all = [LOG_AB_BOUNDS, LOG_AB_BOUNDS, (0.0, K_MAX), (0.0, K_MAX), LOGIT_BOUNDS,
-                  LOGIT_BOUNDS]
+    bounds_all = list(BOUNDS)
     obj = Objective(lik, free, theta0)
     prog = progress or Progress("fit", enabled=False)
-
-    def callback(z):
-        prog.step(f"log-likelihood {getattr(obj, 'last_loglik', float('nan')):.3f}")
-
-    res = optimize.minimize(obj, theta0[free], jac=True, method="L-BFGS-B",
+    log = IterationLog(obj, lambda ll: prog.step(f"log-likelihood {ll:.3f}"))
+    res = optimize.minimize(log, theta0[free], jac=True, method="L-BFGS-B",
                             bounds=[b for b, f in zip(bounds_all, free) if f],
-                            callback=callback if prog.enabled else None,
+                            callback=log.callback,
                             options={"maxiter": max_iter, "ftol": 1e-13, "gtol": 1e-7})
     theta = obj.full(res.x)
-    ll = obj.loglik_theta(theta)
+    grad = np.zeros(6)
+    grad[free] = -np.asarray(res.jac)            # L-BFGS-B's last gradient is at res.x
+    ll = -float(res.fun) if res.fun < 1e300 else obj.loglik_theta(theta)
     prog.done(f"log-likelihood {ll:.3f}")
     params = from_theta(theta)
     for k, v in fixed_values.items():       # exact fixed values (no logit round trip)
         params = replace(params, **{k: v})
-    free_names = tuple(n for n, f in zip(NAMES, free) if f)
+    free_idx = np.flatnonzero(free)
+    free_names = tuple(NAMES[i] for i in free_idx)
     at_bound = []
     for i, (name, f) in enumerate(zip(NAMES, free)):
-        if f and (theta[i] <= bounds_all[i][0] + 1e-8 or theta[i] >= bounds_all[i][1] - 1e-8):
+        if f and (theta[i] <= bounds_all[i][0] + BOUND_SLACK
+                  or theta[i] >= bounds_all[i][1] - BOUND_SLACK):
             at_bound.append(name)
-        elif f and i >= 4 and abs(theta[i]) > 14.0:   # a probability within 1e-6 of 0 or 1
+        elif f and i >= 4 and abs(theta[i]) > LOGIT_AT_LIMIT:
             at_bound.append(name)
     strength = params.prior_a + params.prior_b
     if strength > 1000.0:
         notes.append(f"willingness shows no detectable spread across people (prior_a + prior_b "
                      f"= {strength:.3g}): with this prior the node would barely learn per person; "
                      "collect more asks per person before using it")
-    fit = SiteFit(params, ll, free_names, reasons, iterations=int(res.nit),
-                  converged=bool(res.success), messages=notes, at_bound=tuple(at_bound),
-                  n_people=data.n_people, n_outcomes=data.n_outcomes)
-    if not res.success:
-        notes.append(f"optimiser stopped: {res.message}")
+    # curvature on every free coordinate: the verdict needs it, the standard errors reuse it
+    # (central differences for those; one-sided, half the gradients, for the verdict alone)
+    lows, highs = np.array([b[0] for b in bounds_all]), np.array([b[1] for b in bounds_all])
+    hess = hessian_by_differences(lambda t: obj.loglik_and_grad(t)[1], theta, free_idx,
+                                  lower=lows, upper=highs, central=standard_errors,
+                                  grad_at_z=grad)
+    coords = coordinates()
+    verdict = assess_convergence([coords[i] for i in free_idx], theta[free_idx], ll,
+                                 grad[free_idx], hess[np.ix_(free_idx, free_idx)], log.history,
+                                 max_iter, str(res.message))
+    fit = SiteFit(params, ll, free_names, reasons, iterations=int(res.nit), messages=notes,
+                  at_bound=tuple(at_bound), n_people=data.n_people, n_outcomes=data.n_outcomes,
+                  verdict=verdict)
     if standard_errors:
-        fit.std_errors = hessian_std_errors(obj, theta, free, at_bound)
+        fit.std_errors = std_errors_from_hessian(hess, theta, free, at_bound)
     return fit
 
 
-def hessian_std_errors(obj: Objective, theta: np.ndarray, free: np.ndarray,
-                       at_bound: list[str], h: float = 1e-4) -> dict[str, float]:
-    """Observed information from central differences of the gradient, on the interior free
-    coordinates; delta method to the natural scale."""
+def std_errors_from_hessian(hess: np.ndarray, theta: np.ndarray, free: np.ndarray,
+                            at_bound: list[str]) -> dict[str, float]:
+    """Observed information (the log-likelihood's Hessian from central differences of the
+    gradient) on the interior free coordinates; delta method to the natural scale."""
     idx = [i for i in range(6) if free[i] and NAMES[i] not in at_bound]
     if not idx:
         return {}
-    hess = np.zeros((len(idx), len(idx)))
-    for col, i in enumerate(idx):
-        tp, tm = theta.copy(), theta.copy()
-        tp[i] += h
-        tm[i] -= h
-        gp = obj.loglik_and_grad(tp)[1]
-        gm = obj.loglik_and_grad(tm)[1]
-        hess[:, col] = (gp[idx] - gm[idx]) / (2 * h)
-    hess = 0.5 * (hess + hess.T)
     try:
-        cov = np.linalg.inv(-hess)
+        cov = np.linalg.inv(-hess[np.ix_(idx, idx)])
     except np.linalg.LinAlgError:
         return {NAMES[i]: math.nan for i in idx}
     jac = natural_jacobian(theta)
@@ -258,6 +286,7 @@ class ContextTest:
     p_value: float               # naive chi-square(df)
     p_value_boundary: float      # chi-bar-square mixture for a null on the boundary k = 0
     loglik_null: float
+    null_verdict: ConvergenceVerdict | None = None   # the fit with k = 0; the test needs both
 
 
 def context_test(data: OutcomeData, full: SiteFit, notice_probability: float = 0.8
@@ -280,4 +309,4 @@ def context_test(data: OutcomeData, full: SiteFit, notice_probability: float = 0
     weights = stats.binom.pmf(np.arange(df + 1), df, 0.5)
     p_bar = float(sum(w * (stats.chi2.sf(stat, j) if j > 0 else float(stat <= 0))
                       for j, w in enumerate(weights)))
-    return ContextTest(stat, df, p, p_bar, null.loglik)
+    return ContextTest(stat, df, p, p_bar, null.loglik, null.verdict)

@@ -20,7 +20,7 @@ from rclpy.node import Node
 from rclpy.parameter import Parameter
 from rclpy.qos import DurabilityPolicy, QoSProfile, ReliabilityPolicy
 
-from ..tools.bagio import BagWriter, normalise_type
+from ..bag import BagWriter, normalise_type
 
 Transform = Callable[[bytes], bytes]
 

@@ -1,14 +1,21 @@
-"""Fleet exchange: robots share outcome events on `fleet/outcomes` and merge them by event id.
+"""Fleet exchange: robots share signed events on one site-wide topic and merge them by id.
 
-Each message is one std_msgs/String JSON document (format in docs/store.md):
-  {"v": 1, "kind": "outcome", "event_id": ..., "person_key": ..., "time_s": ...,
-   "result": ..., "busyness": ..., "ask_load": ..., "request_kind": ...}
-  {"v": 1, "kind": "forget", "person_key": ..., "from": "<robot_id>"}
-Only hashed person keys travel; a message with anything else is refused.  The topic is
-reliable and transient local with a deep history, and a robot re-offers its most recent
-stored events at start, so a robot that starts late catches up.  The merge is store.append:
-idempotent by event id, and the fold orders events by (time, event id), so any arrival order
-and any duplication yield the same beliefs on every robot.
+The topic is `/helpaware/fleet` by default (the node's `fleet_topic` parameter): an absolute
+name, so robots in their own namespaces share it without remapping.  Each message is one
+std_msgs/String holding a signed document (helpaware_node/fleet_documents.py; format in
+docs/store.md, signatures and keys in docs/security.md): outcome events, forgets, opt-outs.
+A document that is unsigned, of the old unsigned format, signed for another site, signed with
+a key this robot does not hold, or whose signature does not match is dropped and counted by
+reason (`refusals`, shown in /diagnostics); the first of each reason is logged at once, later
+ones at most once a minute with their number.  None of them is stored or merged.
+
+The topic is reliable and transient local with a deep history, and a robot re-offers its most
+recent stored events and its opt-out list at start, so a robot that starts late catches up.
+The merge is store.append: idempotent by event id, and the fold orders events by (time, event
+id), so any arrival order and any duplication (a replay) yield the same beliefs everywhere.
+A forget or opt-out belongs to a request (its `request_id`); each robot applies one request
+once and answers it once with its own signed act, so the request reaches every robot, also
+those that were not listening when it was sent (they get it from a peer's history).
 
 Catch-up of a late joiner: the topic has no key, so a reader's KEEP_LAST depth is shared by
 ALL writers, and several peers' histories together (2 x 3 000) overflow a 5 000-deep reader
@@ -20,30 +27,35 @@ stores the queue in batches (one transaction, sorted by time) before anything le
 from __future__ import annotations
 
 import argparse
-import json
 import sys
 import threading
 import time
-from collections import deque
+from collections import OrderedDict, deque
 from typing import Callable, Iterable, Optional
 
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
 from ..core import CoreInputError, Result
+from ..fleet_documents import (MALFORMED, OLD_FORMAT, PRIVACY_KINDS, PrivacyAct,
+                               decode_document, encode_document)
+from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
+                       utc_text)
 from ..store.base import StoredEvent
-from ..store.sqlite import PERSON_KEY_RE, check_event
-from ..wire import lone_surrogate_at
+from .refusal_log import CountsRefusals, Refusals
 
-FLEET_TOPIC = "fleet/outcomes"
+FLEET_TOPIC = "/helpaware/fleet"    # site-wide: every robot of the site, whatever its namespace
 FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
-FORMAT_VERSION = 1
 MERGE_PERIOD_S = 0.05           # how often the queue of received fleet events is looked at
 MERGE_BATCH = 500               # events stored per tick at most (one transaction)
 MERGE_TICK_BUDGET_S = 0.1       # one-by-one appends (the node's ingest): work per tick at most
 MERGE_WAIT_S = 0.2              # a smaller batch waits this long for more (catch-up: 6 000
                                 # events out of order take 24 s one by one, 2 s in 500s)
 MAX_QUEUED = 200_000            # bound on events received but not yet stored (~40 peers' histories)
+MAX_REMEMBERED_REQUESTS = 100_000   # privacy requests applied this session (each applied once)
+REFUSAL_REASONS = (UNSIGNED, OLD_FORMAT, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, BAD_SIGNATURE,
+                   MALFORMED)
+DIAGNOSTICS_PREFIX = "fleet_outcomes"     # the /diagnostics keys of this link (unchanged name)
 
 Merged = Callable[[list[StoredEvent]], None]
 
@@ -62,100 +74,48 @@ def fleet_reader_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
                       durability=DurabilityPolicy.TRANSIENT_LOCAL)
 
 
-def encode_event(e: StoredEvent) -> str:
-    check_event(e)       # refuses anything but a hashed key
-    return json.dumps({"v": FORMAT_VERSION, "kind": "outcome", "event_id": e.event_id,
-                       "person_key": e.person_key, "time_s": float(e.time_s),
-                       "result": Result(e.result).value, "busyness": float(e.busyness),
-                       "ask_load": float(e.ask_load), "request_kind": e.request_kind or ""},
-                      separators=(",", ":"), sort_keys=True)
+def key_ring_of(store) -> KeyRing:
+    """The signing keys of the store's site key file (signing.py, store/keys.py)."""
+    return store.site_keys.key_ring()
 
 
-def encode_forget(person_key: str, robot_id: str) -> str:
-    if not PERSON_KEY_RE.match(person_key or ""):
-        raise CoreInputError("person_key: expected 64 lowercase hex digits")
-    return json.dumps({"v": FORMAT_VERSION, "kind": "forget", "person_key": person_key,
-                       "from": robot_id}, separators=(",", ":"), sort_keys=True)
-
-
-def _load_json(text: str, what: str):
-    """Parsed JSON, or CoreInputError (too deep nesting included)."""
-    try:
-        return json.loads(text)
-    except (ValueError, RecursionError) as exc:
-        raise CoreInputError(f"{what}: not JSON ({str(exc)[:80]})") from None
-
-
-def _refuse_surrogates(doc: dict, what: str, fields: tuple) -> None:
-    """A lone surrogate (JSON "\\ud800") cannot be hashed, stored in SQLite or published."""
-    for name in fields:
-        value = doc.get(name)
-        if isinstance(value, str) and lone_surrogate_at(value) is not None:
-            raise CoreInputError(f"{what}: {name} is not valid Unicode text (a lone surrogate)")
-
-
-EVENT_TEXT_FIELDS = ("kind", "event_id", "person_key", "result", "request_kind", "from")
-
-
-def decode(text: str):
-    """('outcome', StoredEvent) or ('forget', key); raises CoreInputError on a bad document."""
-    doc = _load_json(text, "fleet message")
-    if not isinstance(doc, dict) or doc.get("v") != FORMAT_VERSION:
-        raise CoreInputError(f"fleet message: expected a JSON object with v={FORMAT_VERSION}")
-    _refuse_surrogates(doc, "fleet message", EVENT_TEXT_FIELDS)
-    kind = doc.get("kind")
-    if kind == "forget":
-        key = doc.get("person_key", "")
-        if not isinstance(key, str) or not PERSON_KEY_RE.match(key):
-            raise CoreInputError("fleet message: person_key must be 64 lowercase hex digits")
-        return "forget", key
-    if kind != "outcome":
-        raise CoreInputError(f"fleet message: kind {kind!r} is not outcome or forget")
-    try:
-        e = StoredEvent(str(doc["event_id"]), str(doc["person_key"]), doc["time_s"],
-                        Result.parse(str(doc["result"])), doc["busyness"], doc["ask_load"],
-                        str(doc.get("request_kind", "")))
-        check_event(e)
-    except KeyError as exc:
-        raise CoreInputError(f"fleet message: missing field {exc.args[0]}") from None
-    except OverflowError:   # an integer beyond any float in time_s, busyness or ask_load
-        raise CoreInputError("fleet message: time_s, busyness and ask_load must be finite "
-                             "numbers in range") from None
-    return "outcome", e
-
-
-def merge(store, text: str, forgotten: set[str] | None = None,
+def merge(store, text: str, keys: KeyRing, forgotten: set[str] | None = None,
           append: Optional[Callable[[StoredEvent], bool]] = None,
-          on_forgotten: Optional[Callable[[str], None]] = None) -> list[StoredEvent]:
+          on_forgotten: Optional[Callable[[str], None]] = None,
+          now_s: Optional[float] = None) -> list[StoredEvent]:
     """Apply one fleet message to the store; returns the events that were new here.
 
     `append` defaults to store.append (the node passes its own ingest, which appends and
-    then updates what it holds in memory).
+    then updates what it holds in memory).  Raises CoreInputError for a refused document.
     """
-    kind, value = decode(text)
+    kind, value = decode_document(text, keys, now_s)
     if kind == "forget":
         if forgotten is not None:
-            forgotten.add(value)
-        store.forget(value)
+            forgotten.add(value.person_key)
+        store.forget(value.person_key)
         if on_forgotten is not None:
-            on_forgotten(value)
+            on_forgotten(value.person_key)
+        return []
+    if kind == "opt_out":
+        store.opt_out(value.person_key)
         return []
     if forgotten is not None and value.person_key in forgotten:
         return []        # forgotten this session: an older copy replayed by a peer
     return [value] if (append or store.append)(value) else []
 
 
-class FleetLink:
-    """Publishes this robot's outcomes and merges everyone else's into the store.
+class FleetLink(CountsRefusals):
+    """Publishes this robot's outcomes and privacy acts, and merges everyone else's.
 
     Received events are decoded (and refused) at once, queued, and stored by a timer in
     batches of up to MERGE_BATCH (a smaller batch after MERGE_WAIT_S), sorted by (time,
     event id): with the store's `append_many` in one transaction, else one `append` (or the
     owner's `append`) per event; an owner that learns per batch passes `append_many` (store
     the batch, then learn; returns the events stored).  Only after an event is stored does
-    anything learn from it (`on_merged`, or the owner's callback itself).  A forget is
-    applied at once, and a queued event of a forgotten key is dropped when its batch is
-    stored.
+    anything learn from it (`on_merged`, or the owner's callback itself).  A forget or an
+    opt-out is applied at once, and a queued event of a forgotten key is dropped when its
+    batch is stored.  Documents are signed with `keys` (default: the store's site key file)
+    and only documents signed with a key of that ring are taken.
     """
 
     def __init__(self, node, store, on_merged: Optional[Merged] = None,
@@ -163,33 +123,53 @@ class FleetLink:
                  replay: bool = True, append: Optional[Callable[[StoredEvent], bool]] = None,
                  on_forgotten: Optional[Callable[[str], None]] = None,
                  append_many: Optional[Callable[[list[StoredEvent]],
-                                                list[StoredEvent]]] = None) -> None:
+                                                list[StoredEvent]]] = None,
+                 keys: Optional[KeyRing] = None,
+                 clock: Callable[[], float] = time.time) -> None:
         self._node = node
         self._store = store
         self._on_merged = on_merged
         self._append = append
         self._append_many = append_many
         self._on_forgotten = on_forgotten
+        self._keys = keys if keys is not None else key_ring_of(store)
+        self._clock = clock                 # wall clock: the previous key's window, requests
+        self.topic = topic
+        self.sender = getattr(store, "robot_id", "") or "robot"
         self._forgotten: set[str] = set()
+        self._applied: OrderedDict[str, None] = OrderedDict()   # privacy requests done here
         self._lock = threading.RLock()
         self._queued: deque[StoredEvent] = deque()
         self._queued_since_s = 0.0      # monotonic time the oldest queued event arrived
         self.merged_count = 0
-        self.refused_count = 0
-        self.last_refusal = ""
         self.dropped_count = 0          # queue full (MAX_QUEUED): counted and logged
         self.store_failures = 0         # a batch the store refused: kept and tried again
+        self.acts_applied = 0           # forgets and opt-outs applied (each request once)
+        self._refused = Refusals(node.get_logger().warning, topic)   # by reason, logged once
         self._pub = node.create_publisher(String, topic, fleet_qos(depth))
         self._sub = node.create_subscription(String, topic, self._on_delivery,
                                              fleet_reader_qos(depth))
         self._timer = node.create_timer(MERGE_PERIOD_S, self._on_tick)
-        if replay and hasattr(store, "recent_events"):
-            self.publish_many(store.recent_events(depth))   # re-offer after a restart
+        k = self._keys
+        node.get_logger().info(
+            f"{topic}: signing as site {k.site_id} with key {k.current.key_id}" + (
+                f"; previous key {k.previous.key_id} accepted until "
+                f"{utc_text(k.previous_until_s)}" if k.previous is not None else ""))
+        if replay:                      # re-offer after a restart
+            if hasattr(store, "recent_events"):
+                self.publish_many(store.recent_events(depth))
+            if hasattr(store, "opted_out"):
+                for key in store.opted_out():
+                    self.publish_act(PrivacyAct.new("opt_out", key, self.sender, request_id=""))
 
     @property
     def entities(self) -> list:
         """Publisher, subscription and merge timer, for the owner's teardown."""
         return [self._pub, self._sub, self._timer]
+
+    @property
+    def keys(self) -> KeyRing:
+        return self._keys
 
     @property
     def queued_count(self) -> int:
@@ -198,22 +178,77 @@ class FleetLink:
 
     def publish(self, event: StoredEvent) -> None:
         """Share one outcome (call after store.append has returned True)."""
-        self._pub.publish(String(data=encode_event(event)))
+        self._pub.publish(String(data=encode_document("outcome", event, self._keys)))
 
     def publish_many(self, events: Iterable[StoredEvent]) -> None:
         for e in events:
             self.publish(e)
 
-    def forget(self, person_key: str) -> int:
-        """Forget here and ask every robot to forget too."""
-        with self._lock:
-            self._forgotten.add(person_key)
-            n = self._store.forget(person_key)
-        if self._on_forgotten is not None:
-            self._on_forgotten(person_key)
-        self._pub.publish(String(data=encode_forget(person_key, getattr(
-            self._store, "robot_id", ""))))
+    def publish_act(self, act: PrivacyAct) -> None:
+        self._pub.publish(String(data=encode_document(act.action, act, self._keys)))
+
+    def forget(self, person_key: str, request_id: Optional[str] = None) -> int:
+        """Forget here and ask every robot to forget too (a request of its own unless
+        `request_id` names the one this answers); returns the events removed here."""
+        act = PrivacyAct.new("forget", person_key, self.sender, request_id)
+        self._remember(act.identity)
+        n = self._forget_here(person_key)
+        self.publish_act(act)
         return n
+
+    def opt_out(self, person_key: str, request_id: Optional[str] = None) -> None:
+        """Opt out here and on every robot of the site."""
+        act = PrivacyAct.new("opt_out", person_key, self.sender, request_id)
+        self._remember(act.identity)
+        self._store.opt_out(person_key)
+        self.publish_act(act)
+
+    def apply_act(self, act: PrivacyAct) -> bool:
+        """A forget or opt-out received from the console or a peer: applied once per request,
+        and a request is answered once with this robot's own signed act (which also carries
+        it to robots that were not listening).  False when it was applied here already."""
+        if not self._remember(act.identity):
+            return False
+        if act.action == "forget":
+            self._forget_here(act.person_key)
+        else:
+            self._store.opt_out(act.person_key)
+        if act.request_id:          # a re-offered opt-out (no request) is not answered
+            self.publish_act(PrivacyAct.new(act.action, act.person_key, self.sender,
+                                            request_id=act.request_id))
+        return True
+
+    def _remember(self, identity: str) -> bool:
+        with self._lock:
+            if identity in self._applied:
+                return False
+            self._applied[identity] = None
+            while len(self._applied) > MAX_REMEMBERED_REQUESTS:
+                self._applied.popitem(last=False)
+            self.acts_applied += 1
+            return True
+
+    def _forget_here(self, key: str) -> int:
+        with self._lock:
+            self._forgotten.add(key)
+            n = self._store.forget(key)
+        if self._on_forgotten is not None:
+            self._on_forgotten(key)
+        return n
+
+    def diagnostic_values(self) -> dict:
+        """What /diagnostics shows of the link: queue, refusals by reason, keys in force."""
+        p, k = DIAGNOSTICS_PREFIX, self._keys
+        values = {f"{p}.queued": self.queued_count, f"{p}.dropped": self.dropped_count,
+                  f"{p}.store_failures": self.store_failures,
+                  f"{p}.privacy_acts_applied": self.acts_applied}
+        values.update({f"{p}.refused.{r}": self.refusals[r] for r in REFUSAL_REASONS})
+        values.update({"fleet.topic": self.topic, "fleet.site_id": k.site_id,
+                       "fleet.key_id": k.current.key_id,
+                       "fleet.previous_key_id": k.previous.key_id if k.previous else "",
+                       "fleet.previous_key_accepted_until": (
+                           utc_text(k.previous_until_s) if k.previous else "")})
+        return values
 
     # -- receiving
     def _on_delivery(self, msg: String) -> None:
@@ -222,12 +257,14 @@ class FleetLink:
         if item is None:
             return
         kind, value = item
-        if kind == "forget":
-            self._apply_forget(value)
+        if kind in PRIVACY_KINDS:
+            self.apply_act(value)
+        elif kind != "outcome":
+            return              # a kind this link does not merge
         elif len(self._queued) >= MAX_QUEUED:
             self.dropped_count += 1
             self._node.get_logger().error(
-                f"{FLEET_TOPIC}: {MAX_QUEUED} events waiting to be stored; dropped "
+                f"{self.topic}: {MAX_QUEUED} events waiting to be stored; dropped "
                 f"{value.event_id} (is the store very slow?)", throttle_duration_sec=10.0)
         else:
             if not self._queued:
@@ -251,20 +288,10 @@ class FleetLink:
 
     def _decode_counted(self, text: str):
         try:
-            return decode(text)
+            return decode_document(text, self._keys, self._clock())
         except CoreInputError as exc:
-            self.refused_count += 1
-            self.last_refusal = str(exc)[:200]
-            self._node.get_logger().warning(f"{FLEET_TOPIC}: refused a message: {exc}",
-                                            throttle_duration_sec=10.0)
+            self._refused.add(exc)
             return None
-
-    def _apply_forget(self, key: str) -> None:
-        with self._lock:
-            self._forgotten.add(key)
-            self._store.forget(key)
-        if self._on_forgotten is not None:
-            self._on_forgotten(key)
 
     def _on_tick(self) -> None:
         """The timer: store a full batch at once, a smaller one once it waited MERGE_WAIT_S."""
@@ -291,7 +318,7 @@ class FleetLink:
         if error is not None:                # disk full, read-only...: kept, tried again
             self.store_failures += 1
             self._node.get_logger().error(
-                f"{FLEET_TOPIC}: the store refused fleet events ({error}); {len(rest)} kept "
+                f"{self.topic}: the store refused fleet events ({error}); {len(rest)} kept "
                 "and tried again", throttle_duration_sec=10.0)
         if new:
             self.merged_count += len(new)
@@ -323,78 +350,13 @@ class FleetLink:
         return stored, [], None
 
 
-PRIVACY_TOPIC = "privacy_request"
-PRIVACY_ACTIONS = ("opt_out", "forget")
-
-
-def parse_privacy_request(text: str, key_for: Callable[[str], str]) -> tuple[str, str]:
-    """(action, person_key) from {"action": "opt_out"|"forget", "person_id"|"person_key": ...}.
-
-    A perceived id is hashed at once and never kept or logged.
-    """
-    doc = _load_json(text, PRIVACY_TOPIC)
-    if not isinstance(doc, dict):
-        raise CoreInputError(f"{PRIVACY_TOPIC}: expected a JSON object")
-    _refuse_surrogates(doc, PRIVACY_TOPIC, ("action", "person_id", "person_key"))
-    action = doc.get("action")
-    if action not in PRIVACY_ACTIONS:
-        raise CoreInputError(f"{PRIVACY_TOPIC}: action {action!r} is not one of "
-                             f"{', '.join(PRIVACY_ACTIONS)}")
-    if isinstance(doc.get("person_key"), str):
-        key = doc["person_key"].strip().lower()
-        if not PERSON_KEY_RE.match(key):
-            raise CoreInputError(f"{PRIVACY_TOPIC}: person_key must be 64 hex digits")
-    elif isinstance(doc.get("person_id"), str) and doc["person_id"]:
-        key = key_for(doc["person_id"])
-    else:
-        raise CoreInputError(f"{PRIVACY_TOPIC}: give person_id (perceived id) or person_key")
-    return action, key
-
-
-class PrivacyRequests:
-    """Live opt-out and forget through the node: a std_msgs/String JSON topic.
-
-    `on_applied(action, key)` lets the node drop what it holds in memory at once.
-    """
-
-    def __init__(self, node, store, fleet: Optional[FleetLink] = None,
-                 on_applied: Optional[Callable[[str, str], None]] = None,
-                 topic: str = PRIVACY_TOPIC) -> None:
-        self._node, self._store, self._fleet, self._on_applied = node, store, fleet, on_applied
-        self.refused_count = 0        # counted like the node's input topics (diagnostics)
-        self.last_refusal = ""
-        qos = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE,
-                         durability=DurabilityPolicy.VOLATILE)
-        self._sub = node.create_subscription(String, topic, self._on_message, qos)
-
-    def apply(self, text: str) -> tuple[str, str]:
-        action, key = parse_privacy_request(text, self._store.key_for)
-        if action == "opt_out":
-            self._store.opt_out(key)
-        elif self._fleet is not None:
-            self._fleet.forget(key)
-        else:
-            self._store.forget(key)
-        if self._on_applied is not None:
-            self._on_applied(action, key)
-        return action, key
-
-    def _on_message(self, msg: String) -> None:
-        try:
-            action, key = self.apply(msg.data)
-        except CoreInputError as exc:
-            self.refused_count += 1
-            self.last_refusal = str(exc)[:200]
-            self._node.get_logger().warning(str(exc), throttle_duration_sec=1.0)
-            return
-        self._node.get_logger().info(f"{PRIVACY_TOPIC}: {action} applied to {key[:12]}...")
-
-
 # -- a small stand-alone peer (tests, trying the exchange by hand) ------------------------
 def run_peer(argv: list[str] | None = None) -> int:
-    """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'quit'.
+    """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'counts',
+    'quit'.
 
-    Prints 'ready', 'ack EVENT_ID', 'merged EVENT_ID', 'belief A B' (repr floats).
+    Prints 'ready', 'ack EVENT_ID', 'merged EVENT_ID', 'belief A B' (repr floats),
+    'counts merged=N refused=N <reason>=N ...'.
     """
     import rclpy
     from rclpy.executors import SingleThreadedExecutor
@@ -407,6 +369,7 @@ def run_peer(argv: list[str] | None = None) -> int:
     p.add_argument("--robot-id", required=True)
     p.add_argument("--depth", type=int, default=FLEET_HISTORY_DEPTH,
                    help="history kept per publisher and re-offered at start (messages)")
+    p.add_argument("--topic", default=FLEET_TOPIC, help=f"fleet topic (default {FLEET_TOPIC})")
     args = p.parse_args(argv)
     if args.depth < 1:
         p.error(f"--depth: {args.depth} must be >= 1")
@@ -421,7 +384,7 @@ def run_peer(argv: list[str] | None = None) -> int:
     rclpy.init()
     node = rclpy.create_node(f"fleet_peer_{args.robot_id}")
     link = FleetLink(node, store, lambda evs: [say(f"merged {e.event_id}") for e in evs],
-                     depth=args.depth)
+                     depth=args.depth, topic=args.topic)
     executor = SingleThreadedExecutor()
     executor.add_node(node)
     spin = threading.Thread(target=executor.spin, daemon=True)
@@ -443,6 +406,9 @@ def run_peer(argv: list[str] | None = None) -> int:
             elif parts[0] == "belief":
                 b, _ = store.belief(store.key_for(parts[1]))
                 say(f"belief {b.a!r} {b.b!r}")
+            elif parts[0] == "counts":
+                say(f"counts merged={link.merged_count} refused={link.refused_count} "
+                    + " ".join(f"{r}={link.refusals[r]}" for r in REFUSAL_REASONS))
     finally:
         executor.shutdown(timeout_sec=1.0)
         node.destroy_node()
@@ -450,6 +416,9 @@ def run_peer(argv: list[str] | None = None) -> int:
         store.close()
     return 0
 
+
+# the privacy topic lives in ros/privacy.py; ros/node.py imports both from here
+from .privacy import PRIVACY_TOPIC, PrivacyRequests  # noqa: E402,F401
 
 if __name__ == "__main__":
     sys.exit(run_peer())

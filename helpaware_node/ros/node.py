@@ -1,6 +1,7 @@
 """The decision node: people, help needs and outcomes in; decisions, markers, diagnostics out.
 
-Topics (all relative names, so namespaces and remaps work):
+Topics (relative names, so namespaces and remaps work; the fleet and privacy topics are
+site-wide, absolute by default: parameters fleet_topic and privacy_topic):
   in  people       std_msgs/String (wire `people`), sensor-data QoS (best effort, depth 5)
   in  task_status  std_msgs/String (wire `task_status`), reliable, depth 1000
   in  outcome      std_msgs/String (wire `outcome`), reliable, depth 1000
@@ -8,6 +9,8 @@ Topics (all relative names, so namespaces and remaps work):
   out decision     std_msgs/String (wire `decision`), reliable, depth 50
   out markers      visualization_msgs/MarkerArray
   out /diagnostics diagnostic_msgs/DiagnosticArray, about 1 Hz
+  in+out <fleet_topic> (default /helpaware/fleet) signed fleet documents (ros/fleet.py)
+  in  <privacy_topic> (default /helpaware/privacy_request) signed requests (ros/privacy.py)
 Every decision goes through core.policy.decide; every outcome becomes a StoredEvent appended to
 the store before the belief changes (`_ingest_event`; peers' events in batches through
 `_ingest_fleet_events`).
@@ -205,11 +208,13 @@ class HelpAwareNode(LifecycleNode):
         timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
-        # fleet/outcomes in and out, and live opt-out/forget on privacy_request (docs/store.md)
+        # fleet documents in and out, and live opt-out/forget on privacy_request (docs/store.md)
+        # [signed-fleet] topics and the unsigned-request switch come from parameters
         self.fleet = FleetLink(self, self.store, append_many=self._ingest_fleet_events,
-                               on_forgotten=self._forget_in_memory)
+                               on_forgotten=self._forget_in_memory, topic=s.fleet_topic)
         self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
-            self._forget_in_memory(key) if action == "forget" else None))
+            self._forget_in_memory(key) if action == "forget" else None),
+            topic=s.privacy_topic, allow_unsigned=s.allow_unsigned_privacy_requests)
         self._entities += self.fleet.entities + [self.privacy._sub]
 
     def on_activate(self, state: LifecycleState) -> TransitionCallbackReturn:
@@ -691,11 +696,7 @@ class HelpAwareNode(LifecycleNode):
         for name, part in self._side_inputs():
             values[f"{name}.rejected"] = part.refused_count
             values[f"{name}.last_rejection"] = part.last_refusal
-        fleet = getattr(self, "fleet", None)
-        if fleet is not None:
-            values.update({"fleet_outcomes.queued": fleet.queued_count,
-                           "fleet_outcomes.dropped": fleet.dropped_count,
-                           "fleet_outcomes.store_failures": fleet.store_failures})
+            values.update(part.diagnostic_values())   # [signed-fleet] refusals by reason, keys
         store_name = type(self.store).__name__ if self.store is not None else "closed"
         values.update({
             "open_needs": len(self.needs), "pending_asks": len(self.pending),

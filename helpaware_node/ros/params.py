@@ -12,8 +12,8 @@ import math
 from dataclasses import dataclass
 from typing import Any, Callable, Optional
 
-from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, CoreInputError, DecisionConfig,
-                          SiteModel)
+from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, MAX_REASK_INTERVAL_S,
+                          CoreInputError, DecisionConfig, SiteModel)
 
 MODEL_DEFAULTS = SiteModel()
 CONFIG_DEFAULTS = DecisionConfig()
@@ -81,7 +81,8 @@ CONFIG_PARAMS = [
     _c("future_discount_time_s", "exponential discount time of later requests", "seconds", 1e-3, 1e12),
     _c("prior_candidate_rate_per_day", "prior rate of being a candidate at a need", "per day", 0.0, 1e9),
     _c("prior_rate_window_s", "weight of that prior rate", "seconds", 1e-3, 1e12),
-    _c("min_reask_interval_s", "minimum interval before asking the same person again", "seconds", 0.0, 1e9),
+    _c("min_reask_interval_s", "minimum interval before asking the same person again "
+       "(at most 30 days)", "seconds", 0.0, MAX_REASK_INTERVAL_S),
     _c("max_asks_per_person_per_day", "most asks of one person in 24 h", "asks per day", 0,
        MAX_ASKS_CAP),
     _c("max_asks_per_hour", "most asks by this robot in one hour", "asks per hour", 0,
@@ -114,6 +115,16 @@ NODE_PARAMS = [
     ParamSpec("diagnostics_period_s", 1.0, "period of /diagnostics and markers", "seconds", 0.1, 60.0,
               read_only=True),
     ParamSpec("asking_enabled", True, "operator switch: false means always continue", "flag"),
+    # site-wide topics (absolute by default, so robots in their own namespaces share them)
+    ParamSpec("fleet_topic", "/helpaware/fleet",
+              "signed fleet documents shared by every robot of the site (outcomes, forgets, "
+              "opt-outs)", "topic name", read_only=True),
+    ParamSpec("privacy_topic", "/helpaware/privacy_request",
+              "signed opt-out and forget requests from `helpaware privacy`", "topic name",
+              read_only=True),
+    ParamSpec("allow_unsigned_privacy_requests", False,
+              "take unsigned opt-out/forget requests on privacy_topic (a lab setup only: anyone "
+              "on the ROS graph could then send them)", "flag", read_only=True),
     # input watchdog (helpaware_node/input_watch.py, docs/integration.md "Respawn")
     ParamSpec("people_silence_warn_s", 10.0,
               "/diagnostics WARN, and one log line, when no people message arrived for longer "
@@ -146,6 +157,9 @@ class NodeSettings:
     max_asks_per_need: int
     diagnostics_period_s: float
     asking_enabled: bool
+    fleet_topic: str
+    privacy_topic: str
+    allow_unsigned_privacy_requests: bool
     people_silence_warn_s: float
     task_status_silence_warn_s: float
 
@@ -171,6 +185,13 @@ def build(values: dict[str, Any], pairs: bool = True
     node_values = {f.name: values[f.name] for f in dataclasses.fields(NodeSettings)}
     if "/" in str(node_values["robot_id"]):   # event ids are "<robot_id>/<sequence>"
         raise CoreInputError(f"robot_id: {node_values['robot_id']!r} must not contain '/'")
+    for name in ("fleet_topic", "privacy_topic"):
+        if not node_values[name]:
+            raise CoreInputError(f"{name}: must not be empty (the default is "
+                                 f"{next(s.default for s in NODE_PARAMS if s.name == name)})")
+    if node_values["fleet_topic"] == node_values["privacy_topic"]:
+        raise CoreInputError(f"privacy_topic: must differ from fleet_topic "
+                             f"({node_values['fleet_topic']!r})")
     for s in NODE_PARAMS:
         if s.low is not None and s.name in node_values:
             v = node_values[s.name]
@@ -224,7 +245,8 @@ class NodeParameters:
             node.declare_parameter(spec.name, spec.default, desc)
         self._declaring = False
         self.model, self.config, self.settings = build(self.values)  # pairs, from the file too
-        _check_topic(node, self.settings.navigation_status_topic)
+        for name in ("navigation_status_topic", "fleet_topic", "privacy_topic"):
+            _check_topic(node, name, getattr(self.settings, name))
         # a misspelt name in a parameter file is ignored by ROS: say so, naming it
         overrides = getattr(node, "_parameter_overrides", {}) or {}
         self.unknown_overrides = sorted(n for n in overrides if not node.has_parameter(n))
@@ -259,7 +281,7 @@ _EMPTY_LIST = ("has no value: an empty list [] carries no type in a ROS 2 parame
                "leave the parameter out for its default")
 
 
-def _check_topic(node, topic: str) -> None:
+def _check_topic(node, name: str, topic: str) -> None:
     """A topic name rclpy cannot resolve would fail the configure step with no message."""
     if not topic:
         return
@@ -267,7 +289,7 @@ def _check_topic(node, topic: str) -> None:
         node.resolve_topic_name(topic)
     except Exception as exc:   # rclpy's InvalidTopicNameException or an RCLError
         first = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
-        raise CoreInputError(f"navigation_status_topic: {topic!r} is not a valid topic name "
+        raise CoreInputError(f"{name}: {topic!r} is not a valid topic name "
                              f"({first[:120]})") from None
 
 

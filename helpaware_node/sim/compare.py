@@ -7,7 +7,7 @@ from typing import Optional, Sequence
 
 from ..core import DecisionConfig, SiteModel
 from ..core.baselines import POLICY_NAMES
-from ..tools.table import render_table
+from ..text_table import render_table
 from .metrics import run_metrics, summarise
 from .run import run_policy
 from .scenario import Scenario

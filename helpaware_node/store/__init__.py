@@ -6,8 +6,8 @@ import socket
 
 from ..core import SiteModel
 from .base import BeliefStore, MemoryStore, StoredEvent, StoreHealth, person_key
-from .keys import (KEY_FILE_NAME, SiteKeyError, default_key_path, default_store_path, key_fingerprint,
-                   load_site_key)
+from .keys import (KEY_FILE_NAME, SiteKeyError, SiteKeys, default_key_path, default_store_path,
+                   key_fingerprint, load_site_key, load_site_keys)
 from .sqlite import SqliteStore, StoreCorruptError
 from .schema import SCHEMA_VERSION, StoreVersionError
 
@@ -28,13 +28,18 @@ def open_store(path: str = "", robot_id: str = "", model: SiteModel | None = Non
     """
     if not path:
         return MemoryStore(robot_id=robot_id or default_robot_id())
-    site_key = load_site_key(key_path or os.path.join(os.path.dirname(os.path.abspath(path)),
-                                                      KEY_FILE_NAME))
-    return SqliteStore(path, robot_id or default_robot_id(), site_key, model=model,
+    site_keys = load_site_keys(key_path or key_path_for(path))
+    return SqliteStore(path, robot_id or default_robot_id(), site_keys, model=model,
                        retention_days=retention_days)
+
+
+def key_path_for(store_path: str) -> str:
+    """The site key file a store file uses by default: `site_key` in the same directory."""
+    return os.path.join(os.path.dirname(os.path.abspath(store_path)), KEY_FILE_NAME)
 
 
 __all__ = ["BeliefStore", "MemoryStore", "SqliteStore", "StoredEvent", "StoreHealth",
            "StoreCorruptError", "StoreVersionError", "SiteKeyError", "SCHEMA_VERSION",
-           "person_key", "open_store", "load_site_key", "key_fingerprint", "default_robot_id",
+           "person_key", "open_store", "load_site_key", "load_site_keys", "SiteKeys",
+           "key_path_for", "key_fingerprint", "default_robot_id",
            "default_store_path", "default_key_path"]

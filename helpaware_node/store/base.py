@@ -13,6 +13,7 @@ from dataclasses import dataclass
 from typing import Iterable, Protocol
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
+from .keys import SiteKeys
 
 
 @dataclass(frozen=True)
@@ -63,8 +64,11 @@ class BeliefStore(Protocol):
 class MemoryStore:
     """A store that keeps everything in this process (tests, simulator, no-disk runs)."""
 
-    def __init__(self, site_key: bytes | None = None, robot_id: str = "robot") -> None:
-        self._site_key = site_key if site_key is not None else os.urandom(32)
+    def __init__(self, site_key: bytes | SiteKeys | None = None, robot_id: str = "robot") -> None:
+        if not isinstance(site_key, SiteKeys):
+            site_key = SiteKeys.single(site_key if site_key is not None else os.urandom(32))
+        self.site_keys = site_key          # hashing key, and the fleet signing roots
+        self._site_key = site_key.person_id_key
         self.robot_id = robot_id
         self.health = StoreHealth("OK", "in memory (nothing kept after exit)")
         self._next_seq = 1
@@ -103,6 +107,9 @@ class MemoryStore:
 
     def opt_out(self, key: str) -> None:
         self._opted_out.add(key)
+
+    def opted_out(self) -> list[str]:
+        return sorted(self._opted_out)
 
     def forget(self, key: str) -> int:
         ids = self._by_key.pop(key, [])

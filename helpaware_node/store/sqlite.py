@@ -27,7 +27,7 @@ from typing import Iterable, Iterator
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import CoreInputError, from_plain, to_plain
 from .base import StoredEvent, StoreHealth, person_key
-from .keys import SiteKeyError, key_fingerprint
+from .keys import SiteKeyError, SiteKeys, key_fingerprint
 from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
 
 DAY_S = 86400.0
@@ -88,7 +88,7 @@ def move_aside(path: Path) -> Path:
 class SqliteStore:
     """BeliefStore on one SQLite file (see the module doc and docs/store.md)."""
 
-    def __init__(self, path: str | os.PathLike, robot_id: str, site_key: bytes,
+    def __init__(self, path: str | os.PathLike, robot_id: str, site_key: bytes | SiteKeys,
                  model: SiteModel | None = None, retention_days: float = 0.0,
                  integrity_check: bool = True) -> None:
         if not robot_id or "/" in robot_id:
@@ -98,6 +98,10 @@ class SqliteStore:
         self._given_model = model
         self.model = model or SiteModel()
         self._model_hash = model_hash(self.model)
+        # the site key file's keys: person ids are hashed with person_id_key; the fleet link
+        # derives its signing keys from the rest (signing.py)
+        self.site_keys = site_key if isinstance(site_key, SiteKeys) else SiteKeys.single(site_key)
+        site_key = self.site_keys.person_id_key
         self._site_key = site_key
         self._fingerprint = key_fingerprint(site_key)
         self._lock = threading.RLock()

@@ -1,9 +1,10 @@
 """`helpaware fit INPUT... --out tuned.yaml`: site constants from logged outcomes.
 
 Inputs are outcome CSV files (the store export) or bags.  Prints the estimates with standard
-errors, the likelihood-ratio test of the context terms, held-out log loss of the site model
-beside a random-intercept logistic model (GLMM), and a calibration table; writes the node's
-parameter file.
+errors and the convergence verdict, the likelihood-ratio test of the context terms, held-out
+log loss of the site model beside a random-intercept logistic model (GLMM), and a calibration
+table; writes the node's parameter file.  Exit codes: 0 written; 2 bad arguments or input;
+3 the fit did not converge (the verdict line says why; nothing written).
 """
 from __future__ import annotations
 
@@ -18,9 +19,12 @@ from ..fit.heldout import kfold
 from ..fit.paramfile import DEFAULT_NODE_NAME, render_param_file
 from ..fit.progress import Progress
 from ..fit.site_fit import NAMES, context_test, fit_site
-from .table import render_table
+from ..text_table import render_table
 
 LONG_FIT_ROWS = 20000
+NOT_CONVERGED = 3
+# the option behind a verdict's "what to try", where the command has one
+CAUSE_OPTION = {"iteration_limit": "--max-iter", "still_rising": "--max-iter"}
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -38,6 +42,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
                         help="rebuilds ask_load from ask times when the CSV has no ask_load")
     parser.add_argument("--no-busy", action="store_true", help="fix k_busy at 0")
     parser.add_argument("--no-load", action="store_true", help="fix k_load at 0")
+    parser.add_argument("--max-iter", type=int, default=500,
+                        help="iteration limit of the optimiser (default 500)")
     parser.add_argument("--progress", choices=("auto", "on", "off"), default="auto",
                         help="progress lines on stderr (auto: for long fits)")
 
@@ -57,10 +63,17 @@ def _fmt(v: float) -> str:
     return "n/a" if v is None or (isinstance(v, float) and math.isnan(v)) else f"{v:.4g}"
 
 
+def verdict_line(verdict) -> str:
+    """The verdict as printed, with the option to change where the command has one."""
+    option = CAUSE_OPTION.get(verdict.cause)
+    return verdict.line() + (f" ({option})" if option else "")
+
+
 def run(args: argparse.Namespace) -> int:
     for name, value, low, high in (("--notice-probability", args.notice_probability, 0.0, 1.0),
                                    ("--ask-memory-half-life-s", args.ask_memory_half_life_s,
-                                    1e-9, 1e12), ("--folds", args.folds, 0, 1000)):
+                                    1e-9, 1e12), ("--folds", args.folds, 0, 1000),
+                                   ("--max-iter", args.max_iter, 1, 100000)):
         if not low <= value <= high:
             print(f"fit: {name} {value!r} is outside [{low:g}, {high:g}]", file=sys.stderr)
             return 2
@@ -70,7 +83,7 @@ def run(args: argparse.Namespace) -> int:
                                          and data.n_outcomes >= LONG_FIT_ROWS)
         fit = fit_site(data, fix_k_busy=args.no_busy, fix_k_load=args.no_load,
                        notice_probability=args.notice_probability,
-                       progress=Progress("fit", enabled=show))
+                       progress=Progress("fit", enabled=show), max_iter=args.max_iter)
     except FitInputError as exc:
         print(f"fit: {exc}", file=sys.stderr)
         return 2
@@ -93,9 +106,17 @@ def run(args: argparse.Namespace) -> int:
             status = "fitted"
         rows.append((name, f"{value:.4f}", _fmt(fit.std_errors.get(name)), status))
     print(render_table(("constant", "estimate", "std error", ""), rows, (False, True, True, False)))
-    print(f"log marginal likelihood {fit.loglik:.3f} ({fit.iterations} iterations"
-          f"{'' if fit.converged else ', NOT converged'})")
+    print(f"log marginal likelihood {fit.loglik:.3f} ({fit.iterations} iterations)")
+    print(verdict_line(fit.verdict))
+    if not fit.converged:
+        print(f"fit: not converged, no parameter file written: {fit.verdict.reason}",
+              file=sys.stderr)
+        return NOT_CONVERGED
     test = context_test(data, fit, args.notice_probability)
+    if test is not None and not test.null_verdict.converged:
+        print(f"context terms (k = 0): not tested: the fit with k = 0 did not converge "
+              f"({test.null_verdict.reason})")
+        test = None
     if test is not None:
         print(f"context terms (k = 0): LR statistic {test.statistic:.2f}, df {test.df}, "
               f"p = {test.p_value:.3g} (chi-square); p = {test.p_value_boundary:.3g} "
@@ -119,6 +140,8 @@ def run(args: argparse.Namespace) -> int:
                             ("GLMM (random-intercept logit)", f"{held.glmm_sequential:.4f}",
                              f"{held.glmm_new_person:.4f}", f"{held.glmm_brier:.4f}")],
                            (False, True, True, True)))
+        for failed in held.unconverged:
+            print(f"note: held-out fit not converged, its predictions kept: {failed}")
         print("(the node predicts c E[w]; the site model's own P(help) also carries the "
               f"chance the ask was noticed, {fit.params.noticed:.3f})")
         print("\ncalibration of the site model (sequential predictions):")
@@ -130,7 +153,7 @@ def run(args: argparse.Namespace) -> int:
     comments = [f"Written by `helpaware fit` on {stamp}.",
                 f"Data: {', '.join(os.path.basename(s) for s in data.sources)} "
                 f"({data.n_people} people, {data.n_outcomes} answered asks).",
-                f"Log marginal likelihood {fit.loglik:.3f}."]
+                f"Log marginal likelihood {fit.loglik:.3f}; {fit.verdict.line()}."]
     for name in ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability"):
         se = fit.std_errors.get(name)
         extra = f" +/- {se:.3g} (1 s.e.)" if se is not None and not math.isnan(se) else \

@@ -10,6 +10,7 @@ import math
 import os
 import sys
 
+from .. import package_data
 from ..core.baselines import POLICY_NAMES
 from ..core.model import CoreInputError
 from ..sim.compare import compare, headline, summary_table
@@ -18,7 +19,9 @@ from ..sim.scenario import load
 
 
 def add_arguments(parser) -> None:
-    parser.add_argument("scenario", help="scenario file (YAML, see docs/scenarios.md)")
+    parser.add_argument("scenario", help="scenario file (YAML, see docs/scenarios.md), or the "
+                        "name of an installed one: " + ", ".join(
+                            os.path.splitext(n)[0] for n in package_data.available("scenarios")))
     parser.add_argument("--policies", nargs="+", default=list(POLICY_NAMES),
                         choices=list(POLICY_NAMES), metavar="POLICY",
                         help=f"policies to run (default all: {' '.join(POLICY_NAMES)})")
@@ -46,14 +49,19 @@ def run(args) -> int:
     if args.seeds < 1:
         print("simulate: --seeds must be at least 1", file=sys.stderr)
         return 2
+    path = package_data.data_file("scenarios", args.scenario)   # a path, or an installed name
+    if not os.path.exists(path):
+        print(f"simulate: no scenario file {args.scenario!r} (installed: "
+              f"{', '.join(package_data.available('scenarios')) or 'none'})", file=sys.stderr)
+        return 2
     try:
-        sc = load(args.scenario)
+        sc = load(path)
     except CoreInputError as exc:
         print(f"simulate: {exc}", file=sys.stderr)
         return 2
     model = config = None
     if args.params:
-        from .review_params import ParamFileError, load_params
+        from ..node_param_file import ParamFileError, load_params
         try:
             loaded = load_params(args.params)
         except ParamFileError as exc:

@@ -7,7 +7,6 @@ the site key at once and never written anywhere.
 from __future__ import annotations
 
 import argparse
-import csv
 import os
 import sys
 import time
@@ -15,11 +14,8 @@ import time
 from ..core import CoreInputError
 from ..store import SiteKeyError, SqliteStore, StoreVersionError, default_store_path, load_site_key
 from ..store.keys import KEY_FILE_NAME
-from .table import fmt, render_table
-
-EXPORT_COLUMNS = ("event_id", "person_key", "time_s", "busyness", "ask_load", "result",
-                  "request_kind")
-
+from ..store.export import EXPORT_COLUMNS, write_csv
+from ..text_table import fmt, render_table
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--path", default="", help=f"store file (default {default_store_path()})")
@@ -130,17 +126,6 @@ def do_compact(store: SqliteStore, args) -> int:
     n = store.compact(args.older_than_days * 86400.0, now_s=now)
     print(f"compacted {n} event(s) older than {args.older_than_days:g} day(s)")
     return 0
-
-
-def write_csv(store: SqliteStore, handle) -> int:
-    w = csv.writer(handle, lineterminator="\n")
-    w.writerow(EXPORT_COLUMNS)
-    n = 0
-    for e in store.iter_events():
-        w.writerow([e.event_id, e.person_key, repr(float(e.time_s)), repr(float(e.busyness)),
-                    repr(float(e.ask_load)), e.result.value, e.request_kind])
-        n += 1
-    return n
 
 
 def do_export(store: SqliteStore, args) -> int:

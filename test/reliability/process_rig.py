@@ -5,7 +5,7 @@
   ROS_AUTOMATIC_DISCOVERY_RANGE=LOCALHOST from os.environ (test/conftest.py sets both).
 - `Drive` runs in the test process on its own rclpy context: it shows people, keeps a few help
   needs open and answers every ask at once. An outcome counts as acknowledged when the node
-  has re-published its event on fleet/outcomes, which the node does only after store.append
+  has re-published its event on its fleet topic, which the node does only after store.append
   has committed.
 - `read_store` opens the SQLite file read-only with the sqlite3 module (not SqliteStore), so
   the check does not go through the code it checks.
@@ -32,14 +32,14 @@ from helpaware_node import wire
 from helpaware_node.core import Belief, Result, SiteModel, fold_events
 from helpaware_node.core.model import from_plain
 from helpaware_node.ros import launch_config
-from helpaware_node.ros.fleet import fleet_qos
+from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos
 from helpaware_node.store.base import StoredEvent, person_key
 
 import site_keys
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 SITE_KEY = bytes(range(7, 39))            # fixed 32-byte site key shared by the test robots
-SHARED_FLEET_TOPIC = "/fleet/outcomes"
+SHARED_FLEET_TOPIC = FLEET_TOPIC         # the default: site-wide, no remapping
 # limits opened wide so the node asks as often as the driver can answer: this is a crash
 # test of the write path, not of the limits (those have their own suite)
 FAST_ASKING = {
@@ -56,12 +56,17 @@ def write_site_key(directory: Path) -> Path:
     return site_keys.write_site_key(directory, SITE_KEY)
 
 
+def own_fleet_topic(namespace: str) -> str:
+    """A fleet topic of the robot's own, for a test that must not hear other robots."""
+    return f"{namespace}/helpaware/fleet"
+
+
 def start_node(store_path: Path, robot_id: str, namespace: str, log_path: Path,
                shared_fleet: bool = False) -> subprocess.Popen:
     remaps = launch_config.REMAPS
-    if shared_fleet:                     # every robot's fleet/outcomes onto one topic
-        remaps = remaps + (("fleet/outcomes", SHARED_FLEET_TOPIC),)
     overrides = dict(FAST_ASKING, store_path=str(store_path), robot_id=robot_id)
+    if not shared_fleet:                 # the shared one is the default, /helpaware/fleet
+        overrides["fleet_topic"] = own_fleet_topic(namespace)
     log = open(log_path, "a")
     try:
         return launch_config.start(stdout=log, stderr=subprocess.STDOUT, namespace=namespace,

@@ -5,7 +5,7 @@ import pytest
 
 from helpaware_node.fit.paramfile import read_param_file
 from helpaware_node.sim.scenario import ScenarioError, load as load_scenario
-from helpaware_node.tools.review_params import ParamFileError, parameters_from_yaml
+from helpaware_node.node_param_file import ParamFileError, parameters_from_yaml
 
 BAD = {
     "unclosed_bracket": (b"a: [1, 2\n", "not valid YAML"),

@@ -1,8 +1,12 @@
 """Fuzz of every input document of the node: hypothesis documents at the handlers, then random
 text and raw garbage CDR bytes through the real topics.
 
-Topics: people, task_status, outcome (wire documents), fleet/outcomes and privacy_request
-(ros/fleet.py documents). For each generated document the node must: raise nothing, count a
+Topics: people, task_status, outcome (wire documents), the fleet and privacy topics (signed
+fleet_documents). Fleet and privacy documents are fuzzed as they arrive (so nearly every change
+is refused by its signature) and, half of the time, signed again after the change with the
+site key (a peer that holds the key but sends a bad field), so the field checks behind the
+signature are fuzzed too; the rig takes unsigned privacy requests (the lab switch) so their
+parser stays fuzzed as well. For each generated document the node must: raise nothing, count a
 rejection with a reason that names a field (or says JSON), leave the beliefs and stored
 events of the people it knows unchanged, keep its store healthy, and still make a valid
 decision afterwards. The raw-bytes part publishes `bytes` (rclpy sends them as an already
@@ -21,17 +25,25 @@ import collections
 import json
 import random
 import re
+import time
 
 import pytest
 from hypothesis import HealthCheck, given, settings, strategies as st
 from std_msgs.msg import String
 
 from helpaware_node import wire
+from helpaware_node.core.model import CoreInputError
+from helpaware_node.fleet_documents import (PRIVACY_KINDS, PrivacyAct, check_fresh,
+                                            decode_document, encode_document, load_document,
+                                            parse_unsigned_request)
 from helpaware_node.ros import fleet as fleet_mod
+from helpaware_node.core import Result
+from helpaware_node.store import SiteKeys, StoredEvent
 
 from document_paths import field_paths, replaced
 from node_harness import Rig
 from reliability_sequence import scaled
+from site_keys import write_site_key
 
 pytestmark = pytest.mark.ros
 
@@ -46,6 +58,12 @@ SETTINGS = dict(deadline=None, derandomize=True, database=None,
 UNKNOWN_KEY = "ab" * 32               # a hashed key of nobody the node knows
 FLEET_TOPIC = fleet_mod.FLEET_TOPIC
 PRIVACY_TOPIC = fleet_mod.PRIVACY_TOPIC
+FUZZ_SITE_KEY = bytes(range(60, 92))  # the rig's site key file: the fuzz signs with it
+KEYS = SiteKeys.single(FUZZ_SITE_KEY).key_ring()
+
+
+def signed_seed(kind: str, value) -> dict:
+    return json.loads(encode_document(kind, value, KEYS))
 TOPICS = ("people", "task_status", "outcome", FLEET_TOPIC, PRIVACY_TOPIC)
 WIRE_TOPICS = ("people", "task_status", "outcome")
 
@@ -60,13 +78,37 @@ SEEDS = {
                      "state": "resolved"}],
     "outcome": [{"doc": "outcome", "version": 1, "request_id": "no-such-ask",
                  "person_id": "nurse-a", "result": "declined", "stamp_s": 100.0}],
-    FLEET_TOPIC: [{"v": 1, "kind": "outcome", "event_id": "peer/1", "person_key": UNKNOWN_KEY,
-                   "time_s": 100.0, "result": "declined", "busyness": 0.2, "ask_load": 0.0,
-                   "request_kind": "door"},
-                  {"v": 1, "kind": "forget", "person_key": UNKNOWN_KEY, "from": "peer"}],
+    FLEET_TOPIC: [signed_seed("outcome", StoredEvent("peer/1", UNKNOWN_KEY, 100.0,
+                                                     Result.DECLINED, 0.2, 0.0, "door")),
+                  signed_seed("forget", PrivacyAct.new("forget", UNKNOWN_KEY, "peer")),
+                  signed_seed("opt_out", PrivacyAct.new("opt_out", UNKNOWN_KEY, "peer"))],
     PRIVACY_TOPIC: [{"action": "opt_out", "person_id": "visitor-p"},
-                    {"action": "forget", "person_key": UNKNOWN_KEY}],
+                    {"action": "forget", "person_key": UNKNOWN_KEY},
+                    "signed opt_out", "signed forget"],    # signed when drawn (issued now)
 }
+
+
+def seed(topic: str, i: int) -> dict:
+    """Seed i of a topic; a signed privacy request is made when drawn, so it is fresh."""
+    doc = SEEDS[topic][i]
+    if isinstance(doc, str):          # the same shape on every draw (hypothesis replays it)
+        action = doc.split()[1]
+        return signed_seed(action, PrivacyAct(action, UNKNOWN_KEY, "console@fuzz",
+                                              f"console@fuzz/{i:016x}", f"console@fuzz/{i:016x}",
+                                              float(int(time.time()))))
+    return doc
+
+
+def resigned(text: str) -> str:
+    """The text signed again with the site key, when it is a JSON object with a version and
+    the canonical encoding can hold it; else the text as it was."""
+    try:
+        doc = json.loads(text)
+        if not isinstance(doc, dict) or "v" not in doc:
+            return text
+        return json.dumps(KEYS.sign(doc))
+    except (ValueError, RecursionError, TypeError):
+        return text
 
 # JSON types of each seed field, written from docs/schemas/*.json (not from wire.SPECS).
 NUM, INT, STR, ARR, OBJ, NULL, BOOL = "number", "integer", "string", "array", "object", "null", "boolean"
@@ -88,9 +130,11 @@ VALUE_OF_TYPE = {NULL: [None], BOOL: [True, False], INT: [7, -3, 0], NUM: [1.5, 
                  STR: ["s", ""], ARR: [[], [1]], OBJ: [{}, {"k": 1}]}
 
 # words a refusal may name, per topic: field names, or that the text is not JSON
-FLEET_WORDS = ("v", "kind", "event_id", "person_key", "time_s", "result", "busyness",
-               "ask_load", "request_kind", "from")
-PRIVACY_WORDS = ("action", "person_id", "person_key")
+SIGNED_WORDS = ("v", "kind", "sig", "site", "key_id", "id", "from", "request_id", "issued_s",
+                "person_key")
+FLEET_WORDS = SIGNED_WORDS + ("event_id", "time_s", "result", "busyness", "ask_load",
+                              "request_kind")
+PRIVACY_WORDS = SIGNED_WORDS + ("action", "person_id")
 
 
 def _spec_names(spec, out):
@@ -120,6 +164,8 @@ def reason_names_a_field(topic: str, reason: str) -> bool:
         head = re.sub(r"\[\d+\]", "", reason.split(":", 1)[0])
         return bool(head) and all(part in WIRE_NAMES[topic] for part in head.split("."))
     words = FLEET_WORDS if topic == FLEET_TOPIC else PRIVACY_WORDS
+    if re.search(r"\bfield '", reason):       # an extra field, named: the signature covers it
+        return True
     return any(re.search(rf"\b{w}\b", reason) for w in words)
 
 
@@ -154,7 +200,15 @@ def with_hole(doc, path, text: str) -> str:
 
 @st.composite
 def fuzz_text(draw, topic: str) -> str:
-    doc = draw(st.sampled_from(SEEDS[topic]))
+    text = draw(changed_text(topic))
+    if topic in (FLEET_TOPIC, PRIVACY_TOPIC) and draw(st.booleans()):
+        return resigned(text)
+    return text
+
+
+@st.composite
+def changed_text(draw, topic: str) -> str:
+    doc = seed(topic, draw(st.integers(0, len(SEEDS[topic]) - 1)))
     paths = [p for p in field_paths(doc)]
     path = draw(st.sampled_from(paths))
     how = draw(st.sampled_from(["any_value", "huge_number", "long_string", "deep_nesting",
@@ -236,7 +290,9 @@ RAW_STATS = {t: collections.Counter() for t in TOPICS}
 @pytest.fixture(scope="module")
 def rig(ctx, tmp_path_factory):
     store = tmp_path_factory.mktemp("fuzzstore") / "beliefs.sqlite3"
-    r = Rig(ctx, namespace="/infuzz", store_path=str(store), robot_id="fuzzbot")
+    write_site_key(store.parent, FUZZ_SITE_KEY)
+    r = Rig(ctx, namespace="/infuzz", store_path=str(store), robot_id="fuzzbot",
+            allow_unsigned_privacy_requests=True)
     assert r.connected()
     assert r.show_people([{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1},
                           {"id": "porter-b", "distance_m": 3.0, "busyness": 0.2}])
@@ -283,10 +339,17 @@ def decodes(topic, text, node) -> bool:
         if topic in WIRE_TOPICS:
             wire.decode(topic, text)
         elif topic == FLEET_TOPIC:
-            fleet_mod.decode(text)
+            decode_document(text, KEYS)
         else:
-            fleet_mod.parse_privacy_request(text, node.store.key_for)
-    except (ValueError, UnicodeError, RecursionError, OverflowError, TypeError):
+            doc = load_document(text)
+            if "v" not in doc:
+                parse_unsigned_request(doc, node.store.key_for, PRIVACY_TOPIC)
+            else:
+                kind, act = decode_document(text, KEYS)
+                if kind not in PRIVACY_KINDS:
+                    return False
+                check_fresh(act, time.time(), PRIVACY_TOPIC)
+    except (CoreInputError, ValueError, UnicodeError, RecursionError, OverflowError, TypeError):
         return False
     return True
 
@@ -372,11 +435,17 @@ def test_a_wrong_type_in_one_field_is_refused_naming_that_field(rig, topic):
     (FLEET_TOPIC, json.dumps({**SEEDS[FLEET_TOPIC][0], "request_kind": "\ud800"}),
      "request_kind"),
     (FLEET_TOPIC, json.dumps({**SEEDS[FLEET_TOPIC][0], "event_id": "\udc00/1"}), "event_id"),
+    (FLEET_TOPIC, json.dumps({k: v for k, v in SEEDS[FLEET_TOPIC][0].items() if k != "sig"}),
+     "unsigned (no sig field)"),
+    (FLEET_TOPIC, json.dumps({**SEEDS[FLEET_TOPIC][0], "v": 1}), "v=1, the unsigned format"),
+    (FLEET_TOPIC, json.dumps(KEYS.sign({**SEEDS[FLEET_TOPIC][0], "busyness": 7.0})),
+     "busyness"),
     (PRIVACY_TOPIC, "[" * 100_000, "JSON"),
     (PRIVACY_TOPIC, '{"action":"forget","person_id":"\\ud800"}', "person_id"),
 ], ids=["surrogate_id", "huge_int_stamp", "huge_int_urgency", "huge_negative_stamp",
         "duplicate_key", "unknown_top_level_field", "fleet_deep_nesting", "fleet_huge_int", "fleet_surrogate_kind",
-        "fleet_surrogate_event_id", "privacy_deep_nesting", "privacy_surrogate_id"])
+        "fleet_surrogate_event_id", "fleet_unsigned", "fleet_old_format", "fleet_signed_bad_field",
+        "privacy_deep_nesting", "privacy_surrogate_id"])
 def test_found_by_the_fuzz_each_refused_by_name(rig, topic, text, field):
     """Each of these escaped a handler (crashing the executor) or marked the store failing."""
     rejected, reason = feed(rig, topic, text)
@@ -434,7 +503,7 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
                 durability=DurabilityPolicy.VOLATILE))}
     assert rig.spin_until(lambda: all(p.get_subscription_count() > 0 for p in pubs.values()))
     rng = random.Random(20261202)
-    valid = {t: serialize_message(String(data=dumps(SEEDS[t][0]))) for t in TOPICS}
+    valid = {t: serialize_message(String(data=dumps(seed(t, len(SEEDS[t]) - 1)))) for t in TOPICS}
 
     def sentinel(topic, i):
         """A valid document whose effect shows it (and all before it, in order) arrived."""
@@ -449,10 +518,12 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
                 lambda: tag in node.counters.last_reason["outcome"]
         if topic == FLEET_TOPIC:
             key = "cd" * 32          # not UNKNOWN_KEY: the fuzz sent forgets for that one
-            e = json.dumps({**SEEDS[FLEET_TOPIC][0], "event_id": f"driver/{i}", "person_key": key})
+            e = encode_document("outcome", StoredEvent(f"driver/{i}", key, 100.0,
+                                                       Result.DECLINED, 0.2, 0.0, "door"), KEYS)
             return e, lambda: any(ev.event_id == f"driver/{i}" for ev in node.store.events_for(key))
-        return json.dumps({"action": "opt_out", "person_id": tag}), \
-            lambda: node.store.is_opted_out(node.store.key_for(tag))
+        key = node.store.key_for(tag)
+        return encode_document("opt_out", PrivacyAct.new("opt_out", key, "console@fuzz"), KEYS), \
+            lambda: node.store.is_opted_out(key)
 
     before = known_state(rig)
     count = 0

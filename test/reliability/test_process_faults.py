@@ -3,7 +3,7 @@
 The node processes are started through `ros/launch_config.py`, as the launch file and the demo
 start them, with an SQLite store in tmp_path and a fixed site key. The test process drives
 them (process_rig.Drive): people in view, a few help needs open, every ask answered at once.
-An outcome is acknowledged when the node has re-published its event on fleet/outcomes, which
+An outcome is acknowledged when the node has re-published its event on the fleet topic, which
 it does only after store.append committed. The stores are read with the sqlite3 module in
 read-only mode, and beliefs are checked against core.person.fold_events over the stored
 events (the fold the design defines), not against the store's own snapshot code.
@@ -31,8 +31,8 @@ import pytest
 pytest.importorskip("rclpy")
 
 from process_rig import (FAST_ASKING, SHARED_FLEET_TOPIC, SITE_KEY, Drive, Every,  # noqa: E402
-                         FleetPeer, Robot, beliefs_in, event_ids, kill_hard, read_store, staff,
-                         start_node, stop_gently, write_site_key)
+                         FleetPeer, Robot, beliefs_in, event_ids, kill_hard, own_fleet_topic,
+                         read_store, staff, start_node, stop_gently, write_site_key)
 from reliability_sequence import SOAK, scaled  # noqa: E402
 
 from helpaware_node.core import Belief, SiteModel  # noqa: E402
@@ -63,7 +63,7 @@ def test_sigkill_of_the_node_during_outcome_writes_loses_nothing_acknowledged(tm
     log = tmp_path / "node.log"
     people = staff(10, SEED)
     drive = Drive("kill_driver")
-    robot = drive.add(Robot("ward3", "/kill_trial", "/kill_trial/fleet/outcomes", people,
+    robot = drive.add(Robot("ward3", "/kill_trial", own_fleet_topic("/kill_trial"), people,
                             random.Random(SEED + 1)))
     proc = start_node(store, "ward3", "/kill_trial", log)
     figures = []

@@ -189,10 +189,11 @@ def test_forget_drops_an_outcome_held_for_a_full_store(ctx, tmp_path):
 def test_fleet_event_during_a_full_store_is_kept_and_not_shared_again(ctx, tmp_path):
     """A peer's event arrives once (transient local history is not resent to a subscriber
     that already has it), so one the store refuses stays queued in the fleet link and is
-    stored once space returns; only our own outcome then goes out on fleet/outcomes, never
+    stored once space returns; only our own outcome then goes out on the fleet topic, never
     the peer's copy."""
     from std_msgs.msg import String
-    from helpaware_node.ros.fleet import FLEET_TOPIC, encode_event, fleet_qos
+    from helpaware_node.fleet_documents import encode_document
+    from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos
     load_site_key(tmp_path / "site_key")
     rig = Rig(ctx, namespace="/fleetfull", store_path=str(tmp_path / "b.sqlite3"),
               robot_id="rP", pending_ask_timeout_s=600.0)
@@ -206,7 +207,8 @@ def test_fleet_event_during_a_full_store_is_kept_and_not_shared_again(ctx, tmp_p
         _fill_until_full(store)
         visitor = store.key_for("visitor-1")
         peer = StoredEvent("peer/7", visitor, 50.0, Result.HELPED, 0.1, 0.0)
-        rig.node.fleet._on_message(String(data=encode_event(peer)))   # as the topic delivers it
+        text = encode_document("outcome", peer, rig.node.fleet.keys)   # a peer of this site
+        rig.node.fleet._on_message(String(data=text))   # as the topic delivers it
         rig.report("q1", "nurse-a", "helped")
         assert rig.node.fleet.queued_count == 1 and rig.node.fleet.store_failures >= 1
         assert [e.person_key for e in rig.node.unsaved] == [store.key_for("nurse-a")]

@@ -5,8 +5,8 @@ import math
 from collections import Counter
 from typing import Optional
 
-from .review_data import DecisionRow, ReviewData
-from .review_metrics import beta_interval, brier_score, log_loss, reliability_bins
+from .data import DecisionRow, ReviewData
+from .metrics import beta_interval, brier_score, log_loss, reliability_bins
 
 ANSWERED = {"helped": 1, "declined": 0, "no_response": 0}   # could_not_ask: no evidence
 DEFAULT_PENDING_TIMEOUT_S = 120.0   # the node's pending_ask_timeout_s default

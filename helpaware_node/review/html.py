@@ -4,6 +4,8 @@ from __future__ import annotations
 import base64
 import html
 import json
+import math
+import shlex
 from typing import Optional
 
 STYLE = """
@@ -41,6 +43,78 @@ def table(headers, rows) -> str:
     return f"<table><tr>{head}</tr>{''.join(body)}</table>"
 
 
+def duration_text(seconds: float) -> str:
+    """A time span as people read it: `7 h 28 min`, `12 min 5 s`, `42.0 s`."""
+    if not math.isfinite(seconds) or seconds < 0:
+        return "n/a"
+    if seconds < 60:
+        return f"{seconds:.1f} s"
+    minutes = int(round(seconds / 60.0)) if seconds >= 3600 else int(seconds // 60)
+    if seconds < 3600:
+        return f"{minutes} min {int(seconds - 60 * minutes)} s"
+    days, minutes = divmod(minutes, 24 * 60)
+    text = f"{minutes // 60} h {minutes % 60} min"
+    return f"{days} d {text}" if days else text
+
+
+# Fewer answered asks than this and the overall gap says little (common practice, no source).
+MIN_ASKS_TO_JUDGE = 20
+
+
+def calibration_gap(bins: list[dict]) -> dict:
+    """Calibration in the large from the bins: asks, mean predicted p, observed help rate, and
+    the standard error of their difference. The error uses each bin's mean p, which bounds
+    the exact binomial error sum p(1-p) from above (p(1-p) is concave), so a gap called larger
+    than chance is one."""
+    n = sum(b["count"] for b in bins)
+    if not n:
+        return {"asks": 0}
+    predicted = sum(b["count"] * b["mean_predicted"] for b in bins) / n
+    observed = sum(b["count"] * b["observed_rate"] for b in bins) / n
+    var = sum(b["count"] * b["mean_predicted"] * (1.0 - b["mean_predicted"]) for b in bins)
+    return {"asks": n, "predicted": predicted, "observed": observed,
+            "gap": observed - predicted, "standard_error": math.sqrt(var) / n}
+
+
+def calibration_advice(bag: str, bins: list[dict]) -> str:
+    """What the calibration section says to do, with the commands to do it on this bag."""
+    g = calibration_gap(bins)
+    if not g["asks"]:
+        return "<p>No answered asks in this bag: nothing to compare predictions with.</p>"
+    rates = (f"mean predicted p {g['predicted']:.2f}, observed help rate {g['observed']:.2f} "
+             f"over {g['asks']} answered asks")
+    if g["asks"] < MIN_ASKS_TO_JUDGE:
+        verdict = (f"<p>{rates}: too few asks to judge (fewer than {MIN_ASKS_TO_JUDGE}). "
+                   "Record longer, or pass several bags to the fit below.</p>")
+    elif abs(g["gap"]) <= 2.0 * g["standard_error"]:
+        verdict = (f"<p>{rates}: the gap ({100 * g['gap']:+.0f} points) is within twice its "
+                   f"standard error ({100 * g['standard_error']:.0f} points), as chance "
+                   "allows. Nothing to change; refitting below is optional.</p>")
+    else:
+        direction = ("expects more help than people give" if g["gap"] < 0
+                     else "expects less help than people give")
+        verdict = (f'<p class="warn">{rates}: the model {direction} (gap '
+                   f"{100 * g['gap']:+.0f} points, more than twice its standard error of "
+                   f"{100 * g['standard_error']:.0f} points). The site constants (prior_a, "
+                   "prior_b, k_busy, k_load, notice_probability) do not fit this site: fit "
+                   "them from this bag and replay it under the result.</p>")
+    base = bag.rstrip("/\\")
+    tuned_review = f"{base}_review_tuned"
+    commands = "\n".join([
+        f"helpaware fit {shlex.quote(bag)} --out tuned.yaml",
+        f"helpaware review {shlex.quote(bag)} --params tuned.yaml --out "
+        f"{shlex.quote(tuned_review)}"])
+    return (verdict + "<p>To fit and compare (in a ROS 2 workspace, start each with "
+            "<code>ros2 run helpaware_node helpaware</code> instead of "
+            "<code>helpaware</code>):</p>"
+            f"<pre>{esc(commands)}</pre>"
+            "<p class=\"note\">The replay shows which decisions would change under tuned.yaml. "
+            "If they are the ones you want, start the node with it: "
+            "<code>--params-file tuned.yaml</code>, or "
+            "<code>params_file:=/full/path/tuned.yaml</code> with the launch file "
+            "(docs/fit.md).</p>")
+
+
 def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = None) -> str:
     s = summary
     parts = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
@@ -59,7 +133,7 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
     cal = s["calibration"]
     parts.append("<h2>Summary</h2>" + table(["quantity", "value"], [
         ["storage", s["storage"]],
-        ["time span (s)", float(s["duration_s"])],
+        ["time span", duration_text(float(s["duration_s"]))],
         ["help needs", ", ".join(f"{k} {v}" for k, v in s["help_needs"].items()) or "none"],
         ["decisions", s["decisions"]], ["asks", s["asks"]], ["continues", s["continues"]],
         ["outcomes", ", ".join(f"{k} {v}" for k, v in s["outcomes"].items()) or "none"],
@@ -82,9 +156,12 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
                  "person asked against whether they helped (declined and no response count as "
                  "not helped; could-not-ask is left out).</p>"
                  + image(figures["reliability"], "reliability diagram")
-                 + table(["bin", "count", "mean predicted", "observed rate"],
+                 + table(["bin", "count", "mean predicted", "observed rate", "gap"],
                          [[f"{b['bin_low']:.1f}-{b['bin_high']:.1f}", b["count"],
-                           b["mean_predicted"], b["observed_rate"]] for b in cal["bins"]]))
+                           b["mean_predicted"], b["observed_rate"],
+                           f"{b['observed_rate'] - b['mean_predicted']:+.2f}"]
+                          for b in cal["bins"]])
+                 + calibration_advice(s["bag"], cal["bins"]))
     parts.append("<h2>Asks per person and per hour</h2>"
                  + image(figures["asks_per_person"], "asks per person")
                  + image(figures["asks_per_hour"], "asks per hour"))

@@ -10,7 +10,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from .review_metrics import beta_interval  # noqa: E402
+from .metrics import beta_interval  # noqa: E402
 
 RESULT_COLOURS = {"helped": "tab:green", "declined": "tab:red", "no_response": "tab:orange",
                   "could_not_ask": "tab:gray", "expired": "black"}

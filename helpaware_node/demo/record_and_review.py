@@ -70,11 +70,11 @@ def stop_recorder(proc: Optional[subprocess.Popen]) -> Optional[str]:
 def review_bag(bag: Optional[str], out_dir: str = OUT_DIR) -> int:
     if bag is None:
         return 1
-    from . import review
+    from ..review.report import build, summary_text
     report_dir = os.path.abspath(os.path.join(out_dir, REPORT_NAME))
     print("\nreview of the recorded run:")
-    summary = review.build(bag, report_dir)
-    review.print_summary(summary, report_dir)
+    summary = build(bag, report_dir)
+    sys.stdout.write(summary_text(summary, report_dir))
     print(f"open {os.path.join(report_dir, 'report.html')} in a browser "
           "(summary.json and decisions.csv beside it)")
     return 0

@@ -12,8 +12,8 @@ from collections import Counter
 from dataclasses import dataclass, field
 from typing import Optional
 
-from . import review_wire as rw
-from .bagio import BagReadError, BagSource, deserialize_string
+from . import documents as rw
+from ..bag import BagReadError, BagSource, deserialize_string
 
 EXPECTED_TOPICS = ("decision", "people", "task_status", "outcome", "markers", "diagnostics")
 PARSED_TOPICS = ("decision", "task_status", "outcome")

@@ -1,39 +1,46 @@
 """Example: the behaviour-layer side. Opens a help need when the robot is stuck, follows the
 decision, and resolves the need when the way is clear (or cancels it when giving up).
 
-Run next to the node:  python examples/behaviour_layer.py --ros-args -r __ns:=/robot1
-Here "stuck" is simulated by a timer; a real robot calls `open_need` from its behaviour tree
-(for example when a door does not open) and `resolve` once it has passed.
+Run next to the node:  ros2 run helpaware_node example_behaviour_layer --ros-args -r __ns:=/robot1
+                       (venv: example_behaviour_layer --ros-args ...)
+Here "stuck" is simulated by a timer: parameter `stuck_period_s` (seconds between needs, default
+20.0 when run as a program; 0 opens needs only through `open_need`). A real robot calls
+`open_need` from its behaviour tree (for example when a door does not open) and `resolve` once
+it has passed.
 """
+from __future__ import annotations
+
 import itertools
 import sys
+from typing import Optional
 
-import rclpy
-from rclpy.executors import ExternalShutdownException
 from rclpy.node import Node
-from rclpy.qos import QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
-from helpaware_node import wire
-
-RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
+from ... import wire
+from .running import RELIABLE, decode_or_warn, spin_node
 
 
 class BehaviourLayer(Node):
-    def __init__(self, stuck_period_s: float = 0.0, **kwargs):
+    def __init__(self, stuck_period_s: Optional[float] = 0.0, **kwargs):
         super().__init__("behaviour_layer", **kwargs)
+        period = float(self.declare_parameter(
+            "stuck_period_s", 20.0 if stuck_period_s is None else float(stuck_period_s)).value)
+        if not 0.0 <= period <= 86400.0:
+            raise ValueError(f"stuck_period_s: {period:g} is outside the allowed range [0, 86400]")
         self.task_pub = self.create_publisher(String, "task_status", RELIABLE)
         self.create_subscription(String, "decision", self._on_decision, RELIABLE)
         self.create_subscription(String, "outcome", self._on_outcome, RELIABLE)
         self._ids = itertools.count(1)
-        self.open = {}            # request id -> kind
-        self.finished = {}        # request id -> how it ended
-        if stuck_period_s > 0:
-            self.create_timer(stuck_period_s, lambda: self.open_need("door"))
+        self.open: dict[str, str] = {}          # request id -> kind
+        self.finished: dict[str, str] = {}      # request id -> how it ended
+        if period > 0:
+            self.create_timer(period, lambda: self.open_need("door"))
 
     def open_need(self, kind: str, urgency: float = 0.0) -> str:
         rid = f"{self.get_name()}-{next(self._ids)}"
         self.open[rid] = kind
+        self.get_logger().info(f"{rid}: stuck ({kind}), help need opened")
         self.task_pub.publish(String(data=wire.task_status_document(rid, "open", kind, urgency)))
         return rid
 
@@ -43,10 +50,8 @@ class BehaviourLayer(Node):
             self.finished[rid] = state
 
     def _on_decision(self, msg: String) -> None:
-        try:
-            d = wire.decode("decision", msg.data)
-        except wire.WireError as exc:
-            self.get_logger().warning(f"bad decision document: {exc}")
+        d = decode_or_warn(self, "decision", msg.data)
+        if d is None:
             return
         if d["request_id"] not in self.open:
             return
@@ -66,18 +71,8 @@ class BehaviourLayer(Node):
             self.resolve(o["request_id"])      # in a real robot: once it has passed the door
 
 
-def main(args=None):
-    rclpy.init(args=args)
-    node = None
-    try:
-        node = BehaviourLayer(stuck_period_s=20.0)
-        rclpy.spin(node)
-    except (KeyboardInterrupt, ExternalShutdownException):
-        pass
-    finally:
-        if node is not None:
-            node.destroy_node()
-        rclpy.try_shutdown()
+def main(args=None) -> int:
+    return spin_node(lambda: BehaviourLayer(stuck_period_s=None), args)
 
 
 if __name__ == "__main__":

@@ -13,8 +13,8 @@ from typing import Optional
 
 from ..core.model import DecisionConfig, SiteModel, params_hash
 from ..core.policy import Decision, decide
-from . import review_wire as rw
-from .review_data import ReviewData
+from . import documents as rw
+from .data import ReviewData
 
 
 def expected_costs(decision: Decision, ask_time_s: float) -> dict:

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 from ..core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result, SiteModel,
                     candidate_from_record, decide, note_ask, note_candidate, note_outcome)
 from ..core.context import context_factor
-from .table import fmt, render_table
+from ..text_table import fmt, render_table
 
 
 @dataclass

@@ -14,10 +14,10 @@ from ..core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result
                     candidate_from_record, decide, note_ask, note_candidate, note_outcome)
 from ..core.context import context_factor
 from ..store.base import person_key
-from . import review_wire as rw
-from .bagio import (DIAGNOSTIC_ARRAY_TYPE, MARKER_ARRAY_TYPE, BagWriter, STRING_TYPE,
+from . import documents as rw
+from ..bag import (DIAGNOSTIC_ARRAY_TYPE, MARKER_ARRAY_TYPE, BagWriter, STRING_TYPE,
                     typestore)
-from .record import HASHED_MARK
+from ..bag.person_ids import HASHED_MARK
 
 SAMPLE_SITE_KEY = b"invented-night-shift-site-key"
 KINDS = ("door", "elevator", "door", "handover", "elevator", "blocked_corridor")

@@ -11,8 +11,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Optional
 
-from ..core.model import CoreInputError, DecisionConfig, SiteModel, to_plain
-from ..yamlfile import load_yaml_file
+from .core.model import CoreInputError, DecisionConfig, SiteModel, to_plain
+from .yamlfile import load_yaml_file
 
 
 class ParamFileError(ValueError):
@@ -68,7 +68,7 @@ def apply_parameters(flat: Mapping[str, Any], base_model: SiteModel, base_config
     """Overlay the file's values on the base values and build them with the node's own
     conversion (`ros.params.build`, importable without rclpy), so ranges and cross-checks
     are exactly the node's."""
-    from ..ros import params as node_params
+    from .ros import params as node_params
     values = node_params.defaults(list(base_config.continue_costs_s))
     base = {**to_plain(base_model), **to_plain(base_config)}
     for k, v in base.items():

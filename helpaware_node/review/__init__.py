@@ -1,0 +1,1 @@
+"""Offline review of a bag: report with plots, calibration, counterfactual replay."""

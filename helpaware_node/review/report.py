@@ -1,0 +1,114 @@
+"""The review of one bag: report.html (plots embedded), summary.json and decisions.csv.
+
+With another parameter file, every recorded help need is also replayed under it
+(counterfactual replay; values the file does not set keep their recorded values).
+"""
+from __future__ import annotations
+
+import csv
+import json
+import sys
+from pathlib import Path
+from typing import Optional
+
+
+def build(bag: str, out_dir: str, params_file: Optional[str] = None,
+          pending_timeout_s: Optional[float] = None, out=sys.stdout) -> dict:
+    """Write the report; returns the summary (with 'replay' when params_file is given)."""
+    from . import data as review_data, html as review_html, plots as review_plots
+    from . import replay as review_replay, summary as review_summary
+    data = review_data.load(bag)
+    summary = review_summary.summarise(data, pending_timeout_s)
+    replay = None
+    replay_error = None
+    if data.decisions:
+        other = None
+        if params_file:
+            from .. import node_param_file as review_params
+            from . import documents as review_wire
+            try:
+                base_model, base_config = review_wire.recorded_params(data.decisions[0].document)
+            except review_wire.WireError:   # decisions without their parameters: defaults
+                from ..core.model import DecisionConfig, SiteModel
+                base_model, base_config = SiteModel(), DecisionConfig()
+            other = review_params.load_params(params_file, base_model, base_config)
+        try:
+            replay = review_replay.replay(data, other.model if other else None,
+                                          other.config if other else None,
+                                          params_file or "")
+        except Exception as exc:  # replay must not cost the rest of the report
+            replay_error = f"{type(exc).__name__}: {exc}"
+        if replay is not None and other is not None:
+            replay["parameters_applied"] = other.applied
+            replay["parameters_ignored"] = other.ignored
+    summary["replay"] = replay
+    summary["replay_error"] = replay_error
+    figures = {
+        "timeline": review_plots.timeline(data),
+        "willingness": review_plots.willingness(data),
+        "reliability": review_plots.reliability(summary["calibration"]["bins"],
+                                                summary["calibration"]["brier_score"] or float("nan"),
+                                                summary["calibration"]["log_loss"] or float("nan"),
+                                                summary["calibration"]["answered_asks"]),
+        "asks_per_person": review_plots.bars(
+            {review_plots.short_key(k): v for k, v in list(summary["asks_per_person"].items())[:40]},
+            "Asks per person (hashed key)", "person"),
+        "asks_per_hour": review_plots.asks_per_hour(data),
+    }
+    if summary["limits_fired"]["candidates_excluded"]:
+        figures["limits"] = review_plots.bars(summary["limits_fired"]["candidates_excluded"],
+                                              "Candidates excluded by each limit", "limit")
+    if replay is not None and len(replay["totals"]) > 1:
+        figures["replay"] = review_plots.replay_comparison(replay["totals"])
+    show_replay = replay if (replay is not None and params_file) else None
+    page = review_html.render(summary, figures, show_replay)
+    outp = Path(out_dir)
+    outp.mkdir(parents=True, exist_ok=True)
+    (outp / "report.html").write_text(page, encoding="utf-8")
+    (outp / "summary.json").write_text(json.dumps(summary, indent=1, sort_keys=True,
+                                                  default=str), encoding="utf-8")
+    with open(outp / "decisions.csv", "w", newline="", encoding="utf-8") as f:
+        writer = csv.DictWriter(f, fieldnames=review_summary.CSV_COLUMNS + (
+            ["replay_recorded", "replay_other"] if show_replay else []))
+        writer.writeheader()
+        changed = {c["request_id"]: c for c in (show_replay or {}).get("changes", [])}
+        for row in review_summary.decision_rows(data):
+            if show_replay:
+                c = changed.get(row["request_id"])
+                row["replay_recorded"] = c["recorded"] if c else "same"
+                row["replay_other"] = c["other"] if c else "same"
+            writer.writerow(row)
+    return summary
+
+
+def summary_text(summary: dict, out_dir: str) -> str:
+    """The summary as the terminal shows it: a few lines, then where the report is."""
+    cal = summary["calibration"]
+    fmt = lambda v: "n/a" if v is None else f"{v:.3f}"  # noqa: E731
+    lines = [f"bag {summary['bag']} ({summary['storage']}): "
+             + ", ".join(f"{k} {v}" for k, v in summary["messages"].items()),
+             f"{summary['decisions']} decisions: {summary['asks']} asks, "
+             f"{summary['continues']} continues; outcomes "
+             + (", ".join(f"{k} {v}" for k, v in summary["outcomes"].items()) or "none"),
+             f"calibration over {cal['answered_asks']} answered asks: Brier {fmt(cal['brier_score'])}, "
+             f"log loss {fmt(cal['log_loss'])}",
+             f"pending asks expired: {summary['pending_asks']['expired']}"]
+    if summary["missing_topics"]:
+        lines.append("missing topics (no messages): " + ", ".join(summary["missing_topics"]))
+    rp = summary.get("replay")
+    if rp:
+        lines.append(f"replay with recorded parameters: {rp['reproduced']} of {rp['needs']} "
+                     "decisions reproduced")
+        if rp["params_file"]:
+            lines.append(f"with {rp['params_file']}: {rp['changed']} decisions change "
+                         "(model-based estimates below)")
+            lines.append(f"  {'parameters':<10} {'asks':>5} {'exp. helps':>10} "
+                         f"{'exp. interruption s':>20} {'exp. time lost s':>17}")
+            for r in rp["totals"]:
+                lines.append(f"  {r['label']:<10} {r['asks']:>5} {r['expected_helps']:>10.2f} "
+                             f"{r['expected_interruption_s']:>20.1f} "
+                             f"{r['expected_time_lost_s']:>17.1f}")
+    if summary.get("replay_error"):
+        lines.append(f"replay failed: {summary['replay_error']}")
+    lines.append(f"report: {Path(out_dir) / 'report.html'}")
+    return "\n".join(lines) + "\n"

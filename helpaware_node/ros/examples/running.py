@@ -1,0 +1,42 @@
+"""The stand-ins' shared main(): spin one node until Ctrl-C or an external shutdown."""
+from __future__ import annotations
+
+import sys
+from typing import Callable, Optional
+
+import rclpy
+from rclpy.executors import ExternalShutdownException
+from rclpy.node import Node
+from rclpy.qos import QoSProfile, ReliabilityPolicy
+
+from ... import wire
+
+# the decider's QoS for task_status, outcome and decision (docs/integration.md)
+RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
+
+
+def decode_or_warn(node: Node, name: str, text: str) -> Optional[dict]:
+    """The document, or None after a warning that names what was wrong with it."""
+    try:
+        return wire.decode(name, text)
+    except wire.WireError as exc:
+        node.get_logger().warning(f"bad {name} document: {exc}")
+        return None
+
+
+def spin_node(make_node: Callable[[], Node], args=None) -> int:
+    rclpy.init(args=args)
+    node = None
+    try:
+        node = make_node()
+        rclpy.spin(node)
+    except (KeyboardInterrupt, ExternalShutdownException):
+        pass
+    except ValueError as exc:     # a parameter out of range: one line, no traceback
+        print(f"{sys.argv[0]}: {exc}", file=sys.stderr)
+        return 2
+    finally:
+        if node is not None:
+            node.destroy_node()
+        rclpy.try_shutdown()
+    return 0

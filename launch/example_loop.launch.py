@@ -1,0 +1,29 @@
+"""The whole loop on a ROS 2 install: the decision node with the example stand-ins for
+perception, the behaviour layer and the ask delivery (helpaware_node/ros/examples/).
+
+    ros2 launch helpaware_node example_loop.launch.py
+    ros2 launch helpaware_node example_loop.launch.py namespace:=robot1 answer:=declined
+
+Every few seconds the behaviour layer opens a help need, the decider decides whom to ask among
+the invented people in view, the ask delivery answers, and each node logs its side. Arguments
+and command lines come from helpaware_node.ros.launch_config (LOOP_ARGUMENTS).
+"""
+from launch import LaunchDescription
+from launch.actions import DeclareLaunchArgument, OpaqueFunction
+from launch.substitutions import LaunchConfiguration
+from launch_ros.actions import Node
+
+from helpaware_node.ros import launch_config as lc
+
+
+def _loop(context, *args, **kwargs):
+    values = {a.name: LaunchConfiguration(a.name).perform(context) for a in lc.LOOP_ARGUMENTS}
+    return [Node(**spec.launch_kwargs(), output="screen")
+            for spec in lc.loop_from_arguments(values)]
+
+
+def generate_launch_description():
+    return LaunchDescription(
+        [DeclareLaunchArgument(a.name, default_value=a.default, description=a.description)
+         for a in lc.LOOP_ARGUMENTS]
+        + [OpaqueFunction(function=_loop)])

@@ -1,0 +1,49 @@
+"""launch_testing: example_loop.launch.py, installed: the decider and the three stand-ins.
+
+The behaviour layer opens a need, the decider asks someone the perception stand-in shows, the
+ask delivery answers helped, and the behaviour layer resolves the need: the whole loop, from
+the topics. All four processes stop cleanly on launch's SIGINT.
+"""
+import os
+import sys
+import unittest
+
+import launch_testing
+import pytest
+
+sys.path.insert(0, os.path.dirname(__file__))
+from probe import Probe, assert_clean_shutdown, described_launch  # noqa: E402
+
+STAND_IN_PEOPLE = {"nurse-ward3-a", "porter-b", "doctor-c"}   # ros/examples/perception.py
+
+
+@pytest.mark.launch_test
+def generate_test_description():
+    return described_launch("example_loop.launch.py", {"namespace": "loop", "stuck_period_s": "2.0"})
+
+
+class TestLoop(unittest.TestCase):
+    def test_a_need_goes_round_the_loop(self):
+        probe = Probe("/loop")
+        try:
+            def closed():
+                asked = {d["request_id"]: d["person_id"] for d in probe.decisions
+                         if d.get("action") == "ask"}
+                helped = {o["request_id"] for o in probe.outcomes
+                          if o.get("result") == "helped" and o["request_id"] in asked}
+                return [t for t in probe.tasks
+                        if t.get("state") == "resolved" and t["request_id"] in helped]
+            self.assertTrue(probe.spin_until(closed, 90), (probe.decisions[-1:], probe.tasks))
+            rid = closed()[0]["request_id"]
+            asked = next(d for d in probe.decisions if d["request_id"] == rid)
+            self.assertIn(asked["person_id"], STAND_IN_PEOPLE)
+            self.assertTrue(rid.startswith("behaviour_layer-"))
+        finally:
+            probe.close()
+
+
+@launch_testing.post_shutdown_test()
+class TestShutdown(unittest.TestCase):
+    def test_all_four_stop_cleanly(self, proc_info, proc_output):
+        self.assertEqual(len(list(proc_info.processes())), 4)
+        assert_clean_shutdown(self, proc_info, proc_output)
