@@ -39,6 +39,12 @@ def test_builds_without_a_warning(colcon_builds, variant):
     assert f"Finished <<< {PACKAGE}" in build.stdout
 
 
+def source_files(directory):
+    """Every file below `directory`, as paths relative to it (hidden ones left out)."""
+    return sorted(os.path.relpath(os.path.join(d, n), directory)
+                  for d, _, names in os.walk(directory) for n in names if not n.startswith("."))
+
+
 def test_install_holds_data_and_executables(colcon_builds):
     inst = installed(colcon_builds, "plain")
     index = os.path.join(inst.prefix, "share", "ament_index", "resource_index", "packages")
@@ -46,8 +52,8 @@ def test_install_holds_data_and_executables(colcon_builds):
     for kind, source in (("config", "config"), ("scenarios", "scenarios"),
                          ("schemas", os.path.join("docs", "schemas")), ("launch", "launch")):
         src_dir = os.path.join(ROOT, source)
-        expected = sorted(n for n in os.listdir(src_dir) if not n.startswith("."))
-        assert sorted(os.listdir(inst.share(kind))) == expected, kind
+        expected = source_files(src_dir)      # config/sros2/ holds the SROS2 template
+        assert source_files(inst.share(kind)) == expected, kind
         for name in expected:   # the very bytes of the source files
             with open(os.path.join(src_dir, name), "rb") as a, \
                     open(inst.share(kind, name), "rb") as b:
