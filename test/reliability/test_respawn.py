@@ -49,13 +49,27 @@ def shm_files_of(pid: int) -> dict:
     return found
 
 
+def in_this_domain(path: str) -> bool:
+    """Data segments (random names), and ports of this run's domain, which test/conftest.py
+    holds for this run alone (RTPS port numbers: 7400 + 250 * domain + offset).  Fast DDS also
+    gives each participant a port numbered from 7000 across the whole machine; once its owner
+    is dead, a participant of another test run on this machine may take it over (the sweep
+    then leaves it to that one, rightly) and leave it at its own exit: not checked here."""
+    name = os.path.basename(path)
+    if not name.startswith("fastdds_port"):
+        return True
+    domain = int(os.environ["ROS_DOMAIN_ID"])
+    number = int(name[len("fastdds_port"):].split("_")[0])
+    return 7400 + 250 * domain <= number < 7400 + 250 * (domain + 1)
+
+
 def own_sets(pid: int, files: dict) -> dict:
     """Only the sets the instance owned: those whose `_el` lock it held (the rest, mapped to
     write into other participants' ports or read their data, belong to those)."""
     locked = flock_inodes(pid)
     own = {}
     for path, ino in files.items():
-        if path.endswith("_el") and ino in locked:
+        if path.endswith("_el") and ino in locked and in_this_domain(path):
             base = path[:-3]
             name = os.path.basename(base)
             for member in (base, path, f"/dev/shm/sem.{name}_mutex"):
