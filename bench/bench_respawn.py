@@ -11,7 +11,8 @@ does), on one SQLite store for the whole run.
 - respawn: the node is SIGKILLed 0.3-1.3 s (random) after its decision and started again at
   once (`respawn:=true` in the launch file restarts it the same way), against the same
   long-lived process.
-Variants, interleaved round by round so that all see the same machine:
+Variants, interleaved round by round (each round starting with the next) so that all see the
+same machine:
 - as shipped: the node as launch_config starts it (the robot's middleware profile
   config/fastdds_robot.xml; at start-up it holds the dead instance's shared-memory ports and
   those live processes still map from removed files, so its participant takes fresh ones);
@@ -266,8 +267,11 @@ def main() -> int:
     with tempfile.TemporaryDirectory(dir=tmp_root) as tmp:
         base_env = dict(os.environ, ROS_HOME=os.path.join(tmp, "ros_home"))
         store_path = os.path.join(tmp, "beliefs.sqlite3")
+        names = list(table)
         for rnd in range(args.rounds):          # rounds interleave the variants: same machine
-            for name, (node_extra, inputs_extra, share) in table.items():
+            # each round starts with another variant, so none always follows the same one
+            for name in names[rnd % len(names):] + names[:rnd % len(names)]:
+                node_extra, inputs_extra, share = table[name]
                 env = dict(base_env, **node_extra)
                 inputs = LongLivedProcess(NAMESPACE, dict(base_env, **inputs_extra))
                 time.sleep(SETTLE_S)     # a robot's perception has been up a while
