@@ -371,20 +371,27 @@ def stale_port_names(shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> set
     return names
 
 
-def _hold_port(path: Path) -> Optional[PortHold]:
-    """Take the lock of a port's `_el` file (made if missing); None if a listener has it."""
-    made = False
+def _open_lock_file(path: Path) -> Optional[tuple[int, bool]]:
+    """(fd, made): the lock file opened, or made (O_EXCL) when it is missing, as a listener
+    does; None when it cannot be opened, or someone else made it first."""
     try:
-        fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_CLOEXEC)
+        return os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_CLOEXEC), False
     except FileNotFoundError:
         try:
-            fd = os.open(path, os.O_RDONLY | os.O_CREAT | os.O_EXCL | os.O_NOFOLLOW | os.O_CLOEXEC,
-                         0o644)
-            made = True
+            return os.open(path, os.O_RDONLY | os.O_CREAT | os.O_EXCL | os.O_NOFOLLOW
+                           | os.O_CLOEXEC, 0o644), True
         except OSError:
             return None
     except OSError:
         return None
+
+
+def _hold_port(path: Path) -> Optional[PortHold]:
+    """Take the lock of a port's `_el` file (made if missing); None if a listener has it."""
+    opened = _open_lock_file(path)
+    if opened is None:
+        return None
+    fd, made = opened
     try:
         fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
     except OSError:
@@ -399,20 +406,10 @@ def _lock_if_same(path: Path, ident: Optional[dict]) -> Optional[int]:
     gone (Fast DDS removes it at a clean close, and leaves the port itself while other
     processes still map it) is made again and locked, as a listener would, so the rest of the
     set can go without a participant taking the port meanwhile."""
-    if ident is None:
-        return None
-    try:
-        fd = os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_CLOEXEC)
-        made = False
-    except FileNotFoundError:
-        try:
-            fd = os.open(path, os.O_RDONLY | os.O_CREAT | os.O_EXCL | os.O_NOFOLLOW | os.O_CLOEXEC,
-                         0o644)
-            made = True
-        except OSError:
-            return None           # someone made it first: theirs, not ours
-    except OSError:
-        return None
+    opened = _open_lock_file(path) if ident is not None else None
+    if opened is None:
+        return None               # not recorded, or someone made it first: theirs, not ours
+    fd, made = opened
     try:
         st = os.fstat(fd)
         if not made and (st.st_dev, st.st_ino) != (ident.get("dev"), ident.get("ino")):
