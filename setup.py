@@ -14,7 +14,7 @@ setup(
         ("share/ament_index/resource_index/packages", ["resource/" + package_name]),
         (share, ["package.xml"]),
         (share + "/launch", glob("launch/*.launch.py")),
-        (share + "/config", glob("config/*.yaml")),
+        (share + "/config", glob("config/*.yaml") + glob("config/fastdds_*.xml")),
         (share + "/config/sros2", glob("config/sros2/*.xml")),
         (share + "/scenarios", glob("scenarios/*.yaml")),
         (share + "/schemas", glob("docs/schemas/*.json")),

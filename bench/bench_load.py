@@ -16,40 +16,17 @@ Run: .venv/bin/python bench/bench_load.py [--rounds 3 --nominal-s 30 --load-s 15
 from __future__ import annotations
 
 import argparse
-import fcntl
 import json
 import os
-import random
 import signal
 import sqlite3
 import subprocess
 import sys
 import tempfile
 
-os.environ["ROS_AUTOMATIC_DISCOVERY_RANGE"] = "LOCALHOST"
-os.environ.pop("ROS_LOCALHOST_ONLY", None)
-_DOMAIN_LOCK = []
+from ros_domain import loopback_own_domain  # noqa: E402  (bench/ is this script's folder)
 
-
-def _claim_domain_id() -> str:
-    """A free id in the Linux-safe range 1-101, locked as test/conftest.py does, so a test
-    run on the same machine never shares this benchmark's domain (and its load)."""
-    ids = list(range(1, 102))
-    random.SystemRandom().shuffle(ids)
-    for domain_id in ids:
-        handle = open(os.path.join(tempfile.gettempdir(),
-                                   f"helpaware-ros-domain-{domain_id}.lock"), "a")
-        try:
-            fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except OSError:
-            handle.close()
-            continue
-        _DOMAIN_LOCK.append(handle)   # held until this process exits
-        return str(domain_id)
-    return str(ids[0])
-
-
-os.environ["ROS_DOMAIN_ID"] = os.environ.get("ROS_DOMAIN_ID") or _claim_domain_id()
+loopback_own_domain()   # loopback, and a domain id no test run on this machine holds
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DRIVER = os.path.join(HERE, "..", "test", "reliability", "load_driver.py")

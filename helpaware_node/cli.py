@@ -15,6 +15,7 @@ SUBCOMMANDS = {
     "store": ("tools.store_admin", "inspect the belief store; opt out, forget, compact, export CSV"),
     "simulate": ("tools.simulate", "run every policy on a simulated site; table, JSON, plots"),
     "privacy": ("tools.privacy", "opt out or erase a person on every robot (signed requests)"),
+    "shm-sweep": ("tools.shm_sweep", "remove the shared-memory files that killed decision nodes left"),
 }
 
 

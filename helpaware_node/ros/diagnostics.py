@@ -1,13 +1,18 @@
-"""/diagnostics: input rates, rejected documents with the last reason, asks, store state.
+"""/diagnostics: input rates, rejected documents with the last reason, asks, store state, and
+the input watchdog (silent topics).
 
 `InputCounters` counts the node's own input topics; `decision_values` gathers every value the
-node reports (inputs, fleet and privacy topics, session, store, parameters) in one place.
+node reports (inputs, fleet and privacy topics, session, store, parameters) in one place;
+`WatchedInputs` adds the silence of the watched inputs.
 """
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import Mapping
 
 from diagnostic_msgs.msg import DiagnosticArray, DiagnosticStatus, KeyValue
+
+from ..input_watch import InputWatch, change_text, warning_text
 
 INPUTS = ("people", "task_status", "outcome", "navigation_status")
 
@@ -121,3 +126,55 @@ def decision_values(node, rates: dict) -> dict:
     elif store is not None:
         values["store.persons"] = len(store.keys())
     return values
+
+
+def silence_limits_s(settings) -> dict:
+    """The silence limit of each watched topic, from the node settings (0: no warning)."""
+    return {"people": settings.people_silence_warn_s,
+            "task_status": settings.task_status_silence_warn_s}
+
+
+class WatchedInputs:
+    """The input watchdog on the node (the logic is helpaware_node/input_watch.py): publisher
+    counts from the node's own subscriptions, so remaps count the topic really subscribed; one
+    log line when a silence begins and one when it ends; WARN in /diagnostics meanwhile."""
+
+    def __init__(self, subscriptions: Mapping[str, object], logger, start_s: float) -> None:
+        self._subscriptions = dict(subscriptions)
+        self._logger = logger
+        self.watch = InputWatch(self._subscriptions, start_s)
+
+    def note(self, topic: str, now_s: float) -> None:
+        self.watch.note(topic, now_s)
+
+    def _publishers(self) -> dict:
+        counts = {}
+        for topic, sub in self._subscriptions.items():
+            try:
+                counts[topic] = sub.get_publisher_count()
+            except Exception:  # noqa: BLE001 - a subscription destroyed at shutdown
+                counts[topic] = 0
+        return counts
+
+    def report(self, now_s: float, limits_s: Mapping[str, float], values: dict, level,
+               message: str) -> tuple:
+        """Add `<topic>.publishers`, `.silent_s`, `.first_message_after_s` to `values`; log the
+        episodes begun or ended; return the level and message with any silence in them."""
+        statuses, changes = self.watch.check(now_s, limits_s, self._publishers())
+        for change in changes:
+            text = change_text(change, limits_s.get(change.topic, 0.0))
+            if change.began:
+                self._logger.warning(text)
+            else:
+                self._logger.info(text)
+        for st in statuses:
+            values[f"{st.topic}.publishers"] = st.publishers
+            values[f"{st.topic}.silent_s"] = f"{st.silent_s:.1f}"
+            values[f"{st.topic}.first_message_after_s"] = (
+                "" if st.first_message_after_s is None else f"{st.first_message_after_s:.2f}")
+        warning = warning_text(statuses)
+        if not warning:
+            return level, message
+        if level == DiagnosticStatus.OK:
+            return DiagnosticStatus.WARN, warning[:250]
+        return level, f"{message}; {warning}"[:250]

@@ -23,6 +23,11 @@ NODE_NAME = "helpaware_decider"
 MODULE = "helpaware_node.ros.node"
 DEFAULT_PARAMS_FILE = "default.yaml"
 SITE_PARAMS_FILE = "hospital_night.yaml"
+# the robot's Fast DDS profile (docs/integration.md "Respawn"): set for the nodes started here
+# unless the environment names a profile of its own
+MIDDLEWARE_PROFILE_FILE = "fastdds_robot.xml"
+PROFILE_ENV = "FASTDDS_DEFAULT_PROFILES_FILE"
+PROFILE_ENV_OLD = "FASTRTPS_DEFAULT_PROFILES_FILE"
 
 # (from, to): the node's relative topic names, remapped onto a typical robot's topics.
 # Identity by default; each is a launch argument <from>_topic (docs/integration.md).
@@ -85,6 +90,20 @@ def params_file(name: str = DEFAULT_PARAMS_FILE) -> str:
     return package_data.data_file("config", name)
 
 
+def middleware_profile() -> str:
+    """The shipped Fast DDS profile for the whole robot ('' if it is not installed)."""
+    path = os.path.join(config_dir(), MIDDLEWARE_PROFILE_FILE)
+    return path if os.path.isfile(path) else ""
+
+
+def profile_environment(base: Mapping[str, str]) -> dict:
+    """What to add to `base` for the robot's middleware profile: nothing when `base` names a
+    profile of its own (or the file is not installed)."""
+    if base.get(PROFILE_ENV) or base.get(PROFILE_ENV_OLD) or not middleware_profile():
+        return {}
+    return {PROFILE_ENV: middleware_profile()}
+
+
 def executable(name: str = EXECUTABLE) -> list[str]:
     """The installed executable (lib/<package>/<name> under the ament prefix or the venv),
     else `python -m` on the module, so a plain source checkout still runs."""
@@ -143,15 +162,20 @@ class NodeSpec:
                   "remappings": list(self.remaps)}
         if self.respawn:
             kwargs.update(respawn=True, respawn_delay=self.respawn_delay_s)
+        profile = profile_environment(os.environ)   # launch's environment, which nodes inherit
+        if profile:
+            kwargs["additional_env"] = profile
         return kwargs
 
 
 # launch_ros.actions.Node keywords that launch_kwargs() may use. All exist in Humble, Jazzy and
 # Kilted (Node's own: package, executable, name, namespace, parameters, remappings; passed on to
-# launch's ExecuteProcess: respawn, respawn_delay, output). Checked against the vendored
-# launch_ros 0.28.0 / launch 3.7.1 by test/test_launch_files_static.py; Humble from memory.
+# launch's ExecuteProcess: respawn, respawn_delay, additional_env, output). Checked against the
+# vendored launch_ros 0.28.0 / launch 3.7.1 by test/test_launch_files_static.py; Humble from
+# memory.
 LAUNCH_ROS_NODE_KWARGS = frozenset({"package", "executable", "name", "namespace", "parameters",
-                                    "remappings", "respawn", "respawn_delay", "output"})
+                                    "remappings", "respawn", "respawn_delay", "additional_env",
+                                    "output"})
 
 
 def decider(params: Optional[str] = None, namespace: str = "",
@@ -238,10 +262,12 @@ def command(**kwargs) -> list[str]:
 def start(stdout=None, stderr=None, env: Optional[Mapping[str, str]] = None,
           spec: Optional[NodeSpec] = None, **kwargs) -> subprocess.Popen:
     """Start a node (the decider unless `spec` says otherwise) as its own process. It inherits
-    ROS_DOMAIN_ID and ROS_AUTOMATIC_DISCOVERY_RANGE from `env` (default: this process)."""
+    ROS_DOMAIN_ID and ROS_AUTOMATIC_DISCOVERY_RANGE from `env` (default: this process), and
+    the robot's middleware profile as `profile_environment` says."""
     spec = spec or decider(**kwargs)
+    base = dict(env if env is not None else os.environ)
     return subprocess.Popen(spec.command(), stdout=stdout, stderr=stderr,
-                            env=dict(env if env is not None else os.environ), text=True)
+                            env={**base, **profile_environment(base)}, text=True)
 
 
 def stop(proc: subprocess.Popen, timeout_s: float = 20.0) -> int:

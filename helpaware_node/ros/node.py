@@ -37,6 +37,7 @@ from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
 from .markers import PersonMarkers
 from .params import NodeParameters
+from .shm_files import StartupSweep
 from .store_retry import HeldOutcomes
 
 NODE_NAME = "helpaware_decider"
@@ -152,6 +153,8 @@ class HelpAwareNode(LifecycleNode):
             subs.append(self.create_subscription(GoalStatusArray, s.navigation_status_topic,
                                                  self._on_navigation_status, 10,
                                                  event_callbacks=sub_events))
+        self.input_watch = diag.WatchedInputs(      # the input watchdog: silent topics
+            {"people": subs[0], "task_status": subs[1]}, self.get_logger(), self.steady_s())
         timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
@@ -250,6 +253,7 @@ class HelpAwareNode(LifecycleNode):
     # each input topic is received in its own method below: count, decode, hand to the session
     def _on_people(self, msg: String) -> None:
         self.counters.received["people"] += 1
+        self.input_watch.note("people", self.steady_s())
         try:
             doc = wire.decode("people", msg.data)
             people = wire.people_from(doc)
@@ -260,6 +264,7 @@ class HelpAwareNode(LifecycleNode):
 
     def _on_task_status(self, msg: String) -> None:
         self.counters.received["task_status"] += 1
+        self.input_watch.note("task_status", self.steady_s())
         try:
             doc = wire.decode("task_status", msg.data)
             if doc["state"] == "open":
@@ -340,6 +345,8 @@ class HelpAwareNode(LifecycleNode):
         if self.held.waiting:
             message = (f"store refuses writes: asking paused, {self.held.waiting} outcome(s) "
                        f"held in memory ({self.session.status.error})")[:250]
+        level, message = self.input_watch.report(   # the input watchdog: silent topics
+            self.steady_s(), diag.silence_limits_s(self.params.settings), values, level, message)
         self.diag_pub.publish(diag.status_array(f"{self.get_name()}: decision",
                                                 self.get_fully_qualified_name(), stamp, values,
                                                 level, message))
@@ -362,6 +369,7 @@ def resolve_store_path(store_path: str) -> str:
 
 
 def main(args=None) -> int:
+    shm = StartupSweep()   # shared memory of killed instances: claimed before rclpy
     try:
         rclpy.init(args=args)
     except RCLError as exc:   # e.g. a parameter file rcl cannot parse: say so, no traceback
@@ -374,6 +382,7 @@ def main(args=None) -> int:
         # announcement never lands inside the executor's construction
         executor = SingleThreadedExecutor()
         node = HelpAwareNode()
+        shm.participant_up(node.get_logger())    # removed, and this process recorded
         executor.add_node(node)
         executor.spin()
     except (KeyboardInterrupt, ExternalShutdownException):
@@ -392,6 +401,7 @@ def main(args=None) -> int:
             except Exception:  # the context may already be gone after a signal
                 pass
         rclpy.try_shutdown()
+        shm.finish()           # what this process leaves, once its participant is gone
     return code
 
 

@@ -129,6 +129,14 @@ NODE_PARAMS = [
     ParamSpec("allow_unsigned_privacy_requests", False,
               "take unsigned opt-out/forget requests on privacy_topic (a lab setup only: anyone "
               "on the ROS graph could then send them)", "flag", read_only=True),
+    # input watchdog (helpaware_node/input_watch.py, docs/integration.md "Respawn")
+    ParamSpec("people_silence_warn_s", 10.0,
+              "/diagnostics WARN, and one log line, when no people message arrived for longer "
+              "than this (0: no warning)", "seconds", 0.0, 86400.0),
+    ParamSpec("task_status_silence_warn_s", 0.0,
+              "the same for task_status; 0 by default because a behaviour layer speaks only at "
+              "help needs: set it when yours publishes at least this often", "seconds",
+              0.0, 86400.0),
 ]
 
 
@@ -157,6 +165,8 @@ class NodeSettings:
     fleet_topic: str
     privacy_topic: str
     allow_unsigned_privacy_requests: bool
+    people_silence_warn_s: float
+    task_status_silence_warn_s: float
 
     def session_rules(self):
         """The help session's rules from these settings (session.SessionRules)."""
