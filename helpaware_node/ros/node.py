@@ -154,7 +154,7 @@ class HelpAwareNode(LifecycleNode):
                                                  self._on_navigation_status, 10,
                                                  event_callbacks=sub_events))
         self.input_watch = diag.WatchedInputs(      # the input watchdog: silent topics
-            {"people": subs[0], "task_status": subs[1]}, self.get_logger(), self.steady_s())
+            {"people": subs[0], "task_status": subs[1]}, self.get_logger(), time.monotonic())
         timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
@@ -253,7 +253,7 @@ class HelpAwareNode(LifecycleNode):
     # each input topic is received in its own method below: count, decode, hand to the session
     def _on_people(self, msg: String) -> None:
         self.counters.received["people"] += 1
-        self.input_watch.note("people", self.steady_s())
+        self.input_watch.note("people", time.monotonic())
         try:
             doc = wire.decode("people", msg.data)
             people = wire.people_from(doc)
@@ -264,7 +264,7 @@ class HelpAwareNode(LifecycleNode):
 
     def _on_task_status(self, msg: String) -> None:
         self.counters.received["task_status"] += 1
-        self.input_watch.note("task_status", self.steady_s())
+        self.input_watch.note("task_status", time.monotonic())
         try:
             doc = wire.decode("task_status", msg.data)
             if doc["state"] == "open":
@@ -346,7 +346,7 @@ class HelpAwareNode(LifecycleNode):
             message = (f"store refuses writes: asking paused, {self.held.waiting} outcome(s) "
                        f"held in memory ({self.session.status.error})")[:250]
         level, message = self.input_watch.report(   # the input watchdog: silent topics
-            self.steady_s(), diag.silence_limits_s(self.params.settings), values, level, message)
+            time.monotonic(), diag.silence_limits_s(self.params.settings), values, level, message)
         self.diag_pub.publish(diag.status_array(f"{self.get_name()}: decision",
                                                 self.get_fully_qualified_name(), stamp, values,
                                                 level, message))
