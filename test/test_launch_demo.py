@@ -11,7 +11,7 @@ def test_demo_runs_a_short_night_and_keeps_its_store(tmp_path):
                           capture_output=True, text=True, timeout=240, cwd=str(tmp_path))
     assert proc.returncode == 0, proc.stdout[-2000:] + proc.stderr[-2000:]
     out = proc.stdout
-    assert "needs 8:" in out                    # every need got a decision
+    assert "needs 8:" in out, out[-3000:]       # every need got a decision
     lines = [x for x in out.splitlines() if x[:2].isdigit() and ":" in x[:5]]
     assert len(lines) == 8 and all(("ask " in x) or ("continue" in x) for x in lines)
     assert "node exited with code 0" in out

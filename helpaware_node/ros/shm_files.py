@@ -36,6 +36,7 @@ import fcntl
 import json
 import os
 import re
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Optional
@@ -422,6 +423,21 @@ def _lock_if_same(path: Path, ident: Optional[dict]) -> Optional[int]:
     return fd
 
 
+def remove_own_files(directory: Optional[Path] = None, attempts: int = 5,
+                     pause_s: float = 0.1) -> Outcome:
+    """At a clean exit, after the participant is gone: this process's sets and those of dead
+    instances. The middleware's own threads may let go of a lock a moment after the context
+    is shut down, so a set still locked is tried again a few times before it is left for the
+    next start's sweep."""
+    outcome = claim_dead_instances(directory, also_pid=os.getpid()).remove()
+    for _ in range(attempts - 1):
+        if not outcome.in_use:
+            break
+        time.sleep(pause_s)
+        outcome = claim_dead_instances(directory, also_pid=os.getpid()).remove()
+    return outcome
+
+
 def sweep_dead_instances(directory: Optional[Path] = None) -> Outcome:
     """Claim and remove at once (the command; a start-up holds the claim instead)."""
     return claim_dead_instances(directory).remove()
@@ -461,6 +477,6 @@ class StartupSweep:
             if self.claim is not None:     # the node never came up: what was claimed goes now
                 self.claim.remove()
                 self.claim = None
-            claim_dead_instances(self.directory, also_pid=os.getpid()).remove()
+            remove_own_files(self.directory)
         except Exception:  # noqa: BLE001 - exiting anyway; the next start sweeps again
             pass

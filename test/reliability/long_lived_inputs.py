@@ -134,6 +134,7 @@ class LongLivedProcess:
         self.probes: "queue.Queue[dict]" = queue.Queue()
         self.diags: list[dict] = []
         self.matches: list[dict] = []
+        self.exit_sweep: dict = {}
         self._ready = threading.Event()
         threading.Thread(target=self._read, daemon=True).start()
         if not self._ready.wait(start_timeout_s):
@@ -149,6 +150,8 @@ class LongLivedProcess:
                 self.probes.put(doc)
             elif "diag" in doc:
                 self.diags.append(doc)
+            elif "shm_exit" in doc:
+                self.exit_sweep = doc["shm_exit"]    # what its own clean exit removed
             else:
                 self.matches.append(doc)
 
@@ -223,7 +226,9 @@ def main() -> int:
     finally:
         inputs.node.destroy_node()
         rclpy.try_shutdown()
-        shm_files.claim_dead_instances(records, also_pid=os.getpid()).remove()
+        done = shm_files.remove_own_files(records)
+        say({"shm_exit": {"removed": done.removed, "in_use": done.in_use,
+                           "replaced": done.replaced, "records_done": done.records_done}})
     return 0
 
 

@@ -157,5 +157,5 @@ def test_every_restart_answers_and_no_shared_memory_of_the_killed_is_left(tmp_pa
     assert leftovers(killed) == [], leftovers(killed)
     # and the long-lived process, stopped cleanly, left nothing either (its ports outlive a
     # clean exit when a killed node had written to them; it removes them itself)
-    assert inputs_own and leftovers(inputs_own) == [], leftovers(inputs_own)
+    assert inputs_own and leftovers(inputs_own) == [], (leftovers(inputs_own), inputs.exit_sweep)
     assert "Traceback" not in log.read_text()
