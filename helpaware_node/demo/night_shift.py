@@ -120,7 +120,18 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         msg.clock.nanosec = int((t_s - int(t_s)) * 1e9)
         clock_pub.publish(msg)
 
-    ready = spin_for(30.0, lambda: task_pub.get_subscription_count() > 0
+    def wait_decision(rid: str, t_s: float) -> bool:
+        """Spin until the need is decided, publishing the held clock as a paused simulator
+        does (a reading lost before the node's /clock matched must not leave it at zero)."""
+        end = time.monotonic() + DECISION_WAIT_S
+        while time.monotonic() < end:
+            set_clock(t_s)
+            if spin_for(0.1, lambda: rid in decisions):
+                return True
+        return False
+
+    ready = spin_for(30.0, lambda: clock_pub.get_subscription_count() > 0
+                     and task_pub.get_subscription_count() > 0
                      and outcome_pub.get_subscription_count() > 0
                      and people_pub.get_subscription_count() > 0
                      and node.count_publishers("decision") > 0)
@@ -156,7 +167,7 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
             spin_for(0.03)
         task_pub.publish(String(data=wire.task_status_document(
             rid, "open", kind, urgency=round(rng.uniform(0.0, 0.6), 2), stamp_s=t)))
-        if not spin_for(DECISION_WAIT_S, lambda: rid in decisions):
+        if not wait_decision(rid, t):
             out(f"{clock_text(t)}  {kind:8}  no decision within {DECISION_WAIT_S:.0f} s")
             continue
         d = decisions[rid][0]

@@ -35,6 +35,7 @@ import time
 from collections import OrderedDict, deque
 from typing import Callable, Iterable, Optional
 
+from rclpy.clock import Clock, ClockType
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
@@ -154,7 +155,9 @@ class FleetLink(CountsRefusals):
         self._pub = node.create_publisher(String, topic, fleet_qos(depth))
         self._sub = node.create_subscription(String, topic, self._on_delivery,
                                              fleet_reader_qos(depth))
-        self._timer = node.create_timer(MERGE_PERIOD_S, self._on_tick)
+        # on the steady clock: a held /clock (use_sim_time) must not stop peers' events
+        self._timer = node.create_timer(MERGE_PERIOD_S, self._on_tick,
+                                        clock=Clock(clock_type=ClockType.STEADY_TIME))
         k = self._keys
         node.get_logger().info(
             f"{topic}: signing as site {k.site_id} with key {k.current.key_id}" + (

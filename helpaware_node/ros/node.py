@@ -23,6 +23,7 @@ from typing import Optional
 
 import rclpy
 from rclpy._rclpy_pybind11 import RCLError
+from rclpy.clock import Clock, ClockType
 from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
 from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
@@ -155,8 +156,11 @@ class HelpAwareNode(LifecycleNode):
                                                  event_callbacks=sub_events))
         self.input_watch = diag.WatchedInputs(      # the input watchdog: silent topics
             {"people": subs[0], "task_status": subs[1]}, self.get_logger(), time.monotonic())
-        timers = [self.create_timer(s.diagnostics_period_s, self._publish_status),
-                  self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping)]
+        # cadence on the steady clock: with use_sim_time a held /clock must not stop the
+        # housekeeping (a need that came before the first /clock decides once it arrives)
+        steady = Clock(clock_type=ClockType.STEADY_TIME)
+        timers = [self.create_timer(s.diagnostics_period_s, self._publish_status, clock=steady),
+                  self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping, clock=steady)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
         # signed fleet documents in and out (outcomes and asks) and live opt-out/forget on the
         # site-wide topics from parameters (docs/store.md, docs/security.md)

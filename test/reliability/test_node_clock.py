@@ -174,3 +174,30 @@ def test_system_time_jump_forward_keeps_the_limits_on_real_time(ctx):
         assert len(ages) == CAP_PER_HOUR and all(0.0 <= a < 600.0 for a in ages)
     finally:
         rig.close()
+
+
+def test_a_need_before_the_first_clock_waits_then_is_decided_on_a_held_clock(ctx):
+    """A need that arrives before any /clock is not decided on time zero; once a clock
+    reading arrives and then holds (a paused simulator), the need is decided at that time,
+    and /diagnostics keeps coming while the clock stands still (the node's cadence runs on
+    the steady clock, not on sim time)."""
+    from diagnostic_msgs.msg import DiagnosticArray
+    rig = _sim_rig(ctx, "/firstclock")
+    statuses = []
+    rig.driver.create_subscription(DiagnosticArray, "/diagnostics",
+                                   lambda m: statuses.append(m), 10)
+    try:
+        assert rig.connected()
+        n = len(rig.decisions)
+        rig.task_pub.publish(String(data=wire.task_status_document("early", "open", "door")))
+        assert rig.spin_until(lambda: rig.node.counters.received["task_status"] > 0)
+        mine = lambda: [d for d in rig.decisions[n:] if d["request_id"] == "early"]  # noqa: E731
+        rig.spin_until(lambda: bool(mine()), timeout_s=1.0)
+        assert not mine()                                # nothing decided on time zero
+        SimClock(rig).set(30_000.0)                      # one reading, then the clock holds
+        assert rig.spin_until(lambda: bool(mine())), "the waiting need was never decided"
+        assert abs(mine()[0]["stamp_s"] - 30_000.0) < 1e-6
+        seen = len(statuses)
+        assert rig.spin_until(lambda: len(statuses) >= seen + 2), "diagnostics stopped"
+    finally:
+        rig.close()
