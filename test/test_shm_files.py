@@ -258,3 +258,45 @@ def test_a_start_holds_the_dead_files_until_its_participant_is_up(dirs, monkeypa
     monkeypatch.setenv(shm_files.HOLD_ENV, "0")
     start = shm_files.StartupSweep(records)
     assert start.claim is None and not any((shm / m).exists() for m in members())
+
+
+REOPENING_CHILD = CHILD.replace("sys.stdin.read()\n", r"""
+line = sys.stdin.readline()                    # the middleware opens its port again
+os.close(held.pop())
+(shm / (sys.argv[4] + "_el")).unlink()
+(shm / "incoming").write_bytes(b"y" * 2048)
+os.replace(shm / "incoming", shm / sys.argv[4])
+fd = os.open(shm / (sys.argv[4] + "_el"), os.O_CREAT | os.O_RDONLY, 0o644)
+fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+if line.strip() == "refresh":                  # what a clean exit does before shutdown
+    shm_files.record_own_files(records, shm_dir=shm, keep_recorded=True)
+print("reopened", flush=True)
+sys.stdin.read()
+""")
+
+
+@pytest.mark.parametrize("refresh", [True, False])
+def test_a_port_opened_again_during_the_run_is_removed_once_the_record_is_brought_up_to_date(
+        dirs, refresh):
+    shm, records = dirs
+    proc = subprocess.Popen([sys.executable, "-c", REOPENING_CHILD, str(shm), str(records),
+                             SEGMENT, PORT], stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                            text=True)
+    try:
+        assert proc.stdout.readline().strip().endswith(f"{proc.pid}.json")
+        proc.stdin.write("refresh\n" if refresh else "keep\n")
+        proc.stdin.flush()
+        assert proc.stdout.readline().strip() == "reopened"
+        os.kill(proc.pid, signal.SIGKILL)
+        proc.wait(timeout=30)
+        outcome = shm_files.sweep_dead_instances(records)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+    assert not (shm / SEGMENT).exists()              # the set recorded at the start goes
+    if refresh:
+        assert not (shm / PORT).exists() and not (shm / (PORT + "_el")).exists()
+        assert outcome.replaced == []
+    else:        # the start's record knew the old files only: the new set is left alone
+        assert (shm / PORT).exists() and (shm / (PORT + "_el")).exists()

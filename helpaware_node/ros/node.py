@@ -399,6 +399,7 @@ def main(args=None) -> int:
             raise
         # a signal shut the context down while the node was still starting: a clean exit
     finally:
+        shm.before_shutdown()
         if node is not None:
             try:
                 node.destroy_node()

@@ -135,12 +135,21 @@ def _identity(path: Path) -> Optional[dict]:
 
 
 def record_own_files(directory: Optional[Path] = None, shm_dir: Path = SHM_DIR,
-                     pid: Optional[int] = None) -> Optional[Path]:
+                     pid: Optional[int] = None, keep_recorded: bool = False) -> Optional[Path]:
     """Write the record of this process's sets (after its participant exists); its path, or
-    None when there is nothing to record (no /dev/shm, no Fast DDS shared memory)."""
+    None when there is nothing to record (no /dev/shm, no Fast DDS shared memory).
+    `keep_recorded`: add to this process's earlier record instead of replacing it (the
+    middleware may open a port file again during a run, so the record is brought up to date
+    before a clean exit; the sets recorded earlier stay, a set taken again is updated)."""
     pid = os.getpid() if pid is None else pid
     directory = records_dir() if directory is None else Path(directory)
     sets = {}
+    if keep_recorded:
+        try:
+            earlier = json.loads((directory / f"{pid}.json").read_text(encoding="utf-8"))
+            sets.update(earlier.get("sets", {}))
+        except (OSError, ValueError, AttributeError):
+            pass
     for lock in held_lock_names(pid, shm_dir):
         files = {m: _identity(shm_dir / m) for m in set_members(lock)}
         sets[lock] = {m: ident for m, ident in files.items() if ident is not None}
@@ -444,9 +453,10 @@ def sweep_dead_instances(directory: Optional[Path] = None) -> Outcome:
 
 
 class StartupSweep:
-    """The node process's part (three calls in `main()`): claim the dead instances' sets before
-    rclpy starts, remove them and record this process's own once the participant exists, and
-    at the end remove what this process itself left (its participant is gone by then)."""
+    """The node process's part (four calls in `main()`): claim the dead instances' sets before
+    rclpy starts, remove them and record this process's own once the participant exists,
+    bring the record up to date before shutdown, and at the end remove what this process
+    itself left (its participant is gone by then)."""
 
     def __init__(self, directory: Optional[Path] = None) -> None:
         self.directory = records_dir() if directory is None else Path(directory)
@@ -471,6 +481,13 @@ class StartupSweep:
             return
         if logger is not None and (outcome.removed or outcome.in_use or outcome.ports_avoided):
             logger.info(f"shared memory of killed instances: {outcome.summary()}")
+
+    def before_shutdown(self) -> None:
+        """Bring this process's record up to date while its participant still exists."""
+        try:
+            record_own_files(self.directory, keep_recorded=True)
+        except Exception:  # noqa: BLE001 - exiting anyway; the record of the start remains
+            pass
 
     def finish(self) -> None:
         try:

@@ -224,6 +224,7 @@ def main() -> int:
     except KeyboardInterrupt:
         pass
     finally:
+        shm_files.record_own_files(records, keep_recorded=True)   # ports opened again since
         inputs.node.destroy_node()
         rclpy.try_shutdown()
         done = shm_files.remove_own_files(records)
