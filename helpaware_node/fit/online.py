@@ -36,20 +36,22 @@ import math
 import threading
 import time
 from dataclasses import dataclass, field, replace
-from typing import Mapping, Optional, Sequence
+from typing import TYPE_CHECKING, Mapping, Optional, Sequence
 
 import numpy as np
 
 from ..core.model import SiteModel
 from ..core.person import Result
 from ..store.base import AskEvent, LearnedEntry, StoredEvent
-from .convergence import ConvergenceVerdict
 from .data import RESULT_CODE, FitInputError, OutcomeData, ask_ages_from_times, from_arrays
-from .pseudo_outcomes import curvature_floor, pseudo_outcomes, reporting_share
-from .site_fit import MIN_OUTCOMES, SiteFit, fit_site
-from .site_likelihood import SiteParams
+
+if TYPE_CHECKING:     # the fit (scipy) is imported by the first refit, not by the node's start
+    from .convergence import ConvergenceVerdict
+    from .site_fit import SiteFit
+    from .site_likelihood import SiteParams
 
 MODES = ("off", "propose", "apply")
+MIN_OUTCOMES = 10                # fit.site_fit.MIN_OUTCOMES (tested equal)
 LEARNED = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability",
            "ask_memory_half_life_s")
 NUISANCE = "decline_aloud"
@@ -98,7 +100,7 @@ class Refit:
     previous: SiteModel
     n_outcomes: int
     revision: int                    # increases with each accepted change
-    verdict: Optional[ConvergenceVerdict]
+    verdict: Optional["ConvergenceVerdict"]
     proposal: Optional[SiteModel] = None     # the fitted constants (accepted), applied or not
     applied: bool = False            # the constants in force changed (mode apply)
     decline_aloud: Optional[float] = None
@@ -160,16 +162,19 @@ def learning_data(outcomes: Sequence[StoredEvent], asks: Sequence[AskEvent]) -> 
                        keys, sources=("store",), prior_asks=ages)
 
 
-def site_params(model: SiteModel, decline_aloud: float) -> SiteParams:
+def site_params(model: SiteModel, decline_aloud: float) -> "SiteParams":
+    from .site_likelihood import SiteParams
     return SiteParams(model.prior_a, model.prior_b, model.k_busy, model.k_load,
                       model.notice_probability, decline_aloud, model.ask_memory_half_life_s)
 
 
 def refit_constants(data: OutcomeData, target: SiteModel, prior_weight: float,
                     ranges: Mapping[str, tuple[float, float]], max_iter: int = 300
-                    ) -> tuple[SiteFit, float]:
+                    ) -> tuple["SiteFit", float]:
     """The penalised fit of the data shrunk towards `target` (pure; raises FitInputError).
     Returns the fit and the tau of the pseudo-outcomes."""
+    from .pseudo_outcomes import curvature_floor, pseudo_outcomes, reporting_share
+    from .site_fit import fit_site
     tau = reporting_share(data)
     start = site_params(target, tau)
     pseudo = floor = None
@@ -202,6 +207,7 @@ class SiteLearner:
         self.last: Optional[Refit] = None
         self._target_changed = False
         self._started_s: Optional[float] = None
+        self._before: Optional[tuple[dict, int]] = None
         if resume is not None:
             self.learned = {k: float(resume.constants[k]) for k in LEARNED
                             if k in resume.constants}
@@ -279,6 +285,7 @@ class SiteLearner:
                     if refit.decline_aloud is not None:
                         self.decline_aloud = refit.decline_aloud
                 if refit.applied:
+                    self._before = (dict(self.learned), self.revision)
                     self.learned = learned_values(refit.model)
                     self.revision = refit.revision
             return refit
@@ -317,6 +324,14 @@ class SiteLearner:
         return done(Refit(True, reason, proposal if apply else previous, previous, n,
                           revision + 1 if apply else revision, fit.verdict, proposal, apply,
                           float(fit.params.decline_aloud), se, now_s, n_people=data.n_people))
+
+    def revert(self, refit: Refit) -> None:
+        """Take back an applied refit that could not be kept (the store refused it): the
+        constants and revision before it are in force again."""
+        with self._lock:
+            if refit.applied and self.revision == refit.revision and self._before is not None:
+                self.learned, self.revision = self._before
+                self._before = None
 
     def entry(self, refit: Refit, robot_id: str = "", recorded_utc: str = "") -> LearnedEntry:
         """The history row of an applied refit, for the store."""
