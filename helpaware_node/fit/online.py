@@ -27,8 +27,10 @@ Contract (the node and the simulator both drive it; no ROS, no I/O, no clock rea
 * Deterministic: the events are sorted (person key, time, event id) and the fit always starts
   from the parameter file's values, so the same events give the same constants, whatever
   their arrival order or the refits before.
-* `refit` may take seconds (run it off the executor); it records its own result (revision,
-  time, outcomes seen) under a lock, and returns it for the caller to apply.
+* `refit` may take seconds (run it off the executor); by default it records its own result
+  (revision, time, outcomes seen) and returns it for the caller to apply; the node passes
+  record=False and records it on its executor once the store has kept it, so the learner's
+  state only ever changes there.
 """
 from __future__ import annotations
 
@@ -108,6 +110,7 @@ class Refit:
     time_s: float = 0.0              # the caller's clock at the refit
     duration_s: float = 0.0          # wall time the refit took
     n_people: int = 0
+    target: Mapping[str, float] = field(default_factory=dict)   # the file values shrunk towards
 
     def changes(self) -> list[tuple[str, float, float]]:
         """(name, old, new) of each learned constant the proposal changes."""
@@ -207,7 +210,6 @@ class SiteLearner:
         self.last: Optional[Refit] = None
         self._target_changed = False
         self._started_s: Optional[float] = None
-        self._before: Optional[tuple[dict, int]] = None
         if resume is not None:
             self.learned = {k: float(resume.constants[k]) for k in LEARNED
                             if k in resume.constants}
@@ -267,7 +269,10 @@ class SiteLearner:
 
     # -- the refit
     def refit(self, outcomes: Sequence[StoredEvent], asks: Sequence[AskEvent],
-              now_s: float) -> Refit:
+              now_s: float, record: bool = True) -> Refit:
+        """The refit (no I/O). `record` True: its result is recorded here at once (revision,
+        constants in force, time, outcomes seen); False: the caller records it with
+        `record(refit)` later, e.g. on its executor after keeping it in a store."""
         started = time.perf_counter()
         with self._lock:
             settings, file_model, previous = self.settings, self.file_model, self.current
@@ -275,19 +280,10 @@ class SiteLearner:
         n = sum(1 for e in outcomes if e.result is not Result.COULD_NOT_ASK)
 
         def done(refit: Refit) -> Refit:
-            refit = replace(refit, duration_s=time.perf_counter() - started)
-            with self._lock:
-                self.last = refit
-                self.outcomes_seen = max(self.outcomes_seen, refit.n_outcomes)
-                self.last_attempt_s = now_s
-                if refit.accepted:
-                    self._target_changed = False
-                    if refit.decline_aloud is not None:
-                        self.decline_aloud = refit.decline_aloud
-                if refit.applied:
-                    self._before = (dict(self.learned), self.revision)
-                    self.learned = learned_values(refit.model)
-                    self.revision = refit.revision
+            refit = replace(refit, duration_s=time.perf_counter() - started,
+                            target=learned_values(file_model))
+            if record:
+                self.record(refit)
             return refit
 
         def refused(reason: str, verdict=None, n_people: int = 0) -> Refit:
@@ -325,13 +321,20 @@ class SiteLearner:
                           revision + 1 if apply else revision, fit.verdict, proposal, apply,
                           float(fit.params.decline_aloud), se, now_s, n_people=data.n_people))
 
-    def revert(self, refit: Refit) -> None:
-        """Take back an applied refit that could not be kept (the store refused it): the
-        constants and revision before it are in force again."""
+    def record(self, refit: Refit) -> None:
+        """Take a refit's result: the attempt (time, outcomes seen) and, if applied, its
+        constants and revision as the ones in force."""
         with self._lock:
-            if refit.applied and self.revision == refit.revision and self._before is not None:
-                self.learned, self.revision = self._before
-                self._before = None
+            self.last = refit
+            self.outcomes_seen = max(self.outcomes_seen, refit.n_outcomes)
+            self.last_attempt_s = refit.time_s
+            if refit.accepted and refit.target == learned_values(self.file_model):
+                self._target_changed = False      # (a change during the refit still counts)
+                if refit.decline_aloud is not None:
+                    self.decline_aloud = refit.decline_aloud
+            if refit.applied:
+                self.learned = learned_values(refit.model)
+                self.revision = refit.revision
 
     def entry(self, refit: Refit, robot_id: str = "", recorded_utc: str = "") -> LearnedEntry:
         """The history row of an applied refit, for the store."""

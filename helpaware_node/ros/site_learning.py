@@ -14,6 +14,7 @@ import concurrent.futures
 import datetime
 import os
 import time
+from dataclasses import replace
 from typing import Optional
 
 from ..core.model import SiteModel
@@ -108,9 +109,9 @@ class NodeLearning:
 
     def _finished(self, refit: Refit) -> Optional[SiteModel]:
         self.refits += 1
-        if not refit.accepted:
-            self.logger.info(refit.summary())
-            return None
+        if refit.applied and self.learner.settings.mode != "apply":   # switched meanwhile
+            refit = replace(refit, applied=False, model=refit.previous,
+                            revision=refit.revision - 1)
         if refit.applied:
             entry = self.learner.entry(refit, getattr(self.store, "robot_id", ""),
                                        _utc_now())
@@ -119,12 +120,15 @@ class NodeLearning:
             except Exception as exc:  # noqa: BLE001 - not kept, so not put in force
                 self.failed += 1
                 self.last_error = f"store refused revision {refit.revision}: {exc}"[:200]
-                self.learner.revert(refit)
+                self.learner.record(replace(refit, accepted=False, applied=False,
+                                            model=refit.previous, revision=refit.revision - 1,
+                                            reason=self.last_error))
                 self.logger.error(f"site learning: {self.last_error}; constants unchanged")
                 return None
-            self.logger.info(refit.summary())
-            return refit.model
+        self.learner.record(refit)            # on the executor: now it is in force
         self.logger.info(refit.summary())
+        if refit.applied:
+            return refit.model
         if self.learner.settings.mode == "propose" and refit.proposal is not None:
             self._write_proposal(refit)
         return None
@@ -190,7 +194,7 @@ class NodeLearning:
     # ---------------------------------------------------------------- in the worker
     def _work(self, reader, now_s: float) -> Refit:
         outcomes, asks = reader()
-        return self.learner.refit(outcomes, asks, now_s)
+        return self.learner.refit(outcomes, asks, now_s, record=False)
 
 
 def _utc_now() -> str:
