@@ -43,3 +43,44 @@ def site(truth: SiteParams, people: int, asks_per_person: float, seed: int,
          unanswered: float = 0.15, robots: tuple[str, ...] = ("r1",)):
     sim = simulate_with_asks(truth, people, asks_per_person, seed, unanswered=unanswered)
     return sim, *events(sim, robots)
+
+
+def session_across_a_change(learned_values: dict, needs: int = 40, change_at: int = 20,
+                            seed: int = 2):
+    """A help session that decides `needs` needs, with the constants of `learned_values` put
+    in force at need `change_at` (as the node does on a new revision). Returns (decision
+    texts, outcome records (time_s, request id, person id, result), the store, the session,
+    the learned model). Answers are drawn at random (invented)."""
+    import random
+
+    from helpaware_node import wire
+    from helpaware_node.core import DecisionConfig, HelpNeed, SiteModel
+    from helpaware_node.fit.online import overlay
+    from helpaware_node.session import HelpSession, SessionRules
+    from helpaware_node.store import MemoryStore
+    from session_people import Person
+
+    file_model = SiteModel()
+    config = DecisionConfig(interruption_weight_s=1.0, min_reask_interval_s=60.0,
+                            max_asks_per_person_per_day=50, max_asks_per_hour=100)
+    rules = SessionRules(max_asks_per_need=1)
+    store = MemoryStore(robot_id="r1")
+    s = HelpSession(store, file_model, config, rules, now_s=1000.0)
+    learned = overlay(file_model, learned_values)
+    docs, outcomes, source, rng = [], [], ("parameter_file", 0), random.Random(seed)
+    staff = [Person(f"s{i}", 1.0 + i, busyness=0.1 * i) for i in range(5)]
+    for k in range(needs):
+        t = 1000.0 + 300.0 * k
+        if k == change_at:
+            s.set_parameters(learned, config, rules)
+            source = ("learned", 1)
+        s.people_seen(staff + [Person(f"new{k}", 2.0)], t, complete_view=True)
+        step = s.need_opened(HelpNeed(f"n{k}", "door", t, urgency=0.5), t)
+        for out in step.decisions:
+            docs.append((t, wire.decision_text(out.decision, out.robot_ask_times_s, s.model,
+                                               config, "r1", source)))
+            if out.decision.action == "ask":
+                result = rng.choice(["helped", "declined", "no_response"])
+                s.outcome(f"n{k}", out.decision.person_id, result, t + 10)
+                outcomes.append((t + 10, f"n{k}", out.decision.person_id, result))
+    return docs, outcomes, store, s, learned

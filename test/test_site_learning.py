@@ -31,7 +31,7 @@ from helpaware_node.store import MemoryStore, SqliteStore
 from helpaware_node.store.base import AskEvent, LearnedEntry, StoredEvent
 from helpaware_node.store.export import write_csv
 
-from learning_events import key_of, site
+from learning_events import key_of, session_across_a_change, site
 from reference_tables import rat_tumour_groups
 
 FILE = SiteModel()                                  # the shipped defaults
@@ -324,40 +324,21 @@ def test_export_without_ask_rows_keeps_the_half_life_fixed(tmp_path, big_site):
     assert "ask_memory_half_life_s" in fit.fixed and fit.params.ask_memory_half_life_s is None
 
 
+LEARNED_ELSEWHERE = {"prior_a": 0.4, "prior_b": 3.6, "k_busy": 5.0, "k_load": 1.5,
+                     "notice_probability": 0.5, "ask_memory_half_life_s": 7200.0}
+
+
 def test_replay_reproduces_decisions_across_a_change_of_constants():
     # a help session decides, site learning puts other constants in force midway (as the
     # node does: session.set_parameters), and every decision document replays exactly from
     # its own parameters; beliefs after the change are the fold under the new constants
     from helpaware_node import wire
-    from helpaware_node.core import DecisionConfig, HelpNeed, fold_events
+    from helpaware_node.core import fold_events
     from helpaware_node.review.replay import replay_one
-    from helpaware_node.session import HelpSession, SessionRules
-    from session_people import Person
-    config = DecisionConfig(interruption_weight_s=1.0, min_reask_interval_s=60.0,
-                            max_asks_per_person_per_day=50, max_asks_per_hour=100)
-    store = MemoryStore(robot_id="r1")
-    s = HelpSession(store, FILE, config, SessionRules(max_asks_per_need=1), now_s=1000.0)
-    learned = online.overlay(FILE, {"prior_a": 0.4, "prior_b": 3.6, "k_busy": 5.0,
-                                    "k_load": 1.5, "notice_probability": 0.5,
-                                    "ask_memory_half_life_s": 7200.0})
-    docs, source, rng = [], ("parameter_file", 0), random.Random(2)
-    staff = [Person(f"s{i}", 1.0 + i, busyness=0.1 * i) for i in range(5)]
-    for k in range(40):
-        t = 1000.0 + 300.0 * k
-        if k == 20:
-            s.set_parameters(learned, config, SessionRules(max_asks_per_need=1))
-            source = ("learned", 1)
-        s.people_seen(staff + [Person(f"new{k}", 2.0)], t, complete_view=True)
-        step = s.need_opened(HelpNeed(f"n{k}", "door", t, urgency=0.5), t)
-        for out in step.decisions:
-            docs.append(wire.decision_text(out.decision, out.robot_ask_times_s, s.model,
-                                           config, "r1", source))
-            if out.decision.action == "ask":
-                s.outcome(f"n{k}", out.decision.person_id,
-                          rng.choice(["helped", "declined", "no_response"]), t + 10)
+    docs, _, store, s, learned = session_across_a_change(LEARNED_ELSEWHERE)
     assert len(docs) == 40
     changed = 0
-    for text in docs:
+    for _, text in docs:
         doc = wire.decode("decision", text)
         model, cfg = wire.recorded_params(doc)
         again = replay_one(doc, model, cfg)
@@ -373,3 +354,23 @@ def test_replay_reproduces_decisions_across_a_change_of_constants():
     for key in store.keys():
         events = [e.to_outcome() for e in store.events_for(key)]
         assert s.memory.record_for(key).belief == fold_events(events, learned)[0]
+
+
+def test_store_learned_action_shows_the_history(tmp_path, capsys, big_site):
+    # `helpaware store learned` on a file holding two revisions: both rows, oldest first,
+    # with the values that were stored (written here, read back through the command)
+    from helpaware_node import cli
+    from helpaware_node.store.keys import load_site_key
+    key = load_site_key(tmp_path / "site_key")
+    store = SqliteStore(tmp_path / "beliefs.sqlite3", "r1", key)
+    for rev, a in ((1, 1.25), (2, 0.75)):
+        store.record_learned(LearnedEntry(rev, 100.0 * rev, {"prior_a": a, "prior_b": 3.0},
+                                          {"prior_a": 2.0, "prior_weight": 200.0}, 40 * rev,
+                                          {"converged": True}, f"2030-01-0{rev}T00:00:00Z", "r1"))
+    store.close()
+    assert cli.main(["store", "--path", str(tmp_path / "beliefs.sqlite3"), "learned"]) == 0
+    out = capsys.readouterr().out
+    lines = [line for line in out.splitlines() if line.strip()[:1] in ("1", "2")]
+    assert [line.split()[0] for line in lines] == ["1", "2"]
+    assert "1.25" in lines[0] and "0.75" in lines[1] and "80" in lines[1]
+    assert "shrunk towards (parameter file): prior_a 2" in out
