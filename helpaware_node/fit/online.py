@@ -190,6 +190,65 @@ def refit_constants(data: OutcomeData, target: SiteModel, prior_weight: float,
     return fit, tau
 
 
+@dataclass(frozen=True)
+class RefitJob:
+    """One refit as plain values: the learner's state when it was asked for. `run` is pure
+    (no I/O, no shared state), so it may run in another thread or process."""
+
+    settings: LearningSettings
+    file_model: SiteModel
+    previous: SiteModel               # the constants in force when asked
+    revision: int
+    ranges: Mapping[str, tuple[float, float]]
+    now_s: float
+
+    def run(self, outcomes: Sequence[StoredEvent], asks: Sequence[AskEvent]) -> Refit:
+        started = time.perf_counter()
+        settings, file_model, previous, revision = (self.settings, self.file_model,
+                                                    self.previous, self.revision)
+        now_s = self.now_s
+        n = sum(1 for e in outcomes if e.result is not Result.COULD_NOT_ASK)
+
+        def done(refit: Refit) -> Refit:
+            return replace(refit, duration_s=time.perf_counter() - started,
+                           target=learned_values(file_model))
+
+        def refused(reason: str, verdict=None, n_people: int = 0) -> Refit:
+            return done(Refit(False, reason, previous, previous, n, revision, verdict,
+                              time_s=now_s, n_people=n_people))
+
+        if settings.mode == "off":
+            return refused("site_learning is off")
+        if n < MIN_OUTCOMES:
+            return refused(f"too few outcomes: {n}, a refit needs at least {MIN_OUTCOMES}")
+        try:
+            data = learning_data(outcomes, asks)
+            fit, _tau = refit_constants(data, file_model, settings.prior_weight, self.ranges,
+                                        settings.max_iter)
+        except FitInputError as exc:
+            return refused(f"cannot refit: {exc}")
+        except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+            return refused(f"refit failed: {type(exc).__name__}: {str(exc)[:120]}")
+        if not fit.converged:
+            return refused(f"not converged: {fit.verdict.reason}", fit.verdict, data.n_people)
+        values = {}
+        for k in LEARNED:
+            v = getattr(fit.params, k)
+            if v is None or not math.isfinite(v):
+                v = getattr(file_model, k)   # not fitted (no ask times): the file's value
+            low, high = self.ranges[k]
+            values[k] = float(min(max(v, low), high))
+        proposal = overlay(file_model, values)
+        se = {k: v for k, v in fit.std_errors.items() if k in LEARNED or k == NUISANCE}
+        apply = settings.mode == "apply" and learned_values(proposal) != learned_values(previous)
+        reason = fit.verdict.line()
+        if settings.mode == "apply" and not apply:
+            reason = "no change: " + reason
+        return done(Refit(True, reason, proposal if apply else previous, previous, n,
+                          revision + 1 if apply else revision, fit.verdict, proposal, apply,
+                          float(fit.params.decline_aloud), se, now_s, n_people=data.n_people))
+
+
 class SiteLearner:
     """When to refit, and the refit itself; keeps the revision and the constants in force."""
 
@@ -268,58 +327,21 @@ class SiteLearner:
         return max(int(total_outcomes) - self.outcomes_seen, 0)
 
     # -- the refit
+    def job(self, now_s: float) -> "RefitJob":
+        """What a refit needs of this learner, as plain values (for another process)."""
+        with self._lock:
+            return RefitJob(self.settings, self.file_model, self.current, self.revision,
+                            dict(self.ranges), now_s)
+
     def refit(self, outcomes: Sequence[StoredEvent], asks: Sequence[AskEvent],
               now_s: float, record: bool = True) -> Refit:
         """The refit (no I/O). `record` True: its result is recorded here at once (revision,
         constants in force, time, outcomes seen); False: the caller records it with
         `record(refit)` later, e.g. on its executor after keeping it in a store."""
-        started = time.perf_counter()
-        with self._lock:
-            settings, file_model, previous = self.settings, self.file_model, self.current
-            revision = self.revision
-        n = sum(1 for e in outcomes if e.result is not Result.COULD_NOT_ASK)
-
-        def done(refit: Refit) -> Refit:
-            refit = replace(refit, duration_s=time.perf_counter() - started,
-                            target=learned_values(file_model))
-            if record:
-                self.record(refit)
-            return refit
-
-        def refused(reason: str, verdict=None, n_people: int = 0) -> Refit:
-            return done(Refit(False, reason, previous, previous, n, revision, verdict,
-                              time_s=now_s, n_people=n_people))
-
-        if settings.mode == "off":
-            return refused("site_learning is off")
-        if n < MIN_OUTCOMES:
-            return refused(f"too few outcomes: {n}, a refit needs at least {MIN_OUTCOMES}")
-        try:
-            data = learning_data(outcomes, asks)
-            fit, _tau = refit_constants(data, file_model, settings.prior_weight, self.ranges,
-                                        settings.max_iter)
-        except FitInputError as exc:
-            return refused(f"cannot refit: {exc}")
-        except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
-            return refused(f"refit failed: {type(exc).__name__}: {str(exc)[:120]}")
-        if not fit.converged:
-            return refused(f"not converged: {fit.verdict.reason}", fit.verdict, data.n_people)
-        values = {}
-        for k in LEARNED:
-            v = getattr(fit.params, k)
-            if v is None or not math.isfinite(v):
-                v = getattr(file_model, k)   # not fitted (no ask times): the file's value
-            low, high = self.ranges[k]
-            values[k] = float(min(max(v, low), high))
-        proposal = overlay(file_model, values)
-        se = {k: v for k, v in fit.std_errors.items() if k in LEARNED or k == NUISANCE}
-        apply = settings.mode == "apply" and learned_values(proposal) != learned_values(previous)
-        reason = fit.verdict.line()
-        if settings.mode == "apply" and not apply:
-            reason = "no change: " + reason
-        return done(Refit(True, reason, proposal if apply else previous, previous, n,
-                          revision + 1 if apply else revision, fit.verdict, proposal, apply,
-                          float(fit.params.decline_aloud), se, now_s, n_people=data.n_people))
+        refit = self.job(now_s).run(outcomes, asks)
+        if record:
+            self.record(refit)
+        return refit
 
     def record(self, refit: Refit) -> None:
         """Take a refit's result: the attempt (time, outcomes seen) and, if applied, its

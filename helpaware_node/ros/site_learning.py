@@ -1,12 +1,15 @@
-"""Site learning on the node: refits in a worker thread, results applied on the executor.
+"""Site learning on the node: refits in a worker process, results applied on the executor.
 
 `NodeLearning.poll(now_s)` runs on the executor (the housekeeping timer). When a refit is due
-(fit.online.SiteLearner.due) it hands the store's `learning_reader()` to one worker thread:
-the reader opens its own read-only connection there (SQLite), so neither the read nor the fit
-holds the node's connection or its lock, and deciding never waits for either. A finished
-refit is picked up by the next poll, on the executor: logged (old -> new, outcomes), kept in
-the store's history first (a revision the store refuses is not put in force), then returned
-for the node to put in force. Propose mode writes a parameter file instead.
+(fit.online.SiteLearner.due) it hands the store's `learning_reader()` and the learner's job
+(plain values) to a worker process (fit/refit_worker.py: the fit shares no interpreter lock
+with the executor); the reader opens its own read-only connection there (SQLite), so neither
+the read nor the fit holds the node's connection or its lock, and deciding never waits for
+either. Where a process cannot be started the refit runs in a thread instead (said once in the
+log). A finished refit is picked up by the next poll, on the executor: logged (old -> new,
+outcomes), kept in the store's history first (a revision the store refuses is not put in
+force), then recorded by the learner and returned for the node to put in force. Propose mode
+writes a parameter file instead.
 """
 from __future__ import annotations
 
@@ -19,6 +22,7 @@ from typing import Optional
 
 from ..core.model import SiteModel
 from ..fit.online import LEARNED, NUISANCE, LearningSettings, Refit, SiteLearner
+from ..fit.refit_worker import RefitWorker
 
 PROPOSAL_NAME = "site_proposal.yaml"
 # how often (steady seconds) the store's outcome count is read to see whether a refit is due
@@ -43,7 +47,8 @@ class NodeLearning:
         self.proposal_file, self.node_name = proposal_file, node_name
         resume = store.latest_learned() if hasattr(store, "latest_learned") else None
         self.learner = SiteLearner(file_model, settings, ranges, resume)
-        self._pool: Optional[concurrent.futures.ThreadPoolExecutor] = None
+        self._worker = None        # RefitWorker (a process), made at the first refit
+        self._pool: Optional[concurrent.futures.ThreadPoolExecutor] = None   # if no process
         self._future: Optional[concurrent.futures.Future] = None
         self.refits = 0           # finished refit attempts
         self.failed = 0           # refits that raised, or whose revision the store refused
@@ -66,7 +71,7 @@ class NodeLearning:
 
     @property
     def running(self) -> bool:
-        return self._future is not None
+        return self._future is not None or (self._worker is not None and self._worker.busy)
 
     def set_parameters(self, file_model: SiteModel, settings: LearningSettings) -> None:
         self.learner.set_file_model(file_model)
@@ -76,19 +81,18 @@ class NodeLearning:
     def poll(self, now_s: float) -> Optional[SiteModel]:
         """Pick up a finished refit (the model to put in force, if it changed) or start one
         that is due. Never blocks."""
-        if self._future is not None:
-            if not self._future.done():
-                return None
-            future, self._future = self._future, None
+        if self.running:
             try:
-                refit = future.result()
-            except Exception as exc:  # noqa: BLE001 - a bug or a store that cannot be read
-                self.failed += 1
+                refit = self._collect()
+            except Exception as exc:  # noqa: BLE001 - a bug, a store that cannot be read, a
+                self.failed += 1       # worker that died: nothing changes
                 self.last_error = f"{type(exc).__name__}: {exc}"[:200]
                 self.logger.error(f"site learning: refit failed, nothing changed "
                                   f"({self.last_error})")
+                if self._worker is not None and not self._worker.alive:
+                    self._worker = None          # a new one at the next refit
                 return None
-            return self._finished(refit)
+            return None if refit is None else self._finished(refit)
         steady = time.monotonic()
         if now_s <= 0.0 or self.store is None or steady - self._checked_at < CHECK_EVERY_S:
             return None
@@ -101,11 +105,44 @@ class NodeLearning:
         except Exception as exc:  # noqa: BLE001 - the store's health is reported elsewhere
             self.last_error = f"{type(exc).__name__}: {exc}"[:200]
             return None
+        self._start(reader, self.learner.job(now_s))
+        return None
+
+    def _start(self, reader, job) -> None:
+        if self._pool is None and self._worker is None:
+            try:
+                self._worker = RefitWorker()
+            except (OSError, RuntimeError, ValueError) as exc:
+                self.logger.warning(f"site learning: no worker process ({exc}); refits run "
+                                    "in a thread of this process (decisions share its time)")
+        if self._worker is not None:
+            try:
+                self._worker.submit(reader, job)
+                return
+            except (OSError, ValueError, EOFError) as exc:
+                self.logger.warning(f"site learning: worker process unusable ({exc}); "
+                                    "refits run in a thread from now on")
+                self._worker.stop()
+                self._worker = None
         if self._pool is None:
             self._pool = concurrent.futures.ThreadPoolExecutor(
                 max_workers=1, thread_name_prefix="site_learning")
-        self._future = self._pool.submit(self._work, reader, now_s)
-        return None
+        self._future = self._pool.submit(_run, reader, job)
+
+    def _collect(self) -> Optional[Refit]:
+        """The finished refit, or None while one runs (raises when it failed)."""
+        if self._future is not None:
+            if not self._future.done():
+                return None
+            future, self._future = self._future, None
+            return future.result()
+        reply = self._worker.poll()
+        if reply is None:
+            return None
+        kind, value = reply
+        if kind != "ok":
+            raise RuntimeError(value)
+        return value
 
     def _finished(self, refit: Refit) -> Optional[SiteModel]:
         self.refits += 1
@@ -185,16 +222,21 @@ class NodeLearning:
         return values
 
     def shutdown(self) -> None:
-        """Stop the worker: a refit still running finishes in its thread and is dropped."""
+        """Stop the worker: a refit still running is ended (process) or finishes in its
+        thread and is dropped; nothing of it was in force yet."""
+        if self._worker is not None:
+            self._worker.stop()
+            self._worker = None
         if self._pool is not None:
             self._pool.shutdown(wait=False, cancel_futures=True)
             self._pool = None
         self._future = None
 
-    # ---------------------------------------------------------------- in the worker
-    def _work(self, reader, now_s: float) -> Refit:
-        outcomes, asks = reader()
-        return self.learner.refit(outcomes, asks, now_s, record=False)
+
+def _run(reader, job) -> Refit:
+    """A refit in a thread (when no worker process could be started)."""
+    outcomes, asks = reader()
+    return job.run(outcomes, asks)
 
 
 def _utc_now() -> str:

@@ -78,6 +78,18 @@ class LearnedEntry:
     robot_id: str = ""
 
 
+@dataclass(frozen=True)
+class EventsReader:
+    """The events site learning reads, copied when it was made (a MemoryStore's): callable,
+    and picklable, so the refit can run in another thread or process."""
+
+    outcomes: tuple
+    asks: tuple
+
+    def __call__(self) -> tuple[list, list]:
+        return list(self.outcomes), list(self.asks)
+
+
 def check_learned(entry: LearnedEntry) -> None:
     """Refuse a history row that is not plain, finite values (names the field)."""
     if isinstance(entry.revision, bool) or not isinstance(entry.revision, int) or entry.revision < 1:
@@ -257,12 +269,12 @@ class MemoryStore:
     def use_model(self, model: SiteModel) -> None:
         """The model beliefs are folded under from now on (folds are cached per model)."""
 
-    def learning_reader(self):
-        """A function returning (outcomes, asks) of people not opted out, safe to call from
-        another thread: the copies are taken now, on the caller's thread."""
-        outcomes = [e for e in self._events.values() if e.person_key not in self._opted_out]
-        asks = [a for a in self._asks.values() if a.person_key not in self._opted_out]
-        return lambda: (outcomes, asks)
+    def learning_reader(self) -> EventsReader:
+        """(outcomes, asks) of people not opted out, for a refit in another thread or
+        process: the copies are taken now, on the caller's thread."""
+        return EventsReader(
+            tuple(e for e in self._events.values() if e.person_key not in self._opted_out),
+            tuple(a for a in self._asks.values() if a.person_key not in self._opted_out))
 
     # -- learned site constants (fit/online.py)
     def record_learned(self, entry: LearnedEntry) -> None:

@@ -25,6 +25,7 @@ import re
 import sqlite3
 import threading
 import time
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Iterator
 
@@ -109,6 +110,27 @@ def move_aside(path: Path) -> Path:
         if src.exists():
             os.replace(src, Path(str(target) + suffix))
     return target
+
+
+@dataclass(frozen=True)
+class SqliteReader:
+    """Reads a store file's outcomes and asks for site learning (picklable: a path)."""
+
+    path: str
+
+    def __call__(self) -> tuple[list[StoredEvent], list[AskEvent]]:
+        conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True, timeout=10.0)
+        try:
+            conn.execute("BEGIN")      # one snapshot of both tables
+            not_opted = "person_key NOT IN (SELECT person_key FROM opt_out)"
+            outcomes = [row_to_event(r) for r in conn.execute(
+                f"SELECT {EVENT_COLUMNS} FROM events WHERE {not_opted}")]
+            asks = [row_to_ask(r) for r in conn.execute(
+                f"SELECT {ASK_COLUMNS} FROM asks WHERE {not_opted}")]
+            conn.execute("COMMIT")
+            return outcomes, asks
+        finally:
+            conn.close()
 
 
 class SqliteStore:
@@ -660,26 +682,11 @@ class SqliteStore:
             self._conn.execute("INSERT OR REPLACE INTO meta VALUES ('site_model', ?)",
                                (json.dumps(to_plain(model), sort_keys=True),))
 
-    def learning_reader(self):
-        """A function returning (outcomes, asks) of people not opted out, for a worker
-        thread: it opens its own read-only connection (WAL lets it read while the node
-        writes), so the node's connection and lock are never held by a refit."""
-        path = str(self.path)
-
-        def read():
-            conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=10.0)
-            try:
-                conn.execute("BEGIN")      # one snapshot of both tables
-                not_opted = "person_key NOT IN (SELECT person_key FROM opt_out)"
-                outcomes = [row_to_event(r) for r in conn.execute(
-                    f"SELECT {EVENT_COLUMNS} FROM events WHERE {not_opted}")]
-                asks = [row_to_ask(r) for r in conn.execute(
-                    f"SELECT {ASK_COLUMNS} FROM asks WHERE {not_opted}")]
-                conn.execute("COMMIT")
-                return outcomes, asks
-            finally:
-                conn.close()
-        return read
+    def learning_reader(self) -> "SqliteReader":
+        """(outcomes, asks) of people not opted out, read by whoever calls it (a refit's
+        worker thread or process) on its own read-only connection: WAL lets it read while the
+        node writes, and the node's connection and lock are never held by a refit."""
+        return SqliteReader(str(self.path))
 
     def record_learned(self, entry: LearnedEntry) -> None:
         """Keep a revision of the learned constants, durably (one transaction)."""
