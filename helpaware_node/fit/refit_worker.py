@@ -6,16 +6,25 @@ refit ran several times slower): bench/bench_learning.py, part 4. In a process o
 shares nothing. The process is started once with the "spawn" method (a fork of a process
 that runs middleware threads is unsafe), kept for the node's life, and given one job at a
 time over a pipe: the store's reader (a picklable path, or copied events) and the job. The
-caller polls for the result without blocking. No ROS here.
+caller polls for the result without blocking. The worker runs at a lower CPU priority (nice
+10), so on a busy machine the node's executor gets the CPU first. No ROS here.
 """
 from __future__ import annotations
 
 import multiprocessing
+import os
 from typing import Any, Optional
+
+
+NICENESS = 10      # a refit is background work: the node's own threads get the CPU first
 
 
 def serve(conn) -> None:
     """The worker's loop: (reader, job) in, ("ok", Refit) or ("error", text) out."""
+    try:
+        os.nice(NICENESS)
+    except (AttributeError, OSError):     # not on this platform: the same, at equal priority
+        pass
     while True:
         try:
             msg = conn.recv()
