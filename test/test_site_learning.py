@@ -375,3 +375,52 @@ def test_store_learned_action_shows_the_history(tmp_path, capsys, big_site):
     assert [line.split()[0] for line in lines] == ["1", "2"]
     assert "1.25" in lines[0] and "0.75" in lines[1] and "80" in lines[1]
     assert "shrunk towards (parameter file): prior_a 2" in out
+
+
+def test_store_file_at_version_3_is_upgraded_with_its_asks_and_an_empty_history(
+        tmp_path, monkeypatch):
+    # a file written at version 3 (the store's own write path, migrations stopped there):
+    # version 4 adds the history table; asks and events stay as they were (sqlite3 read-only)
+    import functools
+    import sqlite3
+    from helpaware_node.store import schema
+    from helpaware_node.store import sqlite as sqlite_module
+    with monkeypatch.context() as m:
+        m.setattr(sqlite_module, "migrate", functools.partial(schema.migrate, target=3))
+        old = SqliteStore(tmp_path / "v3.sqlite3", "r1", KEY)
+        old.append(StoredEvent("r1/1", key_of("a"), 5.0, Result.HELPED, 0.2, 0.0))
+        old.append_asks([AskEvent("r1/2", key_of("a"), 6.0, "door", "n1")])
+        old.close()
+    conn = sqlite3.connect(f"file:{tmp_path / 'v3.sqlite3'}?mode=ro", uri=True)
+    assert conn.execute("PRAGMA user_version").fetchone()[0] == 3
+    conn.close()
+    store = SqliteStore(tmp_path / "v3.sqlite3", "r1", KEY)
+    assert store.counts()["schema_version"] == 4 and store.learned_history() == []
+    assert len(store.asks(person_key=key_of("a"))) == 1 and store.event_count() == 1
+    store.record_learned(LearnedEntry(1, 7.0, {"prior_a": 1.5}, {"prior_a": 2.0}, 10, {}))
+    assert store.latest_learned().constants == {"prior_a": 1.5}
+
+
+def test_fit_command_estimates_the_half_life_from_the_exports_ask_rows(tmp_path, capsys,
+                                                                         big_site):
+    # `helpaware fit` on `helpaware store export`: the half-life row is fitted with a
+    # standard error, and the written parameter file carries it (read back with the node's
+    # own reader, checked against SiteModel's ranges)
+    from helpaware_node import cli
+    from helpaware_node.fit.paramfile import read_param_file
+    _, outcomes, asks = big_site
+    store = SqliteStore(tmp_path / "s.sqlite3", "r1", KEY)
+    store.append_many(outcomes)
+    store.append_asks(asks)
+    with open(tmp_path / "export.csv", "w") as fh:
+        write_csv(store, fh)
+    out = tmp_path / "tuned.yaml"
+    code = cli.main(["fit", str(tmp_path / "export.csv"), "--out", str(out), "--folds", "0"])
+    printed = capsys.readouterr().out
+    assert code == 0, printed
+    row = next(line for line in printed.splitlines()
+               if line.startswith("ask_memory_half_life_s"))
+    assert row.split()[-1] == "fitted" and float(row.split()[2]) > 0      # estimate, s.e.
+    values = read_param_file(str(out))
+    assert float(row.split()[1]) == pytest.approx(values["ask_memory_half_life_s"], rel=1e-3)
+    SiteModel(**values)

@@ -90,3 +90,23 @@ def test_bad_learning_parameters_are_refused_by_range(ctx, bad, reason):
         assert not r.successful and (bad in r.reason or "range" in r.reason)
     finally:
         rig.close()
+
+
+def test_memory_store_node_learns_from_outcomes_stored_while_it_runs(ctx):
+    # store_path 'memory': the node's store is in this process; outcomes appended to it
+    # (as the session and the fleet link do) are copied for the worker, which refits them
+    rig = Rig(ctx, namespace="/memory_learning", store_path="memory", robot_id="r1", **FAST)
+    try:
+        node = rig.node
+        _, outcomes, asks = site(TRUTH, 60, 6, seed=8, robots=("peer1",))
+        node.store.extend(outcomes)
+        node.store.append_asks(asks)
+        assert rig.spin_until(lambda: node.constants_source == ("learned", 1), 120.0), \
+            node.learning.learner.last
+        assert node.session.model == node.model_in_force != SiteModel()
+        assert node.learning.learner.last.n_outcomes == len(outcomes)
+        assert node.session.config == node.params.config     # costs and limits untouched
+        [entry] = node.store.learned_history()
+        assert entry.revision == 1 and entry.n_outcomes == len(outcomes)
+    finally:
+        rig.close()

@@ -25,14 +25,20 @@ def simulate(params: SiteParams, n_people: int, asks_per_person: float, seed: in
     x = rng.beta(1.2, 2.0, size=n)
     f = load_scale * rng.exponential(0.6, size=n) * (rng.random(n) < 0.5)
     c = np.exp(-(params.k_busy * x + params.k_load * f))
+    result = draw_results(rng, params, w[person] * c)
+    keys = [f"p{i:06d}" for i in range(n_people)]
+    return from_arrays([keys[i] for i in person], x, f, result, keys)
+
+
+def draw_results(rng: np.random.Generator, params: SiteParams, wc: np.ndarray) -> np.ndarray:
+    """The generative story of the module doc, per ask with help chance w c when noticed."""
+    n = wc.size
     tau, q = params.decline_aloud, params.notice_probability
     nu = tau + q * (1.0 - tau)
     noticed = rng.random(n) < nu
-    helps = noticed & (rng.random(n) < w[person] * c)
+    helps = noticed & (rng.random(n) < wc)
     aloud = noticed & ~helps & (rng.random(n) < tau / nu)
-    result = np.where(helps, HELPED, np.where(aloud, DECLINED, NO_RESPONSE))
-    keys = [f"p{i:06d}" for i in range(n_people)]
-    return from_arrays([keys[i] for i in person], x, f, result, keys)
+    return np.where(helps, HELPED, np.where(aloud, DECLINED, NO_RESPONSE))
 
 
 @dataclass(frozen=True)
@@ -83,12 +89,7 @@ def simulate_with_asks(params: SiteParams, n_people: int, asks_per_person: float
             -np.where(earlier, age, 0) / robot_half_life_s), 0.0), axis=1)
     x = rng.beta(1.2, 2.0, size=n)
     c_ = np.exp(-(params.k_busy * x + params.k_load * true_load))
-    tau, q = params.decline_aloud, params.notice_probability
-    nu = tau + q * (1.0 - tau)
-    noticed = rng.random(n) < nu
-    helps = noticed & (rng.random(n) < w[person] * c_)
-    aloud = noticed & ~helps & (rng.random(n) < tau / nu)
-    result = np.where(helps, HELPED, np.where(aloud, DECLINED, NO_RESPONSE))
+    result = draw_results(rng, params, w[person] * c_)
     answered = rng.random(n) >= unanswered
     keys = tuple(f"p{i:06d}" for i in range(n_people))
     rows = np.flatnonzero(answered)
