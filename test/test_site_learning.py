@@ -109,7 +109,7 @@ def test_the_penalty_is_the_expected_log_likelihood_with_its_maximum_at_the_file
     # weight; the floor lifts every direction's curvature to weight * MIN_INFORMATION
     target = online.site_params(FILE, 0.6)
     pseudo = pseudo_outcomes(target, 200.0)
-    assert 2 * 0 + float(pseudo.weight @ np.bincount(pseudo.person)) == pytest.approx(200.0)
+    assert float(pseudo.weight @ np.bincount(pseudo.person)) == pytest.approx(200.0)
     lik = SiteLikelihood(pseudo, use_reporting_factor=True)
     centre, prec = curvature_floor(target, 200.0, pseudo)
     obj = Objective([lik], np.ones(len(NAMES), bool), centre, quadratic=(centre, prec))
@@ -172,10 +172,6 @@ def test_few_outcomes_barely_move_the_constants(big_site):
     for name in ("k_busy", "k_load"):
         assert abs(getattr(r.model, name) - getattr(FILE, name)) < 0.3, name
     assert abs(r.model.notice_probability - FILE.notice_probability) < 0.05
-
-
-def _context(result, busyness=0.3):
-    return result, busyness
 
 
 @pytest.mark.parametrize("stream", ["all_helped", "all_declined", "one_person", "one_context"])
