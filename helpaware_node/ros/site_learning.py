@@ -211,6 +211,8 @@ class NodeLearning:
                   "site_learning.failed": self.failed,
                   "site_learning.last_error": self.last_error,
                   "site_learning.last_refit": "" if last is None else last.reason[:200],
+                  # old -> new of each constant the last accepted refit moved (applied or proposed)
+                  "site_learning.last_change": "" if last is None else _changes_line(last),
                   "site_learning.last_refit_accepted": "" if last is None else last.accepted,
                   "site_learning.last_refit_time_s": "" if last is None else f"{last.time_s:.1f}",
                   "site_learning.last_refit_outcomes": "" if last is None else last.n_outcomes,
@@ -237,6 +239,10 @@ def _run(reader, job) -> Refit:
     """A refit in a thread (when no worker process could be started)."""
     outcomes, asks = reader()
     return job.run(outcomes, asks)
+
+
+def _changes_line(refit: Refit) -> str:
+    return ", ".join(f"{n} {a:.4g} -> {b:.4g}" for n, a, b in refit.changes())[:400]
 
 
 def _utc_now() -> str:

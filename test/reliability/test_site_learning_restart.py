@@ -75,6 +75,8 @@ def test_learned_constants_show_in_diagnostics_and_survive_a_restart(tmp_path):
         for name in LEARNED:
             assert first[f"site_model.{name}"] == f"{constants[name]:.6g}"
         assert float(first["site_model.prior_a"]) != 2.0        # it did learn something
+        # the change shows old (the parameter file's 2) -> new (the stored revision's value)
+        assert f"prior_a 2 -> {constants['prior_a']:.4g}" in first["site_learning.last_change"]
         stop_gently(proc)
         proc = start_node(store_path, "learn1", NS, log, limits=LEARNING)
         seen.clear()
