@@ -153,9 +153,21 @@ RATIONALE_ROW = F("object", fields={
         ("score_s", "Q, robot-s"))},
 })
 
+CONSTANT_SOURCES = ("parameter_file", "learned")
+
+SOURCE = F("object", fields={
+    "site_constants": F("enum", choices=CONSTANT_SOURCES,
+                        description="where the model's site constants came from: the "
+                        "parameter values, or site learning (fit/online.py)"),
+    "revision": F("integer", low=0, high=1e12,
+                  description="the learned revision in force (0: parameter file)"),
+})
+
 PARAMETERS = F("object", fields={
     "model": F("any_object", description="core.model.to_plain(SiteModel)"),
     "config": F("any_object", description="core.model.to_plain(DecisionConfig)"),
+    "source": F("object", required=False, fields=SOURCE.fields,
+                description="where the site constants in `model` came from"),
 })
 
 DECISION = F("object", fields={
@@ -424,11 +436,12 @@ def _candidate_plain(c: Candidate) -> dict:
 def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
                          model: Optional[SiteModel] = None,
                          config: Optional[DecisionConfig] = None, robot_id: str = "",
-                         check: bool = True) -> dict:
+                         check: bool = True, source: Optional[tuple[str, int]] = None) -> dict:
     """The decision as a plain document; `encode("decision", doc)` makes the text.
 
     `check=False` skips validation (the node: every value comes from validated core values,
     and validating costs more than deciding; the tests check its output documents).
+    `source`: (site_constants, revision) of the model, e.g. ("learned", 3).
 
     Only the robot's asks within the hour before the decision are kept: those are all the
     robot-hourly cap looks at, so the replay reproduces the decision exactly.
@@ -446,38 +459,45 @@ def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
         "rationale": decision.rationale(),
     }
     if model is not None and config is not None:
-        doc["parameters"] = _parameters_plain(model, config)
+        doc["parameters"] = _parameters_plain(model, config, source)
     return validate("decision", doc) if check else doc
 
 
 @functools.lru_cache(maxsize=16)
-def _parameters_plain_cached(model: SiteModel, config: DecisionConfig) -> str:
-    return json.dumps({"model": to_plain(model), "config": to_plain(config)},
-                      separators=(",", ":"), allow_nan=False)
+def _parameters_plain_cached(model: SiteModel, config: DecisionConfig,
+                             source: Optional[tuple[str, int]] = None) -> str:
+    plain: dict[str, Any] = {"model": to_plain(model), "config": to_plain(config)}
+    if source is not None:
+        plain["source"] = {"site_constants": source[0], "revision": int(source[1])}
+    return json.dumps(plain, separators=(",", ":"), allow_nan=False)
 
 
-def _parameters_plain(model: SiteModel, config: DecisionConfig) -> dict:
-    return json.loads(_parameters_plain_cached(model, config))
+def _parameters_plain(model: SiteModel, config: DecisionConfig,
+                      source: Optional[tuple[str, int]] = None) -> dict:
+    return json.loads(_parameters_plain_cached(model, config, source))
 
 
 def fast_text(document: Mapping[str, Any], model: Optional[SiteModel] = None,
-              config: Optional[DecisionConfig] = None) -> str:
+              config: Optional[DecisionConfig] = None,
+              source: Optional[tuple[str, int]] = None) -> str:
     """Serialise a document built here without validating it again (NaN still refused).
 
-    With model and config, their `parameters` object is spliced in from a cache: it is the
-    same text at every decision until a parameter changes.
+    With model and config, their `parameters` object (and the constants' `source`) is spliced
+    in from a cache: it is the same text at every decision until a parameter or the learned
+    revision changes.
     """
     text = json.dumps(document, separators=(",", ":"), allow_nan=False)
     if model is None or config is None:
         return text
-    return text[:-1] + ',"parameters":' + _parameters_plain_cached(model, config) + "}"
+    return (text[:-1] + ',"parameters":' + _parameters_plain_cached(model, config, source)
+            + "}")
 
 
 def decision_text(decision: Decision, robot_ask_times_s: Sequence[float],
                   model: Optional[SiteModel] = None, config: Optional[DecisionConfig] = None,
-                  robot_id: str = "") -> str:
+                  robot_id: str = "", source: Optional[tuple[str, int]] = None) -> str:
     return encode("decision", decision_to_document(decision, robot_ask_times_s, model, config,
-                                                   robot_id))
+                                                   robot_id, source=source))
 
 
 def replay_inputs(document: Mapping[str, Any]
@@ -498,6 +518,16 @@ def replay_inputs(document: Mapping[str, Any]
                        first_seen_s=c["first_seen_s"], opted_out=c["opted_out"])
              for c in document["candidates"]]
     return need, cands, float(document["stamp_s"]), tuple(document["robot_ask_times_s"])
+
+
+def recorded_source(document: Mapping[str, Any]) -> tuple[str, int]:
+    """(site_constants, revision) of a decision's model; documents from before site
+    learning carry none: their constants came from the parameter file."""
+    params = document.get("parameters") if isinstance(document, Mapping) else None
+    source = params.get("source") if isinstance(params, dict) else None
+    if not isinstance(source, dict):
+        return "parameter_file", 0
+    return str(source.get("site_constants", "parameter_file")), int(source.get("revision", 0))
 
 
 def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionConfig]:

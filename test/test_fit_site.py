@@ -17,7 +17,7 @@ from helpaware_node.core.model import SiteModel
 from helpaware_node.fit.data import DECLINED, HELPED, NO_RESPONSE, from_arrays, from_group_counts
 from helpaware_node.fit.site_fit import Objective, context_test, fit_site, moments_start, to_theta
 from helpaware_node.fit.site_likelihood import SiteLikelihood, SiteParams, beta_rule
-from helpaware_node.fit.simulate_outcomes import simulate
+from helpaware_node.fit.simulate_outcomes import simulate, simulate_with_asks
 from reference_tables import rat_tumour_groups
 
 
@@ -89,12 +89,16 @@ def test_marginal_with_context_matches_numerical_integration():
     assert lik.loglik(p) == pytest.approx(ref, abs=1e-10)
 
 
-def test_gradient_matches_finite_differences():
-    # scipy.optimize.check_grad against the analytic (k, q, tau) and 5-point (a0, b0) gradient
-    truth = SiteParams(2.0, 3.0, 1.5, 0.7, 0.6, 0.7)
-    data = simulate(truth, 120, 8, seed=11)
-    obj = Objective(SiteLikelihood(data), np.ones(6, bool), to_theta(truth))
-    theta = to_theta(truth) + np.array([0.2, -0.1, 0.3, -0.2, 0.4, -0.3])
+@pytest.mark.parametrize("with_ask_times", [False, True])
+def test_gradient_matches_finite_differences(with_ask_times):
+    # scipy.optimize.check_grad against the analytic (k, q, tau, log h) and 5-point (a0, b0)
+    # gradient; with ask times the load is recomputed under each half-life
+    truth = SiteParams(2.0, 3.0, 1.5, 0.7, 0.6, 0.7, 3600.0)
+    data = (simulate_with_asks(truth, 120, 8, seed=11, unanswered=0.2).data if with_ask_times
+            else simulate(truth, 120, 8, seed=11))
+    free = np.array([True] * 6 + [with_ask_times])
+    obj = Objective(SiteLikelihood(data), free, to_theta(truth), half_life=with_ask_times)
+    theta = (to_theta(truth) + np.array([0.2, -0.1, 0.3, -0.2, 0.4, -0.3, 0.5]))[free]
     fun = lambda z: obj(z)[0]          # noqa: E731
     grad = lambda z: obj(z)[1]         # noqa: E731
     g = grad(theta)

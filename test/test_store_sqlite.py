@@ -121,7 +121,7 @@ def test_migration_from_version_1_rebuilds_snapshots(tmp_path):
     conn.execute("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, request_kind) VALUES ('r9/2', ?, 6.0, 0.2, 0.0, 'declined', '')", (k,))
     conn.close()
     store = SqliteStore(path, "r1", KEY, model=MODEL)
-    assert store.counts()["schema_version"] == schema.SCHEMA_VERSION == 3
+    assert store.counts()["schema_version"] == schema.SCHEMA_VERSION == 4
     assert store.belief(k) == refold(store.events_for(k), k)
     assert store.belief(k)[0] != Belief.prior(MODEL)
 
@@ -149,7 +149,7 @@ def test_migration_of_a_version_2_file_with_data_keeps_everything_and_adds_asks(
     conn.close()
 
     store = make_store(tmp_path)
-    assert store.counts()["schema_version"] == 3 and store.counts()["events"] == 12
+    assert store.counts()["schema_version"] == 4 and store.counts()["events"] == 12
     for key, a, b, last in snapshot_v2:         # the cached folds untouched, bit for bit
         assert store.belief(key) == (Belief(a, b), last) == refold(events, key)
     assert store.next_event_id() == "r1/13"     # the sequence goes on: no id reused

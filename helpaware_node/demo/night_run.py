@@ -18,6 +18,11 @@ from . import record_and_review
 
 
 STORE_NAME = "beliefs.sqlite3"
+# the demo's night is ~60 answered asks in ~20 s: refit every 10 outcomes and let the site's
+# parameter file count as 20 outcomes (the shipped defaults are 50 and 200), so learning
+# visibly moves the constants within the run
+DEMO_LEARNING = {"site_learning": "apply", "site_learning_every_outcomes": 10,
+                 "site_prior_weight": 20.0}
 KEY_NAME = "site_key"          # the store's default key file name, beside it
 
 
@@ -34,7 +39,8 @@ def fresh_store(out_dir: str) -> str:
 def start_node(namespace: str, store_path: str) -> subprocess.Popen:
     spec = launch_config.decider(
         launch_config.SITE_PARAMS_FILE, namespace,
-        overrides={"use_sim_time": True, "store_path": store_path, "robot_id": "supply-robot-1"})
+        overrides={"use_sim_time": True, "store_path": store_path, "robot_id": "supply-robot-1",
+                   **DEMO_LEARNING})
     return launch_config.start(spec=spec, stderr=subprocess.PIPE)
 
 
@@ -80,5 +86,6 @@ def run_night_shift(args: argparse.Namespace) -> int:
     rel = os.path.relpath(store_path)
     print(f"belief store: {rel} (site key beside it); look inside with\n"
           f"  helpaware store --path {rel} inspect\n"
-          f"  helpaware store --path {rel} inspect --person nurse-00")
+          f"  helpaware store --path {rel} inspect --person nurse-00\n"
+          f"  helpaware store --path {rel} learned")
     return scenario.returncode or (0 if code == 0 else 1)

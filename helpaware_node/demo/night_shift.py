@@ -6,6 +6,13 @@ call, walking fast or with a patient.  This process owns the clock (/clock, the 
 use_sim_time), so a whole night passes in seconds: at each help need it holds the clock, shows
 the node who is in view, opens the need, waits for the decision, answers an ask from the
 invented ground truth, and resolves the need.  It prints one line per decision and a summary.
+
+The invented truth differs from the constants the node starts with (the site file's, the
+shipped defaults apart from k_busy): night staff are less willing than the default prior says
+(willingness ~ Beta(1.2, 2.6), mean 0.32, against Beta(2, 2)), busyness weighs more
+(TRUE_K_BUSY), and an ask weighs on a person for hours (TRUE_HALF_LIFE_S against 30 min). The
+node learns the site as the night goes on (site learning); each new revision it puts in
+force is printed when the first decision made with it arrives.
 """
 from __future__ import annotations
 
@@ -29,6 +36,11 @@ FIRST = ("Ama", "Bo", "Cyd", "Dara", "Eli", "Fen", "Gus", "Hana", "Ivo", "Juno",
          "Mae", "Nico", "Oona", "Pax", "Quin", "Rhea", "Sol", "Tove")
 KINDS = (("door", 0.55), ("elevator", 0.35), ("handover", 0.10))
 SHIFT_START_S = 22 * 3600.0       # 22:00 on the demo's (invented) first day
+# the invented site's truth (the node never sees it): help = w exp(-(k_busy x + k_load f))
+TRUE_PRIOR = (1.2, 2.6)
+TRUE_K_BUSY = 3.5
+TRUE_K_LOAD = 1.0
+TRUE_HALF_LIFE_S = 3 * 3600.0
 
 
 @dataclass
@@ -41,6 +53,7 @@ class Staff:
     asked: int = 0
     helped: int = 0
     learned_mean: float = float("nan")
+    ask_times_s: tuple = ()          # every ask that reached this person (the truth's load)
 
 
 def invent_staff(rng: random.Random, n: int = 40) -> list[Staff]:
@@ -49,7 +62,7 @@ def invent_staff(rng: random.Random, n: int = 40) -> list[Staff]:
         role = ROLES[i % len(ROLES)]
         name = f"{FIRST[i % len(FIRST)]} {chr(65 + i // len(FIRST))}."
         staff.append(Staff(f"{role}-{i:02d}", name, role, 1 + i % 6,
-                           min(0.97, max(0.03, rng.betavariate(2.5, 1.8)))))
+                           min(0.97, max(0.03, rng.betavariate(*TRUE_PRIOR)))))
     return staff
 
 
@@ -67,13 +80,29 @@ def clock_text(t_s: float) -> str:
     return f"{m // 60:02d}:{m % 60:02d}"
 
 
-def answer(rng: random.Random, person: Staff, busyness: float) -> str:
-    """Invented ground truth: helps with w * exp(-2 x); some asks go unnoticed."""
+def answer(rng: random.Random, person: Staff, busyness: float, t_s: float) -> str:
+    """Invented ground truth: helps with w exp(-(k_busy x + k_load f)), f the person's earlier
+    asks decayed with TRUE_HALF_LIFE_S; some asks go unnoticed."""
     if rng.random() < 0.04:
         return "could_not_ask"
+    load = sum(2.0 ** (-(t_s - a) / TRUE_HALF_LIFE_S) for a in person.ask_times_s)
+    person.ask_times_s += (t_s,)
     if rng.random() < 0.08:
         return "no_response"
-    return "helped" if rng.random() < person.willingness * math.exp(-2.0 * busyness) else "declined"
+    p = person.willingness * math.exp(-(TRUE_K_BUSY * busyness + TRUE_K_LOAD * load))
+    return "helped" if rng.random() < p else "declined"
+
+
+def constants_line(params: dict) -> str:
+    """The site constants a decision was made with, and where they came from."""
+    m = params.get("model", {})
+    src = params.get("source", {})
+    where = (f"learned revision {src.get('revision')}" if src.get("site_constants") == "learned"
+             else "parameter file")
+    mean = m["prior_a"] / (m["prior_a"] + m["prior_b"]) if "prior_a" in m else float("nan")
+    return (f"prior mean {mean:.2f} (a {m.get('prior_a', 0):.2f}, b {m.get('prior_b', 0):.2f}), "
+            f"k_busy {m.get('k_busy', 0):.2f}, k_load {m.get('k_load', 0):.2f}, ask memory "
+            f"{m.get('ask_memory_half_life_s', 0) / 60:.0f} min ({where})")
 
 
 # a decision takes milliseconds; a machine loaded by other work can hold the node for seconds
@@ -144,6 +173,8 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
     counts = {"ask": 0, "continue": 0, "helped": 0, "declined": 0, "no_response": 0,
               "could_not_ask": 0}
     limits: dict[str, int] = {}
+    in_force = None                   # (source, revision) of the last decision's constants
+    first_params = last_params = None
     for k in range(needs):
         if time.monotonic() > real_end:
             out("scenario: time budget used up; stopping early")
@@ -171,6 +202,15 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
             out(f"{clock_text(t)}  {kind:8}  no decision within {DECISION_WAIT_S:.0f} s")
             continue
         d = decisions[rid][0]
+        params = d.get("parameters") or {}
+        source = params.get("source", {})
+        now_in_force = (source.get("site_constants", "parameter_file"), source.get("revision", 0))
+        if now_in_force != in_force:
+            verb = "start" if in_force is None else "site learning put in force"
+            out(f"  -- {verb}: {constants_line(params)}")
+            in_force = now_in_force
+        first_params = first_params or params
+        last_params = params
         for row in d["rationale"]:
             if row["excluded"]:
                 limits[row["excluded"]] = limits.get(row["excluded"], 0) + 1
@@ -181,7 +221,7 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
             who = by_id[d["person_id"]]
             row = next(r for r in d["rationale"] if r["person_id"] == who.person_id)
             x = next(v["busyness"] for v in view if v["id"] == who.person_id)
-            result = answer(rng, who, x)
+            result = answer(rng, who, x, t)
             counts[result] += 1
             who.asked += result != "could_not_ask"
             who.helped += result == "helped"
@@ -209,6 +249,14 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         learned = "-" if math.isnan(s.learned_mean) else f"{s.learned_mean:.2f}"
         out(f"{s.name:10}  {s.role:7}  {s.asked:5}  {s.helped:6}  {s.willingness:10.2f}  {learned}")
     out("(learned mean: the node's belief at the last decision that person was part of)")
+    if last_params:
+        out("")
+        out(f"site constants at the start: {constants_line(first_params)}")
+        out(f"site constants at the end:   {constants_line(last_params)}")
+        a, b = TRUE_PRIOR
+        out(f"invented truth:              prior mean {a / (a + b):.2f} (a {a:.2f}, b {b:.2f}), "
+            f"k_busy {TRUE_K_BUSY:.2f}, k_load {TRUE_K_LOAD:.2f}, ask memory "
+            f"{TRUE_HALF_LIFE_S / 60:.0f} min")
     node.destroy_node()
     rclpy.try_shutdown()
     return 0

@@ -1,9 +1,12 @@
 """Outcomes from bags: each outcome joined with the decision that asked (same request id and
-person), whose candidate row carries the busyness and ask load in force at the ask.
+person), whose candidate row carries the busyness and ask load in force at the ask, and the
+person's ask times the robot remembered then (so the half-life can be estimated: the load is
+recomputed from them under each candidate half-life).  Those are the asks the robot counted
+(its own, and peers' while count_peer_asks was on) within its ask-history horizon.
 Uses the review's bag loader (review/data.py over the bag package)."""
 from __future__ import annotations
 
-from .data import RESULT_CODE, FitInputError, OutcomeData, from_arrays
+from .data import RESULT_CODE, AskAges, FitInputError, OutcomeData, from_arrays
 from ..core.person import Result
 
 
@@ -13,7 +16,7 @@ def read_outcome_bags(paths) -> OutcomeData:
     except ImportError as exc:   # the bag reader is not available in this checkout
         raise FitInputError(f"reading bags needs review/data.py ({exc}); "
                             "export the outcomes to CSV instead") from None
-    person, xs, fs, res, skipped = [], [], [], [], 0
+    person, xs, fs, res, ages, skipped = [], [], [], [], [], 0
     for path in paths:
         try:
             bag = review_data.load(str(path))
@@ -22,17 +25,23 @@ def read_outcome_bags(paths) -> OutcomeData:
         asked = {}
         for d in bag.decisions:
             if d.action == "ask" and d.person_key:
+                history = next((c.get("ask_times_s", []) for c in d.document.get("candidates", [])
+                                if c.get("person_id") == d.person_key), [])
+                stamp = float(d.document.get("stamp_s", d.time_s))
                 for cand in d.candidates:
                     if cand.get("person_id") == d.person_key:
-                        asked[(d.request_id, d.person_key)] = cand
+                        asked[(d.request_id, d.person_key)] = (cand, [stamp - float(t)
+                                                                      for t in history])
         for o in sorted(bag.outcomes, key=lambda o: (o.person_key, o.time_s)):
             result = Result.parse(o.result)
             if result is Result.COULD_NOT_ASK:
                 continue
-            cand = asked.get((o.request_id, o.person_key))
-            if cand is None:
+            found = asked.get((o.request_id, o.person_key))
+            if found is None:
                 skipped += 1
                 continue
+            cand, prior = found
+            ages.append(prior)
             person.append(o.person_key)
             xs.append(float(cand["busyness"]))
             fs.append(float(cand["ask_load"]))
@@ -41,4 +50,5 @@ def read_outcome_bags(paths) -> OutcomeData:
         raise FitInputError(f"{', '.join(map(str, paths))}: no answered asks joined to their "
                             f"decisions ({skipped} outcomes without a matching ask)")
     keys = sorted(set(person))
-    return from_arrays(person, xs, fs, res, keys, sources=[str(p) for p in paths])
+    return from_arrays(person, xs, fs, res, keys, sources=[str(p) for p in paths],
+                       prior_asks=AskAges.from_lists(ages))

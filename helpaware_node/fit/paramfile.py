@@ -7,6 +7,8 @@ from ..core.model import SiteModel
 from ..yamlfile import load_yaml_file
 
 FITTED_NAMES = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability")
+# written too when given (estimated from ask times, or learned online)
+OPTIONAL_NAMES = ("ask_memory_half_life_s",)
 DEFAULT_NODE_NAME = "helpaware_decider"   # ros/node.py NODE_NAME (tested)
 
 
@@ -17,10 +19,11 @@ def _float_text(v: float) -> str:
 
 def render_param_file(values: Mapping[str, float], comments: Iterable[str],
                       node_name: str = DEFAULT_NODE_NAME) -> str:
-    SiteModel(**{k: float(values[k]) for k in FITTED_NAMES})   # refuse out-of-range values
+    names = list(FITTED_NAMES) + [k for k in OPTIONAL_NAMES if values.get(k) is not None]
+    SiteModel(**{k: float(values[k]) for k in names})   # refuse out-of-range values
     lines = [f"# {c}" if c else "#" for c in comments]
     lines += [f"{node_key(node_name)}:", "  ros__parameters:"]
-    for k in FITTED_NAMES:
+    for k in names:
         lines.append(f"    {k}: {_float_text(values[k])}")
     return "\n".join(lines) + "\n"
 

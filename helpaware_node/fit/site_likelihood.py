@@ -19,6 +19,17 @@ factor  nu^H tau^D (1 - tau)^R  (H, D, R the counts) identifies q; tau is a nuis
 It does not change any person's posterior, so the node's updates stay exactly as designed.
 When there are no no-response rows the factor is maximised at tau = 1 (value 1) and is left
 out, which makes the fit the plain Beta-binomial one when the context is absent.
+
+The ask load.  With `ask_memory_half_life_s` set and the data carrying ask times
+(`OutcomeData.prior_asks`), f_j is recomputed under that half-life from the asks before row j
+(f_j = sum_k 2^(-age_jk / h), the core's ask_load), so h is a constant of the likelihood like
+the others, with an analytic derivative; otherwise f_j is the data's `load` column.  The loads
+of the last half-life asked for are kept, so the prior's finite differences (which move only
+a0, b0) reuse them.
+
+Weights.  A person may count w_i times (`OutcomeData.weight`): the pseudo-outcomes that
+shrink an online refit towards the parameter file (fit/pseudo_outcomes.py) are people of
+fractional weight; the data's own people count once.
 """
 from __future__ import annotations
 
@@ -121,6 +132,7 @@ class SiteParams:
     k_load: float
     notice_probability: float
     decline_aloud: float = 1.0     # tau: the w-free nuisance constant (see module doc)
+    ask_memory_half_life_s: float | None = None   # None: the data's load column as given
 
     @property
     def noticed(self) -> float:
@@ -129,7 +141,7 @@ class SiteParams:
 
     def as_tuple(self) -> tuple[float, ...]:
         return (self.prior_a, self.prior_b, self.k_busy, self.k_load,
-                self.notice_probability, self.decline_aloud)
+                self.notice_probability, self.decline_aloud, self.ask_memory_half_life_s)
 
 
 class SiteLikelihood:
@@ -138,16 +150,33 @@ class SiteLikelihood:
     def __init__(self, data: OutcomeData, use_reporting_factor: bool | None = None):
         self.data = data
         self.buckets = make_buckets(data)
-        c = data.counts()
-        self.n_helped, self.n_declined, self.n_no_response = (
-            c["helped"], c["declined"], c["no_response"])
+        self.weight = (np.ones(data.n_people) if data.weight is None
+                       else np.asarray(data.weight, float))
+        self.n_helped, self.n_declined, self.n_no_response = data.weighted_counts()
         self.use_reporting_factor = (self.n_no_response > 0 if use_reporting_factor is None
                                      else use_reporting_factor)
+        self._loads_at: tuple | None = None      # (half-life, loads, d loads / d log h)
+
+    @property
+    def has_ask_times(self) -> bool:
+        return self.data.prior_asks is not None
+
+    def loads(self, p: SiteParams) -> tuple[np.ndarray, np.ndarray | None]:
+        """Ask load per row under p's half-life (and its derivative in log h), or the data's
+        column when p has no half-life or the data no ask times."""
+        h = p.ask_memory_half_life_s
+        if h is None or self.data.prior_asks is None:
+            return self.data.load, None
+        if self._loads_at is None or self._loads_at[0] != h:
+            load, dload = self.data.prior_asks.loads(h, self.data.n_outcomes)
+            self._loads_at = (h, load, dload)
+        return self._loads_at[1], self._loads_at[2]
 
     # -- per-row log factors at the nodes ------------------------------------------------
     def _row_terms(self, b: Bucket, x: np.ndarray, p: SiteParams, want_grad: bool):
         d = self.data
-        xb, fb, rb = d.busyness[b.rows], d.load[b.rows], d.result[b.rows]
+        load, dload = self.loads(p)
+        xb, fb, rb = d.busyness[b.rows], load[b.rows], d.result[b.rows]
         logc = -(p.k_busy * xb + p.k_load * fb)[:, None]
         c = np.exp(logc)
         helped = (rb == HELPED)[:, None]
@@ -159,18 +188,23 @@ class SiteLikelihood:
         if not want_grad:
             return logf, None
         ratio = np.where(helped, 0.0, e / (1.0 - e))     # d/d(-log c) of log(1 - e)
-        # d logf / d k = -x_j (helped) or +ratio * x_j (not helped); same with f_j
-        dk_busy = np.where(helped, -xb[:, None], ratio * xb[:, None])
-        dk_load = np.where(helped, -fb[:, None], ratio * fb[:, None])
+        # d logf / d(-log c) is -1 (helped) or ratio (not helped); -log c = k_busy x + k_load f
+        slope = np.where(helped, -1.0, ratio)
+        dk_busy = slope * xb[:, None]
+        dk_load = slope * fb[:, None]
         nr = (rb == NO_RESPONSE)[:, None]
         dq = np.where(nr, -(x[None, :] * c) / (1.0 - e), 0.0)
-        return logf, (dk_busy, dk_load, dq)
+        # half-life: f_j moves with log h, so d logf / d log h = slope k_load df_j/dlog h
+        dlog_h = (slope * (p.k_load * dload[b.rows])[:, None] if dload is not None
+                  else np.zeros_like(dk_busy))
+        return logf, (dk_busy, dk_load, dq, dlog_h)
 
     def per_person(self, p: SiteParams, want_grad: bool = False):
-        """log L_i per person (without the reporting factor) and, if asked, d/d(k_busy,
-        k_load, q) per person at fixed nodes (the nodes depend on a0, b0 only)."""
+        """log L_i per person (unweighted, without the reporting factor) and, if asked,
+        d/d(k_busy, k_load, q, log h) per person at fixed nodes (the nodes depend on a0, b0
+        only)."""
         ll = np.zeros(self.data.n_people)
-        grad = np.zeros((self.data.n_people, 3)) if want_grad else None
+        grad = np.zeros((self.data.n_people, 4)) if want_grad else None
         for b in self.buckets:
             x, logw = beta_rule(b.nodes, p.prior_a, p.prior_b)
             logf, parts = self._row_terms(b, x, p, want_grad)
@@ -185,6 +219,14 @@ class SiteLikelihood:
                                                     np.sum(rowpost * part, axis=1),
                                                     minlength=b.people.size)
         return ll, grad
+
+    def value_and_grad(self, p: SiteParams) -> tuple[float, np.ndarray]:
+        """Weighted log-likelihood and its derivatives in (k_busy, k_load, q, tau, log h)."""
+        ll_i, g_i = self.per_person(p, want_grad=True)
+        rep, rep_q, rep_t = self.reporting_term(p)
+        wg = self.weight @ g_i
+        g = np.array([wg[0], wg[1], wg[2] + rep_q, rep_t, wg[3]])
+        return float(self.weight @ ll_i) + rep, g
 
     def reporting_term(self, p: SiteParams) -> tuple[float, float, float]:
         """log of nu^H tau^D (1-tau)^R and its derivatives in q and tau (0 when unused)."""
@@ -203,7 +245,7 @@ class SiteLikelihood:
 
     def loglik(self, p: SiteParams) -> float:
         ll, _ = self.per_person(p)
-        return float(np.sum(ll)) + self.reporting_term(p)[0]
+        return float(self.weight @ ll) + self.reporting_term(p)[0]
 
     # -- held-out prediction -----------------------------------------------------------
     def sequential_help_probability(self, p: SiteParams) -> np.ndarray:
@@ -217,11 +259,12 @@ class SiteLikelihood:
             excl = cum - logf - before_start + logw[None, :]
             post = np.exp(excl - logsumexp(excl, axis=1, keepdims=True))
             d = self.data
-            c = np.exp(-(p.k_busy * d.busyness[b.rows] + p.k_load * d.load[b.rows]))
+            load = self.loads(p)[0]
+            c = np.exp(-(p.k_busy * d.busyness[b.rows] + p.k_load * load[b.rows]))
             out[b.rows] = c * (post @ x)
         return np.clip(out, 0.0, 1.0)
 
     def new_person_help_probability(self, p: SiteParams) -> np.ndarray:
         d = self.data
-        c = np.exp(-(p.k_busy * d.busyness + p.k_load * d.load))
+        c = np.exp(-(p.k_busy * d.busyness + p.k_load * self.loads(p)[0]))
         return c * p.prior_a / (p.prior_a + p.prior_b)

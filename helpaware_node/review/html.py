@@ -162,6 +162,9 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
                            f"{b['observed_rate'] - b['mean_predicted']:+.2f}"]
                           for b in cal["bins"]])
                  + calibration_advice(s["bag"], cal["bins"]))
+    learned = s.get("site_learning")
+    if learned and "site_constants" in figures:
+        parts.append(render_site_learning(learned, figures))
     parts.append("<h2>Asks per person and per hour</h2>"
                  + image(figures["asks_per_person"], "asks per person")
                  + image(figures["asks_per_hour"], "asks per hour"))
@@ -189,6 +192,38 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
     parts.append("<h2>Cautions</h2><p class=\"note\">The node only decides whether to ask; it "
                  "never moves the robot. Sites must follow their own safety, privacy and labour "
                  "rules; keep a human operator able to disable asking.</p></body></html>")
+    return "\n".join(parts)
+
+
+def render_site_learning(learned: dict, figures: dict[str, bytes]) -> str:
+    """Constants over time, each revision's values, calibration before and after."""
+    names = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability",
+             "ask_memory_half_life_s")
+    parts = ["<h2>Site learning</h2><p class=\"note\">The site constants each decision was "
+             "made with (its document's parameters and their source). The node refits them from "
+             "its store's outcomes (site_learning: apply); costs and hard limits never change "
+             "this way (docs/fit.md, \"Site learning\").</p>",
+             image(figures["site_constants"], "site constants over time"),
+             table(["from (h)", "source", "revision"] + list(names),
+                   [[round((c["time_s"] - learned["changes"][0]["time_s"]) / 3600.0, 2),
+                     c["source"], c["revision"]] + [c.get(n, "") for n in names]
+                    for c in learned["changes"]])]
+    cal = learned["calibration"]
+    parts.append("<h3>Calibration before and after</h3><p class=\"note\">Each answered ask "
+                 "scored with the p its own decision predicted, split by the constants in "
+                 "force when it was made. The two groups are different asks at different "
+                 "times (later asks also know more about each person), so read the gap as a "
+                 "check, not a controlled comparison.</p>"
+                 + image(figures["reliability_by_source"], "calibration by source")
+                 + table(["constants", "answered asks", "mean predicted", "observed rate",
+                          "Brier", "log loss"],
+                         [[label, part["answered_asks"],
+                           "n/a" if part["mean_predicted"] is None else part["mean_predicted"],
+                           "n/a" if part["observed_rate"] is None else part["observed_rate"],
+                           "n/a" if part["brier_score"] is None else part["brier_score"],
+                           "n/a" if part["log_loss"] is None else part["log_loss"]]
+                          for label, part in (("parameter file", cal["parameter_file"]),
+                                              ("learned", cal["learned"]))]))
     return "\n".join(parts)
 
 

@@ -134,3 +134,57 @@ def replay_comparison(rows: list[dict]) -> bytes:
         ax.set_title(label, fontsize=9)
     fig.suptitle("Counterfactual replay (model-based estimates)")
     return _png(fig)
+
+
+def site_constants(changes: list[dict], start_s: float, end_s: float) -> bytes:
+    """Each site constant in force over time (steps at each change; learned revisions marked)."""
+    names = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability",
+             "ask_memory_half_life_s")
+    fig, axes = plt.subplots(2, 3, layout="constrained", figsize=(10, 4.6), sharex=True)
+    end_h = max(_hours([end_s], start_s)[0], 1e-3)
+    for ax, name in zip(axes.flat, names):
+        pts = [(c["time_s"], c[name]) for c in changes if name in c]
+        if not pts:
+            ax.set_visible(False)
+            continue
+        scale = 1.0 / 60.0 if name == "ask_memory_half_life_s" else 1.0   # shown in minutes
+        t = list(_hours([p[0] for p in pts], start_s)) + [end_h]
+        v = [p[1] * scale for p in pts] + [pts[-1][1] * scale]
+        ax.step(t, v, where="post", color="tab:blue")
+        learned = [(h, c[name] * scale) for h, c in zip(t, changes) if c["source"] == "learned"]
+        if learned:
+            ax.scatter([p[0] for p in learned], [p[1] for p in learned], color="tab:orange",
+                       s=18, zorder=3, label="learned revision")
+        ax.set_title("ask memory half-life (min)" if scale != 1.0 else name, fontsize=9)
+    for ax in axes[-1]:
+        ax.set_xlabel("hours since the bag started")
+    handles, labels = axes.flat[0].get_legend_handles_labels()
+    if handles:
+        fig.legend(handles, labels, loc="upper right", fontsize=8)
+    fig.suptitle("Site constants in force (parameter file, then site learning)")
+    return _png(fig)
+
+
+def reliability_by_source(calibration: dict) -> bytes:
+    """Calibration of asks made under the parameter file's constants and under learned ones."""
+    fig, ax = plt.subplots(layout="constrained", figsize=(5, 5))
+    ax.plot([0, 1], [0, 1], color="gray", linestyle="--", label="perfect calibration")
+    for key, colour, label in (("parameter_file", "tab:gray", "parameter file"),
+                               ("learned", "tab:orange", "learned")):
+        part = calibration.get(key) or {}
+        bins = part.get("bins") or []
+        if bins:
+            x = [r["mean_predicted"] for r in bins]
+            y = [r["observed_rate"] for r in bins]
+            ax.plot(x, y, color=colour)
+            brier = part.get("brier_score")
+            ax.scatter(x, y, s=[20 + 10 * r["count"] for r in bins], color=colour,
+                       label=f"{label}: {part['answered_asks']} asks, Brier "
+                       + ("n/a" if brier is None else f"{brier:.3f}"))
+    ax.set_xlim(0, 1)
+    ax.set_ylim(0, 1)
+    ax.set_xlabel("predicted help probability p")
+    ax.set_ylabel("fraction helped")
+    ax.set_title("Calibration before and after site learning")
+    ax.legend(loc="upper left", fontsize=8)
+    return _png(fig)

@@ -16,9 +16,11 @@ def build(bag: str, out_dir: str, params_file: Optional[str] = None,
           pending_timeout_s: Optional[float] = None, out=sys.stdout) -> dict:
     """Write the report; returns the summary (with 'replay' when params_file is given)."""
     from . import data as review_data, html as review_html, plots as review_plots
+    from . import learning as review_learning
     from . import replay as review_replay, summary as review_summary
     data = review_data.load(bag)
     summary = review_summary.summarise(data, pending_timeout_s)
+    summary["site_learning"] = review_learning.summarise(data)
     replay = None
     replay_error = None
     if data.decisions:
@@ -58,6 +60,12 @@ def build(bag: str, out_dir: str, params_file: Optional[str] = None,
     if summary["limits_fired"]["candidates_excluded"]:
         figures["limits"] = review_plots.bars(summary["limits_fired"]["candidates_excluded"],
                                               "Candidates excluded by each limit", "limit")
+    learned = summary["site_learning"]
+    if learned is not None and learned["revisions_seen"]:
+        figures["site_constants"] = review_plots.site_constants(learned["changes"],
+                                                                data.start_s, data.end_s)
+        figures["reliability_by_source"] = review_plots.reliability_by_source(
+            learned["calibration"])
     if replay is not None and len(replay["totals"]) > 1:
         figures["replay"] = review_plots.replay_comparison(replay["totals"])
     show_replay = replay if (replay is not None and params_file) else None
@@ -95,6 +103,20 @@ def summary_text(summary: dict, out_dir: str) -> str:
              f"pending asks expired: {summary['pending_asks']['expired']}"]
     if summary["missing_topics"]:
         lines.append("missing topics (no messages): " + ", ".join(summary["missing_topics"]))
+    learned = summary.get("site_learning")
+    if learned and learned["revisions_seen"]:
+        first = learned["changes"][0]
+        last = learned["changes"][-1]
+        moved = ", ".join(f"{k} {first[k]:.3g} -> {last[k]:.3g}" for k in
+                          ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability",
+                           "ask_memory_half_life_s") if k in first and first[k] != last.get(k))
+        lines.append(f"site learning: revisions {', '.join(map(str, learned['revisions_seen']))}"
+                     f" in force during the bag ({moved or 'no change'})")
+        cal_by = learned["calibration"]
+        lines.append("  calibration: " + "; ".join(
+            f"{label} {part['answered_asks']} asks, Brier {fmt(part['brier_score'])}"
+            for label, part in (("parameter file", cal_by["parameter_file"]),
+                                ("learned", cal_by["learned"]))))
     rp = summary.get("replay")
     if rp:
         lines.append(f"replay with recorded parameters: {rp['reproduced']} of {rp['needs']} "

@@ -118,6 +118,8 @@ def decision_values(node, rates: dict) -> dict:
         "parameters_last_rejection": node.params.last_rejection,
         "params_hash": node.params_hash(),
     })
+    if getattr(node, "learning", None) is not None:   # constants in force, source, last refit
+        values.update(node.learning.diagnostic_values())
     if store is not None and hasattr(store, "counts"):
         try:
             values.update({f"store.{k}": v for k, v in store.counts().items()})

@@ -13,7 +13,9 @@ site-wide, absolute by default: parameters fleet_topic and privacy_topic):
   in  <privacy_topic> (default /helpaware/privacy_request) signed requests (ros/privacy.py)
 Wiring only: messages become events of the help session (helpaware_node/session: needs, asks,
 limits, every decision through core.policy.decide); its Steps come back as documents, fleet
-events and log lines. Beside this file: fleet.py, store_retry.py, diagnostics.py, markers.py.
+events and log lines. Site learning (site_learning.py) refits the site constants in a worker
+process (a thread where none can start); the housekeeping timer puts a new revision in force. Beside this file: fleet.py,
+store_retry.py, diagnostics.py, markers.py, site_learning.py.
 """
 from __future__ import annotations
 
@@ -37,8 +39,9 @@ from ..store import default_store_path, open_store
 from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
 from .markers import PersonMarkers
-from .params import NodeParameters
+from .params import NodeParameters, model_ranges
 from .shm_files import StartupSweep
+from .site_learning import NodeLearning, proposal_path
 from .store_retry import HeldOutcomes
 
 NODE_NAME = "helpaware_decider"
@@ -66,6 +69,7 @@ class HelpAwareNode(LifecycleNode):
         self.store = None
         self.session: Optional[HelpSession] = None   # made at configure, with the store
         self.held: Optional[HeldOutcomes] = None
+        self.learning: Optional[NodeLearning] = None  # site learning, made at configure
         try:
             self.params = NodeParameters(self, on_change=self._on_parameters_changed)
         except (CoreInputError, rclpy.exceptions.ParameterException) as exc:
@@ -102,8 +106,14 @@ class HelpAwareNode(LifecycleNode):
         try:
             self.store = open_store(self._store_file, s.robot_id, model=self.params.model)
             self.held = HeldOutcomes(self.store, status, self.get_logger(), self._on_saved_late)
+            # learned constants kept in the store are in force again (site_learning: apply)
+            self.learning = NodeLearning(
+                self.store, self.params.model, s.learning_settings(), model_ranges(),
+                self.get_logger(), proposal_path(s.site_learning_proposal_path,
+                                                 self._store_file), self.get_name())
+            self.store.use_model(self.model_in_force)
             # the asks made before this start (own of the last hour) are loaded here
-            self.session = HelpSession(self.store, self.params.model, self.params.config,
+            self.session = HelpSession(self.store, self.model_in_force, self.params.config,
                                        s.session_rules(), now_s=self.now_s(), writer=self.held,
                                        status=status)
             self.session.active = False
@@ -189,6 +199,8 @@ class HelpAwareNode(LifecycleNode):
 
     def _teardown(self) -> None:
         self._active = False
+        if self.learning is not None:
+            self.learning.shutdown()
         fleet = getattr(self, "fleet", None)
         if fleet is not None and self.store is not None:
             try:
@@ -233,8 +245,19 @@ class HelpAwareNode(LifecycleNode):
         self._apply(self.session.clock(now, steady))
         return now
 
+    @property
+    def model_in_force(self):
+        """The site model decisions use: the parameter values, with the learned constants
+        over them when site_learning is apply and a revision exists."""
+        return self.learning.current if self.learning is not None else self.params.model
+
+    @property
+    def constants_source(self) -> tuple[str, int]:
+        """("parameter_file", 0) or ("learned", revision): carried by every decision."""
+        return self.learning.source if self.learning is not None else ("parameter_file", 0)
+
     def params_hash(self) -> str:
-        return params_hash(self.params.model, self.params.config)
+        return params_hash(self.model_in_force, self.params.config)
 
     def _reject(self, topic: str, reason: str) -> None:
         self.counters.reject(topic, reason)
@@ -245,9 +268,21 @@ class HelpAwareNode(LifecycleNode):
         self.get_logger().warning(f"incompatible QoS: {event}", throttle_duration_sec=5.0)
 
     def _on_parameters_changed(self) -> None:
+        if getattr(self, "learning", None) is not None:
+            # the parameter values are the shrinkage target; a changed mode may put the file's
+            # values back in force (off, propose) or the learned ones (apply)
+            self.learning.set_parameters(self.params.model,
+                                         self.params.settings.learning_settings())
         if getattr(self, "session", None) is not None:
-            self.session.set_parameters(self.params.model, self.params.config,
-                                        self.params.settings.session_rules())
+            self._use_model(self.model_in_force)
+
+    def _use_model(self, model) -> None:
+        """Put a site model in force: beliefs are folded under it from now on (lazily, as
+        each person is next read), new people start at its prior."""
+        self.session.set_parameters(model, self.params.config,
+                                    self.params.settings.session_rules())
+        if self.store is not None:
+            self.store.use_model(model)
 
     def opted_out_keys(self) -> list[str]:
         """Keys on the store's opt-out list."""
@@ -313,13 +348,13 @@ class HelpAwareNode(LifecycleNode):
     def _apply(self, step: Step) -> None:
         """Publish the step's decisions, share what it stored, log its notes."""
         robot_id = getattr(self.store, "robot_id", "")
-        model, config = self.params.model, self.params.config
+        model, config, source = self.session.model, self.params.config, self.constants_source
         for out in step.decisions:
             # parameters are spliced into the text from a cache (fast_text), not built per
             # decision; the values come from validated core values, so no second check
             doc = wire.decision_to_document(out.decision, out.robot_ask_times_s, None, None,
                                             robot_id, check=False)
-            self.decision_pub.publish(String(data=wire.fast_text(doc, model, config)))
+            self.decision_pub.publish(String(data=wire.fast_text(doc, model, config, source)))
             self.decisions_published += 1
             self.markers.note_decision(out.decision)
             self.last_decision = doc
@@ -332,7 +367,11 @@ class HelpAwareNode(LifecycleNode):
 
     def _housekeeping(self) -> None:
         self.held.retry()
-        self._apply(self.session.tick(self._read_clock()))
+        now = self._read_clock()
+        learned = self.learning.poll(now)      # a refit finished in its worker: in force now
+        if learned is not None:
+            self._use_model(learned)
+        self._apply(self.session.tick(now))
 
     def _publish_status(self) -> None:
         if not self._active:
@@ -356,11 +395,11 @@ class HelpAwareNode(LifecycleNode):
                                                 level, message))
 
     def _publish_markers(self, stamp) -> None:
-        model, now = self.params.model, self.now_s()
-        records = self.session.memory.records
+        model, now = self.session.model, self.now_s()
+        memory = self.session.memory
         lifetime = max(2.0 * self.params.settings.diagnostics_period_s, 1.0)
         arr = self.markers.update(self.session.seen, lambda key: belief_at(
-            records.get(key) or PersonRecord.new(model), now, model).mean, stamp, lifetime)
+            memory.held(key) or PersonRecord.new(model), now, model).mean, stamp, lifetime)
         if arr is not None:
             self.marker_pub.publish(arr)
 

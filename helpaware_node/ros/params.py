@@ -14,8 +14,11 @@ from typing import Any, Callable, Optional
 
 from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, MAX_REASK_INTERVAL_S,
                           CoreInputError, DecisionConfig, SiteModel)
+from ..fit.online import MODES as LEARNING_MODES
+from ..fit.online import LearningSettings
 
 MODEL_DEFAULTS = SiteModel()
+LEARNING_DEFAULTS = LearningSettings()
 CONFIG_DEFAULTS = DecisionConfig()
 KINDS_PARAM = "request_kinds"
 COST_PREFIX = "continue_cost_s."
@@ -137,7 +140,30 @@ NODE_PARAMS = [
               "the same for task_status; 0 by default because a behaviour layer speaks only at "
               "help needs: set it when yours publishes at least this often", "seconds",
               0.0, 86400.0),
+    # site learning (helpaware_node/fit/online.py, docs/fit.md "Site learning")
+    ParamSpec("site_learning", LEARNING_DEFAULTS.mode,
+              "refit the site constants (prior_a, prior_b, k_busy, k_load, notice_probability, "
+              "ask_memory_half_life_s) from the store's outcomes while running: apply (put them "
+              "in force), propose (write site_learning_proposal_path for review only) or off "
+              "(never refit; the parameter values stay in force)", "off, propose or apply"),
+    ParamSpec("site_prior_weight", LEARNING_DEFAULTS.prior_weight,
+              "the parameter values count as this many outcomes against the store's: a few "
+              "outcomes cannot swing the learned constants (0: the store's outcomes alone, "
+              "as helpaware fit)", "pseudo-outcomes", 0.0, 1e9),
+    ParamSpec("site_learning_every_outcomes", LEARNING_DEFAULTS.every_outcomes,
+              "refit after this many new outcomes (own and peers') ...", "outcomes", 1, 1000000),
+    ParamSpec("site_learning_every_s", LEARNING_DEFAULTS.every_s,
+              "... or after this long with at least one new outcome, whichever comes first",
+              "seconds", 1.0, 1e9),
+    ParamSpec("site_learning_proposal_path", "",
+              "parameter file written by site_learning: propose (empty: site_proposal.yaml "
+              "beside the store file, or under ROS_HOME/helpaware for a memory store)", "path"),
 ]
+
+
+def model_ranges() -> dict[str, tuple[float, float]]:
+    """The declared range of each model parameter (site learning stays inside them)."""
+    return {s.name: (float(s.low), float(s.high)) for s in MODEL_PARAMS}
 
 
 def cost_specs(kinds) -> list[ParamSpec]:
@@ -167,6 +193,17 @@ class NodeSettings:
     allow_unsigned_privacy_requests: bool
     people_silence_warn_s: float
     task_status_silence_warn_s: float
+    site_learning: str
+    site_prior_weight: float
+    site_learning_every_outcomes: int
+    site_learning_every_s: float
+    site_learning_proposal_path: str
+
+    def learning_settings(self) -> LearningSettings:
+        """Site learning's settings from these (fit.online.LearningSettings)."""
+        return LearningSettings(mode=self.site_learning, prior_weight=self.site_prior_weight,
+                                every_outcomes=self.site_learning_every_outcomes,
+                                every_s=self.site_learning_every_s)
 
     def session_rules(self):
         """The help session's rules from these settings (session.SessionRules)."""
@@ -202,6 +239,9 @@ def build(values: dict[str, Any], pairs: bool = True
         if not node_values[name]:
             raise CoreInputError(f"{name}: must not be empty (the default is "
                                  f"{next(s.default for s in NODE_PARAMS if s.name == name)})")
+    if node_values["site_learning"] not in LEARNING_MODES:
+        raise CoreInputError(f"site_learning: {node_values['site_learning']!r} is not one of "
+                             f"{', '.join(LEARNING_MODES)}")
     if node_values["fleet_topic"] == node_values["privacy_topic"]:
         raise CoreInputError(f"privacy_topic: must differ from fleet_topic "
                              f"({node_values['fleet_topic']!r})")

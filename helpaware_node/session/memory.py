@@ -28,6 +28,8 @@ class PersonMemory:
         self.records: dict[str, PersonRecord] = {}
         self.last_seen_s: dict[str, float] = {}     # person key -> when last in view
         self.evicted = 0
+        # records whose belief was folded under an earlier model: refolded when next read
+        self._stale: set[str] = set()
 
     # -- reading
     def record_for(self, key: str) -> PersonRecord:
@@ -37,7 +39,15 @@ class PersonMemory:
             rec = self._with_stored_asks(self._with_stored_belief(PersonRecord.new(self.model),
                                                                   key), key)
             self.records[key] = rec
+        elif key in self._stale:
+            rec = self.records[key] = self._with_stored_belief(rec, key)
+        self._stale.discard(key)
         return rec
+
+    def held(self, key: str):
+        """The record if held (belief refolded if the model changed since), else None: for
+        displays, which must not load people from the store."""
+        return self.record_for(key) if key in self.records else None
 
     def counts(self, ask: AskEvent) -> bool:
         """Whether an ask counts for its person's limits here (own always; peers' by rule)."""
@@ -60,6 +70,7 @@ class PersonMemory:
         rec = self.records.get(key)
         if rec is not None:
             self.records[key] = self._with_stored_belief(rec, key)
+            self._stale.discard(key)
 
     def note_ask(self, key: str, time_s: float) -> None:
         self.records[key] = note_ask(self.record_for(key), time_s, self.model)
@@ -90,6 +101,7 @@ class PersonMemory:
     def forget(self, key: str) -> None:
         self.records.pop(key, None)
         self.last_seen_s.pop(key, None)
+        self._stale.discard(key)
 
     def move_asks_forward(self, by_s: float) -> None:
         for key, rec in self.records.items():
@@ -98,11 +110,12 @@ class PersonMemory:
                                                                    for t in rec.ask_times_s))
 
     def use_model(self, model: SiteModel) -> None:
-        """The belief of each person is the fold of their events under the model in force."""
+        """The belief of each person is the fold of their events under the model in force:
+        each held record is refolded when it is next read (record_for), not here, so a change
+        of constants (site learning) costs the caller nothing however many people are held."""
         if model != self.model:
             self.model = model
-            for key, rec in list(self.records.items()):
-                self.records[key] = self._with_stored_belief(rec, key)
+            self._stale = set(self.records)
 
     def use_peer_rule(self, count_peer_asks: bool) -> None:
         if count_peer_asks != self.count_peer_asks:
@@ -126,6 +139,7 @@ class PersonMemory:
         for key in droppable[:max(len(self.records) - int(0.9 * self.max_records), 0)]:
             del self.records[key]
             self.last_seen_s.pop(key, None)
+            self._stale.discard(key)
             self.evicted += 1
         for key in [k for k in self.last_seen_s if k not in self.records and k not in keep]:
             del self.last_seen_s[key]     # seen, never a candidate: nothing to keep

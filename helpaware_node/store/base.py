@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import hashlib
 import hmac
+import math
 import os
 from dataclasses import dataclass
 from typing import Iterable, Optional, Protocol, Union
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
-from ..core.model import MAX_ASKS_CAP
+from ..core.model import MAX_ASKS_CAP, CoreInputError
 from .keys import SiteKeys
 
 
@@ -60,6 +61,47 @@ class AskEvent:
 
 
 AnyEvent = Union[StoredEvent, AskEvent]
+
+
+@dataclass(frozen=True)
+class LearnedEntry:
+    """One revision of the site constants learned online (fit/online.py), as kept in the
+    store's history: plain values only, so the store needs nothing of the fit."""
+
+    revision: int              # 1, 2, ...: each change of the constants in force
+    time_s: float              # the node's clock at the refit
+    constants: dict            # the learned SiteModel fields (and decline_aloud)
+    target: dict               # the parameter file's values it was shrunk towards, prior_weight
+    n_outcomes: int            # outcomes the refit used
+    verdict: dict              # ConvergenceVerdict.to_dict() of the refit
+    recorded_utc: str = ""     # wall-clock time it was stored
+    robot_id: str = ""
+
+
+@dataclass(frozen=True)
+class EventsReader:
+    """The events site learning reads, copied when it was made (a MemoryStore's): callable,
+    and picklable, so the refit can run in another thread or process."""
+
+    outcomes: tuple
+    asks: tuple
+
+    def __call__(self) -> tuple[list, list]:
+        return list(self.outcomes), list(self.asks)
+
+
+def check_learned(entry: LearnedEntry) -> None:
+    """Refuse a history row that is not plain, finite values (names the field)."""
+    if isinstance(entry.revision, bool) or not isinstance(entry.revision, int) or entry.revision < 1:
+        raise CoreInputError(f"revision: {entry.revision!r} must be a whole number >= 1")
+    for name in ("constants", "target"):
+        values = getattr(entry, name)
+        if not isinstance(values, dict) or not all(
+                isinstance(k, str) and isinstance(v, (int, float)) and not isinstance(v, bool)
+                and math.isfinite(v) for k, v in values.items()):
+            raise CoreInputError(f"{name}: expected names with finite numbers")
+    if not isinstance(entry.n_outcomes, int) or entry.n_outcomes < 0:
+        raise CoreInputError(f"n_outcomes: {entry.n_outcomes!r} must be a whole number >= 0")
 
 
 def append_batch(store, events: Iterable[AnyEvent]) -> list[AnyEvent]:
@@ -120,6 +162,7 @@ class MemoryStore:
         self._folds: dict[str, tuple] = {}      # key -> (model, belief, last time, last order)
         self._asks: dict[str, AskEvent] = {}
         self._asks_by: dict[tuple[str, str], list[str]] = {}   # (field, value) -> ask ids
+        self._learned: list[LearnedEntry] = []
 
     def key_for(self, raw_id: str) -> str:
         return person_key(self._site_key, raw_id)
@@ -219,6 +262,34 @@ class MemoryStore:
             self._asks[a.event_id] = AskEvent(a.event_id, a.person_key, a.time_s + by_s,
                                               a.request_kind, a.request_id)
         return len(moved)
+
+    def event_count(self) -> int:
+        return len(self._events)
+
+    def use_model(self, model: SiteModel) -> None:
+        """The model beliefs are folded under from now on (folds are cached per model)."""
+
+    def learning_reader(self) -> EventsReader:
+        """(outcomes, asks) of people not opted out, for a refit in another thread or
+        process: the copies are taken now, on the caller's thread."""
+        return EventsReader(
+            tuple(e for e in self._events.values() if e.person_key not in self._opted_out),
+            tuple(a for a in self._asks.values() if a.person_key not in self._opted_out))
+
+    # -- learned site constants (fit/online.py)
+    def record_learned(self, entry: LearnedEntry) -> None:
+        check_learned(entry)
+        if any(e.revision == entry.revision for e in self._learned):
+            raise CoreInputError(f"revision: {entry.revision} is already in the history")
+        self._learned.append(entry)
+
+    def learned_history(self, limit: int = 1000) -> list[LearnedEntry]:
+        """The newest `limit` revisions, oldest first."""
+        out = sorted(self._learned, key=lambda e: e.revision)
+        return out[max(len(out) - int(limit), 0):]
+
+    def latest_learned(self) -> Optional[LearnedEntry]:
+        return max(self._learned, key=lambda e: e.revision, default=None)
 
     def close(self) -> None:
         pass

@@ -65,6 +65,21 @@ MIGRATIONS: list[list[str]] = [
         """CREATE INDEX asks_by_robot ON asks (robot_id, time_s)""",
         """CREATE INDEX asks_by_request ON asks (request_id, robot_id)""",
     ],
+    # 4: the site constants learned online (fit/online.py), one row per revision put in
+    # force, so a restart resumes with them and `helpaware store learned` shows their history
+    [
+        """CREATE TABLE learned_constants (
+               row_id       INTEGER PRIMARY KEY,
+               revision     INTEGER NOT NULL UNIQUE,
+               time_s       REAL NOT NULL,      -- the node's clock at the refit
+               recorded_utc TEXT NOT NULL,
+               robot_id     TEXT NOT NULL,
+               constants    TEXT NOT NULL,      -- JSON: learned SiteModel fields, decline_aloud
+               target       TEXT NOT NULL,      -- JSON: parameter file values, prior_weight
+               n_outcomes   INTEGER NOT NULL,
+               verdict      TEXT NOT NULL       -- JSON: ConvergenceVerdict.to_dict()
+           )""",
+    ],
 ]
 SCHEMA_VERSION = len(MIGRATIONS)
 

@@ -25,12 +25,13 @@ import re
 import sqlite3
 import threading
 import time
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Iterator
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError, check_range, from_plain, to_plain
-from .base import AskEvent, StoredEvent, StoreHealth, person_key
+from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
 from .keys import SiteKeyError, SiteKeys, key_fingerprint
 from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
 
@@ -109,6 +110,27 @@ def move_aside(path: Path) -> Path:
         if src.exists():
             os.replace(src, Path(str(target) + suffix))
     return target
+
+
+@dataclass(frozen=True)
+class SqliteReader:
+    """Reads a store file's outcomes and asks for site learning (picklable: a path)."""
+
+    path: str
+
+    def __call__(self) -> tuple[list[StoredEvent], list[AskEvent]]:
+        conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True, timeout=10.0)
+        try:
+            conn.execute("BEGIN")      # one snapshot of both tables
+            not_opted = "person_key NOT IN (SELECT person_key FROM opt_out)"
+            outcomes = [row_to_event(r) for r in conn.execute(
+                f"SELECT {EVENT_COLUMNS} FROM events WHERE {not_opted}")]
+            asks = [row_to_ask(r) for r in conn.execute(
+                f"SELECT {ASK_COLUMNS} FROM asks WHERE {not_opted}")]
+            conn.execute("COMMIT")
+            return outcomes, asks
+        finally:
+            conn.close()
 
 
 class SqliteStore:
@@ -523,6 +545,7 @@ class SqliteStore:
                 "compacted_events": q("SELECT coalesce(sum(base_count), 0) FROM snapshot"),
                 "opted_out": q("SELECT count(*) FROM opt_out"),
                 "asks": q("SELECT count(*) FROM asks"),
+                "learned_revisions": q("SELECT count(*) FROM learned_constants"),
                 "robots": len(self.robot_ids()),
             }
 
@@ -639,6 +662,61 @@ class SqliteStore:
                 c.execute("ROLLBACK")
                 raise
             return n
+
+    # -- site learning (fit/online.py) -------------------------------------------------
+    def event_count(self) -> int:
+        with self._lock:
+            return int(self._conn.execute("SELECT count(*) FROM events").fetchone()[0])
+
+    def use_model(self, model: SiteModel) -> None:
+        """Fold beliefs under `model` from now on (the constants in force changed).
+
+        Nothing is refolded here: each person's snapshot carries the hash of the model it was
+        folded under, and belief() refolds a stale one when that person is next read, so a
+        change of constants costs the executor nothing on a big store."""
+        with self._lock:
+            if model_hash(model) == self._model_hash:
+                return
+            self.model = model
+            self._model_hash = model_hash(model)
+            self._conn.execute("INSERT OR REPLACE INTO meta VALUES ('site_model', ?)",
+                               (json.dumps(to_plain(model), sort_keys=True),))
+
+    def learning_reader(self) -> "SqliteReader":
+        """(outcomes, asks) of people not opted out, read by whoever calls it (a refit's
+        worker thread or process) on its own read-only connection: WAL lets it read while the
+        node writes, and the node's connection and lock are never held by a refit."""
+        return SqliteReader(str(self.path))
+
+    def record_learned(self, entry: LearnedEntry) -> None:
+        """Keep a revision of the learned constants, durably (one transaction)."""
+        check_learned(entry)
+        row = (int(entry.revision), float(entry.time_s), entry.recorded_utc or utc_stamp(),
+               entry.robot_id or self.robot_id, json.dumps(entry.constants, sort_keys=True),
+               json.dumps(entry.target, sort_keys=True), int(entry.n_outcomes),
+               json.dumps(entry.verdict, sort_keys=True, allow_nan=False))
+        with self._lock:
+            try:
+                self._conn.execute("INSERT INTO learned_constants (revision, time_s, "
+                                   "recorded_utc, robot_id, constants, target, n_outcomes, "
+                                   "verdict) VALUES (?,?,?,?,?,?,?,?)", row)
+            except sqlite3.IntegrityError:
+                raise CoreInputError(f"revision: {entry.revision} is already in the "
+                                     "history") from None
+
+    def learned_history(self, limit: int = 1000) -> list[LearnedEntry]:
+        """The newest `limit` revisions, oldest first."""
+        with self._lock:
+            rows = self._conn.execute(
+                "SELECT revision, time_s, constants, target, n_outcomes, verdict, recorded_utc, "
+                "robot_id FROM learned_constants ORDER BY revision DESC LIMIT ?",
+                (max(int(limit), 0),)).fetchall()
+        return [LearnedEntry(r[0], r[1], json.loads(r[2]), json.loads(r[3]), r[4],
+                             json.loads(r[5]), r[6], r[7]) for r in reversed(rows)]
+
+    def latest_learned(self) -> LearnedEntry | None:
+        rows = self.learned_history(limit=1)
+        return rows[0] if rows else None
 
     def close(self) -> None:
         with self._lock:

@@ -16,12 +16,13 @@ import sys
 
 from ..fit.data import FitInputError, read_outcome_csv
 from ..fit.heldout import kfold
-from ..fit.paramfile import DEFAULT_NODE_NAME, render_param_file
+from ..fit.paramfile import DEFAULT_NODE_NAME, FITTED_NAMES, render_param_file
 from ..fit.progress import Progress
 from ..fit.site_fit import NAMES, context_test, fit_site
 from ..text_table import render_table
 
 LONG_FIT_ROWS = 20000
+HALF_LIFE = "ask_memory_half_life_s"   # written to the file only when estimated
 NOT_CONVERGED = 3
 # the option behind a verdict's "what to try", where the command has one
 CAUSE_OPTION = {"iteration_limit": "--max-iter", "still_rising": "--max-iter"}
@@ -39,7 +40,11 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--notice-probability", type=float, default=0.8,
                         help="kept when the data cannot estimate it (no no-response rows)")
     parser.add_argument("--ask-memory-half-life-s", type=float, default=1800.0,
-                        help="rebuilds ask_load from ask times when the CSV has no ask_load")
+                        help="where the data carry ask times (the store export's ask rows, "
+                        "bags, or a CSV without ask_load) the half-life is estimated from "
+                        "here; with --fix-half-life it is kept at this value")
+    parser.add_argument("--fix-half-life", action="store_true",
+                        help="keep ask_memory_half_life_s at --ask-memory-half-life-s")
     parser.add_argument("--no-busy", action="store_true", help="fix k_busy at 0")
     parser.add_argument("--no-load", action="store_true", help="fix k_load at 0")
     parser.add_argument("--max-iter", type=int, default=500,
@@ -83,7 +88,9 @@ def run(args: argparse.Namespace) -> int:
                                          and data.n_outcomes >= LONG_FIT_ROWS)
         fit = fit_site(data, fix_k_busy=args.no_busy, fix_k_load=args.no_load,
                        notice_probability=args.notice_probability,
-                       progress=Progress("fit", enabled=show), max_iter=args.max_iter)
+                       progress=Progress("fit", enabled=show), max_iter=args.max_iter,
+                       half_life_s=args.ask_memory_half_life_s,
+                       fit_half_life=not args.fix_half_life)
     except FitInputError as exc:
         print(f"fit: {exc}", file=sys.stderr)
         return 2
@@ -104,7 +111,8 @@ def run(args: argparse.Namespace) -> int:
             status = "at bound"
         else:
             status = "fitted"
-        rows.append((name, f"{value:.4f}", _fmt(fit.std_errors.get(name)), status))
+        shown = "-" if value is None else f"{value:.4f}"
+        rows.append((name, shown, _fmt(fit.std_errors.get(name)), status))
     print(render_table(("constant", "estimate", "std error", ""), rows, (False, True, True, False)))
     print(f"log marginal likelihood {fit.loglik:.3f} ({fit.iterations} iterations)")
     print(verdict_line(fit.verdict))
@@ -122,6 +130,8 @@ def run(args: argparse.Namespace) -> int:
               f"p = {test.p_value:.3g} (chi-square); p = {test.p_value_boundary:.3g} "
               "(chi-bar-square: k = 0 lies on the boundary, so the plain chi-square is "
               "conservative)")
+        if test.note:
+            print(f"note: {test.note}")
     held = None
     if args.folds and args.folds > 1:
         try:
@@ -154,7 +164,8 @@ def run(args: argparse.Namespace) -> int:
                 f"Data: {', '.join(os.path.basename(s) for s in data.sources)} "
                 f"({data.n_people} people, {data.n_outcomes} answered asks).",
                 f"Log marginal likelihood {fit.loglik:.3f}; {fit.verdict.line()}."]
-    for name in ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability"):
+    written = list(FITTED_NAMES) + ([HALF_LIFE] if HALF_LIFE in fit.free else [])
+    for name in written:
         se = fit.std_errors.get(name)
         extra = f" +/- {se:.3g} (1 s.e.)" if se is not None and not math.isnan(se) else \
             f" ({'fixed: ' + fit.fixed[name]})" if name in fit.fixed else " (at bound)" \
@@ -167,8 +178,7 @@ def run(args: argparse.Namespace) -> int:
     if held is not None:
         comments.append(f"Held-out log loss ({held.folds}-fold over people): site model "
                         f"{held.site_sequential:.4f}, GLMM {held.glmm_sequential:.4f}.")
-    values = {k: getattr(fit.params, k) for k in
-              ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability")}
+    values = {k: getattr(fit.params, k) for k in written}
     text = render_param_file(values, comments, args.node_name)
     tmp = args.out + ".tmp"
     with open(tmp, "w", encoding="utf-8") as fh:

@@ -1,7 +1,8 @@
 """`helpaware store`: look into and look after the belief store file.
 
 Actions: inspect (counts, or one person's belief and asks by perceived id), opt-out, forget,
-compact, export (hashed events and asks as CSV for `helpaware fit`).  Perceived ids given here are hashed with
+compact, export (hashed events and asks as CSV for `helpaware fit`), learned (the history of
+the site constants learned online).  Perceived ids given here are hashed with
 the site key at once and never written anywhere.
 """
 from __future__ import annotations
@@ -39,6 +40,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     p = acts.add_parser("export", help="hashed events and asks as CSV (columns: "
                         + ",".join(EXPORT_COLUMNS) + ")")
     p.add_argument("-o", "--out", default="-", help="CSV file to write (default: stdout)")
+    p = acts.add_parser("learned", help="the site constants learned online (site_learning), "
+                        "revision by revision, and the model beliefs are folded under")
+    p.add_argument("--limit", type=int, default=50, metavar="N",
+                   help="newest N revisions (default 50)")
 
 
 def _person_args(p: argparse.ArgumentParser, required: bool = True) -> None:
@@ -154,5 +159,38 @@ def do_export(store: SqliteStore, args) -> int:
     return 0
 
 
+def do_learned(store: SqliteStore, args) -> int:
+    from ..fit.online import LEARNED, NUISANCE
+    if args.limit < 1:
+        print("store: --limit must be >= 1", file=sys.stderr)
+        return 2
+    history = store.learned_history(limit=args.limit)
+    print(f"store {store.path}")
+    if not history:
+        print("no learned constants: site learning has not put a revision in force "
+              "(site_learning off or propose, or too few outcomes so far)")
+        return 0
+    short = {"prior_a": "prior_a", "prior_b": "prior_b", "k_busy": "k_busy",
+             "k_load": "k_load", "notice_probability": "notice_p",
+             "ask_memory_half_life_s": "half_life_s", NUISANCE: "decline_aloud"}
+    names = list(LEARNED) + [NUISANCE]
+    rows = []
+    for e in history:
+        rows.append([e.revision, e.recorded_utc or "-", e.robot_id or "-", e.n_outcomes,
+                     "yes" if e.verdict.get("converged") else "no"]
+                    + [f"{e.constants[n]:.4g}" if n in e.constants else "-" for n in names])
+    print(f"learned constants (newest {len(history)} revision(s); the last is in force on the "
+          "robot that wrote it while site_learning is apply)")
+    print(render_table(["rev", "recorded (UTC)", "robot", "outcomes", "converged"]
+                       + [short[n] for n in names], rows,
+                       [True, False, False, True, False] + [True] * len(names)))
+    last = history[-1]
+    print("shrunk towards (parameter file): "
+          + ", ".join(f"{short.get(k, k)} {v:.4g}" for k, v in last.target.items()))
+    print("beliefs folded under: "
+          + ", ".join(f"{short[n]} {getattr(store.model, n):.4g}" for n in LEARNED))
+    return 0
+
+
 ACTIONS = {"inspect": do_inspect, "opt-out": do_opt_out, "forget": do_forget,
-           "compact": do_compact, "export": do_export}
+           "compact": do_compact, "export": do_export, "learned": do_learned}
