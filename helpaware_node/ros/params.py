@@ -14,6 +14,7 @@ from typing import Any, Callable, Optional
 
 from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, MAX_REASK_INTERVAL_S,
                           CoreInputError, DecisionConfig, SiteModel)
+from ..store.ids import check_robot_id
 
 MODEL_DEFAULTS = SiteModel()
 CONFIG_DEFAULTS = DecisionConfig()
@@ -196,8 +197,8 @@ def build(values: dict[str, Any], pairs: bool = True
     if any(not a for a in config.protected_activities):
         raise CoreInputError("protected_activities: labels must be non-empty")
     node_values = {f.name: values[f.name] for f in dataclasses.fields(NodeSettings)}
-    if "/" in str(node_values["robot_id"]):   # event ids are "<robot_id>/<sequence>"
-        raise CoreInputError(f"robot_id: {node_values['robot_id']!r} must not contain '/'")
+    if node_values["robot_id"]:     # event ids are "<robot_id>/<sequence>" (store/ids.py)
+        check_robot_id(node_values["robot_id"])
     for name in ("fleet_topic", "privacy_topic"):
         if not node_values[name]:
             raise CoreInputError(f"{name}: must not be empty (the default is "
