@@ -184,6 +184,42 @@ DECISION = F("object", fields={
 SPECS: dict[str, F] = {"people": PEOPLE, "task_status": TASK_STATUS, "outcome": OUTCOME,
                        "decision": DECISION}
 
+# The size of one candidate in a decision document, bounded from the specs above: every
+# number at the longest text a float has, every other text at its longest, and the person id,
+# activity and ask times of the candidate itself (json.dumps writes non-ASCII as \u escapes,
+# up to 12 bytes a character). The help session keeps each decision within MAX_DOCUMENT_BYTES
+# with it (session.py, _within_one_document).
+_LONGEST_NUMBER = -2.2250738585072014e-308      # repr: 24 characters, the most a float takes
+
+
+def _fixed_bytes(spec: F, own: tuple) -> int:
+    doc: dict[str, Any] = {}
+    for name, f in spec.fields.items():
+        if name in own:
+            doc[name] = ""                      # counted from the candidate itself
+        elif f.kind in ("number", "integer"):
+            doc[name] = _LONGEST_NUMBER         # longer than null, and than any integer here
+        elif f.kind == "string":
+            doc[name] = "x" * f.max_len         # an exclusion code: ASCII
+        elif f.kind == "boolean":
+            doc[name] = False
+        else:
+            doc[name] = []
+    return len(json.dumps(doc, separators=(",", ":")))
+
+
+CANDIDATE_FIXED_BYTES = (_fixed_bytes(CANDIDATE, ("person_id", "activity"))
+                         + _fixed_bytes(RATIONALE_ROW, ("person_id",)) + 2)  # +2: the commas
+ASK_TIME_BYTES = len(repr(_LONGEST_NUMBER)) + 1
+
+
+def candidate_bytes_bound(candidate: Candidate) -> int:
+    """At most how many bytes `candidate` adds to a decision document (its entry in
+    `candidates` and its row in `rationale`, as `fast_text` writes them)."""
+    text = len(json.dumps(candidate.person_id)) - 2
+    return (CANDIDATE_FIXED_BYTES + 2 * text + len(json.dumps(candidate.activity)) - 2
+            + ASK_TIME_BYTES * len(candidate.ask_times_s))
+
 
 def _check(spec: F, value: Any, path: str) -> None:
     if value is None:
