@@ -28,14 +28,13 @@ from .signing import SIGNATURE_FIELDS, KeyRing, Refused
 from .store.base import AskEvent, StoredEvent
 from .core.preview import describe, quoted
 from .store.ids import PERSON_KEY_RE, check_ask, check_event, check_text
-from .wire import WireError, parse_json
+from .wire import MAX_ID_CHARS, WireError, parse_json
 
 FORMAT_VERSION = 2
 UNSIGNED_VERSION = 1          # the format before signatures: refused, with a message saying so
 OLD_FORMAT = "old_format"     # the refusal reason for it
 MALFORMED = "malformed"       # a bad field (any refusal that is not about the signature)
 MAX_DOCUMENT_CHARS = 100_000
-MAX_ID_CHARS = 128
 PRIVACY_KINDS = ("forget", "opt_out")
 WHAT = "fleet message"
 
@@ -263,6 +262,9 @@ def parse_unsigned_request(doc: Mapping, key_for: Callable[[str], str],
             except UnicodeEncodeError:
                 raise CoreInputError(f"{what}: {name} is not valid Unicode text (a lone "
                                      "surrogate)") from None
+            if len(value) > MAX_ID_CHARS:      # like a perceived id on the people topic
+                raise CoreInputError(f"{what}: {name}: {len(value)} characters, at most "
+                                     f"{MAX_ID_CHARS} allowed")
     action = doc.get("action")
     if action not in PRIVACY_KINDS:
         raise CoreInputError(f"{what}: action {quoted(action)} is not one of "
