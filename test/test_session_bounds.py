@@ -106,7 +106,7 @@ def test_the_largest_candidates_still_fit_in_one_document():
 
 
 def statuses(n, status="aborted", first_stamp=1.0):
-    return [(f"{i:032x}", status, first_stamp + i) for i in range(n)]
+    return [(f"{i:08x}" + "0" * 24, status, first_stamp + i) for i in range(n)]
 
 
 def test_a_status_array_of_20000_aborted_goals_gives_one_decision():
@@ -115,7 +115,7 @@ def test_a_status_array_of_20000_aborted_goals_gives_one_decision():
     array = statuses(20_000)
     step = s.navigation_status(array, T0)
     assert len(step.decisions) == 1
-    assert step.decisions[0].decision.evaluation.need.request_id == f"nav-{19_999:032x}"[:16]
+    assert step.decisions[0].decision.evaluation.need.request_id == f"nav-{19_999:08x}" + "0" * 24
     assert len(s.needs) == 1
     assert s.navigation_status(array, T0 + 1).decisions == []      # the same array again
     assert len(s.needs) == 1
@@ -127,7 +127,7 @@ def test_the_newest_abort_by_stamp_not_by_position():
     array = [("aa" * 16, "aborted", 50.0), ("bb" * 16, "aborted", 90.0),
              ("cc" * 16, "aborted", 70.0)]
     [out] = s.navigation_status(array, T0).decisions
-    assert out.decision.evaluation.need.request_id == "nav-" + "bb" * 6
+    assert out.decision.evaluation.need.request_id == "nav-" + "bb" * 16
     # an abort stamped before the one handled is history, even if never seen before
     assert s.navigation_status([("dd" * 16, "aborted", 80.0)], T0).decisions == []
 
@@ -139,11 +139,11 @@ def test_a_newer_abort_replaces_the_open_need_unless_an_ask_is_out():
     [first] = s.navigation_status([("aa" * 16, "aborted", 10.0)], T0).decisions
     assert first.decision.action == "ask"          # an ask is out for it
     assert s.navigation_status([("bb" * 16, "aborted", 20.0)], T0 + 1).decisions == []
-    assert list(s.needs) == ["nav-" + "aa" * 6]
-    s.outcome("nav-" + "aa" * 6, first.decision.person_id, "helped", T0 + 2)
+    assert list(s.needs) == ["nav-" + "aa" * 16]
+    s.outcome("nav-" + "aa" * 16, first.decision.person_id, "helped", T0 + 2)
     [second] = s.navigation_status([("cc" * 16, "aborted", 30.0)], T0 + 3).decisions
-    assert list(s.needs) == ["nav-" + "cc" * 6]
-    assert second.decision.evaluation.need.request_id == "nav-" + "cc" * 6
+    assert list(s.needs) == ["nav-" + "cc" * 16]
+    assert second.decision.evaluation.need.request_id == "nav-" + "cc" * 16
 
 
 def test_only_the_last_entries_of_an_array_are_looked_at():

@@ -40,6 +40,12 @@ CLOCK_JUMP_TOLERANCE_S = 5.0  # system time moving this much more than the stead
 NAV_FAILURE_KIND = "navigation_failure"
 
 
+def nav_request_id(goal_id: str) -> str:
+    """The request id of the need a goal's abort opens: the whole goal id (a UUID as 32 hex
+    digits from the node), so two goals never share a need."""
+    return f"nav-{goal_id[:64]}"
+
+
 def _never(ev) -> None:
     return None
 
@@ -179,7 +185,7 @@ class HelpSession:
             if old in self.pending:
                 return step
             del self.needs[old]
-        rid = f"nav-{goal_id[:12]}"
+        rid = nav_request_id(goal_id)
         self._nav_need = rid
         if rid not in self.needs:
             step = self.need_opened(HelpNeed(rid, NAV_FAILURE_KIND, now_s), now_s)
@@ -189,7 +195,7 @@ class HelpSession:
         """Succeeded or cancelled: the need an abort of this goal opened is resolved."""
         step = Step()
         if self._goals.get(goal_id) == "aborted":
-            step = self.need_closed(f"nav-{goal_id[:12]}", "resolved")
+            step = self.need_closed(nav_request_id(goal_id), "resolved")
         self._goals[goal_id] = "done"
         self._bound_goals()
         return step
