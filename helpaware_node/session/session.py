@@ -427,6 +427,9 @@ class HelpSession:
         ids and many remembered asks make a candidate large), so every decision published is
         valid by its own schema and can be replayed."""
         budget = MAX_DOCUMENT_BYTES - DECISION_OTHER_BYTES
+        if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(
+                candidate_bytes_bound(c, quick=True) for c in cands) <= budget:
+            return None                      # the usual case: lengths alone show it fits
         sizes = [candidate_bytes_bound(c) for c in cands]
         if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(sizes) <= budget:
             return None
