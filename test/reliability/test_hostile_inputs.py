@@ -522,6 +522,8 @@ def test_a_status_array_of_20000_aborted_goals_gives_one_decision(rig):
     newest = (20_000).to_bytes(16, "little").hex()
     assert [d["request_id"] for d in nav()] == [f"nav-{newest}"]
     assert node.counters.statuses_skipped - skipped0 == 19_000
+    print(f"\nstatus array of 20 000 aborted goals: {len(nav())} decision, "
+          f"{node.counters.statuses_skipped - skipped0} entries not looked at")
     pub.publish(status_array(20_000, GoalStatus.STATUS_ABORTED))     # the same array again
     keeps_deciding(rig, "after-status-array")
     assert len(nav()) == 1
@@ -643,6 +645,8 @@ def test_valid_but_pointless_documents_do_not_flood_the_log(ctx, tmp_path):
         #                    fleet old_format, people rejection
         most = kinds * (1 + int(elapsed / REPORT_PERIOD_S) + 1)
         assert sum(counter.lines.values()) <= most, (counter.lines, elapsed)
+        print(f"\nlog flood: {6 * n_each} documents in {elapsed:.1f} s gave "
+              f"{sum(counter.lines.values())} log lines ({dict(counter.lines)})")
         values = decision_values(node, NO_RATES)
         assert values["log.count.unknown_request"] == n_each
         assert values["privacy_request.applied"] == n_each
