@@ -26,15 +26,15 @@ from typing import Any, Callable, Mapping, Optional
 from .core import CoreInputError, Result
 from .signing import SIGNATURE_FIELDS, KeyRing, Refused
 from .store.base import AskEvent, StoredEvent
-from .store.sqlite import PERSON_KEY_RE, check_ask, check_event
-from .wire import WireError, parse_json
+from .core.preview import describe, quoted
+from .store.ids import PERSON_KEY_RE, check_ask, check_event, check_text
+from .wire import MAX_ID_CHARS, WireError, parse_json
 
 FORMAT_VERSION = 2
 UNSIGNED_VERSION = 1          # the format before signatures: refused, with a message saying so
 OLD_FORMAT = "old_format"     # the refusal reason for it
 MALFORMED = "malformed"       # a bad field (any refusal that is not about the signature)
 MAX_DOCUMENT_CHARS = 100_000
-MAX_ID_CHARS = 128
 PRIVACY_KINDS = ("forget", "opt_out")
 WHAT = "fleet message"
 
@@ -88,23 +88,38 @@ def _outcome_fields(e: StoredEvent) -> dict:
             "ask_load": float(e.ask_load), "request_kind": e.request_kind or ""}
 
 
-def _outcome_from(doc: Mapping) -> StoredEvent:
+def _number(doc: Mapping, name: str) -> float:
+    """A number field as float, or CoreInputError naming it (missing, not a number, beyond
+    any float); its range is the store's check."""
+    if name not in doc:
+        raise CoreInputError(f"{WHAT}: missing field {name}")
+    value = doc[name]
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise CoreInputError(f"{WHAT}: {name} must be a number, got {describe(value)}")
     try:
-        for name in ("event_id", "person_key", "result", "request_kind"):
-            if name in doc and not isinstance(doc[name], str):
-                raise CoreInputError(f"{WHAT}: {name} must be text")
-        for name in ("time_s", "busyness", "ask_load"):
-            if isinstance(doc.get(name), bool) or not isinstance(doc[name], (int, float)):
-                raise CoreInputError(f"{WHAT}: {name} must be a number")
-        e = StoredEvent(doc["event_id"], doc["person_key"], float(doc["time_s"]),
-                        Result.parse(doc["result"]), float(doc["busyness"]),
-                        float(doc["ask_load"]), doc.get("request_kind", ""))
-        check_event(e)
-    except KeyError as exc:
-        raise CoreInputError(f"{WHAT}: missing field {exc.args[0]}") from None
+        return float(value)
     except OverflowError:   # an integer beyond any float
-        raise CoreInputError(f"{WHAT}: time_s, busyness and ask_load must be finite numbers "
-                             "in range") from None
+        raise CoreInputError(f"{WHAT}: {name} is {describe(value)}, beyond any finite "
+                             "number") from None
+
+
+def _text(doc: Mapping, name: str, default: Optional[str] = None) -> str:
+    """A text field (its length and content are the store's checks), or CoreInputError."""
+    if name not in doc:
+        if default is None:
+            raise CoreInputError(f"{WHAT}: missing field {name}")
+        return default
+    value = doc[name]
+    if not isinstance(value, str):
+        raise CoreInputError(f"{WHAT}: {name} must be text, got {describe(value)}")
+    return value
+
+
+def _outcome_from(doc: Mapping) -> StoredEvent:
+    e = StoredEvent(_text(doc, "event_id"), _text(doc, "person_key"), _number(doc, "time_s"),
+                    Result.parse(_text(doc, "result")), _number(doc, "busyness"),
+                    _number(doc, "ask_load"), _text(doc, "request_kind", ""))
+    check_event(e)          # names the field: person_key, event_id, request_kind, ranges
     return e
 
 
@@ -114,18 +129,8 @@ def _ask_fields(a: AskEvent) -> dict:
 
 
 def _ask_from(doc: Mapping) -> AskEvent:
-    for name in ("event_id", "person_key", "request_kind", "request_id"):
-        if name in doc and not isinstance(doc[name], str):
-            raise CoreInputError(f"{WHAT}: {name} must be text")
-    if "time_s" not in doc:
-        raise CoreInputError(f"{WHAT}: missing field time_s")
-    if isinstance(doc["time_s"], bool) or not isinstance(doc["time_s"], (int, float)):
-        raise CoreInputError(f"{WHAT}: time_s must be a number")
-    try:
-        a = AskEvent(doc.get("event_id", ""), doc.get("person_key", ""), float(doc["time_s"]),
-                     doc.get("request_kind", ""), doc.get("request_id", ""))
-    except OverflowError:   # an integer beyond any float
-        raise CoreInputError(f"{WHAT}: time_s must be a finite number in range") from None
+    a = AskEvent(_text(doc, "event_id"), _text(doc, "person_key"), _number(doc, "time_s"),
+                 _text(doc, "request_kind", ""), _text(doc, "request_id", ""))
     check_ask(a)            # names the field: person_key, event_id, time_s, request_*
     return a
 
@@ -139,7 +144,7 @@ def _text_field(doc: Mapping, name: str, low: int = 0) -> str:
     value = doc.get(name)
     if not isinstance(value, str) or not low <= len(value) <= MAX_ID_CHARS:
         raise CoreInputError(f"{WHAT}: {name} must be text of {low} to {MAX_ID_CHARS} characters")
-    return value
+    return check_text(name, value, MAX_ID_CHARS)
 
 
 def _act_from(kind: str) -> Callable[[Mapping], PrivacyAct]:
@@ -211,13 +216,15 @@ def decode_parsed(doc: Mapping, keys: KeyRing, now_s: Optional[float] = None,
                       "update helpaware_node on that robot (docs/store.md, 'Migration to signed "
                       "documents')")
     if version != FORMAT_VERSION or isinstance(version, bool):
-        raise CoreInputError(f"{what}: v must be {FORMAT_VERSION} (got {str(version)[:20]})")
+        raise CoreInputError(f"{what}: v must be {FORMAT_VERSION} (got {describe(version)})")
     keys.check(doc, time.time() if now_s is None else now_s, what)
     kind = doc.get("kind")
     if not isinstance(kind, str) or kind not in KINDS:
-        raise CoreInputError(f"{what}: kind {str(kind)[:40]!r} is not one of "
-                             f"{', '.join(KINDS)}")
-    return kind, KINDS[kind].from_fields(doc)
+        raise CoreInputError(f"{what}: kind {quoted(kind)} is not one of {', '.join(KINDS)}")
+    try:
+        return kind, KINDS[kind].from_fields(doc)
+    except CoreInputError as exc:   # every refusal names the topic, then the field
+        raise CoreInputError(f"{what}: {str(exc).removeprefix(f'{WHAT}: ')}") from None
 
 
 def _sender(doc: Mapping) -> str:
@@ -255,9 +262,12 @@ def parse_unsigned_request(doc: Mapping, key_for: Callable[[str], str],
             except UnicodeEncodeError:
                 raise CoreInputError(f"{what}: {name} is not valid Unicode text (a lone "
                                      "surrogate)") from None
+            if len(value) > MAX_ID_CHARS:      # like a perceived id on the people topic
+                raise CoreInputError(f"{what}: {name}: {len(value)} characters, at most "
+                                     f"{MAX_ID_CHARS} allowed")
     action = doc.get("action")
     if action not in PRIVACY_KINDS:
-        raise CoreInputError(f"{what}: action {str(action)[:40]!r} is not one of "
+        raise CoreInputError(f"{what}: action {quoted(action)} is not one of "
                              f"{', '.join(PRIVACY_KINDS)}")
     if isinstance(doc.get("person_key"), str):
         key = doc["person_key"].strip().lower()

@@ -14,6 +14,7 @@ from __future__ import annotations
 import functools
 import json
 import math
+import re
 from dataclasses import dataclass, field
 from typing import Any, Iterable, Mapping, Optional, Sequence
 
@@ -21,7 +22,7 @@ from .core.belief import Belief
 from .core.model import MAX_ASKS_CAP, DecisionConfig, SiteModel, from_plain, to_plain
 from .core.person import Result
 from .core.policy import HOUR_S, Candidate, Decision, HelpNeed
-from .core.preview import describe, quoted, short_number
+from .core.preview import describe, quoted, short_name, short_number
 
 VERSION = 1
 MAX_DOCUMENT_BYTES = 1_000_000
@@ -196,6 +197,48 @@ DECISION = F("object", fields={
 SPECS: dict[str, F] = {"people": PEOPLE, "task_status": TASK_STATUS, "outcome": OUTCOME,
                        "decision": DECISION}
 
+# The size of one candidate in a decision document, bounded from the specs above: every
+# number at the longest text a float has, every other text at its longest, and the person id,
+# activity and ask times of the candidate itself (json.dumps writes non-ASCII as \u escapes,
+# up to 12 bytes a character). The help session keeps each decision within MAX_DOCUMENT_BYTES
+# with it (session.py, _within_one_document).
+_LONGEST_NUMBER = -2.2250738585072014e-308      # repr: 24 characters, the most a float takes
+
+
+def _fixed_bytes(spec: F, own: tuple) -> int:
+    doc: dict[str, Any] = {}
+    for name, f in spec.fields.items():
+        if name in own:
+            doc[name] = ""                      # counted from the candidate itself
+        elif f.kind in ("number", "integer"):
+            doc[name] = _LONGEST_NUMBER         # longer than null, and than any integer here
+        elif f.kind == "string":
+            doc[name] = "x" * f.max_len         # an exclusion code: ASCII
+        elif f.kind == "boolean":
+            doc[name] = False
+        else:
+            doc[name] = []
+    return len(json.dumps(doc, separators=(",", ":")))
+
+
+CANDIDATE_FIXED_BYTES = (_fixed_bytes(CANDIDATE, ("person_id", "activity"))
+                         + _fixed_bytes(RATIONALE_ROW, ("person_id",)) + 2)  # +2: the commas
+ASK_TIME_BYTES = len(repr(_LONGEST_NUMBER)) + 1
+
+
+def candidate_bytes_bound(candidate: Candidate, quick: bool = False) -> int:
+    """At most how many bytes `candidate` adds to a decision document (its entry in
+    `candidates` and its row in `rationale`, as `fast_text` writes them). `quick`: a looser
+    bound from lengths alone (12 bytes a character: two escapes of six), without writing the
+    texts."""
+    if quick:
+        text, activity = 12 * len(candidate.person_id), 12 * len(candidate.activity)
+    else:
+        text = len(json.dumps(candidate.person_id)) - 2
+        activity = len(json.dumps(candidate.activity)) - 2
+    return (CANDIDATE_FIXED_BYTES + 2 * text + activity
+            + ASK_TIME_BYTES * len(candidate.ask_times_s))
+
 
 def _check(spec: F, value: Any, path: str) -> None:
     if value is None:
@@ -329,8 +372,65 @@ def parse_json(text: str) -> Any:
                           object_pairs_hook=_refuse_duplicates)
     except WireError:
         raise
-    except (ValueError, RecursionError) as exc:
+    except RecursionError:   # nested deeper than the parser goes from here: name the field
+        where = deep_nesting_at(text, DEEP_NESTING_LEVELS)
+        if where is None:
+            raise WireError("document: not valid JSON (nested too deep to read)") from None
+        path, depth = where
+        raise WireError(f"{path or 'document'}: nested {depth} or more levels deep, too "
+                        "deep to read as JSON") from None
+    except ValueError as exc:
         raise WireError(f"document: not valid JSON ({str(exc)[:80]})") from None
+
+
+DEEP_NESTING_LEVELS = 64      # deeper than any document here (a decision: 4 levels)
+_JSON_TOKEN = re.compile(r'"(?:[^"\\]|\\.)*"|[\[\]{},:]')
+
+
+def deep_nesting_at(text: str, levels: int) -> Optional[tuple[str, int]]:
+    """(path, levels) of the first value nested `levels` deep in JSON `text`, or None.
+
+    Reads the text without recursion (the json module recurses, and gives up without saying
+    where), so a refusal can name the field that holds the nesting: `time_s[0][0][0]...`."""
+    stack: list[list] = []              # per open container: [is_object, key or index]
+    expect_key = False
+    for m in _JSON_TOKEN.finditer(text):
+        tok = m.group()
+        if tok in ("{", "["):
+            stack.append([tok == "{", None if tok == "{" else 0])
+            expect_key = tok == "{"
+            if len(stack) >= levels:
+                return _nesting_path(stack), len(stack)
+        elif tok in ("}", "]"):
+            if stack:
+                stack.pop()
+            expect_key = False
+        elif tok == ",":
+            if stack and not stack[-1][0]:
+                stack[-1][1] += 1
+            expect_key = bool(stack) and stack[-1][0]
+        elif tok == ":":
+            expect_key = False
+        elif expect_key and stack:      # a name in an object
+            try:
+                stack[-1][1] = json.loads(tok)
+            except ValueError:
+                stack[-1][1] = "?"
+            expect_key = False
+    return None
+
+
+def _nesting_path(stack: list[list], parts_shown: int = 6) -> str:
+    """The path of the innermost container's place, as wire writes paths, cut short after
+    `parts_shown` parts (the field that holds the nesting comes first)."""
+    parts: list[str] = []
+    for is_object, at in stack[:parts_shown]:
+        if is_object:
+            name = at if isinstance(at, str) else "?"
+            parts.append(("." if parts else "") + short_name(name)[:40])
+        else:
+            parts.append(f"[{at}]")
+    return "".join(parts) + ("..." if len(stack) > parts_shown else "")
 
 
 def encode(name: str, document: Mapping[str, Any]) -> str:

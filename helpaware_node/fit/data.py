@@ -12,6 +12,7 @@ could_not_ask carry no evidence and are skipped.  Lines starting with '#' are co
 """
 from __future__ import annotations
 
+import contextlib
 import csv
 import math
 from dataclasses import dataclass
@@ -32,6 +33,7 @@ MAX_PRIOR_ASKS = MAX_ASKS_CAP
 MAX_PRIOR_ASK_AGE_S = 40 * 7 * 86400.0
 RESULT_CODE = {Result.HELPED: HELPED, Result.DECLINED: DECLINED, Result.NO_RESPONSE: NO_RESPONSE}
 REQUIRED_COLUMNS = ("person_key", "time_s", "busyness", "result")
+MAX_CSV_FIELD_CHARS = 2**31 - 1    # csv.field_size_limit takes a C long: this fits everywhere
 
 
 class FitInputError(ValueError):
@@ -207,6 +209,90 @@ def _number(path: str, line: int, name: str, text: str) -> float:
     return v
 
 
+class _Records:
+    """The CSV records of one open file, each with the number of the line it starts on.
+
+    Comment ('#') and blank lines are skipped only between records, so a quoted field that
+    holds line breaks (a request kind from a peer may) stays whole and the line numbers stay
+    right; the csv module reads the file itself, one line at a time."""
+
+    def __init__(self, handle) -> None:
+        self._handle = handle
+        self._between = True          # the next line starts a record
+        self.line = 0                 # the line just read
+        self.start = 0                # the line the current record starts on
+
+    def _lines(self):
+        for self.line, text in enumerate(self._handle, start=1):
+            if self._between:
+                if not text.strip() or text.lstrip().startswith("#"):
+                    continue
+                self.start = self.line
+            self._between = False
+            yield text
+
+    def __iter__(self):
+        for fields in csv.reader(self._lines()):
+            self._between = True
+            yield self.start, fields
+
+
+@contextlib.contextmanager
+def _long_fields():
+    """The csv module refuses a field past 131 072 characters; a store written before request
+    kinds were bounded may hold a longer one (fit never reads it). Raised for this read only."""
+    before = csv.field_size_limit()
+    csv.field_size_limit(MAX_CSV_FIELD_CHARS)
+    try:
+        yield
+    finally:
+        csv.field_size_limit(before)
+
+
+def _read_rows(path: str, records: "_Records", asks: list) -> list:
+    """Outcome rows of one file; its ask rows (person_key, time_s) go to `asks`."""
+    records = iter(records)
+    first = next(records, None)
+    if first is None:
+        raise FitInputError(f"{path}: no header line (expected columns "
+                            f"{', '.join(REQUIRED_COLUMNS)}, ...)")
+    header_line, header = first[0], [h.strip() for h in first[1]]
+    missing = [c for c in REQUIRED_COLUMNS if c not in header]
+    if missing:
+        raise FitInputError(f"{path}:{header_line}: missing column(s) {', '.join(missing)}")
+    col = {h: i for i, h in enumerate(header)}
+    rows = []
+    for line, fields in records:
+        if len(fields) != len(header):
+            raise FitInputError(f"{path}:{line}: {len(fields)} fields, header has "
+                                f"{len(header)}")
+        get = lambda name: fields[col[name]].strip()   # noqa: E731
+        key = get("person_key")
+        if not key:
+            raise FitInputError(f"{path}:{line}: person_key is empty")
+        if "record" in col and get("record") == "ask":
+            # an ask: what the limits count, not evidence; its time is the history the ask
+            # load is recomputed from
+            asks.append((key, _number(path, line, "time_s", get("time_s"))))
+            continue
+        try:
+            result = Result.parse(get("result"))
+        except CoreInputError as exc:
+            raise FitInputError(f"{path}:{line}: {exc}") from None
+        t = _number(path, line, "time_s", get("time_s"))
+        x = _number(path, line, "busyness", get("busyness"))
+        if not 0.0 <= x <= 1.0:
+            raise FitInputError(f"{path}:{line}: busyness {x!r} is outside [0, 1]")
+        f = None
+        if "ask_load" in col and get("ask_load") != "":
+            f = _number(path, line, "ask_load", get("ask_load"))
+            if f < 0.0:
+                raise FitInputError(f"{path}:{line}: ask_load {f!r} must be >= 0")
+        eid = get("event_id") if "event_id" in col else f"{path}:{line}"
+        rows.append((key, t, eid, x, f, result))
+    return rows
+
+
 def read_outcome_csv(paths: Iterable[str], ask_memory_half_life_s: float = 1800.0) -> OutcomeData:
     """Read one or more outcome CSV files into one table (people keyed across files)."""
     rows = []   # (person_key, time_s, event_id, busyness, load or None, result or None)
@@ -217,48 +303,14 @@ def read_outcome_csv(paths: Iterable[str], ask_memory_half_life_s: float = 1800.
             handle = open(path, newline="", encoding="utf-8")
         except OSError as exc:
             raise FitInputError(f"{path}: cannot open ({exc.strerror})") from None
-        with handle:
-            lines = ((n, text) for n, text in enumerate(handle, start=1)
-                     if text.strip() and not text.lstrip().startswith("#"))
-            numbered = list(lines)
-            if not numbered:
-                raise FitInputError(f"{path}: no header line (expected columns "
-                                    f"{', '.join(REQUIRED_COLUMNS)}, ...)")
-            reader = csv.reader([t for _, t in numbered])
-            header = [h.strip() for h in next(reader)]
-            missing = [c for c in REQUIRED_COLUMNS if c not in header]
-            if missing:
-                raise FitInputError(f"{path}:{numbered[0][0]}: missing column(s) "
-                                    f"{', '.join(missing)}")
-            col = {h: i for i, h in enumerate(header)}
-            for (line, _), fields in zip(numbered[1:], reader):
-                if len(fields) != len(header):
-                    raise FitInputError(f"{path}:{line}: {len(fields)} fields, header has "
-                                        f"{len(header)}")
-                get = lambda name: fields[col[name]].strip()   # noqa: E731
-                key = get("person_key")
-                if not key:
-                    raise FitInputError(f"{path}:{line}: person_key is empty")
-                if "record" in col and get("record") == "ask":
-                    # an ask: what the limits count, not evidence; its time is the history
-                    # the ask load is recomputed from
-                    asks.append((key, _number(path, line, "time_s", get("time_s"))))
-                    continue
-                try:
-                    result = Result.parse(get("result"))
-                except CoreInputError as exc:
-                    raise FitInputError(f"{path}:{line}: {exc}") from None
-                t = _number(path, line, "time_s", get("time_s"))
-                x = _number(path, line, "busyness", get("busyness"))
-                if not 0.0 <= x <= 1.0:
-                    raise FitInputError(f"{path}:{line}: busyness {x!r} is outside [0, 1]")
-                f = None
-                if "ask_load" in col and get("ask_load") != "":
-                    f = _number(path, line, "ask_load", get("ask_load"))
-                    if f < 0.0:
-                        raise FitInputError(f"{path}:{line}: ask_load {f!r} must be >= 0")
-                eid = get("event_id") if "event_id" in col else f"{path}:{line}"
-                rows.append((key, t, eid, x, f, result))
+        with handle, _long_fields():
+            try:
+                rows += _read_rows(path, _Records(handle), asks)
+            except UnicodeDecodeError as exc:
+                raise FitInputError(f"{path}: not UTF-8 text ({exc.reason} at byte "
+                                    f"{exc.start})") from None
+            except csv.Error as exc:
+                raise FitInputError(f"{path}: not a readable CSV file ({exc})") from None
     rows.sort(key=lambda r: (r[0], r[1], r[2]))
     keys = sorted({r[0] for r in rows if r[5] is not Result.COULD_NOT_ASK})
     person, times, xs, fs, res = [], [], [], [], []

@@ -24,6 +24,9 @@ class InputCounters:
     received: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})
     rejected: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})
     last_reason: dict = field(default_factory=lambda: {k: "" for k in INPUTS})
+    failed: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})   # handler errors
+    statuses_skipped: int = 0       # navigation status entries beyond the bound looked at
+    housekeeping_errors: int = 0    # a housekeeping pass that raised (contained, logged)
     _received_at_tick: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})
     _rejected_at_tick: int = 0
     qos_incompatible: int = 0
@@ -96,6 +99,9 @@ def decision_values(node, rates: dict) -> dict:
         values[f"{k}.received"] = counters.received[k]
         values[f"{k}.rejected"] = counters.rejected[k]
         values[f"{k}.last_rejection"] = counters.last_reason[k]
+        values[f"{k}.handler_errors"] = counters.failed[k]
+    values["navigation_status.entries_skipped"] = counters.statuses_skipped
+    values["housekeeping_errors"] = counters.housekeeping_errors
     for name, part in side_inputs(node):
         values[f"{name}.rejected"] = part.refused_count
         values[f"{name}.last_rejection"] = part.last_refusal
@@ -105,6 +111,7 @@ def decision_values(node, rates: dict) -> dict:
         "open_needs": len(session.needs), "pending_asks": len(session.pending),
         "expired_asks": session.expired_asks, "could_not_ask": session.could_not_ask,
         "decisions": session.decisions, "people_in_view": len(session.seen),
+        "people_dropped_from_view": session.people_dropped,
         "people_known": len(session.memory.records), "people_evicted": session.memory.evicted,
         "clock_jumps_forward": session.clock_jumps_forward,
         "count_peer_asks": session.rules.count_peer_asks,
@@ -117,9 +124,12 @@ def decision_values(node, rates: dict) -> dict:
         "parameters_rejected": node.params.rejected,
         "parameters_last_rejection": node.params.last_rejection,
         "params_hash": node.params_hash(),
+        "log.lines": node.log_lines.lines, "log.lines_held_back": node.log_lines.held_back,
     })
     if getattr(node, "learning", None) is not None:   # constants in force, source, last refit
         values.update(node.learning.diagnostic_values())
+    # what the per-document log lines counted, by kind (rejections, session notes)
+    values.update({f"log.count.{kind}": n for kind, n in sorted(node.log_lines.counts.items())})
     if store is not None and hasattr(store, "counts"):
         try:
             values.update({f"store.{k}": v for k, v in store.counts().items()})

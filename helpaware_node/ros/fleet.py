@@ -44,8 +44,10 @@ from ..fleet_documents import (MALFORMED, OLD_FORMAT, PRIVACY_KINDS, PrivacyAct,
                                decode_document, encode_document)
 from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
                        utc_text)
+from ..core.preview import quoted
 from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
-from .refusal_log import CountsRefusals, Refusals
+from ..store.ids import refused_by_store
+from .refusal_log import HANDLER_ERROR, CountsRefusals, LogThrottle, Refusals, exception_text
 
 FLEET_TOPIC = "/helpaware/fleet"    # site-wide: every robot of the site, whatever its namespace
 FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
@@ -57,7 +59,7 @@ MERGE_WAIT_S = 0.2              # a smaller batch waits this long for more (catc
 MAX_QUEUED = 200_000            # bound on events received but not yet stored (~40 peers' histories)
 MAX_REMEMBERED_REQUESTS = 100_000   # privacy requests applied this session (each applied once)
 REFUSAL_REASONS = (UNSIGNED, OLD_FORMAT, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, BAD_SIGNATURE,
-                   MALFORMED)
+                   MALFORMED, HANDLER_ERROR)
 DIAGNOSTICS_PREFIX = "fleet_outcomes"     # the /diagnostics keys of this link (unchanged name)
 
 Merged = Callable[[list[AnyEvent]], None]
@@ -150,8 +152,12 @@ class FleetLink(CountsRefusals):
         self.merged_count = 0
         self.dropped_count = 0          # queue full (MAX_QUEUED): counted and logged
         self.store_failures = 0         # a batch the store refused: kept and tried again
+        self.dropped_bad_events = 0     # taken, but the store could not hold them: dropped
+        self.not_reoffered = 0          # stored before today's rules, which refuse them
+        self.tick_errors = 0            # a merge tick that raised (contained, logged)
         self.acts_applied = 0           # forgets and opt-outs applied (each request once)
         self._refused = Refusals(node.get_logger().warning, topic)   # by reason, logged once
+        self._log = LogThrottle()       # per-event lines of this link, by kind
         self._pub = node.create_publisher(String, topic, fleet_qos(depth))
         self._sub = node.create_subscription(String, topic, self._on_delivery,
                                              fleet_reader_qos(depth))
@@ -192,8 +198,19 @@ class FleetLink(CountsRefusals):
         self._pub.publish(String(data=encode_document(kind, event, self._keys)))
 
     def publish_many(self, events: Iterable[AnyEvent]) -> None:
+        """Share stored events (the re-offer at start). One the rules refuse now (stored by
+        an older version: a long request kind, an odd event id) is skipped and counted, so an
+        old store never stops a start."""
         for e in events:
-            self.publish(e)
+            try:
+                self.publish(e)
+            except CoreInputError as exc:
+                self.not_reoffered += 1
+                text = self._log.due("not_reoffered", f"{self.topic}: stored event "
+                                     f"{quoted(e.event_id)} not re-offered: {exc} (it stays "
+                                     "in the store; more are counted in /diagnostics)")
+                if text is not None:
+                    self._node.get_logger().warning(text)
 
     def publish_act(self, act: PrivacyAct) -> None:
         self._pub.publish(String(data=encode_document(act.action, act, self._keys)))
@@ -218,12 +235,14 @@ class FleetLink(CountsRefusals):
         """A forget or opt-out received from the console or a peer: applied once per request,
         and a request is answered once with this robot's own signed act (which also carries
         it to robots that were not listening).  False when it was applied here already."""
-        if not self._remember(act.identity):
-            return False
-        if act.action == "forget":
-            self._forget_here(act.person_key)
+        with self._lock:
+            if act.identity in self._applied:
+                return False
+        if act.action == "forget":     # a store that refuses raises: not remembered, so a
+            self._forget_here(act.person_key)   # copy offered again is applied then
         else:
             self._store.opt_out(act.person_key)
+        self._remember(act.identity)
         if act.request_id:          # a re-offered opt-out (no request) is not answered
             self.publish_act(PrivacyAct.new(act.action, act.person_key, self.sender,
                                             request_id=act.request_id))
@@ -252,6 +271,9 @@ class FleetLink(CountsRefusals):
         p, k = DIAGNOSTICS_PREFIX, self._keys
         values = {f"{p}.queued": self.queued_count, f"{p}.dropped": self.dropped_count,
                   f"{p}.store_failures": self.store_failures,
+                  f"{p}.dropped_bad_events": self.dropped_bad_events,
+                  f"{p}.not_reoffered": self.not_reoffered,
+                  f"{p}.merge_errors": self.tick_errors,
                   f"{p}.privacy_acts_applied": self.acts_applied}
         values.update({f"{p}.refused.{r}": self.refusals[r] for r in REFUSAL_REASONS})
         values.update({"fleet.topic": self.topic, "fleet.site_id": k.site_id,
@@ -263,11 +285,18 @@ class FleetLink(CountsRefusals):
 
     # -- receiving
     def _on_delivery(self, msg: String) -> None:
-        """The subscription callback: decode, queue, return (storing is the timer's job)."""
-        item = self._decode_counted(msg.data)
-        if item is None:
-            return
-        kind, value = item
+        """The subscription callback: decode, queue, return (storing is the timer's job).
+        Whatever one document does, it is contained here: a refusal is counted by reason,
+        anything else under handler_error; the robot carries on either way."""
+        try:
+            item = self._decode_counted(msg.data)
+            if item is not None:
+                self._take(*item)
+        except Exception as exc:  # noqa: BLE001 - no peer document may stop the robot
+            if self._refused.failed(exc, self._log, self._node.get_logger().error):
+                self.store_failures += 1        # a forget or opt-out the store refused
+
+    def _take(self, kind: str, value) -> None:
         if kind in PRIVACY_KINDS:
             self.apply_act(value)
         elif kind not in ("outcome", "ask"):
@@ -285,7 +314,10 @@ class FleetLink(CountsRefusals):
     def _on_message(self, msg: String) -> None:
         """Apply one message now, after everything queued (as one delivery, stored at once)."""
         self._on_delivery(msg)
-        self.flush()
+        try:
+            self.flush()
+        except Exception as exc:  # noqa: BLE001 - contained like the timer's batches
+            self._merge_failed(exc)
 
     def flush(self) -> int:
         """Store everything queued now; returns the events that were new here."""
@@ -306,9 +338,19 @@ class FleetLink(CountsRefusals):
 
     def _on_tick(self) -> None:
         """The timer: store a full batch at once, a smaller one once it waited MERGE_WAIT_S."""
-        if self._queued and (len(self._queued) >= MERGE_BATCH
-                             or time.monotonic() - self._queued_since_s >= MERGE_WAIT_S):
-            self._store_queued()
+        try:
+            if self._queued and (len(self._queued) >= MERGE_BATCH
+                                 or time.monotonic() - self._queued_since_s >= MERGE_WAIT_S):
+                self._store_queued()
+        except Exception as exc:  # noqa: BLE001 - learning from a batch failed: say so, go on
+            self._merge_failed(exc)
+
+    def _merge_failed(self, exc: BaseException) -> None:
+        self.tick_errors += 1
+        text = self._log.due("tick_error", f"{self.topic}: storing or learning from fleet "
+                             f"events failed ({exception_text(exc)}); the next batch is tried")
+        if text is not None:
+            self._node.get_logger().error(text)
 
     def _store_queued(self) -> Optional[int]:
         """One batch from the queue into the store, then learn from it (the timer callback).
@@ -339,14 +381,17 @@ class FleetLink(CountsRefusals):
 
     def _store_batch(self, events: list[AnyEvent]):
         """(stored, not yet tried, error): a batch call is all or nothing; one call per event
-        stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not held long."""
+        stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not held long.
+
+        A write that fails because of the store (refused_by_store: disk full, read-only, I/O)
+        keeps the events for the next try.  One that fails because of its events (a value
+        the store cannot hold, which the decoder should have refused) must not hold the
+        queue forever: the culprits are found by halving and dropped, counted and logged,
+        and the rest of the batch is stored."""
         whole = self._append_many or (None if self._append is not None
                                       else lambda batch: append_batch(self._store, batch))
         if whole is not None:
-            try:
-                return list(whole(events)), [], None
-            except Exception as exc:
-                return [], events, exc
+            return self._isolated(whole, events)
         stored: list[AnyEvent] = []
         deadline_s = time.monotonic() + MERGE_TICK_BUDGET_S
         for i, e in enumerate(events):
@@ -358,8 +403,37 @@ class FleetLink(CountsRefusals):
                 if new:
                     stored.append(e)
             except Exception as exc:
-                return stored, events[i:], exc
+                if refused_by_store(exc):
+                    return stored, events[i:], exc
+                self._drop_bad(e, exc)
         return stored, [], None
+
+    def _isolated(self, whole, events: list[AnyEvent]):
+        """`whole(events)`; if it raises for its events, each half on its own, down to the
+        single events that fail alone (about 2 log2(n) writes for one culprit in n)."""
+        stored: list[AnyEvent] = []
+        parts = [events]
+        while parts:
+            part = parts.pop(0)
+            try:
+                stored += list(whole(part))
+            except Exception as exc:
+                if refused_by_store(exc):
+                    return stored, [e for p in [part] + parts for e in p], exc
+                if len(part) == 1:
+                    self._drop_bad(part[0], exc)
+                else:
+                    parts[:0] = [part[:len(part) // 2], part[len(part) // 2:]]
+        return stored, [], None
+
+    def _drop_bad(self, event: AnyEvent, exc: BaseException) -> None:
+        self.dropped_bad_events += 1
+        text = self._log.due("dropped_bad_event", f"{self.topic}: fleet event "
+                             f"{quoted(getattr(event, 'event_id', ''))} dropped: the store "
+                             f"cannot hold it ({exception_text(exc)}); the rest of its batch "
+                             "is stored")
+        if text is not None:
+            self._node.get_logger().error(text)
 
 
 # -- a small stand-alone peer (tests, trying the exchange by hand) ------------------------

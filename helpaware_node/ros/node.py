@@ -19,6 +19,7 @@ store_retry.py, diagnostics.py, markers.py, site_learning.py.
 """
 from __future__ import annotations
 
+import re
 import sys
 import time
 from typing import Optional
@@ -35,16 +36,19 @@ from .. import wire
 from ..core import PersonRecord, belief_at, params_hash
 from ..core.model import CoreInputError
 from ..session import HelpSession, Step, StoreStatus
+from ..session.state import MAX_GOAL_STATUSES
 from ..store import default_store_path, open_store
 from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
 from .markers import PersonMarkers
 from .params import NodeParameters, model_ranges
+from .refusal_log import LogThrottle, exception_text
 from .shm_files import StartupSweep
 from .site_learning import NodeLearning, proposal_path
 from .store_retry import HeldOutcomes
 
 NODE_NAME = "helpaware_decider"
+GOAL_STATES = {4: "succeeded", 5: "canceled", 6: "aborted"}   # action_msgs/GoalStatus codes
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 # inputs that must not be lost in a burst while a long callback holds the executor: a
 # KEEP_LAST reader overwrites the oldest unread message silently (depth is not part of QoS
@@ -79,6 +83,7 @@ class HelpAwareNode(LifecycleNode):
         self.last_decision: Optional[dict] = None
         self.markers = PersonMarkers()
         self.side_refusals = diag.SideRefusals()
+        self.log_lines = LogThrottle()      # per-document lines: by kind, bounded (diagnostics)
         self._active = False
         self._entities = []
         self._configure_error = ""
@@ -260,8 +265,20 @@ class HelpAwareNode(LifecycleNode):
         return params_hash(self.model_in_force, self.params.config)
 
     def _reject(self, topic: str, reason: str) -> None:
+        """Count and log a refused document: one line per topic and field at once, then at
+        most one a minute with the number since (every count is in /diagnostics)."""
         self.counters.reject(topic, reason)
-        self.get_logger().warning(f"rejected {topic}: {reason[:200]}", throttle_duration_sec=1.0)
+        field = re.sub(r"\[\d+\]", "[]", reason.partition(":")[0])[:60]
+        text = self.log_lines.due(f"rejected.{topic}.{field}",
+                                  f"rejected {topic}: {reason[:200]}")
+        if text is not None:
+            self.get_logger().warning(text)
+
+    def _failed(self, topic: str, exc: BaseException) -> None:
+        """Handling one document raised something that is not a refusal: contained, counted
+        apart (a defect to report) and as a rejection; the robot carries on."""
+        self.counters.failed[topic] += 1
+        self._reject(topic, f"document: could not be handled ({exception_text(exc)})")
 
     def _on_qos_incompatible(self, event) -> None:
         self.counters.qos_incompatible += 1
@@ -296,10 +313,12 @@ class HelpAwareNode(LifecycleNode):
         try:
             doc = wire.decode("people", msg.data)
             people = wire.people_from(doc)
+            self.session.people_seen(people, self.now_s(),
+                                     doc.get("frame_id", "") or "base_link")
         except (wire.WireError, CoreInputError) as exc:
             self._reject("people", str(exc))
-            return
-        self.session.people_seen(people, self.now_s(), doc.get("frame_id", "") or "base_link")
+        except Exception as exc:  # noqa: BLE001 - no document may stop the robot
+            self._failed("people", exc)
 
     def _on_task_status(self, msg: String) -> None:
         self.counters.received["task_status"] += 1
@@ -311,10 +330,11 @@ class HelpAwareNode(LifecycleNode):
                 step = self.session.need_opened(wire.help_need_from(doc, now), now)
             else:
                 step = self.session.need_closed(doc["request_id"], doc["state"])
+            self._apply(step)
         except (wire.WireError, CoreInputError) as exc:
             self._reject("task_status", str(exc))
-            return
-        self._apply(step)
+        except Exception as exc:  # noqa: BLE001 - no document may stop the robot
+            self._failed("task_status", exc)
 
     def _on_outcome(self, msg: String) -> None:
         self.counters.received["outcome"] += 1
@@ -322,23 +342,27 @@ class HelpAwareNode(LifecycleNode):
             doc = wire.decode("outcome", msg.data)
             step = self.session.outcome(doc["request_id"], doc["person_id"], doc["result"],
                                         self._read_clock())
+            self._apply(step)
         except (wire.WireError, CoreInputError) as exc:
             self._reject("outcome", str(exc))
-            return
-        self._apply(step)
+        except Exception as exc:  # noqa: BLE001 - no document may stop the robot
+            self._failed("outcome", exc)
 
     def _on_navigation_status(self, msg) -> None:
-        from action_msgs.msg import GoalStatus
+        """A status array: its last MAX_GOAL_STATUSES entries, at most one new need (from its
+        newest aborted goal), so any array takes bounded time (session.navigation_status)."""
         self.counters.received["navigation_status"] += 1
         try:
-            for st in msg.status_list:
-                goal = bytes(st.goal_info.goal_id.uuid).hex()
-                if st.status == GoalStatus.STATUS_ABORTED:
-                    self._apply(self.session.goal_aborted(goal, self._read_clock()))
-                elif st.status in (GoalStatus.STATUS_SUCCEEDED, GoalStatus.STATUS_CANCELED):
-                    self._apply(self.session.goal_finished(goal))
-        except (CoreInputError, ValueError) as exc:
+            entries = msg.status_list
+            self.counters.statuses_skipped += max(len(entries) - MAX_GOAL_STATUSES, 0)
+            goals = [(bytes(st.goal_info.goal_id.uuid).hex(), GOAL_STATES.get(st.status, ""),
+                      st.goal_info.stamp.sec + st.goal_info.stamp.nanosec * 1e-9)
+                     for st in entries[-MAX_GOAL_STATUSES:]]
+            self._apply(self.session.navigation_status(goals, self._read_clock()))
+        except CoreInputError as exc:
             self._reject("navigation_status", str(exc))
+        except Exception as exc:  # noqa: BLE001 - no message may stop the robot
+            self._failed("navigation_status", exc)
 
     def _on_saved_late(self, event) -> None:   # a held outcome stored at last: learn, share
         self.session.outcome_saved(event)
@@ -360,18 +384,32 @@ class HelpAwareNode(LifecycleNode):
             self.last_decision = doc
         for event in step.share:
             self.fleet.publish(event)     # stored here first: shared only once durable
-        for note in step.notes:           # only store failures are throttled (one call site)
-            emit = getattr(self.get_logger(), note.level)
-            emit(note.text, **({"throttle_duration_sec": note.throttle_s} if note.throttle_s
-                               else {}))
+        for note in step.notes:           # by kind, bounded: a document may cause a note
+            text = self.log_lines.due(note.kind or note.level, note.text,
+                                      note.throttle_s or None)
+            if text is None:
+                continue
+            if note.level == "error":     # one call site per severity (rclpy's rule)
+                self.get_logger().error(text)
+            elif note.level == "warning":
+                self.get_logger().warning(text)
+            else:
+                self.get_logger().info(text)
 
     def _housekeeping(self) -> None:
-        self.held.retry()
-        now = self._read_clock()
-        learned = self.learning.poll(now)      # a refit finished in its worker: in force now
-        if learned is not None:
-            self._use_model(learned)
-        self._apply(self.session.tick(now))
+        try:
+            self.held.retry()
+            now = self._read_clock()
+            learned = self.learning.poll(now)      # a refit finished in its worker: in force now
+            if learned is not None:
+                self._use_model(learned)
+            self._apply(self.session.tick(now))
+        except Exception as exc:  # noqa: BLE001 - state an input left must not stop the timer
+            self.counters.housekeeping_errors += 1
+            text = self.log_lines.due("housekeeping_error", f"housekeeping failed "
+                                      f"({exception_text(exc)}); tried again next period")
+            if text is not None:
+                self.get_logger().error(text)
 
     def _publish_status(self) -> None:
         if not self._active:

@@ -16,6 +16,7 @@ from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, MAX_REASK_INTE
                           CoreInputError, DecisionConfig, SiteModel)
 from ..fit.online import MODES as LEARNING_MODES
 from ..fit.online import LearningSettings
+from ..store.ids import check_robot_id
 
 MODEL_DEFAULTS = SiteModel()
 LEARNING_DEFAULTS = LearningSettings()
@@ -233,8 +234,8 @@ def build(values: dict[str, Any], pairs: bool = True
     if any(not a for a in config.protected_activities):
         raise CoreInputError("protected_activities: labels must be non-empty")
     node_values = {f.name: values[f.name] for f in dataclasses.fields(NodeSettings)}
-    if "/" in str(node_values["robot_id"]):   # event ids are "<robot_id>/<sequence>"
-        raise CoreInputError(f"robot_id: {node_values['robot_id']!r} must not contain '/'")
+    if node_values["robot_id"]:     # event ids are "<robot_id>/<sequence>" (store/ids.py)
+        check_robot_id(node_values["robot_id"])
     for name in ("fleet_topic", "privacy_topic"):
         if not node_values[name]:
             raise CoreInputError(f"{name}: must not be empty (the default is "

@@ -25,12 +25,13 @@ from ..fleet_documents import (MALFORMED, PRIVACY_KINDS, PrivacyAct, check_fresh
                                parse_unsigned_request)
 from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
                        Refused)
-from .refusal_log import CountsRefusals, Refusals
+from .refusal_log import HANDLER_ERROR, CountsRefusals, LogThrottle, Refusals
 
 PRIVACY_TOPIC = "/helpaware/privacy_request"   # site-wide, like the fleet topic
 PRIVACY_QOS = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE,
                          durability=DurabilityPolicy.VOLATILE)
-PRIVACY_REFUSALS = (UNSIGNED, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, BAD_SIGNATURE, MALFORMED)
+PRIVACY_REFUSALS = (UNSIGNED, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, BAD_SIGNATURE, MALFORMED,
+                    HANDLER_ERROR)
 ALLOW_UNSIGNED_PARAM = "allow_unsigned_privacy_requests"
 
 
@@ -50,7 +51,9 @@ class PrivacyRequests(CountsRefusals):
         self.allow_unsigned = bool(allow_unsigned)
         self.applied_count = 0
         self.duplicate_count = 0      # a request applied here already (a replay, an echo)
+        self.store_failures = 0       # a request the store refused (disk full, read-only)
         self._refused = Refusals(node.get_logger().warning, topic)   # by reason, logged once
+        self._log = LogThrottle()     # applied requests: lines by kind, bounded
         self._sub = node.create_subscription(String, topic, self._on_message, PRIVACY_QOS)
         if self.allow_unsigned:
             node.get_logger().warning(f"{topic}: {ALLOW_UNSIGNED_PARAM} is true: anyone on the "
@@ -98,19 +101,32 @@ class PrivacyRequests(CountsRefusals):
         values = {f"privacy_request.refused.{r}": self.refusals[r] for r in PRIVACY_REFUSALS}
         values.update({"privacy_request.applied": self.applied_count,
                        "privacy_request.duplicates": self.duplicate_count,
+                       "privacy_request.store_failures": self.store_failures,
+                       "privacy_request.lines_held_back": self._log.held_back,
                        "privacy_request.topic": self.topic,
                        f"privacy_request.{ALLOW_UNSIGNED_PARAM}": self.allow_unsigned})
         return values
 
     def _on_message(self, msg: String) -> None:
+        """One request: applied, or refused and counted by reason; whatever it does is
+        contained here. Applied requests are logged like refusals (the first of each kind at
+        once, then at most one line a minute with the number since; counts in /diagnostics),
+        so a flood of valid requests is no flood of lines."""
         n = self.duplicate_count
         try:
             action, key = self.apply(msg.data)
         except CoreInputError as exc:
             self._refused.add(exc)
             return
+        except Exception as exc:  # noqa: BLE001 - no request may stop the robot
+            if self._refused.failed(exc, self._log, self._node.get_logger().error):
+                self.store_failures += 1
+            return
         done = "already applied" if self.duplicate_count > n else "applied"
-        self._node.get_logger().info(f"{self.topic}: {action} {done} to {key[:12]}...")
+        text = self._log.due(f"{action} {done}", f"{self.topic}: {action} {done} to "
+                             f"{key[:12]}...")
+        if text is not None:
+            self._node.get_logger().info(text)
 
 
 # -- the operator console's side (`helpaware privacy`) ---------------------------------------

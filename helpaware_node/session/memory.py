@@ -103,6 +103,11 @@ class PersonMemory:
         self.last_seen_s.pop(key, None)
         self._stale.discard(key)
 
+    def drop(self, key: str) -> None:
+        """Let go of a record that may be out of date: it loads whole from the store on its
+        next use."""
+        self.records.pop(key, None)
+
     def move_asks_forward(self, by_s: float) -> None:
         for key, rec in self.records.items():
             if rec.ask_times_s:

@@ -72,7 +72,8 @@ class StoreStatus:
         self.error = f"{what}: {exc}"[:200]
         return Note("error", f"{self.label} refused {what} ({exc}); belief unchanged, "
                     f"outcomes kept and retried, nobody asked while one waits (check free "
-                    f"disk space and that the file is writable)", throttle_s=5.0)
+                    f"disk space and that the file is writable)", throttle_s=5.0,
+                    kind="store_refused")
 
     def wrote(self, store) -> None:
         """A write went through: healthy again unless the store itself says otherwise (a

@@ -20,20 +20,30 @@ Rules:
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Iterable, Optional
+from typing import Iterable, Optional, Sequence
 
 from ..core import (DecisionConfig, HelpNeed, PersonRecord, Result, SiteModel,
                     candidate_from_record, conclude, decide, keep_recent_asks)
 from ..core.model import CoreInputError
 from ..core.policy import HOUR_S, Chooser, choose_lookahead
+from ..core.preview import quoted
 from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
+from ..store.ids import refused_by_store
+from ..wire import MAX_DOCUMENT_BYTES, candidate_bytes_bound
 from .memory import PersonMemory
 from .ports import DirectWrites, OutcomeWriter, SessionStore, StoreStatus
-from .state import (IN_VIEW_EXTRA_S, MAX_GOALS_REMEMBERED, STORE_UNAVAILABLE, DecisionOut,
+from .state import (DECISION_OTHER_BYTES, IN_VIEW_EXTRA_S, MAX_GOAL_STATUSES,
+                    MAX_GOALS_REMEMBERED, MAX_PEOPLE_IN_VIEW, STORE_UNAVAILABLE, DecisionOut,
                     OpenNeed, PendingAsk, Seen, SessionInputError, SessionRules, Step)
 
 CLOCK_JUMP_TOLERANCE_S = 5.0  # system time moving this much more than the steady clock
 NAV_FAILURE_KIND = "navigation_failure"
+
+
+def nav_request_id(goal_id: str) -> str:
+    """The request id of the need a goal's abort opens: the whole goal id (a UUID as 32 hex
+    digits from the node), so two goals never share a need."""
+    return f"nav-{goal_id[:64]}"
 
 
 def _never(ev) -> None:
@@ -66,6 +76,9 @@ class HelpSession:
         self.clock_jumps_forward = 0
         self._clock_mark: Optional[tuple[float, float]] = None   # (node time, steady time)
         self._goals: dict[str, str] = {}           # navigation goal id -> "aborted" / "done"
+        self._nav_need: Optional[str] = None       # request id of the navigation-failure need
+        self._newest_abort_s: Optional[float] = None   # stamp of the newest abort handled
+        self.people_dropped = 0                    # people in view let go past the bound
 
     def _stored_robot_asks(self, now_s: Optional[float]) -> list[float]:
         """The robot's own asks of the last hour (all of them before a clock runs), and the
@@ -80,13 +93,35 @@ class HelpSession:
     def people_seen(self, people: Iterable, now_s: float, frame_id: str = "",
                     complete_view: bool = False) -> None:
         """People perceived at `now_s`. `complete_view`: everyone else has left (the
-        simulator's view at a need); otherwise they stay until their observation is stale."""
+        simulator's view at a need); otherwise they stay until their observation is stale.
+        However many documents bring however many people, at most MAX_PEOPLE_IN_VIEW stay
+        (`_bound_seen`), so every decision has at most that many candidates."""
         if complete_view:
             self.seen.clear()
         for p in people:
             key = self.store.key_for(p.person_id)
             self.seen[p.person_id] = Seen(p, key, now_s, frame_id)
             self.memory.saw(key, now_s)
+        if len(self.seen) > MAX_PEOPLE_IN_VIEW:
+            self._bound_seen(now_s)
+
+    def _bound_seen(self, now_s: float) -> None:
+        """Past MAX_PEOPLE_IN_VIEW (wire.MAX_CANDIDATES: what one decision document holds),
+        those out of view go first (older than max_observation_age_s + IN_VIEW_EXTRA_S, as at
+        every tick), then those stale for a decision (older than max_observation_age_s), then
+        the farthest; the rest keep their order."""
+        fresh_s, listed_s = self.config.max_observation_age_s, \
+            self.config.max_observation_age_s + IN_VIEW_EXTRA_S
+        for pid in [p for p, s in self.seen.items() if now_s - s.observed_at_s > listed_s]:
+            del self.seen[pid]
+        if len(self.seen) <= MAX_PEOPLE_IN_VIEW:
+            return
+        ranked = sorted(self.seen.items(), key=lambda item: (
+            now_s - item[1].observed_at_s > fresh_s, item[1].person.distance_m,
+            -item[1].observed_at_s))
+        keep = {pid for pid, _ in ranked[:MAX_PEOPLE_IN_VIEW]}
+        self.seen = {pid: s for pid, s in self.seen.items() if pid in keep}
+        self.people_dropped += len(ranked) - len(keep)
 
     def need_opened(self, need: HelpNeed, now_s: float) -> Step:
         if need.request_id in self.needs:
@@ -108,25 +143,59 @@ class HelpSession:
     def need_closed(self, request_id: str, how: str = "resolved") -> Step:
         step = Step()
         if self.needs.pop(request_id, None) is None:
-            step.note("info", f"{how} for unknown or finished request {request_id!r}")
+            step.note("info", "unknown_request",
+                      f"{how} for unknown or finished request {quoted(request_id)}")
         return step
 
-    def goal_aborted(self, goal_id: str, now_s: float) -> Step:
-        """A navigation goal aborted: a help need of kind navigation_failure, once per goal."""
+    def navigation_status(self, goals: Sequence[tuple[str, str, float]], now_s: float) -> Step:
+        """One status array of a navigation action: (goal id, status, accepted-at stamp, s)
+        with status "aborted", "succeeded", "canceled" or anything else (ignored).
+
+        Bounded whatever the array holds: only its last MAX_GOAL_STATUSES entries are looked
+        at, and only its newest aborted goal (by stamp, then position) may open a need, so
+        one array gives at most one decision."""
         step = Step()
-        if self._goals.get(goal_id) != "aborted":
-            self._goals[goal_id] = "aborted"
-            rid = f"nav-{goal_id[:12]}"
-            if rid not in self.needs:
-                step = self.need_opened(HelpNeed(rid, NAV_FAILURE_KIND, now_s), now_s)
+        newest = None
+        for i, (goal_id, status, stamp_s) in enumerate(goals[-MAX_GOAL_STATUSES:]):
+            if status == "aborted":
+                if newest is None or (stamp_s, i) >= newest[1:]:
+                    newest = (goal_id, stamp_s, i)
+            elif status in ("succeeded", "canceled"):
+                step.extend(self.goal_finished(goal_id))
+        if newest is not None:
+            step.extend(self.goal_aborted(newest[0], now_s, newest[1]))
+        return step
+
+    def goal_aborted(self, goal_id: str, now_s: float, stamp_s: Optional[float] = None) -> Step:
+        """A navigation goal aborted: a help need of kind navigation_failure, once per goal,
+        and at most one open at a time. A newer abort replaces the open one unless an ask for
+        it is out (the robot is asking for help with its navigation already; the outcome
+        decides again). An abort stamped before one already handled is history."""
+        step = Step()
+        if self._goals.get(goal_id) == "aborted":
+            return step
+        self._goals[goal_id] = "aborted"
         self._bound_goals()
+        if stamp_s is not None:
+            if self._newest_abort_s is not None and stamp_s < self._newest_abort_s:
+                return step
+            self._newest_abort_s = stamp_s
+        old = self._nav_need
+        if old is not None and old in self.needs:
+            if old in self.pending:
+                return step
+            del self.needs[old]
+        rid = nav_request_id(goal_id)
+        self._nav_need = rid
+        if rid not in self.needs:
+            step = self.need_opened(HelpNeed(rid, NAV_FAILURE_KIND, now_s), now_s)
         return step
 
     def goal_finished(self, goal_id: str) -> Step:
         """Succeeded or cancelled: the need an abort of this goal opened is resolved."""
         step = Step()
         if self._goals.get(goal_id) == "aborted":
-            step = self.need_closed(f"nav-{goal_id[:12]}", "resolved")
+            step = self.need_closed(nav_request_id(goal_id), "resolved")
         self._goals[goal_id] = "done"
         self._bound_goals()
         return step
@@ -152,7 +221,8 @@ class HelpSession:
         if result is Result.COULD_NOT_ASK:
             self.could_not_ask += 1
             self.memory.withdraw_ask(ask.key, ask.asked_at_s)
-            step.note("info", f"could not ask for {request_id!r}: no belief change")
+            step.note("info", "could_not_ask",
+                      f"could not ask for {request_id!r}: no belief change")
         else:
             event = StoredEvent(event_id=self.store.next_event_id(), person_key=ask.key,
                                 time_s=ask.asked_at_s, result=result, busyness=ask.busyness,
@@ -186,16 +256,22 @@ class HelpSession:
         self.memory.refresh_belief(event.person_key)
 
     def peer_events(self, events: list[AnyEvent]) -> list[AnyEvent]:
-        """Peers' outcomes and asks: stored as one batch, then learned from. A store that
-        refuses raises, so the caller keeps the batch and tries again."""
+        """Peers' outcomes and asks: stored as one batch, then learned from. A write that
+        fails raises, so the caller keeps the batch and tries again (the store refusing
+        writes), or finds the events it cannot hold and drops them (store.ids
+        refused_by_store tells the two apart; only the first marks the store failing)."""
         try:
             stored = append_batch(self.store, events)
         except Exception as exc:
-            self.status.failed("append (fleet events)", exc)
+            if refused_by_store(exc):
+                self.status.failed("append (fleet events)", exc)
             raise
         self.status.wrote(self.store)
         for key in {e.person_key for e in stored if isinstance(e, StoredEvent)}:
-            self.memory.refresh_belief(key)
+            try:
+                self.memory.refresh_belief(key)
+            except Exception:  # noqa: BLE001 - stored; the record reloads when next needed
+                self.memory.drop(key)
         self.memory.note_peer_asks(e for e in stored if isinstance(e, AskEvent))
         return stored
 
@@ -224,8 +300,8 @@ class HelpSession:
         if jump <= CLOCK_JUMP_TOLERANCE_S:
             return step
         self.clock_jumps_forward += 1
-        step.note("warning", f"system time jumped {jump:.0f} s ahead of the steady clock: "
-                  f"remembered asks moved with it, so the limits count real time")
+        step.note("warning", "clock_jump", f"system time jumped {jump:.0f} s ahead of the "
+                  "steady clock: remembered asks moved with it, so the limits count real time")
         self.robot_ask_times_s = [t + jump for t in self.robot_ask_times_s]
         self.memory.move_asks_forward(jump)
         try:
@@ -250,7 +326,8 @@ class HelpSession:
             if now_s >= ask.expires_at_s:
                 del self.pending[rid]
                 self.expired_asks += 1
-                step.note("info", f"ask for {rid!r} expired without outcome: no belief change")
+                step.note("info", "ask_expired",
+                          f"ask for {rid!r} expired without outcome: no belief change")
                 state = self.needs.get(rid)
                 if state is not None:
                     self._decide(state, now_s, step)
@@ -302,6 +379,11 @@ class HelpSession:
                 pid, rec, now_s, model, s.person.distance_m, s.observed_at_s,
                 busyness=s.person.busyness, activity=s.person.activity, opted_out=opted_out))
             keys.append(s.key)
+        kept = self._within_one_document(cands)
+        if kept is not None:
+            cands, keys = [cands[i] for i in kept], [keys[i] for i in kept]
+            kept_keys = set(keys)
+            read = [k for k in read if k in kept_keys]
         why = ("asking_disabled" if not self.rules.asking_enabled
                else STORE_UNAVAILABLE if store_failed or self.writer.waiting
                else "need_ask_limit" if state.asks >= self.rules.max_asks_per_need else None)
@@ -338,6 +420,30 @@ class HelpSession:
             step.share.append(ask)
         step.decisions.append(DecisionOut(decision, tuple(robot_asks), ask))
 
+    def _within_one_document(self, cands: list) -> Optional[list[int]]:
+        """None when every candidate fits in one decision document; else the indices (in
+        order) of the nearest that do: at most wire.MAX_CANDIDATES, and within the bytes
+        MAX_DOCUMENT_BYTES leaves for candidates (wire.candidate_bytes_bound: long unicode
+        ids and many remembered asks make a candidate large), so every decision published is
+        valid by its own schema and can be replayed."""
+        budget = MAX_DOCUMENT_BYTES - DECISION_OTHER_BYTES
+        if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(
+                candidate_bytes_bound(c, quick=True) for c in cands) <= budget:
+            return None                      # the usual case: lengths alone show it fits
+        sizes = [candidate_bytes_bound(c) for c in cands]
+        if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(sizes) <= budget:
+            return None
+        nearest = sorted(range(len(cands)), key=lambda i: (cands[i].distance_m,
+                                                            -cands[i].observed_at_s, i))
+        kept, used = [], 0
+        for i in nearest[:MAX_PEOPLE_IN_VIEW]:
+            if used + sizes[i] > budget:
+                break
+            kept.append(i)
+            used += sizes[i]
+        self.people_dropped += len(cands) - len(kept)
+        return sorted(kept)
+
     def _store_ask(self, key: str, need: HelpNeed, now_s: float,
                    step: Step) -> Optional[AskEvent]:
         """Write the ask durably before anyone hears of it; None when the store did not
@@ -350,8 +456,8 @@ class HelpSession:
             return None
         self.status.wrote(self.store)
         if not stored:
-            step.note("warning", f"the store did not take the ask for {need.request_id!r} "
-                      f"(opted out meanwhile?): nobody asked")
+            step.note("warning", "ask_not_taken", f"the store did not take the ask for "
+                      f"{need.request_id!r} (opted out meanwhile?): nobody asked")
             return None
         return ask
 

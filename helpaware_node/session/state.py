@@ -8,11 +8,17 @@ from typing import Any, Optional
 from ..core import Decision, HelpNeed
 from ..core.model import CoreInputError
 from ..store.base import AnyEvent, AskEvent
+from ..wire import MAX_CANDIDATES
 
 IN_VIEW_EXTRA_S = 5.0          # people stay listed a little past the staleness limit
 MAX_OPEN_NEEDS = 1000          # a behaviour layer that never resolves: the oldest need goes
 MAX_PEOPLE_IN_MEMORY = 20_000  # person records kept in memory; beliefs and asks stay in the store
 MAX_GOALS_REMEMBERED = 1000    # navigation goals whose abort was already handled
+MAX_GOAL_STATUSES = 1000       # entries of one navigation status array looked at (its last;
+                               # a server lists a finished goal only for its result timeout)
+MAX_PEOPLE_IN_VIEW = MAX_CANDIDATES   # people in view at once: a decision's candidates
+DECISION_OTHER_BYTES = 64_000  # of a decision document's MAX_DOCUMENT_BYTES, kept for all but
+                               # its candidates (need, the robot's 1 000 ask times, parameters)
 STORE_UNAVAILABLE = "store_unavailable"   # decision policy while the store refuses writes
 
 
@@ -66,11 +72,14 @@ class PendingAsk:
 
 @dataclass(frozen=True)
 class Note:
-    """A line for the driver's log. `throttle_s` > 0: a repeated condition (store failing)."""
+    """A line for the driver's log. `kind` names what it reports (the node counts notes by
+    kind and logs each kind a bounded number of times: a document may cause a note, and
+    documents can come at any rate); `throttle_s` > 0: the period of a repeated condition."""
 
     level: str                    # "info", "warning" or "error"
     text: str
     throttle_s: float = 0.0
+    kind: str = ""                # e.g. unknown_request, ask_expired, store_refused
 
 
 @dataclass(frozen=True)
@@ -92,5 +101,11 @@ class Step:
     share: list[AnyEvent] = field(default_factory=list)
     notes: list[Note] = field(default_factory=list)
 
-    def note(self, level: str, text: str, throttle_s: float = 0.0) -> None:
-        self.notes.append(Note(level, text, throttle_s))
+    def note(self, level: str, kind: str, text: str, throttle_s: float = 0.0) -> None:
+        self.notes.append(Note(level, text, throttle_s, kind))
+
+    def extend(self, other: "Step") -> None:
+        """Another step's output after this one's."""
+        self.decisions += other.decisions
+        self.share += other.share
+        self.notes += other.notes

@@ -17,6 +17,7 @@ from typing import Iterable, Optional, Protocol, Union
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError
+from .ids import check_ask, check_event, check_robot_id
 from .keys import SiteKeys
 
 
@@ -153,7 +154,7 @@ class MemoryStore:
             site_key = SiteKeys.single(site_key if site_key is not None else os.urandom(32))
         self.site_keys = site_key          # hashing key, and the fleet signing roots
         self._site_key = site_key.person_id_key
-        self.robot_id = robot_id
+        self.robot_id = check_robot_id(robot_id)
         self.health = StoreHealth("OK", "in memory (nothing kept after exit)")
         self._next_seq = 1
         self._events: dict[str, StoredEvent] = {}
@@ -172,6 +173,7 @@ class MemoryStore:
         return f"{self.robot_id}/{seq}"
 
     def append(self, event: StoredEvent) -> bool:
+        check_event(event)          # the rules of every store (store/ids.py)
         if event.event_id in self._events or event.person_key in self._opted_out:
             return False
         self._events[event.event_id] = event
@@ -228,6 +230,9 @@ class MemoryStore:
 
     # -- asks
     def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]:
+        asks = list(asks)
+        for ask in asks:            # all or nothing, like SqliteStore
+            check_ask(ask)
         stored = []
         for ask in asks:
             if ask.event_id in self._asks or ask.person_key in self._opted_out:

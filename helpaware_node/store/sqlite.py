@@ -21,7 +21,6 @@ import datetime
 import hashlib
 import json
 import os
-import re
 import sqlite3
 import threading
 import time
@@ -30,16 +29,15 @@ from pathlib import Path
 from typing import Iterable, Iterator
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
-from ..core.model import MAX_ASKS_CAP, CoreInputError, check_range, from_plain, to_plain
+from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
 from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
+from .ids import PERSON_KEY_RE, check_ask, check_event, check_robot_id  # noqa: F401 (re-exported)
 from .keys import SiteKeyError, SiteKeys, key_fingerprint
 from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
 
 DAY_S = 86400.0
-PERSON_KEY_RE = re.compile(r"^[0-9a-f]{64}$")
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
 ASK_COLUMNS = "event_id, robot_id, person_key, time_s, request_kind, request_id"
-MAX_ASK_TEXT_CHARS = 128       # request kind and request id of an ask (wire's id limit)
 SQLITE_HEADER = b"SQLite format 3\x00"
 
 
@@ -50,33 +48,6 @@ class StoreCorruptError(RuntimeError):
 def model_hash(model: SiteModel) -> str:
     text = json.dumps(to_plain(model), sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(text.encode()).hexdigest()[:16]
-
-
-def check_event(event: StoredEvent) -> None:
-    """Refuse anything that is not a hashed key or a well-formed event (names the field)."""
-    if not PERSON_KEY_RE.match(event.person_key or ""):
-        raise CoreInputError("person_key: expected 64 lowercase hex digits (HMAC-SHA256 of the "
-                             "perceived id); raw ids are never stored")
-    robot, sep, seq = event.event_id.rpartition("/")
-    if not sep or not robot or not seq:
-        raise CoreInputError(f"event_id: {event.event_id!r} is not '<robot_id>/<sequence>'")
-    event.to_outcome()          # validates time, busyness, ask load and result ranges
-
-
-def check_ask(ask: AskEvent) -> None:
-    """Refuse an ask that is not keyed like an event (names the field and the allowed range)."""
-    if not PERSON_KEY_RE.match(ask.person_key or ""):
-        raise CoreInputError("person_key: expected 64 lowercase hex digits (HMAC-SHA256 of the "
-                             "perceived id); raw ids are never stored")
-    robot, sep, seq = ask.event_id.rpartition("/") if isinstance(ask.event_id, str) else ("", "", "")
-    if not sep or not robot or not seq:
-        raise CoreInputError(f"event_id: {ask.event_id!r} is not '<robot_id>/<sequence>'")
-    check_range("time_s", ask.time_s, -1e15, 1e15)
-    for name in ("request_kind", "request_id"):
-        value = getattr(ask, name)
-        if not isinstance(value, str) or len(value) > MAX_ASK_TEXT_CHARS:
-            raise CoreInputError(f"{name}: expected text of at most {MAX_ASK_TEXT_CHARS} "
-                                 f"characters")
 
 
 def row_to_ask(row) -> AskEvent:
@@ -139,8 +110,7 @@ class SqliteStore:
     def __init__(self, path: str | os.PathLike, robot_id: str, site_key: bytes | SiteKeys,
                  model: SiteModel | None = None, retention_days: float = 0.0,
                  integrity_check: bool = True) -> None:
-        if not robot_id or "/" in robot_id:
-            raise CoreInputError(f"robot_id: {robot_id!r} must be non-empty and without '/'")
+        check_robot_id(robot_id)
         self.path = Path(path)
         self.robot_id = robot_id
         self._given_model = model
@@ -464,18 +434,22 @@ class SqliteStore:
                                 (key,)).fetchone()
                 n = row[0] if row else 0       # compacted events count as removed too
                 n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
-                c.execute("DELETE FROM asks WHERE person_key = ?", (key,))
-                c.execute("DELETE FROM snapshot WHERE person_key = ?", (key,))
-                c.execute("DELETE FROM opt_out WHERE person_key = ?", (key,))
-                # interior index pages may still hold the key as a divider: rebuild them
-                # (secure_delete zeroes the freed pages)
-                for table in ("events_by_person", "asks_by_person", "snapshot", "opt_out"):
-                    c.execute(f"REINDEX {table}")
+                rows = n + sum(c.execute(f"DELETE FROM {table} WHERE person_key = ?",
+                                         (key,)).rowcount
+                               for table in ("asks", "snapshot", "opt_out"))
+                if rows:
+                    # interior index pages may still hold the key as a divider: rebuild them
+                    # (secure_delete zeroes the freed pages). A key never stored left no
+                    # trace, so a peer's forget of a stranger costs no rebuild (seconds on a
+                    # large store, with the executor waiting)
+                    for table in ("events_by_person", "asks_by_person", "snapshot", "opt_out"):
+                        c.execute(f"REINDEX {table}")
                 c.execute("COMMIT")
             except BaseException:
                 c.execute("ROLLBACK")
                 raise
-            self.checkpoint()
+            if rows:
+                self.checkpoint()
             return n
 
     def checkpoint(self) -> None:

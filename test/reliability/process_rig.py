@@ -228,8 +228,11 @@ class Drive:
             self._pubs[rid][0].publish(String(data=wire.people_document(robot.people, now)))
 
     def _on_fleet(self, topic: str, msg: String) -> None:
-        doc = json.loads(msg.data)
-        if doc.get("kind") != "outcome":
+        try:
+            doc = json.loads(msg.data)
+        except (ValueError, RecursionError):   # a hostile peer's document (hostile tests)
+            return
+        if not isinstance(doc, dict) or doc.get("kind") != "outcome":
             return
         eid = doc["event_id"]
         self.heard[topic].add(eid)

@@ -38,7 +38,7 @@ from helpaware_node.fleet_documents import (PRIVACY_KINDS, PrivacyAct, check_fre
                                             parse_unsigned_request)
 from helpaware_node.ros import fleet as fleet_mod
 from helpaware_node.core import Result
-from helpaware_node.store import SiteKeys, StoredEvent
+from helpaware_node.store import AskEvent, SiteKeys, StoredEvent
 
 from document_paths import field_paths, replaced
 from node_harness import Rig
@@ -80,6 +80,7 @@ SEEDS = {
                  "person_id": "nurse-a", "result": "declined", "stamp_s": 100.0}],
     FLEET_TOPIC: [signed_seed("outcome", StoredEvent("peer/1", UNKNOWN_KEY, 100.0,
                                                      Result.DECLINED, 0.2, 0.0, "door")),
+                  signed_seed("ask", AskEvent("peer/2", UNKNOWN_KEY, 100.0, "door", "p-need")),
                   signed_seed("forget", PrivacyAct.new("forget", UNKNOWN_KEY, "peer")),
                   signed_seed("opt_out", PrivacyAct.new("opt_out", UNKNOWN_KEY, "peer"))],
     PRIVACY_TOPIC: [{"action": "opt_out", "person_id": "visitor-p"},
@@ -354,13 +355,22 @@ def decodes(topic, text, node) -> bool:
     return True
 
 
+def handler_errors(node) -> int:
+    """Documents whose handling raised something that is not a refusal (contained)."""
+    return (sum(node.counters.failed.values()) + node.fleet.refusals["handler_error"]
+            + node.privacy.refusals["handler_error"] + node.fleet.tick_errors
+            + node.fleet.dropped_bad_events)
+
+
 def feed(rig, topic, text):
     """One document at the handler; returns (rejected?, reason). Asserts the invariants."""
     node = rig.node
     before_state = known_state(rig)
     n0, _ = rejections(node, topic)
+    errors0 = handler_errors(node)
     handler(node, topic)(String(data=text))          # must raise nothing
     n1, reason = rejections(node, topic)
+    assert handler_errors(node) == errors0, (topic, reason, text[:200])
     rejected = n1 == n0 + 1
     assert n1 - n0 in (0, 1), (topic, text[:200])
     st_ = STATS[topic]
