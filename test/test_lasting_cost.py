@@ -135,3 +135,42 @@ def test_the_score_subtracts_the_lasting_cost_with_the_rate_of_n():
                                               + ev.future_requests[i] * ev.voi_s[i]
                                               - ev.lasting_cost_s[i], rel=1e-12, abs=1e-12)
     assert ev.lasting_cost_s[0] > ev.lasting_cost_s[1] > 0.0   # the regular comes back more
+
+
+def test_replay_from_the_document_reproduces_the_lasting_cost_bit_for_bit():
+    """The decision document (JSON text) carries every input of the lasting cost: replaying
+    it gives the same rationale rows, lasting_cost_s included, to the last bit."""
+    from helpaware_node import wire
+    from helpaware_node.core import decide
+    model = SiteModel(ask_memory_half_life_s=86400.0, k_load=1.1)
+    config = DecisionConfig(lookahead_horizon_s=40000.0)
+    now = 3e5
+    need = HelpNeed("r9", "door", now, continue_cost_s=140.0, help_time_s=20.0)
+    cands = [Candidate("a", 2.0, now, Belief(5.0, 2.0), 0.3, "", (now - 5e4, now - 2e4), 9,
+                       now - 4 * 86400.0),
+             Candidate("b", 1.0, now, Belief(1.5, 1.5), 0.2, "", (), 2, now - 7200.0)]
+    d = decide(need, cands, now, [now - 100.0], model, config)
+    text = wire.decision_text(d, [now - 100.0], model, config, robot_id="r")
+    doc = wire.decode("decision", text)
+    again = decide(*wire.replay_inputs(doc), *wire.recorded_params(doc))
+    assert [r["lasting_cost_s"] for r in doc["rationale"]] == \
+        [r["lasting_cost_s"] for r in again.rationale()]
+    assert doc["rationale"] == again.rationale()
+    assert max(r["lasting_cost_s"] for r in doc["rationale"]) > 0.0
+
+
+def test_an_older_document_without_the_field_still_validates():
+    from helpaware_node import wire
+    model, config = SiteModel(), DecisionConfig()
+    now = 1e4
+    d = decide_one(model, config, now)
+    doc = wire.decision_to_document(d, [], model, config)
+    for row in doc["rationale"]:
+        del row["lasting_cost_s"]
+    wire.validate("decision", doc)
+
+
+def decide_one(model, config, now):
+    from helpaware_node.core import decide
+    need = HelpNeed("r1", "door", now)
+    return decide(need, [Candidate("a", 2.0, now, Belief(2.0, 2.0), 0.1)], now, [], model, config)

@@ -6,7 +6,9 @@ For each eligible candidate i (DESIGN.md section 4):
   N_i   = discounted number of future requests where i is a candidate
   LC_i  = what this ask's ask load takes from i's later requests (core/lasting.py)
   Q_i   = A_i + N_i VOI_i - LC_i
-Ask the best candidate when its Q is above zero; otherwise (ties included) continue.
+A + N VOI is the online knowledge-gradient score (Ryzhov, Powell and Frazier, Operations
+Research 2012, from memory). Ask the best candidate when its Q is above zero; otherwise (ties
+included) continue.
 Exclusions are never traded for value; each carries a reason code.
 """
 from __future__ import annotations

@@ -16,6 +16,7 @@ robot knew the site.
 """
 from __future__ import annotations
 
+import dataclasses
 import math
 from typing import Sequence
 
@@ -122,3 +123,29 @@ def report(scenarios: Sequence[Scenario], config: DecisionConfig, seeds: int = 3
                   f" over {config.prior_rate_window_s / 3600.0:.3g} h)",
                   check_table(result)]
     return "\n".join(lines)
+
+
+def main(argv=None) -> int:
+    """python -m helpaware_node.sim.encounters SCENARIO.yaml ... [--seeds N]"""
+    import argparse
+    from .scenario import load
+    ap = argparse.ArgumentParser(description="the re-encounter check on scenario files, "
+                                 "with the shipped DecisionConfig")
+    ap.add_argument("scenarios", nargs="+")
+    ap.add_argument("--seeds", type=int, default=3)
+    ap.add_argument("--prior-rate-per-day", type=float, default=None,
+                    help="prior_candidate_rate_per_day to check instead of the shipped one")
+    ap.add_argument("--prior-window-s", type=float, default=None,
+                    help="prior_rate_window_s to check instead of the shipped one")
+    args = ap.parse_args(argv)
+    config = DecisionConfig()
+    if args.prior_rate_per_day is not None:
+        config = dataclasses.replace(config, prior_candidate_rate_per_day=args.prior_rate_per_day)
+    if args.prior_window_s is not None:
+        config = dataclasses.replace(config, prior_rate_window_s=args.prior_window_s)
+    print(report([load(p) for p in args.scenarios], config, seeds=max(args.seeds, 1)))
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -7,8 +7,9 @@ memory a policy that counts that can beat it: it is a reference, not a ceiling.
 
 `oracle` (the ceiling) subtracts the ask's lasting cost on the true model, by a rollout of
 the greedy oracle (Bertsekas, Tsitsiklis and Wu, "Rollout algorithms for combinatorial
-optimization", J. Heuristics 1997: one-step look-ahead with a base policy simulated after
-the step; it does at least as well as the base policy when the simulation is exact). Over the
+optimization", J. Heuristics 1997, reference from memory: a one-step look-ahead with a base
+policy simulated after the step does at least as well as the base policy when the simulation
+is exact). Over the
 person's actual later encounters within ORACLE_HALF_LIVES true ask-memory half-lives (the
 world knows when they will be near the robot again, which is more than their rate), the
 greedy oracle is played out twice, with this ask and without it: at each encounter it asks
