@@ -65,34 +65,78 @@ def test_costs_default_to_the_shipped_decision_costs_and_are_checked():
         scenario(costs={"ask_time": 5.0})
 
 
-def test_reward_is_the_worlds_whatever_the_robot_believes():
-    """The nearest-person policy ignores costs, so robots with different cost parameters
-    make the same asks; the reward is the world's either way, summed by hand here from each
-    ask's true load (scipy-free algebra: 2^(-age/h) over the person's earlier asks)."""
-    sc = scenario(costs={"ask_time_s": 7.0, "interruption_weight_s": 4.0, "busy_cost": 1.5,
-                         "repeat_cost": 3.0})
-    world = build_world(sc, 4)
-    runs = [run_policy(world, "nearest", SiteModel(), cfg, keep_decisions=True)
-            for cfg in (DecisionConfig(), DecisionConfig(ask_time_s=60.0, repeat_cost=0.0,
-                                                         interruption_weight_s=0.5))]
-    assert runs[0].reward_s.tobytes() == runs[1].reward_s.tobytes()
-    res = runs[0]
-    asked = [d for d in res.decisions if d.action == "ask"]
+WORLD_COSTS = {"ask_time_s": 7.0, "interruption_weight_s": 4.0, "busy_cost": 1.5,
+               "repeat_cost": 3.0}
+# a robot whose every cost and site constant is far from the world's (true half-life 7200 s)
+WRONG_MODEL = SiteModel(prior_a=9.0, prior_b=1.0, k_busy=0.0, k_load=5.0,
+                        ask_memory_half_life_s=60.0, notice_probability=0.3)
+WRONG_CONFIG = DecisionConfig(ask_time_s=60.0, repeat_cost=0.0, interruption_weight_s=0.5,
+                              busy_cost=0.0)
+
+
+def world_reward_by_hand(res, true_half_life_s: float = 7200.0):
+    """The world's reward and interruption cost of a run, summed by hand from its decisions
+    with the world's costs (WORLD_COSTS) and each ask's true load (plain algebra: 2^(-age/h)
+    over the person's earlier asks, h the world's half-life), all needs a door (120 s, help
+    20 s). Also whether the robot's own interruption figure ever differed from the world's."""
+    c = WORLD_COSTS
     past: dict = {}
-    interruption = 0.0
-    for d in asked:
+    interruption, robot_differs = 0.0, False
+    for d in (d for d in res.decisions if d.action == "ask"):
         t = d.evaluation.now_s
         x = float(d.evaluation.busyness[d.person_index])
-        load = sum(2.0 ** (-(t - s) / 7200.0) for s in past.get(d.person_id, []))
-        interruption += 4.0 * (1.0 + 1.5 * x + 3.0 * load)
+        load = sum(2.0 ** (-(t - s) / true_half_life_s) for s in past.get(d.person_id, []))
+        world_i = c["interruption_weight_s"] * (1.0 + c["busy_cost"] * x + c["repeat_cost"] * load)
+        robot_differs |= abs(float(d.evaluation.interruption_s[d.person_index]) - world_i) > 1e-6
+        interruption += world_i
         past.setdefault(d.person_id, []).append(t)
+    total = res.helps * (120.0 - 20.0) - res.declines * c["ask_time_s"] - interruption
+    return total, interruption, robot_differs
+
+
+def test_reward_is_the_worlds_whatever_the_robot_believes():
+    """The nearest-person policy ignores costs and constants, so robots with different
+    parameters make the same asks; the reward is the world's either way."""
+    sc = scenario(costs=WORLD_COSTS)
+    world = build_world(sc, 4)
+    runs = [run_policy(world, "nearest", model, cfg, keep_decisions=True)
+            for model, cfg in ((SiteModel(), DecisionConfig()), (WRONG_MODEL, WRONG_CONFIG))]
+    assert runs[0].reward_s.tobytes() == runs[1].reward_s.tobytes()
+    assert runs[0].interruption_s == runs[1].interruption_s
+    res = runs[0]
+    expected, interruption, _ = world_reward_by_hand(res)
     assert res.interruption_s == pytest.approx(interruption, rel=1e-12)
-    expected = res.helps * (120.0 - 20.0) - res.declines * 7.0 - interruption
     assert res.helps > 0 and res.declines > 0
     assert res.reward_s.sum() == pytest.approx(expected, rel=1e-12)
     # the second half is the needs at or after half the run's length
     half = res.times_s >= 1.5 * 86400.0
     assert res.second_half_reward_s == pytest.approx(res.reward_s[half].sum())
+
+
+@pytest.mark.parametrize("model,config", [(SiteModel(), DecisionConfig()),
+                                          (WRONG_MODEL, WRONG_CONFIG)])
+def test_ours_is_paid_the_worlds_costs_not_its_own(model, config):
+    """Our policy decides with the robot's costs and constants, but each ask is paid at the
+    world's: the hand sum with the world's costs and the true load matches, while the robot's
+    own interruption figure differs from the world's (so the check can tell them apart)."""
+    world = build_world(scenario(costs=WORLD_COSTS), 5)
+    res = run_policy(world, "ours", model, config, keep_decisions=True)
+    expected, interruption, robot_differs = world_reward_by_hand(res)
+    assert res.asks > 10 and robot_differs
+    assert res.interruption_s == pytest.approx(interruption, rel=1e-12)
+    assert res.reward_s.sum() == pytest.approx(expected, rel=1e-12)
+
+
+def test_the_oracles_do_not_read_the_robots_parameters():
+    """The oracles score with the world's truth and costs: a robot with other costs and
+    constants (same hard limits) makes the same asks and is paid the same, to the bit."""
+    world = build_world(scenario(costs=WORLD_COSTS), 6)
+    for policy in ("oracle", "oracle_greedy"):
+        a, b = (run_policy(world, policy, m, c) for m, c in
+                ((SiteModel(), DecisionConfig()), (WRONG_MODEL, WRONG_CONFIG)))
+        assert a.asks > 0 and a.asks == b.asks and a.asks_by_person == b.asks_by_person
+        assert a.reward_s.tobytes() == b.reward_s.tobytes()
+        assert a.interruption_s == b.interruption_s
 
 
 # ------------------------------------------------------------------ site-informed constants
@@ -248,6 +292,45 @@ def test_an_accepted_refit_is_put_in_force_and_a_refused_one_changes_nothing():
     plain = run_policy(world, "ours", SiteModel(), config)
     assert refused.reward_s.tobytes() == plain.reward_s.tobytes()
     assert [r[1] for r in refused.refits] == [False]
+
+
+class ProposeOnly(SwitchAfter):
+    """Accepted but not applied (the site learner's `propose` mode): the constants in force
+    stay the file's, so the run must not switch."""
+
+    def refit(self, outcomes, asks, now_s):
+        r = super().refit(outcomes, asks, now_s)
+        r.applied = False
+        return r
+
+
+def test_a_proposal_that_is_not_applied_changes_nothing():
+    world = build_world(scenario(shift__days=2), 3)
+    target = dataclasses.replace(SiteModel(), prior_a=1.0, prior_b=3.0, k_busy=4.0)
+    learner = ProposeOnly(15, target)
+    res = run_policy(world, "ours", SiteModel(), DecisionConfig(), learner=learner)
+    plain = run_policy(world, "ours", SiteModel(), DecisionConfig())
+    assert learner.calls and [r[1] for r in res.refits] == [False]
+    assert res.reward_s.tobytes() == plain.reward_s.tobytes()
+
+
+def test_the_site_learner_plugs_in_when_present():
+    """helpaware_node.fit.online (the site-learning branch) through the run's hook: refits are
+    made on the run's own events, and once one is applied the decisions carry its constants,
+    each inside the learner's ranges. Skipped where that module is not installed."""
+    online = pytest.importorskip("helpaware_node.fit.online")
+    world = build_world(scenario(shift__days=3), 2)
+    learner = online.SiteLearner(SiteModel(), online.LearningSettings(
+        mode="apply", every_outcomes=20, prior_weight=20.0))
+    res = run_policy(world, "ours", SiteModel(), DecisionConfig(), keep_decisions=True,
+                     learner=learner)
+    applied = [(t, m) for t, ok, m in res.refits if ok]
+    assert res.refits and applied
+    t_first, model = applied[0]
+    for name, (low, high) in online.MODEL_RANGES.items():
+        assert low <= getattr(model, name) <= high
+    after = {d.evaluation.params_hash for d in res.decisions if d.evaluation.now_s > t_first}
+    assert params_hash(SiteModel(), DecisionConfig()) not in after
 
 
 def test_compare_adds_the_learning_row():

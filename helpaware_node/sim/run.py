@@ -18,11 +18,13 @@ Policies: the core's choosers (core.baselines) and three that need the world: `i
 lasting cost of the ask, sim.oracle) and `oracle_greedy` (the true advantage now only).
 
 Site learning: `learner` is anything with `due(new_outcomes, now_s)` and
-`refit(outcomes, asks, now_s)` returning an object with `.accepted` and `.model` (the
-interface of helpaware_node.fit.online.SiteLearner). After each need the run counts the
-outcomes stored since the last refit; when the learner says it is due, it refits on every
-outcome and ask event the run has stored, and an accepted refit's model is put in force with
-session.set_parameters (costs, limits and rules stay).
+`refit(outcomes, asks, now_s)` returning an object with `.accepted`, `.model` and, optionally,
+`.applied` (the interface of helpaware_node.fit.online.SiteLearner, which records its own
+result when refit is called). After each need the run counts the outcomes stored since the
+last refit; when the learner says it is due, it refits on every outcome and ask event the run
+has stored, and a refit that is applied (`.applied`, or `.accepted` where a learner has no
+`.applied`: a proposal that is accepted but not applied changes nothing) has its model put in
+force with session.set_parameters (costs, limits and rules stay).
 """
 from __future__ import annotations
 
@@ -66,7 +68,7 @@ class RunResult:
     candidates_seen: set = field(default_factory=set)
     decisions: list = field(default_factory=list)   # every Decision, when asked to keep them
     decisions_made: int = 0      # decisions at all needs (a need decided again after a decline)
-    refits: list = field(default_factory=list)      # (time_s, accepted, model) per refit
+    refits: list = field(default_factory=list)      # (time_s, applied, model) per refit
 
     @property
     def second_half_reward_s(self) -> float:
@@ -156,8 +158,9 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
         if learner is not None and learner.due(since_refit, need.time_s):
             since_refit = 0
             refit = learner.refit(tuple(outcomes), tuple(asks), need.time_s)
-            res.refits.append((need.time_s, bool(refit.accepted), refit.model))
-            if refit.accepted:
+            applied = bool(getattr(refit, "applied", refit.accepted))
+            res.refits.append((need.time_s, applied, refit.model))
+            if applied:
                 session.set_parameters(refit.model, session.config, session.rules)
         if progress is not None:
             progress(1)
