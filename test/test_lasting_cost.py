@@ -56,6 +56,39 @@ def test_closed_form_equals_the_integral(alpha, beta, gamma, k, f, log_h, log_ta
     assert got >= 0.0
 
 
+@pytest.mark.parametrize("f", [0.0, 0.4, 2.5])
+@pytest.mark.parametrize("horizon", [600.0, 28800.0, 3e5])
+def test_linear_drop_exact_form(f, horizon):
+    """k_load = 0 and U positive up to load f + 1: the drop is gamma u(s), so by exact algebra
+    LC = r gamma int_0^H e^(-s/tau) 2^(-s/h) ds = r gamma (1 - e^(-kappa H)) / kappa,
+    kappa = 1/tau + ln 2 / h (an exponential integrated: no numerics)."""
+    r, alpha, beta, gamma, h, tau = 2e-4, 90.0, 20.0, 6.0, 5400.0, 14400.0
+    assert alpha - beta - gamma * (f + 1.0) > 0.0
+    kappa = 1.0 / tau + math.log(2.0) / h
+    want = r * gamma * -math.expm1(-kappa * horizon) / kappa
+    got = float(lasting_cost(r, alpha, beta, gamma, 0.0, f, h, tau, horizon))
+    assert got == pytest.approx(want, rel=1e-12)
+
+
+@pytest.mark.parametrize("k,f", [(0.3, 0.0), (1.0, 0.7), (1.5, 0.8)])
+def test_exponential_drop_exact_form_when_half_life_is_tau_ln2(k, f):
+    """gamma = 0 and alpha e^(-k (f+1)) > beta (U positive throughout), h = tau ln 2 so that
+    u(s) = e^(-s/tau). With v = e^(-s/tau), ds = -tau dv / v:
+    int_0^H e^(-s/tau) e^(-c u(s)) ds = tau int_{v_H}^1 e^(-c v) dv = tau (e^(-c v_H) - e^(-c)) / c,
+    so LC = r alpha tau [E(k f) - E(k (f + 1))], E(c) that integral over tau (E(0) = 1 - v_H):
+    exact algebra, no numerics."""
+    r, alpha, beta, tau, horizon = 3e-4, 120.0, 5.0, 14400.0, 28800.0
+    h = tau * math.log(2.0)
+    assert alpha * math.exp(-k * (f + 1.0)) > beta
+    v_h = math.exp(-horizon / tau)
+
+    def e_int(c):
+        return 1.0 - v_h if c == 0.0 else (math.exp(-c * v_h) - math.exp(-c)) / c
+    want = r * alpha * tau * (e_int(k * f) - e_int(k * (f + 1.0)))
+    got = float(lasting_cost(r, alpha, beta, 0.0, k, f, h, tau, horizon))
+    assert got == pytest.approx(want, rel=1e-10)
+
+
 @pytest.mark.parametrize("rho", [1e-9, 1e-3, 0.2, 1.0, 7.5, 300.0, 1e6, 1e12])
 @pytest.mark.parametrize("x", [0.0, 1e-9, 0.3, 5.0, 60.0, 699.0, 701.0, 5e4])
 def test_decay_mean_is_the_incomplete_gamma_ratio(rho, x):
