@@ -387,6 +387,29 @@ def test_regulars_come_back_and_the_check_counts_it():
     assert result[("regular", "21st+")]["robot_n"] > 5 * result[("regular", "1st")]["robot_n"]
 
 
+def test_the_check_compares_n_with_the_discounted_real_later_encounters():
+    """One person met at 1000, 2800, 8200 s and near the end of a 3-day run: at each
+    encounter the robot's N is the Gamma-Poisson mean (0.3 / day over 8 h prior, k earlier
+    encounters since first seen) times tau (1 - e^(-H/tau)), and the real figure is
+    sum e^(-dt/tau) over later encounters within H (plain algebra); the last encounter, whose
+    horizon passes the end of the run, is left out."""
+    from helpaware_node.sim.encounters import encounter_rows
+    end = 3 * 86400.0
+    times = [1000.0, 2800.0, 8200.0, end - 100.0]
+    world = _tiny_world(times)
+    config = DecisionConfig()
+    tau, horizon = config.future_discount_time_s, config.lookahead_horizon_s
+    rows = encounter_rows(world, config)
+    assert [r[:2] for r in rows] == [("regular", 0), ("regular", 1), ("regular", 2)]
+    for k, (_, _, robot_n, real) in enumerate(rows):
+        rate = (0.3 * 28800.0 / 86400.0 + k) / (28800.0 + times[k] - times[0])
+        assert robot_n == pytest.approx(rate * tau * (1.0 - math.exp(-horizon / tau)),
+                                        rel=1e-12)
+        later = [t - times[k] for t in times[k + 1:] if t - times[k] <= horizon]
+        assert real == pytest.approx(sum(math.exp(-dt / tau) for dt in later), rel=1e-12)
+    assert rows[2][3] == 0.0 and rows[0][3] > rows[1][3] > 0.0
+
+
 def test_simulate_reports_the_regret_of_not_knowing_the_site(tmp_path, capsys):
     from helpaware_node import cli
     root = os.path.dirname(os.path.dirname(os.path.abspath(__file__)))
