@@ -23,6 +23,7 @@ from helpaware_node.sim.run import SIM_ROBOT_ID, open_sim_need, run_policy
 from helpaware_node.store import AskEvent, MemoryStore, StoredEvent
 from helpaware_node.sim.scenario import ScenarioError, load, parse
 from helpaware_node.sim.world import SeenPerson, SimNeed, build_world
+from sim_scenarios import scenario_from
 
 BASE = {
     "name": "t",
@@ -37,14 +38,7 @@ BASE = {
 
 
 def scenario(**changes):
-    data = copy.deepcopy(BASE)
-    for path, value in changes.items():
-        node = data
-        keys = path.split("__")
-        for k in keys[:-1]:
-            node = node[k]
-        node[keys[-1]] = value
-    return parse(data)
+    return scenario_from(BASE, **changes)
 
 
 def test_same_seed_same_results_to_the_last_digit():

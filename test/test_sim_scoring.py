@@ -2,7 +2,6 @@
 oracles, site learning plumbing, paired comparisons and the re-encounter check."""
 from __future__ import annotations
 
-import copy
 import dataclasses
 import json
 import math
@@ -13,17 +12,17 @@ import pytest
 from scipy import integrate, stats
 
 from helpaware_node.core import DecisionConfig, SiteModel
-from helpaware_node.core.context import ask_load
 from helpaware_node.core.model import params_hash
 from helpaware_node.sim.compare import compare, mostly_regulars, regret
 from helpaware_node.sim.encounters import check
 from helpaware_node.sim.metrics import paired_difference
 from helpaware_node.sim.oracle import TrueWorld
 from helpaware_node.sim.run import run_policy
-from helpaware_node.sim.scenario import ScenarioError, WorldCosts, parse
+from helpaware_node.sim.scenario import ScenarioError, WorldCosts
 from helpaware_node.sim.truth import (informed_config, logit_normal_moments, true_prior,
                                       true_site_model)
 from helpaware_node.sim.world import SeenPerson, SimNeed, World, build_world
+from sim_scenarios import scenario_from
 
 BASE = {
     "name": "t",
@@ -40,14 +39,7 @@ BASE = {
 
 
 def scenario(**changes):
-    data = copy.deepcopy(BASE)
-    for path, value in changes.items():
-        node = data
-        keys = path.split("__")
-        for k in keys[:-1]:
-            node = node[k]
-        node[keys[-1]] = value
-    return parse(data)
+    return scenario_from(BASE, **changes)
 
 
 # ------------------------------------------------------------------ the world's costs
