@@ -21,9 +21,14 @@ informed never below ours; the oracle at or above both.
 Seeds: 20 per site, 10 on the two concourse sites (thousands of strangers make them the
 slowest); the learning row runs on as many of the first seeds as its share of the 900 s
 limit of bench/run_all.py allows (at least 2 for an interval), and is paired on those.
+
+A reduced run, for a quick look (its figures are not RESULTS.md's): `--seeds N` (at most N
+seeds per site), `--sites NAME ...` (scenario names), `--no-speed`. A reduced run writes no
+PNGs, so bench/figures stays the full run's.
 """
 from __future__ import annotations
 
+import argparse
 import dataclasses
 import glob
 import os
@@ -154,20 +159,45 @@ def print_site(sc, seeds, summary, per_seed, elapsed, learn) -> None:
     paired = {p: m[:n] for p, m in rows.items()}
     paired["learning"] = metrics
     print(f"targets for `learning` (from the shipped defaults with site learning; first {n} "
-          f"seeds, {spent:.0f} s; refits accepted per run: "
+          f"seeds, {spent:.0f} s; refits applied per run: "
           f"{', '.join(str(sum(r[1] for r in run.refits)) for run in runs)}):")
     for name, cell in targets(sc, paired).items():
         if isinstance(cell, dict) and cell["x"] == "learning":
             print("  " + describe_pair(cell, TARGET_LABELS[name]))
 
 
-def main() -> int:
+def parse_args(argv):
+    ap = argparse.ArgumentParser(description="simulator speed and the policy comparison on "
+                                 "every site (module doc)")
+    ap.add_argument("--seeds", type=int, default=None,
+                    help="at most this many seeds per site (a reduced run: no PNGs written)")
+    ap.add_argument("--sites", nargs="+", metavar="NAME", default=None,
+                    help="only these sites, by scenario name (a reduced run: no PNGs written)")
+    ap.add_argument("--no-speed", action="store_true", help="skip the speed measurement")
+    args = ap.parse_args(argv)
+    if args.seeds is not None and args.seeds < 2:
+        ap.error("--seeds: at least 2 (a paired interval needs two seeds)")
+    return args
+
+
+def main(argv=None) -> int:
+    args = parse_args(argv)
+    reduced = args.seeds is not None or args.sites is not None
     root = os.path.dirname(HERE)
-    speed(os.path.join(root, "scenarios", "hospital_night.yaml"))
+    if not args.no_speed:
+        speed(os.path.join(root, "scenarios", "hospital_night.yaml"))
     fig_dir = os.path.join(HERE, "figures")
     os.makedirs(fig_dir, exist_ok=True)
     paths = (sorted(glob.glob(os.path.join(root, "scenarios", "*.yaml")))
              + sorted(glob.glob(os.path.join(HERE, "sites", "*.yaml"))))
+    if args.sites is not None:
+        known = {os.path.splitext(os.path.basename(p))[0]: p for p in paths}
+        unknown = [n for n in args.sites if n not in known]
+        if unknown:
+            print(f"bench_sim: --sites: unknown {', '.join(unknown)} (known: "
+                  f"{', '.join(sorted(known))})", file=sys.stderr)
+            return 2
+        paths = [known[n] for n in args.sites]
     factory, why_not = site_learner_factory()
     print()
     print("policy comparison: mean ± 95 % t half-width over seeds; reward = the world's "
@@ -179,11 +209,15 @@ def main() -> int:
     for path in paths:
         sc = load(path)
         seeds = SLOW_SITES_SEEDS if sc.name in SLOW_SITES else SEEDS
+        if args.seeds is not None:
+            seeds = min(seeds, args.seeds)
         t0 = time.perf_counter()
         summary, per_seed, runs = compare(sc, POLICIES, seeds=seeds, progress=False)
         per_seed.update(no_lookahead(sc, seeds))
         summary.update({p: summarise(m) for p, m in per_seed.items() if p not in summary})
         sites.append([sc, seeds, summary, per_seed, time.perf_counter() - t0, None])
+        if reduced:
+            continue
         sub = os.path.join(fig_dir, sc.name)
         os.makedirs(sub, exist_ok=True)
         for p in write_plots({k: v for k, v in runs.items() if k in POLICIES}, sub, sc.name):
@@ -198,7 +232,8 @@ def main() -> int:
                 site[2]["learning"] = summarise(site[5][1])
     for sc, seeds, summary, per_seed, elapsed, learn in sites:
         print_site(sc, seeds, summary, per_seed, elapsed, learn)
-    print(f"\nbench_sim: {time.monotonic() - START:.0f} s in all")
+    print(f"\nbench_sim: {time.monotonic() - START:.0f} s in all"
+          + (" (a reduced run: not RESULTS.md's figures, no PNGs written)" if reduced else ""))
     return 0
 
 
