@@ -16,15 +16,31 @@ from scipy import integrate, special
 
 from helpaware_node.core import Belief, Candidate, DecisionConfig, HelpNeed, SiteModel
 from helpaware_node.core.lasting import decay_mean, lasting_cost
-from helpaware_node.core.policy import encounter_rate_per_s, evaluate, typical_terms
+from helpaware_node.core.policy import (encounter_rate_per_s, evaluate, future_ask_rate_per_s,
+                                        typical_terms)
 
 
 def typical_u(load, alpha, beta, gamma, k):
     return max(0.0, alpha * math.exp(-k * load) - beta - gamma * load)
 
 
+def kinks_s(alpha, beta, gamma, k, f, h, horizon):
+    """Where f u(s) or (f + 1) u(s) crosses the zero of U (the integrand's kinks), found
+    with scipy.optimize.brentq, independently of the module's Lambert-W root."""
+    from scipy.optimize import brentq
+
+    def g(x):
+        return alpha * math.exp(-k * x) - beta - gamma * x
+    if not (g(0.0) > 0.0 and g(f + 1.0) < 0.0):
+        return []
+    root = brentq(g, 0.0, f + 1.0, xtol=1e-300, rtol=1e-15)
+    return [s for s in (h * math.log2(load / root) for load in (f, f + 1.0) if load > root)
+            if 0.0 < s < horizon]
+
+
 def by_quadrature(rate, alpha, beta, gamma, k, f, h, tau, horizon):
-    """The defining integral, split at h/8, h/4, h/2, ... so quad sees the fast decay."""
+    """The defining integral, split at h/8, h/4, h/2, ... so quad sees the fast decay, and at
+    the integrand's kinks."""
     def drop(s):
         u = 2.0 ** (-s / h)
         return math.exp(-s / tau) * (typical_u(f * u, alpha, beta, gamma, k)
@@ -33,7 +49,7 @@ def by_quadrature(rate, alpha, beta, gamma, k, f, h, tau, horizon):
     while e < horizon:
         edges.append(e)
         e *= 2.0
-    edges.append(horizon)
+    edges = sorted(set(edges + kinks_s(alpha, beta, gamma, k, f, h, horizon))) + [horizon]
     return rate * sum(integrate.quad(drop, a, b, limit=200, epsabs=1e-12, epsrel=1e-10)[0]
                       for a, b in zip(edges, edges[1:]))
 
@@ -156,8 +172,10 @@ def test_the_score_subtracts_the_lasting_cost_with_the_rate_of_n():
                        now - 3 * 86400.0),
              Candidate("new", 3.0, now, Belief(2.0, 2.0), 0.1)]
     ev = evaluate(need, cands, now, [], model, config)
-    rate = encounter_rate_per_s(np.array([12.0, 0.0]), np.array([now - 3 * 86400.0, now]), now,
-                                config)
+    rate = future_ask_rate_per_s(np.array([12.0, 0.0]), np.array([now - 3 * 86400.0, now]), now,
+                                 config)
+    assert rate.tolist() == encounter_rate_per_s(np.array([12.0, 0.0]), np.array(
+        [now - 3 * 86400.0, now]), now, config).tolist()      # far below the hourly cap here
     alpha, beta, gamma = typical_terms(ev.mean, model, config, 20.0)
     for i in range(2):
         want = by_quadrature(rate[i], alpha[i], beta, gamma, model.k_load, ev.ask_load[i],
@@ -207,3 +225,24 @@ def decide_one(model, config, now):
     from helpaware_node.core import decide
     need = HelpNeed("r1", "door", now)
     return decide(need, [Candidate("a", 2.0, now, Belief(2.0, 2.0), 0.1)], now, [], model, config)
+
+
+def test_a_person_in_view_at_every_need_weighs_at_most_the_robots_hourly_cap():
+    """Seen at 500 needs in the last 10 h (50 an hour) by a robot that asks at most 3 an hour:
+    N and the lasting cost use 3 / 3600 s, not 50 / 3600 s (the later asks where either can
+    matter are at most the robot's own); the lasting cost is again the defining integral
+    (scipy.integrate.quad) at that rate."""
+    model = SiteModel()
+    config = DecisionConfig(max_asks_per_hour=3)
+    now = 1e6
+    cand = Candidate("always", 2.0, now, Belief(4.0, 2.0), 0.2, "", (), 500, now - 36000.0)
+    raw = float(encounter_rate_per_s(500, now - 36000.0, now, config))
+    assert raw > 20.0 / 3600.0         # (500.1 / (28800 + 36000)) s^-1, about 28 an hour
+    ev = evaluate(HelpNeed("r", "door", now), [cand], now, [], model, config)
+    tau, horizon = config.future_discount_time_s, config.lookahead_horizon_s
+    window = integrate.quad(lambda s: math.exp(-s / tau), 0.0, horizon)[0]
+    assert ev.future_requests[0] == pytest.approx(3.0 / 3600.0 * window, rel=1e-9)
+    alpha, beta, gamma = typical_terms(ev.mean, model, config, config.help_time_s)
+    want = by_quadrature(3.0 / 3600.0, alpha[0], beta, gamma, model.k_load, ev.ask_load[0],
+                         model.ask_memory_half_life_s, tau, horizon)
+    assert ev.lasting_cost_s[0] == pytest.approx(want, rel=1e-7) and want > 0.0

@@ -3,7 +3,8 @@
 For each eligible candidate i (DESIGN.md section 4):
   A_i   = p_i (C_r - t_help) - (1 - p_i) t_ask - I_i           immediate advantage, robot-s
   VOI_i = p_i U(m_helped) + (1 - p_i) U(m_declined) - U(m_i)    value of what the answer teaches
-  N_i   = discounted number of future requests where i is a candidate
+  N_i   = discounted number of future requests where i is a candidate (the rate at most the
+          robot's max_asks_per_hour)
   LC_i  = what this ask's ask load takes from i's later requests (core/lasting.py)
   Q_i   = A_i + N_i VOI_i - LC_i
 A + N VOI is the online knowledge-gradient score (Ryzhov, Powell and Frazier, Operations
@@ -242,6 +243,16 @@ def encounter_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionCon
     return (prior_count + np.asarray(counts, dtype=float)) / (window + span)
 
 
+def future_ask_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
+    """The rate of later requests where this person's answer or load can matter: the
+    encounter rate, at most the robot's own max_asks_per_hour. Both the value of learning and
+    the lasting cost are realised only at later asks, and the robot asks nobody more often than
+    its hourly cap, so a person in view at every need weighs no more than that (without the
+    cap, N and the lasting cost of such a person grow with the need rate without bound)."""
+    cap_per_s = config.max_asks_per_hour / 3600.0
+    return np.minimum(encounter_rate_per_s(counts, first_seen_s, now_s, config), cap_per_s)
+
+
 def discounted_horizon_s(config: DecisionConfig) -> float:
     """integral_0^H e^(-s/tau) ds = tau (1 - e^(-H/tau)): N per unit rate."""
     tau = config.future_discount_time_s
@@ -249,9 +260,9 @@ def discounted_horizon_s(config: DecisionConfig) -> float:
 
 
 def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """N: expected discounted future requests with this person a candidate (rate times the
-    discounted length of the look-ahead horizon)."""
-    return encounter_rate_per_s(counts, first_seen_s, now_s, config) * discounted_horizon_s(config)
+    """N: expected discounted future requests with this person a candidate (the rate, capped
+    at the robot's hourly ask cap, times the discounted length of the look-ahead horizon)."""
+    return future_ask_rate_per_s(counts, first_seen_s, now_s, config) * discounted_horizon_s(config)
 
 
 def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
@@ -291,7 +302,7 @@ def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
                                                    + config.repeat_cost * load)
     advantage = ask_advantage(p, continue_cost, help_time, config.ask_time_s, interruption)
     voi = information_value(a, b, c, model, config, help_time) if n else np.empty(0)
-    rate = encounter_rate_per_s(counts, first, now_s, config)
+    rate = future_ask_rate_per_s(counts, first, now_s, config)
     fut = rate * discounted_horizon_s(config)
     alpha, beta, gamma = typical_terms(mean, model, config, help_time)
     lasting = lasting_cost(rate, alpha, beta, gamma, model.k_load, load, h,
