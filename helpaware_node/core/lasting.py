@@ -9,8 +9,9 @@ here with an ask load L)
     alpha = cbar m (Cbar - t_help + t_ask),  beta = t_ask + Ibar,  gamma = w_I repeat_cost,
 
 with k = k_load, cbar = exp(-k_busy xbar), Ibar = w_I (1 + busy_cost xbar) and m the belief
-mean. The person is a candidate at later requests at rate r (the Gamma-Poisson rate of N),
-each weighted by e^(-s/tau) up to the look-ahead horizon H, exactly as N counts them, so
+mean. The person is a candidate at later requests at rate r (the rate of N: the Gamma-Poisson
+mean, at most the robot's hourly ask cap), each weighted by e^(-s/tau) up to the look-ahead
+horizon H, exactly as N counts them, so
 
     lasting_cost = r * integral_0^H e^(-s/tau) [U(f u(s)) - U((f + 1) u(s))] ds,  u = 2^(-s/h).
 
