@@ -1,14 +1,35 @@
-"""Simulator speed and the policy comparison on every scenario (20 seeds each).
+"""Simulator speed, and every policy on every site with the issue's targets (paired over seeds).
 
 Speed: 50 000 simulated help needs (look-ahead policy, hospital scenario) timed end to end,
 beside the bare core.decide() calls for the same needs and candidates measured in the same run
 (ratio = what the simulator adds around the decision: the help session, its store, and the
 decisions again after a decline, counted and shown per decision). Target: under 60 s.
-Comparison: every policy on the same 20 seeds of each scenarios/*.yaml; the headline ratios
-the issue asks for. Figures go to bench/figures/.
+
+Sites: scenarios/*.yaml (shipped) and bench/sites/*.yaml (invented for this benchmark, where
+the shipped defaults are far from the truth; no test reads them). Every policy runs on the same
+seeds of a site (common random numbers), the reward is the world's. Rows: `ours` starts from
+the shipped defaults; `informed` is ours given the site's true constants; `learning` is ours
+from the shipped defaults with online site learning (helpaware_node.fit.online.SiteLearner,
+when that module exists; otherwise a line says the row was not run); the two `(no look-ahead)`
+rows are ours and informed with lookahead_horizon_s = 0. Targets, each a paired 95 % t
+interval over seeds ("met": the whole interval on the right side; "missed": all of it on the
+wrong side; "undecided": it holds the target): the policy that starts from the defaults
+(`learning` when it ran, else `ours`) >= 95 % of informed over the second half of each run,
+never below `never`, ahead of Thompson sampling, >= 95 % of the oracle on sites of regulars;
+informed never below ours; the oracle at or above both.
+
+Seeds: 20 per site, 10 on the two concourse sites (thousands of strangers make them the
+slowest); the learning row runs on as many of the first seeds as its share of the 900 s
+limit of bench/run_all.py allows (at least 2 for an interval), and is paired on those.
+
+A reduced run, for a quick look (its figures are not RESULTS.md's): `--seeds N` (at most N
+seeds per site), `--sites NAME ...` (scenario names), `--no-speed`. A reduced run writes no
+PNGs, so bench/figures stays the full run's.
 """
 from __future__ import annotations
 
+import argparse
+import dataclasses
 import glob
 import os
 import sys
@@ -19,13 +40,24 @@ sys.path.insert(0, os.path.dirname(HERE))
 
 from helpaware_node.core import DecisionConfig, SiteModel, candidate_from_record, decide  # noqa: E402
 from helpaware_node.core import HelpNeed, PersonRecord  # noqa: E402
-from helpaware_node.sim.compare import compare, headline, summary_table  # noqa: E402
+from helpaware_node.sim.compare import (TARGET_LABELS, compare, describe_pair,  # noqa: E402
+                                        describe_regret, regret, summary_table, targets)
+from helpaware_node.sim.metrics import paired_difference, run_metrics, summarise  # noqa: E402
 from helpaware_node.sim.plots import write_plots  # noqa: E402
 from helpaware_node.sim.run import run_policy  # noqa: E402
 from helpaware_node.sim.scenario import load  # noqa: E402
+from helpaware_node.sim.truth import describe_model, true_site_model  # noqa: E402
 from helpaware_node.sim.world import build_world  # noqa: E402
 
 TARGET_NEEDS = 50_000
+LIMIT_S = 900.0           # bench/run_all.py's limit per benchmark
+SAFETY_S = 60.0           # kept free for printing and a slow machine
+SEEDS = 20
+SLOW_SITES_SEEDS = 10     # the concourse sites
+SLOW_SITES = ("transit_concourse_busy", "concourse_unwilling_strangers")
+POLICIES = ("ours", "informed", "never", "nearest", "busyness", "willingness", "thompson",
+            "oracle", "oracle_greedy")
+START = time.monotonic()
 
 
 def speed(scenario_path: str) -> None:
@@ -62,33 +94,146 @@ def speed(scenario_path: str) -> None:
           f"bare {t_bare / n * 1e3:.3f} ms")
 
 
-def main() -> int:
-    speed(os.path.join(os.path.dirname(HERE), "scenarios", "hospital_night.yaml"))
+def site_learner_factory():
+    """(factory, None) when fit.online.SiteLearner can be built, else (None, the reason)."""
+    try:
+        from helpaware_node.fit.online import LearningSettings, SiteLearner
+    except ImportError as exc:
+        return None, f"helpaware_node.fit.online is not importable ({exc})"
+    try:
+        SiteLearner(SiteModel(), LearningSettings(mode="apply"))
+    except Exception as exc:  # noqa: BLE001 - report whatever the other module refuses
+        return None, f"SiteLearner could not be built ({type(exc).__name__}: {exc})"
+    return (lambda: SiteLearner(SiteModel(), LearningSettings(mode="apply"))), None
+
+
+def no_lookahead(sc, seeds: int) -> dict:
+    config = dataclasses.replace(DecisionConfig(), lookahead_horizon_s=0.0)
+    _, per_seed, _ = compare(sc, ["ours", "informed"], seeds=seeds, config=config,
+                             progress=False)
+    return {f"{p} (no look-ahead)": m for p, m in per_seed.items()}
+
+
+def learning_rows(sc, factory, seeds: int, budget_s: float) -> tuple[list, list, float]:
+    """Runs of `learning` on the first seeds while the budget lasts (at least one)."""
+    runs, t0 = [], time.monotonic()
+    for s in range(seeds if budget_s > 0.0 else 0):
+        if runs and time.monotonic() - t0 > budget_s * len(runs) / (len(runs) + 1):
+            break    # one more seed would not fit the share
+        world = build_world(sc, s)
+        runs.append(run_policy(world, "ours", SiteModel(), DecisionConfig(),
+                               learner=factory(), label="learning"))
+    return runs, [run_metrics(r) for r in runs], time.monotonic() - t0
+
+
+def print_site(sc, seeds, summary, per_seed, elapsed, learn) -> None:
+    print(f"\nsite {sc.name} ({sc.description}; truth: {sc.truth_model}; {seeds} seeds) "
+          f"[{elapsed:.1f} s]")
+    print(f"  site-informed constants: {describe_model(true_site_model(sc))}")
+    first = [p for p in ("ours", "learning", "informed", "ours (no look-ahead)",
+                         "informed (no look-ahead)") if p in summary]
+    print(summary_table({p: summary[p] for p in first + [q for q in summary if q not in first]}))
+    for half, cell in regret(per_seed).items():
+        print(describe_regret(cell, half))
+    for name in ("ours", "informed"):
+        off = f"{name} (no look-ahead)"
+        if off in per_seed:
+            cell = paired_difference([m["reward_s"] for m in per_seed[name]],
+                                     [m["reward_s"] for m in per_seed[off]])
+            base = summary[off]["reward_s"]["mean"]
+            share = f" ({100 * cell['mean'] / abs(base):+.1f} %)" if base else ""
+            print(f"look-ahead on - off, {name}: {cell['mean']:.0f} ± {cell['ci95']:.0f} "
+                  f"robot-s{share} (paired, {cell['n']} seeds)")
+    rows = {p: m for p, m in per_seed.items() if "(no look-ahead)" not in p}
+    print(f"targets for `ours` (the shipped defaults, no site learning; {seeds} seeds):")
+    for name, cell in targets(sc, rows).items():
+        if isinstance(cell, dict):
+            print("  " + describe_pair(cell, TARGET_LABELS[name]))
+    if learn is None:
+        return
+    runs, metrics, spent = learn
+    n = len(metrics)
+    if not n:
+        print("learning row not run on this site: no time left in the 900 s limit")
+        return
+    paired = {p: m[:n] for p, m in rows.items()}
+    paired["learning"] = metrics
+    print(f"targets for `learning` (from the shipped defaults with site learning; first {n} "
+          f"seeds, {spent:.0f} s; refits applied per run: "
+          f"{', '.join(str(sum(r[1] for r in run.refits)) for run in runs)}):")
+    for name, cell in targets(sc, paired).items():
+        if isinstance(cell, dict) and cell["x"] == "learning":
+            print("  " + describe_pair(cell, TARGET_LABELS[name]))
+
+
+def parse_args(argv):
+    ap = argparse.ArgumentParser(description="simulator speed and the policy comparison on "
+                                 "every site (module doc)")
+    ap.add_argument("--seeds", type=int, default=None,
+                    help="at most this many seeds per site (a reduced run: no PNGs written)")
+    ap.add_argument("--sites", nargs="+", metavar="NAME", default=None,
+                    help="only these sites, by scenario name (a reduced run: no PNGs written)")
+    ap.add_argument("--no-speed", action="store_true", help="skip the speed measurement")
+    args = ap.parse_args(argv)
+    if args.seeds is not None and args.seeds < 2:
+        ap.error("--seeds: at least 2 (a paired interval needs two seeds)")
+    return args
+
+
+def main(argv=None) -> int:
+    args = parse_args(argv)
+    reduced = args.seeds is not None or args.sites is not None
+    root = os.path.dirname(HERE)
+    if not args.no_speed:
+        speed(os.path.join(root, "scenarios", "hospital_night.yaml"))
     fig_dir = os.path.join(HERE, "figures")
     os.makedirs(fig_dir, exist_ok=True)
+    paths = (sorted(glob.glob(os.path.join(root, "scenarios", "*.yaml")))
+             + sorted(glob.glob(os.path.join(HERE, "sites", "*.yaml"))))
+    if args.sites is not None:
+        known = {os.path.splitext(os.path.basename(p))[0]: p for p in paths}
+        unknown = [n for n in args.sites if n not in known]
+        if unknown:
+            print(f"bench_sim: --sites: unknown {', '.join(unknown)} (known: "
+                  f"{', '.join(sorted(known))})", file=sys.stderr)
+            return 2
+        paths = [known[n] for n in args.sites]
+    factory, why_not = site_learner_factory()
     print()
-    print("policy comparison: 20 seeds per scenario, mean ± 95 % t half-width over seeds")
-    print("targets: reward >= 1.5x the best non-oracle baseline, asks >= 1.2x fewer than it, "
-          ">= 85 % of the oracle")
-    for path in sorted(glob.glob(os.path.join(os.path.dirname(HERE), "scenarios", "*.yaml"))):
+    print("policy comparison: mean ± 95 % t half-width over seeds; reward = the world's "
+          "robot-s saved against continuing alone (its costs, its true ask load); 2nd half = "
+          "the needs in the second half of the run; interruption s = what the world bore")
+    if why_not:
+        print(f"learning row not run: {why_not}")
+    sites = []
+    for path in paths:
         sc = load(path)
+        seeds = SLOW_SITES_SEEDS if sc.name in SLOW_SITES else SEEDS
+        if args.seeds is not None:
+            seeds = min(seeds, args.seeds)
         t0 = time.perf_counter()
-        summary, _, runs = compare(sc, seeds=20, progress=False)
-        print(f"\nscenario {sc.name} ({sc.description}; truth: {sc.truth_model}) "
-              f"[{time.perf_counter() - t0:.1f} s]")
-        print(summary_table(summary))
-        h = headline(summary)
-        print(f"ours / best baseline ({h['best_baseline']}) reward = {h['reward_ratio_vs_best']:.2f}x "
-              f"(target 1.5x: {'met' if h['meets_reward_target'] else 'missed'}); "
-              f"its asks / ours = {h['ask_reduction_vs_best']:.2f}x "
-              f"(target 1.2x: {'met' if h['meets_ask_target'] else 'missed'}); "
-              f"ours / oracle reward = {100 * h['share_of_oracle']:.1f} % "
-              f"(target 85 %: {'met' if h['meets_oracle_target'] else 'missed'})")
+        summary, per_seed, runs = compare(sc, POLICIES, seeds=seeds, progress=False)
+        per_seed.update(no_lookahead(sc, seeds))
+        summary.update({p: summarise(m) for p, m in per_seed.items() if p not in summary})
+        sites.append([sc, seeds, summary, per_seed, time.perf_counter() - t0, None])
+        if reduced:
+            continue
         sub = os.path.join(fig_dir, sc.name)
         os.makedirs(sub, exist_ok=True)
-        for p in write_plots(runs, sub, sc.name):
+        for p in write_plots({k: v for k, v in runs.items() if k in POLICIES}, sub, sc.name):
             os.replace(p, os.path.join(fig_dir, f"{sc.name}_{os.path.basename(p)}"))
         os.rmdir(sub)
+    if factory is not None:
+        for k, site in enumerate(sites):
+            left = LIMIT_S - SAFETY_S - (time.monotonic() - START)
+            share = max(left, 0.0) / (len(sites) - k)
+            site[5] = learning_rows(site[0], factory, site[1], share)
+            if site[5][1]:
+                site[2]["learning"] = summarise(site[5][1])
+    for sc, seeds, summary, per_seed, elapsed, learn in sites:
+        print_site(sc, seeds, summary, per_seed, elapsed, learn)
+    print(f"\nbench_sim: {time.monotonic() - START:.0f} s in all"
+          + (" (a reduced run: not RESULTS.md's figures, no PNGs written)" if reduced else ""))
     return 0
 
 

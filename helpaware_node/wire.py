@@ -151,7 +151,10 @@ RATIONALE_ROW = F("object", fields={
         ("c", "context factor"), ("p", "predicted help probability"),
         ("interruption_s", "interruption cost, robot-s"), ("advantage_s", "A, robot-s"),
         ("voi_s", "information value, robot-s"), ("future_requests", "N"),
-        ("score_s", "Q, robot-s"))},
+        ("score_s", "Q = A + N VOI - lasting cost, robot-s"))},
+    # since the lasting cost entered the score; optional so that older bags still load
+    "lasting_cost_s": F("number", required=False,
+                        description="what the ask's load takes from later requests, robot-s"),
 })
 
 CONSTANT_SOURCES = ("parameter_file", "learned")

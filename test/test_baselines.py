@@ -67,12 +67,14 @@ def test_thompson_is_seeded_and_uses_the_same_beliefs():
     assert picks1[0] == int(np.argmax(adv))
 
 
-def test_oracle_uses_the_truth():
+def test_oracle_asks_the_best_positive_true_score_among_the_eligible():
     e = ev()
-    truth = np.array([1.0, 0.0, 0.0, 0.9, 1.0])
-    i = Oracle(CONFIG, lambda _: truth)(e)
+    # the best true score belongs to an excluded person (too far): never picked
+    truth = np.array([90.0, -5.0, 3.0, 40.0, 100.0])
+    i = Oracle(lambda _: truth)(e)
     assert e.candidates[i].person_id == "far_free"
-    assert Oracle(CONFIG, lambda _: np.zeros(5))(e) is None  # nobody helps: continue
+    assert Oracle(lambda _: np.full(5, -1.0))(e) is None   # nothing worth it: continue
+    assert Oracle(lambda _: np.zeros(5))(e) is None        # a zero score: continue (ties)
 
 
 def test_no_policy_ever_picks_an_excluded_person():
@@ -86,7 +88,8 @@ def test_no_policy_ever_picks_an_excluded_person():
         e = evaluate(NEED, people, NOW, [], MODEL, CONFIG)
         for name in POLICY_NAMES:
             chooser = make_chooser(name, CONFIG, seed=trial,
-                                   true_p=lambda ev_: rng.uniform(0, 1, len(ev_.candidates)))
+                                   true_score=lambda ev_: rng.uniform(-50, 50,
+                                                                      len(ev_.candidates)))
             i = chooser(e)
             assert i is None or e.exclusions[i] is None, name
 

@@ -6,7 +6,7 @@ import pytest
 
 from helpaware_node.core import (Belief, Candidate, CoreInputError, DecisionConfig, Exclusion,
                                  HelpNeed, SiteModel, decide, evaluate, information_value)
-from helpaware_node.core.policy import typical_gain
+from helpaware_node.core.policy import future_requests, typical_gain
 
 NEED = HelpNeed("r1", "door", opened_at_s=1000.0)
 
@@ -56,7 +56,9 @@ def test_advantage_formula_and_context():
     assert ev.p[0] == pytest.approx(p)
     assert ev.interruption_s[0] == pytest.approx(interruption)
     assert ev.advantage_s[0] == pytest.approx(adv)
-    assert ev.score_s[0] == pytest.approx(adv + ev.future_requests[0] * ev.voi_s[0])
+    assert ev.lasting_cost_s[0] > 0.0      # test_lasting_cost.py checks its value
+    assert ev.score_s[0] == pytest.approx(adv + ev.future_requests[0] * ev.voi_s[0]
+                                          - ev.lasting_cost_s[0])
 
 
 def test_prefers_willing_free_person_and_reports_rationale():
@@ -66,7 +68,8 @@ def test_prefers_willing_free_person_and_reports_rationale():
     assert d.action == "ask" and d.person_id == "free"
     rows = {r["person_id"]: r for r in d.rationale()}
     assert rows["free"]["score_s"] > rows["busy"]["score_s"]
-    for key in ("p", "mean", "a", "b", "c", "advantage_s", "voi_s", "future_requests", "score_s"):
+    for key in ("p", "mean", "a", "b", "c", "advantage_s", "voi_s", "future_requests",
+                "lasting_cost_s", "score_s"):
         assert key in rows["free"]
     assert d.evaluation.params_hash and len(d.evaluation.params_hash) == 16
 
@@ -181,3 +184,50 @@ def test_reask_interval_is_bounded_at_30_days_by_name():
                        match=r"min_reask_interval_s: 2592001.0 is outside the allowed range "
                              r"\[0, 2.592e\+06\]"):
         DecisionConfig(min_reask_interval_s=MAX_REASK_INTERVAL_S + 1.0)
+
+
+@pytest.mark.parametrize("count,span_s", [(0, 0.0), (1, 3600.0), (1, 10 * 86400.0),
+                                          (12, 3 * 86400.0), (40, 600.0)])
+def test_encounter_rate_is_the_gamma_poisson_posterior_mean(count, span_s):
+    """N's rate: Gamma(shape prior_rate * window / day, rate window) prior on the person's
+    candidate rate, `count` encounters seen over `span_s` since first seen; the posterior
+    mean by numerical integration (scipy.integrate.quad over scipy.stats densities)."""
+    from scipy import integrate, stats
+    from helpaware_node.core.policy import discounted_horizon_s, encounter_rate_per_s
+    config = DecisionConfig()
+    shape = config.prior_candidate_rate_per_day * config.prior_rate_window_s / 86400.0
+    scale = 1.0 / config.prior_rate_window_s
+    def weight(lam):
+        return stats.gamma.pdf(lam, shape, scale=scale) * stats.poisson.pmf(count, lam * span_s)
+    hi = 5000.0 * (shape + count + 1.0) / (config.prior_rate_window_s + span_s)
+    pieces = np.geomspace(1e-14, hi, 60)
+    num = sum(integrate.quad(lambda lam: lam * weight(lam), a, b, limit=200)[0]
+              for a, b in zip(np.r_[0.0, pieces[:-1]], pieces))
+    den = sum(integrate.quad(weight, a, b, limit=200)[0]
+              for a, b in zip(np.r_[0.0, pieces[:-1]], pieces))
+    now = 1e6
+    got = float(encounter_rate_per_s(count, now - span_s, now, config))
+    assert got == pytest.approx(num / den, rel=1e-6)
+    # N = rate * int_0^H e^(-s/tau) ds
+    n = float(future_requests(count, now - span_s, now, config))
+    tau, horizon = config.future_discount_time_s, config.lookahead_horizon_s
+    assert n == pytest.approx(got * integrate.quad(lambda s: math.exp(-s / tau), 0, horizon)[0])
+    assert discounted_horizon_s(config) == pytest.approx(tau * (1 - math.exp(-horizon / tau)))
+
+
+def test_a_stranger_weighs_far_less_than_a_regular():
+    """A first-seen person's N is the prior's (0.3 a day: most first-seen people are never
+    seen again); someone seen 12 times in 3 days (12.1 / 80 h, 3.6 a day) weighs 12 times
+    as much."""
+    config = DecisionConfig()
+    now = 5e5
+    stranger = float(future_requests(0, now, now, config))
+    regular = float(future_requests(12, now - 3 * 86400.0, now, config))
+    assert stranger == pytest.approx(0.3 / 86400.0 * discounted_horizon(config))
+    assert regular == pytest.approx(stranger * (12.1 / (80 * 3600.0)) / (0.3 / 86400.0))
+    assert regular > 10 * stranger
+
+
+def discounted_horizon(config):
+    tau = config.future_discount_time_s
+    return tau * (1 - math.exp(-config.lookahead_horizon_s / tau))

@@ -23,6 +23,7 @@ from helpaware_node.sim.run import SIM_ROBOT_ID, open_sim_need, run_policy
 from helpaware_node.store import AskEvent, MemoryStore, StoredEvent
 from helpaware_node.sim.scenario import ScenarioError, load, parse
 from helpaware_node.sim.world import SeenPerson, SimNeed, build_world
+from sim_scenarios import scenario_from
 
 BASE = {
     "name": "t",
@@ -37,14 +38,7 @@ BASE = {
 
 
 def scenario(**changes):
-    data = copy.deepcopy(BASE)
-    for path, value in changes.items():
-        node = data
-        keys = path.split("__")
-        for k in keys[:-1]:
-            node = node[k]
-        node[keys[-1]] = value
-    return parse(data)
+    return scenario_from(BASE, **changes)
 
 
 def test_same_seed_same_results_to_the_last_digit():
@@ -94,14 +88,16 @@ def test_fully_willing_never_busy_strangers_ours_and_oracle_ask_the_nearest():
         assert res.helps == res.asks == len(with_people)
 
 
-def test_fully_willing_regulars_oracle_asks_nearest_eligible_and_ours_asks_every_time():
+def test_fully_willing_regulars_greedy_oracle_asks_nearest_eligible_and_ours_asks_every_time():
     # With regulars the hard limits (re-ask interval, daily cap) exclude some people; with no
-    # repeat cost and no true load effect every eligible person has the same true advantage,
-    # so the oracle asks the nearest eligible one. Ours always finds a positive score and asks.
-    sc = scenario(people__willingness={"beta": [1e6, 1e-6]}, people__regulars=40)
+    # repeat cost in the world and no true load effect every eligible person has the same
+    # true advantage now, so the greedy oracle asks the nearest eligible one. Ours always
+    # finds a positive score and asks.
+    sc = scenario(people__willingness={"beta": [1e6, 1e-6]}, people__regulars=40,
+                  costs={"repeat_cost": 0.0})
     world = build_world(sc, 2)
     config = DecisionConfig(repeat_cost=0.0)
-    for policy in ("oracle", "ours"):
+    for policy in ("oracle_greedy", "ours"):
         res = run_policy(world, policy, SiteModel(k_load=0.0), config, keep_decisions=True)
         for d in res.decisions:
             nearest = choose_nearest(d.evaluation)
@@ -109,7 +105,7 @@ def test_fully_willing_regulars_oracle_asks_nearest_eligible_and_ours_asks_every
                 assert d.action == "continue"
                 continue
             assert d.action == "ask", policy
-            if policy == "oracle":
+            if policy == "oracle_greedy":
                 assert d.person_index == nearest
 
 

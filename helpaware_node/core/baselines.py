@@ -76,25 +76,23 @@ class ThompsonSampling:
 
 
 class Oracle:
-    """The ceiling: knows each candidate's true probability of helping now and asks the best
-    positive true advantage. `true_p(ev)` returns one probability per candidate."""
+    """A ceiling: asks the candidate with the best positive true score. `true_score(ev)`
+    returns one value in robot-seconds per candidate from whoever knows the truth (the
+    simulator, sim/oracle.py: the true advantage alone, or with the true lasting cost)."""
 
-    def __init__(self, config: DecisionConfig, true_p: Callable[[Evaluation], np.ndarray]):
-        self.config = config
-        self.true_p = true_p
+    def __init__(self, true_score: Callable[[Evaluation], np.ndarray]):
+        self.true_score = true_score
 
     def __call__(self, ev: Evaluation) -> Optional[int]:
         if not len(ev.candidates):
             return None
-        adv = ask_advantage(np.asarray(self.true_p(ev), dtype=float), ev.continue_cost_s,
-                            ev.help_time_s, self.config.ask_time_s, ev.interruption_s)
-        return best_positive(ev, adv)
+        return best_positive(ev, np.asarray(self.true_score(ev), dtype=float))
 
 
 POLICY_NAMES = ("ours", "never", "nearest", "busyness", "willingness", "thompson", "oracle")
 
 
-def make_chooser(name: str, config: DecisionConfig, seed: int = 0, true_p=None,
+def make_chooser(name: str, config: DecisionConfig, seed: int = 0, true_score=None,
                  busyness_threshold: float = 0.3):
     """A fresh chooser by name (stateful ones carry their own seeded generator)."""
     if name == "ours":
@@ -110,7 +108,7 @@ def make_chooser(name: str, config: DecisionConfig, seed: int = 0, true_p=None,
     if name == "thompson":
         return ThompsonSampling(config, seed)
     if name == "oracle":
-        if true_p is None:
-            raise ValueError("oracle: needs the true help probabilities")
-        return Oracle(config, true_p)
+        if true_score is None:
+            raise ValueError("oracle: needs the true scores (the simulator gives them)")
+        return Oracle(true_score)
     raise ValueError(f"policy: {quoted(name)} is not one of {', '.join(POLICY_NAMES)}")

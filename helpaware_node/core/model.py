@@ -105,8 +105,8 @@ class DecisionConfig:
     typical_continue_cost_s: float = 120.0
     lookahead_horizon_s: float = 28800.0    # future requests counted up to 8 h ahead
     future_discount_time_s: float = 14400.0  # exponential discount of later requests
-    prior_candidate_rate_per_day: float = 2.0  # prior rate of being a candidate at a need
-    prior_rate_window_s: float = 86400.0     # weight of that prior rate, in seconds seen
+    prior_candidate_rate_per_day: float = 0.3  # prior mean rate of a never-seen person (decision.md)
+    prior_rate_window_s: float = 28800.0     # weight of that prior rate, in seconds seen
     # hard limits, applied before any score
     min_reask_interval_s: float = 900.0
     max_asks_per_person_per_day: int = 3

@@ -3,9 +3,13 @@
 For each eligible candidate i (DESIGN.md section 4):
   A_i   = p_i (C_r - t_help) - (1 - p_i) t_ask - I_i           immediate advantage, robot-s
   VOI_i = p_i U(m_helped) + (1 - p_i) U(m_declined) - U(m_i)    value of what the answer teaches
-  N_i   = discounted number of future requests where i is a candidate
-  Q_i   = A_i + N_i VOI_i
-Ask the best candidate when its Q is above zero; otherwise (ties included) continue.
+  N_i   = discounted number of future requests where i is a candidate (the rate at most the
+          robot's max_asks_per_hour)
+  LC_i  = what this ask's ask load takes from i's later requests (core/lasting.py)
+  Q_i   = A_i + N_i VOI_i - LC_i
+A + N VOI is the online knowledge-gradient score (Ryzhov, Powell and Frazier, Operations
+Research 2012, from memory). Ask the best candidate when its Q is above zero; otherwise (ties
+included) continue.
 Exclusions are never traded for value; each carries a reason code.
 """
 from __future__ import annotations
@@ -19,6 +23,7 @@ import numpy as np
 
 from .belief import Belief, declined_moments
 from .context import ask_load, context_factor
+from .lasting import lasting_cost
 from .model import CoreInputError, DecisionConfig, SiteModel, check_range, params_hash
 from .person import DAY_S, PersonRecord, belief_at
 
@@ -117,6 +122,7 @@ class Evaluation:
     advantage_s: np.ndarray
     voi_s: np.ndarray
     future_requests: np.ndarray
+    lasting_cost_s: np.ndarray
     score_s: np.ndarray
     params_hash: str
 
@@ -142,7 +148,8 @@ class Decision:
         return self.evaluation.candidates[self.person_index].person_id
 
     def rationale(self) -> list[dict]:
-        """Per candidate: belief, context, A, VOI, N, Q, or the exclusion that ruled them out."""
+        """Per candidate: belief, context, A, VOI, N, lasting cost, Q, or the exclusion that
+        ruled them out."""
         ev = self.evaluation
         rows = []
         for i, cand in enumerate(ev.candidates):
@@ -157,6 +164,7 @@ class Decision:
                 "interruption_s": float(ev.interruption_s[i]),
                 "advantage_s": float(ev.advantage_s[i]), "voi_s": float(ev.voi_s[i]),
                 "future_requests": float(ev.future_requests[i]),
+                "lasting_cost_s": float(ev.lasting_cost_s[i]),
                 "score_s": float(ev.score_s[i]),
             })
         return rows
@@ -190,12 +198,20 @@ def ask_advantage(p, continue_cost_s, help_time_s, ask_time_s, interruption_s):
     return p * (continue_cost_s - help_time_s) - (1.0 - p) * ask_time_s - interruption_s
 
 
-def typical_gain(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
-    """U(m): advantage of the best choice at a typical future request (never below 0)."""
+def typical_terms(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
+    """(alpha, beta, gamma) of the advantage at a typical future request with ask load L:
+    alpha e^(-k_load L) - beta - gamma L, at typical busyness (DESIGN.md section 4)."""
     cbar = math.exp(-model.k_busy * config.typical_busyness)
     ibar = config.interruption_weight_s * (1.0 + config.busy_cost * config.typical_busyness)
     gain = cbar * (config.typical_continue_cost_s - help_time_s + config.ask_time_s)
-    return np.maximum(0.0, gain * np.asarray(mean) - config.ask_time_s - ibar)
+    return (gain * np.asarray(mean, dtype=float), config.ask_time_s + ibar,
+            config.interruption_weight_s * config.repeat_cost)
+
+
+def typical_gain(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
+    """U(m): advantage of the best choice at a typical future request (never below 0)."""
+    alpha, beta, _ = typical_terms(mean, model, config, help_time_s)
+    return np.maximum(0.0, alpha - beta)
 
 
 def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_time_s: float):
@@ -212,19 +228,41 @@ def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_ti
     return np.maximum(voi, 0.0)
 
 
-def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """N: expected discounted future requests with this person a candidate.
+def encounter_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
+    """How often this person is a candidate at a need: the Gamma-Poisson posterior mean
+    (prior_count + count) / (window + time since first seen), prior_count =
+    prior_candidate_rate_per_day * window / 1 day, window = prior_rate_window_s.
 
-    Rate (Gamma-Poisson with a prior of `prior_candidate_rate_per_day` over
-    `prior_rate_window_s`), times the discounted length of the look-ahead horizon.
-    """
+    `count` counts the needs before this one where the person was a candidate, the first
+    included: the first encounter is how they entered the record, and this need (they are
+    here now) is the first one after it, so `count` is the number of encounters seen since
+    first_seen_s, the exposure that Gamma-Poisson conjugacy wants (docs/decision.md)."""
     window = config.prior_rate_window_s
     prior_count = config.prior_candidate_rate_per_day * window / DAY_S
-    span = np.maximum(now_s - first_seen_s, 0.0)
-    rate_per_s = (prior_count + counts) / (window + span)
+    span = np.maximum(now_s - np.asarray(first_seen_s, dtype=float), 0.0)
+    return (prior_count + np.asarray(counts, dtype=float)) / (window + span)
+
+
+def future_ask_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
+    """The rate of later requests where this person's answer or load can matter: the
+    encounter rate, at most the robot's own max_asks_per_hour. Both the value of learning and
+    the lasting cost are realised only at later asks, and the robot asks nobody more often than
+    its hourly cap, so a person in view at every need weighs no more than that (without the
+    cap, N and the lasting cost of such a person grow with the need rate without bound)."""
+    cap_per_s = config.max_asks_per_hour / 3600.0
+    return np.minimum(encounter_rate_per_s(counts, first_seen_s, now_s, config), cap_per_s)
+
+
+def discounted_horizon_s(config: DecisionConfig) -> float:
+    """integral_0^H e^(-s/tau) ds = tau (1 - e^(-H/tau)): N per unit rate."""
     tau = config.future_discount_time_s
-    effective_s = tau * (1.0 - math.exp(-config.lookahead_horizon_s / tau))
-    return rate_per_s * effective_s
+    return tau * -math.expm1(-config.lookahead_horizon_s / tau)
+
+
+def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
+    """N: expected discounted future requests with this person a candidate (the rate, capped
+    at the robot's hourly ask cap, times the discounted length of the look-ahead horizon)."""
+    return future_ask_rate_per_s(counts, first_seen_s, now_s, config) * discounted_horizon_s(config)
 
 
 def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
@@ -264,13 +302,18 @@ def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
                                                    + config.repeat_cost * load)
     advantage = ask_advantage(p, continue_cost, help_time, config.ask_time_s, interruption)
     voi = information_value(a, b, c, model, config, help_time) if n else np.empty(0)
-    fut = future_requests(counts, first, now_s, config)
-    score = advantage + fut * voi
+    rate = future_ask_rate_per_s(counts, first, now_s, config)
+    fut = rate * discounted_horizon_s(config)
+    alpha, beta, gamma = typical_terms(mean, model, config, help_time)
+    lasting = lasting_cost(rate, alpha, beta, gamma, model.k_load, load, h,
+                           config.future_discount_time_s, config.lookahead_horizon_s)
+    score = advantage + fut * voi - lasting
     return Evaluation(need=need, now_s=now_s, candidates=cands, exclusions=tuple(exclusions),
                       continue_cost_s=float(continue_cost), help_time_s=float(help_time),
                       a=a, b=b, mean=mean, busyness=x, ask_load=load, c=c, p=p,
                       interruption_s=interruption, advantage_s=advantage, voi_s=voi,
-                      future_requests=fut, score_s=score, params_hash=params_hash(model, config))
+                      future_requests=fut, lasting_cost_s=lasting, score_s=score,
+                      params_hash=params_hash(model, config))
 
 
 def best_positive(ev: Evaluation, values: np.ndarray) -> Optional[int]:

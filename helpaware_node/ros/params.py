@@ -83,7 +83,8 @@ CONFIG_PARAMS = [
     _c("typical_continue_cost_s", "continue cost of a typical future request", "robot-seconds", 0.0, 1e9),
     _c("lookahead_horizon_s", "future requests counted up to this far ahead", "seconds", 0.0, 1e9),
     _c("future_discount_time_s", "exponential discount time of later requests", "seconds", 1e-3, 1e12),
-    _c("prior_candidate_rate_per_day", "prior rate of being a candidate at a need", "per day", 0.0, 1e9),
+    _c("prior_candidate_rate_per_day", "prior mean rate at which a never-seen person is a "
+       "candidate again (most are never seen again)", "per day", 0.0, 1e9),
     _c("prior_rate_window_s", "weight of that prior rate", "seconds", 1e-3, 1e12),
     _c("min_reask_interval_s", "minimum interval before asking the same person again "
        "(at most 30 days)", "seconds", 0.0, MAX_REASK_INTERVAL_S),

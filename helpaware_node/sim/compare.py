@@ -3,15 +3,17 @@ from __future__ import annotations
 
 import sys
 import time
-from typing import Optional, Sequence
+from typing import Any, Callable, Optional, Sequence
+
+import numpy as np
 
 from ..core import DecisionConfig, SiteModel
-from ..core.baselines import POLICY_NAMES
 from ..session import SessionRules
 from ..text_table import render_table
-from .metrics import run_metrics, summarise
-from .run import run_policy
+from .metrics import paired_difference, run_metrics, summarise
+from .run import SIM_POLICY_NAMES, run_policy
 from .scenario import Scenario
+from .truth import true_site_model
 from .world import ASK_DRAWS_PER_NEED, build_world
 
 
@@ -39,15 +41,27 @@ class ProgressBar:
             self.stream.flush()
 
 
-def compare(sc: Scenario, policies: Sequence[str] = POLICY_NAMES, seeds: int = 20,
+def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int = 20,
             model: Optional[SiteModel] = None, config: Optional[DecisionConfig] = None,
-            progress: bool = True, first_seed: int = 0, rules: Optional[SessionRules] = None):
+            progress: bool = True, first_seed: int = 0, rules: Optional[SessionRules] = None,
+            constants: str = "defaults", learner_factory: Optional[Callable[[], Any]] = None):
     """Returns (summary by policy, per-seed metrics by policy, runs by policy).
 
-    `rules`: the help session's rules (max_asks_per_need ...), the node's defaults if None."""
+    `rules`: the help session's rules (max_asks_per_need ...), the node's defaults if None.
+    `constants`: "defaults" (the robot starts from `model`, the shipped SiteModel if None)
+    or "true" (every policy starts from the site's true constants, sim.truth).
+    `learner_factory`: a fresh site learner per seed; adds the policy "learning" (ours,
+    starting from the same constants, with site learning)."""
     model = model or SiteModel()
     config = config or DecisionConfig()
     rules = rules or SessionRules()
+    if constants not in ("defaults", "true"):
+        raise ValueError(f"constants: {constants!r} is not one of defaults, true")
+    if constants == "true":
+        model = true_site_model(sc, model)
+    policies = list(policies)
+    if learner_factory is not None and "learning" not in policies:
+        policies.insert(1, "learning")
     draws = max(ASK_DRAWS_PER_NEED, rules.max_asks_per_need)   # more draws change no other
     worlds = [build_world(sc, first_seed + s, ask_draws=draws) for s in range(seeds)]
     total = sum(len(w.needs) for w in worlds) * len(policies)
@@ -55,7 +69,13 @@ def compare(sc: Scenario, policies: Sequence[str] = POLICY_NAMES, seeds: int = 2
     runs = {p: [] for p in policies}
     for w in worlds:
         for p in policies:
-            runs[p].append(run_policy(w, p, model, config, progress=bar, rules=rules))
+            if p == "learning":
+                if learner_factory is None:
+                    raise ValueError("policy learning: needs a learner_factory")
+                runs[p].append(run_policy(w, "ours", model, config, progress=bar, rules=rules,
+                                          learner=learner_factory(), label="learning"))
+            else:
+                runs[p].append(run_policy(w, p, model, config, progress=bar, rules=rules))
     per_seed = {p: [run_metrics(r) for r in rs] for p, rs in runs.items()}
     summary = {p: summarise(m) for p, m in per_seed.items()}
     return summary, per_seed, runs
@@ -64,37 +84,89 @@ def compare(sc: Scenario, policies: Sequence[str] = POLICY_NAMES, seeds: int = 2
 def _ci(cell: dict, digits: int = 0) -> str:
     if cell["mean"] != cell["mean"]:   # NaN: undefined for this policy (asks per help, no help)
         return "-"
+    if cell["ci95"] != cell["ci95"]:   # one seed: no interval
+        return f"{cell['mean']:.{digits}f}"
     return f"{cell['mean']:.{digits}f} ± {cell['ci95']:.{digits}f}"
 
 
 def summary_table(summary: dict) -> str:
     rows = []
     for p, s in summary.items():
-        rows.append([p, _ci(s["reward_s"]), _ci(s["asks"]), _ci(s["helps"]), _ci(s["declines"]),
+        rows.append([p, _ci(s["reward_s"]), _ci(s["reward_second_half_s"]),
+                     _ci(s["interruption_s"]), _ci(s["asks"]), _ci(s["helps"]),
                      _ci(s["asks_per_help"], 2), _ci(s["max_asks_person_day"], 1),
                      _ci(s["gini_asks"], 2)])
-    return render_table(["policy", "saved robot-s", "asks", "helps", "declines", "asks/help",
-                         "max asks/person/day", "Gini of asks"], rows,
-                        [False] + [True] * 7)
+    return render_table(["policy", "saved robot-s", "2nd half", "interruption s", "asks",
+                         "helps", "asks/help", "max asks/person/day", "Gini of asks"], rows,
+                        [False] + [True] * 8)
 
 
-def headline(summary: dict) -> dict:
-    """Ours against the best non-oracle baseline and the oracle (the issue's targets)."""
-    base = {p: s for p, s in summary.items() if p not in ("ours", "oracle")}
-    out = {}
-    if "ours" not in summary or not base:
-        return out
-    ours = summary["ours"]
-    best = max(base, key=lambda p: base[p]["reward_s"]["mean"])
-    out["best_baseline"] = best
-    br = base[best]["reward_s"]["mean"]
-    out["reward_ratio_vs_best"] = ours["reward_s"]["mean"] / br if br > 0 else float("inf")
-    oa = ours["asks"]["mean"]
-    out["ask_reduction_vs_best"] = base[best]["asks"]["mean"] / oa if oa > 0 else float("inf")
-    if "oracle" in summary:
-        orr = summary["oracle"]["reward_s"]["mean"]
-        out["share_of_oracle"] = ours["reward_s"]["mean"] / orr if orr > 0 else float("nan")
-    out["meets_reward_target"] = out["reward_ratio_vs_best"] >= 1.5
-    out["meets_ask_target"] = out["ask_reduction_vs_best"] >= 1.2
-    out["meets_oracle_target"] = out.get("share_of_oracle", 0.0) >= 0.85
+def mostly_regulars(sc: Scenario) -> bool:
+    """A site of regulars: at least 2/3 of the people in view at a need are regulars."""
+    total = sc.regulars_per_need + sc.strangers_per_need
+    return total > 0 and sc.regulars_per_need >= 2.0 * total / 3.0
+
+
+def _paired(per_seed: dict, x: str, y: Optional[str], key: str, ratio: float = 1.0) -> dict:
+    xs = [m[key] for m in per_seed[x]]
+    ys = [m[key] for m in per_seed[y]] if y is not None else [0.0] * len(xs)
+    out = paired_difference(xs, ys, ratio)
+    out.update(x=x, y=y or "0", key=key, x_mean=float(np.mean(xs)), y_mean=float(np.mean(ys)))
     return out
+
+
+def regret(per_seed: dict, start: str = "ours") -> dict:
+    """The regret of not knowing the site: informed minus the policy that starts from the
+    robot's constants, over the whole run and over its second half (paired over seeds)."""
+    if "informed" not in per_seed or start not in per_seed:
+        return {}
+    return {half: _paired(per_seed, "informed", start, key)
+            for half, key in (("whole", "reward_s"), ("second_half", "reward_second_half_s"))}
+
+
+def targets(sc: Scenario, per_seed: dict) -> dict:
+    """The issue's targets for the policy that starts from the shipped defaults (`learning`
+    when it ran, else `ours`), each a paired comparison over seeds (metrics.paired_difference).
+    """
+    start = "learning" if "learning" in per_seed else "ours"
+    out: dict = {"start": start}
+    have = set(per_seed)
+    if "informed" in have:
+        out["vs_informed_second_half"] = _paired(per_seed, start, "informed",
+                                                 "reward_second_half_s", 0.95)
+        out["informed_vs_ours"] = _paired(per_seed, "informed", "ours", "reward_s")
+    if "never" in have:
+        out["vs_never"] = _paired(per_seed, start, "never", "reward_s")
+    if "thompson" in have:
+        out["vs_thompson"] = _paired(per_seed, start, "thompson", "reward_s")
+    if "oracle" in have and mostly_regulars(sc):
+        out["vs_oracle"] = _paired(per_seed, start, "oracle", "reward_s", 0.95)
+    for p in ("informed", "ours"):
+        if "oracle" in have and p in have:
+            out[f"oracle_vs_{p}"] = _paired(per_seed, "oracle", p, "reward_s")
+    return out
+
+
+def describe_pair(cell: dict, what: str) -> str:
+    scale = "" if cell["ratio"] == 1.0 else f"{cell['ratio']:g} x "
+    return (f"{what}: {cell['x']} {cell['x_mean']:.0f} vs {scale}{cell['y']} "
+            f"{cell['y_mean']:.0f}; difference {cell['mean']:.0f} ± {cell['ci95']:.0f} "
+            f"(paired, {cell['n']} seeds): {cell['verdict']}")
+
+
+def describe_regret(cell: dict, half: str) -> str:
+    where = "whole run" if half == "whole" else "second half"
+    return (f"regret of not knowing the site ({where}): informed {cell['x_mean']:.0f} - "
+            f"{cell['y']} {cell['y_mean']:.0f} = {cell['mean']:.0f} ± {cell['ci95']:.0f} "
+            f"robot-s (paired over {cell['n']} seeds)")
+
+
+TARGET_LABELS = {
+    "vs_informed_second_half": "second half, >= 95 % of the site-informed policy",
+    "informed_vs_ours": "true constants never worse than the defaults",
+    "vs_never": "never below never",
+    "vs_thompson": "ahead of Thompson sampling",
+    "vs_oracle": "site of regulars, >= 95 % of the oracle",
+    "oracle_vs_informed": "oracle a ceiling over informed",
+    "oracle_vs_ours": "oracle a ceiling over ours",
+}

@@ -12,8 +12,8 @@ from scipy import stats
 
 from .run import RunResult
 
-METRICS = ("reward_s", "asks", "helps", "declines", "asks_per_help", "max_asks_person_day",
-           "gini_asks")
+METRICS = ("reward_s", "reward_second_half_s", "interruption_s", "asks", "helps", "declines",
+           "asks_per_help", "max_asks_person_day", "gini_asks")
 
 
 def gini(values) -> float:
@@ -31,6 +31,8 @@ def run_metrics(res: RunResult) -> dict:
     asks = [res.asks_by_person.get(p, 0) for p in people]
     return {
         "reward_s": float(res.reward_s.sum()),
+        "reward_second_half_s": res.second_half_reward_s,
+        "interruption_s": float(res.interruption_s),
         "lost_s": float(res.continue_cost_s.sum() - res.reward_s.sum()),
         "needs": int(res.reward_s.size),
         "asks": res.asks, "helps": res.helps, "declines": res.declines,
@@ -50,6 +52,23 @@ def t_interval(values, level: float = 0.95) -> tuple[float, float, int]:
         return float(x[0]), math.nan, 1
     half = stats.t.ppf(0.5 + level / 2.0, x.size - 1) * x.std(ddof=1) / math.sqrt(x.size)
     return float(x.mean()), float(half), int(x.size)
+
+
+def paired_difference(xs, ys, ratio: float = 1.0, level: float = 0.95) -> dict:
+    """Mean and t half-width over seeds of x_s - ratio * y_s (the same seed's runs paired),
+    and the verdict on x >= ratio * y: "met" when the whole interval is >= 0, "missed" when it
+    is all below 0, "undecided" when it holds 0."""
+    d = [x - ratio * y for x, y in zip(xs, ys)]
+    mean, half, n = t_interval(d, level)
+    if n < 2 or math.isnan(half):
+        verdict = "undecided"
+    elif mean - half >= 0.0:
+        verdict = "met"
+    elif mean + half < 0.0:
+        verdict = "missed"
+    else:
+        verdict = "undecided"
+    return {"mean": mean, "ci95": half, "n": n, "verdict": verdict, "ratio": ratio}
 
 
 def summarise(per_seed: list[dict]) -> dict:

@@ -1,33 +1,53 @@
-"""The run loop: the help session the node runs, outcomes from the ground truth.
+"""The run loop: the help session the node runs, outcomes and reward from the world.
 
 Each need goes through `session.HelpSession` exactly as the node's needs do: the view at the
 need, the need opened, each ask answered from the world's draws, and a decline or no response
 decides again (up to max_asks_per_need asks, the node's rule). Every decision is
 core.policy.decide's.
 
-Reward (robot-seconds saved against continuing alone), with the decision's own cost terms,
-summed over the asks at a need: a help saves C_r - t_help, a declined (or unanswered) ask
-costs t_ask, and every ask costs its interruption I (the evaluation's interruption_s for that
-person). Continuing scores 0, so never asking loses exactly sum(C_r).
+Reward (robot-seconds saved against continuing alone) is the world's, never the robot's: it
+uses the scenario's costs (sim.scenario.WorldCosts) and the true ask load, whatever the robot
+believes, so runs with different robot parameters are comparable. Summed over the asks at a
+need: a help saves C_r - t_help, an ask not helped costs the world's t_ask, and every ask costs
+the world's interruption I = weight (1 + busy_cost x + repeat_cost f_true), which the run also
+totals on its own (`interruption_s`). Continuing scores 0, so never asking loses exactly
+sum(C_r).
+
+Policies: the core's choosers (core.baselines) and three that need the world: `informed`
+(ours given the site's true constants, sim.truth), `oracle` (true advantage minus the true
+lasting cost of the ask, sim.oracle) and `oracle_greedy` (the true advantage now only).
+
+Site learning: `learner` is anything with `due(new_outcomes, now_s)` and
+`refit(outcomes, asks, now_s)` returning an object with `.accepted`, `.model` and, optionally,
+`.applied` (the interface of helpaware_node.fit.online.SiteLearner, which records its own
+result when refit is called). After each need the run counts the outcomes stored since the
+last refit; when the learner says it is due, it refits on every outcome and ask event the run
+has stored, and a refit that is applied (`.applied`, or `.accepted` where a learner has no
+`.applied`: a proposal that is accepted but not applied changes nothing) has its model put in
+force with session.set_parameters (costs, limits and rules stay).
 """
 from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass, field
-from typing import Callable, Optional
+from typing import Any, Callable, Optional
 
 import numpy as np
 
 from ..core import DecisionConfig, HelpNeed, Result, SiteModel
 from ..core.baselines import make_chooser
-from ..core.context import ask_load
 from ..core.model import CoreInputError
 from ..core.person import DAY_S
 from ..session import HelpSession, SessionRules, Step
-from ..store.base import MemoryStore
+from ..store.base import AskEvent, MemoryStore, StoredEvent
+from .oracle import TrueWorld
+from .truth import informed_config, true_site_model
 from .world import SimNeed, World
 
 SIM_ROBOT_ID = "sim"
+# every policy the simulator runs, in table order
+SIM_POLICY_NAMES = ("ours", "informed", "never", "nearest", "busyness", "willingness",
+                    "thompson", "oracle", "oracle_greedy")
 
 
 @dataclass
@@ -35,17 +55,24 @@ class RunResult:
     policy: str
     seed: int
     times_s: np.ndarray          # time of each need
-    reward_s: np.ndarray         # reward at each need
+    reward_s: np.ndarray         # reward at each need (the world's)
     continue_cost_s: np.ndarray  # C_r of each need
+    duration_s: float = 0.0      # the run's length (days of the scenario)
     asks: int = 0
     helps: int = 0
     declines: int = 0            # declined + no response
     no_responses: int = 0
+    interruption_s: float = 0.0  # interruption cost the world bore, summed over every ask
     asks_by_person: dict = field(default_factory=dict)
     asks_by_person_day: dict = field(default_factory=dict)
     candidates_seen: set = field(default_factory=set)
     decisions: list = field(default_factory=list)   # every Decision, when asked to keep them
     decisions_made: int = 0      # decisions at all needs (a need decided again after a decline)
+    refits: list = field(default_factory=list)      # (time_s, applied, model) per refit
+
+    @property
+    def second_half_reward_s(self) -> float:
+        return float(self.reward_s[self.times_s >= self.duration_s / 2.0].sum())
 
 
 def site_config(world: World, config: DecisionConfig) -> DecisionConfig:
@@ -66,33 +93,47 @@ def open_sim_need(session: HelpSession, need: SimNeed) -> Step:
                                         help_time_s=need.help_time_s), t)
 
 
+def robot_settings(world: World, policy: str, model: SiteModel,
+                   config: DecisionConfig) -> tuple[SiteModel, DecisionConfig]:
+    """The robot's model and settings for a policy: `informed` is told the site's truth."""
+    if policy == "informed":
+        return true_site_model(world.scenario, model), informed_config(world.scenario, config)
+    return model, config
+
+
 def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConfig,
                keep_decisions: bool = False, progress: Optional[Callable[[int], None]] = None,
-               rules: SessionRules = SessionRules()) -> RunResult:
-    sc = world.scenario
+               rules: SessionRules = SessionRules(), learner: Any = None,
+               label: Optional[str] = None) -> RunResult:
+    """One policy on one world. `learner`: site learning (module doc); `label`: the name
+    the result carries (default: the policy's)."""
+    if policy not in SIM_POLICY_NAMES:
+        raise ValueError(f"policy: {policy!r} is not one of {', '.join(SIM_POLICY_NAMES)}")
+    model, config = robot_settings(world, policy, model, config)
     config = site_config(world, config)
     draws = min(len(n.u_help) for n in world.needs) if world.needs else rules.max_asks_per_need
     if rules.max_asks_per_need > draws:
         raise CoreInputError(f"max_asks_per_need: {rules.max_asks_per_need} is more than the "
                              f"{draws} outcome draws per need of this world (build_world "
                              f"ask_draws)")
-    true_asks: dict[str, list[float]] = {}
-
-    def true_p(ev) -> np.ndarray:
-        return np.array([world.true_help_probability(
-            c.person_id, float(ev.busyness[k]),
-            ask_load(true_asks.get(c.person_id, ()), ev.now_s, sc.truth_ask_half_life_s))
-            for k, c in enumerate(ev.candidates)])
-
-    chooser = make_chooser(policy, config, seed=world.seed, true_p=true_p)
+    truth = TrueWorld(world, config)
+    score = {"oracle": truth.lookahead_scores, "oracle_greedy": truth.greedy_scores}.get(policy)
+    core_name = {"informed": "ours", "oracle_greedy": "oracle"}.get(policy, policy)
+    chooser = make_chooser(core_name, config, seed=world.seed, true_score=score)
     session = HelpSession(MemoryStore(robot_id=SIM_ROBOT_ID), model, config, rules,
                           chooser=chooser, policy=policy)
     n = len(world.needs)
-    res = RunResult(policy, world.seed, np.array([s.time_s for s in world.needs]), np.zeros(n),
-                    np.array([s.continue_cost_s for s in world.needs]))
+    res = RunResult(label or policy, world.seed, np.array([s.time_s for s in world.needs]),
+                    np.zeros(n), np.array([s.continue_cost_s for s in world.needs]),
+                    duration_s=world.duration_s)
+    outcomes: list[StoredEvent] = []
+    asks: list[AskEvent] = []
+    since_refit = 0
     for j, need in enumerate(world.needs):
-        session.tick(need.time_s)
+        truth.need_index = j
+        steps = [session.tick(need.time_s)]
         step = open_sim_need(session, need)
+        steps.append(step)
         res.candidates_seen.update(s.person_id for s in need.seen)
         k = 0                                   # asks made at this need so far
         while step.decisions:
@@ -102,37 +143,52 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
                 res.decisions.append(decision)
             if decision.action != "ask":
                 break
-            result = _answer(world, decision, need, k, true_asks, res, j, config)
+            result = _answer(world, truth, decision, need, k, res, j)
             k += 1
             step = session.outcome(need.request_id, decision.person_id, result, need.time_s)
+            steps.append(step)
         session.need_closed(need.request_id)
+        for st in steps:
+            for event in st.share:
+                if isinstance(event, StoredEvent):
+                    outcomes.append(event)
+                    since_refit += 1
+                elif isinstance(event, AskEvent):
+                    asks.append(event)
+        if learner is not None and learner.due(since_refit, need.time_s):
+            since_refit = 0
+            refit = learner.refit(tuple(outcomes), tuple(asks), need.time_s)
+            applied = bool(getattr(refit, "applied", refit.accepted))
+            res.refits.append((need.time_s, applied, refit.model))
+            if applied:
+                session.set_parameters(refit.model, session.config, session.rules)
         if progress is not None:
             progress(1)
     return res
 
 
-def _answer(world: World, decision, need: SimNeed, k: int, true_asks: dict,
-            res: RunResult, j: int, config: DecisionConfig) -> Result:
-    """The world's answer to the k-th ask at need j (its k-th draw pair), with the reward."""
+def _answer(world: World, truth: TrueWorld, decision, need: SimNeed, k: int,
+            res: RunResult, j: int) -> Result:
+    """The world's answer to the k-th ask at need j (its k-th draw pair), with the world's
+    reward: its costs, the true ask load."""
     sc = world.scenario
-    ev = decision.evaluation
-    i = decision.person_index
     pid = decision.person_id
-    past = true_asks.setdefault(pid, [])
-    p = world.true_help_probability(pid, float(ev.busyness[i]),
-                                    ask_load(past, need.time_s, sc.truth_ask_half_life_s))
-    past.append(need.time_s)
+    busyness = next(s.busyness for s in need.seen if s.person_id == pid)
+    true_load = truth.load(pid, need.time_s)
+    p = world.true_help_probability(pid, busyness, true_load)
+    interruption = sc.costs.interruption_s(busyness, true_load)
+    truth.true_asks.setdefault(pid, []).append(need.time_s)
     res.asks += 1
+    res.interruption_s += interruption
     res.asks_by_person[pid] = res.asks_by_person.get(pid, 0) + 1
     day_key = (pid, int(need.time_s // DAY_S))
     res.asks_by_person_day[day_key] = res.asks_by_person_day.get(day_key, 0) + 1
-    interruption = float(ev.interruption_s[i])
     if need.u_help[k] < p:
         res.helps += 1
-        res.reward_s[j] += ev.continue_cost_s - ev.help_time_s - interruption
+        res.reward_s[j] += need.continue_cost_s - need.help_time_s - interruption
         return Result.HELPED
     silent = need.u_silent[k] < sc.no_response_fraction
     res.declines += 1
     res.no_responses += int(silent)
-    res.reward_s[j] += -config.ask_time_s - interruption
+    res.reward_s[j] += -sc.costs.ask_time_s - interruption
     return Result.NO_RESPONSE if silent else Result.DECLINED

@@ -4,7 +4,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any, Mapping
 
-from ..core.model import CoreInputError, check_range
+from ..core.model import CoreInputError, DecisionConfig, check_range
 from ..yamlfile import load_yaml_file
 
 
@@ -31,6 +31,23 @@ class NeedKind:
 
 
 @dataclass(frozen=True)
+class WorldCosts:
+    """What an ask costs the world, in robot-seconds: the simulator's reward uses these, never
+    the robot's DecisionConfig, so runs with different robot parameters stay comparable.
+    Continue cost and help time are per need kind (NeedKind). Defaults: the shipped
+    DecisionConfig values, so a scenario without a `costs` section keeps its meaning."""
+
+    ask_time_s: float = DecisionConfig.ask_time_s                 # lost to an ask not helped
+    interruption_weight_s: float = DecisionConfig.interruption_weight_s
+    busy_cost: float = DecisionConfig.busy_cost                   # I = weight (1 + busy_cost x
+    repeat_cost: float = DecisionConfig.repeat_cost               #   + repeat_cost f_true)
+
+    def interruption_s(self, busyness: float, true_ask_load: float) -> float:
+        return self.interruption_weight_s * (1.0 + self.busy_cost * busyness
+                                             + self.repeat_cost * true_ask_load)
+
+
+@dataclass(frozen=True)
 class Scenario:
     name: str
     description: str
@@ -52,6 +69,7 @@ class Scenario:
     truth_ask_half_life_s: float
     truth_logit_sd: float             # logistic truth: sd of the person intercept
     no_response_fraction: float       # share of non-helps that are no response
+    costs: WorldCosts = WorldCosts()  # the world's own costs of an ask (reward)
 
     @property
     def never_ask_activities(self) -> tuple[str, ...]:
@@ -135,6 +153,14 @@ def parse(data: Mapping, source: str = "scenario") -> Scenario:
         acts.append(Activity(str(_get(item, "name", w)), lo, hi,
                              _num(item, "mean_duration_s", w, 0.0, 1e6, low_open=True),
                              _num(item, "weight", w, 0.0, 1e6, 1.0), never))
+    costs_raw = _get(data, "costs", where, {})
+    base = WorldCosts()
+    costs = WorldCosts(**{f: _num(costs_raw, f, "costs", 0.0, 1e6, getattr(base, f))
+                          for f in ("ask_time_s", "interruption_weight_s", "busy_cost",
+                                    "repeat_cost")})
+    unknown_costs = sorted(set(costs_raw) - set(WorldCosts.__dataclass_fields__))
+    if unknown_costs:
+        raise ScenarioError(f"costs: unknown field(s) {', '.join(map(str, unknown_costs))}")
     model = str(_get(truth, "model", "ground_truth", "ours"))
     if model not in ("ours", "logistic"):
         raise ScenarioError(f"ground_truth.model: {model!r} is not one of ours, logistic")
@@ -165,13 +191,15 @@ def parse(data: Mapping, source: str = "scenario") -> Scenario:
                                    1800.0, low_open=True),
         truth_logit_sd=_num(truth, "intercept_sd", "ground_truth", 0.0, 20.0, 1.5),
         no_response_fraction=_num(truth, "no_response_fraction", "ground_truth", 0.0, 1.0, 0.2),
+        costs=costs,
     )
     if sc.regulars == 0 and sc.strangers_per_need == 0:
         raise ScenarioError("people: regulars and strangers_per_need are both 0 (nobody to ask)")
     if sc.regulars > 0 and sc.regulars_per_need > sc.regulars:
         raise ScenarioError(f"people.regulars_per_need: {sc.regulars_per_need} exceeds "
                             f"people.regulars ({sc.regulars})")
-    known = {"name", "description", "shift", "people", "needs", "activities", "ground_truth"}
+    known = {"name", "description", "shift", "people", "needs", "activities", "ground_truth",
+             "costs"}
     unknown = sorted(set(data) - known)
     if unknown:
         raise ScenarioError(f"scenario: unknown field(s) {', '.join(unknown)}")

@@ -50,6 +50,12 @@ class World:
     seed: int
     needs: list[SimNeed]
     willingness: dict[str, float]   # true willingness (help probability when free, unasked)
+    # need indices where each person is in view, in time order (no draws: derived from needs)
+    encounters: dict[str, list[int]] = dataclasses.field(default_factory=dict)
+
+    @property
+    def duration_s(self) -> float:
+        return self.scenario.days * DAY_S
 
     def true_help_probability(self, person_id: str, busyness: float, ask_load: float) -> float:
         """P(help | person, busyness, true ask load) under the scenario's ground truth."""
@@ -174,4 +180,8 @@ def build_world(sc: Scenario, seed: int, ask_draws: int = ASK_DRAWS_PER_NEED) ->
     needs = [dataclasses.replace(nd, u_help=nd.u_help + tuple(p[0] for p in later[j]),
                                  u_silent=nd.u_silent + tuple(p[1] for p in later[j]))
              for j, nd in enumerate(needs)]
-    return World(sc, seed, needs, will)
+    encounters: dict[str, list[int]] = {}
+    for j, nd in enumerate(needs):
+        for person in nd.seen:
+            encounters.setdefault(person.person_id, []).append(j)
+    return World(sc, seed, needs, will, encounters)
