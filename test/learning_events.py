@@ -46,11 +46,12 @@ def site(truth: SiteParams, people: int, asks_per_person: float, seed: int,
 
 
 def session_across_a_change(learned_values: dict, needs: int = 40, change_at: int = 20,
-                            seed: int = 2):
+                            seed: int = 2, strangers: bool = True):
     """A help session that decides `needs` needs, with the constants of `learned_values` put
     in force at need `change_at` (as the node does on a new revision). Returns (decision
     texts, outcome records (time_s, request id, person id, result), the store, the session,
-    the learned model). Answers are drawn at random (invented)."""
+    the learned model). Answers are drawn at random (invented). With the ask's lasting cost in
+    the score, the robot prefers the stranger of each need to staff it will meet again."""
     import random
 
     from helpaware_node import wire
@@ -74,7 +75,10 @@ def session_across_a_change(learned_values: dict, needs: int = 40, change_at: in
         if k == change_at:
             s.set_parameters(learned, config, rules)
             source = ("learned", 1)
-        s.people_seen(staff + [Person(f"new{k}", 2.0)], t, complete_view=True)
+        # a stranger at each need (strangers=False: the staff alone, so the same people are
+        # asked again and their asks have a history)
+        s.people_seen(staff + ([Person(f"new{k}", 2.0)] if strangers else []), t,
+                      complete_view=True)
         step = s.need_opened(HelpNeed(f"n{k}", "door", t, urgency=0.5), t)
         for out in step.decisions:
             docs.append((t, wire.decision_text(out.decision, out.robot_ask_times_s, s.model,

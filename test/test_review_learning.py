@@ -20,7 +20,8 @@ LEARNED = {"prior_a": 0.8, "prior_b": 2.4, "k_busy": 3.0, "k_load": 1.2,
 
 @pytest.fixture(scope="module")
 def bag(tmp_path_factory):
-    docs, outcomes, _, _, _ = session_across_a_change(LEARNED, needs=60, change_at=25)
+    docs, outcomes, _, _, _ = session_across_a_change(LEARNED, needs=60, change_at=25,
+                                                      strangers=False)
     path = tmp_path_factory.mktemp("bags") / "across_change"
     with BagWriter(path) as w:
         for t, text in docs:

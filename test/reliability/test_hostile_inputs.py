@@ -338,6 +338,12 @@ def test_crash_loop_through_a_node_process_and_its_restart(tmp_path):
             proc = pr.start_node(tmp_path / "beliefs.sqlite3", "r1", ns, log)
             try:
                 drive.probe(robot, timeout_s=90.0)
+                # the history may reach the new node after its first decision: wait for this
+                # start's refusal line before stopping it, so each start is checked
+                deadline = time.monotonic() + 60.0
+                while (log.read_text().count("refused (malformed)") < start + 1
+                       and time.monotonic() < deadline and proc.poll() is None):
+                    drive.spin_for(0.2)
                 assert proc.poll() is None, log.read_text()[-2000:]
             finally:
                 pr.stop_gently(proc)
