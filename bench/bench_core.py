@@ -25,7 +25,7 @@ def make_candidates(n: int, rng: np.random.Generator, now: float) -> list[Candid
 
 
 def floor_pass(a, b, x, f, model, config, cost):
-    """The same arithmetic as the decision, with nothing around it."""
+    """Return the same arithmetic as the decision, with nothing around it."""
     m = a / (a + b)
     c = np.exp(-(model.k_busy * x + model.k_load * f))
     p = c * m

@@ -1,5 +1,7 @@
-"""Fit time, peak memory and held-out log loss: the site model beside statsmodels' variational
-binomial mixed GLM (BinomialBayesMixedGLM.fit_vb) and our own AGQ GLMM, on the same data.
+"""Fit time, peak memory and held-out log loss.
+
+The site model beside statsmodels' variational binomial mixed GLM (BinomialBayesMixedGLM.fit_vb)
+and our own AGQ GLMM, on the same data.
 
 Data: simulated from the site model (default 10 000 people, about 200 000 answered asks);
 people are split 80/20 into training and held-out sets; held-out rows are predicted from the

@@ -1,5 +1,6 @@
-"""Site learning: refit time at the node's store sizes, the half-life's recovery, the cost of a
-change of constants on a big store, and decisions while a refit runs beside them.
+"""Site learning: refit time at the node's store sizes, the half-life's recovery.
+
+The cost of a change of constants on a big store, and decisions while a refit runs beside them.
 
 1. Refit time: simulated sites (10 outcomes per person, 15 % of asks unanswered) of 1 000,
    10 000 and 100 000 outcomes in an SQLite store; the read of every outcome and ask (the

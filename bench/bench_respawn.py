@@ -1,5 +1,6 @@
-"""Benchmark: how soon a decision node killed with SIGKILL and started again answers a help need,
-beside a clean first start, against inputs that stay up the whole time.
+"""Benchmark: how soon a decision node killed with SIGKILL and started again answers a help need.
+
+Beside a clean first start, against inputs that stay up the whole time.
 
 A separate long-lived process (test/reliability/long_lived_inputs.py) publishes `people` at
 10 Hz and, for each node start, opens a help need every 0.1 s until the node decides one with

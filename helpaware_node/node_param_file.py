@@ -31,7 +31,7 @@ class LoadedParams:
 
 
 def _find_parameters(doc: Any, path: str) -> dict:
-    """The first `ros__parameters` mapping in the file (depth-first, file order)."""
+    """Return the first `ros__parameters` mapping in the file (depth-first, file order)."""
     if isinstance(doc, Mapping):
         if "ros__parameters" in doc:
             params = doc["ros__parameters"]

@@ -88,7 +88,7 @@ def hkdf_sha256(ikm: bytes, info: bytes, length: int = 32, salt: bytes = b"") ->
 
 # ---------------------------------------------------------------------------- encoding
 def canonical_bytes(document: Mapping[str, Any]) -> bytes:
-    """The bytes the signature covers: the document without its `sig` field."""
+    """Return the bytes the signature covers: the document without its `sig` field."""
     if not isinstance(document, Mapping):
         raise CanonicalError("document: expected a JSON object")
     body = {k: v for k, v in document.items() if k != SIG_FIELD}
@@ -182,8 +182,11 @@ class SigningKey:
 
 @dataclass(frozen=True)
 class KeyRing:
-    """The keys a robot signs with and accepts: the current one, and for a stated window the
-    previous one (a rotation, docs/security.md).  Times are seconds since the epoch (UTC)."""
+    """The keys a robot signs with and accepts.
+
+    The current one, and for a stated window the previous one (a rotation, docs/security.md).
+    Times are seconds since the epoch (UTC).
+    """
 
     site_id: str
     current: SigningKey
@@ -191,7 +194,7 @@ class KeyRing:
     previous_until_s: float = 0.0
 
     def sign(self, document: Mapping[str, Any]) -> dict:
-        """A copy of `document` with site, key_id and sig (any old signature replaced)."""
+        """Return a copy of `document` with site, key_id and sig (any old signature replaced)."""
         doc = {k: v for k, v in document.items() if k not in SIGNATURE_FIELDS}
         doc[SITE_FIELD] = self.site_id
         doc[KEY_ID_FIELD] = self.current.key_id
@@ -199,8 +202,10 @@ class KeyRing:
         return doc
 
     def check(self, document: Mapping[str, Any], now_s: float, what: str = "document") -> str:
-        """Raise Refused unless the document is signed by a key this ring accepts at `now_s`;
-        returns the key id that signed it."""
+        """Raise Refused unless the document is signed by a key this ring accepts at `now_s`.
+
+        Returns the key id that signed it.
+        """
         sig = document.get(SIG_FIELD)
         if sig is None:
             raise Refused(UNSIGNED, f"{what}: unsigned (no sig field); only documents signed "

@@ -326,8 +326,10 @@ def validate(name: str, document: Any) -> dict:
 
 
 def lone_surrogate_at(text: str) -> Optional[int]:
-    """Where a lone surrogate (JSON "\\ud800") sits in `text`, or None. Such text cannot be
-    hashed, stored in SQLite or published, so every input refuses it by field."""
+    """Where a lone surrogate (JSON "\\ud800") sits in `text`, or None.
+
+    Such text cannot be hashed, stored in SQLite or published, so every input refuses it by field.
+    """
     if text.isascii():
         return None
     try:
@@ -368,8 +370,11 @@ def decode(name: str, text: Any) -> dict:
 
 
 def parse_json(text: str) -> Any:
-    """JSON text to values, strictly: NaN/Infinity and repeated names in one object refused
-    (WireError, "document: ..."); also used for the signed fleet documents."""
+    """JSON text to values, strictly.
+
+    NaN/Infinity and repeated names in one object refused (WireError, "document: ..."); also used
+    for the signed fleet documents.
+    """
     try:
         return json.loads(text, parse_constant=_refuse_constant,
                           object_pairs_hook=_refuse_duplicates)
@@ -394,7 +399,8 @@ def deep_nesting_at(text: str, levels: int) -> Optional[tuple[str, int]]:
     """(path, levels) of the first value nested `levels` deep in JSON `text`, or None.
 
     Reads the text without recursion (the json module recurses, and gives up without saying
-    where), so a refusal can name the field that holds the nesting: `time_s[0][0][0]...`."""
+    where), so a refusal can name the field that holds the nesting: `time_s[0][0][0]...`.
+    """
     stack: list[list] = []              # per open container: [is_object, key or index]
     expect_key = False
     for m in _JSON_TOKEN.finditer(text):
@@ -424,8 +430,10 @@ def deep_nesting_at(text: str, levels: int) -> Optional[tuple[str, int]]:
 
 
 def _nesting_path(stack: list[list], parts_shown: int = 6) -> str:
-    """The path of the innermost container's place, as wire writes paths, cut short after
-    `parts_shown` parts (the field that holds the nesting comes first)."""
+    """Return the path of the innermost container's place, as wire writes paths.
+
+    Cut short after `parts_shown` parts (the field that holds the nesting comes first).
+    """
     parts: list[str] = []
     for is_object, at in stack[:parts_shown]:
         if is_object:
@@ -511,7 +519,7 @@ def people_from(doc: Mapping[str, Any]) -> list[SeenPerson]:
 
 
 def help_need_from(doc: Mapping[str, Any], opened_at_s: float) -> HelpNeed:
-    """A HelpNeed from an `open` task_status document (opened at the node's clock time)."""
+    """Return a HelpNeed from an `open` task_status document (opened at the node's clock time)."""
     return HelpNeed(request_id=doc["request_id"], kind=doc["kind"], opened_at_s=opened_at_s,
                     urgency=float(doc.get("urgency", 0.0)),
                     continue_cost_s=doc.get("continue_cost_s"), help_time_s=doc.get("help_time_s"))
@@ -540,7 +548,7 @@ def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
                          model: Optional[SiteModel] = None,
                          config: Optional[DecisionConfig] = None, robot_id: str = "",
                          check: bool = True, source: Optional[tuple[str, int]] = None) -> dict:
-    """The decision as a plain document; `encode("decision", doc)` makes the text.
+    """Return the decision as a plain document; `encode("decision", doc)` makes the text.
 
     `check=False` skips validation (the node: every value comes from validated core values,
     and validating costs more than deciding; the tests check its output documents).
@@ -624,8 +632,10 @@ def replay_inputs(document: Mapping[str, Any]
 
 
 def recorded_source(document: Mapping[str, Any]) -> tuple[str, int]:
-    """(site_constants, revision) of a decision's model; documents from before site
-    learning carry none: their constants came from the parameter file."""
+    """(site_constants, revision) of a decision's model.
+
+    Documents from before site learning carry none: their constants came from the parameter file.
+    """
     params = document.get("parameters") if isinstance(document, Mapping) else None
     source = params.get("source") if isinstance(params, dict) else None
     if not isinstance(source, dict):
@@ -634,7 +644,7 @@ def recorded_source(document: Mapping[str, Any]) -> tuple[str, int]:
 
 
 def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionConfig]:
-    """The SiteModel and DecisionConfig in force at the decision (from its `parameters`)."""
+    """Return the SiteModel and DecisionConfig in force at the decision (from its `parameters`)."""
     params = document.get("parameters") if isinstance(document, Mapping) else None
     if not isinstance(params, dict):
         raise WireError("parameters: absent from this decision document")

@@ -51,8 +51,11 @@ def data_dir():
 
 @pytest.fixture(autouse=True)
 def _own_ros_home(tmp_path_factory, monkeypatch):
-    """Each test gets its own ROS home, so a node's default store file never crosses tests
-    and nothing is written under the real ~/.ros."""
+    """Each test gets its own ROS home.
+
+    So a node's default store file never crosses tests and nothing is written under the real
+    ~/.ros.
+    """
     monkeypatch.setenv("ROS_HOME", str(tmp_path_factory.mktemp("ros_home")))
 
 

@@ -1,4 +1,7 @@
-"""Walk a JSON document's fields and replace one of them: shared by the wire and node fuzz tests."""
+"""Walk a JSON document's fields and replace one of them.
+
+Shared by the wire and node fuzz tests.
+"""
 import copy
 
 

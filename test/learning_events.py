@@ -14,14 +14,17 @@ RESULTS = {0: Result.HELPED, 1: Result.DECLINED, 2: Result.NO_RESPONSE}
 
 
 def key_of(label: str) -> str:
-    """A 64-hex person key (as the store's HMAC gives) for a simulated person."""
+    """Return a 64-hex person key (as the store's HMAC gives) for a simulated person."""
     return hashlib.sha256(label.encode()).hexdigest()
 
 
 def events(sim: SimulatedAsks, robots: tuple[str, ...] = ("r1",)
            ) -> tuple[list[StoredEvent], list[AskEvent]]:
-    """Every ask as an AskEvent and every answered one as a StoredEvent, the robots taking
-    turns (so some are peers' events), each robot's ids in sequence like a real store."""
+    """Every ask as an AskEvent and every answered one as a StoredEvent.
+
+    The robots taking turns (so some are peers' events), each robot's ids in sequence like a real
+    store.
+    """
     keys = [key_of(k) for k in sim.person_keys]
     seq = {r: 0 for r in robots}
     outcomes, asks = [], []

@@ -36,8 +36,11 @@ def nested(leaf, depth: int, kind: str):
 
 
 class Hostile:
-    """A drawn value with a short label: hypothesis prints the label, as repr() of the value
-    itself may recurse or refuse (the very thing tested)."""
+    """A drawn value with a short label.
+
+    Hypothesis prints the label, as repr() of the value itself may recurse or refuse (the very
+    thing tested).
+    """
 
     def __init__(self, value, label: str):
         self.value, self.label = value, label

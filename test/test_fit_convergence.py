@@ -152,8 +152,11 @@ def betabinom_gradient_hessian(y, n, z):
 
 
 def helped_last(y, n):
-    """Each group as one person, declines first: the order in which L-BFGS-B's line search
-    stopped with ABNORMAL at the 71-group optimum on the development machine (issue 17)."""
+    """Each group as one person, declines first.
+
+    The order in which L-BFGS-B's line search stopped with ABNORMAL at the 71-group optimum on the
+    development machine (issue 17).
+    """
     person, result = [], []
     for g, (yg, ng) in enumerate(zip(y, n)):
         person += [str(g)] * int(ng)
@@ -276,7 +279,10 @@ def test_glmm_every_answer_the_same_is_not_converged(cbpp):
 
 
 def simulate_glmm(seed, sd, groups=40, per_group=10):
-    """A random-intercept logit with known constants b0 = -0.5, b1 = 1.2 and herd sd `sd`."""
+    """Return a random-intercept logit with known constants b0 = -0.5.
+
+    b1 = 1.2 and herd sd `sd`.
+    """
     rng = np.random.default_rng(seed)
     g = np.repeat(np.arange(groups), per_group)
     x = rng.random(g.size)

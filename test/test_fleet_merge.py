@@ -87,8 +87,10 @@ asks_st = st.lists(st.tuples(st.sampled_from(["r1", "r2"]), st.integers(0, 2),
 @settings(max_examples=30)
 @given(asks_st, st.randoms(use_true_random=False))
 def test_asks_merge_idempotently_in_any_order(tmp_path_factory, rows, rng):
-    """Asks from the fleet: any order and duplication store each ask once, and a person's
-    asks read back are the same set on every robot, in (time, event id) order."""
+    """Asks from the fleet: any order and duplication store each ask once.
+
+    a person's asks read back are the same set on every robot, in (time, event id) order.
+    """
     asks = [AskEvent(f"{r}/{i}", PEOPLE[p], t, "door", f"need-{i}")
             for i, (r, p, t) in enumerate(rows)]
     messages = [encode_document("ask", a, KEYS) for a in asks]

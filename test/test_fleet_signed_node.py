@@ -1,8 +1,10 @@
-"""The decision node on the fleet topic: only documents signed with the site key change what it
-learns.  A peer without the key publishes 1 000 documents through the topic (unsigned, the old
-unsigned format, signed for another site, forged, signed with a key of this site it does not
-hold): none is stored or merged, each is counted by reason in /diagnostics, each reason is
-logged once.  A peer with the key is merged.  An old store is re-offered signed at start.
+"""The decision node on the fleet topic.
+
+Only documents signed with the site key change what it learns.  A peer without the key publishes 1
+000 documents through the topic (unsigned, the old unsigned format, signed for another site,
+forged, signed with a key of this site it does not hold): none is stored or merged, each is counted
+by reason in /diagnostics, each reason is logged once.  A peer with the key is merged.  An old
+store is re-offered signed at start.
 
 Checks against outside sources: stored rows are read with the sqlite3 module; beliefs after a
 merge are core.person.fold_events of the stored events (the fold the design defines); person
@@ -53,7 +55,7 @@ def stored_rows(path):
 
 
 def forged_documents(n: int, rng: random.Random) -> list[str]:
-    """What a peer without the site key can send: every way of getting it wrong."""
+    """Return what a peer without the site key can send: every way of getting it wrong."""
     site = SiteKeys.single(SITE_KEY)
     stranger = SiteKeys.single(STRANGER_KEY).key_ring()
     same_site_other_key = SiteKeys(SITE_KEY, os.urandom(32)).key_ring()   # site id right

@@ -123,7 +123,10 @@ def test_loop_arguments_are_checked_and_shared():
 
 
 def test_executable_is_the_one_under_the_ament_prefix_when_one_is_sourced(tmp_path, monkeypatch):
-    """A sourced workspace wins over the venv: lib/helpaware_node/<exe> under its prefix."""
+    """Check that a sourced workspace wins over the venv.
+
+    Lib/helpaware_node/<exe> under its prefix.
+    """
     index = tmp_path / "share" / "ament_index" / "resource_index" / "packages"
     index.mkdir(parents=True)
     (index / "helpaware_node").write_text("")

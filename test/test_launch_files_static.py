@@ -1,5 +1,7 @@
-"""The launch files, read without running them: only launch and launch_ros names that exist in
-the ROS 2 releases we support, and exactly the arguments docs/integration.md lists.
+"""The launch files, read without running them.
+
+Only launch and launch_ros names that exist in the ROS 2 releases we support, and exactly the
+arguments docs/integration.md lists.
 
 Supported releases: Humble, Jazzy and Kilted. The names below are checked against the vendored
 sources (../shared/vendor/ros-launch: launch 3.7.1 and launch_ros 0.28.0 from rolling, December

@@ -1,5 +1,8 @@
-"""config/fastdds_robot.xml: what it sets, that Fast DDS loads it without complaint, and that
-ros/launch_config.py gives it to the node unless the environment names a profile of its own."""
+"""config/fastdds_robot.xml.
+
+What it sets, that Fast DDS loads it without complaint, and that ros/launch_config.py gives it to
+the node unless the environment names a profile of its own.
+"""
 import os
 import subprocess
 import sys

@@ -1,6 +1,9 @@
-"""Hostile input: >= 1000 malformed documents per input topic; the node stays up, counts each
-rejection, keeps its beliefs, and still decides afterwards. Most go straight to the handlers
-(fast); a smaller set goes through the real topics and is read back from /diagnostics."""
+"""Hostile input: >= 1000 malformed documents per input topic.
+
+The node stays up, counts each rejection, keeps its beliefs, and still decides afterwards. Most go
+straight to the handlers (fast); a smaller set goes through the real topics and is read back from
+/diagnostics.
+"""
 import json
 import random
 

@@ -1,5 +1,6 @@
-"""package.xml declares what the code imports, no more and no less, and requirements.txt
-installs the same things into the venv.
+"""package.xml declares what the code imports, no more and no less.
+
+Requirements.txt installs the same things into the venv.
 
 Imports are read with `ast` from every module of the package and the launch files (run-time
 dependencies) and from the tests (test dependencies). A ROS package's Python module has the

@@ -114,8 +114,11 @@ def test_limits_are_never_traded_for_value(people, cost, cap, interval):
 @given(st.lists(st.floats(-1e7, 1e7), max_size=40), st.floats(-1e7, 1e7),
        st.floats(1.0, 1e6), st.integers(0, 50))
 def test_kept_asks_hold_the_recent_ones_and_the_newest_cap(times, now, horizon, keep_last):
-    """DESIGN.md limits under clock jumps: pruning keeps every ask inside the horizon and the
-    newest `keep_last` whatever their time, in order, and drops only asks past the horizon."""
+    """DESIGN.md limits under clock jumps.
+
+    Pruning keeps every ask inside the horizon and the newest `keep_last` whatever their time, in
+    order, and drops only asks past the horizon.
+    """
     kept = list(keep_recent_asks(times, now, horizon, keep_last))
     it = iter(times)
     assert all(any(t == u for u in it) for t in kept)          # an order-keeping subsequence

@@ -1,4 +1,7 @@
-"""review: counts against an independent read of the bag, HTML and PNGs, damaged and partial bags."""
+"""review: counts against an independent read of the bag, HTML and PNGs.
+
+Damaged and partial bags.
+"""
 import base64
 import json
 import os

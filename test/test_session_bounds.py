@@ -34,7 +34,7 @@ def session(config=CONFIG):
 
 
 def published(out, config=CONFIG) -> str:
-    """The decision as the node publishes it (fast_text), read back by the schema."""
+    """Return the decision as the node publishes it (fast_text), read back by the schema."""
     doc = wire.decision_to_document(out.decision, out.robot_ask_times_s, None, None, "r1",
                                     check=False)
     text = wire.fast_text(doc, MODEL, config)

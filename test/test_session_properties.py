@@ -56,6 +56,7 @@ op_st = st.one_of(
 @dataclass
 class Ledger:
     """Every ask, on the real time line: (real time, person, robot, request id or '')."""
+
     asks: list = field(default_factory=list)
     unreached: set = field(default_factory=set)      # indices of asks answered could_not_ask
     opted_out: set = field(default_factory=set)
@@ -93,7 +94,8 @@ def play(ops, store, count_peers: bool) -> Ledger:
     """Drive sessions through `ops` as a site would; return the ledger of every ask.
 
     The behaviour layer here resolves a need as soon as the robot decides to continue or is
-    helped, and after a restart may re-send a need it still holds (`reopen`, the same id)."""
+    helped, and after a restart may re-send a need it still holds (`reopen`, the same id).
+    """
     rules = SessionRules(max_asks_per_need=RULES.max_asks_per_need,
                          pending_ask_timeout_s=TIMEOUT_S, count_peer_asks=count_peers)
     real, node = 1_000.0, 1_000_000.0
@@ -181,7 +183,7 @@ def test_no_hard_limit_is_crossed_on_the_sqlite_store(tmp_path_factory, ops, cou
 
 
 def test_the_ledger_catches_each_breach():
-    """The checker itself can fail: a hand-made history breaking each limit once."""
+    """Check that the checker itself can fail: a hand-made history breaking each limit once."""
     ledger = Ledger()
     ledger.own_ask(0.0, "ann", "n1", True)
     ledger.own_ask(10.0, "ann", "n2", True)                # re-ask 10 s later

@@ -103,7 +103,10 @@ def test_a_killed_process_files_are_removed_and_a_running_one_is_left_alone(dirs
 
 
 def test_a_set_a_live_process_locked_since_is_left_alone(dirs):
-    """A restarted participant takes the dead port again: it holds the old `_el` file."""
+    """Check that a restarted participant takes the dead port again.
+
+    It holds the old `_el` file.
+    """
     shm, records = dirs
     child = Child(shm, records)
     child.kill()
@@ -124,7 +127,10 @@ def test_a_set_a_live_process_locked_since_is_left_alone(dirs):
 
 
 def test_a_file_created_again_since_the_record_is_not_removed(dirs):
-    """A writer that reset the dead port made a new file under the same name: not ours."""
+    """Check that a writer that reset the dead port made a new file under the same name.
+
+    Not ours.
+    """
     shm, records = dirs
     child = Child(shm, records)
     child.kill()
@@ -237,8 +243,10 @@ def test_ports_that_a_live_process_maps_from_removed_files_are_kept_from_a_start
 
 
 def test_a_start_holds_the_dead_files_until_its_participant_is_up(dirs, monkeypatch):
-    """StartupSweep: claimed before rclpy starts, removed once the participant exists; with
-    HELPAWARE_SHM_PORT_HOLD=0 removed at once and nothing held (the bench's comparison)."""
+    """StartupSweep: claimed before rclpy starts, removed once the participant exists.
+
+    With HELPAWARE_SHM_PORT_HOLD=0 removed at once and nothing held (the bench's comparison).
+    """
     shm, records = dirs
     child = Child(shm, records)
     child.kill()

@@ -163,8 +163,11 @@ def test_reward_is_the_decision_cost_terms():
 
 
 def test_simulator_decision_equals_core_decide_for_a_scripted_need():
-    """The simulator's session, given a store with some history, decides as core.decide does
-    on records built by the core's own functions (note_ask, note_outcome)."""
+    """Check that the simulator's session, given a store with some history.
+
+    Decides as core.decide does on records built by the core's own functions (note_ask,
+    note_outcome).
+    """
     model, config = SiteModel(), DecisionConfig()
     store = MemoryStore(robot_id=SIM_ROBOT_ID)
     k1, k2 = store.key_for("p1"), store.key_for("p2")
@@ -195,9 +198,12 @@ def test_simulator_decision_equals_core_decide_for_a_scripted_need():
 
 
 def test_simulator_asks_again_after_a_decline_as_the_node_does():
-    """Nobody ever helps (w ~ 0): at every need with two or more eligible people the session
-    asks twice (max_asks_per_need 2, the node's default), never the same person twice, and
-    the second ask uses the need's second draw pair; with max_asks_per_need 1, once."""
+    """Nobody ever helps (w ~ 0).
+
+    At every need with two or more eligible people the session asks twice (max_asks_per_need 2, the
+    node's default), never the same person twice, and the second ask uses the need's second draw
+    pair; with max_asks_per_need 1, once.
+    """
     sc = scenario(people__willingness={"beta": [1e-6, 1e6]}, people__regulars=30,
                   people__regulars_per_need=4.0, shift__days=1)
     world = build_world(sc, 8)
@@ -224,8 +230,11 @@ def test_simulator_asks_again_after_a_decline_as_the_node_does():
 
 
 def test_later_ask_draws_do_not_change_the_world():
-    """More draw pairs per need change nothing else: the same needs, people and first draws
-    (common random numbers hold whatever the number of asks per need)."""
+    """More draw pairs per need change nothing else.
+
+    The same needs, people and first draws (common random numbers hold whatever the number of asks
+    per need).
+    """
     sc = scenario()
     two, five = build_world(sc, 4, ask_draws=2), build_world(sc, 4, ask_draws=5)
     assert [(n.time_s, n.seen, n.u_help[:2], n.u_silent[:2]) for n in two.needs] == \
@@ -298,8 +307,11 @@ def _simulate_with(tmp_path, params_text):
 
 
 def test_simulate_uses_the_node_parameter_file(tmp_path):
-    """A node parameter file drives the simulated decision: with the hourly cap at 0 the
-    robot never asks; with the shipped defaults it does (same seed, same world)."""
+    """Check that a node parameter file drives the simulated decision.
+
+    With the hourly cap at 0 the robot never asks; with the shipped defaults it does (same seed,
+    same world).
+    """
     code, capped = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
                                             "    max_asks_per_hour: 0\n")
     assert code == 0 and capped["summary"]["ours"]["asks"]["mean"] == 0.0
@@ -317,8 +329,11 @@ def test_simulate_refuses_a_bad_parameter_file_naming_it(tmp_path, capsys):
 
 
 def test_simulate_takes_max_asks_per_need_from_the_node_parameter_file(tmp_path):
-    """The session's rules come from the same file: one ask per need asks less than three
-    (same seed, same world; the later asks at a need are the asks again after a decline)."""
+    """Check that the session's rules come from the same file.
+
+    One ask per need asks less than three (same seed, same world; the later asks at a need are the
+    asks again after a decline).
+    """
     code, one = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
                                          "    max_asks_per_need: 1\n")
     assert code == 0

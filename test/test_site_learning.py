@@ -1,5 +1,7 @@
-"""Site learning (fit/online.py) without ROS: the refit against the offline fit, shrinkage,
-degenerate streams, fleet determinism, the half-life, the store's history, replay.
+"""Site learning (fit/online.py) without ROS.
+
+The refit against the offline fit, shrinkage, degenerate streams, fleet determinism, the half-life,
+the store's history, replay.
 
 Outside references, named beside each check: BDA3 Table 5.1 (rat tumours) with the reference
 MLE in test/data/REFERENCE_VALUES.md where the penalty is 0; scipy.optimize (Nelder-Mead and

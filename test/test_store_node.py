@@ -1,5 +1,8 @@
-"""The node on a damaged store file: starts on priors, file moved aside, ERROR in diagnostics,
-keeps deciding and learning; and a live forget through privacy_request."""
+"""The node on a damaged store file.
+
+Starts on priors, file moved aside, ERROR in diagnostics, keeps deciding and learning; and a live
+forget through privacy_request.
+"""
 import os
 
 import pytest

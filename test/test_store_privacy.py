@@ -13,7 +13,7 @@ RAW_IDS = ["badge-7731-ward-C", "nurse-ingrid-olsen", "porter_42_night"]
 
 
 def store_bytes(path):
-    """The database and every companion file (-wal, -shm, -journal) as bytes."""
+    """Return the database and every companion file (-wal, -shm, -journal) as bytes."""
     return {p: open(p, "rb").read() for p in glob.glob(str(path) + "*")}
 
 

@@ -1,5 +1,7 @@
-"""The SQLite store: snapshot equals the refold, restart is exact, compaction keeps beliefs,
-migrations, site key checks, and damaged files moved aside."""
+"""The SQLite store: snapshot equals the refold, restart is exact, compaction keeps beliefs.
+
+Migrations, site key checks, and damaged files moved aside.
+"""
 import os
 import sqlite3
 

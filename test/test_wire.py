@@ -30,9 +30,11 @@ def _no_constant(name):
 
 
 def schema_ok(schema, doc) -> bool:
-    """Would a standard validator accept this document as it travels, as JSON text? NaN and
-    infinities are not JSON (RFC 8259), so a document holding one is refused before any schema
-    sees it, as a strict JSON parser refuses it."""
+    """Would a standard validator accept this document as it travels, as JSON text.
+
+    NaN and infinities are not JSON (RFC 8259), so a document holding one is refused before any
+    schema sees it, as a strict JSON parser refuses it.
+    """
     try:
         value = json.loads(json.dumps(doc), parse_constant=_no_constant)
     except ValueError:
@@ -97,8 +99,11 @@ def mutants(doc):
 
 
 def wire_ok(name, doc):
-    """Does the node take this document, sent as text (NaN and infinities as Python's json
-    writes them, which the node's decoder refuses as not JSON)?"""
+    """Does the node take this document.
+
+    Sent as text (NaN and infinities as Python's json writes them, which the node's decoder refuses
+    as not JSON)?
+    """
     try:
         wire.decode(name, json.dumps(doc))
         return True
@@ -198,10 +203,13 @@ def test_builders_round_trip_into_core_values():
 
 
 def test_a_decision_at_the_largest_caps_is_a_valid_document():
-    """Found by the load work: the caps used to allow 100 000 asks while a decision document
-    holds 1 000 ask times, so a robot allowed that many would publish decisions that review
-    and replay refuse. The caps now stop at MAX_ASKS_CAP = wire.MAX_TIMES, and a decision at
-    that cap, with a person asked that often too, still decodes."""
+    """Found by the load work.
+
+    The caps used to allow 100 000 asks while a decision document holds 1 000 ask times, so a robot
+    allowed that many would publish decisions that review and replay refuse. The caps now stop at
+    MAX_ASKS_CAP = wire.MAX_TIMES, and a decision at that cap, with a person asked that often too,
+    still decodes.
+    """
     from helpaware_node.core import PersonRecord, candidate_from_record, note_ask
     from helpaware_node.core.model import MAX_ASKS_CAP, CoreInputError
     assert wire.MAX_TIMES == MAX_ASKS_CAP

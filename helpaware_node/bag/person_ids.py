@@ -26,7 +26,7 @@ HASHED_MARK = "helpaware.person_ids"
 
 
 def hash_ids_in(doc, key_of: Callable[[str], str], inside_person: bool = False):
-    """The document with every person id replaced by key_of(id) (a new object)."""
+    """Return the document with every person id replaced by key_of(id) (a new object)."""
     if isinstance(doc, dict):
         out = {}
         for k, v in doc.items():
@@ -41,7 +41,7 @@ def hash_ids_in(doc, key_of: Callable[[str], str], inside_person: bool = False):
 
 
 def id_hasher(site_key: bytes) -> Callable[[bytes], bytes]:
-    """A transform of raw std_msgs/String bytes: JSON in, JSON with hashed ids out."""
+    """Return a transform of raw std_msgs/String bytes: JSON in, JSON with hashed ids out."""
     cache: dict[str, str] = {}
 
     def key_of(raw_id: str) -> str:

@@ -1,6 +1,8 @@
-"""Reading rosbag2 bags: MCAP or sqlite3, ours or made by `ros2 bag record`; a bag directory or a
-single .mcap/.db3 file.  A truncated or corrupt MCAP file is read as far as its records are
-whole (`BagReadError` says which file and how far), so a review can still report what was there.
+"""Reading rosbag2 bags: MCAP or sqlite3, ours or made by `ros2 bag record`.
+
+a bag directory or a single .mcap/.db3 file.  A truncated or corrupt MCAP file is read as far as
+its records are whole (`BagReadError` says which file and how far), so a review can still report
+what was there.
 """
 from __future__ import annotations
 
@@ -88,8 +90,11 @@ class BagSource:
 
     @property
     def index_counts(self) -> Optional[dict[str, int]]:
-        """Per-topic counts from the bag's own index, when the bag opened intact and its index
-        accounts for every message (else None: count by reading)."""
+        """Per-topic counts from the bag's own index.
+
+        When the bag opened intact and its index accounts for every message (else None: count by
+        reading).
+        """
         if self._reader is None:
             return None
         total = self._reader.message_count
@@ -120,8 +125,11 @@ class BagSource:
             yield BagMessage(conn.topic, conn.msgtype, t_ns, data)
 
     def _indexed(self, topics: Optional[set[str]]):
-        """Messages of an intact bag through its index; a failure part-way is kept in
-        `self.error` with how far the reading got, instead of ending the caller."""
+        """Messages of an intact bag through its index.
+
+        a failure part-way is kept in `self.error` with how far the reading got, instead of ending
+        the caller.
+        """
         conns = [c for c in self._reader.connections if topics is None or c.topic in topics]
         if not conns:
             return

@@ -60,7 +60,7 @@ def serialize_string(text: str) -> bytes:
 
 
 def deserialize_string(data: bytes | memoryview) -> str:
-    """The text of a CDR-serialised std_msgs/String (either byte order)."""
+    """Return the text of a CDR-serialised std_msgs/String (either byte order)."""
     if len(data) < 8:
         raise ValueError(f"{len(data)} bytes is too short for a std_msgs/String")
     little = data[1] == 1

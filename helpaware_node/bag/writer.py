@@ -1,6 +1,8 @@
-"""Writing rosbag2 bags: always MCAP storage, rosbag2 format version 9, with the ROS 2 message
-definition and type hash of every topic, so `ros2 bag info/play` and any rosbag2 reader accept
-the bag."""
+"""Writing rosbag2 bags.
+
+Always MCAP storage, rosbag2 format version 9, with the ROS 2 message definition and type hash of
+every topic, so `ros2 bag info/play` and any rosbag2 reader accept the bag.
+"""
 from __future__ import annotations
 
 import os

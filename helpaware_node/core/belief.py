@@ -44,7 +44,7 @@ _AT_C_ONE_ONLY = {"divide": "ignore", "invalid": "ignore", "over": "ignore"}
 
 
 def _declined_mixture(a, b, c):
-    """The parts of the exact declined posterior, a two-Beta mixture, that never cancel.
+    """Return the parts of the exact declined posterior, a two-Beta mixture, that never cancel.
 
     1 - c w = (1 - c) + c (1 - w) and (1 - w) Beta(w; a, b) = b/s Beta(w; a, b + 1), s = a + b:
 
@@ -104,8 +104,10 @@ def declined_ab(a, b, c):
 
 
 def _exact_ends(c, mixed_a, mixed_b, full_a, full_b, none_a, none_b):
-    """c = 0 carries no information and c = 1 gives the conjugate Beta(a, b + 1): use the
-    closed forms there (bit for bit, and no 0/0 where b/(a+b) underflows to 0)."""
+    """c = 0 carries no information and c = 1 gives the conjugate Beta(a, b + 1).
+
+    Use the closed forms there (bit for bit, and no 0/0 where b/(a+b) underflows to 0).
+    """
     return (np.where(c <= 0.0, none_a, np.where(c >= 1.0, full_a, mixed_a)),
             np.where(c <= 0.0, none_b, np.where(c >= 1.0, full_b, mixed_b)))
 

@@ -70,7 +70,8 @@ def _root(alpha, beta, gamma, k: float):
     xi - ln xi. For s > 50 (gamma L small beside beta) Newton's method on
     g(L) = alpha e^(-k L) - beta - gamma L itself, from ln(alpha / beta) / k: g is convex and
     decreasing, so after the first step the iterates rise to the root. k = 0 and gamma = 0
-    have their own closed forms."""
+    have their own closed forms.
+    """
     if k == 0.0:
         return (alpha - beta) / gamma          # gamma > 0: else U never reaches 0
     L = np.empty_like(alpha)

@@ -35,7 +35,8 @@ def check_range(name: str, value: Any, low: float, high: float = math.inf,
                 low_open: bool = False, high_open: bool = False) -> float:
     """Return `value` as float or raise CoreInputError naming `name` and the allowed range.
 
-    The message is bounded and never recurses into `value` (core.preview), whatever it is."""
+    The message is bounded and never recurses into `value` (core.preview), whatever it is.
+    """
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise CoreInputError(f"{short_name(name)}: expected a number, got {describe(value)}")
     try:
@@ -173,7 +174,7 @@ class _FrozenDict(dict):
 
 
 def to_plain(value: Any) -> dict:
-    """A SiteModel or DecisionConfig as plain JSON-ready values."""
+    """Return a SiteModel or DecisionConfig as plain JSON-ready values."""
     out = dataclasses.asdict(value)
     for k, v in out.items():
         if isinstance(v, tuple):

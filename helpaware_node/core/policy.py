@@ -93,7 +93,7 @@ def candidate_from_record(person_id: str, record: PersonRecord, now_s: float, mo
                           distance_m: float, observed_at_s: float,
                           busyness: Optional[float] = None, activity: str = "",
                           opted_out: bool = False) -> Candidate:
-    """The one way node, simulator and replay turn a remembered person into a candidate."""
+    """Return the one way node, simulator and replay turn a remembered person into a candidate."""
     return Candidate(person_id=person_id, distance_m=distance_m, observed_at_s=observed_at_s,
                      belief=belief_at(record, now_s, model), busyness=busyness,
                      activity=activity, ask_times_s=record.ask_times_s,
@@ -148,8 +148,10 @@ class Decision:
         return self.evaluation.candidates[self.person_index].person_id
 
     def rationale(self) -> list[dict]:
-        """Per candidate: belief, context, A, VOI, N, lasting cost, Q, or the exclusion that
-        ruled them out."""
+        """Per candidate: belief, context, A, VOI, N, lasting cost, Q.
+
+        Or the exclusion that ruled them out.
+        """
         ev = self.evaluation
         rows = []
         for i, cand in enumerate(ev.candidates):
@@ -194,13 +196,15 @@ def _limits(cand: Candidate, busyness: float, now_s: float, config: DecisionConf
 
 
 def ask_advantage(p, continue_cost_s, help_time_s, ask_time_s, interruption_s):
-    """A = p (C - t_help) - (1 - p) t_ask - I."""
+    """Return a = p (C - t_help) - (1 - p) t_ask - I."""
     return p * (continue_cost_s - help_time_s) - (1.0 - p) * ask_time_s - interruption_s
 
 
 def typical_terms(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
-    """(alpha, beta, gamma) of the advantage at a typical future request with ask load L:
-    alpha e^(-k_load L) - beta - gamma L, at typical busyness (DESIGN.md section 4)."""
+    """(alpha, beta, gamma) of the advantage at a typical future request with ask load L.
+
+    alpha e^(-k_load L) - beta - gamma L, at typical busyness (DESIGN.md section 4).
+    """
     cbar = math.exp(-model.k_busy * config.typical_busyness)
     ibar = config.interruption_weight_s * (1.0 + config.busy_cost * config.typical_busyness)
     gain = cbar * (config.typical_continue_cost_s - help_time_s + config.ask_time_s)
@@ -229,14 +233,16 @@ def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_ti
 
 
 def encounter_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """How often this person is a candidate at a need: the Gamma-Poisson posterior mean
-    (prior_count + count) / (window + time since first seen), prior_count =
-    prior_candidate_rate_per_day * window / 1 day, window = prior_rate_window_s.
+    """How often this person is a candidate at a need.
+
+    The Gamma-Poisson posterior mean (prior_count + count) / (window + time since first seen),
+    prior_count = prior_candidate_rate_per_day * window / 1 day, window = prior_rate_window_s.
 
     `count` counts the needs before this one where the person was a candidate, the first
     included: the first encounter is how they entered the record, and this need (they are
     here now) is the first one after it, so `count` is the number of encounters seen since
-    first_seen_s, the exposure that Gamma-Poisson conjugacy wants (docs/decision.md)."""
+    first_seen_s, the exposure that Gamma-Poisson conjugacy wants (docs/decision.md).
+    """
     window = config.prior_rate_window_s
     prior_count = config.prior_candidate_rate_per_day * window / DAY_S
     span = np.maximum(now_s - np.asarray(first_seen_s, dtype=float), 0.0)
@@ -244,11 +250,13 @@ def encounter_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionCon
 
 
 def future_ask_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """The rate of later requests where this person's answer or load can matter: the
-    encounter rate, at most the robot's own max_asks_per_hour. Both the value of learning and
-    the lasting cost are realised only at later asks, and the robot asks nobody more often than
-    its hourly cap, so a person in view at every need weighs no more than that (without the
-    cap, N and the lasting cost of such a person grow with the need rate without bound)."""
+    """Return the rate of later requests where this person's answer or load can matter.
+
+    The encounter rate, at most the robot's own max_asks_per_hour. Both the value of learning and
+    the lasting cost are realised only at later asks, and the robot asks nobody more often than its
+    hourly cap, so a person in view at every need weighs no more than that (without the cap, N and
+    the lasting cost of such a person grow with the need rate without bound).
+    """
     cap_per_s = config.max_asks_per_hour / 3600.0
     return np.minimum(encounter_rate_per_s(counts, first_seen_s, now_s, config), cap_per_s)
 
@@ -352,6 +360,6 @@ def conclude(ev: Evaluation, index: Optional[int], policy: str = "lookahead") ->
 def decide(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
            robot_ask_times_s: Sequence[float], model: SiteModel, config: DecisionConfig,
            chooser: Chooser = choose_lookahead, policy: str = "lookahead") -> Decision:
-    """The one decision code path of node, simulator and replay."""
+    """Return the one decision code path of node, simulator and replay."""
     ev = evaluate(need, candidates, now_s, robot_ask_times_s, model, config)
     return conclude(ev, chooser(ev), policy)

@@ -56,7 +56,7 @@ def wait_configured(node: subprocess.Popen, timeout_s: float = 30.0) -> bool:
 
 
 def run_night_shift(args: argparse.Namespace) -> int:
-    """The demo's steps, in order."""
+    """Return the demo's steps, in order."""
     started = time.monotonic()
     print("helpaware demo: invented hospital night shift (a supply robot, 40 staff), sped up")
     out_dir = record_and_review.OUT_DIR

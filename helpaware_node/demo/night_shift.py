@@ -81,8 +81,11 @@ def clock_text(t_s: float) -> str:
 
 
 def answer(rng: random.Random, person: Staff, busyness: float, t_s: float) -> str:
-    """Invented ground truth: helps with w exp(-(k_busy x + k_load f)), f the person's earlier
-    asks decayed with TRUE_HALF_LIFE_S; some asks go unnoticed."""
+    """Invented ground truth.
+
+    Helps with w exp(-(k_busy x + k_load f)), f the person's earlier asks decayed with
+    TRUE_HALF_LIFE_S; some asks go unnoticed.
+    """
     if rng.random() < 0.04:
         return "could_not_ask"
     load = sum(2.0 ** (-(t_s - a) / TRUE_HALF_LIFE_S) for a in person.ask_times_s)
@@ -94,7 +97,7 @@ def answer(rng: random.Random, person: Staff, busyness: float, t_s: float) -> st
 
 
 def constants_line(params: dict) -> str:
-    """The site constants a decision was made with, and where they came from."""
+    """Return the site constants a decision was made with, and where they came from."""
     m = params.get("model", {})
     src = params.get("source", {})
     where = (f"learned revision {src.get('revision')}" if src.get("site_constants") == "learned"
@@ -150,8 +153,11 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         clock_pub.publish(msg)
 
     def wait_decision(rid: str, t_s: float) -> bool:
-        """Spin until the need is decided, publishing the held clock as a paused simulator
-        does (a reading lost before the node's /clock matched must not leave it at zero)."""
+        """Spin until the need is decided.
+
+        Publishing the held clock as a paused simulator does (a reading lost before the node's
+        /clock matched must not leave it at zero).
+        """
         end = time.monotonic() + DECISION_WAIT_S
         while time.monotonic() < end:
             set_clock(t_s)

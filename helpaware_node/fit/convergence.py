@@ -48,11 +48,13 @@ CAUSES = ("not_finite", "edge", "flat", "iteration_limit", "stalled", "drift", "
 
 @dataclass(frozen=True)
 class Coordinate:
-    """One optimiser coordinate and its limits.  `low`/`high`: at or beyond this value the
-    coordinate counts as at that limit (for a box bound, the bound; for a probability on the
-    logit scale, where the optimiser never reaches the infinite bound, a value where the
-    probability is within 1e-6 of 0 or 1).  `*_natural`: the limit is a value the model allows
-    (a maximum there is an answer) rather than the edge of the search range."""
+    """One optimiser coordinate and its limits.
+
+    `low`/`high`: at or beyond this value the coordinate counts as at that limit (for a box bound,
+    the bound; for a probability on the logit scale, where the optimiser never reaches the infinite
+    bound, a value where the probability is within 1e-6 of 0 or 1).  `*_natural`: the limit is a
+    value the model allows (a maximum there is an answer) rather than the edge of the search range.
+    """
 
     name: str
     low: float = -math.inf
@@ -86,7 +88,7 @@ class ConvergenceVerdict:
     optimiser_status: str = ""         # the optimiser's own message, kept for the record only
 
     def line(self) -> str:
-        """The verdict as a tool prints it: 'converged: ...' or 'NOT converged: ...'."""
+        """Return the verdict as a tool prints it: 'converged: ...' or 'NOT converged: ...'."""
         return f"{'converged' if self.converged else 'NOT converged'}: {self.reason}"
 
     def to_dict(self) -> dict:
@@ -108,11 +110,12 @@ def assess_convergence(coords: Sequence[Coordinate], z: np.ndarray, loglik: floa
                        gradient: np.ndarray, hessian: np.ndarray,
                        loglik_history: Sequence[float], max_iter: int,
                        optimiser_status: str = "") -> ConvergenceVerdict:
-    """The verdict at the solution z of a maximisation.
+    """Return the verdict at the solution z of a maximisation.
 
     gradient, hessian: of the log-likelihood (or any objective being maximised) in z, over
     `coords` (the Hessian's rows of coordinates held at a limit are not used);
-    loglik_history: the objective at the start and after each iteration.  Pure: no I/O."""
+    loglik_history: the objective at the start and after each iteration.  Pure: no I/O.
+    """
     z = np.asarray(z, float)
     g = np.asarray(gradient, float)
     hess = np.asarray(hessian, float)

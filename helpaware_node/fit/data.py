@@ -46,7 +46,8 @@ class AskAges:
 
     The ask load of row j under half-life h is  sum over its pairs of 2^(-age/h)  (the core's
     `ask_load`); sorted by age, the pairs that matter for a given h (age below 40 h) are a
-    prefix, so one half-life costs one vectorised pass over that prefix."""
+    prefix, so one half-life costs one vectorised pass over that prefix.
+    """
 
     row: np.ndarray           # int32: outcome row the ask came before
     age_s: np.ndarray         # float: outcome time minus ask time, > 0, ascending
@@ -62,14 +63,20 @@ class AskAges:
 
     @classmethod
     def of(cls, row: np.ndarray, age_s: np.ndarray) -> "AskAges":
-        """Pairs as given, sorted by age; ages clipped at 0 (an ask stamped after the outcome,
-        a clock that jumped, counts as just made, as in the core)."""
+        """Pairs as given, sorted by age.
+
+        Ages clipped at 0 (an ask stamped after the outcome, a clock that jumped, counts as just
+        made, as in the core).
+        """
         age = np.maximum(np.asarray(age_s, float), 0.0)
         order = np.argsort(age, kind="stable")
         return cls(np.asarray(row, np.int32)[order], age[order])
 
     def reindexed(self, new_row_of_old: np.ndarray, keep: np.ndarray | None = None) -> "AskAges":
-        """The same pairs for rows renumbered (new_row_of_old[old]); `keep`: old rows kept."""
+        """Return the same pairs for rows renumbered (new_row_of_old[old]).
+
+        `keep`: old rows kept.
+        """
         mask = np.ones(self.row.size, bool) if keep is None else keep[self.row]
         return AskAges(new_row_of_old[self.row[mask]].astype(np.int32), self.age_s[mask])
 
@@ -150,7 +157,7 @@ class OutcomeData:
         return tuple(float(np.sum(w[self.result == r])) for r in (HELPED, DECLINED, NO_RESPONSE))
 
     def subset_people(self, people: np.ndarray) -> "OutcomeData":
-        """The outcomes of the given person indices (renumbered 0..len-1)."""
+        """Return the outcomes of the given person indices (renumbered 0..len-1)."""
         people = np.unique(np.asarray(people, dtype=int))
         mask = np.isin(self.person, people)
         remap = np.full(self.n_people, -1, dtype=int)
@@ -169,7 +176,9 @@ def from_arrays(person: Sequence, busyness: Sequence, load: Sequence, result: Se
                 prior_asks: AskAges | None = None, weight: Sequence[float] | None = None
                 ) -> OutcomeData:
     """Build (and sort) a table from parallel arrays; `person` may be any hashable labels.
-    `prior_asks` rows and `weight` (per person key) refer to the order given."""
+
+    `prior_asks` rows and `weight` (per person key) refer to the order given.
+    """
     labels = list(person)
     if person_keys is None:
         person_keys = sorted({str(p) for p in labels})
@@ -214,7 +223,8 @@ class _Records:
 
     Comment ('#') and blank lines are skipped only between records, so a quoted field that
     holds line breaks (a request kind from a peer may) stays whole and the line numbers stay
-    right; the csv module reads the file itself, one line at a time."""
+    right; the csv module reads the file itself, one line at a time.
+    """
 
     def __init__(self, handle) -> None:
         self._handle = handle
@@ -239,8 +249,11 @@ class _Records:
 
 @contextlib.contextmanager
 def _long_fields():
-    """The csv module refuses a field past 131 072 characters; a store written before request
-    kinds were bounded may hold a longer one (fit never reads it). Raised for this read only."""
+    """Return the csv module refuses a field past 131 072 characters.
+
+    a store written before request kinds were bounded may hold a longer one (fit never reads it).
+    Raised for this read only.
+    """
     before = csv.field_size_limit()
     csv.field_size_limit(MAX_CSV_FIELD_CHARS)
     try:

@@ -60,8 +60,11 @@ H_HINTS = {"low_hint": "asks seem to weigh on people for no time at all: fix "
 
 
 def theta_bounds(ranges: dict | None = None) -> list[tuple[float, float]]:
-    """The search box in theta: BOUNDS narrowed by `ranges` (natural scale, name -> (low,
-    high), e.g. the node's parameter ranges), never widened."""
+    """Return the search box in theta.
+
+    BOUNDS narrowed by `ranges` (natural scale, name -> (low, high), e.g. the node's parameter
+    ranges), never widened.
+    """
     out = list(BOUNDS)
     to_z = {0: math.log, 1: math.log, 2: float, 3: float, 4: _logit_safe, 5: _logit_safe,
             6: math.log}
@@ -83,11 +86,13 @@ def _logit_safe(v: float) -> float:
 
 
 def coordinates(bounds: Sequence[tuple[float, float]] = BOUNDS) -> tuple[Coordinate, ...]:
-    """The optimiser's coordinates with their limits: a0, b0 have only search-range edges
-    (a Beta prior of strength 0 or infinity is no answer); k = 0 and probabilities of 0 or 1
-    are values the model allows; the half-life's edges are the search range's.  A range
-    narrowed below a natural limit (a node's k_busy range starting at 0.5) makes that limit
-    an edge."""
+    """Return the optimiser's coordinates with their limits.
+
+    a0, b0 have only search-range edges (a Beta prior of strength 0 or infinity is no answer); k =
+    0 and probabilities of 0 or 1 are values the model allows; the half-life's edges are the search
+    range's.  A range narrowed below a natural limit (a node's k_busy range starting at 0.5) makes
+    that limit an edge.
+    """
     (la, ha), (lb, hb), (lk1, hk1), (lk2, hk2), (lq, hq), (lt, ht), (lh, hh) = bounds
     prior = lambda lo, hi: dict(low=lo + BOUND_SLACK, high=hi - BOUND_SLACK,   # noqa: E731
                                 scale="log", **PRIOR_HINTS)
@@ -116,7 +121,7 @@ def to_theta(p: SiteParams) -> np.ndarray:
 
 
 def from_theta(theta: np.ndarray, half_life: bool = True) -> SiteParams:
-    """The natural values; `half_life` False: no half-life (the data's load column)."""
+    """Return the natural values; `half_life` False: no half-life (the data's load column)."""
     return SiteParams(math.exp(theta[0]), math.exp(theta[1]), float(theta[2]), float(theta[3]),
                       float(expit(theta[4])), float(expit(theta[5])),
                       math.exp(theta[H]) if half_life else None)
@@ -131,8 +136,10 @@ def natural_jacobian(theta: np.ndarray) -> np.ndarray:
 
 class Objective:
     """Negative log-likelihood and its gradient in theta, on the free coordinates only.
-    `liks`: the terms summed (the data, and for an online refit the pseudo-outcomes); each is
-    the same SiteLikelihood, so the penalised objective is one likelihood code path."""
+
+    `liks`: the terms summed (the data, and for an online refit the pseudo-outcomes); each is the
+    same SiteLikelihood, so the penalised objective is one likelihood code path.
+    """
 
     def __init__(self, lik: SiteLikelihood | Sequence[SiteLikelihood], free: np.ndarray,
                  fixed_theta: np.ndarray, fd_step: float = 2e-3, half_life: bool = True,
@@ -237,10 +244,12 @@ def check_data(data: OutcomeData, fix_k_busy: bool = False, fix_k_load: bool = F
                penalised: bool = False
                ) -> tuple[dict[str, float], dict[str, str], list[str]]:
     """Decide which constants the data can identify. Returns (fixed values, reasons, notes).
+
     Raises FitInputError when nothing sensible can be fitted.  `load`: the ask load per row
-    (recomputed from ask times) when not the data's column.  `penalised`: pseudo-outcomes
-    from the parameter file join the data (an online refit), so only too little data is
-    refused and nothing is fixed for want of variation: the pseudo-outcomes pin it."""
+    (recomputed from ask times) when not the data's column.  `penalised`: pseudo-outcomes from the
+    parameter file join the data (an online refit), so only too little data is refused and nothing
+    is fixed for want of variation: the pseudo-outcomes pin it.
+    """
     counts = data.counts()
     n = data.n_outcomes
     if n < MIN_OUTCOMES:
@@ -296,7 +305,8 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
     to the likelihood (an online refit's shrinkage, fit/pseudo_outcomes.py).  ranges: name ->
     (low, high) on the natural scale, narrowing the search box (a node's parameter ranges).
     quadratic: (centre, precision) in theta, a Gaussian term added to the objective (the
-    shrinkage's curvature floor, fit/pseudo_outcomes.py)."""
+    shrinkage's curvature floor, fit/pseudo_outcomes.py).
+    """
     use_h = data.prior_asks is not None
     lik = SiteLikelihood(data, use_reporting_factor=True if pseudo is not None else None)
     start_h = float(start.ask_memory_half_life_s) if (

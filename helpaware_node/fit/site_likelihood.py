@@ -44,8 +44,11 @@ from .data import HELPED, NO_RESPONSE, OutcomeData
 
 
 def logsumexp(x: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:
-    """log(sum(exp(x))) along `axis`, stable; plain numpy (scipy's version costs ~1 ms a call
-    in array-API bookkeeping, which dominated small fits)."""
+    """log(sum(exp(x))) along `axis`, stable.
+
+    Plain numpy (scipy's version costs ~1 ms a call in array-API bookkeeping, which dominated small
+    fits).
+    """
     m = np.max(x, axis=axis, keepdims=True)
     m = np.where(np.isfinite(m), m, 0.0)
     with np.errstate(divide="ignore"):
@@ -162,8 +165,10 @@ class SiteLikelihood:
         return self.data.prior_asks is not None
 
     def loads(self, p: SiteParams) -> tuple[np.ndarray, np.ndarray | None]:
-        """Ask load per row under p's half-life (and its derivative in log h), or the data's
-        column when p has no half-life or the data no ask times."""
+        """Ask load per row under p's half-life (and its derivative in log h).
+
+        Or the data's column when p has no half-life or the data no ask times.
+        """
         h = p.ask_memory_half_life_s
         if h is None or self.data.prior_asks is None:
             return self.data.load, None
@@ -200,9 +205,10 @@ class SiteLikelihood:
         return logf, (dk_busy, dk_load, dq, dlog_h)
 
     def per_person(self, p: SiteParams, want_grad: bool = False):
-        """log L_i per person (unweighted, without the reporting factor) and, if asked,
-        d/d(k_busy, k_load, q, log h) per person at fixed nodes (the nodes depend on a0, b0
-        only)."""
+        """log L_i per person (unweighted, without the reporting factor) and, if asked.
+
+        d/d(k_busy, k_load, q, log h) per person at fixed nodes (the nodes depend on a0, b0 only).
+        """
         ll = np.zeros(self.data.n_people)
         grad = np.zeros((self.data.n_people, 4)) if want_grad else None
         for b in self.buckets:

@@ -44,7 +44,7 @@ def table(headers, rows) -> str:
 
 
 def duration_text(seconds: float) -> str:
-    """A time span as people read it: `7 h 28 min`, `12 min 5 s`, `42.0 s`."""
+    """Return a time span as people read it: `7 h 28 min`, `12 min 5 s`, `42.0 s`."""
     if not math.isfinite(seconds) or seconds < 0:
         return "n/a"
     if seconds < 60:
@@ -62,10 +62,12 @@ MIN_ASKS_TO_JUDGE = 20
 
 
 def calibration_gap(bins: list[dict]) -> dict:
-    """Calibration in the large from the bins: asks, mean predicted p, observed help rate, and
-    the standard error of their difference. The error uses each bin's mean p, which bounds
-    the exact binomial error sum p(1-p) from above (p(1-p) is concave), so a gap called larger
-    than chance is one."""
+    """Calibration in the large from the bins.
+
+    Asks, mean predicted p, observed help rate, and the standard error of their difference. The
+    error uses each bin's mean p, which bounds the exact binomial error sum p(1-p) from above
+    (p(1-p) is concave), so a gap called larger than chance is one.
+    """
     n = sum(b["count"] for b in bins)
     if not n:
         return {"asks": 0}
@@ -77,7 +79,7 @@ def calibration_gap(bins: list[dict]) -> dict:
 
 
 def calibration_advice(bag: str, bins: list[dict]) -> str:
-    """What the calibration section says to do, with the commands to do it on this bag."""
+    """Return what the calibration section says to do, with the commands to do it on this bag."""
     g = calibration_gap(bins)
     if not g["asks"]:
         return "<p>No answered asks in this bag: nothing to compare predictions with.</p>"

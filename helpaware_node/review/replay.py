@@ -33,9 +33,12 @@ def _never(_ev) -> None:
 
 
 def replay_one(document: dict, model: SiteModel, config: DecisionConfig) -> Decision:
-    """Decide again. A decision the node forced to continue (its policy is not the look-ahead,
-    e.g. the per-need ask limit or the operator switch) is forced again: those are node
-    settings the parameter set does not change."""
+    """Decide again.
+
+    A decision the node forced to continue (its policy is not the look-ahead, e.g. the per-need ask
+    limit or the operator switch) is forced again: those are node settings the parameter set does
+    not change.
+    """
     need, candidates, now_s, robot_asks = rw.replay_inputs(document)
     policy = document.get("policy", "lookahead")
     if policy != "lookahead":

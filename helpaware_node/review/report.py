@@ -90,7 +90,7 @@ def build(bag: str, out_dir: str, params_file: Optional[str] = None,
 
 
 def summary_text(summary: dict, out_dir: str) -> str:
-    """The summary as the terminal shows it: a few lines, then where the report is."""
+    """Return the summary as the terminal shows it: a few lines, then where the report is."""
     cal = summary["calibration"]
     fmt = lambda v: "n/a" if v is None else f"{v:.3f}"  # noqa: E731
     lines = [f"bag {summary['bag']} ({summary['storage']}): "

@@ -72,15 +72,18 @@ def fleet_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
 
 
 def fleet_reader_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
-    """The subscription's QoS: keeps all, since one reader holds every peer's history at
-    once (`depth` only matters to readers that fall back to keep-last)."""
+    """Return the subscription's QoS.
+
+    Keeps all, since one reader holds every peer's history at once (`depth` only matters to readers
+    that fall back to keep-last).
+    """
     return QoSProfile(history=HistoryPolicy.KEEP_ALL, depth=depth,
                       reliability=ReliabilityPolicy.RELIABLE,
                       durability=DurabilityPolicy.TRANSIENT_LOCAL)
 
 
 def key_ring_of(store) -> KeyRing:
-    """The signing keys of the store's site key file (signing.py, store/keys.py)."""
+    """Return the signing keys of the store's site key file (signing.py, store/keys.py)."""
     return store.site_keys.key_ring()
 
 
@@ -198,9 +201,11 @@ class FleetLink(CountsRefusals):
         self._pub.publish(String(data=encode_document(kind, event, self._keys)))
 
     def publish_many(self, events: Iterable[AnyEvent]) -> None:
-        """Share stored events (the re-offer at start). One the rules refuse now (stored by
-        an older version: a long request kind, an odd event id) is skipped and counted, so an
-        old store never stops a start."""
+        """Share stored events (the re-offer at start).
+
+        One the rules refuse now (stored by an older version: a long request kind, an odd event id)
+        is skipped and counted, so an old store never stops a start.
+        """
         for e in events:
             try:
                 self.publish(e)
@@ -232,9 +237,12 @@ class FleetLink(CountsRefusals):
         self.publish_act(act)
 
     def apply_act(self, act: PrivacyAct) -> bool:
-        """A forget or opt-out received from the console or a peer: applied once per request,
-        and a request is answered once with this robot's own signed act (which also carries
-        it to robots that were not listening).  False when it was applied here already."""
+        """Return a forget or opt-out received from the console or a peer.
+
+        Applied once per request, and a request is answered once with this robot's own signed act
+        (which also carries it to robots that were not listening).  False when it was applied here
+        already.
+        """
         with self._lock:
             if act.identity in self._applied:
                 return False
@@ -267,7 +275,7 @@ class FleetLink(CountsRefusals):
         return n
 
     def diagnostic_values(self) -> dict:
-        """What /diagnostics shows of the link: queue, refusals by reason, keys in force."""
+        """Return what /diagnostics shows of the link: queue, refusals by reason, keys in force."""
         p, k = DIAGNOSTICS_PREFIX, self._keys
         values = {f"{p}.queued": self.queued_count, f"{p}.dropped": self.dropped_count,
                   f"{p}.store_failures": self.store_failures,
@@ -285,9 +293,11 @@ class FleetLink(CountsRefusals):
 
     # -- receiving
     def _on_delivery(self, msg: String) -> None:
-        """The subscription callback: decode, queue, return (storing is the timer's job).
-        Whatever one document does, it is contained here: a refusal is counted by reason,
-        anything else under handler_error; the robot carries on either way."""
+        """Return the subscription callback: decode, queue, return (storing is the timer's job).
+
+        Whatever one document does, it is contained here: a refusal is counted by reason, anything
+        else under handler_error; the robot carries on either way.
+        """
         try:
             item = self._decode_counted(msg.data)
             if item is not None:
@@ -337,7 +347,10 @@ class FleetLink(CountsRefusals):
             return None
 
     def _on_tick(self) -> None:
-        """The timer: store a full batch at once, a smaller one once it waited MERGE_WAIT_S."""
+        """Return the timer: store a full batch at once.
+
+        a smaller one once it waited MERGE_WAIT_S.
+        """
         try:
             if self._queued and (len(self._queued) >= MERGE_BATCH
                                  or time.monotonic() - self._queued_since_s >= MERGE_WAIT_S):
@@ -380,14 +393,17 @@ class FleetLink(CountsRefusals):
         return None if error is not None else len(new)
 
     def _store_batch(self, events: list[AnyEvent]):
-        """(stored, not yet tried, error): a batch call is all or nothing; one call per event
-        stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not held long.
+        """(stored, not yet tried, error): a batch call is all or nothing.
+
+        One call per event stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not
+        held long.
 
         A write that fails because of the store (refused_by_store: disk full, read-only, I/O)
         keeps the events for the next try.  One that fails because of its events (a value
         the store cannot hold, which the decoder should have refused) must not hold the
         queue forever: the culprits are found by halving and dropped, counted and logged,
-        and the rest of the batch is stored."""
+        and the rest of the batch is stored.
+        """
         whole = self._append_many or (None if self._append is not None
                                       else lambda batch: append_batch(self._store, batch))
         if whole is not None:
@@ -409,8 +425,10 @@ class FleetLink(CountsRefusals):
         return stored, [], None
 
     def _isolated(self, whole, events: list[AnyEvent]):
-        """`whole(events)`; if it raises for its events, each half on its own, down to the
-        single events that fail alone (about 2 log2(n) writes for one culprit in n)."""
+        """`whole(events)`; if it raises for its events, each half on its own.
+
+        Down to the single events that fail alone (about 2 log2(n) writes for one culprit in n).
+        """
         stored: list[AnyEvent] = []
         parts = [events]
         while parts:
@@ -438,8 +456,7 @@ class FleetLink(CountsRefusals):
 
 # -- a small stand-alone peer (tests, trying the exchange by hand) ------------------------
 def run_peer(argv: list[str] | None = None) -> int:
-    """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'counts',
-    'quit'.
+    """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'counts', 'quit'.
 
     Prints 'ready', 'ack EVENT_ID', 'merged EVENT_ID', 'belief A B' (repr floats),
     'counts merged=N refused=N <reason>=N ...'.

@@ -81,24 +81,26 @@ LOOP_ARGUMENTS: tuple[LaunchArgument, ...] = DECIDER_ARGUMENTS[:2] + (
 
 
 def config_dir() -> str:
-    """The installed share/<package>/config, else the source tree's config/."""
+    """Return the installed share/<package>/config, else the source tree's config/."""
     return package_data.data_dir("config")
 
 
 def params_file(name: str = DEFAULT_PARAMS_FILE) -> str:
-    """A parameter file by name (config/) or by path (see package_data.data_file)."""
+    """Return a parameter file by name (config/) or by path (see package_data.data_file)."""
     return package_data.data_file("config", name)
 
 
 def middleware_profile() -> str:
-    """The shipped Fast DDS profile for the whole robot ('' if it is not installed)."""
+    """Return the shipped Fast DDS profile for the whole robot ('' if it is not installed)."""
     path = os.path.join(config_dir(), MIDDLEWARE_PROFILE_FILE)
     return path if os.path.isfile(path) else ""
 
 
 def profile_environment(base: Mapping[str, str]) -> dict:
-    """What to add to `base` for the robot's middleware profile: nothing when `base` names a
-    profile of its own (or the file is not installed)."""
+    """Return what to add to `base` for the robot's middleware profile.
+
+    Nothing when `base` names a profile of its own (or the file is not installed).
+    """
     if base.get(PROFILE_ENV) or base.get(PROFILE_ENV_OLD) or not middleware_profile():
         return {}
     return {PROFILE_ENV: middleware_profile()}
@@ -121,6 +123,7 @@ def _ros_value(value: object) -> str:
 @dataclass(frozen=True)
 class NodeSpec:
     """One node as it is started: by launch_ros (launch_kwargs) or as a process (command)."""
+
     executable: str
     name: str
     namespace: str = ""
@@ -182,7 +185,7 @@ def decider(params: Optional[str] = None, namespace: str = "",
             remaps: Sequence[tuple[str, str]] = REMAPS,
             overrides: Optional[Mapping[str, object]] = None,
             respawn: bool = False, respawn_delay_s: float = 0.0) -> NodeSpec:
-    """The decision node, with a parameter file from config/ (by name) or a path."""
+    """Return the decision node, with a parameter file from config/ (by name) or a path."""
     return NodeSpec(EXECUTABLE, NODE_NAME, namespace, params_file(params or DEFAULT_PARAMS_FILE),
                     tuple((s, d) for s, d in remaps if s != d), dict(overrides or {}),
                     respawn, respawn_delay_s)
@@ -218,7 +221,7 @@ def _float_argument(values: Mapping[str, str], name: str, default: str,
 
 
 def decider_from_arguments(values: Mapping[str, str]) -> NodeSpec:
-    """The decider from launch argument values (strings, as `ros2 launch` passes them)."""
+    """Return the decider from launch argument values (strings, as `ros2 launch` passes them)."""
     defaults = {a.name: a.default for a in DECIDER_ARGUMENTS}
     get = lambda name: str(values.get(name, defaults[name]))  # noqa: E731
     overrides = {"use_sim_time": True} if _bool_argument(values, "use_sim_time") else {}
@@ -235,7 +238,7 @@ RESULTS = ("helped", "declined", "no_response", "could_not_ask")
 
 
 def loop_from_arguments(values: Mapping[str, str]) -> list[NodeSpec]:
-    """The decider and the three stand-ins, for launch/example_loop.launch.py."""
+    """Return the decider and the three stand-ins, for launch/example_loop.launch.py."""
     defaults = {a.name: a.default for a in LOOP_ARGUMENTS}
     ns = str(values.get("namespace", defaults["namespace"]))
     period = _float_argument(values, "stuck_period_s", defaults["stuck_period_s"], 1.0, 86400.0)
@@ -261,9 +264,11 @@ def command(**kwargs) -> list[str]:
 
 def start(stdout=None, stderr=None, env: Optional[Mapping[str, str]] = None,
           spec: Optional[NodeSpec] = None, **kwargs) -> subprocess.Popen:
-    """Start a node (the decider unless `spec` says otherwise) as its own process. It inherits
-    ROS_DOMAIN_ID and ROS_AUTOMATIC_DISCOVERY_RANGE from `env` (default: this process), and
-    the robot's middleware profile as `profile_environment` says."""
+    """Start a node (the decider unless `spec` says otherwise) as its own process.
+
+    It inherits ROS_DOMAIN_ID and ROS_AUTOMATIC_DISCOVERY_RANGE from `env` (default: this process),
+    and the robot's middleware profile as `profile_environment` says.
+    """
     spec = spec or decider(**kwargs)
     base = dict(env if env is not None else os.environ)
     return subprocess.Popen(spec.command(), stdout=stdout, stderr=stderr,

@@ -61,8 +61,11 @@ def marker_array(markers: Iterable[Marker]) -> MarkerArray:
 
 
 class PersonMarkers:
-    """The markers of the people in view: belief mean and what the last decision did with
-    each ("asked" / "passed over"); people who left get a delete."""
+    """The markers of the people in view.
+
+    Belief mean and what the last decision did with each ("asked" / "passed over"); people who left
+    get a delete.
+    """
 
     def __init__(self) -> None:
         self._ids = MarkerIds()

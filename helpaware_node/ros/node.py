@@ -252,8 +252,11 @@ class HelpAwareNode(LifecycleNode):
 
     @property
     def model_in_force(self):
-        """The site model decisions use: the parameter values, with the learned constants
-        over them when site_learning is apply and a revision exists."""
+        """Return the site model decisions use.
+
+        The parameter values, with the learned constants over them when site_learning is apply and
+        a revision exists.
+        """
         return self.learning.current if self.learning is not None else self.params.model
 
     @property
@@ -265,8 +268,11 @@ class HelpAwareNode(LifecycleNode):
         return params_hash(self.model_in_force, self.params.config)
 
     def _reject(self, topic: str, reason: str) -> None:
-        """Count and log a refused document: one line per topic and field at once, then at
-        most one a minute with the number since (every count is in /diagnostics)."""
+        """Count and log a refused document.
+
+        One line per topic and field at once, then at most one a minute with the number since
+        (every count is in /diagnostics).
+        """
         self.counters.reject(topic, reason)
         field = re.sub(r"\[\d+\]", "[]", reason.partition(":")[0])[:60]
         text = self.log_lines.due(f"rejected.{topic}.{field}",
@@ -275,8 +281,10 @@ class HelpAwareNode(LifecycleNode):
             self.get_logger().warning(text)
 
     def _failed(self, topic: str, exc: BaseException) -> None:
-        """Handling one document raised something that is not a refusal: contained, counted
-        apart (a defect to report) and as a rejection; the robot carries on."""
+        """Handling one document raised something that is not a refusal.
+
+        Contained, counted apart (a defect to report) and as a rejection; the robot carries on.
+        """
         self.counters.failed[topic] += 1
         self._reject(topic, f"document: could not be handled ({exception_text(exc)})")
 
@@ -294,8 +302,11 @@ class HelpAwareNode(LifecycleNode):
             self._use_model(self.model_in_force)
 
     def _use_model(self, model) -> None:
-        """Put a site model in force: beliefs are folded under it from now on (lazily, as
-        each person is next read), new people start at its prior."""
+        """Put a site model in force.
+
+        Beliefs are folded under it from now on (lazily, as each person is next read), new people
+        start at its prior.
+        """
         self.session.set_parameters(model, self.params.config,
                                     self.params.settings.session_rules())
         if self.store is not None:
@@ -349,8 +360,11 @@ class HelpAwareNode(LifecycleNode):
             self._failed("outcome", exc)
 
     def _on_navigation_status(self, msg) -> None:
-        """A status array: its last MAX_GOAL_STATUSES entries, at most one new need (from its
-        newest aborted goal), so any array takes bounded time (session.navigation_status)."""
+        """Return a status array.
+
+        Its last MAX_GOAL_STATUSES entries, at most one new need (from its newest aborted goal), so
+        any array takes bounded time (session.navigation_status).
+        """
         self.counters.received["navigation_status"] += 1
         try:
             entries = msg.status_list

@@ -164,7 +164,7 @@ NODE_PARAMS = [
 
 
 def model_ranges() -> dict[str, tuple[float, float]]:
-    """The declared range of each model parameter (site learning stays inside them)."""
+    """Return the declared range of each model parameter (site learning stays inside them)."""
     return {s.name: (float(s.low), float(s.high)) for s in MODEL_PARAMS}
 
 
@@ -208,7 +208,7 @@ class NodeSettings:
                                 every_s=self.site_learning_every_s)
 
     def session_rules(self):
-        """The help session's rules from these settings (session.SessionRules)."""
+        """Return the help session's rules from these settings (session.SessionRules)."""
         from ..session import SessionRules
         return SessionRules(max_asks_per_need=self.max_asks_per_need,
                             pending_ask_timeout_s=self.pending_ask_timeout_s,
@@ -337,7 +337,7 @@ _EMPTY_LIST = ("has no value: an empty list [] carries no type in a ROS 2 parame
 
 
 def _check_topic(node, name: str, topic: str) -> None:
-    """A topic name rclpy cannot resolve would fail the configure step with no message."""
+    """Return a topic name rclpy cannot resolve would fail the configure step with no message."""
     if not topic:
         return
     try:
@@ -375,7 +375,10 @@ def markdown_table() -> str:
 
 
 def yaml_text(node_name: str, overrides: Optional[dict] = None) -> str:
-    """A parameter file keyed by the node name, floats always written with a decimal point."""
+    """Return a parameter file keyed by the node name.
+
+    Floats always written with a decimal point.
+    """
     overrides = overrides or {}
     lines = [f"/**/{node_name}:", "  ros__parameters:"]  # this node name in any namespace
     for s in all_specs():

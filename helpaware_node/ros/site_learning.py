@@ -30,8 +30,10 @@ CHECK_EVERY_S = 2.0
 
 
 def proposal_path(setting: str, store_file: str) -> str:
-    """site_learning_proposal_path resolved: empty means beside the store file (or under
-    ROS_HOME/helpaware for a store kept in memory)."""
+    """site_learning_proposal_path resolved.
+
+    Empty means beside the store file (or under ROS_HOME/helpaware for a store kept in memory).
+    """
     if setting:
         return setting
     if store_file:
@@ -130,7 +132,7 @@ class NodeLearning:
         self._future = self._pool.submit(_run, reader, job)
 
     def _collect(self) -> Optional[Refit]:
-        """The finished refit, or None while one runs (raises when it failed)."""
+        """Return the finished refit, or None while one runs (raises when it failed)."""
         if self._future is not None:
             if not self._future.done():
                 return None
@@ -236,7 +238,7 @@ class NodeLearning:
 
 
 def _run(reader, job) -> Refit:
-    """A refit in a thread (when no worker process could be started)."""
+    """Return a refit in a thread (when no worker process could be started)."""
     outcomes, asks = reader()
     return job.run(outcomes, asks)
 

@@ -33,15 +33,18 @@ class SessionStore(Protocol):
 
 class OutcomeWriter(Protocol):
     def write(self, event: StoredEvent) -> Optional[bool]:
-        """True: stored; False: not stored (duplicate, opted out); None: kept to be written
-        later. Raises when the store refused it (a holding writer keeps it as well)."""
+        """Return True: stored; False: not stored (duplicate, opted out).
+
+        None: kept to be written later. Raises when the store refused it (a holding writer keeps it
+        as well).
+        """
 
     @property
     def waiting(self) -> int:
         """Outcomes kept for a store that refused them."""
 
     def drop_person(self, key: str) -> None:
-        """A forgotten person: any outcome of theirs still kept is never written."""
+        """Return a forgotten person: any outcome of theirs still kept is never written."""
 
 
 class DirectWrites:
@@ -76,8 +79,11 @@ class StoreStatus:
                     kind="store_refused")
 
     def wrote(self, store) -> None:
-        """A write went through: healthy again unless the store itself says otherwise (a
-        damaged file moved aside at start stays an error)."""
+        """Return a write went through.
+
+        Healthy again unless the store itself says otherwise (a damaged file moved aside at start
+        stays an error).
+        """
         health = getattr(store, "health", None)
         self.ok = health is None or health.level == "OK"
 

@@ -1,5 +1,8 @@
-"""The plain values a help session keeps and returns: people in view, open needs, pending
-asks, its rules, and the Step each event gives back to its driver."""
+"""The plain values a help session keeps and returns.
+
+People in view, open needs, pending asks, its rules, and the Step each event gives back to its
+driver.
+"""
 from __future__ import annotations
 
 from dataclasses import dataclass, field
@@ -40,8 +43,11 @@ class SessionRules:
 
 @dataclass
 class Seen:
-    """A person in view: `person` has person_id, distance_m, busyness and activity
-    (wire.SeenPerson, the simulator's SeenPerson); `frame_id` is the driver's."""
+    """A person in view: `person` has person_id, distance_m.
+
+    Busyness and activity (wire.SeenPerson, the simulator's SeenPerson); `frame_id` is the
+    driver's.
+    """
 
     person: Any
     key: str
@@ -72,9 +78,12 @@ class PendingAsk:
 
 @dataclass(frozen=True)
 class Note:
-    """A line for the driver's log. `kind` names what it reports (the node counts notes by
-    kind and logs each kind a bounded number of times: a document may cause a note, and
-    documents can come at any rate); `throttle_s` > 0: the period of a repeated condition."""
+    """A line for the driver's log.
+
+    `kind` names what it reports (the node counts notes by kind and logs each kind a bounded number
+    of times: a document may cause a note, and documents can come at any rate); `throttle_s` > 0:
+    the period of a repeated condition.
+    """
 
     level: str                    # "info", "warning" or "error"
     text: str
@@ -94,8 +103,10 @@ class DecisionOut:
 
 @dataclass
 class Step:
-    """What one event gives back: decisions to publish (in order), events stored here to share
-    with the fleet, notes for the log."""
+    """What one event gives back.
+
+    Decisions to publish (in order), events stored here to share with the fleet, notes for the log.
+    """
 
     decisions: list[DecisionOut] = field(default_factory=list)
     share: list[AnyEvent] = field(default_factory=list)

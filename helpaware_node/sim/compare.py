@@ -51,7 +51,8 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
     `constants`: "defaults" (the robot starts from `model`, the shipped SiteModel if None)
     or "true" (every policy starts from the site's true constants, sim.truth).
     `learner_factory`: a fresh site learner per seed; adds the policy "learning" (ours,
-    starting from the same constants, with site learning)."""
+    starting from the same constants, with site learning).
+    """
     model = model or SiteModel()
     config = config or DecisionConfig()
     rules = rules or SessionRules()
@@ -102,7 +103,7 @@ def summary_table(summary: dict) -> str:
 
 
 def mostly_regulars(sc: Scenario) -> bool:
-    """A site of regulars: at least 2/3 of the people in view at a need are regulars."""
+    """Return a site of regulars: at least 2/3 of the people in view at a need are regulars."""
     total = sc.regulars_per_need + sc.strangers_per_need
     return total > 0 and sc.regulars_per_need >= 2.0 * total / 3.0
 
@@ -116,8 +117,11 @@ def _paired(per_seed: dict, x: str, y: Optional[str], key: str, ratio: float = 1
 
 
 def regret(per_seed: dict, start: str = "ours") -> dict:
-    """The regret of not knowing the site: informed minus the policy that starts from the
-    robot's constants, over the whole run and over its second half (paired over seeds)."""
+    """Return the regret of not knowing the site.
+
+    Informed minus the policy that starts from the robot's constants, over the whole run and over
+    its second half (paired over seeds).
+    """
     if "informed" not in per_seed or start not in per_seed:
         return {}
     return {half: _paired(per_seed, "informed", start, key)

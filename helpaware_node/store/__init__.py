@@ -20,7 +20,7 @@ def default_robot_id() -> str:
 
 def open_store(path: str = "", robot_id: str = "", model: SiteModel | None = None,
                key_path: str = "", retention_days: float = 0.0) -> BeliefStore:
-    """The store the node uses.
+    """Return the store the node uses.
 
     `path` empty: in this process only (MemoryStore, a random key per run).  Otherwise an
     SQLite file (the node's default is `default_store_path()`: ROS_HOME or ~/.ros, then
@@ -35,7 +35,7 @@ def open_store(path: str = "", robot_id: str = "", model: SiteModel | None = Non
 
 
 def key_path_for(store_path: str) -> str:
-    """The site key file a store file uses by default: `site_key` in the same directory."""
+    """Return the site key file a store file uses by default: `site_key` in the same directory."""
     return os.path.join(os.path.dirname(os.path.abspath(store_path)), KEY_FILE_NAME)
 
 

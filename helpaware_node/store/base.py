@@ -81,8 +81,10 @@ class LearnedEntry:
 
 @dataclass(frozen=True)
 class EventsReader:
-    """The events site learning reads, copied when it was made (a MemoryStore's): callable,
-    and picklable, so the refit can run in another thread or process."""
+    """The events site learning reads, copied when it was made (a MemoryStore's).
+
+    Callable, and picklable, so the refit can run in another thread or process.
+    """
 
     outcomes: tuple
     asks: tuple
@@ -106,9 +108,11 @@ def check_learned(entry: LearnedEntry) -> None:
 
 
 def append_batch(store, events: Iterable[AnyEvent]) -> list[AnyEvent]:
-    """Store a mixed batch (a fleet delivery): outcomes in one transaction, then asks in
-    another; returns what was new. Both are idempotent, so a batch retried after a refusal
-    stores each event once."""
+    """Store a mixed batch (a fleet delivery).
+
+    Outcomes in one transaction, then asks in another; returns what was new. Both are idempotent,
+    so a batch retried after a refusal stores each event once.
+    """
     events = list(events)
     outcomes = [e for e in events if isinstance(e, StoredEvent)]
     asks = [e for e in events if isinstance(e, AskEvent)]
@@ -190,8 +194,11 @@ class MemoryStore:
         return sorted(self._by_key)
 
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, float | None]:
-        """The fold of the person's events; extended by the newest event when it comes last
-        in (time, event id) order (the same arithmetic as folding all again), else refolded."""
+        """Return the fold of the person's events.
+
+        Extended by the newest event when it comes last in (time, event id) order (the same
+        arithmetic as folding all again), else refolded.
+        """
         ids = self._by_key.get(key, [])
         cached = self._folds.get(key)
         if cached is not None and cached[0] == model and cached[4] == len(ids):
@@ -246,8 +253,10 @@ class MemoryStore:
     def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
              request_id: Optional[str] = None, since_s: Optional[float] = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]:
-        """Asks matching every filter given (and at or after `since_s`): the newest `limit`
-        of them, in (time, event id) order."""
+        """Asks matching every filter given (and at or after `since_s`).
+
+        The newest `limit` of them, in (time, event id) order.
+        """
         filters = [(f, v) for f, v in (("person_key", person_key), ("robot_id", robot_id),
                                        ("request_id", request_id)) if v is not None]
         if filters:      # the shortest index list, then the other filters on each ask
@@ -272,11 +281,13 @@ class MemoryStore:
         return len(self._events)
 
     def use_model(self, model: SiteModel) -> None:
-        """The model beliefs are folded under from now on (folds are cached per model)."""
+        """Return the model beliefs are folded under from now on (folds are cached per model)."""
 
     def learning_reader(self) -> EventsReader:
-        """(outcomes, asks) of people not opted out, for a refit in another thread or
-        process: the copies are taken now, on the caller's thread."""
+        """(outcomes, asks) of people not opted out, for a refit in another thread or process.
+
+        The copies are taken now, on the caller's thread.
+        """
         return EventsReader(
             tuple(e for e in self._events.values() if e.person_key not in self._opted_out),
             tuple(a for a in self._asks.values() if a.person_key not in self._opted_out))
@@ -289,7 +300,7 @@ class MemoryStore:
         self._learned.append(entry)
 
     def learned_history(self, limit: int = 1000) -> list[LearnedEntry]:
-        """The newest `limit` revisions, oldest first."""
+        """Return the newest `limit` revisions, oldest first."""
         out = sorted(self._learned, key=lambda e: e.revision)
         return out[max(len(out) - int(limit), 0):]
 

@@ -98,8 +98,10 @@ def write_new_owner_only(path: Path, data: bytes) -> None:
 
 
 def load_site_key(path: str | os.PathLike | None = None, create: bool = True) -> bytes:
-    """The key that hashes person ids, from `path` (default under the ROS home), the file
-    created if missing and allowed."""
+    """Return the key that hashes person ids, from `path` (default under the ROS home).
+
+    The file created if missing and allowed.
+    """
     return load_site_keys(path, create).person_id_key
 
 
@@ -110,7 +112,7 @@ def load_site_keys(path: str | os.PathLike | None = None, create: bool = True) -
 
 
 def read_key_file(p: Path, create: bool = True) -> bytes:
-    """The raw bytes of the key file, created if missing and allowed; checked for mode."""
+    """Return the raw bytes of the key file, created if missing and allowed; checked for mode."""
     try:
         if not p.exists():
             if not create:
@@ -136,7 +138,7 @@ def read_key_file(p: Path, create: bool = True) -> bytes:
 
 
 def key_fingerprint(key: bytes) -> str:
-    """A value that identifies the key without revealing it (domain-separated hash)."""
+    """Return a value that identifies the key without revealing it (domain-separated hash)."""
     return hashlib.sha256(b"helpaware.site-key-fingerprint\x00" + key).hexdigest()[:32]
 
 
@@ -146,10 +148,13 @@ FILE_HEADER = b"helpaware site key file v2\n"
 
 @dataclass(frozen=True)
 class SiteKeys:
-    """What a site key file holds.  `person_id_key` hashes perceived ids and is never rotated
-    in place (that would split every person in two); `signing_root` is what the fleet signing
-    key is derived from (the site key itself until the first rotation), and the previous root
-    stays accepted until `previous_until_s` (seconds since the epoch, UTC)."""
+    """What a site key file holds.
+
+    `person_id_key` hashes perceived ids and is never rotated in place (that would split every
+    person in two); `signing_root` is what the fleet signing key is derived from (the site key
+    itself until the first rotation), and the previous root stays accepted until `previous_until_s`
+    (seconds since the epoch, UTC).
+    """
 
     person_id_key: bytes
     signing_root: bytes
@@ -226,7 +231,7 @@ def _parse_utc(text: str, where: str, line: int) -> float:
 
 
 def site_key_file_text(keys: SiteKeys) -> bytes:
-    """The text form of `keys` (see the module doc)."""
+    """Return the text form of `keys` (see the module doc)."""
     lines = [FILE_HEADER.decode(),
              "# person-ids: hashes perceived ids; keep it as long as the stores made with it\n",
              f"person-ids {keys.person_id_key.hex()}\n",

@@ -1,5 +1,6 @@
-"""The SQLite store: a durable, append-only outcome log with a per-person fold cache, and
-the log of asks the hard limits count.
+"""The SQLite store: a durable, append-only outcome log with a per-person fold cache.
+
+The log of asks the hard limits count.
 
 - `events` is the source of truth; `snapshot` caches each person's fold
   (core.person.fold_events in (time, event id) order) and is updated in the same
@@ -214,7 +215,7 @@ class SqliteStore:
         return person_key(self._site_key, raw_id)
 
     def next_event_id(self) -> str:
-        """A new event id for this robot; never reused, even after restarts or forget."""
+        """Return a new event id for this robot; never reused, even after restarts or forget."""
         with self._lock:
             seq = self._next_seq
             self._next_seq += 1
@@ -374,7 +375,7 @@ class SqliteStore:
                 "SELECT person_key FROM snapshot ORDER BY person_key")]
 
     def belief(self, key: str, model: SiteModel | None = None) -> tuple[Belief, float | None]:
-        """The cached fold under the store's model; any other model refolds (not cached)."""
+        """Return the cached fold under the store's model; any other model refolds (not cached)."""
         model = model or self.model
         with self._lock:
             c = self._conn
@@ -421,8 +422,9 @@ class SqliteStore:
             return [r[0] for r in self._conn.execute("SELECT person_key FROM opt_out")]
 
     def forget(self, key: str) -> int:
-        """Delete every row that holds the key (asks too), then truncate the WAL so no copy
-        lingers.
+        """Delete every row that holds the key (asks too).
+
+        Then truncate the WAL so no copy lingers.
 
         Returns the events removed, compacted ones included.
         """
@@ -459,8 +461,9 @@ class SqliteStore:
                                       "another reader; erased rows may remain in the WAL")
 
     def compact(self, older_than_s: float, now_s: float | None = None) -> int:
-        """Fold events older than `older_than_s` into each person's base and delete them;
-        asks older than that go too (they carry no evidence).
+        """Fold events older than `older_than_s` into each person's base and delete them.
+
+        Asks older than that go too (they carry no evidence).
 
         Beliefs do not change: the fold is sequential, and the base is exactly the fold of
         the deleted prefix.  Returns the number of events removed.  A retention shorter than
@@ -585,8 +588,10 @@ class SqliteStore:
     def asks(self, *, person_key: str | None = None, robot_id: str | None = None,
              request_id: str | None = None, since_s: float | None = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]:
-        """Asks matching every filter given (and at or after `since_s`): the newest `limit`
-        of them, in (time, event id) order."""
+        """Asks matching every filter given (and at or after `since_s`).
+
+        The newest `limit` of them, in (time, event id) order.
+        """
         where, args = [], []
         for column, value in (("person_key", person_key), ("robot_id", robot_id),
                               ("request_id", request_id)):
@@ -647,7 +652,8 @@ class SqliteStore:
 
         Nothing is refolded here: each person's snapshot carries the hash of the model it was
         folded under, and belief() refolds a stale one when that person is next read, so a
-        change of constants costs the executor nothing on a big store."""
+        change of constants costs the executor nothing on a big store.
+        """
         with self._lock:
             if model_hash(model) == self._model_hash:
                 return
@@ -657,9 +663,12 @@ class SqliteStore:
                                (json.dumps(to_plain(model), sort_keys=True),))
 
     def learning_reader(self) -> "SqliteReader":
-        """(outcomes, asks) of people not opted out, read by whoever calls it (a refit's
-        worker thread or process) on its own read-only connection: WAL lets it read while the
-        node writes, and the node's connection and lock are never held by a refit."""
+        """(outcomes, asks) of people not opted out.
+
+        Read by whoever calls it (a refit's worker thread or process) on its own read-only
+        connection: WAL lets it read while the node writes, and the node's connection and lock are
+        never held by a refit.
+        """
         return SqliteReader(str(self.path))
 
     def record_learned(self, entry: LearnedEntry) -> None:
@@ -679,7 +688,7 @@ class SqliteStore:
                                      "history") from None
 
     def learned_history(self, limit: int = 1000) -> list[LearnedEntry]:
-        """The newest `limit` revisions, oldest first."""
+        """Return the newest `limit` revisions, oldest first."""
         with self._lock:
             rows = self._conn.execute(
                 "SELECT revision, time_s, constants, target, n_outcomes, verdict, recorded_utc, "

@@ -69,7 +69,7 @@ def _fmt(v: float) -> str:
 
 
 def verdict_line(verdict) -> str:
-    """The verdict as printed, with the option to change where the command has one."""
+    """Return the verdict as printed, with the option to change where the command has one."""
     option = CAUSE_OPTION.get(verdict.cause)
     return verdict.line() + (f" ({option})" if option else "")
 

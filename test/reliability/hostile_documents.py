@@ -270,8 +270,11 @@ def _resigned(text_: str, keys: KeyRing, topic: str, path: tuple) -> str:
 
 
 def refusal_names(case: Case, reason: str) -> bool:
-    """Does the reason name the case's field, or say why the whole document was refused
-    before any field (too long for the topic, too deep to parse)?"""
+    """Does the reason name the case's field.
+
+    Or say why the whole document was refused before any field (too long for the topic, too deep to
+    parse)?
+    """
     if re.search(r"longer than|larger than|not valid JSON", reason):
         return True
     if case.topic in ("people", "task_status", "outcome"):

@@ -1,5 +1,6 @@
-"""The robot's long-lived side in a process of its own: perception and the behaviour layer stay
-up while the decision node is killed and started again.
+"""The robot's long-lived side in a process of its own.
+
+Perception and the behaviour layer stay up while the decision node is killed and started again.
 
 Used by test/reliability/test_respawn.py (every restart must answer) and bench/bench_respawn.py
 (how long a restart takes to answer).  One rclpy context for the whole life of the process, as a
@@ -71,7 +72,7 @@ class LongLivedInputs:
 
     @staticmethod
     def _matched(topic: str):
-        """A line each time a node's subscription is matched or dropped (lease ended)."""
+        """Return a line each time a node's subscription is matched or dropped (lease ended)."""
         from rclpy.event_handler import PublisherEventCallbacks
 
         def said(info) -> None:

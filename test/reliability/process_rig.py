@@ -52,12 +52,15 @@ FAST_ASKING = {
 
 
 def write_site_key(directory: Path) -> Path:
-    """The store looks for `site_key` beside the store file; owner-only, as the store demands."""
+    """Return the store looks for `site_key` beside the store file.
+
+    Owner-only, as the store demands.
+    """
     return site_keys.write_site_key(directory, SITE_KEY)
 
 
 def own_fleet_topic(namespace: str) -> str:
-    """A fleet topic of the robot's own, for a test that must not hear other robots."""
+    """Return a fleet topic of the robot's own, for a test that must not hear other robots."""
     return f"{namespace}/helpaware/fleet"
 
 
@@ -155,6 +158,7 @@ class Every:
 @dataclass
 class Robot:
     """One node process as the driver sees it."""
+
     robot_id: str
     namespace: str
     fleet_topic: str
@@ -343,7 +347,7 @@ class Drive:
 
 
 def beliefs_in(decision: dict, site_key: bytes = SITE_KEY) -> dict[str, Belief]:
-    """The (a, b) the node used for each candidate, keyed by the hashed person key."""
+    """Return the (a, b) the node used for each candidate, keyed by the hashed person key."""
     return {person_key(site_key, c["person_id"]): Belief(c["a"], c["b"])
             for c in decision["candidates"]}
 

@@ -19,7 +19,7 @@ SOAK = os.environ.get("HELPAWARE_SOAK", "") not in ("", "0")
 
 
 def scaled(ci_count: int, soak_count: int) -> int:
-    """The CI size, or the soak size when HELPAWARE_SOAK is set (make soak)."""
+    """Return the CI size, or the soak size when HELPAWARE_SOAK is set (make soak)."""
     return soak_count if SOAK else ci_count
 
 

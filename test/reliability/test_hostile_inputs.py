@@ -1,8 +1,9 @@
-"""Hostile peers and inputs (issue 14 items 1-6), each class in general: hypothesis documents
-of every class (hostile_documents.py) at the real handlers for every input topic and every
-fleet kind, signed with the test's site key so the field checks behind the signature are hit;
-seeded documents of every class through the real topics; and each finding of the issue
-translated to the signed fleet format, through the real topics.
+"""Hostile peers and inputs (issue 14 items 1-6), each class in general.
+
+Hypothesis documents of every class (hostile_documents.py) at the real handlers for every input
+topic and every fleet kind, signed with the test's site key so the field checks behind the
+signature are hit; seeded documents of every class through the real topics; and each finding of the
+issue translated to the signed fleet format, through the real topics.
 
 For every document: nothing raises out of a handler, nothing is counted as a handler error
 (every refusal is a refusal with a reason), a value that breaks its field's rule (the hand
@@ -116,8 +117,11 @@ def part(node, topic):
 
 
 def at_stack_depth(extra: int, fn, *args):
-    """Call fn with `extra` more frames on the stack: a nesting that parses at one depth may
-    overflow a recursive step at another (the issue's crash: parsed, then printed)."""
+    """Call fn with `extra` more frames on the stack.
+
+    a nesting that parses at one depth may overflow a recursive step at another (the issue's crash:
+    parsed, then printed).
+    """
     if extra <= 0:
         return fn(*args)
     return at_stack_depth(extra - 1, fn, *args)
@@ -154,7 +158,7 @@ def feed(rig, case: hd.Case, extra_frames: int = 0) -> bool:
 
 
 def keeps_deciding(rig, tag: str) -> dict:
-    """A help need after the hostile input gets a valid decision within DECISION_WAIT_S."""
+    """Return a help need after the hostile input gets a valid decision within DECISION_WAIT_S."""
     node = rig.node
     node._publish_status()                # diagnostics carry the last reasons: must publish
     node.session.seen.clear()
@@ -196,8 +200,10 @@ BURST = 10                          # hostile documents before each sentinel
 
 
 def publishable(text: str) -> str:
-    """A raw lone surrogate cannot go into a ROS String: written as its JSON escape, which
-    decodes to the same value (the signature still matches)."""
+    """Return a raw lone surrogate cannot go into a ROS String.
+
+    Written as its JSON escape, which decodes to the same value (the signature still matches).
+    """
     return re.sub(r"[\ud800-\udfff]", lambda m: f"\\u{ord(m.group()):04x}", text)
 
 
@@ -268,10 +274,13 @@ def deep_number(depth: int) -> str:
 
 
 def test_crash_loop_a_peer_history_of_deep_numbers_at_every_start(ctx, tmp_path):
-    """Issue 14 item 1, translated: the sender's transient-local history holds a number nested
-    980 lists deep in each numeric field of every fleet kind (it cannot be signed: the
-    canonical encoding stops at 16 levels), and the same fields nested 2 deep and correctly
-    signed. A robot started on it, and started again, refuses each by field and decides."""
+    """Issue 14 item 1, translated.
+
+    The sender's transient-local history holds a number nested 980 lists deep in each numeric field
+    of every fleet kind (it cannot be signed: the canonical encoding stops at 16 levels), and the
+    same fields nested 2 deep and correctly signed. A robot started on it, and started again,
+    refuses each by field and decides.
+    """
     import rclpy
     write_site_key(tmp_path, SITE_KEY)
     store = tmp_path / "beliefs.sqlite3"
@@ -356,8 +365,11 @@ def test_crash_loop_through_a_node_process_and_its_restart(tmp_path):
 
 # ------------------------------------------------------------------ item 2: poison event
 def test_poison_event_ids_are_refused_and_the_rest_of_the_burst_is_stored(ctx, tmp_path):
-    """Issue 14 item 2, translated: with robot_id r1, peer events r1/99999999999999999999 and
-    r1/² (signed with the site key) among good ones, in one burst through the fleet topic."""
+    """Issue 14 item 2, translated.
+
+    With robot_id r1, peer events r1/99999999999999999999 and r1/² (signed with the site key) among
+    good ones, in one burst through the fleet topic.
+    """
     write_site_key(tmp_path, SITE_KEY)
     path = tmp_path / "beliefs.sqlite3"
     rig = Rig(ctx, namespace="/poison", store_path=str(path), robot_id="r1",
@@ -406,8 +418,10 @@ def test_poison_event_ids_are_refused_and_the_rest_of_the_burst_is_stored(ctx, t
 
 
 class FailingStore:
-    """A store whose batch write raises for one chosen event (a value it cannot hold) or, while
-    `full` is set, for every write (the store refusing writes)."""
+    """A store whose batch write raises for one chosen event (a value it cannot hold) or.
+
+    While `full` is set, for every write (the store refusing writes).
+    """
 
     def __init__(self, inner, culprit: str) -> None:
         self.inner, self.culprit, self.full, self.calls = inner, culprit, False, 0
@@ -425,9 +439,11 @@ class FailingStore:
 
 
 def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_path):
-    """The queue is never poisoned: an event the store cannot hold (past the decoder, which
-    should have refused it) is found by halving and dropped; the store refusing writes keeps
-    every event for the next try."""
+    """Check that the queue is never poisoned.
+
+    An event the store cannot hold (past the decoder, which should have refused it) is found by
+    halving and dropped; the store refusing writes keeps every event for the next try.
+    """
     import rclpy
     from helpaware_node.store import SqliteStore
     inner = SqliteStore(tmp_path / "s.sqlite3", "r1", SiteKeys.single(SITE_KEY))
@@ -455,9 +471,11 @@ def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_p
 
 # ------------------------------------------------------------------ item 3: people in view
 def test_two_crowds_through_the_people_topic_give_a_valid_decision(rig):
-    """Issue 14 item 3: 500 people, then 500 others within 8 s: a decision with 1 000
-    candidates, which the project's decoder refused. Rig decodes every decision with
-    wire.decode, so an invalid one fails here."""
+    """Issue 14 item 3: 500 people, then 500 others within 8 s.
+
+    a decision with 1 000 candidates, which the project's decoder refused. Rig decodes every
+    decision with wire.decode, so an invalid one fails here.
+    """
     node = rig.node
     node.session.seen.clear()
     far = [{"id": f"far-{i}", "distance_m": 4.0 + 0.001 * i} for i in range(500)]
@@ -540,8 +558,11 @@ def test_a_status_array_of_20000_aborted_goals_gives_one_decision(rig):
 @given(st.lists(st.tuples(st.integers(0, 3000), st.sampled_from([1, 2, 4, 5, 6]),
                           st.integers(0, 10**6)), min_size=0, max_size=3))
 def test_large_status_arrays_at_the_handler(rig, arrays):
-    """Status arrays of up to 3 000 goals of any status and stamp: at most one decision per
-    array, at most one open navigation-failure need, never a handler error."""
+    """Status arrays of up to 3 000 goals of any status and stamp.
+
+    At most one decision per array, at most one open navigation-failure need, never a handler
+    error.
+    """
     node = rig.node
     for size, code, first in arrays:
         n = len(rig.decisions)
@@ -568,8 +589,11 @@ def test_large_status_arrays_at_the_handler(rig, arrays):
     ("privacy:unsigned", "person_id", "p" * 129),
 ])
 def test_every_string_from_peers_is_bounded_by_name(rig, kind, field, value):
-    """Issue 14 item 5: a peer's 1.2 MB request_kind was stored. Each peer string is bounded
-    like the robot's own inputs (wire.MAX_LABEL_CHARS for kinds, wire.MAX_ID_CHARS for ids)."""
+    """Issue 14 item 5: a peer's 1.2 MB request_kind was stored.
+
+    Each peer string is bounded like the robot's own inputs (wire.MAX_LABEL_CHARS for kinds,
+    wire.MAX_ID_CHARS for ids).
+    """
     doc = {**hd.seed_of(kind), field: value}
     text = json.dumps(doc if kind == "privacy:unsigned" else KEYS.sign(doc))
     case = hd.Case(kind, "huge_string", (field,), text, "refused", field)
@@ -672,9 +696,12 @@ def test_valid_but_pointless_documents_do_not_flood_the_log(ctx, tmp_path):
 @given(st.lists(st.tuples(st.integers(0, 5), st.sampled_from(list(Result)[:3]),
                           st.booleans()), min_size=1, max_size=25))
 def test_duplicated_and_replayed_events_are_stored_once(rig, deliveries):
-    """The same signed events delivered many times, and copies of an event id with other
-    content (a replay that changed it, correctly signed): the store keeps the first of each
-    id (merge by id is idempotent), beliefs are the fold of exactly those; asks likewise."""
+    """Check that the same signed events delivered many times.
+
+    Copies of an event id with other content (a replay that changed it, correctly signed): the
+    store keeps the first of each id (merge by id is idempotent), beliefs are the fold of exactly
+    those; asks likewise.
+    """
     node = rig.node
     tag = f"dup{time.monotonic_ns()}"
     key = node.store.key_for(f"visitor-{tag}")
@@ -711,7 +738,7 @@ def test_a_replayed_privacy_request_is_applied_once(rig):
 
 # ------------------------------------------------------------------ figures
 def test_zz_report_counts(rig):
-    """The figures for docs/RELIABILITY.md (run with -s to see them)."""
+    """Check that the figures for docs/RELIABILITY.md (run with -s to see them)."""
     print("\nhostile documents at the handlers (hypothesis, derandomized)")
     print(f"{'topic':<18}{'tried':>7}{'refused':>9}{'taken':>7}")
     for t in hd.TOPICS:

@@ -1,5 +1,7 @@
-"""Fuzz of every input document of the node: hypothesis documents at the handlers, then random
-text and raw garbage CDR bytes through the real topics.
+"""Fuzz of every input document of the node.
+
+Hypothesis documents at the handlers, then random text and raw garbage CDR bytes through the real
+topics.
 
 Topics: people, task_status, outcome (wire documents), the fleet and privacy topics (signed
 fleet_documents). Fleet and privacy documents are fuzzed as they arrive (so nearly every change
@@ -101,8 +103,11 @@ def seed(topic: str, i: int) -> dict:
 
 
 def resigned(text: str) -> str:
-    """The text signed again with the site key, when it is a JSON object with a version and
-    the canonical encoding can hold it; else the text as it was."""
+    """Return the text signed again with the site key.
+
+    When it is a JSON object with a version and the canonical encoding can hold it; else the text
+    as it was.
+    """
     try:
         doc = json.loads(text)
         if not isinstance(doc, dict) or "v" not in doc:
@@ -151,7 +156,7 @@ WIRE_NAMES = {t: _spec_names(wire.SPECS[t], {"document", t}) for t in WIRE_TOPIC
 
 
 def path_text(path) -> str:
-    """A path tuple the way wire writes it: people[0].distance_m."""
+    """Return a path tuple the way wire writes it: people[0].distance_m."""
     out = ""
     for p in path:
         out += f"[{p}]" if isinstance(p, int) else (f".{p}" if out else p)
@@ -171,7 +176,10 @@ def reason_names_a_field(topic: str, reason: str) -> bool:
 
 
 def reason_class(reason: str) -> str:
-    """The histogram bucket: the reason's field path (indices as []) and its first plain words."""
+    """Return the histogram bucket.
+
+    The reason's field path (indices as []) and its first plain words.
+    """
     head, _, rest = reason.partition(": ")
     words = [w for w in rest.split()[:8] if re.fullmatch(r"[A-Za-z_]+", w)][:4]
     return re.sub(r"\[\d+\]", "[]", head)[:40] + ": " + " ".join(words)
@@ -195,7 +203,7 @@ def dumps(value) -> str:
 
 
 def with_hole(doc, path, text: str) -> str:
-    """The document's JSON with the field at `path` replaced by raw JSON `text`."""
+    """Return the document's JSON with the field at `path` replaced by raw JSON `text`."""
     return dumps(replaced(doc, path, HOLE)).replace(json.dumps(HOLE), text, 1)
 
 
@@ -335,7 +343,7 @@ def handler(node, topic):
 
 
 def decodes(topic, text, node) -> bool:
-    """The outside view: would this text be taken by the topic's own parser?"""
+    """Return the outside view: would this text be taken by the topic's own parser?"""
     try:
         if topic in WIRE_TOPICS:
             wire.decode(topic, text)
@@ -464,7 +472,7 @@ def test_found_by_the_fuzz_each_refused_by_name(rig, topic, text, field):
 
 # ---------------------------------------------------------------------------- real topics
 def _cdr_string(payload: bytes) -> bytes:
-    """A little-endian CDR std_msgs/String around `payload` (length includes the NUL)."""
+    """Return a little-endian CDR std_msgs/String around `payload` (length includes the NUL)."""
     return b"\x00\x01\x00\x00" + (len(payload) + 1).to_bytes(4, "little") + payload + b"\x00"
 
 
@@ -516,7 +524,7 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
     valid = {t: serialize_message(String(data=dumps(seed(t, len(SEEDS[t]) - 1)))) for t in TOPICS}
 
     def sentinel(topic, i):
-        """A valid document whose effect shows it (and all before it, in order) arrived."""
+        """Return a valid document whose effect shows it (and all before it, in order) arrived."""
         tag = f"sentinel-{i}"
         if topic == "people":
             return wire.people_document([{"id": tag, "distance_m": 1.0}], 1.0), \
@@ -568,7 +576,7 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
 
 
 def test_zz_report_counts(rig):
-    """The figures for docs/RELIABILITY.md (run with -s to see them)."""
+    """Check that the figures for docs/RELIABILITY.md (run with -s to see them)."""
     print("\ninput fuzz at the handlers (hypothesis, derandomized)")
     print(f"{'topic':<18}{'tried':>7}{'rejected':>10}{'accepted':>10}")
     for t in TOPICS:

@@ -263,9 +263,12 @@ def _collect(cases, mine, proc):
 
 
 def run_batch(cases, tmp_path):
-    """The files in chunks of CHUNK, CHILDREN child processes at a time (a fresh process per
-    chunk: the cost per context grows over thousands of them); returns {index: result}.
-    A child that dies (a segfault in rcl, say) or hangs names the file it was on."""
+    """Return the files in chunks of CHUNK.
+
+    CHILDREN child processes at a time (a fresh process per chunk: the cost per context grows over
+    thousands of them); returns {index: result}. A child that dies (a segfault in rcl, say) or
+    hangs names the file it was on.
+    """
     chunks = [list(range(i, min(i + CHUNK, len(cases)))) for i in range(0, len(cases), CHUNK)]
     results, running = {}, []
     for k, mine in enumerate(chunks):
@@ -293,7 +296,7 @@ TYPE_CHECK = {"double": lambda v: isinstance(v, float), "bool": lambda v: isinst
 
 
 def _names_a_parameter(message: str) -> bool:
-    """A parameter by name, or the store file the parameters point at (store_path)."""
+    """Return a parameter by name, or the store file the parameters point at (store_path)."""
     return (any(n in message for n in SPECS) or "use_sim_time" in message
             or ("could not open" in message and "store" in message))
 

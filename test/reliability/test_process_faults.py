@@ -262,9 +262,11 @@ def test_a_burst_of_outcomes_beyond_the_queue_depth_reaches_the_store(ctx, tmp_p
 
 @pytest.mark.skipif(not SOAK, reason="about a minute: make soak (HELPAWARE_SOAK=1)")
 def test_late_joiner_gets_two_peers_large_histories(tmp_path):
-    """Two peers hold 3 000 events each (together more than one reader's history depth);
+    """Two peers hold 3 000 events each (together more than one reader's history depth).
+
     a third robot starting late must end up with all 6 000 (soak size of
-    test/test_fleet_catch_up.py)."""
+    test/test_fleet_catch_up.py).
+    """
     from helpaware_node.core import Result as R
     from helpaware_node.store import SqliteStore, StoredEvent
 

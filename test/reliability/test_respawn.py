@@ -50,11 +50,14 @@ def shm_files_of(pid: int) -> dict:
 
 
 def in_this_domain(path: str) -> bool:
-    """Data segments (random names), and ports of this run's domain, which test/conftest.py
-    holds for this run alone (RTPS port numbers: 7400 + 250 * domain + offset).  Fast DDS also
-    gives each participant a port numbered from 7000 across the whole machine; once its owner
-    is dead, a participant of another test run on this machine may take it over (the sweep
-    then leaves it to that one, rightly) and leave it at its own exit: not checked here."""
+    """Data segments (random names).
+
+    Ports of this run's domain, which test/conftest.py holds for this run alone (RTPS port numbers:
+    7400 + 250 * domain + offset).  Fast DDS also gives each participant a port numbered from 7000
+    across the whole machine; once its owner is dead, a participant of another test run on this
+    machine may take it over (the sweep then leaves it to that one, rightly) and leave it at its
+    own exit: not checked here.
+    """
     name = os.path.basename(path)
     if not name.startswith("fastdds_port"):
         return True
@@ -64,8 +67,11 @@ def in_this_domain(path: str) -> bool:
 
 
 def own_sets(pid: int, files: dict) -> dict:
-    """Only the sets the instance owned: those whose `_el` lock it held (the rest, mapped to
-    write into other participants' ports or read their data, belong to those)."""
+    """Only the sets the instance owned.
+
+    Those whose `_el` lock it held (the rest, mapped to write into other participants' ports or
+    read their data, belong to those).
+    """
     locked = flock_inodes(pid)
     own = {}
     for path, ino in files.items():

@@ -1,5 +1,7 @@
-"""Site learning in a node process: a revision learned from the store's outcomes shows in
-/diagnostics, is kept in the store, and is in force again after a restart (no refit needed).
+"""Site learning in a node process.
+
+a revision learned from the store's outcomes shows in /diagnostics, is kept in the store, and is in
+force again after a restart (no refit needed).
 
 The node is started as users start it (ros/launch_config.py through process_rig) on an SQLite
 store in tmp_path that already holds a simulated site's outcomes and asks (invented data);

@@ -1,5 +1,7 @@
-"""Example: the side that speaks to people. On an `ask` decision it delivers the ask (screen,
-speech...) and reports what happened as an `outcome` document.
+"""Example: the side that speaks to people.
+
+On an `ask` decision it delivers the ask (screen, speech...) and reports what happened as an
+`outcome` document.
 
 Run next to the node:  ros2 run helpaware_node example_ask_delivery --ros-args -r __ns:=/robot1
                        (venv: example_ask_delivery --ros-args ...)

@@ -1,5 +1,7 @@
-"""Example: the behaviour-layer side. Opens a help need when the robot is stuck, follows the
-decision, and resolves the need when the way is clear (or cancels it when giving up).
+"""Example: the behaviour-layer side.
+
+Opens a help need when the robot is stuck, follows the decision, and resolves the need when the way
+is clear (or cancels it when giving up).
 
 Run next to the node:  ros2 run helpaware_node example_behaviour_layer --ros-args -r __ns:=/robot1
                        (venv: example_behaviour_layer --ros-args ...)
