@@ -121,7 +121,8 @@ NEED = F("object", fields={
     "request_id": _id("help need id"),
     "kind": F("string", min_len=1, max_len=MAX_LABEL_CHARS, description="request kind"),
     "urgency": F("number", low=0.0, high=1.0, description="urgency"),
-    "continue_cost_s": F("number", nullable=True, low=0.0, high=1e9, description="override or null"),
+    "continue_cost_s": F("number", nullable=True, low=0.0, high=1e9,
+                         description="override or null"),
     "help_time_s": F("number", nullable=True, low=0.0, high=1e9, description="override or null"),
     "opened_at_s": _time("when the need opened, seconds"),
 })
@@ -459,7 +460,8 @@ def encode(name: str, document: Mapping[str, Any]) -> str:
 # ----------------------------------------------------------------------------------------
 # One-call builders for integrators (each returns validated JSON text).
 
-def people_document(people: Iterable[Mapping[str, Any]], stamp_s: float, frame_id: str = "") -> str:
+def people_document(people: Iterable[Mapping[str, Any]], stamp_s: float,
+                    frame_id: str = "") -> str:
     """people: mappings with id, distance_m and optional busyness, activity, position."""
     doc = {"doc": "people", "version": VERSION, "stamp_s": float(stamp_s),
            "people": [dict(p) for p in people]}
@@ -514,7 +516,8 @@ def people_from(doc: Mapping[str, Any]) -> list[SeenPerson]:
         pos = p.get("position")
         out.append(SeenPerson(p["id"], float(p["distance_m"]),
                               None if p.get("busyness") is None else float(p["busyness"]),
-                              p.get("activity", ""), tuple(float(v) for v in pos) if pos else None))
+                              p.get("activity",
+                                    ""), tuple(float(v) for v in pos) if pos else None))
     return out
 
 
@@ -660,7 +663,8 @@ def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionCon
 def _schema(spec: F) -> dict:
     k = spec.kind
     if k == "string":
-        out: dict[str, Any] = {"type": "string", "minLength": spec.min_len, "maxLength": spec.max_len}
+        out: dict[str, Any] = {"type": "string", "minLength": spec.min_len,
+                               "maxLength": spec.max_len}
     elif k in ("number", "integer"):
         out = {"type": k}
         out["exclusiveMinimum" if spec.low_open else "minimum"] = spec.low

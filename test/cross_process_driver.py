@@ -24,7 +24,8 @@ def main():
     tasks = node.create_publisher(String, "task_status", RELIABLE)
     outcomes = node.create_publisher(String, "outcome", RELIABLE)
     decisions = []
-    node.create_subscription(String, "decision", lambda m: decisions.append(json.loads(m.data)), RELIABLE)
+    node.create_subscription(String, "decision", lambda m: decisions.append(json.loads(m.data)),
+                             RELIABLE)
 
     def spin_until(pred, timeout_s):
         end = time.monotonic() + timeout_s

@@ -69,7 +69,8 @@ class Rig:
 
     def open_need(self, request_id, kind="door", **kw):
         n = len(self.decisions)
-        self.task_pub.publish(String(data=wire.task_status_document(request_id, "open", kind, **kw)))
+        self.task_pub.publish(String(data=wire.task_status_document(request_id, "open", kind,
+                                                                    **kw)))
         mine = lambda: [d for d in self.decisions[n:] if d["request_id"] == request_id]  # noqa: E731
         assert self.spin_until(lambda: bool(mine())), "no decision arrived"
         return mine()[0]

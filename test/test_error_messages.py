@@ -253,7 +253,8 @@ def test_longest_messages():
     for name, doc in DOCS.items():
         for path in field_paths(doc, items_per_list=1):
             for value in corpus:
-                err = refused_within_bounds(lambda: wire.validate(name, replaced(doc, path, value)),
+                err = refused_within_bounds(lambda: wire.validate(name,
+                                                                  replaced(doc, path, value)),
                                             errors=(wire.WireError,))
                 if isinstance(err, Exception) and len(str(err)) > len(longest):
                     longest = str(err)

@@ -4,7 +4,6 @@ Outside sources: the core's own ask_load (DESIGN.md section 3 formula), yaml.saf
 core.model.SiteModel's own validation for the written file.
 """
 import math
-import os
 
 import numpy as np
 import pytest

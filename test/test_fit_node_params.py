@@ -3,7 +3,6 @@
 Checked against the node's parameter table (helpaware_node/ros/params.py) and, through rclpy,
 by declaring every parameter on a node started with `--params-file` on the written file.
 """
-import os
 
 import pytest
 

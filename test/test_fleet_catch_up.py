@@ -13,7 +13,6 @@ here; the late joiner's store is read with the sqlite3 module (not the store cla
 beliefs are core.person.fold_events over the union of the peers' events in (time, event id)
 order, the fold the design defines.
 """
-import os
 import queue
 import random
 import sqlite3

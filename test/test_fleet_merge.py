@@ -100,7 +100,8 @@ def test_asks_merge_idempotently_in_any_order(tmp_path_factory, rows, rng):
     merged = [a for m in delivery for a in merge(store, m, KEYS)]
     assert sorted(a.event_id for a in merged) == sorted(a.event_id for a in asks)
     for key in PEOPLE:
-        mine = sorted((a for a in asks if a.person_key == key), key=lambda a: (a.time_s, a.event_id))
+        mine = sorted((a for a in asks if a.person_key == key),
+                      key=lambda a: (a.time_s, a.event_id))
         assert store.asks(person_key=key) == mine
     store.close()
 

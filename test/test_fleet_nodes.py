@@ -6,7 +6,6 @@ process drives each robot over its topics and reads beliefs from the candidates 
 decisions.
 """
 import json
-import os
 import subprocess
 import sys
 import time

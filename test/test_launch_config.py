@@ -86,7 +86,8 @@ def test_launch_arguments_become_the_node_command_line():
     pairs = list(zip(cmd, cmd[1:]))
     assert ("-r", "__ns:=/ward3") in pairs and ("-r", "people:=perception/people") in pairs
     assert ("-r", "__node:=helpaware_decider") in pairs and ("-p", "use_sim_time:=true") in pairs
-    assert ("--params-file", os.path.join(launch_config.config_dir(), "hospital_night.yaml")) in pairs
+    assert ("--params-file",
+            os.path.join(launch_config.config_dir(), "hospital_night.yaml")) in pairs
     assert not any(a.startswith("task_status:=") for a in cmd)    # identity remaps left out
     kw = spec.launch_kwargs()
     assert kw["namespace"] == "/ward3" and kw["remappings"] == [("people", "perception/people")]

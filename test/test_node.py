@@ -1,6 +1,5 @@
 """The decision node in-process, driven over real topics with bounded spinning."""
 import pytest
-import rclpy
 from rclpy.parameter import Parameter
 from std_msgs.msg import String
 
@@ -163,7 +162,8 @@ def test_markers_and_diagnostics(rig):
     assert {m.type for m in marks} == {Marker.TEXT_VIEW_FACING}
     assert all(m.text.startswith("w=0.50") for m in marks)             # prior mean 2/(2+2)
     rig.node.set_parameters([Parameter("max_observation_age_s", value=0.0)])
-    assert rig.spin_until(lambda: any(m.action == Marker.DELETE for a in got for m in a.markers), 40)
+    assert rig.spin_until(lambda: any(m.action == Marker.DELETE for a in got for m in a.markers),
+                          40)
     rig.outcome_pub.publish(String(data="not json"))
     def warned():
         return any(s.level == DiagnosticStatus.WARN and dict((v.key, v.value) for v in s.values)

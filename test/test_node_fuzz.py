@@ -7,7 +7,6 @@ straight to the handlers (fast); a smaller set goes through the real topics and 
 import json
 import random
 
-import pytest
 from std_msgs.msg import String
 
 from helpaware_node import wire

@@ -5,7 +5,6 @@ import subprocess
 import sys
 
 import pytest
-import rclpy
 import yaml
 from rclpy.parameter import Parameter
 

@@ -2,7 +2,7 @@
 import math
 
 import numpy as np
-from hypothesis import assume, given
+from hypothesis import given
 from hypothesis import strategies as st
 from scipy import integrate, stats
 
@@ -79,7 +79,8 @@ events = st.lists(st.tuples(st.floats(0.0, 1e5), st.sampled_from(list(Result)),
 @given(events, st.randoms())
 def test_fold_does_not_depend_on_arrival_order(rows, rnd):
     model = SiteModel(evidence_half_life_s=7200.0)
-    evs = [OutcomeEvent(t, r, x, f, event_id=f"robot/{i:04d}") for i, (t, r, x, f) in enumerate(rows)]
+    evs = [OutcomeEvent(t, r, x, f, event_id=f"robot/{i:04d}") for i, (t, r, x,
+                                                                       f) in enumerate(rows)]
     shuffled = list(evs)
     rnd.shuffle(shuffled)
     assert fold_events(evs, model) == fold_events(shuffled, model)

@@ -42,7 +42,8 @@ def scenario(**changes):
 
 
 def test_same_seed_same_results_to_the_last_digit():
-    sc = parse({**_yaml("scenarios/hospital_night.yaml"), "shift": {"days": 2, "hours_per_day": 6.0}})
+    sc = parse({**_yaml("scenarios/hospital_night.yaml"),
+                "shift": {"days": 2, "hours_per_day": 6.0}})
     one = compare(sc, seeds=2, progress=False)
     two = compare(sc, seeds=2, progress=False)
     assert json.dumps(one[1], sort_keys=True) == json.dumps(two[1], sort_keys=True)
@@ -260,7 +261,8 @@ def test_gini_exact_values():
     ("people__regulars", 2.5, "people.regulars"),
     ("ground_truth__model", "magic", "ground_truth.model"),
     ("people__willingness", {"beta": [0.0, 1.0]}, "people.willingness.beta[0]"),
-    ("activities", [{"name": "x", "busyness": 1.5, "mean_duration_s": 1.0}], "activities[0].busyness"),
+    ("activities", [{"name": "x", "busyness": 1.5, "mean_duration_s": 1.0}],
+     "activities[0].busyness"),
     ("shift__days", 0, "shift.days"),
 ])
 def test_bad_scenario_names_the_field(path, value, field):
@@ -284,7 +286,8 @@ def test_shipped_scenarios_load_and_differ_in_kind():
     lab = load("scenarios/research_lab_quiet.yaml")
     hub = load("scenarios/transit_concourse_busy.yaml")
     assert hosp.regulars == 40 and "with_patient" in hosp.never_ask_activities
-    assert {a.name for a in hosp.activities} >= {"charting", "on_call", "walking_fast", "with_patient"}
+    assert {a.name for a in hosp.activities} >= {"charting", "on_call", "walking_fast",
+                                                 "with_patient"}
     assert hub.strangers_per_need > 2 * hub.regulars_per_need  # many strangers
     assert lab.strangers_per_need < 0.1 * lab.regulars_per_need  # few regulars, nearly no strangers
     assert hub.needs_per_hour > 4 * lab.needs_per_hour  # very busy vs quiet

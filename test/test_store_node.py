@@ -5,7 +5,6 @@ forget through privacy_request.
 """
 import os
 
-import pytest
 from diagnostic_msgs.msg import DiagnosticStatus
 
 from helpaware_node.core.belief import Belief
@@ -34,7 +33,8 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         # keeps working: decides on the prior and learns from an outcome
         assert rig.show_people([{"id": "nurse-a", "distance_m": 1.0, "busyness": 0.0}])
         d = rig.open_need("n1", "handover", urgency=1.0)
-        assert d["action"] == "ask" and (d["candidates"][0]["a"], d["candidates"][0]["b"]) == (2.0, 2.0)
+        assert d["action"] == "ask" and (d["candidates"][0]["a"], d["candidates"][0]["b"]) == (2.0,
+                                                                                               2.0)
         rig.report("n1", "nurse-a", "helped")
         key = rig.node.store.key_for("nurse-a")
         assert rig.node.session.memory.records[key].belief == Belief(3.0, 2.0)

@@ -30,10 +30,12 @@ def hash_ids_in(doc, key_of: Callable[[str], str], inside_person: bool = False):
     if isinstance(doc, dict):
         out = {}
         for k, v in doc.items():
-            if k in PERSON_ID_FIELDS and isinstance(v, str) and (k == "person_id" or inside_person):
+            if k in PERSON_ID_FIELDS and isinstance(v,
+                                                    str) and (k == "person_id" or inside_person):
                 out[k] = key_of(v)
             else:
-                out[k] = hash_ids_in(v, key_of, inside_person=k in ("people", "persons", "candidates"))
+                out[k] = hash_ids_in(v, key_of,
+                                     inside_person=k in ("people", "persons", "candidates"))
         return out
     if isinstance(doc, list):
         return [hash_ids_in(v, key_of, inside_person) for v in doc]

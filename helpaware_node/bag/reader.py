@@ -78,7 +78,8 @@ class BagSource:
                 IndexError, TypeError) as exc:
             self._reader = None
             if self.storage != "mcap":
-                raise BagReadError(str(self.path), f"cannot open {self.storage} bag: {exc}") from exc
+                raise BagReadError(str(self.path),
+                                   f"cannot open {self.storage} bag: {exc}") from exc
             self._open_reason = f"damaged MCAP file ({exc})"
             self.info.salvaged = True
             return

@@ -124,7 +124,8 @@ class DecisionConfig:
                      "prior_candidate_rate_per_day"):
             check_range(name, getattr(self, name), 0.0, 1e9)
         check_range("min_reask_interval_s", self.min_reask_interval_s, 0.0, MAX_REASK_INTERVAL_S)
-        check_range("future_discount_time_s", self.future_discount_time_s, 0.0, 1e12, low_open=True)
+        check_range("future_discount_time_s", self.future_discount_time_s, 0.0, 1e12,
+                    low_open=True)
         check_range("prior_rate_window_s", self.prior_rate_window_s, 0.0, 1e12, low_open=True)
         check_range("typical_busyness", self.typical_busyness, 0.0, 1.0)
         check_range("busyness_limit", self.busyness_limit, 0.0, 1.0)

@@ -16,13 +16,13 @@ from __future__ import annotations
 
 import enum
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Callable, Optional, Sequence
 
 import numpy as np
 
 from .belief import Belief, declined_moments
-from .context import ask_load, context_factor
+from .context import context_factor
 from .lasting import lasting_cost
 from .model import CoreInputError, DecisionConfig, SiteModel, check_range, params_hash
 from .person import DAY_S, PersonRecord, belief_at
@@ -270,7 +270,8 @@ def discounted_horizon_s(config: DecisionConfig) -> float:
 def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
     """N: expected discounted future requests with this person a candidate (the rate, capped
     at the robot's hourly ask cap, times the discounted length of the look-ahead horizon)."""
-    return future_ask_rate_per_s(counts, first_seen_s, now_s, config) * discounted_horizon_s(config)
+    return future_ask_rate_per_s(counts, first_seen_s, now_s,
+                                 config) * discounted_horizon_s(config)
 
 
 def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,

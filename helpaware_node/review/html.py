@@ -239,7 +239,8 @@ def render_replay(replay: dict, figure: Optional[bytes]) -> str:
                  f"{replay['changed']} decisions change; {replay['reproduced']} of "
                  f"{replay['needs']} recorded decisions reproduced with the recorded "
                  "parameters.</p>")
-    parts.append(table(["parameter set", "asks", "expected helps", "expected interruption (robot-s)",
+    parts.append(table(["parameter set", "asks", "expected helps",
+                        "expected interruption (robot-s)",
                         "expected time lost (robot-s)"],
                        [[r["label"], r["asks"], r["expected_helps"], r["expected_interruption_s"],
                          r["expected_time_lost_s"]] for r in replay["totals"]]))

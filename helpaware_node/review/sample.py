@@ -106,7 +106,8 @@ def write_sample_bag(path: str, needs: int = 40, people: int = 12, seed: int = 3
             cands = []
             for hk, busy, dist, act in obs:
                 rec = records.setdefault(hk, PersonRecord.new(model))
-                cands.append(candidate_from_record(hk, rec, now, model, dist, now - 0.5, busy, act))
+                cands.append(candidate_from_record(hk, rec, now, model, dist, now - 0.5, busy,
+                                                   act))
             decision = decide(need, cands, now, tuple(robot_asks), model, config)
             emit("decision", now, rw.decision_document(decision, tuple(robot_asks), model, config))
             counts.decisions += 1

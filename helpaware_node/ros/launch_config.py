@@ -66,7 +66,8 @@ DECIDER_ARGUMENTS: tuple[LaunchArgument, ...] = (
     LaunchArgument("namespace", "", "namespace of the node, e.g. robot1"),
     *(LaunchArgument(f"{src}_topic", dst, f"topic the node's `{src}` is remapped to")
       for src, dst in REMAPS),
-    LaunchArgument("use_sim_time", "false", "true: decide in /clock time (simulation, bag replay)"),
+    LaunchArgument("use_sim_time", "false",
+                   "true: decide in /clock time (simulation, bag replay)"),
     LaunchArgument("respawn", "false", "true: start the node again when it dies"),
     LaunchArgument("respawn_delay_s", "2.0", "seconds before a respawn"),
 )

@@ -51,7 +51,8 @@ class ParamSpec:
 
 
 def _m(name, desc, units, low, high):
-    return ParamSpec(name, float(getattr(MODEL_DEFAULTS, name)), desc, units, low, high, group="model")
+    return ParamSpec(name, float(getattr(MODEL_DEFAULTS, name)), desc, units, low, high,
+                     group="model")
 
 
 def _c(name, desc, units, low, high):
@@ -64,11 +65,15 @@ MODEL_PARAMS = [
     _m("prior_a", "a0 of the Beta prior on willingness", "pseudo-helps", 1e-6, 1e6),
     _m("prior_b", "b0 of the Beta prior on willingness", "pseudo-declines", 1e-6, 1e6),
     _m("k_busy", "weight of busyness in the context factor c", "1 per unit busyness", 0.0, 50.0),
-    _m("k_load", "weight of recent asks in the context factor c", "1 per unit ask load", 0.0, 50.0),
-    _m("notice_probability", "chance a person noticed an ask they did not answer", "probability", 0.0, 1.0),
+    _m("k_load", "weight of recent asks in the context factor c", "1 per unit ask load", 0.0,
+       50.0),
+    _m("notice_probability", "chance a person noticed an ask they did not answer", "probability",
+       0.0, 1.0),
     _m("ask_memory_half_life_s", "half-life of the ask load", "seconds", 1e-3, 1e9),
-    _m("evidence_half_life_s", "half-life of forgetting towards the prior (0 disables)", "seconds", 0.0, 1e12),
-    _m("default_busyness", "busyness used when perception gives none", "fraction [0, 1]", 0.0, 1.0),
+    _m("evidence_half_life_s", "half-life of forgetting towards the prior (0 disables)", "seconds",
+       0.0, 1e12),
+    _m("default_busyness", "busyness used when perception gives none", "fraction [0, 1]", 0.0,
+       1.0),
 ]
 
 CONFIG_PARAMS = [
@@ -78,11 +83,15 @@ CONFIG_PARAMS = [
     _c("busy_cost", "extra interruption per unit busyness", "factor", 0.0, 1e9),
     _c("repeat_cost", "extra interruption per unit ask load", "factor", 0.0, 1e9),
     _c("urgency_cost_gain", "C_r = base * (1 + gain * urgency)", "factor", 0.0, 1e9),
-    _c("default_continue_cost_s", "continue cost of a kind without its own", "robot-seconds", 0.0, 1e9),
-    _c("typical_busyness", "busyness of a typical future request (information value)", "fraction [0, 1]", 0.0, 1.0),
-    _c("typical_continue_cost_s", "continue cost of a typical future request", "robot-seconds", 0.0, 1e9),
+    _c("default_continue_cost_s", "continue cost of a kind without its own", "robot-seconds", 0.0,
+       1e9),
+    _c("typical_busyness", "busyness of a typical future request (information value)",
+       "fraction [0, 1]", 0.0, 1.0),
+    _c("typical_continue_cost_s", "continue cost of a typical future request", "robot-seconds",
+       0.0, 1e9),
     _c("lookahead_horizon_s", "future requests counted up to this far ahead", "seconds", 0.0, 1e9),
-    _c("future_discount_time_s", "exponential discount time of later requests", "seconds", 1e-3, 1e12),
+    _c("future_discount_time_s", "exponential discount time of later requests", "seconds", 1e-3,
+       1e12),
     _c("prior_candidate_rate_per_day", "prior mean rate at which a never-seen person is a "
        "candidate again (most are never seen again)", "per day", 0.0, 1e9),
     _c("prior_rate_window_s", "weight of that prior rate", "seconds", 1e-3, 1e12),
@@ -94,7 +103,8 @@ CONFIG_PARAMS = [
        MAX_ASKS_CAP),
     _c("busyness_limit", "never ask at or above this busyness", "fraction [0, 1]", 0.0, 1.0),
     _c("max_distance_m", "never ask someone farther away", "metres", 0.0, 1e6),
-    _c("max_observation_age_s", "never ask on an observation older than this", "seconds", 0.0, 1e9),
+    _c("max_observation_age_s", "never ask on an observation older than this", "seconds", 0.0,
+       1e9),
     ParamSpec("protected_activities", list(CONFIG_DEFAULTS.protected_activities),
               "activity labels whose people are never asked", "labels", group="config"),
 ]
@@ -102,7 +112,8 @@ CONFIG_PARAMS = [
 NODE_PARAMS = [
     ParamSpec("robot_id", "", "robot id in event ids (empty: HELPAWARE_ROBOT_ID or host name)",
               "text", read_only=True),
-    ParamSpec("store_path", "", "belief store file (empty: ROS_HOME or ~/.ros, then helpaware/beliefs.sqlite3; "
+    ParamSpec("store_path", "",
+              "belief store file (empty: ROS_HOME or ~/.ros, then helpaware/beliefs.sqlite3; "
               "'memory': kept in this process only, lost at exit)", "path",
               read_only=True),
     ParamSpec("navigation_status_topic", "",
@@ -113,11 +124,13 @@ NODE_PARAMS = [
               read_only=True),
     ParamSpec("autostart", True, "managed mode: configure and activate by itself at start-up",
               "flag", read_only=True),
-    ParamSpec("pending_ask_timeout_s", 120.0, "an ask without outcome expires after this (no belief change)",
+    ParamSpec("pending_ask_timeout_s", 120.0,
+              "an ask without outcome expires after this (no belief change)",
               "seconds", 1.0, 86400.0),
     ParamSpec("max_asks_per_need", 2, "asks at one help need before the robot carries on alone",
               "asks", 1, 100),
-    ParamSpec("diagnostics_period_s", 1.0, "period of /diagnostics and markers", "seconds", 0.1, 60.0,
+    ParamSpec("diagnostics_period_s", 1.0, "period of /diagnostics and markers", "seconds", 0.1,
+              60.0,
               read_only=True),
     ParamSpec("asking_enabled", True, "operator switch: false means always continue", "flag"),
     ParamSpec("count_peer_asks", True,
@@ -278,7 +291,8 @@ class NodeParameters:
         # registered before any declaration, so file overrides are checked too
         node.add_on_set_parameters_callback(self._check)
         kind_desc = ParameterDescriptor(description=_describe(NODE_PARAMS[3]), read_only=True)
-        kinds = node.declare_parameter(KINDS_PARAM, list(DEFAULT_CONTINUE_COSTS_S), kind_desc).value
+        kinds = node.declare_parameter(KINDS_PARAM, list(DEFAULT_CONTINUE_COSTS_S),
+                                       kind_desc).value
         if kinds is None:
             raise CoreInputError(f"{KINDS_PARAM}: {_EMPTY_LIST}")
         kinds = [k for k in kinds if k]

@@ -146,7 +146,8 @@ def build_world(sc: Scenario, seed: int, ask_draws: int = ASK_DRAWS_PER_NEED) ->
     n = sc.regulars
     ids = [f"{sc.name}-r{i:03d}" for i in range(n)]
     will = dict(zip(ids, _willingness(rng, sc, sc.willingness, n).tolist()))
-    around = rng.gamma(sc.encounter_spread, 1.0 / sc.encounter_spread, size=n) if n else np.empty(0)
+    around = rng.gamma(sc.encounter_spread, 1.0 / sc.encounter_spread,
+                       size=n) if n else np.empty(0)
     sched = _Schedules(sc, random.Random(int(rng.integers(2**63))), n)
     kind_w = np.array([k.weight for k in sc.kinds], dtype=float)
     kind_cum = np.cumsum(kind_w / kind_w.sum())

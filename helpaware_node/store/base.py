@@ -95,7 +95,8 @@ class EventsReader:
 
 def check_learned(entry: LearnedEntry) -> None:
     """Refuse a history row that is not plain, finite values (names the field)."""
-    if isinstance(entry.revision, bool) or not isinstance(entry.revision, int) or entry.revision < 1:
+    if isinstance(entry.revision, bool) or not isinstance(entry.revision,
+                                                          int) or entry.revision < 1:
         raise CoreInputError(f"revision: {entry.revision!r} must be a whole number >= 1")
     for name in ("constants", "target"):
         values = getattr(entry, name)

@@ -29,12 +29,12 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Iterable, Iterator
 
-from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
+from ..core import Belief, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
 from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
 from .ids import PERSON_KEY_RE, check_ask, check_event, check_robot_id  # noqa: F401 (re-exported)
 from .keys import SiteKeyError, SiteKeys, key_fingerprint
-from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
+from .schema import StoreVersionError, file_version, migrate
 
 DAY_S = 86400.0
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"

@@ -113,7 +113,8 @@ def run(args: argparse.Namespace) -> int:
             status = "fitted"
         shown = "-" if value is None else f"{value:.4f}"
         rows.append((name, shown, _fmt(fit.std_errors.get(name)), status))
-    print(render_table(("constant", "estimate", "std error", ""), rows, (False, True, True, False)))
+    print(render_table(("constant", "estimate", "std error", ""), rows,
+                       (False, True, True, False)))
     print(f"log marginal likelihood {fit.loglik:.3f} ({fit.iterations} iterations)")
     print(verdict_line(fit.verdict))
     if not fit.converged:

@@ -335,7 +335,8 @@ class Drive:
         end = time.monotonic() + timeout_s
         while time.monotonic() < end:
             self._pubs[robot.robot_id][2].publish(String(data=text))
-            if self.spin_until(lambda: bool(robot.acked - known), min(2.0, end - time.monotonic())):
+            if self.spin_until(lambda: bool(robot.acked - known),
+                               min(2.0, end - time.monotonic())):
                 return True
         return bool(robot.acked - known)
 

@@ -10,7 +10,6 @@ What the core does (helpaware_node/core/policy.py `_limits`, `evaluate`):
 - the look-ahead's time seen is max(now_s - first_seen_s, 0).
 So a backward jump cannot open a burst of asks; a forward jump only ages asks as real time would.
 """
-import math
 from dataclasses import replace
 
 import numpy as np

@@ -294,7 +294,8 @@ def test_crash_loop_a_peer_history_of_deep_numbers_at_every_start(ctx, tmp_path)
                 continue
             for depth in (2, 17, 980):
                 signed = KEYS.sign(seed)
-                text = json.dumps({**signed, name[0]: "HOLE"}).replace('"HOLE"', deep_number(depth))
+                text = json.dumps({**signed, name[0]: "HOLE"}).replace('"HOLE"',
+                                                                       deep_number(depth))
                 if depth == 2:
                     text = json.dumps(KEYS.sign(json.loads(text)))   # correctly signed
                 texts.append(text)

@@ -530,7 +530,8 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
             return wire.people_document([{"id": tag, "distance_m": 1.0}], 1.0), \
                 lambda: tag in node.session.seen
         if topic == "task_status":
-            return wire.task_status_document(tag, "open", "door", 0.5), lambda: tag in node.session.needs
+            return wire.task_status_document(tag, "open", "door",
+                                             0.5), lambda: tag in node.session.needs
         if topic == "outcome":
             return wire.outcome_document(tag, "nobody", "helped"), \
                 lambda: tag in node.counters.last_reason["outcome"]

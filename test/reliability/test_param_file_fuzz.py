@@ -148,7 +148,8 @@ def corpus(tmp_path) -> list[dict]:
 
     def add(kind, data, **extra):
         path = tmp_path / f"{len(cases):04d}_{kind}.yaml"
-        path.write_bytes(data if isinstance(data, bytes) else data.encode("utf-8", "surrogatepass"))
+        path.write_bytes(data if isinstance(data, bytes) else data.encode("utf-8",
+                                                                          "surrogatepass"))
         cases.append({"path": str(path), "kind": kind, **extra})
 
     for name, text in seeds.items():
@@ -172,7 +173,8 @@ def corpus(tmp_path) -> list[dict]:
             elif op == "flip":
                 text = text[:i] + chr((ord(text[i]) ^ (1 << rng.randrange(7))) or 1) + text[i + 1:]
             else:
-                text = text[:i] + rng.choice(list(":-[]{}\"'#&*!|>%@`,\t ") + ["\n", "\x00"]) + text[i:]
+                text = text[:i] + rng.choice(list(":-[]{}\"'#&*!|>%@`,\t ") + ["\n",
+                                                                               "\x00"]) + text[i:]
         add("char_edit", text)
     for _ in range(LINE_EDITS):
         lines = rng.choice(list(seeds.values())).split("\n")

@@ -148,7 +148,8 @@ def test_every_restart_answers_and_no_shared_memory_of_the_killed_is_left(tmp_pa
         assert any(p.endswith("_el") for p in last), last    # the test sees the sets at all
         kill_hard(proc)
         proc = None
-        segment = [p for p in last if "fastdds_port" not in p and not p.endswith(("_el", "_mutex"))]
+        segment = [p for p in last if "fastdds_port" not in p and not p.endswith(("_el",
+                                                                                  "_mutex"))]
         assert segment and set(segment) <= set(leftovers(last))   # a kill leaves its files
         sweep = subprocess.run([sys.executable, "-m", "helpaware_node.cli", "shm-sweep"],
                                capture_output=True, text=True, timeout=60)
