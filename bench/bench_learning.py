@@ -200,7 +200,8 @@ def decisions_beside_a_refit(tmp, pause_s: float) -> None:
         ("in a worker process (the node)", f"{t_proc:.1f}", len(in_process),
          q(in_process, 50), q(in_process, 95), q(in_process, 100))],
         (False, True, True, True, True, True)))
-    print(f"the same refit both ways: {reply[0][0] == 'ok' and reply[0][1].model == box['r'].model}"
+    same = reply[0][0] == "ok" and reply[0][1].model == box["r"].model
+    print(f"the same refit both ways: {same}"
           " (the process's time includes its start, about 2 s, and sending the events)")
 
 

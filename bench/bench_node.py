@@ -116,11 +116,13 @@ def main() -> int:
                     lat[tag].append(got[rid] - t0)
                 if tag == "node":
                     targets[tag].publish(String(data=wire.task_status_document(rid, "resolved")))
-        print(f"help need -> decision across processes, 20 people in view, {args.needs} needs each")
+        print("help need -> decision across processes, 20 people in view, "
+              f"{args.needs} needs each")
         print(f"{'':8}  {'median ms':>9}  {'p99 ms':>7}  {'received':>8}")
         for tag in ("node", "relay"):
             xs = lat[tag]
-            print(f"{tag:8}  {statistics.median(xs) * 1e3:9.3f}  {percentile(xs, 0.99) * 1e3:7.3f}  "
+            print(f"{tag:8}  {statistics.median(xs) * 1e3:9.3f}  "
+                  f"{percentile(xs, 0.99) * 1e3:7.3f}  "
                   f"{len(xs):8d}")
         ratio = statistics.median(lat["node"]) / statistics.median(lat["relay"])
         print(f"ratio node/relay (median): {ratio:.2f}  (target <= 1.5)")

@@ -222,7 +222,8 @@ def comparison(starts: list[Start], variants: list[str]) -> list[str]:
     return lines
 
 
-DEFAULTS_PROFILE = ('<?xml version="1.0" encoding="UTF-8" ?>\n<dds xmlns="http://www.eprosima.com">'
+DEFAULTS_PROFILE = ('<?xml version="1.0" encoding="UTF-8" ?>\n'
+                    '<dds xmlns="http://www.eprosima.com">'
                     '<profiles><participant profile_name="middleware_defaults" '
                     'is_default_profile="true"><rtps/></participant></profiles></dds>\n')
 

@@ -38,7 +38,8 @@ import time
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, os.path.dirname(HERE))
 
-from helpaware_node.core import DecisionConfig, SiteModel, candidate_from_record, decide  # noqa: E402
+from helpaware_node.core import (DecisionConfig, SiteModel, candidate_from_record,  # noqa: E402
+                                 decide)
 from helpaware_node.core import HelpNeed, PersonRecord  # noqa: E402
 from helpaware_node.sim.compare import (TARGET_LABELS, compare, describe_pair,  # noqa: E402
                                         describe_regret, regret, summary_table, targets)

@@ -247,9 +247,9 @@ def _sender(doc: Mapping) -> str:
 
 
 # ---------------------------------------------------------------------------- privacy topic
-REQUEST_MAX_AGE_S = 600.0     # a privacy request older (or newer) than this is refused as a
-                              # replay (common practice for signed requests, no source; the
-                              # sender's and the robot's clocks must agree to within it)
+# a privacy request older (or newer) than this is refused as a replay (common practice for
+# signed requests, no source; the sender's and the robot's clocks must agree to within it)
+REQUEST_MAX_AGE_S = 600.0
 
 
 def check_fresh(act: PrivacyAct, now_s: float, what: str) -> None:

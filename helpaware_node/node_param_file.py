@@ -3,8 +3,9 @@
 The file has the usual form `<node name or /**/name>: {ros__parameters: {...}}`.  Nested
 groups are flattened with '.'; names are the node's (`k_busy`, `continue_cost_s.door`, ...).
 Values not given keep the `base` values (the recorded parameters), so a file may hold only the
-values to change.  The conversion is the node's own (`helpaware_node.ros.params.build`).  Parameters that are not decision settings (topics, store, ...) are listed in
-`ignored` so the report can show them.
+values to change.  The conversion is the node's own (`helpaware_node.ros.params.build`).
+Parameters that are not decision settings (topics, store, ...) are listed in `ignored` so the
+report can show them.
 """
 from __future__ import annotations
 

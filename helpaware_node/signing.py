@@ -12,7 +12,8 @@ carries three fields besides its own:
 The signing key is never the key that hashes person ids: it is derived with HKDF-SHA256
 (RFC 5869) from the site key file's signing root under a purpose label, and so is the key id:
 
-  signing key = HKDF(IKM = signing root, salt = "", info = "helpaware fleet signing key v2", L = 32)
+  signing key = HKDF(IKM = signing root, salt = "",
+                     info = "helpaware fleet signing key v2", L = 32)
   key id      = HKDF(IKM = signing root, salt = "", info = "helpaware fleet key id v2", L = 8)
 
 Until a site first rotates its signing key the signing root is the site key itself (one secret

@@ -49,7 +49,8 @@ class WireError(ValueError):
 
 @dataclass(frozen=True)
 class F:
-    kind: str                       # string | number | integer | boolean | enum | array | object | any_object
+    # string | number | integer | boolean | enum | array | object | any_object
+    kind: str
     required: bool = True
     nullable: bool = False
     low: float = -BIG
@@ -628,7 +629,8 @@ def replay_inputs(document: Mapping[str, Any]
     cands = [Candidate(person_id=c["person_id"], distance_m=c["distance_m"],
                        observed_at_s=c["observed_at_s"], belief=Belief(c["a"], c["b"]),
                        busyness=c["busyness"], activity=c["activity"],
-                       ask_times_s=tuple(c["ask_times_s"]), candidate_count=int(c["candidate_count"]),
+                       ask_times_s=tuple(c["ask_times_s"]),
+                       candidate_count=int(c["candidate_count"]),
                        first_seen_s=c["first_seen_s"], opted_out=c["opted_out"])
              for c in document["candidates"]]
     return need, cands, float(document["stamp_s"]), tuple(document["robot_ask_times_s"])

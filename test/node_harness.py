@@ -58,9 +58,11 @@ class Rig:
         """Publish until the node holds every listed person (best-effort topic)."""
         text = wire.people_document(people, self.node.now_s())
         ids = {p["id"] for p in people}
+
         def seen():
-            return ids <= set(self.node.session.seen) and all(
-                self.node.session.seen[p["id"]].person.distance_m == p["distance_m"] for p in people)
+            seen = self.node.session.seen
+            return ids <= set(seen) and all(
+                seen[p["id"]].person.distance_m == p["distance_m"] for p in people)
         for _ in range(100):
             self.people_pub.publish(String(data=text))
             if self.spin_until(seen, 0.3):
@@ -71,7 +73,10 @@ class Rig:
         n = len(self.decisions)
         self.task_pub.publish(String(data=wire.task_status_document(request_id, "open", kind,
                                                                     **kw)))
-        mine = lambda: [d for d in self.decisions[n:] if d["request_id"] == request_id]  # noqa: E731
+
+        def mine():
+            return [d for d in self.decisions[n:] if d["request_id"] == request_id]
+
         assert self.spin_until(lambda: bool(mine())), "no decision arrived"
         return mine()[0]
 

@@ -46,7 +46,8 @@ def test_written_file_loads_into_node_declarations(tmp_path):
                 assert node.get_parameter(name).value == value
                 assert getattr(declared.model, name) == value
             # a parameter the file does not give keeps the node's default
-            assert declared.model.ask_memory_half_life_s == params.MODEL_DEFAULTS.ask_memory_half_life_s
+            default = params.MODEL_DEFAULTS.ask_memory_half_life_s
+            assert declared.model.ask_memory_half_life_s == default
         finally:
             node.destroy_node()
     finally:

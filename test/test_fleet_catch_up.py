@@ -148,7 +148,7 @@ def deliver(link, text):
 
 
 def test_stored_before_learning_idempotent_and_forget_blocks_queued_events(tmp_path,
-                                                                         link_node):
+                                                                           link_node):
     store = SqliteStore(tmp_path / "rules.sqlite3", "here", SITE_KEY)
     seen_stored = []
 

@@ -21,6 +21,7 @@ def encode_event(e: StoredEvent) -> str:
 def encode_forget(key: str, sender: str) -> str:
     return encode_document("forget", PrivacyAct.new("forget", key, sender), KEYS)
 
+
 events_st = st.lists(
     st.tuples(st.sampled_from(["r1", "r2", "r3"]), st.integers(0, 2),
               st.floats(0, 2000, allow_nan=False).map(lambda t: round(t, 1)),  # ties happen
@@ -36,7 +37,7 @@ def build(rows):
 @settings(max_examples=40)
 @given(events_st, st.randoms(use_true_random=False), st.randoms(use_true_random=False))
 def test_any_delivery_order_and_duplication_gives_the_same_beliefs(tmp_path_factory, rows,
-                                                                  rng1, rng2):
+                                                                   rng1, rng2):
     events = build(rows)
     messages = [encode_event(e) for e in events]
     beliefs = []

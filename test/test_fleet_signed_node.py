@@ -25,7 +25,8 @@ from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 from std_msgs.msg import String  # noqa: E402
 
 from helpaware_node.core import Result, fold_events  # noqa: E402
-from helpaware_node.fleet_documents import PrivacyAct, decode_document, encode_document  # noqa: E402
+from helpaware_node.fleet_documents import (PrivacyAct, decode_document,  # noqa: E402
+                                            encode_document)
 from helpaware_node.ros.fleet import FLEET_TOPIC, FleetLink, fleet_qos  # noqa: E402
 from helpaware_node.signing import canonical_bytes  # noqa: E402
 from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402

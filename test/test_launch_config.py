@@ -41,7 +41,8 @@ def test_node_process_from_launch_config_decides_for_a_driver_process(tmp_path):
         assert first["action"] == "ask" and first["person_id"] == "nurse-a"
         # the node ran with the site file: its parameters are recorded in every decision
         model, config = wire.recorded_params(first)
-        assert config.continue_costs_s["door"] == 150.0 and "on_call" in config.protected_activities
+        assert config.continue_costs_s["door"] == 150.0
+        assert "on_call" in config.protected_activities
         for d in decisions:   # each is reproduced by the core from its own record
             again = decide(*wire.replay_inputs(d), model, config)
             assert (again.action, again.person_id) == (d["action"], d["person_id"])

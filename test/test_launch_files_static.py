@@ -90,6 +90,7 @@ def test_names_exist_in_the_launch_that_is_installed():
         mod = importlib.import_module(module)
         for n in names:
             assert hasattr(mod, n), f"{module}.{n}"
+
     def params(cls):
         return {p for k in cls.__mro__ if "__init__" in vars(k)
                 for p in inspect.signature(k.__init__).parameters}

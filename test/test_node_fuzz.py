@@ -66,8 +66,8 @@ def hostile_corpus(topic, now, n, seed):
 
 def _snapshot(node):
     return ({k: (r.belief, r.ask_times_s) for k, r in node.session.memory.records.items()},
-            set(node.session.needs), set(node.session.pending), [e for k in node.store.keys()
-                                                 for e in node.store.events_for(k)])
+            set(node.session.needs), set(node.session.pending),
+            [e for k in node.store.keys() for e in node.store.events_for(k)])
 
 
 def test_thousands_of_hostile_documents_per_topic_at_the_handlers(ctx):

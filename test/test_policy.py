@@ -32,7 +32,7 @@ def test_information_value_is_gain_times_knowledge_gradient(a, b, m_star, publis
     # With c = 1 (no busyness, no load, typical busyness 0): U(m) = G max(0, m - m*), with
     # gain G = Cbar - t_help + t_ask and threshold m* = (t_ask + Ibar) / G; so VOI = G * KG.
     model = SiteModel(k_busy=2.0, k_load=1.0)
-    t_ask, t_help, w = 10.0, 20.0, 6.0
+    t_ask, t_help = 10.0, 20.0
     gain = 120.0 - t_help + t_ask
     ibar = m_star * gain - t_ask   # choose Ibar so the threshold is m*
     config = DecisionConfig(typical_busyness=0.0, typical_continue_cost_s=120.0,
@@ -197,6 +197,7 @@ def test_encounter_rate_is_the_gamma_poisson_posterior_mean(count, span_s):
     config = DecisionConfig()
     shape = config.prior_candidate_rate_per_day * config.prior_rate_window_s / 86400.0
     scale = 1.0 / config.prior_rate_window_s
+
     def weight(lam):
         return stats.gamma.pdf(lam, shape, scale=scale) * stats.poisson.pmf(count, lam * span_s)
     hi = 5000.0 * (shape + count + 1.0) / (config.prior_rate_window_s + span_s)

@@ -37,7 +37,7 @@ TIMEOUT_S = 120.0
 
 _open = st.tuples(st.just("open"))
 _answer = st.tuples(st.just("answer"), st.sampled_from(["helped", "declined", "declined",
-                                                         "no_response", "could_not_ask"]))
+                                                        "no_response", "could_not_ask"]))
 # opening and answering weigh more: the limits bind only when asks come thick and fast
 op_st = st.one_of(
     _open, _open, _open, _answer, _answer, _answer,

@@ -289,7 +289,7 @@ def test_shipped_scenarios_load_and_differ_in_kind():
     assert {a.name for a in hosp.activities} >= {"charting", "on_call", "walking_fast",
                                                  "with_patient"}
     assert hub.strangers_per_need > 2 * hub.regulars_per_need  # many strangers
-    assert lab.strangers_per_need < 0.1 * lab.regulars_per_need  # few regulars, nearly no strangers
+    assert lab.strangers_per_need < 0.1 * lab.regulars_per_need  # few regulars, ~no strangers
     assert hub.needs_per_hour > 4 * lab.needs_per_hour  # very busy vs quiet
     assert hub.truth_model == "logistic"
 

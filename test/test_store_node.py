@@ -47,6 +47,7 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         assert rig.spin_until(lambda: rig.node.store.is_opted_out(key))
         d = rig.open_need("n2", "handover", urgency=1.0)
         assert d["action"] == "continue"
-        assert [r for r in d["rationale"] if r["person_id"] == "nurse-a"][0]["excluded"] == "opted_out"
+        nurse = [r for r in d["rationale"] if r["person_id"] == "nurse-a"][0]
+        assert nurse["excluded"] == "opted_out"
     finally:
         rig.close()

@@ -119,8 +119,10 @@ def test_migration_from_version_1_rebuilds_snapshots(tmp_path):
     conn = sqlite3.connect(path, isolation_level=None)
     schema.migrate(conn, target=1)
     k = "ab" * 32
-    conn.execute("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, request_kind) VALUES ('r9/1', ?, 5.0, 0.2, 0.0, 'helped', '')", (k,))
-    conn.execute("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, request_kind) VALUES ('r9/2', ?, 6.0, 0.2, 0.0, 'declined', '')", (k,))
+    insert = ("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, "
+              "request_kind) VALUES (?, ?, ?, 0.2, 0.0, ?, '')")
+    conn.execute(insert, ("r9/1", k, 5.0, "helped"))
+    conn.execute(insert, ("r9/2", k, 6.0, "declined"))
     conn.close()
     store = SqliteStore(path, "r1", KEY, model=MODEL)
     assert store.counts()["schema_version"] == schema.SCHEMA_VERSION == 4

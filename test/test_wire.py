@@ -144,7 +144,8 @@ def test_errors_name_the_field_and_range():
                        match=r"people\[0\]\.busyness: 1.7 is outside the allowed range \[0, 1\]"):
         wire.validate("people", doc)
     with pytest.raises(wire.WireError, match="result: 'maybe' is not one of helped"):
-        wire.decode("outcome", '{"doc":"outcome","version":1,"request_id":"r","person_id":"p","result":"maybe"}')
+        wire.decode("outcome", '{"doc":"outcome","version":1,"request_id":"r","person_id":"p",'
+                    '"result":"maybe"}')
     with pytest.raises(wire.WireError, match="NaN is not allowed"):
         wire.decode("people", '{"doc":"people","version":1,"stamp_s":NaN,"people":[]}')
     with pytest.raises(wire.WireError, match="kind: required when state is open"):
@@ -203,7 +204,8 @@ def test_builders_round_trip_into_core_values():
                                                                              42.0)
     seen = wire.people_from(wire.decode("people", wire.people_document(
         [{"id": "n1", "distance_m": 3.0, "position": [1.0, 2.0, 3.0]}], 5.0)))
-    assert seen[0].person_id == "n1" and seen[0].busyness is None and seen[0].position == (1.0, 2.0, 3.0)
+    assert seen[0].person_id == "n1" and seen[0].busyness is None
+    assert seen[0].position == (1.0, 2.0, 3.0)
 
 
 def test_a_decision_at_the_largest_caps_is_a_valid_document():

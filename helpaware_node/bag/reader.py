@@ -18,6 +18,7 @@ from rosbags.rosbag2.errors import ReaderError
 from .salvage import McapSalvage
 from .types import BagReadError
 
+
 @dataclass
 class BagMessage:
     topic: str

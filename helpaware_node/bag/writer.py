@@ -14,6 +14,7 @@ from rosbags.rosbag2.enums import StoragePlugin
 
 from .types import BAG_FORMAT_VERSION, STRING_TYPE, normalise_type, serialize_string, typestore
 
+
 class BagWriter:
     """Writes raw (already serialised) messages into a new MCAP bag.
 

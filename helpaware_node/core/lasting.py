@@ -15,9 +15,10 @@ horizon H, exactly as N counts them, so
 
     lasting_cost = r * integral_0^H e^(-s/tau) [U(f u(s)) - U((f + 1) u(s))] ds,  u = 2^(-s/h).
 
-U is decreasing and convex; L* (U(L*) = 0, by Lambert's W function) splits the integral into the part where both loads leave a
-positive advantage (drop alpha (e^(-k f u) - e^(-k (f+1) u)) + gamma u) and the part where only
-the load without the ask does (drop U(f u)). Each piece is closed form through
+U is decreasing and convex; L* (U(L*) = 0, by Lambert's W function) splits the integral into
+the part where both loads leave a positive advantage (drop alpha (e^(-k f u) - e^(-k (f+1) u))
++ gamma u) and the part where only the load without the ask does (drop U(f u)). Each piece is
+closed form through
 
     K(s, c) = integral_s^inf e^(-t/tau) e^(-c u(t)) dt = tau e^(-s/tau) D(rho, c u(s)),
     D(rho, x) = rho integral_0^1 t^(rho-1) e^(-x t) dt = e^(-x) M(1, rho + 1, x)

@@ -27,6 +27,7 @@ MAX_ASKS_CAP = 1000
 # soon" policy a site has asked for; longer is an opt-out, which the store keeps for good.
 MAX_REASK_INTERVAL_S = 30 * 86400.0
 
+
 class CoreInputError(ValueError):
     """A value given to the core is outside what the model allows (names field and range)."""
 
@@ -106,7 +107,8 @@ class DecisionConfig:
     typical_continue_cost_s: float = 120.0
     lookahead_horizon_s: float = 28800.0    # future requests counted up to 8 h ahead
     future_discount_time_s: float = 14400.0  # exponential discount of later requests
-    prior_candidate_rate_per_day: float = 0.3  # prior mean rate of a never-seen person (decision.md)
+    # prior mean rate of a never-seen person (decision.md)
+    prior_candidate_rate_per_day: float = 0.3
     prior_rate_window_s: float = 28800.0     # weight of that prior rate, in seconds seen
     # hard limits, applied before any score
     min_reask_interval_s: float = 900.0
@@ -168,7 +170,8 @@ class _FrozenDict(dict):
     def _refuse(self, *args: Any, **kwargs: Any) -> None:
         raise TypeError("DecisionConfig.continue_costs_s is read-only; use dataclasses.replace")
 
-    __setitem__ = __delitem__ = clear = pop = popitem = setdefault = update = _refuse  # type: ignore
+    __setitem__ = __delitem__ = clear = pop = popitem = _refuse  # type: ignore
+    setdefault = update = _refuse  # type: ignore
 
     def __hash__(self) -> int:  # type: ignore[override]
         return hash(tuple(sorted(self.items())))

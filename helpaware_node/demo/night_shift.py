@@ -233,7 +233,7 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
             who.helped += result == "helped"
             set_clock(t + 20.0)
             outcome_pub.publish(String(data=wire.outcome_document(rid, who.person_id, result,
-                                                                   stamp_s=t + 20.0)))
+                                                                  stamp_s=t + 20.0)))
             spin_for(0.05)
             text = f"ask {who.name} ({who.role}, p={row['p']:.2f})"
         else:
@@ -248,12 +248,14 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         f"{counts['continue']}; helped {counts['helped']}, declined {counts['declined']}, "
         f"no response {counts['no_response']}, could not ask {counts['could_not_ask']}")
     if limits:
-        out("limits that kept people out: " + ", ".join(f"{k} {v}" for k, v in sorted(limits.items())))
+        out("limits that kept people out: "
+            + ", ".join(f"{k} {v}" for k, v in sorted(limits.items())))
     out("")
     out(f"{'staff':10}  {'role':7}  {'asked':5}  {'helped':6}  {'invented w':10}  learned mean")
     for s in sorted(staff, key=lambda s: -s.asked)[:10]:
         learned = "-" if math.isnan(s.learned_mean) else f"{s.learned_mean:.2f}"
-        out(f"{s.name:10}  {s.role:7}  {s.asked:5}  {s.helped:6}  {s.willingness:10.2f}  {learned}")
+        out(f"{s.name:10}  {s.role:7}  {s.asked:5}  {s.helped:6}  {s.willingness:10.2f}  "
+            f"{learned}")
     out("(learned mean: the node's belief at the last decision that person was part of)")
     if last_params:
         out("")

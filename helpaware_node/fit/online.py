@@ -96,9 +96,11 @@ class LearningSettings:
 
 @dataclass(frozen=True)
 class Refit:
-    accepted: bool                   # False: nothing changes (failed, not converged, too few outcomes, mode off)
+    # False: nothing changes (failed, not converged, too few outcomes, mode off)
+    accepted: bool
     reason: str                      # one line, names what happened
-    model: SiteModel                 # the constants in force after this refit (unchanged when not accepted)
+    # the constants in force after this refit (unchanged when not accepted)
+    model: SiteModel
     previous: SiteModel
     n_outcomes: int
     revision: int                    # increases with each accepted change
@@ -122,7 +124,8 @@ class Refit:
     def summary(self) -> str:
         """One line for the log: old -> new of each constant, number of outcomes."""
         if not self.accepted:
-            return f"site learning: refit on {self.n_outcomes} outcomes changed nothing: {self.reason}"
+            return (f"site learning: refit on {self.n_outcomes} outcomes changed nothing: "
+                    f"{self.reason}")
         moved = ", ".join(f"{n} {_g(a)} -> {_g(b)}" for n, a, b in self.changes()) or "no change"
         what = (f"revision {self.revision}" if self.applied else "proposal (not applied)")
         return (f"site learning: {what} from {self.n_outcomes} outcomes of {self.n_people} "

@@ -107,7 +107,8 @@ def pseudo_outcomes(target: SiteParams, weight: float) -> OutcomeData:
 
 class _Rows:
     def __init__(self) -> None:
-        self.person, self.x, self.load, self.result, self.ages, self.weight = ([] for _ in range(6))
+        (self.person, self.x, self.load, self.result, self.ages,
+         self.weight) = ([] for _ in range(6))
 
     def add(self, results, xs, loads, ages, weight: float) -> None:
         key = f"pseudo{len(self.weight):05d}"

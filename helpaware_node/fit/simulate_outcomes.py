@@ -50,7 +50,7 @@ class SimulatedAsks:
     ask_person: np.ndarray         # index into person_keys, per ask
     ask_time_s: np.ndarray
     answered: np.ndarray           # bool per ask: an outcome was recorded
-    result: np.ndarray             # per ask (HELPED / DECLINED / NO_RESPONSE), meaningful if answered
+    result: np.ndarray             # per ask (HELPED / DECLINED / NO_RESPONSE) if answered
     busyness: np.ndarray           # per ask
     robot_load: np.ndarray         # per ask: the load the robot computed with its half-life
 

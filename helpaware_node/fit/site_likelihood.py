@@ -42,7 +42,6 @@ from scipy.linalg import eigh_tridiagonal
 from .data import HELPED, NO_RESPONSE, OutcomeData
 
 
-
 def logsumexp(x: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:
     """log(sum(exp(x))) along `axis`, stable.
 

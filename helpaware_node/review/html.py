@@ -120,14 +120,16 @@ def calibration_advice(bag: str, bins: list[dict]) -> str:
 def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = None) -> str:
     s = summary
     parts = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
-             f"<title>helpaware review: {esc(s['bag'])}</title><style>{STYLE}</style></head><body>",
+             f"<title>helpaware review: {esc(s['bag'])}</title><style>{STYLE}</style>"
+             "</head><body>",
              f"<h1>Review of {esc(s['bag'])}</h1>"]
     if s["read_error"]:
         parts.append(f'<p class="warn">Partial report: the bag could not be read to its end. '
                      f'{esc(s["read_error"])}</p>')
     if s["missing_topics"]:
         parts.append(f'<p class="warn">Topics missing or empty in this bag: '
-                     f'{esc(", ".join(s["missing_topics"]))}. Sections built from them are empty.</p>')
+                     f'{esc(", ".join(s["missing_topics"]))}. '
+                     'Sections built from them are empty.</p>')
     if s["documents_not_understood"]:
         parts.append('<p class="warn">Documents not understood (skipped): ' + esc(", ".join(
             f"{k}: {v} (e.g. {s['documents_not_understood_examples'].get(k, '')})"
@@ -182,13 +184,14 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
                  f"{pend['timeout_s']:g} s (expired); {pend['still_pending_at_end']} were still "
                  f"pending when the bag ended.</p>")
     if pend["expired_request_ids"]:
-        parts.append("<p class=\"note\">Expired: " + esc(", ".join(pend["expired_request_ids"][:50]))
-                     + "</p>")
+        expired = ", ".join(pend["expired_request_ids"][:50])
+        parts.append("<p class=\"note\">Expired: " + esc(expired) + "</p>")
     par = s["parameters"]
     parts.append("<h2>Parameters in force</h2>" + table(
         ["parameter hash", "decisions"], [[h, n] for h, n in par["hashes"].items()]))
     for h, values in par["in_force"].items():
-        parts.append(f"<h3>{esc(h)}</h3><pre>{esc(json.dumps(values, indent=1, sort_keys=True))}</pre>")
+        text = json.dumps(values, indent=1, sort_keys=True)
+        parts.append(f"<h3>{esc(h)}</h3><pre>{esc(text)}</pre>")
     if replay is not None:
         parts.append(render_replay(replay, figures.get("replay")))
     parts.append("<h2>Cautions</h2><p class=\"note\">The node only decides whether to ask; it "

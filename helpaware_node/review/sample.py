@@ -16,7 +16,7 @@ from ..core.context import context_factor
 from ..store.base import person_key
 from . import documents as rw
 from ..bag import (DIAGNOSTIC_ARRAY_TYPE, MARKER_ARRAY_TYPE, BagWriter, STRING_TYPE,
-                    typestore)
+                   typestore)
 from ..bag.person_ids import HASHED_MARK
 
 SAMPLE_SITE_KEY = b"invented-night-shift-site-key"

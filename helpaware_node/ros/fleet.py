@@ -54,9 +54,10 @@ FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
 MERGE_PERIOD_S = 0.05           # how often the queue of received fleet events is looked at
 MERGE_BATCH = 500               # events stored per tick at most (one transaction)
 MERGE_TICK_BUDGET_S = 0.1       # one-by-one appends (the node's ingest): work per tick at most
-MERGE_WAIT_S = 0.2              # a smaller batch waits this long for more (catch-up: 6 000
-                                # events out of order take 24 s one by one, 2 s in 500s)
-MAX_QUEUED = 200_000            # bound on events received but not yet stored (~40 peers' histories)
+# a smaller batch waits this long for more (catch-up: 6 000 events out of order take 24 s one
+# by one, 2 s in 500s)
+MERGE_WAIT_S = 0.2
+MAX_QUEUED = 200_000            # events received but not yet stored (~40 peers' histories)
 MAX_REMEMBERED_REQUESTS = 100_000   # privacy requests applied this session (each applied once)
 REFUSAL_REASONS = (UNSIGNED, OLD_FORMAT, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, BAD_SIGNATURE,
                    MALFORMED, HANDLER_ERROR)

@@ -14,8 +14,8 @@ site-wide, absolute by default: parameters fleet_topic and privacy_topic):
 Wiring only: messages become events of the help session (helpaware_node/session: needs, asks,
 limits, every decision through core.policy.decide); its Steps come back as documents, fleet
 events and log lines. Site learning (site_learning.py) refits the site constants in a worker
-process (a thread where none can start); the housekeeping timer puts a new revision in force. Beside this file: fleet.py,
-store_retry.py, diagnostics.py, markers.py, site_learning.py.
+process (a thread where none can start); the housekeeping timer puts a new revision in force.
+Beside this file: fleet.py, store_retry.py, diagnostics.py, markers.py, site_learning.py.
 """
 from __future__ import annotations
 

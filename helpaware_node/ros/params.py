@@ -264,7 +264,8 @@ def build(values: dict[str, Any], pairs: bool = True
         if s.low is not None and s.name in node_values:
             v = node_values[s.name]
             if not (isinstance(v, (int, float)) and math.isfinite(v) and s.low <= v <= s.high):
-                raise CoreInputError(f"{s.name}: {v!r} is outside the allowed range [{s.low:g}, {s.high:g}]")
+                raise CoreInputError(f"{s.name}: {v!r} is outside the allowed range "
+                                     f"[{s.low:g}, {s.high:g}]")
     return model, config, NodeSettings(**node_values)
 
 
@@ -383,7 +384,8 @@ def markdown_table() -> str:
             "|---|---|---|---|---|---|---|"]
     for s in all_specs():
         rng = f"[{s.low:g}, {s.high:g}]" if s.low is not None else "-"
-        rows.append(f"| `{s.name}` | {s.type_name} | `{_fmt_default(s.default)}` | {rng} | {s.units} | "
+        rows.append(f"| `{s.name}` | {s.type_name} | `{_fmt_default(s.default)}` | {rng} | "
+                    f"{s.units} | "
                     f"{'no' if s.read_only else 'yes'} | {s.description} |")
     return "\n".join(rows)
 

@@ -25,9 +25,11 @@ class SessionStore(Protocol):
     def append(self, event: StoredEvent) -> bool: ...
     def append_many(self, events: list[StoredEvent]) -> list[StoredEvent]: ...
     def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...
+
     def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
              request_id: Optional[str] = None, since_s: Optional[float] = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]: ...
+
     def move_asks_forward(self, by_s: float) -> int: ...
 
 
@@ -86,4 +88,3 @@ class StoreStatus:
         """
         health = getattr(store, "health", None)
         self.ok = health is None or health.level == "OK"
-

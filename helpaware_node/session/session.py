@@ -460,7 +460,7 @@ class HelpSession:
         if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(sizes) <= budget:
             return None
         nearest = sorted(range(len(cands)), key=lambda i: (cands[i].distance_m,
-                                                            -cands[i].observed_at_s, i))
+                                                           -cands[i].observed_at_s, i))
         kept, used = [], 0
         for i in nearest[:MAX_PEOPLE_IN_VIEW]:
             if used + sizes[i] > budget:
@@ -488,4 +488,3 @@ class HelpSession:
                       f"{need.request_id!r} (opted out meanwhile?): nobody asked")
             return None
         return ask
-

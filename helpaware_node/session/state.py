@@ -17,11 +17,13 @@ IN_VIEW_EXTRA_S = 5.0          # people stay listed a little past the staleness 
 MAX_OPEN_NEEDS = 1000          # a behaviour layer that never resolves: the oldest need goes
 MAX_PEOPLE_IN_MEMORY = 20_000  # person records kept in memory; beliefs and asks stay in the store
 MAX_GOALS_REMEMBERED = 1000    # navigation goals whose abort was already handled
-MAX_GOAL_STATUSES = 1000       # entries of one navigation status array looked at (its last;
-                               # a server lists a finished goal only for its result timeout)
+# entries of one navigation status array looked at (its last; a server lists a finished goal
+# only for its result timeout)
+MAX_GOAL_STATUSES = 1000
 MAX_PEOPLE_IN_VIEW = MAX_CANDIDATES   # people in view at once: a decision's candidates
-DECISION_OTHER_BYTES = 64_000  # of a decision document's MAX_DOCUMENT_BYTES, kept for all but
-                               # its candidates (need, the robot's 1 000 ask times, parameters)
+# of a decision document's MAX_DOCUMENT_BYTES, kept for all but its candidates (need, the
+# robot's 1 000 ask times, parameters)
+DECISION_OTHER_BYTES = 64_000
 STORE_UNAVAILABLE = "store_unavailable"   # decision policy while the store refuses writes
 
 

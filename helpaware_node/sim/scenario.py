@@ -43,7 +43,7 @@ class WorldCosts:
     ask_time_s: float = DecisionConfig.ask_time_s                 # lost to an ask not helped
     interruption_weight_s: float = DecisionConfig.interruption_weight_s
     busy_cost: float = DecisionConfig.busy_cost                   # I = weight (1 + busy_cost x
-    repeat_cost: float = DecisionConfig.repeat_cost               #   + repeat_cost f_true)
+    repeat_cost: float = DecisionConfig.repeat_cost               # + repeat_cost f_true)
 
     def interruption_s(self, busyness: float, true_ask_load: float) -> float:
         return self.interruption_weight_s * (1.0 + self.busy_cost * busyness

@@ -12,6 +12,7 @@ from .keys import (KEY_FILE_NAME, SiteKeyError, SiteKeys, default_key_path, defa
 from .sqlite import SqliteStore, StoreCorruptError
 from .schema import SCHEMA_VERSION, StoreVersionError
 
+
 def default_robot_id() -> str:
     """HELPAWARE_ROBOT_ID, else the host name (no '/'), so each robot's ids are its own."""
     rid = os.environ.get("HELPAWARE_ROBOT_ID") or socket.gethostname().split(".")[0] or "robot"

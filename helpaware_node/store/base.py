@@ -50,7 +50,7 @@ class StoredEvent:
 class AskEvent:
     """One ask as stored and shared, keyed like outcomes (hashed person key, never the raw id)."""
 
-    event_id: str          # "<robot_id>/<sequence>": the robot's own sequence, shared with outcomes
+    event_id: str          # "<robot_id>/<sequence>": the robot's own sequence, as outcomes
     person_key: str
     time_s: float          # when the ask was made (the robot's clock)
     request_kind: str = ""
@@ -135,8 +135,9 @@ class BeliefStore(Protocol):
     """What the node, the tools and the fleet exchange need from a store."""
 
     def key_for(self, raw_id: str) -> str: ...
-    def next_event_id(self) -> str: ...                        # "<robot_id>/<sequence>", never reused
-    def append(self, event: StoredEvent) -> bool: ...          # durable on return; False: not stored (duplicate, opted out)
+    def next_event_id(self) -> str: ...      # "<robot_id>/<sequence>", never reused
+    # durable on return; False: not stored (duplicate, opted out)
+    def append(self, event: StoredEvent) -> bool: ...
     def events_for(self, key: str) -> list[StoredEvent]: ...
     def keys(self) -> list[str]: ...
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, float | None]: ...
@@ -144,9 +145,11 @@ class BeliefStore(Protocol):
     def opt_out(self, key: str) -> None: ...
     def forget(self, key: str) -> int: ...                     # events removed (asks go too)
     def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...   # durable; new ones
+
     def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
              request_id: Optional[str] = None, since_s: Optional[float] = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]: ...   # newest `limit`, in time order
+
     def move_asks_forward(self, by_s: float) -> int: ...      # a forward jump of the clock
     def close(self) -> None: ...
 

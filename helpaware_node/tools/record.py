@@ -15,6 +15,7 @@ from typing import Optional
 from ..bag import BagWriter
 from ..bag.person_ids import HASHED_MARK, ID_TOPICS, NODE_TOPICS, id_hasher
 
+
 def load_site_key(path: Optional[str]) -> bytes:
     """Return the site key the store uses (`store.load_site_key`).
 

@@ -39,8 +39,9 @@ def add_arguments(parser) -> None:
     parser.add_argument("--seeds", type=int, default=20, help="number of seeds (default 20)")
     parser.add_argument("--first-seed", type=int, default=0, help="first seed (default 0)")
     parser.add_argument("--params", metavar="FILE",
-                        help="the node's parameter file (ROS 2 YAML, e.g. config/hospital_night.yaml)"
-                             ": simulate with the site's own costs and limits")
+                        help="the node's parameter file (ROS 2 YAML, e.g. "
+                             "config/hospital_night.yaml): simulate with the site's own costs "
+                             "and limits")
     parser.add_argument("--constants", choices=("defaults", "true"), default="defaults",
                         help="what the robot starts from: the shipped defaults (or --params), "
                              "or the site's true constants (docs/scenarios.md)")

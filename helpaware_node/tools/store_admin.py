@@ -18,6 +18,7 @@ from ..store.keys import KEY_FILE_NAME
 from ..store.export import EXPORT_COLUMNS, write_csv
 from ..text_table import fmt, render_table
 
+
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--path", default="", help=f"store file (default {default_store_path()})")
     parser.add_argument("--key-file", default="", help="site key file (default: site_key "

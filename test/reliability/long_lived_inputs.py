@@ -230,7 +230,7 @@ def main() -> int:
         rclpy.try_shutdown()
         done = shm_files.remove_own_files(records)
         say({"shm_exit": {"removed": done.removed, "in_use": done.in_use,
-                           "replaced": done.replaced, "records_done": done.records_done}})
+                          "replaced": done.replaced, "records_done": done.records_done}})
     return 0
 
 

@@ -337,8 +337,8 @@ def test_crash_loop_through_a_node_process_and_its_restart(tmp_path):
     history = drive.node.create_publisher(String, topic, fleet_mod.fleet_qos(100))
     for name in ("time_s", "busyness", "ask_load"):
         doc = keys.sign(hd.seed_of("fleet:outcome"))
-        history.publish(String(data=json.dumps({**doc, name: "H"}).replace('"H"',
-                                                                          deep_number(980))))
+        text = json.dumps({**doc, name: "H"}).replace('"H"', deep_number(980))
+        history.publish(String(data=text))
         history.publish(String(data=json.dumps(keys.sign({**hd.seed_of("fleet:outcome"),
                                                          name: [[0.5]]}))))
     robot = drive.add(pr.Robot("r1", ns, topic, pr.staff(3, 5), random.Random(1)))

@@ -66,6 +66,8 @@ KEYS = SiteKeys.single(FUZZ_SITE_KEY).key_ring()
 
 def signed_seed(kind: str, value) -> dict:
     return json.loads(encode_document(kind, value, KEYS))
+
+
 TOPICS = ("people", "task_status", "outcome", FLEET_TOPIC, PRIVACY_TOPIC)
 WIRE_TOPICS = ("people", "task_status", "outcome")
 
@@ -116,8 +118,10 @@ def resigned(text: str) -> str:
     except (ValueError, RecursionError, TypeError):
         return text
 
+
 # JSON types of each seed field, written from docs/schemas/*.json (not from wire.SPECS).
-NUM, INT, STR, ARR, OBJ, NULL, BOOL = "number", "integer", "string", "array", "object", "null", "boolean"
+NUM, INT, STR, ARR, OBJ = "number", "integer", "string", "array", "object"
+NULL, BOOL = "null", "boolean"
 FIELD_TYPES = {
     "people": {("doc",): {STR}, ("version",): {INT}, ("stamp_s",): {NUM, INT},
                ("frame_id",): {STR}, ("people",): {ARR}, ("people", 0): {OBJ},
@@ -269,7 +273,8 @@ def changed_text(draw, topic: str) -> str:
             elif op == "flip":
                 text = text[:i] + chr(ord(text[i]) ^ (1 << draw(st.integers(0, 6)))) + text[i + 1:]
             else:
-                text = text[:i] + draw(st.sampled_from(list('{}[]":,\\0e-.') + ["\x00"])) + text[i:]
+                junk = draw(st.sampled_from(list('{}[]":,\\0e-.') + ["\x00"]))
+                text = text[:i] + junk + text[i:]
         return text
     return dumps(doc)
 
@@ -461,7 +466,8 @@ def test_a_wrong_type_in_one_field_is_refused_naming_that_field(rig, topic):
     (PRIVACY_TOPIC, "[" * 100_000, "JSON"),
     (PRIVACY_TOPIC, '{"action":"forget","person_id":"\\ud800"}', "person_id"),
 ], ids=["surrogate_id", "huge_int_stamp", "huge_int_urgency", "huge_negative_stamp",
-        "duplicate_key", "unknown_top_level_field", "fleet_deep_nesting", "fleet_huge_int", "fleet_surrogate_kind",
+        "duplicate_key", "unknown_top_level_field", "fleet_deep_nesting", "fleet_huge_int",
+        "fleet_surrogate_kind",
         "fleet_surrogate_event_id", "fleet_unsigned", "fleet_old_format", "fleet_signed_bad_field",
         "privacy_deep_nesting", "privacy_surrogate_id"])
 def test_found_by_the_fuzz_each_refused_by_name(rig, topic, text, field):
@@ -539,7 +545,8 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
             key = "cd" * 32          # not UNKNOWN_KEY: the fuzz sent forgets for that one
             e = encode_document("outcome", StoredEvent(f"driver/{i}", key, 100.0,
                                                        Result.DECLINED, 0.2, 0.0, "door"), KEYS)
-            return e, lambda: any(ev.event_id == f"driver/{i}" for ev in node.store.events_for(key))
+            return e, lambda: any(ev.event_id == f"driver/{i}"
+                                  for ev in node.store.events_for(key))
         key = node.store.key_for(tag)
         return encode_document("opt_out", PrivacyAct.new("opt_out", key, "console@fuzz"), KEYS), \
             lambda: node.store.is_opted_out(key)

@@ -323,8 +323,8 @@ def test_every_file_gives_a_config_or_a_named_refusal(fuzz):
 
 def test_a_value_of_another_type_is_refused_naming_the_parameter(fuzz):
     cases, results, _ = fuzz
-    typed = [(c, results[i]) for i, c in enumerate(cases) if c["kind"] in ("wrong_type",
-                                                                         "bad_value")]
+    typed = [(c, results[i]) for i, c in enumerate(cases)
+             if c["kind"] in ("wrong_type", "bad_value")]
     per_param = collections.Counter(c["param"] for c, _ in typed if c["kind"] == "wrong_type")
     assert set(SPECS) <= set(per_param) and min(per_param.values()) >= 1
     assert min(per_param[n] for n in SPECS) >= WRONG_TYPES_PER_PARAM
@@ -396,7 +396,8 @@ def test_refused_files_through_the_process_entry(fuzz, kind):
         pick = [c for c in cases if c["kind"] == "wrong_type" and c["param"] == "max_distance_m"
                 and c["literal_type"] == "string array"][0]
     elif kind == "empty_request_kinds":
-        pick = [c for c in cases if c["kind"] == "empty_value" and c["param"] == "request_kinds"][0]
+        pick = [c for c in cases
+                if c["kind"] == "empty_value" and c["param"] == "request_kinds"][0]
     else:
         pick = [c for c in cases if c.get("param") == "navigation_status_topic"][0]
     rc, err = _refused_start(pick["path"])

@@ -43,7 +43,7 @@ SEED = 20261202
 NODE_KILL_TRIALS = scaled(4, 12)
 PEER_KILL_ROUNDS = scaled(1, 3)
 FLEET = ("wardA", "wardB", "wardC")
-EXPECTED_MODEL = SiteModel(ask_memory_half_life_s=0.5)   # default.yaml plus process_rig.FAST_ASKING
+EXPECTED_MODEL = SiteModel(ask_memory_half_life_s=0.5)   # default.yaml + process_rig.FAST_ASKING
 
 
 def check_store(view, acked: set[str], label: str) -> None:
