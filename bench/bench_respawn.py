@@ -229,9 +229,11 @@ DEFAULTS_PROFILE = ('<?xml version="1.0" encoding="UTF-8" ?>\n'
 
 
 def variants(profile: str, defaults_profile: str) -> dict:
-    """name -> (environment of the node, of the long-lived process, share of the respawns per
-    round).  Every process gets the profile variable, so none falls back to what
-    launch_config would choose."""
+    """Return the variants: name -> node environment, process environment, share of respawns.
+
+    name -> (environment of the node, of the long-lived process, share of the respawns per round).
+    Every process gets the profile variable, so none falls back to what launch_config would choose.
+    """
     with_profile = {PROFILE_ENV: profile}
     without = {PROFILE_ENV: defaults_profile}
     return {

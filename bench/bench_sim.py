@@ -96,7 +96,7 @@ def speed(scenario_path: str) -> None:
 
 
 def site_learner_factory():
-    """(factory, None) when fit.online.SiteLearner can be built, else (None, the reason)."""
+    """Return (factory, None) when fit.online.SiteLearner can be built, else (None, the reason)."""
     try:
         from helpaware_node.fit.online import LearningSettings, SiteLearner
     except ImportError as exc:
@@ -116,7 +116,7 @@ def no_lookahead(sc, seeds: int) -> dict:
 
 
 def learning_rows(sc, factory, seeds: int, budget_s: float) -> tuple[list, list, float]:
-    """Runs of `learning` on the first seeds while the budget lasts (at least one)."""
+    """Return runs of `learning` on the first seeds while the budget lasts (at least one)."""
     runs, t0 = [], time.monotonic()
     for s in range(seeds if budget_s > 0.0 else 0):
         if runs and time.monotonic() - t0 > budget_s * len(runs) / (len(runs) + 1):

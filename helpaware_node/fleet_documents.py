@@ -182,7 +182,7 @@ KINDS: dict[str, Kind] = {
 
 # ---------------------------------------------------------------------------- the pair
 def encode_document(kind: str, value: Any, keys: KeyRing) -> str:
-    """The signed JSON text of `value` as a document of `kind` (checked as it would be read)."""
+    """Return the signed JSON text of `value` as a `kind` document (checked as it is read)."""
     if kind not in KINDS:
         raise CoreInputError(f"{WHAT}: kind {kind!r} is not one of {', '.join(KINDS)}")
     doc = {"v": FORMAT_VERSION, "kind": kind, **KINDS[kind].to_fields(value)}
@@ -261,9 +261,11 @@ def check_fresh(act: PrivacyAct, now_s: float, what: str) -> None:
 
 def parse_unsigned_request(doc: Mapping, key_for: Callable[[str], str],
                            what: str) -> tuple[str, str]:
-    """(action, person_key) of an unsigned lab request
-    {"action": "opt_out"|"forget", "person_id"|"person_key": ...}; a perceived id is hashed at
-    once and never kept or logged."""
+    """Return (action, person_key) of an unsigned lab request.
+
+    (action, person_key) of an unsigned lab request {"action": "opt_out"|"forget",
+    "person_id"|"person_key": ...}; a perceived id is hashed at once and never kept or logged.
+    """
     for name in ("action", "person_id", "person_key"):
         value = doc.get(name)
         if isinstance(value, str):

@@ -67,9 +67,12 @@ def parameters_from_yaml(path: str) -> dict:
 
 def apply_parameters(flat: Mapping[str, Any], base_model: SiteModel, base_config: DecisionConfig,
                      path: str = "<parameters>") -> LoadedParams:
-    """Overlay the file's values on the base values and build them with the node's own
-    conversion (`ros.params.build`, importable without rclpy), so ranges and cross-checks
-    are exactly the node's."""
+    """Overlay the file's values on the base values, built by the node's own conversion.
+
+    Overlay the file's values on the base values and build them with the node's own conversion
+    (`ros.params.build`, importable without rclpy), so ranges and cross-checks are exactly the
+    node's.
+    """
     from .ros import params as node_params
     values = node_params.defaults(list(base_config.continue_costs_s))
     base = {**to_plain(base_model), **to_plain(base_config)}

@@ -66,8 +66,11 @@ def available(kind: str) -> list[str]:
 
 
 def executable(name: str) -> Optional[str]:
-    """lib/<package>/<name> (the ament_python layout `ros2 run` uses) in the first install that
-    has it, else the console script beside this Python (a venv's bin/); None if neither."""
+    """Return the path of an installed executable, or None.
+
+    lib/<package>/<name> (the ament_python layout `ros2 run` uses) in the first install that has
+    it, else the console script beside this Python (a venv's bin/); None if neither.
+    """
     candidates = [os.path.join(p, "lib", PACKAGE, name) for p in install_prefixes()]
     candidates.append(os.path.join(os.path.dirname(sys.executable), name))
     for path in candidates:

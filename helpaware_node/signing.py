@@ -1,4 +1,4 @@
-"""Signatures on fleet and privacy documents: key derivation, canonical encoding, HMAC (no rclpy).
+r"""Signatures on fleet and privacy documents: key derivation, canonical encoding, HMAC (no rclpy).
 
 Every document a robot or the operator console publishes on the fleet or the privacy topic
 carries three fields besides its own:
@@ -21,7 +21,7 @@ file does both jobs, through two different keys); see store/keys.py and docs/sec
 
 Canonical encoding (one byte string per JSON value; self-delimiting, so unambiguous):
 
-  document = b"helpaware signed document v2\\n" + value(the object without "sig")
+  document = b"helpaware signed document v2\n" + value(the object without "sig")
   null  -> b"n"              true -> b"T"           false -> b"F"
   number-> b"d" + IEEE 754 binary64, big-endian     (JSON has one number type: 1 and 1.0 are
                                                      the same number; -0 is written as 0)

@@ -232,10 +232,12 @@ ASK_TIME_BYTES = len(repr(_LONGEST_NUMBER)) + 1
 
 
 def candidate_bytes_bound(candidate: Candidate, quick: bool = False) -> int:
-    """At most how many bytes `candidate` adds to a decision document (its entry in
-    `candidates` and its row in `rationale`, as `fast_text` writes them). `quick`: a looser
-    bound from lengths alone (12 bytes a character: two escapes of six), without writing the
-    texts."""
+    """Return at most how many bytes `candidate` adds to a decision document.
+
+    At most how many bytes `candidate` adds to a decision document (its entry in `candidates` and
+    its row in `rationale`, as `fast_text` writes them). `quick`: a looser bound from lengths alone
+    (12 bytes a character: two escapes of six), without writing the texts.
+    """
     if quick:
         text, activity = 12 * len(candidate.person_id), 12 * len(candidate.activity)
     else:
@@ -328,7 +330,7 @@ def validate(name: str, document: Any) -> dict:
 
 
 def lone_surrogate_at(text: str) -> Optional[int]:
-    """Where a lone surrogate (JSON "\\ud800") sits in `text`, or None.
+    r"""Where a lone surrogate (JSON "\ud800") sits in `text`, or None.
 
     Such text cannot be hashed, stored in SQLite or published, so every input refuses it by field.
     """

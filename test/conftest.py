@@ -13,7 +13,7 @@ os.environ.pop("ROS_LOCALHOST_ONLY", None)
 
 
 def _claim_domain_id() -> int:
-    """A domain id in the Linux-safe range 1-101 that no other test run on this machine holds.
+    """Claim a domain id in the Linux-safe range 1-101 that no other test run here holds.
 
     Each run keeps an exclusive lock on a file named after its id until it exits, so
     concurrent runs never share a domain; random order keeps runs from queueing on one id.
@@ -61,7 +61,7 @@ def _own_ros_home(tmp_path_factory, monkeypatch):
 
 @pytest.fixture(scope="module")
 def ctx():
-    """An rclpy context of its own for each module of node tests (imported only when used)."""
+    """Return an rclpy context of its own for each module of node tests."""
     import rclpy
     context = rclpy.Context()
     rclpy.init(context=context)

@@ -86,8 +86,11 @@ class Rig:
         assert self.spin_until(lambda: self.node.counters.received["outcome"] > n)
 
     def send_privacy(self, action, person_id):
-        """A signed opt_out or forget request for a perceived id, as `helpaware privacy`
-        sends it (signed with the node's own site key file)."""
+        """Send a signed opt_out or forget request for a perceived id.
+
+        A signed opt_out or forget request for a perceived id, as `helpaware privacy` sends it
+        (signed with the node's own site key file).
+        """
         from helpaware_node.fleet_documents import PrivacyAct, encode_document
         from helpaware_node.ros.privacy import PRIVACY_QOS
         if getattr(self, "_privacy_pub", None) is None:

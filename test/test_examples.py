@@ -1,5 +1,8 @@
-"""The example stand-ins of docs/integration.md (helpaware_node/ros/examples/) work against the
-decision node, in-process as users' own tests would start them."""
+"""The example stand-ins of docs/integration.md work against the decision node.
+
+The example stand-ins of docs/integration.md (helpaware_node/ros/examples/) work against the
+decision node, in-process as users' own tests would start them.
+"""
 import pytest
 from rclpy.parameter import Parameter
 

@@ -137,8 +137,11 @@ def betabinom_loglik(y, n, z):
 
 
 def betabinom_gradient_hessian(y, n, z):
-    """Exact derivatives of sum[betaln(y + a, n - y + b) - betaln(a, b)] in (log a, log b),
-    from scipy.special.digamma and polygamma (trigamma)."""
+    """Return exact derivatives of the beta-binomial log-likelihood in (log a, log b).
+
+    Exact derivatives of sum[betaln(y + a, n - y + b) - betaln(a, b)] in (log a, log b), from
+    scipy.special.digamma and polygamma (trigamma).
+    """
     a, b = np.exp(z)
     t = lambda x: polygamma(1, x)                     # noqa: E731
     s_a = np.sum(digamma(y + a) - digamma(n + a + b) - digamma(a) + digamma(a + b))
@@ -224,7 +227,7 @@ def cbpp():
 
 
 def quad_loglik(inc, size, X, herd, theta):
-    """The cbpp marginal log-likelihood by scipy.integrate.quad over each herd's intercept."""
+    """Return the cbpp marginal log-likelihood by scipy.integrate.quad over each intercept."""
     beta, sigma = theta[:-1], math.exp(theta[-1])
     total = 0.0
     for h in np.unique(herd):

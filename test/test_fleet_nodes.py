@@ -96,7 +96,7 @@ class Fleet:
         return mine()[0]
 
     def belief_seen(self, d, person, timeout_s=20.0):
-        """(a, b) the robot uses for `person` in its next decision (person in view)."""
+        """Return (a, b) the robot uses for `person` in its next decision (person in view)."""
         doc = self.decide(d, timeout_s=timeout_s)
         for c in doc["candidates"]:
             if c["person_id"] == person:

@@ -142,9 +142,12 @@ def test_a_peer_without_the_key_publishes_1000_documents_and_none_is_stored(ctx,
 
 
 def test_an_old_store_is_offered_signed_and_a_rotated_key_file_still_talks(ctx, tmp_path):
-    """Migration: a store written before signatures (the schema did not change) is re-offered
-    at start as signed v2 documents; after a rotation of the signing key, documents signed with
-    the previous key are still merged within the window."""
+    """Check that an old store is offered signed and a rotated key file still talks.
+
+    Migration: a store written before signatures (the schema did not change) is re-offered at start
+    as signed v2 documents; after a rotation of the signing key, documents signed with the previous
+    key are still merged within the window.
+    """
     key_path = write_site_key(tmp_path, SITE_KEY)
     old = SqliteStore(tmp_path / "old.sqlite3", "ward1", SITE_KEY)
     history = [StoredEvent(f"ward1/{i + 1}", key_of(NURSE), 100.0 + i, Result.HELPED, 0.1, 0.0)

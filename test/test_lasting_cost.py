@@ -96,7 +96,7 @@ def test_linear_drop_exact_form(f, horizon):
 
 @pytest.mark.parametrize("k,f", [(0.3, 0.0), (1.0, 0.7), (1.5, 0.8)])
 def test_exponential_drop_exact_form_when_half_life_is_tau_ln2(k, f):
-    """gamma = 0 and alpha e^(-k (f+1)) > beta (U positive throughout).
+    """Check gamma = 0 and alpha e^(-k (f+1)) > beta (U positive throughout).
 
     h = tau ln 2 so that u(s) = e^(-s/tau). With v = e^(-s/tau), ds = -tau dv / v: int_0^H
     e^(-s/tau) e^(-c u(s)) ds = tau int_{v_H}^1 e^(-c v) dv = tau (e^(-c v_H) - e^(-c)) / c, so LC

@@ -101,7 +101,7 @@ def test_names_exist_in_the_launch_that_is_installed():
 
 
 def documented_arguments(launch_file):
-    """The argument table that follows the paragraph naming `launch_file` in integration.md."""
+    """Return the argument table after the paragraph naming `launch_file` in integration.md."""
     with open(os.path.join(ROOT, "docs", "integration.md")) as fh:
         lines = fh.read().splitlines()
     start = next(i for i, x in enumerate(lines) if x.startswith(f"`{launch_file}`"))

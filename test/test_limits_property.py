@@ -69,8 +69,11 @@ def run(steps_, model, config):
 
 
 def most_in_any_window(times, window_s):
-    """The most asks inside any half-open window [t, t + window_s) (windows that start at an
-    ask are the fullest ones)."""
+    """Return the most asks inside any half-open window [t, t + window_s).
+
+    The most asks inside any half-open window [t, t + window_s) (windows that start at an ask are
+    the fullest ones).
+    """
     return max((sum(1 for u in times if t <= u < t + window_s) for t in times), default=0)
 
 

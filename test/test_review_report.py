@@ -32,7 +32,7 @@ def sample(tmp_path_factory):
 
 
 def independent_counts(bag):
-    """Counts straight from the rosbags reader and its typestore deserialiser."""
+    """Count straight from the rosbags reader and its typestore deserialiser."""
     store = typestore()
     topics, actions, results, states = Counter(), Counter(), Counter(), Counter()
     with Reader(bag) as reader:

@@ -1,5 +1,7 @@
-"""Property: over any sequence of session events, with restarts in between (a new session on
-the same store), no hard limit is ever crossed.
+"""Property: no hard limit is ever crossed, across restarts.
+
+Property: over any sequence of session events, with restarts in between (a new session on the same
+store), no hard limit is ever crossed.
 
 The driver plays a site: people come and go, needs open and close, outcomes arrive, asks
 expire, peers ask, people opt out, the system clock jumps forward or back, and the robot

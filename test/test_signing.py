@@ -136,7 +136,7 @@ def parse_canonical(data: bytes):
 
 
 def as_json_value(v):
-    """JSON's own equality: one number type, -0 is 0, no sig member at the top."""
+    """Return the value under JSON's own equality: one number type, -0 is 0, no top sig."""
     if isinstance(v, bool) or v is None or isinstance(v, str):
         return v
     if isinstance(v, (int, float)):

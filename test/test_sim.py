@@ -112,9 +112,12 @@ def test_fully_willing_regulars_greedy_oracle_asks_nearest_eligible_and_ours_ask
 
 def declines_until_asking_stops(model: SiteModel, config: DecisionConfig, cost_s: float,
                                 help_s: float) -> int:
-    """Smallest k such that after k declines at c = 1 (belief Beta(a0, b0 + k), exact) both
-    the advantage A is <= 0 with the least interruption (x = 0, f = 0) and the information
-    value is 0 (U(mean after a help) = 0 makes every U term 0). Beliefs only fall from there."""
+    """Return the smallest k of declines after which asking stops.
+
+    Smallest k such that after k declines at c = 1 (belief Beta(a0, b0 + k), exact) both the
+    advantage A is <= 0 with the least interruption (x = 0, f = 0) and the information value is 0
+    (U(mean after a help) = 0 makes every U term 0). Beliefs only fall from there.
+    """
     cbar = math.exp(-model.k_busy * config.typical_busyness)
     g = cbar * (config.typical_continue_cost_s - help_s + config.ask_time_s)
     ibar = config.interruption_weight_s * (1 + config.busy_cost * config.typical_busyness)

@@ -165,8 +165,11 @@ def test_true_prior_matches_the_pooled_willingness_moments():
 
 
 def test_logistic_truth_moments_by_quadrature():
-    """E[w], E[w^2] of w = logistic(logit 0.3 + 1.2 z) against scipy.integrate.quad over the
-    normal density (scipy.stats.norm)."""
+    """Check E[w] and E[w^2] of the logistic truth against quadrature.
+
+    E[w], E[w^2] of w = logistic(logit 0.3 + 1.2 z) against scipy.integrate.quad over the normal
+    density (scipy.stats.norm).
+    """
     m1, m2 = logit_normal_moments(0.3, 1.2)
     w = lambda z: 1.0 / (1.0 + math.exp(-(math.log(0.3 / 0.7) + 1.2 * z)))  # noqa: E731
     q1 = integrate.quad(lambda z: w(z) * stats.norm.pdf(z), -40, 40)[0]

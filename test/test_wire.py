@@ -98,7 +98,7 @@ def mutants(doc):
 
 
 def wire_ok(name, doc):
-    """Does the node take this document.
+    """Tell whether the node takes this document.
 
     Sent as text (NaN and infinities as Python's json writes them, which the node's decoder refuses
     as not JSON)?

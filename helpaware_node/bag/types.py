@@ -35,8 +35,11 @@ class BagReadError(RuntimeError):
 
 
 def typestore():
-    """ROS 2 message definitions (the 'kilted' set; String, MarkerArray, ... are identical
-    across current distributions, so their type hashes match what the node publishes)."""
+    """Return the ROS 2 message definitions of the 'kilted' set.
+
+    ROS 2 message definitions (the 'kilted' set; String, MarkerArray, ... are identical across
+    current distributions, so their type hashes match what the node publishes).
+    """
     global _TYPESTORE
     if _TYPESTORE is None:
         _TYPESTORE = get_typestore(Stores.ROS2_KILTED)

@@ -85,7 +85,7 @@ def declined_moments(a, b, c):
 
 
 def declined_ab(a, b, c):
-    """(a, b) after a declined ask at context factor c in [0, 1] (moment-matched, vectorised).
+    """Return (a, b) after a declined ask at context factor c in [0, 1] (moment-matched).
 
     The matched Beta has the posterior's mean M and variance V; its concentration is
     M(1-M)/V - 1 = E[w(1-w)]/V (as M(1-M) - V = E[w] - E[w^2]), a ratio of positive sums;
@@ -104,7 +104,7 @@ def declined_ab(a, b, c):
 
 
 def _exact_ends(c, mixed_a, mixed_b, full_a, full_b, none_a, none_b):
-    """c = 0 carries no information and c = 1 gives the conjugate Beta(a, b + 1).
+    """Pick the closed forms at c = 0 (no information) and c = 1 (the conjugate Beta(a, b + 1)).
 
     Use the closed forms there (bit for bit, and no 0/0 where b/(a+b) underflows to 0).
     """
@@ -144,7 +144,7 @@ def forgetting_factor(dt_s: float, half_life_s: float) -> float:
 
 
 def forget(belief: Belief, prior: Belief, dt_s: float, half_life_s: float) -> Belief:
-    """(a, b) <- (a0, b0) + L ((a, b) - (a0, b0)): evidence fades towards the prior."""
+    """Return (a, b) <- (a0, b0) + L ((a, b) - (a0, b0)): evidence fades towards the prior."""
     lam = forgetting_factor(dt_s, half_life_s)
     if lam == 1.0:
         return belief
@@ -152,5 +152,5 @@ def forget(belief: Belief, prior: Belief, dt_s: float, half_life_s: float) -> Be
 
 
 def predictive_help(belief: Belief, c: float) -> float:
-    """p = c * a / (a + b): probability the person helps when asked in context c."""
+    """Return p = c * a / (a + b): probability the person helps when asked in context c."""
     return _check_c(c) * belief.mean

@@ -25,7 +25,7 @@ def ask_load(ask_times_s: Iterable[float], now_s: float, half_life_s: float) -> 
 
 
 def context_factor(busyness, load, k_busy: float, k_load: float):
-    """c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
+    """Return c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
     x = np.asarray(busyness, dtype=float)
     f = np.asarray(load, dtype=float)
     bad_x = ~np.isfinite(x) | (x < 0.0) | (x > 1.0)

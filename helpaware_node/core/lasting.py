@@ -102,8 +102,11 @@ def _root(alpha, beta, gamma, k: float):
 
 def lasting_cost(rate_per_s, alpha, beta, gamma, k_load: float, load, half_life_s: float,
                  discount_s: float, horizon_s: float):
-    """Expected discounted loss, in robot-seconds, that one more ask now causes at the
-    person's later requests within the horizon (module doc). Vectorised over candidates."""
+    """Return the lasting cost of one more ask now, in robot-seconds.
+
+    Expected discounted loss, in robot-seconds, that one more ask now causes at the person's later
+    requests within the horizon (module doc). Vectorised over candidates.
+    """
     rate, alpha, beta, gamma, load = (np.asarray(v, dtype=float) for v in np.broadcast_arrays(
         rate_per_s, alpha, beta, gamma, load))
     out = np.zeros(rate.shape)

@@ -135,10 +135,13 @@ def ask_history_horizon_s(model: SiteModel) -> float:
 
 
 def ask_retention_s(model: SiteModel) -> float:
-    """How long after a person's latest ask their record (or a stored ask history) must be
-    kept for every hard limit to hold: the ask history horizon, or the longest re-ask
-    interval allowed (MAX_REASK_INTERVAL_S, 30 days) if longer. Whoever forgets records
-    or ask histories (eviction, a store, a session) keeps them at least this long."""
+    """Return how long a record must be kept after a person's latest ask.
+
+    How long after a person's latest ask their record (or a stored ask history) must be kept for
+    every hard limit to hold: the ask history horizon, or the longest re-ask interval allowed
+    (MAX_REASK_INTERVAL_S, 30 days) if longer. Whoever forgets records or ask histories (eviction,
+    a store, a session) keeps them at least this long.
+    """
     return max(ask_history_horizon_s(model), MAX_REASK_INTERVAL_S)
 
 

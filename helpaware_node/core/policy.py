@@ -268,8 +268,11 @@ def discounted_horizon_s(config: DecisionConfig) -> float:
 
 
 def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """N: expected discounted future requests with this person a candidate (the rate, capped
-    at the robot's hourly ask cap, times the discounted length of the look-ahead horizon)."""
+    """Return N, the expected discounted future requests with this person a candidate.
+
+    N: expected discounted future requests with this person a candidate (the rate, capped at the
+    robot's hourly ask cap, times the discounted length of the look-ahead horizon).
+    """
     return future_ask_rate_per_s(counts, first_seen_s, now_s,
                                  config) * discounted_horizon_s(config)
 

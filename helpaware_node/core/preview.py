@@ -26,7 +26,7 @@ def _count(n: int, one: str, many: str) -> str:
 
 
 def _quoted(text: str, limit: int = _TEXT_CHARS) -> str:
-    """repr of the start of `text`.
+    """Return the repr of the start of `text`.
 
     Control characters and lone surrogates come out escaped (repr never fails on a str), shortened
     until the escapes fit too.

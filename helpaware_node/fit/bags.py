@@ -1,9 +1,12 @@
-"""Outcomes from bags: each outcome joined with the decision that asked (same request id and
-person), whose candidate row carries the busyness and ask load in force at the ask, and the
-person's ask times the robot remembered then (so the half-life can be estimated: the load is
-recomputed from them under each candidate half-life).  Those are the asks the robot counted
-(its own, and peers' while count_peer_asks was on) within its ask-history horizon.
-Uses the review's bag loader (review/data.py over the bag package)."""
+"""Outcomes from bags, each joined with the decision that asked.
+
+Outcomes from bags: each outcome joined with the decision that asked (same request id and person),
+whose candidate row carries the busyness and ask load in force at the ask, and the person's ask
+times the robot remembered then (so the half-life can be estimated: the load is recomputed from
+them under each candidate half-life).  Those are the asks the robot counted (its own, and peers'
+while count_peer_asks was on) within its ask-history horizon. Uses the review's bag loader
+(review/data.py over the bag package).
+"""
 from __future__ import annotations
 
 from .data import RESULT_CODE, AskAges, FitInputError, OutcomeData, from_arrays

@@ -209,9 +209,12 @@ def _tail(last: float | None) -> str:
 
 
 class IterationLog:
-    """Wraps a minimisation objective fun(z) -> (value, gradient) so that the log-likelihood
-    (-value) at the start and after each accepted iteration is kept, without extra
-    evaluations when the optimiser's last evaluation was the accepted point."""
+    """A minimisation objective that keeps the log-likelihood of each iteration.
+
+    Wraps a minimisation objective fun(z) -> (value, gradient) so that the log-likelihood (-value)
+    at the start and after each accepted iteration is kept, without extra evaluations when the
+    optimiser's last evaluation was the accepted point.
+    """
 
     def __init__(self, fun: Callable[[np.ndarray], tuple[float, np.ndarray]],
                  on_iteration: Callable[[float], None] | None = None):
@@ -242,10 +245,13 @@ def hessian_by_differences(grad: Callable[[np.ndarray], np.ndarray], z: np.ndarr
                            lower: np.ndarray | None = None,
                            upper: np.ndarray | None = None, central: bool = True,
                            grad_at_z: np.ndarray | None = None) -> np.ndarray:
-    """Hessian (full size; rows and columns outside `idx` left at 0) from differences of the
-    gradient: central (error O(h^2), for standard errors) where z +/- h stays inside
-    [lower, upper] (where the function is defined), else one-sided into the interior, which
-    costs half as many gradients (error O(h), ample for a verdict) when central is False."""
+    """Return the Hessian from differences of the gradient.
+
+    Hessian (full size; rows and columns outside `idx` left at 0) from differences of the gradient:
+    central (error O(h^2), for standard errors) where z +/- h stays inside [lower, upper] (where
+    the function is defined), else one-sided into the interior, which costs half as many gradients
+    (error O(h), ample for a verdict) when central is False.
+    """
     k = z.size
     lo = np.full(k, -np.inf) if lower is None else np.asarray(lower, float)
     hi = np.full(k, np.inf) if upper is None else np.asarray(upper, float)

@@ -96,9 +96,12 @@ def ask_ages_from_times(outcome_person: np.ndarray, outcome_time_s: np.ndarray,
                         ask_person: np.ndarray, ask_time_s: np.ndarray,
                         max_prior: int = MAX_PRIOR_ASKS,
                         max_age_s: float = MAX_PRIOR_ASK_AGE_S) -> AskAges:
-    """Pairs (outcome, age) for every ask of the same person strictly before each outcome (the
-    ask the outcome answers shares its time and is not counted), the newest `max_prior` and
-    none older than `max_age_s`. Vectorised: one sort of outcomes and asks together."""
+    """Return pairs (outcome, age) for every earlier ask of the same person.
+
+    Pairs (outcome, age) for every ask of the same person strictly before each outcome (the ask the
+    outcome answers shares its time and is not counted), the newest `max_prior` and none older than
+    `max_age_s`. Vectorised: one sort of outcomes and asks together.
+    """
     op, ot = np.asarray(outcome_person, np.int64), np.asarray(outcome_time_s, float)
     ap, at = np.asarray(ask_person, np.int64), np.asarray(ask_time_s, float)
     n_people = int(max(op.max(initial=-1), ap.max(initial=-1))) + 1
@@ -152,7 +155,7 @@ class OutcomeData:
                 "no_response": int(np.sum(self.result == NO_RESPONSE))}
 
     def weighted_counts(self) -> tuple[float, float, float]:
-        """(helped, declined, no response), each row counted with its person's weight."""
+        """Return (helped, declined, no response), each row counted with its person's weight."""
         w = np.ones(self.n_outcomes) if self.weight is None else self.weight[self.person]
         return tuple(float(np.sum(w[self.result == r])) for r in (HELPED, DECLINED, NO_RESPONSE))
 

@@ -179,8 +179,11 @@ def site_params(model: SiteModel, decline_aloud: float) -> "SiteParams":
 def refit_constants(data: OutcomeData, target: SiteModel, prior_weight: float,
                     ranges: Mapping[str, tuple[float, float]], max_iter: int = 300
                     ) -> tuple["SiteFit", float]:
-    """The penalised fit of the data shrunk towards `target` (pure; raises FitInputError).
-    Returns the fit and the tau of the pseudo-outcomes."""
+    """Fit the data shrunk towards `target` (pure; raises FitInputError).
+
+    The penalised fit of the data shrunk towards `target` (pure; raises FitInputError). Returns the
+    fit and the tau of the pseudo-outcomes.
+    """
     from .pseudo_outcomes import curvature_floor, pseudo_outcomes, reporting_share
     from .site_fit import fit_site
     tau = reporting_share(data)
@@ -350,7 +353,7 @@ class SiteLearner:
 
     def refit(self, outcomes: Sequence[StoredEvent], asks: Sequence[AskEvent],
               now_s: float, record: bool = True) -> Refit:
-        """Return the refit (no I/O).
+        """Return the result of refitting (no I/O).
 
         `record` True: its result is recorded here at once (revision, constants in force, time,
         outcomes seen); False: the caller records it with `record(refit)` later, e.g. on its

@@ -74,7 +74,7 @@ NEUTRAL_TAU = 0.5
 
 
 def reporting_share(data: OutcomeData) -> float:
-    """tau of the pseudo-outcomes: declines among the data's answers other than help."""
+    """Return tau of the pseudo-outcomes: declines among the data's answers other than help."""
     c = data.counts()
     other = c["declined"] + c["no_response"]
     if other == 0:
@@ -160,8 +160,11 @@ def _contexts(rows: _Rows, p: SiteParams, outcomes: float) -> None:
 
 def curvature_floor(target: SiteParams, weight: float, pseudo: OutcomeData
                     ) -> tuple[np.ndarray, np.ndarray]:
-    """(centre, precision) in the fit's theta of the Gaussian term that lifts the penalty's
-    curvature at the file's values to weight * MIN_INFORMATION in every direction."""
+    """Return the Gaussian term that lifts the penalty's curvature.
+
+    (centre, precision) in the fit's theta of the Gaussian term that lifts the penalty's curvature
+    at the file's values to weight * MIN_INFORMATION in every direction.
+    """
     from .convergence import hessian_by_differences
     from .site_fit import NAMES, Objective, to_theta
     from .site_likelihood import SiteLikelihood

@@ -128,7 +128,7 @@ def from_theta(theta: np.ndarray, half_life: bool = True) -> SiteParams:
 
 
 def natural_jacobian(theta: np.ndarray) -> np.ndarray:
-    """d natural / d theta (diagonal) for the delta method."""
+    """Return d natural / d theta (diagonal) for the delta method."""
     q, t = expit(theta[4]), expit(theta[5])
     return np.array([math.exp(theta[0]), math.exp(theta[1]), 1.0, 1.0, q * (1 - q), t * (1 - t),
                      math.exp(theta[H])])
@@ -224,7 +224,7 @@ class SiteFit:
 
 
 def moments_start(data: OutcomeData) -> tuple[float, float]:
-    """Method of moments on per-person help rates (mean and sd with ddof = 1 of y/n)."""
+    """Start by the method of moments on per-person help rates (mean and sd, ddof = 1, of y/n)."""
     n = np.bincount(data.person, minlength=data.n_people).astype(float)
     y = np.bincount(data.person, (data.result == HELPED).astype(float), minlength=data.n_people)
     rate = (y / np.maximum(n, 1))[n > 0]
@@ -399,8 +399,11 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
 
 def std_errors_from_hessian(hess: np.ndarray, theta: np.ndarray, free: np.ndarray,
                             at_bound: list[str]) -> dict[str, float]:
-    """Observed information (the log-likelihood's Hessian from central differences of the
-    gradient) on the interior free coordinates; delta method to the natural scale."""
+    """Return standard errors from the observed information.
+
+    Observed information (the log-likelihood's Hessian from central differences of the gradient) on
+    the interior free coordinates; delta method to the natural scale.
+    """
     idx = [i for i in range(len(NAMES)) if free[i] and NAMES[i] not in at_bound]
     if not idx:
         return {}

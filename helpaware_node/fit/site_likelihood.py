@@ -69,8 +69,11 @@ def nodes_needed(n_outcomes: np.ndarray, extra_degree: int = 0) -> np.ndarray:
 
 @functools.lru_cache(maxsize=256)
 def _jacobi_cached(n: int, a0: float, b0: float) -> tuple[np.ndarray, np.ndarray]:
-    """Golub-Welsch on the Jacobi matrix of the Beta(a0, b0) measure (normalised, so no
-    overflow of the 2^(alpha+beta+1) B(.,.) total mass that scipy's roots_jacobi forms)."""
+    """Return the Gauss-Jacobi nodes and weights by Golub-Welsch.
+
+    Golub-Welsch on the Jacobi matrix of the Beta(a0, b0) measure (normalised, so no overflow of
+    the 2^(alpha+beta+1) B(.,.) total mass that scipy's roots_jacobi forms).
+    """
     al, be = b0 - 1.0, a0 - 1.0             # Jacobi weight (1-t)^al (1+t)^be, w = (1+t)/2
     k = np.arange(n, dtype=float)
     s = 2.0 * k + al + be
@@ -138,7 +141,7 @@ class SiteParams:
 
     @property
     def noticed(self) -> float:
-        """nu = tau + q (1 - tau): chance an ask is noticed (1 without no-response data)."""
+        """Return nu = tau + q (1 - tau), the chance an ask is seen (1 without no-responses)."""
         return self.decline_aloud + self.notice_probability * (1.0 - self.decline_aloud)
 
     def as_tuple(self) -> tuple[float, ...]:
@@ -204,7 +207,7 @@ class SiteLikelihood:
         return logf, (dk_busy, dk_load, dq, dlog_h)
 
     def per_person(self, p: SiteParams, want_grad: bool = False):
-        """log L_i per person (unweighted, without the reporting factor) and, if asked.
+        """Return log L_i per person (unweighted, without the reporting factor) and, if asked.
 
         d/d(k_busy, k_load, q, log h) per person at fixed nodes (the nodes depend on a0, b0 only).
         """
@@ -234,7 +237,7 @@ class SiteLikelihood:
         return float(self.weight @ ll_i) + rep, g
 
     def reporting_term(self, p: SiteParams) -> tuple[float, float, float]:
-        """log of nu^H tau^D (1-tau)^R and its derivatives in q and tau (0 when unused)."""
+        """Return log of nu^H tau^D (1-tau)^R and its derivatives in q and tau (0 when unused)."""
         if not self.use_reporting_factor:
             return 0.0, 0.0, 0.0
         q, tau = p.notice_probability, p.decline_aloud

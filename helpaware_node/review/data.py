@@ -71,7 +71,7 @@ class ReviewData:
         return [k for k in EXPECTED_TOPICS if self.counts.get(k, 0) == 0]
 
     def belief_series(self) -> dict[str, list[tuple[float, float, float]]]:
-        """person key -> [(time s, a, b)] at each decision the person was a candidate in."""
+        """Return person key -> [(time s, a, b)] at each decision the person was a candidate in."""
         out: dict[str, list[tuple[float, float, float]]] = {}
         for d in self.decisions:
             for c in d.candidates:

@@ -58,8 +58,11 @@ def _scores(p: list[float], y: list[int]) -> dict:
 
 
 def calibration_by_source(data: ReviewData) -> dict:
-    """Calibration of the asks made under the parameter file's constants and of those made
-    under learned constants (any revision)."""
+    """Return the calibration of asks under the file's constants and under learned ones.
+
+    Calibration of the asks made under the parameter file's constants and of those made under
+    learned constants (any revision).
+    """
     results = outcome_for(data)
     split: dict[str, tuple[list, list]] = {"parameter_file": ([], []), "learned": ([], [])}
     for d in data.decisions:
@@ -74,8 +77,11 @@ def calibration_by_source(data: ReviewData) -> dict:
 
 
 def summarise(data: ReviewData) -> Optional[dict]:
-    """The site-learning section of the summary (None when the bag has no decisions with
-    their parameters)."""
+    """Return the site-learning section of the summary.
+
+    The site-learning section of the summary (None when the bag has no decisions with their
+    parameters).
+    """
     changes = constants_over_time(data)
     if not changes:
         return None

@@ -62,7 +62,7 @@ def _totals(label: str, decisions: list[Decision], configs: list[DecisionConfig]
 
 def replay(data: ReviewData, other_model: Optional[SiteModel] = None,
            other_config: Optional[DecisionConfig] = None, params_file: str = "") -> dict:
-    """Recorded parameters (must reproduce every decision) beside the other parameters."""
+    """Replay the recorded parameters (they must reproduce every decision) beside the others."""
     recorded, other, changes, mismatches = [], [], [], []
     rec_configs, other_configs = [], []
     skipped = 0

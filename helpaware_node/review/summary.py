@@ -35,8 +35,11 @@ def calibration_pairs(data: ReviewData) -> tuple[list[float], list[int]]:
 
 
 def find_expired(data: ReviewData, timeout_s: float) -> list[DecisionRow]:
-    """Asks with no outcome within `timeout_s` (asks younger than that at the bag's end are
-    still pending, not expired)."""
+    """Return the asks with no outcome within `timeout_s`.
+
+    Asks with no outcome within `timeout_s` (asks younger than that at the bag's end are still
+    pending, not expired).
+    """
     answered = outcome_for(data)
     expired = []
     for d in data.decisions:

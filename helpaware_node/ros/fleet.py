@@ -184,7 +184,7 @@ class FleetLink(CountsRefusals):
 
     @property
     def entities(self) -> list:
-        """Publisher, subscription and merge timer, for the owner's teardown."""
+        """Return the publisher, subscription and merge timer, for the owner's teardown."""
         return [self._pub, self._sub, self._timer]
 
     @property
@@ -222,8 +222,11 @@ class FleetLink(CountsRefusals):
         self._pub.publish(String(data=encode_document(act.action, act, self._keys)))
 
     def forget(self, person_key: str, request_id: Optional[str] = None) -> int:
-        """Forget here and ask every robot to forget too (a request of its own unless
-        `request_id` names the one this answers); returns the events removed here."""
+        """Forget here and ask every robot to forget too.
+
+        Forget here and ask every robot to forget too (a request of its own unless `request_id`
+        names the one this answers); returns the events removed here.
+        """
         act = PrivacyAct.new("forget", person_key, self.sender, request_id)
         self._remember(act.identity)
         n = self._forget_here(person_key)
@@ -394,7 +397,7 @@ class FleetLink(CountsRefusals):
         return None if error is not None else len(new)
 
     def _store_batch(self, events: list[AnyEvent]):
-        """(stored, not yet tried, error): a batch call is all or nothing.
+        """Return (stored, not yet tried, error): a batch call is all or nothing.
 
         One call per event stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not
         held long.

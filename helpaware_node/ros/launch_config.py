@@ -108,8 +108,11 @@ def profile_environment(base: Mapping[str, str]) -> dict:
 
 
 def executable(name: str = EXECUTABLE) -> list[str]:
-    """The installed executable (lib/<package>/<name> under the ament prefix or the venv),
-    else `python -m` on the module, so a plain source checkout still runs."""
+    """Return the command that starts the installed executable.
+
+    The installed executable (lib/<package>/<name> under the ament prefix or the venv), else
+    `python -m` on the module, so a plain source checkout still runs.
+    """
     found = package_data.executable(name)
     if found:
         return [found]
@@ -152,12 +155,15 @@ class NodeSpec:
         return args
 
     def command(self) -> list[str]:
-        """The process's command line (what `ros2 run` would start, with these arguments)."""
+        """Return the process's command line (what `ros2 run` would start, with these args)."""
         return executable(self.executable) + self.ros_arguments()
 
     def launch_kwargs(self) -> dict:
-        """Keyword arguments of launch_ros.actions.Node for this node (see
-        LAUNCH_ROS_NODE_KWARGS for the releases they exist in)."""
+        """Return the keyword arguments of launch_ros.actions.Node for this node.
+
+        Keyword arguments of launch_ros.actions.Node for this node (see LAUNCH_ROS_NODE_KWARGS for
+        the releases they exist in).
+        """
         parameters: list = [self.params_file] if self.params_file else []
         if self.overrides:
             parameters.append(dict(self.overrides))

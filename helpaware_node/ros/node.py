@@ -146,7 +146,10 @@ class HelpAwareNode(LifecycleNode):
         return TransitionCallbackReturn.SUCCESS
 
     def _create_entities(self, s) -> None:
-        """Publishers, subscriptions, timers, fleet link and privacy requests (configure)."""
+        """Create publishers, subscriptions, timers, fleet link and privacy requests.
+
+        Fleet link and privacy requests (configure).
+        """
         from rclpy.event_handler import SubscriptionEventCallbacks, PublisherEventCallbacks
         sub_events = SubscriptionEventCallbacks(incompatible_qos=self._on_qos_incompatible)
         pub_events = PublisherEventCallbacks(incompatible_qos=self._on_qos_incompatible)
@@ -243,8 +246,11 @@ class HelpAwareNode(LifecycleNode):
         return self.get_clock().now().nanoseconds * 1e-9
 
     def _read_clock(self) -> float:
-        """The node's time, with a jump of system time against the steady clock followed
-        by the session (sim time is the truth and is not followed)."""
+        """Return the node's time; the session follows a jump of system time.
+
+        The node's time, with a jump of system time against the steady clock followed by the
+        session (sim time is the truth and is not followed).
+        """
         now = self.now_s()
         steady = None if self.get_clock().ros_time_is_active else time.monotonic()
         self._apply(self.session.clock(now, steady))
@@ -281,7 +287,7 @@ class HelpAwareNode(LifecycleNode):
             self.get_logger().warning(text)
 
     def _failed(self, topic: str, exc: BaseException) -> None:
-        """Handling one document raised something that is not a refusal.
+        """Count and log a document whose handling raised something that is not a refusal.
 
         Contained, counted apart (a defect to report) and as a rejection; the robot carries on.
         """

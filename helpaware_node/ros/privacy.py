@@ -63,7 +63,7 @@ class PrivacyRequests(CountsRefusals):
                                       "ROS graph can opt people out and erase them (lab only)")
 
     def apply(self, text: str) -> tuple[str, str]:
-        """(action, person_key) of a request applied now (or applied here before).
+        """Apply a request now and return its (action, person_key) (or those applied here before).
 
         Raises CoreInputError (signing.Refused for a signature reason) for a refused one.
         """

@@ -118,7 +118,7 @@ class Refusals:
             self._warn(text)
 
     def failed(self, exc: BaseException, log: LogThrottle, error: Callable[[str], None]) -> bool:
-        """Handling one document raised `exc`, which is not a refusal.
+        """Count and log a document whose handling raised `exc`, which is not a refusal.
 
         The store refusing a write (disk full, read-only: store.ids.refused_by_store) is logged
         through `log` as `store_failure` and True returned (the caller counts it); anything else is

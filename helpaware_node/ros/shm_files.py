@@ -370,11 +370,14 @@ def claim_dead_instances(directory: Optional[Path] = None,
 
 
 def stale_port_names(shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> set[str]:
-    """Ports (`fastdds_port<N>`) that some live process still has mapped from a file that was
-    removed: a publisher of a participant that died and whose port was removed or reset since.
-    It writes into that old mapping until its middleware notices (or, when the dead listener
-    was not waiting, perhaps never), so a new listener on port N would not hear it.  Read from
-    /proc/<pid>/maps of every process this user may read."""
+    """Return the ports that a live process still maps from a removed file.
+
+    Ports (`fastdds_port<N>`) that some live process still has mapped from a file that was removed:
+    a publisher of a participant that died and whose port was removed or reset since. It writes
+    into that old mapping until its middleware notices (or, when the dead listener was not waiting,
+    perhaps never), so a new listener on port N would not hear it.  Read from /proc/<pid>/maps of
+    every process this user may read.
+    """
     prefix = f"{shm_dir}/fastdds_port"
     names = set()
     try:

@@ -81,8 +81,11 @@ class NodeLearning:
 
     # ---------------------------------------------------------------- on the executor
     def poll(self, now_s: float) -> Optional[SiteModel]:
-        """Pick up a finished refit (the model to put in force, if it changed) or start one
-        that is due. Never blocks."""
+        """Pick up a finished refit or start one that is due; never blocks.
+
+        Pick up a finished refit (the model to put in force, if it changed) or start one that is
+        due. Never blocks.
+        """
         if self.running:
             try:
                 refit = self._collect()
@@ -226,8 +229,11 @@ class NodeLearning:
         return values
 
     def shutdown(self) -> None:
-        """Stop the worker: a refit still running is ended (process) or finishes in its
-        thread and is dropped; nothing of it was in force yet."""
+        """Stop the worker; a refit still running is dropped.
+
+        Stop the worker: a refit still running is ended (process) or finishes in its thread and is
+        dropped; nothing of it was in force yet.
+        """
         if self._worker is not None:
             self._worker.stop()
             self._worker = None

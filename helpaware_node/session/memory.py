@@ -45,7 +45,7 @@ class PersonMemory:
         return rec
 
     def held(self, key: str):
-        """Return the record if held (belief refolded if the model changed since), else None.
+        """Return the record when held, its belief refolded if the model changed; else None.
 
         For displays, which must not load people from the store.
         """
@@ -122,9 +122,12 @@ class PersonMemory:
                                                                    for t in rec.ask_times_s))
 
     def use_model(self, model: SiteModel) -> None:
-        """The belief of each person is the fold of their events under the model in force:
-        each held record is refolded when it is next read (record_for), not here, so a change
-        of constants (site learning) costs the caller nothing however many people are held."""
+        """Put a model in force; each held record is refolded when next read.
+
+        The belief of each person is the fold of their events under the model in force: each held
+        record is refolded when it is next read (record_for), not here, so a change of constants
+        (site learning) costs the caller nothing however many people are held.
+        """
         if model != self.model:
             self.model = model
             self._stale = set(self.records)

@@ -95,8 +95,11 @@ class Note:
 
 @dataclass(frozen=True)
 class DecisionOut:
-    """A decision to publish, with the robot's recent asks it was made on (the document's
-    robot_ask_times_s) and the ask event stored for it, if it asks."""
+    """A decision to publish, with what it was made on and the ask event stored for it.
+
+    A decision to publish, with the robot's recent asks it was made on (the document's
+    robot_ask_times_s) and the ask event stored for it, if it asks.
+    """
 
     decision: Decision
     robot_ask_times_s: tuple[float, ...]

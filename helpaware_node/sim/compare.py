@@ -45,7 +45,7 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
             model: Optional[SiteModel] = None, config: Optional[DecisionConfig] = None,
             progress: bool = True, first_seed: int = 0, rules: Optional[SessionRules] = None,
             constants: str = "defaults", learner_factory: Optional[Callable[[], Any]] = None):
-    """Returns (summary by policy, per-seed metrics by policy, runs by policy).
+    """Return (summary by policy, per-seed metrics by policy, runs by policy).
 
     `rules`: the help session's rules (max_asks_per_need ...), the node's defaults if None.
     `constants`: "defaults" (the robot starts from `model`, the shipped SiteModel if None)
@@ -129,8 +129,10 @@ def regret(per_seed: dict, start: str = "ours") -> dict:
 
 
 def targets(sc: Scenario, per_seed: dict) -> dict:
-    """The issue's targets for the policy that starts from the shipped defaults (`learning`
-    when it ran, else `ours`), each a paired comparison over seeds (metrics.paired_difference).
+    """Return the issue's targets for the policy that starts from the shipped defaults.
+
+    The issue's targets for the policy that starts from the shipped defaults (`learning` when it
+    ran, else `ours`), each a paired comparison over seeds (metrics.paired_difference).
     """
     start = "learning" if "learning" in per_seed else "ours"
     out: dict = {"start": start}

@@ -126,7 +126,7 @@ def report(scenarios: Sequence[Scenario], config: DecisionConfig, seeds: int = 3
 
 
 def main(argv=None) -> int:
-    """python -m helpaware_node.sim.encounters SCENARIO.yaml ... [--seeds N]."""
+    """Run `python -m helpaware_node.sim.encounters SCENARIO.yaml ... [--seeds N]`."""
     import argparse
     from .scenario import load
     ap = argparse.ArgumentParser(description="the re-encounter check on scenario files, "

@@ -113,7 +113,7 @@ class TrueWorld:
         return self._rollout(pid, later, past, h) - self._rollout(pid, later, past + (now_s,), h)
 
     def _rollout(self, pid: str, later, asks: tuple, h: float) -> float:
-        """Expected advantage of the greedy oracle over `later`, from this ask history."""
+        """Return the greedy oracle's expected advantage over `later`, from this ask history."""
         times = list(asks)
         total = 0.0
         cfg = self.config

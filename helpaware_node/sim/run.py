@@ -172,8 +172,11 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
 
 def _answer(world: World, truth: TrueWorld, decision, need: SimNeed, k: int,
             res: RunResult, j: int) -> Result:
-    """The world's answer to the k-th ask at need j (its k-th draw pair), with the world's
-    reward: its costs, the true ask load."""
+    """Return the world's answer to the k-th ask at need j, with the world's reward.
+
+    The world's answer to the k-th ask at need j (its k-th draw pair), with the world's reward: its
+    costs, the true ask load.
+    """
     sc = world.scenario
     pid = decision.person_id
     busyness = next(s.busyness for s in need.seen if s.person_id == pid)

@@ -103,7 +103,7 @@ def true_site_model(sc: Scenario, base: SiteModel = SiteModel()) -> SiteModel:
 
 
 def informed_config(sc: Scenario, config: DecisionConfig) -> DecisionConfig:
-    """The robot's settings with the world's costs of an ask (limits and look-ahead kept)."""
+    """Return the robot's settings with the world's costs of an ask (limits, look-ahead kept)."""
     c = sc.costs
     return dataclasses.replace(config, ask_time_s=c.ask_time_s,
                                interruption_weight_s=c.interruption_weight_s,

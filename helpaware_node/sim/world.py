@@ -97,8 +97,11 @@ def _pick(cumulative: np.ndarray, rng: np.random.Generator) -> int:
 
 
 def _weighted_sample(weights: np.ndarray, k: int, rng: np.random.Generator) -> np.ndarray:
-    """k distinct indices, drawn one after another with probability proportional to weight
-    (exponential-race keys: the k smallest E_i / w_i), in draw order."""
+    """Draw k distinct indices with probability proportional to weight.
+
+    k distinct indices, drawn one after another with probability proportional to weight
+    (exponential-race keys: the k smallest E_i / w_i), in draw order.
+    """
     keys = rng.exponential(size=weights.size) / weights
     top = np.argpartition(keys, k - 1)[:k] if k < weights.size else np.arange(weights.size)
     return top[np.argsort(keys[top], kind="stable")]

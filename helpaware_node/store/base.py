@@ -66,8 +66,11 @@ AnyEvent = Union[StoredEvent, AskEvent]
 
 @dataclass(frozen=True)
 class LearnedEntry:
-    """One revision of the site constants learned online (fit/online.py), as kept in the
-    store's history: plain values only, so the store needs nothing of the fit."""
+    """One revision of the site constants learned online, as the store keeps it.
+
+    One revision of the site constants learned online (fit/online.py), as kept in the store's
+    history: plain values only, so the store needs nothing of the fit.
+    """
 
     revision: int              # 1, 2, ...: each change of the constants in force
     time_s: float              # the node's clock at the refit

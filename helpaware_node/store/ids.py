@@ -110,9 +110,12 @@ def check_ask(ask) -> None:
 
 
 def refused_by_store(exc: BaseException) -> bool:
-    """Whether a failed write is the store's condition (disk full, read-only, I/O error, locked,
-    damaged, out of memory: keep the events and try again) rather than one event's fault (a
-    value the store cannot hold: drop that event)."""
+    """Tell whether a failed write is the store's condition rather than one event's fault.
+
+    Whether a failed write is the store's condition (disk full, read-only, I/O error, locked,
+    damaged, out of memory: keep the events and try again) rather than one event's fault (a value
+    the store cannot hold: drop that event).
+    """
     if isinstance(exc, (sqlite3.IntegrityError, sqlite3.DataError, sqlite3.InterfaceError,
                         sqlite3.ProgrammingError)):
         return False

@@ -183,7 +183,7 @@ class SiteKeys:
 
 
 def parse_site_key_file(raw: bytes, where: str = "site key file") -> SiteKeys:
-    """SiteKeys from the bytes of a key file of either form; SiteKeyError names the line."""
+    """Parse SiteKeys from the bytes of a key file of either form; SiteKeyError names the line."""
     if not raw.startswith(FILE_HEADER):
         if len(raw) < 16:
             raise SiteKeyError(f"site key file {where} holds {len(raw)} bytes; expected "

@@ -611,8 +611,11 @@ class SqliteStore:
         return [row_to_ask(r) for r in reversed(rows)]
 
     def move_asks_forward(self, by_s: float) -> int:
-        """A forward jump of the system clock (seen against the steady clock while the node
-        ran): every stored ask moves with it, so after a restart each keeps its real age."""
+        """Move every stored ask forward by a forward jump of the system clock.
+
+        A forward jump of the system clock (seen against the steady clock while the node ran):
+        every stored ask moves with it, so after a restart each keeps its real age.
+        """
         with self._lock:
             return self._conn.execute("UPDATE asks SET time_s = time_s + ?",
                                       (float(by_s),)).rowcount

@@ -37,7 +37,7 @@ class Install:
     env_delta: dict = field(default_factory=dict)   # what sourcing the install changes
 
     def env(self) -> dict:
-        """This process's environment (its ROS_HOME, domain, discovery range) + the install."""
+        """Return this process's environment (ROS_HOME, domain, discovery range) + the install."""
         env = dict(os.environ)
         env.update(self.env_delta)
         missing = [k for k in DDS_KEYS if not env.get(k)]

@@ -173,7 +173,7 @@ class LongLivedProcess:
         return None
 
     def diag_after(self, wall_s: float, timeout_s: float) -> dict:
-        """The values of the node's first /diagnostics status after `wall_s` ({} if none)."""
+        """Return the values of the first /diagnostics status after `wall_s` ({} if none)."""
         end = time.monotonic() + timeout_s
         while time.monotonic() < end:
             late = [d for d in list(self.diags) if d["wall_s"] > wall_s]

@@ -131,7 +131,7 @@ def stored_asks(path: Path) -> list[tuple[str, str, float]]:
 
 
 def event_ids(path: Path) -> set[str]:
-    """The stored event ids only (a light read while the node is writing: WAL readers share)."""
+    """Return the stored event ids only (a light read while the node writes: WAL readers share)."""
     conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=10.0)
     try:
         return {r[0] for r in conn.execute("SELECT event_id FROM events")}
@@ -307,7 +307,7 @@ class Drive:
         return predicate()
 
     def probe(self, robot: Robot, timeout_s: float = 60.0) -> dict:
-        """A decision from a (re)started node with every person of the view among its candidates.
+        """Return a decision from a (re)started node with everyone in view among its candidates.
 
         Needs are re-sent once a second: one published before the node's subscription matched
         is gone (volatile topic), and a killed node's endpoints linger until their lease ends.

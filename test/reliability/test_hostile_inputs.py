@@ -103,7 +103,7 @@ def stored_rows(path):
 
 
 def part(node, topic):
-    """(handler, refusal counter, last reason, handler errors) of a hostile_documents topic."""
+    """Return (handler, refusal counter, last reason, handler errors) of a topic."""
     if topic in ("people", "task_status", "outcome"):
         fn = {"people": node._on_people, "task_status": node._on_task_status,
               "outcome": node._on_outcome}[topic]
@@ -208,9 +208,12 @@ def publishable(text: str) -> str:
 
 
 def test_every_class_through_the_real_topics(rig):
-    """Seeded documents of every class published on every topic (fleet and privacy signed
-    with the site key). After each burst a valid sentinel shows that the burst was handled
-    (one writer's messages arrive in order); none was a handler error."""
+    """Check every class of hostile document through the real topics.
+
+    Seeded documents of every class published on every topic (fleet and privacy signed with the
+    site key). After each burst a valid sentinel shows that the burst was handled (one writer's
+    messages arrive in order); none was a handler error.
+    """
     from rclpy.qos import qos_profile_sensor_data  # noqa: F401 - the people topic's QoS
     node, driver = rig.node, rig.driver
     pubs = {"people": rig.people_pub, "task_status": rig.task_pub, "outcome": rig.outcome_pub,
@@ -326,8 +329,11 @@ def test_crash_loop_a_peer_history_of_deep_numbers_at_every_start(ctx, tmp_path)
 
 
 def test_crash_loop_through_a_node_process_and_its_restart(tmp_path):
-    """The node process itself (launch_config), on its own fleet topic whose history holds the
-    hostile documents: it keeps running and deciding, and again after a restart."""
+    """Check the node process with hostile documents in its fleet history, and after a restart.
+
+    The node process itself (launch_config), on its own fleet topic whose history holds the hostile
+    documents: it keeps running and deciding, and again after a restart.
+    """
     import process_rig as pr
     pr.write_site_key(tmp_path)
     keys = SiteKeys.single(pr.SITE_KEY).key_ring()
@@ -498,9 +504,12 @@ def test_two_crowds_through_the_people_topic_give_a_valid_decision(rig):
 @settings(max_examples=scaled(25, 250), **SETTINGS)
 @given(st.lists(st.tuples(st.integers(1, 500), st.floats(0.0, 50.0)), min_size=1, max_size=8))
 def test_many_people_across_documents_every_decision_valid(rig, docs):
-    """Any sequence of people documents (up to 500 people each, distances and ages at
-    random) at the handler: people in view stay at most wire.MAX_CANDIDATES, and the decision
-    after them decodes by its own schema."""
+    """Check that any sequence of people documents keeps every decision valid.
+
+    Any sequence of people documents (up to 500 people each, distances and ages at random) at the
+    handler: people in view stay at most wire.MAX_CANDIDATES, and the decision after them decodes
+    by its own schema.
+    """
     node = rig.node
     node.session.seen.clear()
     now = node.now_s()
@@ -531,8 +540,11 @@ def status_array(n: int, code: int, first_stamp_s: int = 1):
 
 
 def test_a_status_array_of_20000_aborted_goals_gives_one_decision(rig):
-    """Issue 14 item 4: one GoalStatusArray with 20 000 aborted goals gave 20 000 decisions in
-    one callback, and nobody got a decision for 10-20 s."""
+    """Check that 20 000 aborted goals in one status array give one decision.
+
+    Issue 14 item 4: one GoalStatusArray with 20 000 aborted goals gave 20 000 decisions in one
+    callback, and nobody got a decision for 10-20 s.
+    """
     from action_msgs.msg import GoalStatus, GoalStatusArray
     node = rig.node
     pub = rig.driver.create_publisher(GoalStatusArray, NAV_TOPIC, 10)
@@ -610,9 +622,11 @@ def test_a_1_2_mb_kind_is_refused_as_too_long(rig):
 
 
 def test_an_old_store_with_a_long_kind_still_starts_and_re_offers_the_rest(ctx, tmp_path):
-    """A store written before kinds were bounded (bulk_load does not check: an import) holds a
-    1.2 MB kind: the node starts, re-offers every other event, counts the one it cannot, and
-    decides."""
+    """Check that a store with a 1.2 MB kind still starts and re-offers the rest.
+
+    A store written before kinds were bounded (bulk_load does not check: an import) holds a 1.2 MB
+    kind: the node starts, re-offers every other event, counts the one it cannot, and decides.
+    """
     from helpaware_node.store import SqliteStore
     write_site_key(tmp_path, SITE_KEY)
     path = tmp_path / "beliefs.sqlite3"
@@ -633,8 +647,11 @@ def test_an_old_store_with_a_long_kind_still_starts_and_re_offers_the_rest(ctx, 
 
 # ------------------------------------------------------------------ item 6: log floods
 class LineCounter:
-    """Counts the lines the node logs, by level (stands in for its logger's methods; rclpy
-    ties a severity to each line of code that logs, so one wrapper cannot pass all on)."""
+    """Count the lines the node logs, by level.
+
+    Counts the lines the node logs, by level (stands in for its logger's methods; rclpy ties a
+    severity to each line of code that logs, so one wrapper cannot pass all on).
+    """
 
     def __init__(self, logger) -> None:
         self.lines = collections.Counter()
@@ -651,9 +668,12 @@ class LineCounter:
 
 
 def test_valid_but_pointless_documents_do_not_flood_the_log(ctx, tmp_path):
-    """Issue 14 item 6: 'resolved for unknown request' and 'privacy_request ... applied' were
-    one INFO line per document (223 lines/s). Now each kind of line is logged at once and then
-    at most once a minute, and counted in /diagnostics."""
+    """Check that valid but pointless documents do not flood the log.
+
+    Issue 14 item 6: 'resolved for unknown request' and 'privacy_request ... applied' were one INFO
+    line per document (223 lines/s). Now each kind of line is logged at once and then at most once
+    a minute, and counted in /diagnostics.
+    """
     from helpaware_node.ros.refusal_log import REPORT_PERIOD_S
     write_site_key(tmp_path, SITE_KEY)
     rig = Rig(ctx, namespace="/flood", store_path=str(tmp_path / "b.sqlite3"), robot_id="r1",

@@ -348,7 +348,7 @@ def handler(node, topic):
 
 
 def decodes(topic, text, node) -> bool:
-    """Return the outside view: would this text be taken by the topic's own parser?"""
+    """Return the outside view: would this text be taken by the topic's own parser."""
     try:
         if topic in WIRE_TOPICS:
             wire.decode(topic, text)

@@ -47,7 +47,10 @@ EXPECTED_MODEL = SiteModel(ask_memory_half_life_s=0.5)   # default.yaml + proces
 
 
 def check_store(view, acked: set[str], label: str) -> None:
-    """(a) nothing acknowledged is missing, (b) the file is sound and its cache is the fold."""
+    """Check nothing acknowledged is missing and the file is sound, its cache the fold.
+
+    (b) the file is sound and its cache is the fold.
+    """
     assert view.integrity == ["ok"], f"{label}: integrity_check {view.integrity[:5]}"
     lost = acked - view.events.keys()
     assert not lost, f"{label}: {len(lost)} acknowledged outcomes lost, e.g. {sorted(lost)[:5]}"
@@ -217,8 +220,11 @@ def test_fleet_peer_killed_mid_exchange_catches_up_and_every_store_converges(tmp
 
 
 def test_a_burst_of_outcomes_beyond_the_queue_depth_reaches_the_store(ctx, tmp_path):
-    """Regression: 150 answered asks reported at once while the node's executor is not
-    spinning (as when a long callback holds it): every outcome is stored, none dropped."""
+    """Check that a burst of outcomes beyond the queue depth reaches the store.
+
+    Regression: 150 answered asks reported at once while the node's executor is not spinning (as
+    when a long callback holds it): every outcome is stored, none dropped.
+    """
     from node_harness import Rig
     from rclpy.qos import QoSProfile, ReliabilityPolicy
     from std_msgs.msg import String

@@ -50,7 +50,7 @@ def shm_files_of(pid: int) -> dict:
 
 
 def in_this_domain(path: str) -> bool:
-    """Data segments (random names).
+    """Return the data segments (random names).
 
     Ports of this run's domain, which test/conftest.py holds for this run alone (RTPS port numbers:
     7400 + 250 * domain + offset).  Fast DDS also gives each participant a port numbered from 7000
@@ -96,7 +96,7 @@ def flock_inodes(pid=None) -> set:
 
 
 def leftovers(recorded: dict) -> list:
-    """Recorded files still there (same inode) whose set nobody holds locked now."""
+    """Return recorded files still there (same inode) whose set nobody holds locked now."""
     held = flock_inodes()
     left = []
     for path, ino in recorded.items():
