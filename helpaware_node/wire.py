@@ -16,7 +16,7 @@ import json
 import math
 import re
 from dataclasses import dataclass, field
-from typing import Any, Iterable, Mapping, Optional, Sequence
+from typing import Any, Iterable, Mapping, NoReturn, Optional, Sequence
 
 from .core.belief import Belief
 from .core.model import MAX_ASKS_CAP, DecisionConfig, SiteModel, from_plain, to_plain
@@ -58,21 +58,21 @@ class F:
     low_open: bool = False
     min_len: int = 0
     max_len: int = MAX_TEXT_CHARS
-    choices: tuple = ()
+    choices: tuple[Any, ...] = ()
     items: Optional["F"] = None
     fields: Mapping[str, "F"] = field(default_factory=dict)
     description: str = ""
 
 
-def _id(desc: str, **kw) -> F:
+def _id(desc: str, **kw: Any) -> F:
     return F("string", min_len=1, max_len=MAX_ID_CHARS, description=desc, **kw)
 
 
-def _time(desc: str, **kw) -> F:
+def _time(desc: str, **kw: Any) -> F:
     return F("number", low=-TIME_LIMIT_S, high=TIME_LIMIT_S, description=desc, **kw)
 
 
-def _header(name: str) -> dict:
+def _header(name: str) -> dict[str, Any]:
     return {"doc": F("enum", choices=(name,), description="document name"),
             "version": F("enum", choices=(VERSION,), description="document version")}
 
@@ -210,7 +210,7 @@ SPECS: dict[str, F] = {"people": PEOPLE, "task_status": TASK_STATUS, "outcome": 
 _LONGEST_NUMBER = -2.2250738585072014e-308      # repr: 24 characters, the most a float takes
 
 
-def _fixed_bytes(spec: F, own: tuple) -> int:
+def _fixed_bytes(spec: F, own: tuple[Any, ...]) -> int:
     doc: dict[str, Any] = {}
     for name, f in spec.fields.items():
         if name in own:
@@ -290,8 +290,10 @@ def _check(spec: F, value: Any, path: str) -> None:
         if not spec.min_len <= len(value) <= spec.max_len:
             raise WireError(f"{path}: {len(value)} items is outside the allowed "
                             f"[{spec.min_len}, {spec.max_len}]")
+        items = spec.items
+        assert items is not None, spec   # every array spec names its items
         for i, item in enumerate(value):
-            _check(spec.items, item, f"{path}[{i}]")
+            _check(items, item, f"{path}[{i}]")
     elif k == "any_object":
         if not isinstance(value, dict):
             raise WireError(f"{path}: expected an object, got {describe(value)}")
@@ -313,7 +315,7 @@ def _check(spec: F, value: Any, path: str) -> None:
             _check(sub, value[name], sub_path)
 
 
-def validate(name: str, document: Any) -> dict:
+def validate(name: str, document: Any) -> dict[str, Any]:
     """Check a decoded document against its spec; returns it or raises WireError."""
     spec = SPECS.get(name)
     if spec is None:
@@ -343,15 +345,15 @@ def lone_surrogate_at(text: str) -> Optional[int]:
     return None
 
 
-def _refuse_constant(text: str):
+def _refuse_constant(text: str) -> NoReturn:
     raise WireError(f"document: {text} is not allowed (numbers must be finite)")
 
 
-def _refuse_duplicates(pairs: list) -> dict:
+def _refuse_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     """JSON objects with a repeated name are ambiguous (parsers keep the first or the last)."""
     obj = dict(pairs)
     if len(obj) != len(pairs):
-        seen: set = set()
+        seen: set[str] = set()
         for name, _ in pairs:
             if name in seen:
                 raise WireError(f"document: duplicate field {quoted(name)} in one JSON object")
@@ -359,7 +361,7 @@ def _refuse_duplicates(pairs: list) -> dict:
     return obj
 
 
-def decode(name: str, text: Any) -> dict:
+def decode(name: str, text: Any) -> dict[str, Any]:
     """Parse and validate the JSON text of document `name`."""
     if isinstance(text, (bytes, bytearray)):
         try:
@@ -405,7 +407,7 @@ def deep_nesting_at(text: str, levels: int) -> Optional[tuple[str, int]]:
     Reads the text without recursion (the json module recurses, and gives up without saying
     where), so a refusal can name the field that holds the nesting: `time_s[0][0][0]...`.
     """
-    stack: list[list] = []              # per open container: [is_object, key or index]
+    stack: list[list[Any]] = []              # per open container: [is_object, key or index]
     expect_key = False
     for m in _JSON_TOKEN.finditer(text):
         tok = m.group()
@@ -433,7 +435,7 @@ def deep_nesting_at(text: str, levels: int) -> Optional[tuple[str, int]]:
     return None
 
 
-def _nesting_path(stack: list[list], parts_shown: int = 6) -> str:
+def _nesting_path(stack: list[list[Any]], parts_shown: int = 6) -> str:
     """Return the path of the innermost container's place, as wire writes paths.
 
     Cut short after `parts_shown` parts (the field that holds the nesting comes first).
@@ -519,8 +521,8 @@ def people_from(doc: Mapping[str, Any]) -> list[SeenPerson]:
         pos = p.get("position")
         out.append(SeenPerson(p["id"], float(p["distance_m"]),
                               None if p.get("busyness") is None else float(p["busyness"]),
-                              p.get("activity",
-                                    ""), tuple(float(v) for v in pos) if pos else None))
+                              p.get("activity", ""),
+                              (float(pos[0]), float(pos[1]), float(pos[2])) if pos else None))
     return out
 
 
@@ -534,13 +536,13 @@ def help_need_from(doc: Mapping[str, Any], opened_at_s: float) -> HelpNeed:
 # ----------------------------------------------------------------------------------------
 # The decision document and its exact replay.
 
-def _need_plain(need: HelpNeed) -> dict:
+def _need_plain(need: HelpNeed) -> dict[str, Any]:
     return {"request_id": need.request_id, "kind": need.kind, "urgency": float(need.urgency),
             "continue_cost_s": need.continue_cost_s, "help_time_s": need.help_time_s,
             "opened_at_s": float(need.opened_at_s)}
 
 
-def _candidate_plain(c: Candidate) -> dict:
+def _candidate_plain(c: Candidate) -> dict[str, Any]:
     return {"person_id": c.person_id, "distance_m": float(c.distance_m),
             "observed_at_s": float(c.observed_at_s), "a": float(c.belief.a),
             "b": float(c.belief.b), "busyness": None if c.busyness is None else float(c.busyness),
@@ -553,7 +555,8 @@ def _candidate_plain(c: Candidate) -> dict:
 def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
                          model: Optional[SiteModel] = None,
                          config: Optional[DecisionConfig] = None, robot_id: str = "",
-                         check: bool = True, source: Optional[tuple[str, int]] = None) -> dict:
+                         check: bool = True,
+                         source: Optional[tuple[str, int]] = None) -> dict[str, Any]:
     """Return the decision as a plain document; `encode("decision", doc)` makes the text.
 
     `check=False` skips validation (the node: every value comes from validated core values,
@@ -590,8 +593,9 @@ def _parameters_plain_cached(model: SiteModel, config: DecisionConfig,
 
 
 def _parameters_plain(model: SiteModel, config: DecisionConfig,
-                      source: Optional[tuple[str, int]] = None) -> dict:
-    return json.loads(_parameters_plain_cached(model, config, source))
+                      source: Optional[tuple[str, int]] = None) -> dict[str, Any]:
+    plain: dict[str, Any] = json.loads(_parameters_plain_cached(model, config, source))
+    return plain
 
 
 def fast_text(document: Mapping[str, Any], model: Optional[SiteModel] = None,
@@ -664,7 +668,7 @@ def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionCon
 # ----------------------------------------------------------------------------------------
 # JSON Schema (draft 2020-12) generated from the same specs.
 
-def _schema(spec: F) -> dict:
+def _schema(spec: F) -> dict[str, Any]:
     k = spec.kind
     if k == "string":
         out: dict[str, Any] = {"type": "string", "minLength": spec.min_len,
@@ -678,6 +682,7 @@ def _schema(spec: F) -> dict:
     elif k == "enum":
         out = {"enum": list(spec.choices)}
     elif k == "array":
+        assert spec.items is not None, spec
         out = {"type": "array", "items": _schema(spec.items), "maxItems": spec.max_len}
         if spec.min_len:
             out["minItems"] = spec.min_len
@@ -697,7 +702,7 @@ def _schema(spec: F) -> dict:
     return out
 
 
-def json_schema(name: str) -> dict:
+def json_schema(name: str) -> dict[str, Any]:
     schema = _schema(SPECS[name])
     schema = {"$schema": "https://json-schema.org/draft/2020-12/schema",
               "$id": f"helpaware_node/{name}/v{VERSION}", "title": f"helpaware {name} document",

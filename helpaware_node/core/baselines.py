@@ -11,7 +11,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from .model import DecisionConfig
-from .policy import Evaluation, ask_advantage, best_positive, choose_lookahead
+from .policy import Chooser, Evaluation, ask_advantage, best_positive, choose_lookahead
 from .preview import quoted
 
 
@@ -100,8 +100,9 @@ class Oracle:
 POLICY_NAMES = ("ours", "never", "nearest", "busyness", "willingness", "thompson", "oracle")
 
 
-def make_chooser(name: str, config: DecisionConfig, seed: int = 0, true_score=None,
-                 busyness_threshold: float = 0.3):
+def make_chooser(name: str, config: DecisionConfig, seed: int = 0,
+                 true_score: Optional[Callable[[Evaluation], np.ndarray]] = None,
+                 busyness_threshold: float = 0.3) -> Chooser:
     """Return a fresh chooser by name (stateful ones carry their own seeded generator)."""
     if name == "ours":
         return choose_lookahead

@@ -11,6 +11,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
 from .model import CoreInputError, SiteModel, check_range
 
@@ -39,11 +40,12 @@ class Belief:
 
 
 _TINY = float(np.nextafter(0.0, 1.0))
-# 0/0 and overflow arise only at c = 1 with b/(a+b) underflowing, where the closed form is used
-_AT_C_ONE_ONLY = {"divide": "ignore", "invalid": "ignore", "over": "ignore"}
 
 
-def _declined_mixture(a, b, c):
+Floats = NDArray[np.float64]
+
+
+def _declined_mixture(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, ...]:
     """Return the parts of the exact declined posterior, a two-Beta mixture, that never cancel.
 
     1 - c w = (1 - c) + c (1 - w) and (1 - w) Beta(w; a, b) = b/s Beta(w; a, b + 1), s = a + b:
@@ -57,7 +59,7 @@ def _declined_mixture(a, b, c):
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
     c = np.asarray(c, dtype=float)
-    s = a + b
+    s: Floats = a + b
     m0 = a / s                   # mean of Beta(a, b) ...
     n0 = b / s                   # ... and one minus it, each computed directly
     r1 = 1.0 / (s + 1.0)
@@ -68,7 +70,7 @@ def _declined_mixture(a, b, c):
     return a, b, c, s, m0, n0, r1, r2, n1, k, z
 
 
-def declined_moments(a, b, c):
+def declined_moments(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Floats]:
     """Mean and variance of the exact posterior  ∝ (1 - c w) Beta(w; a, b) (vectorised).
 
     mean = a/s [(1 - c) + c b/(s+1)] / Z; variance = the components' variances plus the
@@ -77,14 +79,15 @@ def declined_moments(a, b, c):
     cancel catastrophically near a mean of 1.
     """
     a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
-    with np.errstate(**_AT_C_ONE_ONLY):
+    # 0/0 and overflow arise only at c = 1 with b/(a+b) underflowing, where the closed form is used
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         mean = m0 * ((k + c * b * r1) / z)
         # u0 v0 + u1 v1 + u0 u1 (a/(s(s+1)))^2, with a/s and b/(s Z) taken out of all three
         var = m0 * (n0 / z) * (k * r1 + c * s * r1 * n1 * r2 + k * c * m0 * r1 * r1 / z)
     return _exact_ends(c, mean, var, a * r1, a * r1 * n1 * r2, m0, m0 * n0 * r1)
 
 
-def declined_ab(a, b, c):
+def declined_ab(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Floats]:
     """Return (a, b) after a declined ask at context factor c in [0, 1] (moment-matched).
 
     The matched Beta has the posterior's mean M and variance V; its concentration is
@@ -92,7 +95,8 @@ def declined_ab(a, b, c):
     a' = M times it and b' = (1 - M) times it, with a and b kept as factors.
     """
     a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
-    with np.errstate(**_AT_C_ONE_ONLY):
+    # 0/0 and overflow arise only at c = 1 with b/(a+b) underflowing, where the closed form is used
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         # concentration / s, with the factor b/(s Z) of E[w(1-w)] and V cancelled
         ratio = (k * r1 + c * n1 * r2) / (k * r1 + c * s * r1 * n1 * r2
                                           + k * c * m0 * r1 * r1 / z)
@@ -103,7 +107,8 @@ def declined_ab(a, b, c):
     return _exact_ends(c, na, nb, a, b + 1.0, a, b)
 
 
-def _exact_ends(c, mixed_a, mixed_b, full_a, full_b, none_a, none_b):
+def _exact_ends(c: Floats, mixed_a: Floats, mixed_b: Floats, full_a: Floats, full_b: Floats,
+                none_a: Floats, none_b: Floats) -> tuple[Floats, Floats]:
     """Pick the closed forms at c = 0 (no information) and c = 1 (the conjugate Beta(a, b + 1)).
 
     Use the closed forms there (bit for bit, and no 0/0 where b/(a+b) underflows to 0).
@@ -140,7 +145,7 @@ def forgetting_factor(dt_s: float, half_life_s: float) -> float:
         return 1.0
     if math.isnan(dt_s):
         raise CoreInputError("dt_s: NaN is not a time interval")
-    return 2.0 ** (-max(dt_s, 0.0) / half_life_s)
+    return float(2.0 ** (-max(dt_s, 0.0) / half_life_s))   # float: a negative base never occurs
 
 
 def forget(belief: Belief, prior: Belief, dt_s: float, half_life_s: float) -> Belief:

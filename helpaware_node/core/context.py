@@ -5,9 +5,10 @@ factor    c = exp(-(k_busy * x + k_load * f))
 """
 from __future__ import annotations
 
-from typing import Iterable
+from typing import Iterable, Union, overload
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
 from .model import CoreInputError
 from .preview import short_number
@@ -24,7 +25,17 @@ def ask_load(ask_times_s: Iterable[float], now_s: float, half_life_s: float) -> 
     return float(np.sum(np.exp2(-ages / half_life_s)))
 
 
-def context_factor(busyness, load, k_busy: float, k_load: float):
+@overload
+def context_factor(busyness: float, load: float, k_busy: float, k_load: float) -> float: ...
+
+
+@overload
+def context_factor(busyness: NDArray[np.float64], load: ArrayLike, k_busy: float,
+                   k_load: float) -> NDArray[np.float64]: ...
+
+
+def context_factor(busyness: ArrayLike, load: ArrayLike, k_busy: float,
+                   k_load: float) -> Union[float, NDArray[np.float64]]:
     """Return c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
     x = np.asarray(busyness, dtype=float)
     f = np.asarray(load, dtype=float)
@@ -38,6 +49,6 @@ def context_factor(busyness, load, k_busy: float, k_load: float):
     return float(c) if c.ndim == 0 else c
 
 
-def _first(values: np.ndarray, bad: np.ndarray) -> str:
+def _first(values: NDArray[np.float64], bad: NDArray[np.bool_]) -> str:
     shown = short_number(float(values[bad].flat[0]))
     return shown if values.ndim == 0 else f"{shown} (one of {values.size} values)"

@@ -36,6 +36,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 from scipy import special
 
 LN2 = math.log(2.0)
@@ -43,11 +44,15 @@ _SERIES_MAX_X = 700.0     # e^(-x) M(1, rho + 1, x) in double range (M <= e^x)
 _NEWTON_STEPS = 8         # each Newton use starts close: converged after 3 or 4 steps
 
 
-def decay_mean(rho: float, x):
+Floats = NDArray[np.float64]
+
+
+def decay_mean(rho: float, x: ArrayLike) -> Floats:
     """D(rho, x) = rho int_0^1 t^(rho-1) e^(-x t) dt in [0, 1], for x >= 0 (vectorised)."""
     x = np.asarray(x, dtype=float)
     if not np.any(x > _SERIES_MAX_X):
-        return np.exp(-x) * special.hyp1f1(1.0, rho + 1.0, x)
+        out: Floats = np.exp(-x) * special.hyp1f1(1.0, rho + 1.0, x)
+        return out
     small = x <= _SERIES_MAX_X
     xs = np.where(small, x, 0.0)
     xl = np.where(small, 1.0, x)
@@ -61,7 +66,7 @@ def decay_mean(rho: float, x):
     return np.where(small, series, big)
 
 
-def _root(alpha, beta, gamma, k: float):
+def _root(alpha: Floats, beta: Floats, gamma: Floats, k: float) -> Floats:
     """L* > 0 with alpha e^(-k L) = beta + gamma L, where the left side starts above.
 
     With z = k L + s, s = k beta / gamma, the equation is z e^z = (k alpha / gamma) e^s, so
@@ -100,8 +105,9 @@ def _root(alpha, beta, gamma, k: float):
     return L
 
 
-def lasting_cost(rate_per_s, alpha, beta, gamma, k_load: float, load, half_life_s: float,
-                 discount_s: float, horizon_s: float):
+def lasting_cost(rate_per_s: ArrayLike, alpha: ArrayLike, beta: ArrayLike, gamma: ArrayLike,
+                 k_load: float, load: ArrayLike, half_life_s: float, discount_s: float,
+                 horizon_s: float) -> Floats:
     """Return the lasting cost of one more ask now, in robot-seconds.
 
     Expected discounted loss, in robot-seconds, that one more ask now causes at the person's later

@@ -12,7 +12,7 @@ import hashlib
 import json
 import math
 from dataclasses import dataclass, field
-from typing import Any, Mapping
+from typing import TYPE_CHECKING, Any, Mapping, TypeVar
 
 from .preview import describe, short_name, short_number
 
@@ -164,7 +164,11 @@ class DecisionConfig:
         return base * (1.0 + self.urgency_cost_gain * urgency)
 
 
-class _FrozenDict(dict):
+if TYPE_CHECKING:
+    from _typeshed import DataclassInstance
+_T = TypeVar("_T", bound="DataclassInstance")
+
+class _FrozenDict(dict[str, float]):
     """A read-only dict, so a DecisionConfig's continue costs cannot change under it."""
 
     def _refuse(self, *args: Any, **kwargs: Any) -> None:
@@ -177,7 +181,7 @@ class _FrozenDict(dict):
         return hash(tuple(sorted(self.items())))
 
 
-def to_plain(value: Any) -> dict:
+def to_plain(value: Any) -> dict[str, Any]:
     """Return a SiteModel or DecisionConfig as plain JSON-ready values."""
     out = dataclasses.asdict(value)
     for k, v in out.items():
@@ -188,7 +192,7 @@ def to_plain(value: Any) -> dict:
     return out
 
 
-def from_plain(cls: type, data: Mapping[str, Any]):
+def from_plain(cls: type[_T], data: Mapping[str, Any]) -> _T:
     """Build `cls` from plain values; unknown keys are refused by name."""
     names = {f.name for f in dataclasses.fields(cls)}
     if not isinstance(data, Mapping):

@@ -113,7 +113,8 @@ def note_candidate(record: PersonRecord, now_s: float) -> PersonRecord:
     return replace(record, candidate_count=record.candidate_count + 1, first_seen_s=first)
 
 
-def keep_recent_asks(ask_times_s, now_s: float, horizon_s: float, keep_last: int) -> tuple:
+def keep_recent_asks(ask_times_s: Iterable[float], now_s: float, horizon_s: float,
+                     keep_last: int) -> tuple[float, ...]:
     """Return the asks inside the horizon, and always the newest `keep_last` of them in any case.
 
     Pruning by time alone lets one decision at a clock far ahead (a bad /clock, a wrong system

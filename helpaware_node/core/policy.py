@@ -17,9 +17,10 @@ from __future__ import annotations
 import enum
 import math
 from dataclasses import dataclass
-from typing import Callable, Optional, Sequence
+from typing import Any, Callable, Optional, Sequence, Union
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
 from .belief import Belief, declined_moments
 from .context import context_factor
@@ -147,7 +148,7 @@ class Decision:
             return None
         return self.evaluation.candidates[self.person_index].person_id
 
-    def rationale(self) -> list[dict]:
+    def rationale(self) -> list[dict[str, Any]]:
         """Per candidate: belief, context, A, VOI, N, lasting cost, Q.
 
         Or the exclusion that ruled them out.
@@ -195,12 +196,18 @@ def _limits(cand: Candidate, busyness: float, now_s: float, config: DecisionConf
     return None
 
 
-def ask_advantage(p, continue_cost_s, help_time_s, ask_time_s, interruption_s):
+Floats = NDArray[np.float64]
+Num = Union[float, Floats]    # a value per candidate, or one for all
+
+
+def ask_advantage(p: Floats, continue_cost_s: Num, help_time_s: Num, ask_time_s: float,
+                  interruption_s: Num) -> Floats:
     """Return a = p (C - t_help) - (1 - p) t_ask - I."""
     return p * (continue_cost_s - help_time_s) - (1.0 - p) * ask_time_s - interruption_s
 
 
-def typical_terms(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
+def typical_terms(mean: ArrayLike, model: SiteModel, config: DecisionConfig,
+                  help_time_s: float) -> tuple[Floats, float, float]:
     """(alpha, beta, gamma) of the advantage at a typical future request with ask load L.
 
     alpha e^(-k_load L) - beta - gamma L, at typical busyness (DESIGN.md section 4).
@@ -212,13 +219,15 @@ def typical_terms(mean, model: SiteModel, config: DecisionConfig, help_time_s: f
             config.interruption_weight_s * config.repeat_cost)
 
 
-def typical_gain(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
+def typical_gain(mean: ArrayLike, model: SiteModel, config: DecisionConfig,
+                 help_time_s: float) -> Floats:
     """U(m): advantage of the best choice at a typical future request (never below 0)."""
     alpha, beta, _ = typical_terms(mean, model, config, help_time_s)
     return np.maximum(0.0, alpha - beta)
 
 
-def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_time_s: float):
+def information_value(a: ArrayLike, b: ArrayLike, c: Floats, model: SiteModel,
+                      config: DecisionConfig, help_time_s: float) -> Floats:
     """VOI = p U(m_helped) + (1 - p) U(m_declined) - U(m) with the updates the answer causes."""
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
@@ -226,13 +235,17 @@ def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_ti
     p = c * m
     m_helped = (a + 1.0) / (a + b + 1.0)
     m_declined, _ = declined_moments(a, b, c)
-    u = lambda x: typical_gain(x, model, config, help_time_s)  # noqa: E731
-    voi = p * u(m_helped) + (1.0 - p) * u(m_declined) - u(m)
+
+    def u(x: Floats) -> Floats:
+        return typical_gain(x, model, config, help_time_s)
+
+    voi: Floats = p * u(m_helped) + (1.0 - p) * u(m_declined) - u(m)
     # U is convex and the mean a martingale, so VOI >= 0; clip only rounding noise
     return np.maximum(voi, 0.0)
 
 
-def encounter_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
+def encounter_rate_per_s(counts: ArrayLike, first_seen_s: ArrayLike, now_s: float,
+                         config: DecisionConfig) -> Floats:
     """How often this person is a candidate at a need.
 
     The Gamma-Poisson posterior mean (prior_count + count) / (window + time since first seen),
@@ -249,7 +262,8 @@ def encounter_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionCon
     return (prior_count + np.asarray(counts, dtype=float)) / (window + span)
 
 
-def future_ask_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
+def future_ask_rate_per_s(counts: ArrayLike, first_seen_s: ArrayLike, now_s: float,
+                          config: DecisionConfig) -> Floats:
     """Return the rate of later requests where this person's answer or load can matter.
 
     The encounter rate, at most the robot's own max_asks_per_hour. Both the value of learning and
@@ -267,7 +281,8 @@ def discounted_horizon_s(config: DecisionConfig) -> float:
     return tau * -math.expm1(-config.lookahead_horizon_s / tau)
 
 
-def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
+def future_requests(counts: ArrayLike, first_seen_s: ArrayLike, now_s: float,
+                    config: DecisionConfig) -> Floats:
     """Return N, the expected discounted future requests with this person a candidate.
 
     N: expected discounted future requests with this person a candidate (the rate, capped at the
@@ -348,9 +363,10 @@ Chooser = Callable[[Evaluation], Optional[int]]
 def conclude(ev: Evaluation, index: Optional[int], policy: str = "lookahead") -> Decision:
     """Wrap a chooser's pick into a Decision with the reason for the action."""
     if index is not None:
-        if ev.exclusions[index] is not None:  # a chooser must never override a hard limit
+        excluded = ev.exclusions[index]
+        if excluded is not None:  # a chooser must never override a hard limit
             raise CoreInputError(f"policy {policy} picked an excluded candidate "
-                                 f"({ev.exclusions[index].value})")
+                                 f"({excluded.value})")
         return Decision(ev, "ask", index, "best_score_positive", policy)
     if not ev.candidates:
         why = "no_candidates"

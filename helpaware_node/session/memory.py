@@ -8,7 +8,7 @@ bound memory forgets nothing the limits count.
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Iterable
+from typing import Iterable, Optional
 
 from ..core import PersonRecord, SiteModel, note_ask, note_candidate
 from ..core.model import DecisionConfig
@@ -44,7 +44,7 @@ class PersonMemory:
         self._stale.discard(key)
         return rec
 
-    def held(self, key: str):
+    def held(self, key: str) -> Optional[PersonRecord]:
         """Return the record when held, its belief refolded if the model changed; else None.
 
         For displays, which must not load people from the store.

@@ -80,8 +80,8 @@ class StoreStatus:
                     f"disk space and that the file is writable)", throttle_s=5.0,
                     kind="store_refused")
 
-    def wrote(self, store) -> None:
-        """Return a write went through.
+    def wrote(self, store: object) -> None:
+        """Note that a write went through.
 
         Healthy again unless the store itself says otherwise (a damaged file moved aside at start
         stays an error).

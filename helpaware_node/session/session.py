@@ -20,12 +20,12 @@ Rules:
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Iterable, Optional, Sequence
+from typing import Any, Iterable, Optional, Sequence
 
 from ..core import (DecisionConfig, HelpNeed, PersonRecord, Result, SiteModel,
                     candidate_from_record, conclude, decide, keep_recent_asks)
 from ..core.model import CoreInputError
-from ..core.policy import HOUR_S, Chooser, choose_lookahead
+from ..core.policy import HOUR_S, Candidate, Chooser, Evaluation, choose_lookahead
 from ..core.preview import quoted
 from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
 from ..store.ids import refused_by_store
@@ -48,7 +48,7 @@ def nav_request_id(goal_id: str) -> str:
     return f"nav-{goal_id[:64]}"
 
 
-def _never(ev) -> None:
+def _never(ev: Evaluation) -> None:
     return None
 
 
@@ -94,7 +94,8 @@ class HelpSession:
         return [a.time_s for a in sorted(found.values(), key=lambda a: (a.time_s, a.event_id))]
 
     # ------------------------------------------------------------------ inputs
-    def people_seen(self, people: Iterable, now_s: float, frame_id: str = "",
+    # people: wire.SeenPerson or sim.world.SeenPerson (the same fields)
+    def people_seen(self, people: Iterable[Any], now_s: float, frame_id: str = "",
                     complete_view: bool = False) -> None:
         """People perceived at `now_s`.
 
@@ -219,7 +220,8 @@ class HelpSession:
         while len(self._goals) > MAX_GOALS_REMEMBERED:
             self._goals.pop(next(iter(self._goals)))
 
-    def outcome(self, request_id: str, person_id: str, result, now_s: float) -> Step:
+    def outcome(self, request_id: str, person_id: str, result: Result | str,
+                now_s: float) -> Step:
         """Return what happened to the pending ask of `request_id`; refused when there is none."""
         ask = self.pending.get(request_id)
         if ask is None:
@@ -228,7 +230,7 @@ class HelpSession:
             raise SessionInputError(f"person_id: the pending ask of {ask.request_id!r} "
                                     f"went to another person")
         try:
-            result = result if isinstance(result, Result) else Result.parse(result)
+            result = result if isinstance(result, Result) else Result.parse(str(result))
         except CoreInputError as exc:
             raise SessionInputError(str(exc)) from None
         del self.pending[request_id]
@@ -423,6 +425,7 @@ class HelpSession:
                                       config.max_asks_per_hour)
         ask = None
         if decision.action == "ask":
+            assert decision.person_index is not None   # an ask always names its person
             ask = self._store_ask(keys[decision.person_index], state.need, now_s, step)
             if ask is None:       # not stored, so not made: nobody is asked
                 decision = conclude(decision.evaluation, None, STORE_UNAVAILABLE)
@@ -433,6 +436,7 @@ class HelpSession:
                 self.memory.note_candidate(key, now_s)
         if ask is not None:
             i = decision.person_index
+            assert i is not None and decision.person_id is not None
             ev = decision.evaluation
             self.memory.note_ask(ask.person_key, now_s)
             self.robot_ask_times_s = list(robot_asks) + [now_s]
@@ -444,7 +448,7 @@ class HelpSession:
             step.share.append(ask)
         step.decisions.append(DecisionOut(decision, tuple(robot_asks), ask))
 
-    def _within_one_document(self, cands: list) -> Optional[list[int]]:
+    def _within_one_document(self, cands: list[Candidate]) -> Optional[list[int]]:
         """None when every candidate fits in one decision document.
 
         Else the indices (in order) of the nearest that do: at most wire.MAX_CANDIDATES, and within

@@ -63,7 +63,7 @@ class OpenNeed:
     asks: int = 0                 # asks made for it, before a restart included
     served: bool = False          # someone helped: no further decisions for it
     waiting_for_clock: bool = False
-    candidates: set = field(default_factory=set)   # person keys counted as its candidates
+    candidates: set[str] = field(default_factory=set)   # person keys counted as its candidates
 
 
 @dataclass

@@ -13,7 +13,7 @@ import hmac
 import math
 import os
 from dataclasses import dataclass
-from typing import Iterable, Optional, Protocol, Union
+from typing import Any, Iterable, Optional, Protocol, Union
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError
@@ -74,10 +74,10 @@ class LearnedEntry:
 
     revision: int              # 1, 2, ...: each change of the constants in force
     time_s: float              # the node's clock at the refit
-    constants: dict            # the learned SiteModel fields (and decline_aloud)
-    target: dict               # the parameter file's values it was shrunk towards, prior_weight
+    constants: dict[str, Any]  # the learned SiteModel fields (and decline_aloud)
+    target: dict[str, Any]     # the parameter file's values it was shrunk towards, prior_weight
     n_outcomes: int            # outcomes the refit used
-    verdict: dict              # ConvergenceVerdict.to_dict() of the refit
+    verdict: dict[str, Any]    # ConvergenceVerdict.to_dict() of the refit
     recorded_utc: str = ""     # wall-clock time it was stored
     robot_id: str = ""
 
@@ -89,10 +89,10 @@ class EventsReader:
     Callable, and picklable, so the refit can run in another thread or process.
     """
 
-    outcomes: tuple
-    asks: tuple
+    outcomes: tuple[StoredEvent, ...]
+    asks: tuple[AskEvent, ...]
 
-    def __call__(self) -> tuple[list, list]:
+    def __call__(self) -> tuple[list[StoredEvent], list[AskEvent]]:
         return list(self.outcomes), list(self.asks)
 
 
@@ -111,7 +111,13 @@ def check_learned(entry: LearnedEntry) -> None:
         raise CoreInputError(f"n_outcomes: {entry.n_outcomes!r} must be a whole number >= 0")
 
 
-def append_batch(store, events: Iterable[AnyEvent]) -> list[AnyEvent]:
+class _Appends(Protocol):
+    def append(self, event: StoredEvent) -> bool: ...
+
+    def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...
+
+
+def append_batch(store: _Appends, events: Iterable[AnyEvent]) -> list[AnyEvent]:
     """Store a mixed batch (a fleet delivery).
 
     Outcomes in one transaction, then asks in another; returns what was new. Both are idempotent,
@@ -122,7 +128,8 @@ def append_batch(store, events: Iterable[AnyEvent]) -> list[AnyEvent]:
     asks = [e for e in events if isinstance(e, AskEvent)]
     stored: list[AnyEvent] = []
     if outcomes:
-        stored += (store.append_many(outcomes) if hasattr(store, "append_many")
+        many = getattr(store, "append_many", None)   # one transaction where the store has it
+        stored += (many(outcomes) if many is not None
                    else [e for e in outcomes if store.append(e)])
     if asks:
         stored += store.append_asks(asks)
@@ -171,7 +178,8 @@ class MemoryStore:
         self._events: dict[str, StoredEvent] = {}
         self._by_key: dict[str, list[str]] = {}
         self._opted_out: set[str] = set()
-        self._folds: dict[str, tuple] = {}      # key -> (model, belief, last time, last order)
+        # key -> (model, belief, last time, last order)
+        self._folds: dict[str, tuple[Any, ...]] = {}
         self._asks: dict[str, AskEvent] = {}
         self._asks_by: dict[tuple[str, str], list[str]] = {}   # (field, value) -> ask ids
         self._learned: list[LearnedEntry] = []
@@ -211,8 +219,8 @@ class MemoryStore:
         if cached is not None and cached[0] == model and cached[4] == len(ids):
             return cached[1], cached[2]
         newest = self._events[ids[-1]] if ids else None
-        if (cached is not None and cached[0] == model and cached[4] == len(ids) - 1
-                and (newest.time_s, newest.event_id) > cached[3]):
+        if (cached is not None and newest is not None and cached[0] == model
+                and cached[4] == len(ids) - 1 and (newest.time_s, newest.event_id) > cached[3]):
             belief, last = fold_events([newest.to_outcome()], model, cached[1], cached[2])
         else:
             belief, last = fold_events([e.to_outcome() for e in self.events_for(key)], model)

@@ -26,7 +26,10 @@ import stat
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
+
+if TYPE_CHECKING:
+    from ..signing import KeyRing
 
 KEY_BYTES = 32
 KEY_FILE_NAME = "site_key"
@@ -97,7 +100,7 @@ def write_new_owner_only(path: Path, data: bytes) -> None:
         os.close(fd)
 
 
-def load_site_key(path: str | os.PathLike | None = None, create: bool = True) -> bytes:
+def load_site_key(path: str | os.PathLike[str] | None = None, create: bool = True) -> bytes:
     """Return the key that hashes person ids, from `path` (default under the ROS home).
 
     The file created if missing and allowed.
@@ -105,7 +108,7 @@ def load_site_key(path: str | os.PathLike | None = None, create: bool = True) ->
     return load_site_keys(path, create).person_id_key
 
 
-def load_site_keys(path: str | os.PathLike | None = None, create: bool = True) -> "SiteKeys":
+def load_site_keys(path: str | os.PathLike[str] | None = None, create: bool = True) -> "SiteKeys":
     """Every key of the site key file at `path` (see the module doc)."""
     p = Path(path) if path else default_key_path()
     return parse_site_key_file(read_key_file(p, create), str(p))
@@ -171,7 +174,7 @@ class SiteKeys:
         """Public name of the site: the start of the person-id key's fingerprint."""
         return key_fingerprint(self.person_id_key)[:16]
 
-    def key_ring(self):
+    def key_ring(self) -> "KeyRing":
         from ..signing import KeyRing, SigningKey
         previous = (SigningKey.derive(self.previous_signing_root)
                     if self.previous_signing_root is not None else None)
@@ -242,7 +245,7 @@ def site_key_file_text(keys: SiteKeys) -> bytes:
     return "".join(lines).encode("ascii")
 
 
-def rotate_signing_key(path: str | os.PathLike, window_s: float, now_s: float | None = None,
+def rotate_signing_key(path: str | os.PathLike[str], window_s: float, now_s: float | None = None,
                        force: bool = False) -> SiteKeys:
     """Give the site a new signing root; the current one stays accepted for `window_s`.
 

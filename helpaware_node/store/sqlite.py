@@ -27,7 +27,7 @@ import threading
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterable, Iterator
+from typing import Any, Iterable, Iterator, Optional, Sequence
 
 from ..core import Belief, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
@@ -51,15 +51,15 @@ def model_hash(model: SiteModel) -> str:
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
-def row_to_ask(row) -> AskEvent:
+def row_to_ask(row: Sequence[Any]) -> AskEvent:
     return AskEvent(row[0], row[2], row[3], row[4], row[5])
 
 
-def row_to_event(row) -> StoredEvent:
+def row_to_event(row: Sequence[Any]) -> StoredEvent:
     return StoredEvent(row[0], row[1], row[2], Result(row[5]), row[3], row[4], row[6])
 
 
-def event_to_row(e: StoredEvent) -> tuple:
+def event_to_row(e: StoredEvent) -> tuple[Any, ...]:
     result = e.result.value if isinstance(e.result, Result) else Result.parse(e.result).value
     return (e.event_id, e.person_key, float(e.time_s), float(e.busyness), float(e.ask_load),
             result, e.request_kind or "")
@@ -108,7 +108,7 @@ class SqliteReader:
 class SqliteStore:
     """BeliefStore on one SQLite file (see the module doc and docs/store.md)."""
 
-    def __init__(self, path: str | os.PathLike, robot_id: str, site_key: bytes | SiteKeys,
+    def __init__(self, path: str | os.PathLike[str], robot_id: str, site_key: bytes | SiteKeys,
                  model: SiteModel | None = None, retention_days: float = 0.0,
                  integrity_check: bool = True) -> None:
         check_robot_id(robot_id)
@@ -244,7 +244,7 @@ class SqliteStore:
                     c.execute("ROLLBACK")
                 raise
 
-    def _append_in_tx(self, event: StoredEvent, row: tuple,
+    def _append_in_tx(self, event: StoredEvent, row: tuple[Any, ...],
                       refold_later: set[str] | None = None) -> bool:
         """Insert one event inside the open transaction and keep its snapshot the fold.
 
@@ -314,7 +314,7 @@ class SqliteStore:
             return stored
 
     @contextlib.contextmanager
-    def _batch(self):
+    def _batch(self) -> Iterator[sqlite3.Connection]:
         """One durable transaction for a batch: all of it, or nothing and the sequence back."""
         with self._lock:
             c = self._conn
@@ -329,12 +329,13 @@ class SqliteStore:
                 self._next_seq = next_seq       # nothing of the batch was stored
                 raise
 
-    def _events(self, c, key: str) -> list[StoredEvent]:
+    def _events(self, c: sqlite3.Connection, key: str) -> list[StoredEvent]:
         return [row_to_event(r) for r in c.execute(
             f"SELECT {EVENT_COLUMNS} FROM events WHERE person_key = ? ORDER BY time_s, event_id",
             (key,))]
 
-    def _fold(self, c, key: str, model: SiteModel):
+    def _fold(self, c: sqlite3.Connection, key: str,
+              model: SiteModel) -> tuple[Belief, Optional[float], Optional[str], int]:
         """(belief, last time, last event id, count) refolded from the base and the events."""
         base = c.execute("SELECT base_a, base_b, base_time_s, base_event_id, base_count "
                          "FROM snapshot WHERE person_key = ?", (key,)).fetchone()
@@ -346,7 +347,7 @@ class SqliteStore:
         last_id = max(((e.time_s, e.event_id) for e in events), default=(None, start_id))[1]
         return belief, last, last_id, count + len(events)
 
-    def _refold(self, c, key: str) -> None:
+    def _refold(self, c: sqlite3.Connection, key: str) -> None:
         belief, last, last_id, count = self._fold(c, key, self.model)
         c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
                   "event_count, model_hash) VALUES (?,?,?,?,?,?,?) ON CONFLICT(person_key) DO "
@@ -355,7 +356,7 @@ class SqliteStore:
                   " model_hash = excluded.model_hash",
                   (key, belief.a, belief.b, last, last_id, count, self._model_hash))
 
-    def _rebuild_all(self, conn) -> None:
+    def _rebuild_all(self, conn: sqlite3.Connection) -> None:
         conn.execute("BEGIN IMMEDIATE")
         try:
             for (key,) in conn.execute("SELECT DISTINCT person_key FROM events").fetchall():
@@ -492,7 +493,7 @@ class SqliteStore:
                 self.checkpoint()
         return removed
 
-    def _compact_key(self, c, key: str, cutoff: float) -> int:
+    def _compact_key(self, c: sqlite3.Connection, key: str, cutoff: float) -> int:
         snap = c.execute("SELECT model_hash FROM snapshot WHERE person_key = ?",
                          (key,)).fetchone()
         if snap is None or snap[0] != self._model_hash:
@@ -514,7 +515,9 @@ class SqliteStore:
     # -- admin -------------------------------------------------------------------------
     def counts(self) -> dict[str, int | str]:
         with self._lock:
-            q = lambda sql: self._conn.execute(sql).fetchone()[0]   # noqa: E731
+            def q(sql: str) -> int:
+                return int(self._conn.execute(sql).fetchone()[0])
+
             return {
                 "schema_version": file_version(self._conn),
                 "events": q("SELECT count(*) FROM events"),
@@ -534,7 +537,7 @@ class SqliteStore:
             ids |= {r[0] for r in self._conn.execute("SELECT DISTINCT robot_id FROM asks")}
         return sorted(ids)
 
-    def _in_order(self, table: str, columns: str) -> list:
+    def _in_order(self, table: str, columns: str) -> list[Any]:
         with self._lock:
             return self._conn.execute(f"SELECT {columns} FROM {table} "
                                       "ORDER BY time_s, event_id").fetchall()
@@ -577,7 +580,7 @@ class SqliteStore:
                     self._note_own_sequence(c, a.event_id)
             return stored
 
-    def _note_own_sequence(self, c, event_id: str) -> None:
+    def _note_own_sequence(self, c: sqlite3.Connection, event_id: str) -> None:
         robot, _, seq = event_id.rpartition("/")
         if robot == self.robot_id and seq.isdigit():
             c.execute("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
@@ -592,7 +595,8 @@ class SqliteStore:
 
         The newest `limit` of them, in (time, event id) order.
         """
-        where, args = [], []
+        where: list[str] = []
+        args: list[str | float] = []
         for column, value in (("person_key", person_key), ("robot_id", robot_id),
                               ("request_id", request_id)):
             if value is not None:
@@ -712,4 +716,5 @@ class SqliteStore:
                 except sqlite3.Error:
                     pass
                 self._conn.close()
-                self._conn = None
+                # closed for good: any later use fails at once on None
+                self._conn = None  # type: ignore[assignment]
