@@ -84,6 +84,7 @@ class BagSource:
             self._open_reason = f"damaged MCAP file ({exc})"
             self.info.salvaged = True
             return
+        assert self._reader is not None   # opened above
         for conn in self._reader.connections:
             self.info.topics.setdefault(conn.topic, conn.msgtype)
             self.info.counts[conn.topic] = self.info.counts.get(conn.topic, 0) + conn.msgcount
@@ -132,13 +133,15 @@ class BagSource:
         a failure part-way is kept in `self.error` with how far the reading got, instead of ending
         the caller.
         """
-        conns = [c for c in self._reader.connections if topics is None or c.topic in topics]
+        reader = self._reader
+        assert reader is not None   # messages() salvages a bag without one
+        conns = [c for c in reader.connections if topics is None or c.topic in topics]
         if not conns:
             return
         count = 0
         last = None
         try:
-            for conn, t_ns, data in self._reader.messages(connections=conns):
+            for conn, t_ns, data in reader.messages(connections=conns):
                 count += 1
                 last = t_ns
                 yield conn, t_ns, data

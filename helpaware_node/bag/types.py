@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 import struct
-from typing import Optional
+from typing import Literal, Optional
 
 from rosbags.typesys import Stores, get_typestore
 
@@ -11,7 +11,7 @@ MARKER_ARRAY_TYPE = "visualization_msgs/msg/MarkerArray"
 DIAGNOSTIC_ARRAY_TYPE = "diagnostic_msgs/msg/DiagnosticArray"
 GOAL_STATUS_ARRAY_TYPE = "action_msgs/msg/GoalStatusArray"
 KNOWN_TYPES = (STRING_TYPE, MARKER_ARRAY_TYPE, DIAGNOSTIC_ARRAY_TYPE, GOAL_STATUS_ARRAY_TYPE)
-BAG_FORMAT_VERSION = 9
+BAG_FORMAT_VERSION: Literal[9] = 9
 
 _TYPESTORE = None
 

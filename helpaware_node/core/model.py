@@ -168,6 +168,7 @@ if TYPE_CHECKING:
     from _typeshed import DataclassInstance
 _T = TypeVar("_T", bound="DataclassInstance")
 
+
 class _FrozenDict(dict[str, float]):
     """A read-only dict, so a DecisionConfig's continue costs cannot change under it."""
 

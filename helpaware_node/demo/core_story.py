@@ -72,6 +72,8 @@ def run(seed: int = 7, out=print) -> list[dict]:
                          rows, [False] + [True] * 9 + [False]))
         result = None
         if decision.action == "ask":
+            # an ask names its person
+            assert decision.person_id is not None and decision.person_index is not None
             pid = decision.person_id
             i = decision.person_index
             ev = decision.evaluation

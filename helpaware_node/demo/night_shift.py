@@ -23,6 +23,7 @@ import random
 import sys
 import time
 from dataclasses import dataclass
+from typing import Any
 
 ACTIVITIES = {  # activity -> (busyness range, share of sightings)
     "idle": ((0.0, 0.15), 0.20),
@@ -188,7 +189,8 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         t += rng.uniform(120.0, 600.0)                       # 2 to 10 minutes between needs
         ward = rng.randint(1, 6)
         local = [s for s in staff if s.ward == ward] + rng.sample(staff, 4)
-        view, seen = [], set()
+        view: list[dict[str, Any]] = []
+        seen = set()
         for s in rng.sample(local, min(len(local), rng.randint(1, 5))):
             if s.person_id in seen:
                 continue
@@ -257,7 +259,7 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         out(f"{s.name:10}  {s.role:7}  {s.asked:5}  {s.helped:6}  {s.willingness:10.2f}  "
             f"{learned}")
     out("(learned mean: the node's belief at the last decision that person was part of)")
-    if last_params:
+    if last_params and first_params:
         out("")
         out(f"site constants at the start: {constants_line(first_params)}")
         out(f"site constants at the end:   {constants_line(last_params)}")

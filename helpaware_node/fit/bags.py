@@ -28,8 +28,9 @@ def read_outcome_bags(paths) -> OutcomeData:
         asked = {}
         for d in bag.decisions:
             if d.action == "ask" and d.person_key:
-                history = next((c.get("ask_times_s", []) for c in d.document.get("candidates", [])
-                                if c.get("person_id") == d.person_key), [])
+                rows = d.document.get("candidates", [])
+                history: list[float] = next((c.get("ask_times_s", []) for c in rows
+                                             if c.get("person_id") == d.person_key), [])
                 stamp = float(d.document.get("stamp_s", d.time_s))
                 for cand in d.candidates:
                     if cand.get("person_id") == d.person_key:

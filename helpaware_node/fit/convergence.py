@@ -132,7 +132,8 @@ def assess_convergence(coords: Sequence[Coordinate], z: np.ndarray, loglik: floa
         return verdict(False, "the log-likelihood or its gradient is not finite at the solution "
                        f"(log-likelihood {loglik!r}): check the data for impossible rows",
                        "not_finite")
-    held, free = [], []
+    held: list[int] = []
+    free: list[int] = []
     for i, c in enumerate(coords):
         at_low, at_high = z[i] <= c.low, z[i] >= c.high
         outward = (at_low and g[i] <= 0.0) or (at_high and g[i] >= 0.0)
@@ -241,7 +242,7 @@ class IterationLog:
 
 
 def hessian_by_differences(grad: Callable[[np.ndarray], np.ndarray], z: np.ndarray,
-                           idx: Sequence[int], h: float = 1e-4,
+                           idx: Sequence[int] | np.ndarray, h: float = 1e-4,
                            lower: np.ndarray | None = None,
                            upper: np.ndarray | None = None, central: bool = True,
                            grad_at_z: np.ndarray | None = None) -> np.ndarray:

@@ -16,9 +16,10 @@ import contextlib
 import csv
 import math
 from dataclasses import dataclass
-from typing import Iterable, Sequence
+from typing import Any, Iterable, Sequence
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..core.context import ask_load as core_ask_load
 from ..core.model import MAX_ASKS_CAP, CoreInputError
@@ -157,7 +158,9 @@ class OutcomeData:
     def weighted_counts(self) -> tuple[float, float, float]:
         """Return (helped, declined, no response), each row counted with its person's weight."""
         w = np.ones(self.n_outcomes) if self.weight is None else self.weight[self.person]
-        return tuple(float(np.sum(w[self.result == r])) for r in (HELPED, DECLINED, NO_RESPONSE))
+        helped, declined, no_response = (float(np.sum(w[self.result == r]))
+                                         for r in (HELPED, DECLINED, NO_RESPONSE))
+        return helped, declined, no_response
 
     def subset_people(self, people: np.ndarray) -> "OutcomeData":
         """Return the outcomes of the given person indices (renumbered 0..len-1)."""
@@ -174,7 +177,7 @@ class OutcomeData:
                            self.sources, asks, weight)
 
 
-def from_arrays(person: Sequence, busyness: Sequence, load: Sequence, result: Sequence,
+def from_arrays(person: Iterable[Any], busyness: ArrayLike, load: ArrayLike, result: ArrayLike,
                 person_keys: Sequence[str] | None = None, sources: Sequence[str] = (),
                 prior_asks: AskAges | None = None, weight: Sequence[float] | None = None
                 ) -> OutcomeData:
@@ -267,8 +270,8 @@ def _long_fields():
 
 def _read_rows(path: str, records: "_Records", asks: list) -> list:
     """Outcome rows of one file; its ask rows (person_key, time_s) go to `asks`."""
-    records = iter(records)
-    first = next(records, None)
+    it = iter(records)
+    first = next(it, None)
     if first is None:
         raise FitInputError(f"{path}: no header line (expected columns "
                             f"{', '.join(REQUIRED_COLUMNS)}, ...)")
@@ -278,7 +281,7 @@ def _read_rows(path: str, records: "_Records", asks: list) -> list:
         raise FitInputError(f"{path}:{header_line}: missing column(s) {', '.join(missing)}")
     col = {h: i for i, h in enumerate(header)}
     rows = []
-    for line, fields in records:
+    for line, fields in it:
         if len(fields) != len(header):
             raise FitInputError(f"{path}:{line}: {len(fields)} fields, header has "
                                 f"{len(header)}")

@@ -240,7 +240,8 @@ class RefitJob:
         except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
             return refused(f"refit failed: {type(exc).__name__}: {str(exc)[:120]}")
         if not fit.converged:
-            return refused(f"not converged: {fit.verdict.reason}", fit.verdict, data.n_people)
+            return refused(f"not converged: {fit.reason}", fit.verdict, data.n_people)
+        assert fit.verdict is not None   # converged: a verdict said so
         values = {}
         for k in LEARNED:
             v = getattr(fit.params, k)
@@ -266,7 +267,8 @@ class SiteLearner:
                  ranges: Optional[Mapping[str, tuple[float, float]]] = None,
                  resume: Optional[LearnedEntry] = None) -> None:
         self.settings = settings
-        self.ranges = {k: tuple(v) for k, v in (ranges or MODEL_RANGES).items() if k in LEARNED}
+        self.ranges = {k: (float(v[0]), float(v[1])) for k, v in (ranges or MODEL_RANGES).items()
+                       if k in LEARNED}
         for k, v in MODEL_RANGES.items():
             self.ranges.setdefault(k, v)
         self._lock = threading.Lock()

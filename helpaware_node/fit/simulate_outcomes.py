@@ -67,6 +67,7 @@ def simulate_with_asks(params: SiteParams, n_people: int, asks_per_person: float
     data is what a robot with `robot_half_life_s` would have computed (a wrong half-life, to
     show it is not used when the half-life is fitted).
     """
+    assert params.ask_memory_half_life_s is not None, "simulate with a half-life"
     h = float(params.ask_memory_half_life_s)
     rng = np.random.default_rng(seed)
     counts = 1 + rng.poisson(max(asks_per_person - 1.0, 0.0), size=n_people)

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import Sequence
+from typing import Any, Callable, Sequence
 
 import numpy as np
 from scipy import optimize, stats
@@ -46,17 +46,18 @@ MIN_SPREAD = 1e-9                 # a covariate with less spread than this is "c
 BOUND_SLACK = 1e-8                # this close to a box bound counts as at it
 LOGIT_AT_LIMIT = 14.0             # |logit| beyond this: a probability within 1e-6 of 0 or 1
 BOUNDS = (LOG_AB_BOUNDS, LOG_AB_BOUNDS, (0.0, K_MAX), (0.0, K_MAX), LOGIT_BOUNDS, LOGIT_BOUNDS,
-          tuple(math.log(v) for v in HALF_LIFE_BOUNDS_S))
+          (math.log(HALF_LIFE_BOUNDS_S[0]), math.log(HALF_LIFE_BOUNDS_S[1])))
 PRIOR_HINTS = {"low_hint": "people look as if each always or never helps: collect more asks "
                            "per person, or set prior_a and prior_b by hand",
                "high_hint": "willingness shows no spread across people that the data can "
                             "measure: collect more asks per person, or set prior_a and prior_b "
                             "by hand"}
 K_HINT = "help practically stops as this covariate rises: check its scale in the data, or fix it"
-H_HINTS = {"low_hint": "asks seem to weigh on people for no time at all: fix "
-                       "ask_memory_half_life_s, or fix k_load at 0",
-           "high_hint": "asks seem to weigh on people for longer than the search range: fix "
-                        "ask_memory_half_life_s at the longest memory you believe"}
+H_HINTS: dict[str, Any] = {
+    "low_hint": "asks seem to weigh on people for no time at all: fix ask_memory_half_life_s, "
+                "or fix k_load at 0",
+    "high_hint": "asks seem to weigh on people for longer than the search range: fix "
+                 "ask_memory_half_life_s at the longest memory you believe"}
 
 
 def theta_bounds(ranges: dict | None = None) -> list[tuple[float, float]]:
@@ -66,8 +67,8 @@ def theta_bounds(ranges: dict | None = None) -> list[tuple[float, float]]:
     ranges), never widened.
     """
     out = list(BOUNDS)
-    to_z = {0: math.log, 1: math.log, 2: float, 3: float, 4: _logit_safe, 5: _logit_safe,
-            6: math.log}
+    to_z: dict[int, Callable[[float], float]] = {
+        0: math.log, 1: math.log, 2: float, 3: float, 4: _logit_safe, 5: _logit_safe, 6: math.log}
     for name, (low, high) in (ranges or {}).items():
         if name not in NAMES:
             continue
@@ -221,6 +222,11 @@ class SiteFit:
     @property
     def converged(self) -> bool:
         return self.verdict is not None and self.verdict.converged
+
+    @property
+    def reason(self) -> str:
+        """Why the fit stopped: the verdict's words, or "no convergence verdict" without one."""
+        return self.verdict.reason if self.verdict is not None else "no convergence verdict"
 
 
 def moments_start(data: OutcomeData) -> tuple[float, float]:

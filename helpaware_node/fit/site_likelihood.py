@@ -144,7 +144,7 @@ class SiteParams:
         """Return nu = tau + q (1 - tau), the chance an ask is seen (1 without no-responses)."""
         return self.decline_aloud + self.notice_probability * (1.0 - self.decline_aloud)
 
-    def as_tuple(self) -> tuple[float, ...]:
+    def as_tuple(self) -> tuple[float | None, ...]:
         return (self.prior_a, self.prior_b, self.k_busy, self.k_load,
                 self.notice_probability, self.decline_aloud, self.ask_memory_half_life_s)
 
@@ -219,7 +219,7 @@ class SiteLikelihood:
             s = np.add.reduceat(logf, b.starts, axis=0) + logw[None, :]
             lli = logsumexp(s, axis=1)
             ll[b.people] = lli
-            if want_grad:
+            if grad is not None:
                 post = np.exp(s - lli[:, None])          # posterior weights per person
                 rowpost = post[b.local_person]
                 for k, part in enumerate(parts):

@@ -122,6 +122,7 @@ def write_sample_bag(path: str, needs: int = 40, people: int = 12, seed: int = 3
                 asks_made += 1
                 i = decision.person_index
                 ev = decision.evaluation
+                assert decision.person_id is not None   # an ask names its person
                 hk = decision.person_id
                 raw = next(p for p in staff if key[p] == hk)
                 records[hk] = note_ask(records[hk], now, model)

@@ -74,7 +74,7 @@ def summarise(data: ReviewData, pending_timeout: Optional[float] = None) -> dict
     brier, ll = brier_score(p, y), log_loss(p, y)
     limits = Counter(c["excluded"] for d in data.decisions for c in d.candidates
                      if c.get("excluded"))
-    limit_decisions = Counter()
+    limit_decisions: Counter[str] = Counter()
     for d in data.decisions:
         for code in {c["excluded"] for c in d.candidates if c.get("excluded")}:
             limit_decisions[code] += 1

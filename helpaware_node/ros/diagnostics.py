@@ -9,7 +9,7 @@ node reports (inputs, fleet and privacy topics, session, store, parameters) in o
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import Any, Mapping
 
 from diagnostic_msgs.msg import DiagnosticArray, DiagnosticStatus, KeyValue
 
@@ -155,7 +155,7 @@ class WatchedInputs:
     meanwhile.
     """
 
-    def __init__(self, subscriptions: Mapping[str, object], logger, start_s: float) -> None:
+    def __init__(self, subscriptions: Mapping[str, Any], logger, start_s: float) -> None:
         self._subscriptions = dict(subscriptions)
         self._logger = logger
         self.watch = InputWatch(self._subscriptions, start_s)

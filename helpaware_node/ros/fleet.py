@@ -39,7 +39,7 @@ from rclpy.clock import Clock, ClockType
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
-from ..core import CoreInputError, Result
+from ..core import CoreInputError, Result, SiteModel
 from ..fleet_documents import (MALFORMED, OLD_FORMAT, PRIVACY_KINDS, PrivacyAct,
                                decode_document, encode_document)
 from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
@@ -134,8 +134,8 @@ class FleetLink(CountsRefusals):
                  topic: str = FLEET_TOPIC, depth: int = FLEET_HISTORY_DEPTH,
                  replay: bool = True, append: Optional[Callable[[StoredEvent], bool]] = None,
                  on_forgotten: Optional[Callable[[str], None]] = None,
-                 append_many: Optional[Callable[[list[StoredEvent]],
-                                                list[StoredEvent]]] = None,
+                 append_many: Optional[Callable[[list[AnyEvent]],
+                                                list[AnyEvent]]] = None,
                  keys: Optional[KeyRing] = None,
                  clock: Callable[[], float] = time.time) -> None:
         self._node = node
@@ -278,15 +278,16 @@ class FleetLink(CountsRefusals):
             self._on_forgotten(key)
         return n
 
-    def diagnostic_values(self) -> dict:
+    def diagnostic_values(self) -> dict[str, object]:
         """Return what /diagnostics shows of the link: queue, refusals by reason, keys in force."""
         p, k = DIAGNOSTICS_PREFIX, self._keys
-        values = {f"{p}.queued": self.queued_count, f"{p}.dropped": self.dropped_count,
-                  f"{p}.store_failures": self.store_failures,
-                  f"{p}.dropped_bad_events": self.dropped_bad_events,
-                  f"{p}.not_reoffered": self.not_reoffered,
-                  f"{p}.merge_errors": self.tick_errors,
-                  f"{p}.privacy_acts_applied": self.acts_applied}
+        values: dict[str, object] = {f"{p}.queued": self.queued_count,
+                                     f"{p}.dropped": self.dropped_count,
+                                     f"{p}.store_failures": self.store_failures,
+                                     f"{p}.dropped_bad_events": self.dropped_bad_events,
+                                     f"{p}.not_reoffered": self.not_reoffered,
+                                     f"{p}.merge_errors": self.tick_errors,
+                                     f"{p}.privacy_acts_applied": self.acts_applied}
         values.update({f"{p}.refused.{r}": self.refusals[r] for r in REFUSAL_REASONS})
         values.update({"fleet.topic": self.topic, "fleet.site_id": k.site_id,
                        "fleet.key_id": k.current.key_id,
@@ -413,13 +414,15 @@ class FleetLink(CountsRefusals):
         if whole is not None:
             return self._isolated(whole, events)
         stored: list[AnyEvent] = []
+        append = self._append
+        assert append is not None   # else `whole` took the batch
         deadline_s = time.monotonic() + MERGE_TICK_BUDGET_S
         for i, e in enumerate(events):
             if i and time.monotonic() > deadline_s:
                 return stored, events[i:], None
             try:
                 new = (bool(self._store.append_asks([e])) if isinstance(e, AskEvent)
-                       else self._append(e))
+                       else append(e))
                 if new:
                     stored.append(e)
             except Exception as exc:
@@ -490,7 +493,12 @@ def run_peer(argv: list[str] | None = None) -> int:
 
     rclpy.init()
     node = rclpy.create_node(f"fleet_peer_{args.robot_id}")
-    link = FleetLink(node, store, lambda evs: [say(f"merged {e.event_id}") for e in evs],
+
+    def merged(evs: list[AnyEvent]) -> None:
+        for e in evs:
+            say(f"merged {e.event_id}")
+
+    link = FleetLink(node, store, merged,
                      depth=args.depth, topic=args.topic)
     executor = SingleThreadedExecutor()
     executor.add_node(node)
@@ -511,7 +519,7 @@ def run_peer(argv: list[str] | None = None) -> int:
                     link.publish(e)
                 say(f"ack {e.event_id}")
             elif parts[0] == "belief":
-                b, _ = store.belief(store.key_for(parts[1]))
+                b, _ = store.belief(store.key_for(parts[1]), SiteModel())   # open_store's model
                 say(f"belief {b.a!r} {b.b!r}")
             elif parts[0] == "counts":
                 say(f"counts merged={link.merged_count} refused={link.refused_count} "

@@ -13,7 +13,7 @@ import signal
 import subprocess
 import sys
 from dataclasses import dataclass, field
-from typing import Mapping, Optional, Sequence
+from typing import Any, Mapping, Optional, Sequence
 
 from .. import package_data
 
@@ -167,9 +167,10 @@ class NodeSpec:
         parameters: list = [self.params_file] if self.params_file else []
         if self.overrides:
             parameters.append(dict(self.overrides))
-        kwargs = {"package": PACKAGE, "executable": self.executable, "name": self.name,
-                  "namespace": self.fully_qualified_namespace or None, "parameters": parameters,
-                  "remappings": list(self.remaps)}
+        kwargs: dict[str, Any] = {
+            "package": PACKAGE, "executable": self.executable, "name": self.name,
+            "namespace": self.fully_qualified_namespace or None, "parameters": parameters,
+            "remappings": list(self.remaps)}
         if self.respawn:
             kwargs.update(respawn=True, respawn_delay=self.respawn_delay_s)
         profile = profile_environment(os.environ)   # launch's environment, which nodes inherit

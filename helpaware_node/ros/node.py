@@ -22,11 +22,11 @@ from __future__ import annotations
 import re
 import sys
 import time
-from typing import Optional
+from typing import Any, Optional
 
 import rclpy
 from rclpy._rclpy_pybind11 import RCLError
-from rclpy.clock import Clock, ClockType
+from rclpy.clock import Clock, ClockType, ROSClock
 from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
 from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
@@ -38,6 +38,7 @@ from ..core.model import CoreInputError
 from ..session import HelpSession, Step, StoreStatus
 from ..session.state import MAX_GOAL_STATUSES
 from ..store import default_store_path, open_store
+from ..store.base import BeliefStore
 from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
 from .markers import PersonMarkers
@@ -70,8 +71,8 @@ class HelpAwareNode(LifecycleNode):
             super().__init__(node_name, **kwargs)
         except rclpy.exceptions.ParameterException as exc:   # e.g. use_sim_time: 1 in a file
             raise StartupError(f"parameters refused: {exc}") from exc
-        self.store = None
-        self.session: Optional[HelpSession] = None   # made at configure, with the store
+        self.store: Optional[BeliefStore] = None
+        self._session: Optional[HelpSession] = None   # made at configure, with the store
         self.held: Optional[HeldOutcomes] = None
         self.learning: Optional[NodeLearning] = None  # site learning, made at configure
         try:
@@ -85,7 +86,7 @@ class HelpAwareNode(LifecycleNode):
         self.side_refusals = diag.SideRefusals()
         self.log_lines = LogThrottle()      # per-document lines: by kind, bounded (diagnostics)
         self._active = False
-        self._entities = []
+        self._entities: list[Any] = []   # timers, publishers, subscriptions
         self._configure_error = ""
         if self.params.settings.autostart:
             self.trigger_configure()
@@ -97,6 +98,16 @@ class HelpAwareNode(LifecycleNode):
                                    f"managed node, autostart:=false, would stay unconfigured "
                                    f"for its manager instead)")
             self.trigger_activate()
+
+    @property
+    def session(self) -> HelpSession:
+        """Return the help session.
+
+        Made at configure (every callback that uses it starts there).
+        """
+        if self._session is None:
+            raise RuntimeError("the node is not configured yet: it has no help session")
+        return self._session
 
     @property
     def _store_file(self) -> str:
@@ -118,9 +129,9 @@ class HelpAwareNode(LifecycleNode):
                                                  self._store_file), self.get_name())
             self.store.use_model(self.model_in_force)
             # the asks made before this start (own of the last hour) are loaded here
-            self.session = HelpSession(self.store, self.model_in_force, self.params.config,
-                                       s.session_rules(), now_s=self.now_s(), writer=self.held,
-                                       status=status)
+            self._session = HelpSession(self.store, self.model_in_force, self.params.config,
+                                        s.session_rules(), now_s=self.now_s(), writer=self.held,
+                                        status=status)
             self.session.active = False
         except Exception as exc:  # an unreadable store must not start a node that forgets
             self._configure_error = f"{label} could not open: {exc}"
@@ -234,10 +245,11 @@ class HelpAwareNode(LifecycleNode):
 
     def destroy_node(self) -> None:
         # getattr: destroy_node also runs for a node whose parameters were refused
-        if getattr(self, "held", None) is not None:
-            self.held.report_at_stop()
-        if getattr(self, "store", None) is not None:
-            self.store.close()
+        held, store = getattr(self, "held", None), getattr(self, "store", None)
+        if held is not None:
+            held.report_at_stop()
+        if store is not None:
+            store.close()
             self.store = None
         super().destroy_node()
 
@@ -252,7 +264,9 @@ class HelpAwareNode(LifecycleNode):
         session (sim time is the truth and is not followed).
         """
         now = self.now_s()
-        steady = None if self.get_clock().ros_time_is_active else time.monotonic()
+        clock = self.get_clock()
+        sim_time = isinstance(clock, ROSClock) and clock.ros_time_is_active
+        steady = None if sim_time else time.monotonic()
         self._apply(self.session.clock(now, steady))
         return now
 
@@ -299,12 +313,12 @@ class HelpAwareNode(LifecycleNode):
         self.get_logger().warning(f"incompatible QoS: {event}", throttle_duration_sec=5.0)
 
     def _on_parameters_changed(self) -> None:
-        if getattr(self, "learning", None) is not None:
+        learning = getattr(self, "learning", None)
+        if learning is not None:
             # the parameter values are the shrinkage target; a changed mode may put the file's
             # values back in force (off, propose) or the learned ones (apply)
-            self.learning.set_parameters(self.params.model,
-                                         self.params.settings.learning_settings())
-        if getattr(self, "session", None) is not None:
+            learning.set_parameters(self.params.model, self.params.settings.learning_settings())
+        if getattr(self, "_session", None) is not None:
             self._use_model(self.model_in_force)
 
     def _use_model(self, model) -> None:
@@ -418,6 +432,7 @@ class HelpAwareNode(LifecycleNode):
 
     def _housekeeping(self) -> None:
         try:
+            assert self.held is not None and self.learning is not None   # made at configure
             self.held.retry()
             now = self._read_clock()
             learned = self.learning.poll(now)      # a refit finished in its worker: in force now
@@ -443,8 +458,9 @@ class HelpAwareNode(LifecycleNode):
                    + self.side_refusals.new_since_tick(self))
         level, message = diag.level_for(new_rej, self.counters.qos_incompatible,
                                         self.session.status.ok)
-        if self.held.waiting:
-            message = (f"store refuses writes: asking paused, {self.held.waiting} outcome(s) "
+        waiting = self.held.waiting if self.held is not None else 0
+        if waiting:
+            message = (f"store refuses writes: asking paused, {waiting} outcome(s) "
                        f"held in memory ({self.session.status.error})")[:250]
         level, message = self.input_watch.report(   # the input watchdog: silent topics
             time.monotonic(), diag.silence_limits_s(self.params.settings), values, level, message)

@@ -261,7 +261,7 @@ def build(values: dict[str, Any], pairs: bool = True
         raise CoreInputError(f"privacy_topic: must differ from fleet_topic "
                              f"({node_values['fleet_topic']!r})")
     for s in NODE_PARAMS:
-        if s.low is not None and s.name in node_values:
+        if s.low is not None and s.high is not None and s.name in node_values:
             v = node_values[s.name]
             if not (isinstance(v, (int, float)) and math.isfinite(v) and s.low <= v <= s.high):
                 raise CoreInputError(f"{s.name}: {v!r} is outside the allowed range "
@@ -306,7 +306,9 @@ class NodeParameters:
             if spec.name == KINDS_PARAM:
                 continue
             desc = ParameterDescriptor(description=_describe(spec), read_only=spec.read_only)
-            if spec.type_name == "double":
+            if spec.low is None or spec.high is None:
+                pass   # no range to declare
+            elif spec.type_name == "double":
                 desc.floating_point_range = [FloatingPointRange(
                     from_value=float(spec.low), to_value=float(spec.high), step=0.0)]
             elif spec.type_name == "integer":

@@ -102,8 +102,9 @@ class PrivacyRequests(CountsRefusals):
         else:
             self._store.forget(key)
 
-    def diagnostic_values(self) -> dict:
-        values = {f"privacy_request.refused.{r}": self.refusals[r] for r in PRIVACY_REFUSALS}
+    def diagnostic_values(self) -> dict[str, object]:
+        values: dict[str, object] = {f"privacy_request.refused.{r}": self.refusals[r]
+                                     for r in PRIVACY_REFUSALS}
         values.update({"privacy_request.applied": self.applied_count,
                        "privacy_request.duplicates": self.duplicate_count,
                        "privacy_request.store_failures": self.store_failures,

@@ -379,7 +379,7 @@ def stale_port_names(shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> set
     every process this user may read.
     """
     prefix = f"{shm_dir}/fastdds_port"
-    names = set()
+    names: set[str] = set()
     try:
         pids = [p for p in os.listdir(proc) if p.isdigit()]
     except OSError:
@@ -439,7 +439,7 @@ def _lock_if_same(path: Path, ident: Optional[dict]) -> Optional[int]:
     participant taking the port meanwhile.
     """
     opened = _open_lock_file(path) if ident is not None else None
-    if opened is None:
+    if opened is None or ident is None:
         return None               # not recorded, or someone made it first: theirs, not ours
     fd, made = opened
     try:

@@ -49,7 +49,7 @@ class NodeLearning:
         self.proposal_file, self.node_name = proposal_file, node_name
         resume = store.latest_learned() if hasattr(store, "latest_learned") else None
         self.learner = SiteLearner(file_model, settings, ranges, resume)
-        self._worker = None        # RefitWorker (a process), made at the first refit
+        self._worker: Optional[RefitWorker] = None   # a process, made at the first refit
         self._pool: Optional[concurrent.futures.ThreadPoolExecutor] = None   # if no process
         self._future: Optional[concurrent.futures.Future] = None
         self.refits = 0           # finished refit attempts
@@ -141,6 +141,7 @@ class NodeLearning:
                 return None
             future, self._future = self._future, None
             return future.result()
+        assert self._worker is not None   # busy: a thread's future or a worker process
         reply = self._worker.poll()
         if reply is None:
             return None

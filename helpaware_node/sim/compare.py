@@ -67,7 +67,7 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
     worlds = [build_world(sc, first_seed + s, ask_draws=draws) for s in range(seeds)]
     total = sum(len(w.needs) for w in worlds) * len(policies)
     bar = ProgressBar(total, f"simulate {sc.name}", enabled=progress)
-    runs = {p: [] for p in policies}
+    runs: dict[str, list[Any]] = {p: [] for p in policies}
     for w in worlds:
         for p in policies:
             if p == "learning":

@@ -148,6 +148,7 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
                 break
             result = _answer(world, truth, decision, need, k, res, j)
             k += 1
+            assert decision.person_id is not None   # an ask names its person
             step = session.outcome(need.request_id, decision.person_id, result, need.time_s)
             steps.append(step)
         session.need_closed(need.request_id)

@@ -144,6 +144,8 @@ def person_key(site_key: bytes, raw_id: str) -> str:
 class BeliefStore(Protocol):
     """What the node, the tools and the fleet exchange need from a store."""
 
+    robot_id: str
+
     def key_for(self, raw_id: str) -> str: ...
     def next_event_id(self) -> str: ...      # "<robot_id>/<sequence>", never reused
     # durable on return; False: not stored (duplicate, opted out)
@@ -161,6 +163,8 @@ class BeliefStore(Protocol):
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]: ...   # newest `limit`, in time order
 
     def move_asks_forward(self, by_s: float) -> int: ...      # a forward jump of the clock
+    def opted_out(self) -> list[str]: ...
+    def use_model(self, model: SiteModel) -> None: ...        # the model beliefs fold under
     def close(self) -> None: ...
 
 

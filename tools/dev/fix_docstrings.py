@@ -210,7 +210,8 @@ def fix_source(source, path):
         if not _single_token(literal):
             continue   # implicit concatenation or the like: left to a hand edit
         indent = " " * const.col_offset
-        name = node.name if is_function else None
+        # a property reads as a noun ("The x."): pydocstyle does not ask it for a verb
+        name = node.name if is_function and not _is_property(node) else None
         new, problem = rewrite(literal, indent, name)
         if problem:
             problems.append(f"{path}:{const.lineno}: {problem}")
@@ -224,6 +225,11 @@ def fix_source(source, path):
     for start, stop, new in sorted(edits, reverse=True):
         source = source[:start] + new + source[stop:]
     return source, problems
+
+
+def _is_property(node):
+    names = {getattr(d, "id", getattr(d, "attr", "")) for d in node.decorator_list}
+    return bool(names & {"property", "cached_property", "setter"})
 
 
 def _chars(line, byte_offset):

@@ -27,7 +27,7 @@ RESULTS = ("helped", "declined", "no_response", "could_not_ask")
 class AskDelivery(Node):
     def __init__(self, answer_fn: Optional[Callable[[str], str]] = None, **kwargs):
         super().__init__("ask_delivery", **kwargs)
-        answer = self.declare_parameter("answer", "helped").value
+        answer: str = self.declare_parameter("answer", "helped").value
         if answer not in RESULTS:
             raise ValueError(f"answer: {answer!r} is not one of {', '.join(RESULTS)}")
         self.answer_fn = answer_fn or (lambda person_id: answer)
