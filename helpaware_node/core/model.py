@@ -12,7 +12,7 @@ import hashlib
 import json
 import math
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, Mapping, TypeVar
+from typing import Any, ClassVar, Mapping, Protocol, TypeVar
 
 from .preview import describe, short_name, short_number
 
@@ -164,9 +164,13 @@ class DecisionConfig:
         return base * (1.0 + self.urgency_cost_gain * urgency)
 
 
-if TYPE_CHECKING:
-    from _typeshed import DataclassInstance
-_T = TypeVar("_T", bound="DataclassInstance")
+class _Dataclass(Protocol):
+    """What dataclasses.fields needs: any dataclass (as typeshed's DataclassInstance)."""
+
+    __dataclass_fields__: ClassVar[dict[str, Any]]
+
+
+_T = TypeVar("_T", bound=_Dataclass)
 
 
 class _FrozenDict(dict[str, float]):
