@@ -46,9 +46,9 @@ def data_dir(kind: str) -> str:
 
 
 def data_file(kind: str, name: str) -> str:
-    """Return a file the user named.
+    """Return the path of a file the user named.
 
-    a path that exists, or any name with a folder in it, is taken as given; a bare name
+    A path that exists, or any name with a folder in it, is taken as given; a bare name
     (`hospital_night.yaml`, or `hospital_night`) is looked up in data_dir(kind).
     """
     if os.path.exists(name) or os.sep in name or (os.altsep and os.altsep in name):

@@ -255,10 +255,10 @@ class _Records:
 
 @contextlib.contextmanager
 def _long_fields():
-    """Return the csv module refuses a field past 131 072 characters.
+    """Let the csv module read fields past 131 072 characters, for this read only.
 
-    a store written before request kinds were bounded may hold a longer one (fit never reads it).
-    Raised for this read only.
+    The csv module refuses a longer field; a store written before request kinds were bounded
+    may hold one (fit never reads it).
     """
     before = csv.field_size_limit()
     csv.field_size_limit(MAX_CSV_FIELD_CHARS)

@@ -310,7 +310,7 @@ class SiteLearner:
         return "parameter_file", 0
 
     def set_file_model(self, model: SiteModel) -> None:
-        """Return the parameter values changed (a live `ros2 param set`).
+        """Take the changed parameter values (a live `ros2 param set`).
 
         They are the new shrinkage target; when a learned constant's value changed, refit at the
         next chance.

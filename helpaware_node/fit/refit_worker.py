@@ -20,7 +20,7 @@ NICENESS = 10      # a refit is background work: the node's own threads get the 
 
 
 def serve(conn) -> None:
-    """Return the worker's loop: (reader, job) in, ("ok", Refit) or ("error", text) out."""
+    """Run the worker's loop: (reader, job) in, ("ok", Refit) or ("error", text) out."""
     try:
         os.nice(NICENESS)
     except (AttributeError, OSError):     # not on this platform: the same, at equal priority

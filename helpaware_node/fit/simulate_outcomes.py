@@ -31,7 +31,7 @@ def simulate(params: SiteParams, n_people: int, asks_per_person: float, seed: in
 
 
 def draw_results(rng: np.random.Generator, params: SiteParams, wc: np.ndarray) -> np.ndarray:
-    """Return the generative story of the module doc, per ask with help chance w c when noticed."""
+    """Draw results by the module doc's generative story: help chance w c when noticed."""
     n = wc.size
     tau, q = params.decline_aloud, params.notice_probability
     nu = tau + q * (1.0 - tau)
