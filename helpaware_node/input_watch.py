@@ -51,7 +51,7 @@ class InputWatch:
         self._episode_from_s: dict[str, Optional[float]] = {t: None for t in self.topics}
 
     def note(self, topic: str, now_s: float) -> None:
-        """Return a message on `topic` arrived at `now_s`."""
+        """Note that a message on `topic` arrived at `now_s`."""
         if topic not in self._last_s:
             raise KeyError(f"topic: {topic!r} is not watched (watched: {', '.join(self.topics)})")
         if self._first_s[topic] is None:

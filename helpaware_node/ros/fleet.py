@@ -241,7 +241,7 @@ class FleetLink(CountsRefusals):
         self.publish_act(act)
 
     def apply_act(self, act: PrivacyAct) -> bool:
-        """Return a forget or opt-out received from the console or a peer.
+        """Apply a forget or opt-out received from the console or a peer.
 
         Applied once per request, and a request is answered once with this robot's own signed act
         (which also carries it to robots that were not listening).  False when it was applied here
@@ -298,7 +298,7 @@ class FleetLink(CountsRefusals):
 
     # -- receiving
     def _on_delivery(self, msg: String) -> None:
-        """Return the subscription callback: decode, queue, return (storing is the timer's job).
+        """Take a delivery (the subscription callback): decode, queue, return; the timer stores.
 
         Whatever one document does, it is contained here: a refusal is counted by reason, anything
         else under handler_error; the robot carries on either way.
@@ -352,7 +352,7 @@ class FleetLink(CountsRefusals):
             return None
 
     def _on_tick(self) -> None:
-        """Return the timer: store a full batch at once.
+        """Store a full batch at once (the timer).
 
         a smaller one once it waited MERGE_WAIT_S.
         """

@@ -380,7 +380,7 @@ class HelpAwareNode(LifecycleNode):
             self._failed("outcome", exc)
 
     def _on_navigation_status(self, msg) -> None:
-        """Return a status array.
+        """Take a navigation status array.
 
         Its last MAX_GOAL_STATUSES entries, at most one new need (from its newest aborted goal), so
         any array takes bounded time (session.navigation_status).

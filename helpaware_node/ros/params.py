@@ -354,7 +354,7 @@ _EMPTY_LIST = ("has no value: an empty list [] carries no type in a ROS 2 parame
 
 
 def _check_topic(node, name: str, topic: str) -> None:
-    """Return a topic name rclpy cannot resolve would fail the configure step with no message."""
+    """Refuse a topic name rclpy cannot resolve (configure would fail with no message)."""
     if not topic:
         return
     try:

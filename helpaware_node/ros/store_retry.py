@@ -75,7 +75,7 @@ class HeldOutcomes:
         self._logger.info("store accepts writes again: held outcomes saved, asking resumes")
 
     def report_at_stop(self) -> None:
-        """Return what a stop while the store refuses writes costs: said once, then let go."""
+        """Say what a stop while the store refuses writes costs: said once, then let go."""
         if self.held:
             self._logger.error(f"stopping with {len(self.held)} outcome(s) the store refused "
                                f"({self._status.error}); they are not saved")

@@ -68,7 +68,7 @@ class PersonMemory:
 
     # -- changes
     def refresh_belief(self, key: str) -> None:
-        """Return an outcome of this person was stored: the belief is the store's fold again."""
+        """Note that an outcome of this person was stored: the belief is the store's fold again."""
         rec = self.records.get(key)
         if rec is not None:
             self.records[key] = self._with_stored_belief(rec, key)
@@ -85,7 +85,7 @@ class PersonMemory:
                 self.records[ask.person_key] = note_ask(rec, ask.time_s, self.model)
 
     def withdraw_ask(self, key: str, time_s: float) -> None:
-        """Return the ask never reached the person (could_not_ask).
+        """Withdraw an ask that never reached the person (could_not_ask).
 
         It adds no ask load in memory. The stored ask stays, so after a restart it counts again
         (the stricter side).

@@ -45,7 +45,7 @@ class OutcomeWriter(Protocol):
         """Outcomes kept for a store that refused them."""
 
     def drop_person(self, key: str) -> None:
-        """Return a forgotten person: any outcome of theirs still kept is never written."""
+        """Drop a forgotten person: any outcome of theirs still kept is never written."""
 
 
 class DirectWrites:

@@ -269,7 +269,7 @@ class HelpSession:
         return bool(stored)
 
     def outcome_saved(self, event: StoredEvent) -> None:
-        """Return an outcome the store refused earlier is stored now (the writer's retry)."""
+        """Note that an outcome the store refused earlier is stored now (the writer's retry)."""
         self.memory.refresh_belief(event.person_key)
 
     def peer_events(self, events: list[AnyEvent]) -> list[AnyEvent]:
@@ -295,7 +295,7 @@ class HelpSession:
         return stored
 
     def forgotten(self, key: str) -> None:
-        """Return the store has forgotten a person.
+        """Note that the store has forgotten a person.
 
         Drop their record, any pending ask and any outcome still kept for a store that refused it.
         """

@@ -300,7 +300,7 @@ class MemoryStore:
         return len(self._events)
 
     def use_model(self, model: SiteModel) -> None:
-        """Return the model beliefs are folded under from now on (folds are cached per model)."""
+        """Set the model beliefs are folded under from now on (folds are cached per model)."""
 
     def learning_reader(self) -> EventsReader:
         """(outcomes, asks) of people not opted out, for a refit in another thread or process.

@@ -117,8 +117,14 @@ def _capitalize(text):
     return text[:1].upper() + text[1:]
 
 
-def imperative(summary, func_name):
-    """Return the summary with a first word pydocstyle takes as imperative, where it can."""
+def imperative(summary, func_name, returns_none=False):
+    """Return the summary with a first word pydocstyle takes as imperative, where it can.
+
+    A function annotated `-> None` returns nothing, so "Return" would misread it: left alone
+    (pydocstyle lists it for a hand edit).
+    """
+    if returns_none:
+        return summary
     m = re.match(r"([A-Za-z]+)(\W.*|$)", summary, re.S)
     if not m or m.group(1).lower() not in RETURN_WORDS:
         return summary
@@ -139,7 +145,7 @@ def _end_with_period(text):
     return text + "."
 
 
-def rewrite(literal, indent, func_name):
+def rewrite(literal, indent, func_name, returns_none=False):
     """Return the new source of one docstring literal (or the same text), and a problem note."""
     m = re.match(r'([rRuU]?)("""|\'\'\'|"|\')(.*)\2$', literal, re.S)
     if not m:
@@ -161,7 +167,7 @@ def rewrite(literal, indent, func_name):
         rest.pop()
     summary = " ".join(first)
     if func_name is not None:
-        summary = imperative(summary, func_name)
+        summary = imperative(summary, func_name, returns_none)
     # a docstring of one paragraph must fit on one line with both quotes (D200)
     room = MAX_COLUMNS - len(indent) - len(prefix) - (3 if rest else 6)
     desc_first = ""
@@ -212,7 +218,9 @@ def fix_source(source, path):
         indent = " " * const.col_offset
         # a property reads as a noun ("The x."): pydocstyle does not ask it for a verb
         name = node.name if is_function and not _is_property(node) else None
-        new, problem = rewrite(literal, indent, name)
+        returns_none = (is_function and isinstance(node.returns, ast.Constant)
+                        and node.returns.value is None)
+        new, problem = rewrite(literal, indent, name, returns_none)
         if problem:
             problems.append(f"{path}:{const.lineno}: {problem}")
         if new != literal:
