@@ -60,7 +60,7 @@ lint: $(STAMP)
 
 # the quick checks for contributors: lint, types, the ament linters, the pure-core tests
 check: lint
-	$(PY) -m pytest -q $(LINT_TESTS) $(CORE_TESTS)
+	HELPAWARE_HYPOTHESIS_PROFILE=quick $(PY) -m pytest -q $(LINT_TESTS) $(CORE_TESTS)
 
 test: $(TEST_SETUP) lint
 	$(PY) -m pytest

@@ -39,7 +39,9 @@ os.environ["ROS_DOMAIN_ID"] = str(_claim_domain_id())
 # A slow, noisy 2-core machine: no per-example deadlines.
 settings.register_profile("ci", deadline=None, max_examples=200,
                           suppress_health_check=[HealthCheck.too_slow])
-settings.load_profile("ci")
+# `make check` (quick checks for contributors) draws fewer examples; `make test` all of them
+settings.register_profile("quick", parent=settings.get_profile("ci"), max_examples=30)
+settings.load_profile(os.environ.get("HELPAWARE_HYPOTHESIS_PROFILE", "ci"))
 
 DATA_DIR = os.path.join(os.path.dirname(__file__), "data")
 
