@@ -169,7 +169,6 @@ def test_a_person_still_in_view_keeps_the_key_the_store_gives():
 
 
 def test_markers_are_updated_in_place_and_people_who_left_are_deleted():
-    from builtin_interfaces.msg import Time
     from visualization_msgs.msg import Marker
 
     from helpaware_node.ros.markers import PersonMarkers
@@ -178,6 +177,7 @@ def test_markers_are_updated_in_place_and_people_who_left_are_deleted():
     def seen(*people):
         return {p: Seen(wire.SeenPerson(p, d, 0.2, "", (d, 1.0, 0.0)), f"k-{p}", 1.0, "map")
                 for p, d in people}
+    Time = type(Marker().header.stamp)       # builtin_interfaces/Time, via the marker
     marks = PersonMarkers()
     first = marks.update(seen(("ann", 1.0), ("bo", 2.0)), lambda k: 0.25, Time(sec=1), 2.0)
     again = marks.update(seen(("ann", 3.0), ("bo", 2.0)), lambda k: 0.75, Time(sec=2), 2.0)
