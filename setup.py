@@ -23,7 +23,8 @@ setup(
     # (requirements.txt)
     install_requires=["setuptools"],
     # `pip install .[test]`; tests_require is gone from setuptools (a warning since 72)
-    extras_require={"test": ["pytest", "hypothesis", "jsonschema"]},
+    extras_require={"test": ["pytest", "hypothesis", "jsonschema"],
+                    "fast": ["orjson"]},
     zip_safe=True,
     maintainer="helpaware_node maintainers",
     maintainer_email="maintainers@helpaware.invalid",

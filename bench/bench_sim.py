@@ -20,7 +20,9 @@ informed never below ours; the oracle at or above both.
 
 Seeds: 20 per site, 10 on the two concourse sites (thousands of strangers make them the
 slowest); the learning row runs on as many of the first seeds as its share of the 900 s
-limit of bench/run_all.py allows (at least 2 for an interval), and is paired on those.
+limit of bench/run_all.py allows (at least 2 for an interval), and is paired on those. Seeds
+run in as many processes as the machine has CPUs (sim.compare's `jobs`: the same figures as
+one process, sooner).
 
 A reduced run, for a quick look (its figures are not RESULTS.md's): `--seeds N` (at most N
 seeds per site), `--sites NAME ...` (scenario names), `--no-speed`. A reduced run writes no
@@ -59,6 +61,7 @@ SLOW_SITES = ("transit_concourse_busy", "concourse_unwilling_strangers")
 POLICIES = ("ours", "informed", "never", "nearest", "busyness", "willingness", "thompson",
             "oracle", "oracle_greedy")
 START = time.monotonic()
+JOBS = os.cpu_count() or 1  # seeds in parallel processes: the same figures, sooner
 
 
 def speed(scenario_path: str) -> None:
@@ -111,19 +114,24 @@ def site_learner_factory():
 def no_lookahead(sc, seeds: int) -> dict:
     config = dataclasses.replace(DecisionConfig(), lookahead_horizon_s=0.0)
     _, per_seed, _ = compare(sc, ["ours", "informed"], seeds=seeds, config=config,
-                             progress=False)
+                             progress=False, jobs=JOBS)
     return {f"{p} (no look-ahead)": m for p, m in per_seed.items()}
 
 
 def learning_rows(sc, factory, seeds: int, budget_s: float) -> tuple[list, list, float]:
-    """Return runs of `learning` on the first seeds while the budget lasts (at least one)."""
+    """Run `learning` on the first seeds while the budget lasts.
+
+    Runs of `learning` on the first seeds while the budget lasts (at least one batch of JOBS seeds,
+    run side by side).
+    """
     runs, t0 = [], time.monotonic()
-    for s in range(seeds if budget_s > 0.0 else 0):
-        if runs and time.monotonic() - t0 > budget_s * len(runs) / (len(runs) + 1):
-            break    # one more seed would not fit the share
-        world = build_world(sc, s)
-        runs.append(run_policy(world, "ours", SiteModel(), DecisionConfig(),
-                               learner=factory(), label="learning"))
+    while budget_s > 0.0 and len(runs) < seeds:
+        if runs and time.monotonic() - t0 > budget_s * len(runs) / (len(runs) + JOBS):
+            break    # one more batch would not fit the share
+        batch = min(JOBS, seeds - len(runs))
+        _, _, got = compare(sc, [], seeds=batch, first_seed=len(runs), progress=False,
+                            learner_factory=factory, jobs=JOBS)
+        runs += got["learning"]
     return runs, [run_metrics(r) for r in runs], time.monotonic() - t0
 
 
@@ -213,7 +221,7 @@ def main(argv=None) -> int:
         if args.seeds is not None:
             seeds = min(seeds, args.seeds)
         t0 = time.perf_counter()
-        summary, per_seed, runs = compare(sc, POLICIES, seeds=seeds, progress=False)
+        summary, per_seed, runs = compare(sc, POLICIES, seeds=seeds, progress=False, jobs=JOBS)
         per_seed.update(no_lookahead(sc, seeds))
         summary.update({p: summarise(m) for p, m in per_seed.items() if p not in summary})
         sites.append([sc, seeds, summary, per_seed, time.perf_counter() - t0, None])

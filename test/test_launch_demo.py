@@ -39,24 +39,28 @@ def test_core_only_table_still_reachable():
 
 def test_demo_learns_the_site_during_the_night(tmp_path):
     # the full night of `make demo`: the node starts from the site file's constants, puts a
-    # learned revision in force during the run, and the review reports both; the invented
-    # truth's prior mean (0.32) lies below the file's (0.50), so the learned one moves down
+    # learned revision in force during the run, and the review reports both
     proc = subprocess.run([sys.executable, "-m", "helpaware_node.cli", "demo",
                            "--namespace", f"/demo_learn_{os.getpid()}"],
                           capture_output=True, text=True, timeout=400, cwd=str(tmp_path))
     assert proc.returncode == 0, proc.stdout[-2000:] + proc.stderr[-2000:]
     out = proc.stdout
     assert "-- site learning put in force:" in out, out[-3000:]
-    start = re.search(r"site constants at the start: prior mean ([\d.]+).*\(parameter file\)", out)
-    end = re.search(r"site constants at the end: +prior mean ([\d.]+).*\(learned revision (\d+)\)",
-                    out)
+    start = re.search(r"site constants at the start: prior mean ([\d.]+).*k_busy ([\d.]+)"
+                      r".*\(parameter file\)", out)
+    end = re.search(r"site constants at the end: +prior mean ([\d.]+).*k_busy ([\d.]+)"
+                    r".*\(learned revision (\d+)\)", out)
     assert start and end, out[-3000:]
-    assert float(start.group(1)) == 0.5 and float(end.group(1)) < 0.5
+    assert float(start.group(1)) == 0.5 and float(start.group(2)) == 2.5
+    # the night's many declines are explained by lower willingness, heavier busyness, or
+    # both (the truth has both: prior mean 0.32, k_busy 3.5); from some 30-60 answers the fit
+    # cannot always tell the two apart, so either one moving the truth's way is the check
+    assert float(end.group(1)) < 0.5 or float(end.group(2)) > 2.5, (start.group(0), end.group(0))
     assert re.search(r"site learning: revisions [\d, ]+ in force during the bag", out)
     assert re.search(r"calibration: parameter file \d+ asks, Brier [\d.]+; learned \d+ asks", out)
     assert re.search(r"replay with recorded parameters: (\d+) of \1 decisions reproduced", out)
     learned = subprocess.run([sys.executable, "-m", "helpaware_node.cli", "store", "--path",
                               "out/demo/beliefs.sqlite3", "learned"], cwd=str(tmp_path),
                              capture_output=True, text=True, timeout=60)
-    assert learned.returncode == 0 and f"\n{end.group(2)} " in "\n" + "\n".join(
+    assert learned.returncode == 0 and f"\n{end.group(3)} " in "\n" + "\n".join(
         line.strip() for line in learned.stdout.splitlines()), learned.stdout

@@ -34,7 +34,8 @@ PYTHON_MODULES = {
 # imported where present, else the code takes another path (and says so)
 OPTIONAL = {"compression": "Python 3.14's zstd; backports.zstd before",
             "sklearn": "a cross-check in test_review_metrics (importorskip)",
-            "statsmodels": "bench/ only"}
+            "statsmodels": "bench/ only",
+            "orjson": "the faster JSON writer (pip extra 'fast'); the standard library otherwise"}
 # pip names of the ROS wheels in requirements.txt (ros-<package with dashes>)
 ROS_WHEEL = "ros-{}"
 # ROS packages in the venv that come with rclpy's wheels rather than a line of their own

@@ -129,7 +129,7 @@ def lasting_cost(rate_per_s: ArrayLike, alpha: ArrayLike, beta: ArrayLike, gamma
     lstar = np.full(rate.shape, np.inf)
     if kink.any():
         lstar[kink] = _root(alpha[kink], beta[kink], gamma[kink], k)
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", over="ignore"):    # a subnormal L*: s is clipped to H
         s_a = np.where(lstar < top, h * np.log2(top / lstar), 0.0)      # (f+1) u = L*
         s_b = np.where(lstar < load, h * np.log2(load / lstar), 0.0)    # f u = L*
     s_a = np.clip(s_a, 0.0, H)

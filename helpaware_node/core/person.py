@@ -110,7 +110,10 @@ def belief_at(record: PersonRecord, now_s: float, model: SiteModel) -> Belief:
 
 def note_candidate(record: PersonRecord, now_s: float) -> PersonRecord:
     first = now_s if record.first_seen_s is None else min(record.first_seen_s, now_s)
-    return replace(record, candidate_count=record.candidate_count + 1, first_seen_s=first)
+    # the constructor, not dataclasses.replace: once per candidate per need, and replace
+    # costs several times more (every field named, in order)
+    return PersonRecord(record.belief, record.belief_time_s, record.ask_times_s,
+                        record.candidate_count + 1, first)
 
 
 def keep_recent_asks(ask_times_s: Iterable[float], now_s: float, horizon_s: float,

@@ -84,10 +84,16 @@ class Candidate:
     def __post_init__(self) -> None:
         if not isinstance(self.person_id, str) or not self.person_id:
             raise CoreInputError("person_id: must be a non-empty string")
-        check_range(f"distance_m of {self.person_id}", self.distance_m, 0.0, 1e6)
-        check_range(f"observed_at_s of {self.person_id}", self.observed_at_s, -1e15, 1e15)
-        if self.busyness is not None:
-            check_range(f"busyness of {self.person_id}", self.busyness, 0.0, 1.0)
+        # the usual case (plain floats in range) is settled by one comparison chain; anything
+        # else goes through check_range, which names the field and the allowed range
+        d, t, x = self.distance_m, self.observed_at_s, self.busyness
+        if (type(d) is float and type(t) is float and 0.0 <= d <= 1e6 and -1e15 <= t <= 1e15
+                and (x is None or (type(x) is float and 0.0 <= x <= 1.0))):
+            return
+        check_range(f"distance_m of {self.person_id}", d, 0.0, 1e6)
+        check_range(f"observed_at_s of {self.person_id}", t, -1e15, 1e15)
+        if x is not None:
+            check_range(f"busyness of {self.person_id}", x, 0.0, 1.0)
 
 
 def candidate_from_record(person_id: str, record: PersonRecord, now_s: float, model: SiteModel,
@@ -154,23 +160,24 @@ class Decision:
         Or the exclusion that ruled them out.
         """
         ev = self.evaluation
-        rows = []
-        for i, cand in enumerate(ev.candidates):
-            excl = ev.exclusions[i]
-            rows.append({
-                "person_id": cand.person_id,
-                "excluded": excl.value if excl is not None else None,
-                "a": float(ev.a[i]), "b": float(ev.b[i]), "mean": float(ev.mean[i]),
-                "busyness": float(ev.busyness[i]), "ask_load": float(ev.ask_load[i]),
-                "distance_m": float(cand.distance_m),
-                "c": float(ev.c[i]), "p": float(ev.p[i]),
-                "interruption_s": float(ev.interruption_s[i]),
-                "advantage_s": float(ev.advantage_s[i]), "voi_s": float(ev.voi_s[i]),
-                "future_requests": float(ev.future_requests[i]),
-                "lasting_cost_s": float(ev.lasting_cost_s[i]),
-                "score_s": float(ev.score_s[i]),
-            })
-        return rows
+        # one tolist() per array (plain floats, in one pass) instead of a float() per entry
+        columns = zip(ev.a.tolist(), ev.b.tolist(), ev.mean.tolist(), ev.busyness.tolist(),
+                      ev.ask_load.tolist(), ev.c.tolist(), ev.p.tolist(),
+                      ev.interruption_s.tolist(), ev.advantage_s.tolist(), ev.voi_s.tolist(),
+                      ev.future_requests.tolist(), ev.lasting_cost_s.tolist(),
+                      ev.score_s.tolist())
+        return [{"person_id": cand.person_id,
+                 "excluded": None if excl is None else _EXCLUSION_TEXT[excl],
+                 "a": a, "b": b, "mean": mean, "busyness": x, "ask_load": load,
+                 "distance_m": float(cand.distance_m), "c": c, "p": p,
+                 "interruption_s": i_s, "advantage_s": adv, "voi_s": voi,
+                 "future_requests": fut, "lasting_cost_s": lc, "score_s": q}
+                for cand, excl, (a, b, mean, x, load, c, p, i_s, adv, voi, fut, lc, q)
+                in zip(ev.candidates, ev.exclusions, columns)]
+
+
+# the reason codes as plain strings (Enum.value is a descriptor call per use)
+_EXCLUSION_TEXT = {e: e.value for e in Exclusion}
 
 
 def _limits(cand: Candidate, busyness: float, now_s: float, config: DecisionConfig,
@@ -305,22 +312,19 @@ def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
     robot_recent = sum(1 for t in robot_ask_times_s if now_s - t < HOUR_S)
     robot_capped = robot_recent >= config.max_asks_per_hour
 
-    a = np.empty(n)
-    b = np.empty(n)
-    x = np.empty(n)
-    load = np.empty(n)
-    counts = np.empty(n)
-    first = np.empty(n)
-    exclusions = []
     h = model.ask_memory_half_life_s
-    for i, cand in enumerate(cands):
-        a[i] = cand.belief.a
-        b[i] = cand.belief.b
-        x[i] = model.default_busyness if cand.busyness is None else cand.busyness
-        load[i] = sum(2.0 ** (-max(now_s - t, 0.0) / h) for t in cand.ask_times_s)
-        counts[i] = cand.candidate_count
-        first[i] = now_s if cand.first_seen_s is None else cand.first_seen_s
-        exclusions.append(_limits(cand, x[i], now_s, config, robot_capped))
+    default_x = model.default_busyness
+    # gathered into lists, then one array each (item assignment into arrays costs more)
+    x_list = [default_x if c.busyness is None else c.busyness for c in cands]
+    a = np.array([c.belief.a for c in cands], dtype=float)
+    b = np.array([c.belief.b for c in cands], dtype=float)
+    x = np.array(x_list, dtype=float)
+    load = np.array([sum(2.0 ** (-max(now_s - t, 0.0) / h) for t in c.ask_times_s)
+                     if c.ask_times_s else 0.0 for c in cands], dtype=float)
+    counts = np.array([c.candidate_count for c in cands], dtype=float)
+    first = np.array([now_s if c.first_seen_s is None else c.first_seen_s for c in cands],
+                     dtype=float)
+    exclusions = [_limits(c, xi, now_s, config, robot_capped) for c, xi in zip(cands, x_list)]
 
     mean = a / (a + b) if n else np.empty(0)
     c = np.asarray(context_factor(x, load, model.k_busy, model.k_load), dtype=float).reshape(n)

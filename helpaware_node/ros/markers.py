@@ -71,6 +71,9 @@ class PersonMarkers:
         self._ids = MarkerIds()
         self._marked: set[str] = set()
         self._last_action: dict[str, str] = {}    # perceived id -> "asked" / "passed over"
+        # one Marker per person in view, updated in place at each period: building a Marker
+        # message costs more than filling in its changing fields
+        self._markers: dict[str, Marker] = {}
 
     def note_decision(self, decision) -> None:
         for cand in decision.evaluation.candidates:
@@ -85,12 +88,34 @@ class PersonMarkers:
             pos = s.person.position or (s.person.distance_m, 0.0, 0.0)
             pos = (pos[0], pos[1], pos[2] + 2.0)   # above the head
             text = f"w={mean_of(s.key):.2f} {self._last_action.get(pid, '')}".strip()
-            markers.append(person_marker(self._ids.get(pid), s.frame_id, stamp, pos, text,
-                                         lifetime_s))
+            m = self._markers.get(pid)
+            if m is None or m.header.frame_id != s.frame_id:
+                m = self._markers[pid] = person_marker(self._ids.get(pid), s.frame_id, stamp,
+                                                       pos, text, lifetime_s)
+            else:
+                m.header.stamp = stamp
+                p = m.pose.position
+                p.x, p.y, p.z = float(pos[0]), float(pos[1]), float(pos[2])
+                m.text = text
+                m.lifetime.sec = int(lifetime_s)
+                m.lifetime.nanosec = int((lifetime_s - int(lifetime_s)) * 1e9)
+            markers.append(m)
         for pid in self._marked - set(seen):
             mid = self._ids.drop(pid)
             self._last_action.pop(pid, None)
+            self._markers.pop(pid, None)
             if mid is not None:
                 markers.append(delete_marker(mid, "base_link", stamp))
         self._marked = set(seen)
         return marker_array(markers) if markers else None
+
+    def reset(self, seen: dict) -> None:
+        """Nobody listens: build nothing.
+
+        Keep only what the people in view need (a late subscriber gets fresh markers; the ones
+        shown before expire by their lifetime).
+        """
+        self._marked.clear()
+        self._markers.clear()
+        for pid in [p for p in self._last_action if p not in seen]:
+            del self._last_action[pid]

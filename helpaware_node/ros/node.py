@@ -412,23 +412,25 @@ class HelpAwareNode(LifecycleNode):
             # decision; the values come from validated core values, so no second check
             doc = wire.decision_to_document(out.decision, out.robot_ask_times_s, None, None,
                                             robot_id, check=False)
-            self.decision_pub.publish(String(data=wire.fast_text(doc, model, config, source)))
+            text = wire.fast_text(doc, model, config, source,
+                                  finite=wire.evaluation_is_finite(out.decision))
+            self.decision_pub.publish(String(data=text))
             self.decisions_published += 1
             self.markers.note_decision(out.decision)
             self.last_decision = doc
         for event in step.share:
             self.fleet.publish(event)     # stored here first: shared only once durable
         for note in step.notes:           # by kind, bounded: a document may cause a note
-            text = self.log_lines.due(note.kind or note.level, note.text,
+            line = self.log_lines.due(note.kind or note.level, note.text,
                                       note.throttle_s or None)
-            if text is None:
+            if line is None:
                 continue
             if note.level == "error":     # one call site per severity (rclpy's rule)
-                self.get_logger().error(text)
+                self.get_logger().error(line)
             elif note.level == "warning":
-                self.get_logger().warning(text)
+                self.get_logger().warning(line)
             else:
-                self.get_logger().info(text)
+                self.get_logger().info(line)
 
     def _housekeeping(self) -> None:
         try:
@@ -469,6 +471,9 @@ class HelpAwareNode(LifecycleNode):
                                                 level, message))
 
     def _publish_markers(self, stamp) -> None:
+        if self.marker_pub.get_subscription_count() == 0:
+            self.markers.reset(self.session.seen)   # a display topic: nobody shows it
+            return
         model, now = self.session.model, self.now_s()
         memory = self.session.memory
         lifetime = max(2.0 * self.params.settings.diagnostics_period_s, 1.0)

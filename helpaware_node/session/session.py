@@ -107,7 +107,10 @@ class HelpSession:
         if complete_view:
             self.seen.clear()
         for p in people:
-            key = self.store.key_for(p.person_id)
+            # a person still in view keeps the key hashed when they came: the same site
+            # key gives the same key, and hashing each person at 30 Hz costs the most here
+            held = self.seen.get(p.person_id)
+            key = held.key if held is not None else self.store.key_for(p.person_id)
             self.seen[p.person_id] = Seen(p, key, now_s, frame_id)
             self.memory.saw(key, now_s)
         if len(self.seen) > MAX_PEOPLE_IN_VIEW:

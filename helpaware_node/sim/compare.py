@@ -44,7 +44,8 @@ class ProgressBar:
 def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int = 20,
             model: Optional[SiteModel] = None, config: Optional[DecisionConfig] = None,
             progress: bool = True, first_seed: int = 0, rules: Optional[SessionRules] = None,
-            constants: str = "defaults", learner_factory: Optional[Callable[[], Any]] = None):
+            constants: str = "defaults", learner_factory: Optional[Callable[[], Any]] = None,
+            jobs: int = 1):
     """Return (summary by policy, per-seed metrics by policy, runs by policy).
 
     `rules`: the help session's rules (max_asks_per_need ...), the node's defaults if None.
@@ -52,34 +53,95 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
     or "true" (every policy starts from the site's true constants, sim.truth).
     `learner_factory`: a fresh site learner per seed; adds the policy "learning" (ours,
     starting from the same constants, with site learning).
+    `jobs`: seeds run in this many processes at once. Each seed is a world of its own, built
+    from its seed alone, so the results are the same for any `jobs` (only the order in which
+    seeds finish differs; they are put back in seed order).
     """
     model = model or SiteModel()
     config = config or DecisionConfig()
     rules = rules or SessionRules()
     if constants not in ("defaults", "true"):
         raise ValueError(f"constants: {constants!r} is not one of defaults, true")
+    if not isinstance(jobs, int) or isinstance(jobs, bool) or jobs < 1:
+        raise ValueError(f"jobs: {jobs!r} must be a whole number >= 1")
     if constants == "true":
         model = true_site_model(sc, model)
     policies = list(policies)
     if learner_factory is not None and "learning" not in policies:
         policies.insert(1, "learning")
-    draws = max(ASK_DRAWS_PER_NEED, rules.max_asks_per_need)   # more draws change no other
-    worlds = [build_world(sc, first_seed + s, ask_draws=draws) for s in range(seeds)]
-    total = sum(len(w.needs) for w in worlds) * len(policies)
+    if "learning" in policies and learner_factory is None:
+        raise ValueError("policy learning: needs a learner_factory")
+    job = _SeedJob(sc, tuple(policies), model, config, rules, learner_factory)
+    seed_list = [first_seed + s for s in range(seeds)]
+    # the bar's total needs every world's needs: built here only when the bar is shown
+    total = (sum(len(build_world(sc, s, ask_draws=job.draws).needs) for s in seed_list)
+             * len(policies) if progress else 1)
     bar = ProgressBar(total, f"simulate {sc.name}", enabled=progress)
-    runs: dict[str, list[Any]] = {p: [] for p in policies}
-    for w in worlds:
-        for p in policies:
-            if p == "learning":
-                if learner_factory is None:
-                    raise ValueError("policy learning: needs a learner_factory")
-                runs[p].append(run_policy(w, "ours", model, config, progress=bar, rules=rules,
-                                          learner=learner_factory(), label="learning"))
-            else:
-                runs[p].append(run_policy(w, p, model, config, progress=bar, rules=rules))
+    if jobs == 1 or seeds < 2:
+        by_seed = [job.run(s, bar)[0] for s in seed_list]
+    else:
+        by_seed = _in_processes(job, seed_list, min(jobs, seeds), bar)
+    runs = {p: [seed_runs[p] for seed_runs in by_seed] for p in policies}
     per_seed = {p: [run_metrics(r) for r in rs] for p, rs in runs.items()}
     summary = {p: summarise(m) for p, m in per_seed.items()}
     return summary, per_seed, runs
+
+
+class _SeedJob:
+    """Every policy on the world of one seed (common random numbers across policies)."""
+
+    def __init__(self, sc, policies, model, config, rules, learner_factory) -> None:
+        self.sc, self.policies, self.model, self.config = sc, policies, model, config
+        self.rules, self.learner_factory = rules, learner_factory
+        # more draws per need than the rules use change nothing else in the world
+        self.draws = max(ASK_DRAWS_PER_NEED, rules.max_asks_per_need)
+
+    def run(self, seed: int, progress: Optional[Callable[[int], None]] = None
+            ) -> tuple[dict, int]:
+        """Return (runs by policy, needs in the world)."""
+        w = build_world(self.sc, seed, ask_draws=self.draws)
+        out = {}
+        for p in self.policies:
+            if p == "learning":
+                out[p] = run_policy(w, "ours", self.model, self.config, progress=progress,
+                                    rules=self.rules, learner=self.learner_factory(),
+                                    label="learning")
+            else:
+                out[p] = run_policy(w, p, self.model, self.config, progress=progress,
+                                    rules=self.rules)
+        return out, len(w.needs)
+
+
+_FORKED_JOB: Optional[_SeedJob] = None     # the job a forked worker inherits (not pickled)
+
+
+def _run_forked(seed: int) -> tuple[int, dict, int]:
+    assert _FORKED_JOB is not None
+    runs, needs = _FORKED_JOB.run(seed)
+    return seed, runs, needs
+
+
+def _in_processes(job: _SeedJob, seeds: list, jobs: int, bar: ProgressBar) -> list:
+    """Seeds in forked worker processes.
+
+    The job (with its learner factory, often a lambda) is inherited through fork rather than
+    pickled; the runs come back pickled.
+    """
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+    global _FORKED_JOB
+    _FORKED_JOB = job
+    try:
+        done: dict = {}
+        with ProcessPoolExecutor(max_workers=jobs,
+                                 mp_context=multiprocessing.get_context("fork")) as pool:
+            for fut in as_completed([pool.submit(_run_forked, s) for s in seeds]):
+                seed, runs, needs = fut.result()
+                done[seed] = runs
+                bar(needs * len(job.policies))
+        return [done[s] for s in seeds]
+    finally:
+        _FORKED_JOB = None
 
 
 def _ci(cell: dict, digits: int = 0) -> str:

@@ -38,6 +38,9 @@ def add_arguments(parser) -> None:
                              "ceiling, oracle_greedy = the true advantage now only)")
     parser.add_argument("--seeds", type=int, default=20, help="number of seeds (default 20)")
     parser.add_argument("--first-seed", type=int, default=0, help="first seed (default 0)")
+    parser.add_argument("--jobs", type=int, default=1, metavar="N",
+                        help="seeds run in N processes at once (default 1); the results are "
+                        "the same for any N")
     parser.add_argument("--params", metavar="FILE",
                         help="the node's parameter file (ROS 2 YAML, e.g. "
                              "config/hospital_night.yaml): simulate with the site's own costs "
@@ -66,6 +69,9 @@ def _plain(value):
 def run(args) -> int:
     if args.seeds < 1:
         print("simulate: --seeds must be at least 1", file=sys.stderr)
+        return 2
+    if args.jobs < 1:
+        print(f"simulate: --jobs must be at least 1 (got {args.jobs})", file=sys.stderr)
         return 2
     path = package_data.data_file("scenarios", args.scenario)   # a path, or an installed name
     if not os.path.exists(path):
@@ -98,7 +104,7 @@ def run(args) -> int:
         summary, per_seed, runs = compare(sc, args.policies, args.seeds, model=model,
                                           config=config, progress=not args.quiet,
                                           first_seed=args.first_seed, rules=rules,
-                                          constants=args.constants)
+                                          constants=args.constants, jobs=args.jobs)
     except CoreInputError as exc:      # e.g. more asks per need than the world draws
         print(f"simulate: {exc}", file=sys.stderr)
         return 2
