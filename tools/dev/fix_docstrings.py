@@ -11,8 +11,9 @@ What it does, by the checks of pydocstyle:
   clause break (`;`, `:`, a dash, a comma), and the rest opens the description;
 - closing quotes of a multi-line docstring go on a line of their own (D209), and a docstring
   whose text fits on one line becomes a one-line docstring (D200);
-- a function's summary is in the imperative (D401): "The x..." becomes "Return the x...", and
-  in a test function "Check that the x...".
+- a function's summary is in the imperative (D401): "Returns" becomes "Return" and "The x..."
+  "Return the x..." (not in a function annotated `-> None`, nor in a test function, of which
+  pydocstyle asks no verb).
 
 What it cannot rewrite (no clause break within the line) it lists for a hand edit.
 """
@@ -24,6 +25,11 @@ import re
 import sys
 import textwrap
 import tokenize
+
+try:   # pydocstyle's own verb lists (it is in the venv with ament_pep257)
+    from pydocstyle.wordlists import IMPERATIVE_VERBS, stem
+except ImportError:
+    IMPERATIVE_VERBS, stem = {}, None
 
 MAX_COLUMNS = 99
 ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", ".."))
@@ -123,17 +129,20 @@ def imperative(summary, func_name, returns_none=False):
     A function annotated `-> None` returns nothing, so "Return" would misread it: left alone
     (pydocstyle lists it for a hand edit).
     """
-    if returns_none:
-        return summary
     m = re.match(r"([A-Za-z]+)(\W.*|$)", summary, re.S)
-    if not m or m.group(1).lower() not in RETURN_WORDS:
+    if not m or func_name.startswith("test"):
+        return summary   # pydocstyle asks no verb of a test function
+    forms = IMPERATIVE_VERBS.get(stem(m.group(1).lower())) if stem else None
+    if forms and m.group(1).lower() not in forms:   # "Returns" -> "Return", as pydocstyle says
+        best = max(forms, key=lambda f: len(os.path.commonprefix([f, m.group(1).lower()])))
+        return best.capitalize() + m.group(2)
+    if returns_none or m.group(1).lower() not in RETURN_WORDS:
         return summary
     word = m.group(1)
     low = word.lower() if word[:1].isupper() and word[1:].islower() or len(word) == 1 else word
     if word in ("True", "False"):
         low = word
-    lead = "Check that " if func_name.startswith("test") else "Return "
-    return lead + low + m.group(2)
+    return "Return " + low + m.group(2)
 
 
 def _end_with_period(text):
