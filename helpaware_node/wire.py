@@ -29,7 +29,7 @@ from .core.preview import describe, quoted, short_name, short_number
 try:      # optional (pip extra "fast"): writes a 200-candidate decision ~10x faster
     import orjson
 except ImportError:   # pragma: no cover - the standard library does the same, slower
-    orjson = None
+    orjson = None  # type: ignore[assignment, unused-ignore]   # None: tested where used
 
 VERSION = 1
 MAX_DOCUMENT_BYTES = 1_000_000
