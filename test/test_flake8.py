@@ -1,7 +1,10 @@
 """ament_flake8 on every Python source, as the ament_python template's test does.
 
 The settings are setup.cfg's [flake8] (line length 99 as ament's own, excluded paths), kept in
-step with ruff.toml.
+step with ruff.toml. The PyPI wheels bring flake8 alone (pycodestyle, pyflakes); a ROS install's
+ament_flake8 also loads the plugins its package names (import order, quotes, builtins,
+comprehensions, docstrings, class newline, ...): their findings, mostly import order, are not
+fixed yet, so there this test fails until they are.
 """
 import configparser
 import os
