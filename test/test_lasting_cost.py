@@ -209,7 +209,7 @@ def test_the_score_subtracts_the_lasting_cost_with_the_rate_of_n():
 
 
 def test_replay_from_the_document_reproduces_the_lasting_cost_bit_for_bit():
-    """Check that the decision document (JSON text) carries every input of the lasting cost.
+    """The decision document (JSON text) carries every input of the lasting cost.
 
     Replaying it gives the same rationale rows, lasting_cost_s included, to the last bit.
     """

@@ -125,7 +125,7 @@ def test_loop_arguments_are_checked_and_shared():
 
 
 def test_executable_is_the_one_under_the_ament_prefix_when_one_is_sourced(tmp_path, monkeypatch):
-    """Check that a sourced workspace wins over the venv.
+    """A sourced workspace wins over the venv.
 
     Lib/helpaware_node/<exe> under its prefix.
     """

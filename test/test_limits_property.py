@@ -89,7 +89,7 @@ def test_no_decision_breaks_a_hard_limit(steps_, model, config):
 
 
 def test_the_sequences_reach_the_limits():
-    """Check that the property above is not empty.
+    """The property above is not empty.
 
     With these strategies asks happen and each limit binds (one fixed sequence per limit).
     """

@@ -189,7 +189,7 @@ def test_reask_interval_is_bounded_at_30_days_by_name():
 @pytest.mark.parametrize("count,span_s", [(0, 0.0), (1, 3600.0), (1, 10 * 86400.0),
                                           (12, 3 * 86400.0), (40, 600.0)])
 def test_encounter_rate_is_the_gamma_poisson_posterior_mean(count, span_s):
-    """Check that N's rate is the Gamma-Poisson posterior mean.
+    """N's rate is the Gamma-Poisson posterior mean.
 
     N's rate: Gamma(shape prior_rate * window / day, rate window) prior on the person's candidate
     rate, `count` encounters seen over `span_s` since first seen; the posterior mean by numerical
@@ -220,7 +220,7 @@ def test_encounter_rate_is_the_gamma_poisson_posterior_mean(count, span_s):
 
 
 def test_a_stranger_weighs_far_less_than_a_regular():
-    """Check that a stranger weighs far less than a regular.
+    """A stranger weighs far less than a regular.
 
     A first-seen person's N is the prior's (0.3 a day: most first-seen people are never seen
     again); someone seen 12 times in 3 days (12.1 / 80 h, 3.6 a day) weighs 12 times as much.

@@ -185,7 +185,7 @@ def test_no_hard_limit_is_crossed_on_the_sqlite_store(tmp_path_factory, ops, cou
 
 
 def test_the_ledger_catches_each_breach():
-    """Check that the checker itself can fail: a hand-made history breaking each limit once."""
+    """The checker itself can fail: a hand-made history breaking each limit once."""
     ledger = Ledger()
     ledger.own_ask(0.0, "ann", "n1", True)
     ledger.own_ask(10.0, "ann", "n2", True)                # re-ask 10 s later

@@ -103,7 +103,7 @@ def test_a_killed_process_files_are_removed_and_a_running_one_is_left_alone(dirs
 
 
 def test_a_set_a_live_process_locked_since_is_left_alone(dirs):
-    """Check that a restarted participant takes the dead port again.
+    """A restarted participant takes the dead port again.
 
     It holds the old `_el` file.
     """
@@ -127,7 +127,7 @@ def test_a_set_a_live_process_locked_since_is_left_alone(dirs):
 
 
 def test_a_file_created_again_since_the_record_is_not_removed(dirs):
-    """Check that a writer that reset the dead port made a new file under the same name.
+    """A writer that reset the dead port made a new file under the same name.
 
     Not ours.
     """

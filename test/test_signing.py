@@ -83,7 +83,7 @@ def test_the_signature_is_the_hmac_sha256_of_the_canonical_bytes():
 
 
 def test_canonical_bytes_of_one_document_assembled_by_hand():
-    """Check that the format in signing.py's docstring.
+    """The format in signing.py's docstring.
 
     Built with struct (not with the encoder).
     """
@@ -159,7 +159,7 @@ documents = st.dictionaries(st.text(max_size=6).filter(lambda k: k != "sig"), js
 @settings(max_examples=400)
 @given(documents)
 def test_the_canonical_bytes_read_back_to_the_same_document(doc):
-    """Check that a left inverse exists, so the encoding is one-to-one."""
+    """A left inverse exists, so the encoding is one-to-one."""
     assert parse_canonical(canonical_bytes(doc)) == as_json_value(doc)
 
 
@@ -278,7 +278,7 @@ def smallest_change(value):
 
 
 def test_each_field_changed_by_the_smallest_step_is_refused_as_a_bad_signature():
-    """Check that a loop over every field of every kind.
+    """A loop over every field of every kind.
 
     The smallest change a damaged copy could carry.
     """

@@ -185,7 +185,7 @@ def test_reward_is_the_decision_cost_terms():
 
 
 def test_simulator_decision_equals_core_decide_for_a_scripted_need():
-    """Check that the simulator's session, given a store with some history.
+    """The simulator's session, given a store with some history.
 
     Decides as core.decide does on records built by the core's own functions (note_ask,
     note_outcome).
@@ -331,7 +331,7 @@ def _simulate_with(tmp_path, params_text):
 
 
 def test_simulate_uses_the_node_parameter_file(tmp_path):
-    """Check that a node parameter file drives the simulated decision.
+    """A node parameter file drives the simulated decision.
 
     With the hourly cap at 0 the robot never asks; with the shipped defaults it does (same seed,
     same world).
@@ -353,7 +353,7 @@ def test_simulate_refuses_a_bad_parameter_file_naming_it(tmp_path, capsys):
 
 
 def test_simulate_takes_max_asks_per_need_from_the_node_parameter_file(tmp_path):
-    """Check that the session's rules come from the same file.
+    """The session's rules come from the same file.
 
     One ask per need asks less than three (same seed, same world; the later asks at a need are the
     asks again after a decline).

@@ -93,7 +93,7 @@ def world_reward_by_hand(res, true_half_life_s: float = 7200.0):
 
 
 def test_reward_is_the_worlds_whatever_the_robot_believes():
-    """Check that the nearest-person policy ignores costs and constants.
+    """The nearest-person policy ignores costs and constants.
 
     So robots with different parameters make the same asks; the reward is the world's either way.
     """
@@ -131,7 +131,7 @@ def test_ours_is_paid_the_worlds_costs_not_its_own(model, config):
 
 
 def test_the_oracles_do_not_read_the_robots_parameters():
-    """Check that the oracles score with the world's truth and costs.
+    """The oracles score with the world's truth and costs.
 
     a robot with other costs and constants (same hard limits) makes the same asks and is paid the
     same, to the bit.

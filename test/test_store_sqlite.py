@@ -132,7 +132,7 @@ def test_migration_from_version_1_rebuilds_snapshots(tmp_path):
 
 def test_migration_of_a_version_2_file_with_data_keeps_everything_and_adds_asks(
         tmp_path, monkeypatch):
-    """Check that a version 2 file with data keeps everything and gains asks.
+    """A version 2 file with data keeps everything and gains asks.
 
     A file written at version 2 (the store's own write path, migrations stopped at 2), opened by
     this version: events, snapshot and sequences as they were, asks usable.

@@ -446,7 +446,7 @@ class FailingStore:
 
 
 def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_path):
-    """Check that the queue is never poisoned.
+    """The queue is never poisoned.
 
     An event the store cannot hold (past the decoder, which should have refused it) is found by
     halving and dropped; the store refusing writes keeps every event for the next try.
@@ -504,7 +504,7 @@ def test_two_crowds_through_the_people_topic_give_a_valid_decision(rig):
 @settings(max_examples=scaled(25, 250), **SETTINGS)
 @given(st.lists(st.tuples(st.integers(1, 500), st.floats(0.0, 50.0)), min_size=1, max_size=8))
 def test_many_people_across_documents_every_decision_valid(rig, docs):
-    """Check that any sequence of people documents keeps every decision valid.
+    """Any sequence of people documents keeps every decision valid.
 
     Any sequence of people documents (up to 500 people each, distances and ages at random) at the
     handler: people in view stay at most wire.MAX_CANDIDATES, and the decision after them decodes
@@ -622,7 +622,7 @@ def test_a_1_2_mb_kind_is_refused_as_too_long(rig):
 
 
 def test_an_old_store_with_a_long_kind_still_starts_and_re_offers_the_rest(ctx, tmp_path):
-    """Check that a store with a 1.2 MB kind still starts and re-offers the rest.
+    """A store with a 1.2 MB kind still starts and re-offers the rest.
 
     A store written before kinds were bounded (bulk_load does not check: an import) holds a 1.2 MB
     kind: the node starts, re-offers every other event, counts the one it cannot, and decides.
@@ -717,7 +717,7 @@ def test_valid_but_pointless_documents_do_not_flood_the_log(ctx, tmp_path):
 @given(st.lists(st.tuples(st.integers(0, 5), st.sampled_from(list(Result)[:3]),
                           st.booleans()), min_size=1, max_size=25))
 def test_duplicated_and_replayed_events_are_stored_once(rig, deliveries):
-    """Check that the same signed events delivered many times.
+    """The same signed events delivered many times.
 
     Copies of an event id with other content (a replay that changed it, correctly signed): the
     store keeps the first of each id (merge by id is idempotent), beliefs are the fold of exactly
@@ -759,7 +759,7 @@ def test_a_replayed_privacy_request_is_applied_once(rig):
 
 # ------------------------------------------------------------------ figures
 def test_zz_report_counts(rig):
-    """Check that the figures for docs/RELIABILITY.md (run with -s to see them)."""
+    """The figures for docs/RELIABILITY.md (run with -s to see them)."""
     print("\nhostile documents at the handlers (hypothesis, derandomized)")
     print(f"{'topic':<18}{'tried':>7}{'refused':>9}{'taken':>7}")
     for t in hd.TOPICS:

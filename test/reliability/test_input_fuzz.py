@@ -584,7 +584,7 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
 
 
 def test_zz_report_counts(rig):
-    """Check that the figures for docs/RELIABILITY.md (run with -s to see them)."""
+    """The figures for docs/RELIABILITY.md (run with -s to see them)."""
     print("\ninput fuzz at the handlers (hypothesis, derandomized)")
     print(f"{'topic':<18}{'tried':>7}{'rejected':>10}{'accepted':>10}")
     for t in TOPICS:

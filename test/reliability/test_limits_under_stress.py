@@ -45,7 +45,7 @@ def test_no_limit_breached(name, config, mean_gap_s, binding):
 
 
 def test_ledger_check_catches_a_breach():
-    """Check that the checker itself can fail: a hand-made ledger with one breach of each limit."""
+    """The checker itself can fail: a hand-made ledger with one breach of each limit."""
     from reliability_sequence import Ledger
     config = DecisionConfig(max_asks_per_person_per_day=2, max_asks_per_hour=2,
                             min_reask_interval_s=900.0)

@@ -191,7 +191,7 @@ def test_system_time_jump_forward_keeps_the_limits_on_real_time(ctx):
 
 
 def test_a_need_before_the_first_clock_waits_then_is_decided_on_a_held_clock(ctx):
-    """Check that a need that arrives before any /clock is not decided on time zero.
+    """A need that arrives before any /clock is not decided on time zero.
 
     Once a clock reading arrives and then holds (a paused simulator), the need is decided at that
     time, and /diagnostics keeps coming while the clock stands still (the node's cadence runs on

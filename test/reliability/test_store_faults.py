@@ -163,7 +163,7 @@ def test_unreadable_store_at_decision_time_asks_nobody_and_keeps_running(ctx, tm
 
 
 def test_forget_drops_an_outcome_held_for_a_full_store(ctx, tmp_path):
-    """Check that privacy comes first while the store is full.
+    """Privacy comes first while the store is full.
 
     Privacy comes first: a person forgotten while their outcome waits for disk space is never
     written once space returns.
@@ -190,7 +190,7 @@ def test_forget_drops_an_outcome_held_for_a_full_store(ctx, tmp_path):
 
 
 def test_fleet_event_during_a_full_store_is_kept_and_not_shared_again(ctx, tmp_path):
-    """Check that a fleet event refused by a full store stays queued.
+    """A fleet event refused by a full store stays queued.
 
     A peer's event arrives once (transient local history is not resent to a subscriber that already
     has it), so one the store refuses stays queued in the fleet link and is stored once space
