@@ -33,8 +33,9 @@ def test_colcon_test_runs_the_linter_tests_and_test_result_passes(tmp_path):
     src = os.path.join(workspace, "src", PACKAGE)
     copy_source(src)
     ignore = shutil.ignore_patterns("__pycache__", "*.pyc")
-    for folder in ("test", "tools"):
+    for folder in ("test", "tools"):   # what a clone has beside the build's own entries
         shutil.copytree(os.path.join(ROOT, folder), os.path.join(src, folder), ignore=ignore)
+    shutil.copy2(os.path.join(ROOT, "ruff.toml"), src)
 
     rc, out = colcon(workspace, "build", "--packages-select", PACKAGE)
     assert rc == 0, out[-3000:]
