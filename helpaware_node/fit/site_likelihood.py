@@ -154,7 +154,7 @@ class Bucket:
     n_helped: np.ndarray      # per person: helped rows (float)
     miss_rows: np.ndarray     # rows not helped, per person in order
     miss_local: np.ndarray    # per such row: index into `people`
-    miss_people: np.ndarray   # people with at least one such row (index into `people`)
+    miss_people: np.ndarray | slice   # people with such rows (into `people`; all: a slice)
     miss_starts: np.ndarray   # per such person: first position in `miss_rows`
 
 
@@ -176,6 +176,8 @@ def make_buckets(data: OutcomeData, extra_degree: int = 0) -> list[Bucket]:
         miss = rows[~helped[rows]]
         miss_local = local[~helped[rows]]
         miss_people, miss_starts = np.unique(miss_local, return_index=True)
+        if miss_people.size == people.size:
+            miss_people = slice(None)          # everyone: a view, not a copy per evaluation
         buckets.append(Bucket(int(n), people, rows, local, starts, n_helped, miss,
                               miss_local, miss_people, miss_starts))
     return buckets
@@ -217,6 +219,9 @@ class SiteLikelihood:
         self._no_response = data.result == NO_RESPONSE
         self._row_weight = self.weight[data.person]
         self._slope_base = np.where(self._helped, -1.0, 0.0)    # d log(w c) / d u = -1
+        self._no_response_f = self._no_response.astype(float)
+        self._helped_rows = np.flatnonzero(self._helped)
+        self._helped_person = data.person[self._helped_rows]
 
     @property
     def has_ask_times(self) -> bool:
@@ -240,7 +245,7 @@ class SiteLikelihood:
         load, dload = self.loads(p)
         u = p.k_busy * self.data.busyness + p.k_load * load
         cq = np.exp(-u)
-        cq[self._no_response] *= p.notice_probability
+        cq *= 1.0 + self._no_response_f * (p.notice_probability - 1.0)
         return u, cq, load, dload
 
     def _evaluate(self, p: SiteParams, want_grad: bool):
@@ -254,15 +259,19 @@ class SiteLikelihood:
         r_jk = x_k c_j q'_j / (1 - x_k c_j q'_j); every derivative is a contraction of it."""
         d = self.data
         u, cq, load, dload = self._row_constants(p)
-        ll = -np.bincount(d.person[self._helped], u[self._helped], minlength=d.n_people)
+        ll = -np.bincount(self._helped_person, np.take(u, self._helped_rows),
+                          minlength=d.n_people).astype(float)     # int when none helped
         slope = self._slope_base.copy() if want_grad else None   # d logf_j / d u_j
         g_ab = np.zeros(2)
+        # np.take and einsum, not fancy indexing and matmul: several times faster on these
+        # tall, narrow arrays, and no BLAS threads (which stall on a loaded machine)
         for b in self.buckets:
             x, logw, dxa, dxb, dlwa, dlwb = _jacobi_cached(b.nodes, float(p.prior_a),
                                                            float(p.prior_b))
-            s = b.n_helped[:, None] * np.log(x)[None, :] + logw[None, :]
+            s = np.multiply.outer(b.n_helped, np.log(x))
+            s += logw
             if b.miss_rows.size:
-                e = cq[b.miss_rows][:, None] * x[None, :]
+                e = np.multiply.outer(np.take(cq, b.miss_rows), x)
                 one_minus = 1.0 - e
                 s[b.miss_people] += np.add.reduceat(np.log(one_minus), b.miss_starts, axis=0)
             lli = logsumexp(s, axis=1)
@@ -270,24 +279,23 @@ class SiteLikelihood:
             if not want_grad:
                 continue
             post = np.exp(s - lli[:, None])      # posterior weights of the nodes per person
-            wp = self.weight[b.people]
-            # d log summand / d a0 = d log w_k + (H_i - sum_j r_jk) dx_k / x_k (same for b0)
-            per = post @ np.column_stack([dlwa, dlwb, dxa / x, dxb / x])
-            g_ab[0] += wp @ (per[:, 0] + b.n_helped * per[:, 2])
-            g_ab[1] += wp @ (per[:, 1] + b.n_helped * per[:, 3])
+            # d log summand_k / d a0 = d log w_k + (H_i - sum_j r_jk) dx_k / x_k (b0 alike)
+            va, vb = dxa / x, dxb / x
+            coef = b.n_helped[:, None] * post
             if b.miss_rows.size:
-                r = (post[b.miss_local] * (1.0 / one_minus - 1.0)) @ np.column_stack(
-                    [np.ones_like(x), dxa / x, dxb / x])
-                wr = self._row_weight[b.miss_rows]
-                g_ab[0] -= wr @ r[:, 1]
-                g_ab[1] -= wr @ r[:, 2]
-                slope[b.miss_rows] = r[:, 0]
+                ratio = np.divide(e, one_minus, out=e)                      # r_jk
+                slope[b.miss_rows] = np.einsum("ij,ij->i", np.take(post, b.miss_local, axis=0),
+                                               ratio)
+                coef[b.miss_people] -= post[b.miss_people] * np.add.reduceat(
+                    ratio, b.miss_starts, axis=0)
+            wp = np.take(self.weight, b.people)
+            pw, cw = wp @ post, wp @ coef
+            g_ab += (pw @ dlwa + cw @ va, pw @ dlwb + cw @ vb)
         if not want_grad:
             return ll, None
         ws = slope * self._row_weight
-        nr = self._no_response
         g = np.array([g_ab[0], g_ab[1], ws @ d.busyness, ws @ load,
-                      -np.sum(ws[nr]) / p.notice_probability,
+                      -(ws @ self._no_response_f) / p.notice_probability,
                       p.k_load * (ws @ dload) if dload is not None else 0.0])
         return ll, g
 
