@@ -34,6 +34,7 @@ fractional weight; the data's own people count once.
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -65,34 +66,34 @@ def nodes_needed(n_outcomes: np.ndarray, extra_degree: int = 0) -> np.ndarray:
     return degree // 2 + 1
 
 
-def _jacobi_entries(n: int, al, be) -> tuple[np.ndarray, np.ndarray]:
+def _jacobi_entries(n: int, al: np.ndarray, be: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Diagonal and off-diagonal of the Jacobi matrix of the Beta(a0, b0) measure, normalised
     (so no overflow of the 2^(alpha+beta+1) B(.,.) total mass that scipy's roots_jacobi forms);
-    al = b0 - 1, be = a0 - 1, real or complex (the complex step differentiates them)."""
-    dtype = complex if isinstance(al, complex) or isinstance(be, complex) else float
+    al = b0 - 1, be = a0 - 1 as columns (one row per point; complex: the complex step)."""
     k = np.arange(n, dtype=float)
     s = 2.0 * k + al + be
     with np.errstate(divide="ignore", invalid="ignore"):
-        diag = np.asarray((be * be - al * al) / (s * (s + 2.0)), dtype)
-    diag[0] = (be - al) / (al + be + 2.0)
+        diag = (be * be - al * al) / (s * (s + 2.0))
+    diag[:, 0] = ((be - al) / (al + be + 2.0))[:, 0]
     m = np.arange(1, n, dtype=float)
     sm = 2.0 * m + al + be
     with np.errstate(divide="ignore", invalid="ignore"):
-        off2 = np.asarray(4.0 * m * (m + al) * (m + be) * (m + al + be)
-                          / (sm * sm * (sm + 1.0) * (sm - 1.0)), dtype)
+        off2 = 4.0 * m * (m + al) * (m + be) * (m + al + be) / (sm * sm * (sm + 1.0) * (sm - 1.0))
     if n > 1:    # first term with (1 + al + be) cancelled (finite when a0 + b0 = 1)
-        off2[0] = 4.0 * (1.0 + al) * (1.0 + be) / ((2.0 + al + be) ** 2 * (3.0 + al + be))
+        off2[:, 0] = (4.0 * (1.0 + al) * (1.0 + be)
+                      / ((2.0 + al + be) ** 2 * (3.0 + al + be)))[:, 0]
     return diag, np.sqrt(off2)
 
 
 def _log_christoffel(t: np.ndarray, diag: np.ndarray, off: np.ndarray) -> np.ndarray:
     """log of the Gauss weights 1 / sum_j p_j(t)^2 (p_j orthonormal for the measure, by the
-    three-term recurrence): relative accuracy even for tiny weights, which an eigenvector's
-    first component squared lacks; analytic in its inputs, so the complex step applies."""
+    three-term recurrence; one row per point): relative accuracy even for tiny weights, which
+    an eigenvector's first component squared lacks; analytic, so the complex step applies."""
     p_prev, p = np.zeros_like(t), np.ones_like(t)
     total = np.ones_like(t)
-    for j in range(diag.size - 1):
-        p_prev, p = p, ((t - diag[j]) * p - (off[j - 1] * p_prev if j else 0.0)) / off[j]
+    for j in range(diag.shape[1] - 1):
+        p_prev, p = p, ((t - diag[:, j:j + 1]) * p
+                        - (off[:, j - 1:j] * p_prev if j else 0.0)) / off[:, j:j + 1]
         total = total + p * p
     return -np.log(total)
 
@@ -105,31 +106,33 @@ def _jacobi_cached(n: int, a0: float, b0: float) -> tuple[np.ndarray, ...]:
     """Golub-Welsch nodes of the Beta(a0, b0) measure, Christoffel log weights, and their
     derivatives in a0 and b0: the nodes' by Hellmann-Feynman (dt_k = v_k' dJ v_k), the
     weights' by the complex step through the recurrence.  The rule is exact for the
-    likelihood's polynomial at every (a0, b0), so these give its exact derivative there."""
-    al, be = b0 - 1.0, a0 - 1.0             # Jacobi weight (1-t)^al (1+t)^be, w = (1+t)/2
-    diag, off = _jacobi_entries(n, al, be)
+    likelihood's polynomial at every (a0, b0), so these give its exact derivative there.
+    Row 0 steps a0 (be), row 1 b0 (al); their real parts are the values themselves."""
+    h = COMPLEX_STEP
+    al = np.array([[b0 - 1.0 + 0j], [b0 - 1.0 + 1j * h]])   # Jacobi weight (1-t)^al (1+t)^be,
+    be = np.array([[a0 - 1.0 + 1j * h], [a0 - 1.0 + 0j]])   # w = (1+t)/2
+    diag_c, off_c = _jacobi_entries(n, al, be)
+    diag, off = diag_c[0].real.copy(), off_c[0].real.copy()
     if n == 1:
         t, vecs = diag.copy(), np.ones((1, 1))
     else:
         t, vecs = eigh_tridiagonal(diag, off)
-    logw = _log_christoffel(t, diag, off)
-    logw -= logsumexp(logw)                 # weights of a probability measure (rounding)
+    dt = (diag_c.imag / h) @ (vecs * vecs)
+    if n > 1:
+        dt += 2.0 * (off_c.imag / h) @ (vecs[:-1] * vecs[1:])
+    lw = _log_christoffel(t[None, :] + 1j * h * dt, diag_c, off_c)
+    logw = lw[0].real.copy()
+    shift = np.max(logw)                     # weights of a probability measure (rounding)
+    logw -= shift + math.log(np.sum(np.exp(logw - shift)))
+    g = np.exp(logw)
+    dlogw = lw.imag / h
+    dlogw -= (dlogw @ g)[:, None]            # keep the normalisation's derivative exact too
     x = np.clip(0.5 * (t + 1.0), 1e-300, 1.0 - 1e-16)
-    dx, dlogw = [], []
-    for step in ((0.0, COMPLEX_STEP), (COMPLEX_STEP, 0.0)):   # d/d a0 (be), d/d b0 (al)
-        d_c, o_c = _jacobi_entries(n, al + 1j * step[0], be + 1j * step[1])
-        dd, do = d_c.imag / COMPLEX_STEP, o_c.imag / COMPLEX_STEP
-        dt = np.sum(dd[:, None] * vecs * vecs, axis=0)
-        if n > 1:
-            dt += 2.0 * np.sum(do[:, None] * vecs[:-1] * vecs[1:], axis=0)
-        lw = _log_christoffel(t + 1j * COMPLEX_STEP * dt, d_c, o_c)
-        dx.append(0.5 * dt)
-        dlogw.append(lw.imag / COMPLEX_STEP)
-    g = np.exp(logw)                        # keep the normalisation's derivative exact too
-    dlogw = [d - float(g @ d) for d in dlogw]
-    for arr in (x, logw, *dx, *dlogw):
+    dx = 0.5 * dt
+    out = (x, logw, dx[0], dx[1], dlogw[0], dlogw[1])
+    for arr in out:
         arr.setflags(write=False)
-    return x, logw, dx[0], dx[1], dlogw[0], dlogw[1]
+    return out
 
 
 def beta_rule(n: int, a0: float, b0: float) -> tuple[np.ndarray, np.ndarray]:
@@ -220,6 +223,7 @@ class SiteLikelihood:
         self._row_weight = self.weight[data.person]
         self._slope_base = np.where(self._helped, -1.0, 0.0)    # d log(w c) / d u = -1
         self._no_response_f = self._no_response.astype(float)
+        self._buffers: tuple | None = None
         self._helped_rows = np.flatnonzero(self._helped)
         self._helped_person = data.person[self._helped_rows]
 
@@ -239,6 +243,14 @@ class SiteLikelihood:
         return self._loads_at[1], self._loads_at[2]
 
     # -- the likelihood and its gradient ------------------------------------------------
+    def _work(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Three buffers of one value per not-helped row and node, kept between evaluations
+        (so an instance is not for concurrent use; each refit builds its own)."""
+        if self._buffers is None:
+            size = max((b.miss_rows.size * b.nodes for b in self.buckets), default=0)
+            self._buffers = tuple(np.empty(size) for _ in range(3))
+        return self._buffers
+
     def _row_constants(self, p: SiteParams):
         """Per row: u = k_busy x + k_load f (c = exp(-u)) and the chance c q' a not-helped
         row's factor removes per unit of w (q' = q for no response, 1 for a decline)."""
@@ -263,17 +275,25 @@ class SiteLikelihood:
                           minlength=d.n_people).astype(float)     # int when none helped
         slope = self._slope_base.copy() if want_grad else None   # d logf_j / d u_j
         g_ab = np.zeros(2)
-        # np.take and einsum, not fancy indexing and matmul: several times faster on these
-        # tall, narrow arrays, and no BLAS threads (which stall on a loaded machine)
+        work = self._work()
+        # np.take, einsum and ufuncs into kept buffers, not fancy indexing, matmul and fresh
+        # arrays: several times faster on these tall, narrow arrays (no page faults of new
+        # memory, no BLAS threads, which stall on a loaded machine)
         for b in self.buckets:
             x, logw, dxa, dxb, dlwa, dlwb = _jacobi_cached(b.nodes, float(p.prior_a),
                                                            float(p.prior_b))
             s = np.multiply.outer(b.n_helped, np.log(x))
             s += logw
-            if b.miss_rows.size:
-                e = np.multiply.outer(np.take(cq, b.miss_rows), x)
-                one_minus = 1.0 - e
-                s[b.miss_people] += np.add.reduceat(np.log(one_minus), b.miss_starts, axis=0)
+            m = b.miss_rows.size
+            if m:
+                e, log_one_minus, post_rows = (w[:m * b.nodes].reshape(m, b.nodes)
+                                               for w in work)
+                np.multiply.outer(np.take(cq, b.miss_rows), x, out=e)
+                np.subtract(1.0, e, out=log_one_minus)
+                if want_grad:
+                    np.divide(e, log_one_minus, out=e)          # r_jk = e / (1 - e)
+                np.log(log_one_minus, out=log_one_minus)
+                s[b.miss_people] += np.add.reduceat(log_one_minus, b.miss_starts, axis=0)
             lli = logsumexp(s, axis=1)
             ll[b.people] += lli
             if not want_grad:
@@ -282,21 +302,22 @@ class SiteLikelihood:
             # d log summand_k / d a0 = d log w_k + (H_i - sum_j r_jk) dx_k / x_k (b0 alike)
             va, vb = dxa / x, dxb / x
             coef = b.n_helped[:, None] * post
-            if b.miss_rows.size:
-                ratio = np.divide(e, one_minus, out=e)                      # r_jk
-                slope[b.miss_rows] = np.einsum("ij,ij->i", np.take(post, b.miss_local, axis=0),
-                                               ratio)
+            if m:
+                ratio = e
+                np.take(post, b.miss_local, axis=0, out=post_rows, mode="clip")
+                slope[b.miss_rows] = np.einsum("ij,ij->i", post_rows, ratio)
                 coef[b.miss_people] -= post[b.miss_people] * np.add.reduceat(
                     ratio, b.miss_starts, axis=0)
             wp = np.take(self.weight, b.people)
-            pw, cw = wp @ post, wp @ coef
+            pw, cw = np.einsum("i,ij->j", wp, post), np.einsum("i,ij->j", wp, coef)
             g_ab += (pw @ dlwa + cw @ va, pw @ dlwb + cw @ vb)
         if not want_grad:
             return ll, None
         ws = slope * self._row_weight
-        g = np.array([g_ab[0], g_ab[1], ws @ d.busyness, ws @ load,
-                      -(ws @ self._no_response_f) / p.notice_probability,
-                      p.k_load * (ws @ dload) if dload is not None else 0.0])
+        dot = lambda col: float(np.einsum("i,i->", ws, col))    # noqa: E731
+        g = np.array([g_ab[0], g_ab[1], dot(d.busyness), dot(load),
+                      -dot(self._no_response_f) / p.notice_probability,
+                      p.k_load * dot(dload) if dload is not None else 0.0])
         return ll, g
 
     def value_and_grad(self, p: SiteParams) -> tuple[float, np.ndarray]:
@@ -304,7 +325,7 @@ class SiteLikelihood:
         log h)."""
         ll_i, g = self._evaluate(p, want_grad=True)
         rep, rep_q, rep_t = self.reporting_term(p)
-        return (float(self.weight @ ll_i) + rep,
+        return (float(np.einsum("i,i->", self.weight, ll_i)) + rep,
                 np.array([g[0], g[1], g[2], g[3], g[4] + rep_q, rep_t, g[5]]))
 
     def reporting_term(self, p: SiteParams) -> tuple[float, float, float]:
@@ -324,7 +345,7 @@ class SiteLikelihood:
 
     def loglik(self, p: SiteParams) -> float:
         ll, _ = self._evaluate(p, want_grad=False)
-        return float(self.weight @ ll) + self.reporting_term(p)[0]
+        return float(np.einsum("i,i->", self.weight, ll)) + self.reporting_term(p)[0]
 
     def per_person(self, p: SiteParams) -> np.ndarray:
         """log L_i per person (unweighted, without the reporting factor)."""
