@@ -24,8 +24,11 @@ The ask load.  With `ask_memory_half_life_s` set and the data carrying ask times
 (`OutcomeData.prior_asks`), f_j is recomputed under that half-life from the asks before row j
 (f_j = sum_k 2^(-age_jk / h), the core's ask_load), so h is a constant of the likelihood like
 the others, with an analytic derivative; otherwise f_j is the data's `load` column.  The loads
-of the last half-life asked for are kept, so the prior's finite differences (which move only
-a0, b0) reuse them.
+of the last half-life asked for are kept (steps in the other constants reuse them).
+
+Derivatives.  Analytic in every constant; in a0, b0 through the rule's nodes and weights,
+which move with them (beta_rule_derivatives): the rule is exact for the polynomial at every
+a0, b0, so the derivative of the rule's sum is the likelihood's own.
 
 Weights.  A person may count w_i times (`OutcomeData.weight`): the pseudo-outcomes that
 shrink an online refit towards the parameter file (fit/pseudo_outcomes.py) are people of
