@@ -91,8 +91,8 @@ def test_marginal_with_context_matches_numerical_integration():
 
 @pytest.mark.parametrize("with_ask_times", [False, True])
 def test_gradient_matches_finite_differences(with_ask_times):
-    # scipy.optimize.check_grad against the analytic (k, q, tau, log h) and 5-point (a0, b0)
-    # gradient; with ask times the load is recomputed under each half-life
+    # scipy.optimize.check_grad against the analytic gradient (a0, b0 through the moving
+    # Gauss-Jacobi nodes); with ask times the load is recomputed under each half-life
     truth = SiteParams(2.0, 3.0, 1.5, 0.7, 0.6, 0.7, 3600.0)
     data = (simulate_with_asks(truth, 120, 8, seed=11, unanswered=0.2).data if with_ask_times
             else simulate(truth, 120, 8, seed=11))

@@ -8,9 +8,9 @@ under each h inside the likelihood) and k_load is free; with k_load at 0 it has 
 is reported as not identified.  An online refit adds pseudo-outcomes from the parameter file
 (`pseudo`, fit/pseudo_outcomes.py) as a second term of the same likelihood: the objective,
 its gradient, the verdict and the standard errors are all of that penalised sum.
-Gradient: analytic in k_busy, k_load, q, tau, log h (the Gauss-Jacobi nodes do not depend on them);
-in log a0 and log b0 a five-point central difference of the exact quadrature (the nodes move
-with a0, b0; the integral is exact so the function is smooth to rounding).  Standard errors
+Gradient: analytic in every coordinate; in a0 and b0 through the Gauss-Jacobi nodes and
+weights, which move with them (site_likelihood.beta_rule_derivatives: the rule is exact for
+the likelihood at every a0, b0, so its derivative is the likelihood's).  Standard errors
 come from the Hessian (central differences of that gradient) on the transformed scale,
 carried back by the delta method.  Whether the fit reached its maximum is judged from the
 solution itself (fit/convergence.py), never from the optimiser's status.
@@ -143,11 +143,11 @@ class Objective:
     """
 
     def __init__(self, lik: SiteLikelihood | Sequence[SiteLikelihood], free: np.ndarray,
-                 fixed_theta: np.ndarray, fd_step: float = 2e-3, half_life: bool = True,
+                 fixed_theta: np.ndarray, half_life: bool = True,
                  quadratic: tuple[np.ndarray, np.ndarray] | None = None):
         self.liks = [lik] if isinstance(lik, SiteLikelihood) else list(lik)
         self.lik = self.liks[0]
-        self.free, self.base, self.h = free, fixed_theta.copy(), fd_step
+        self.free, self.base = free, fixed_theta.copy()
         self.half_life = half_life
         # -(1/2) (theta - centre)' P (theta - centre): the shrinkage's curvature floor
         self.quadratic = quadratic
@@ -174,29 +174,15 @@ class Objective:
 
     def loglik_and_grad(self, th: np.ndarray) -> tuple[float, np.ndarray]:
         p = self.params(th)
-        ll, nat = 0.0, np.zeros(5)          # d/d (k_busy, k_load, q, tau, log h)
+        ll, nat = 0.0, np.zeros(len(NAMES))   # d/d (a0, b0, k_busy, k_load, q, tau, log h)
         for lik in self.liks:
             v, g_nat = lik.value_and_grad(p)
             ll += v
             nat += g_nat
-        g = np.zeros(len(NAMES))
-        jac = natural_jacobian(th)
-        g[2], g[3] = nat[0], nat[1]
-        g[4] = nat[2] * jac[4]
-        g[5] = nat[3] * jac[5]
-        g[H] = nat[4] if self.half_life else 0.0
-        for k in (0, 1):     # five-point stencil: error O(h^4)
-            if not self.free[k]:
-                continue
-            vals = []
-            for m in (-2, -1, 1, 2):
-                t2 = th.copy()
-                t2[k] += m * self.h
-                vals.append(self.loglik_theta(t2))
-            g[k] = (vals[0] - 8 * vals[1] + 8 * vals[2] - vals[3]) / (12 * self.h)
-        q_val, q_grad = self._quadratic(th)   # the stencil above already includes it in a0, b0
-        g[2:] += q_grad[2:]
-        return ll + q_val, g
+        g = nat * natural_jacobian(th)        # log h is already the coordinate
+        g[H] = nat[H] if self.half_life else 0.0
+        q_val, q_grad = self._quadratic(th)
+        return ll + q_val, g + q_grad
 
     def __call__(self, z: np.ndarray) -> tuple[float, np.ndarray]:
         ll, g = self.loglik_and_grad(self.full(z))

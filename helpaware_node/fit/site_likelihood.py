@@ -24,8 +24,11 @@ The ask load.  With `ask_memory_half_life_s` set and the data carrying ask times
 (`OutcomeData.prior_asks`), f_j is recomputed under that half-life from the asks before row j
 (f_j = sum_k 2^(-age_jk / h), the core's ask_load), so h is a constant of the likelihood like
 the others, with an analytic derivative; otherwise f_j is the data's `load` column.  The loads
-of the last half-life asked for are kept, so the prior's finite differences (which move only
-a0, b0) reuse them.
+of the last half-life asked for are kept (steps in the other constants reuse them).
+
+Derivatives.  Analytic in every constant; in a0, b0 through the rule's nodes and weights,
+which move with them (beta_rule_derivatives): the rule is exact for the polynomial at every
+a0, b0, so the derivative of the rule's sum is the likelihood's own.
 
 Weights.  A person may count w_i times (`OutcomeData.weight`): the pseudo-outcomes that
 shrink an online refit towards the parameter file (fit/pseudo_outcomes.py) are people of
@@ -34,6 +37,7 @@ fractional weight; the data's own people count once.
 from __future__ import annotations
 
 import functools
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -67,40 +71,91 @@ def nodes_needed(n_outcomes: np.ndarray, extra_degree: int = 0) -> np.ndarray:
     return degree // 2 + 1
 
 
-@functools.lru_cache(maxsize=256)
-def _jacobi_cached(n: int, a0: float, b0: float) -> tuple[np.ndarray, np.ndarray]:
-    """Return the Gauss-Jacobi nodes and weights by Golub-Welsch.
+def _jacobi_entries(n: int, al: np.ndarray, be: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Diagonal and off-diagonal of the Jacobi matrix of the Beta(a0, b0) measure.
 
-    Golub-Welsch on the Jacobi matrix of the Beta(a0, b0) measure (normalised, so no overflow of
-    the 2^(alpha+beta+1) B(.,.) total mass that scipy's roots_jacobi forms).
+    Normalised (so no overflow of the 2^(alpha+beta+1) B(.,.) total mass that scipy's roots_jacobi
+    forms); al = b0 - 1, be = a0 - 1 as columns (one row per point; complex: the complex step).
     """
-    al, be = b0 - 1.0, a0 - 1.0             # Jacobi weight (1-t)^al (1+t)^be, w = (1+t)/2
     k = np.arange(n, dtype=float)
     s = 2.0 * k + al + be
     with np.errstate(divide="ignore", invalid="ignore"):
         diag = (be * be - al * al) / (s * (s + 2.0))
-    diag[0] = (be - al) / (al + be + 2.0)
+    diag[:, 0] = ((be - al) / (al + be + 2.0))[:, 0]
     m = np.arange(1, n, dtype=float)
     sm = 2.0 * m + al + be
     with np.errstate(divide="ignore", invalid="ignore"):
         off2 = 4.0 * m * (m + al) * (m + be) * (m + al + be) / (sm * sm * (sm + 1.0) * (sm - 1.0))
     if n > 1:    # first term with (1 + al + be) cancelled (finite when a0 + b0 = 1)
-        off2[0] = 4.0 * (1.0 + al) * (1.0 + be) / ((2.0 + al + be) ** 2 * (3.0 + al + be))
+        off2[:, 0] = (4.0 * (1.0 + al) * (1.0 + be)
+                      / ((2.0 + al + be) ** 2 * (3.0 + al + be)))[:, 0]
+    return diag, np.sqrt(off2)
+
+
+def _log_christoffel(t: np.ndarray, diag: np.ndarray, off: np.ndarray) -> np.ndarray:
+    """Return the log Christoffel weights by the three-term recurrence.
+
+    log of the Gauss weights 1 / sum_j p_j(t)^2 (p_j orthonormal for the measure, by the three-term
+    recurrence; one row per point): relative accuracy even for tiny weights, which an eigenvector's
+    first component squared lacks; analytic, so the complex step applies.
+    """
+    p_prev, p = np.zeros_like(t), np.ones_like(t)
+    total = np.ones_like(t)
+    for j in range(diag.shape[1] - 1):
+        p_prev, p = p, ((t - diag[:, j:j + 1]) * p
+                        - (off[:, j - 1:j] * p_prev if j else 0.0)) / off[:, j:j + 1]
+        total = total + p * p
+    return -np.log(total)
+
+
+COMPLEX_STEP = 1e-30     # exact first derivatives (no subtraction), any step this small
+
+
+@functools.lru_cache(maxsize=256)
+def _jacobi_cached(n: int, a0: float, b0: float) -> tuple[np.ndarray, ...]:
+    """Golub-Welsch nodes of the Beta(a0, b0) measure, Christoffel log weights.
+
+    Their derivatives in a0 and b0: the nodes' by Hellmann-Feynman (dt_k = v_k' dJ v_k), the
+    weights' by the complex step through the recurrence.  The rule is exact for the likelihood's
+    polynomial at every (a0, b0), so these give its exact derivative there. Row 0 steps a0 (be),
+    row 1 b0 (al); their real parts are the values themselves.
+    """
+    h = COMPLEX_STEP
+    al = np.array([[b0 - 1.0 + 0j], [b0 - 1.0 + 1j * h]])   # Jacobi weight (1-t)^al (1+t)^be,
+    be = np.array([[a0 - 1.0 + 1j * h], [a0 - 1.0 + 0j]])   # w = (1+t)/2
+    diag_c, off_c = _jacobi_entries(n, al, be)
+    diag, off = diag_c[0].real.copy(), off_c[0].real.copy()
     if n == 1:
-        t, vec0 = diag.copy(), np.ones(1)
+        t, vecs = diag.copy(), np.ones((1, 1))
     else:
-        t, vecs = eigh_tridiagonal(diag, np.sqrt(off2))
-        vec0 = vecs[0]
+        t, vecs = eigh_tridiagonal(diag, off)
+    dt = (diag_c.imag / h) @ (vecs * vecs)
+    if n > 1:
+        dt += 2.0 * (off_c.imag / h) @ (vecs[:-1] * vecs[1:])
+    lw = _log_christoffel(t[None, :] + 1j * h * dt, diag_c, off_c)
+    logw = lw[0].real.copy()
+    shift = np.max(logw)                     # weights of a probability measure (rounding)
+    logw -= shift + math.log(np.sum(np.exp(logw - shift)))
+    g = np.exp(logw)
+    dlogw = lw.imag / h
+    dlogw -= (dlogw @ g)[:, None]            # keep the normalisation's derivative exact too
     x = np.clip(0.5 * (t + 1.0), 1e-300, 1.0 - 1e-16)
-    with np.errstate(divide="ignore"):
-        logw = np.log(vec0 * vec0)
-    logw -= logsumexp(logw)                 # weights of a probability measure
-    return x, logw
+    dx = 0.5 * dt
+    out = (x, logw, dx[0], dx[1], dlogw[0], dlogw[1])
+    for arr in out:
+        arr.setflags(write=False)
+    return out
 
 
 def beta_rule(n: int, a0: float, b0: float) -> tuple[np.ndarray, np.ndarray]:
     """Nodes on (0, 1) and log weights summing to 1 for E_{Beta(a0, b0)}[g(w)]."""
-    return _jacobi_cached(int(n), float(a0), float(b0))
+    rule = _jacobi_cached(int(n), float(a0), float(b0))
+    return rule[0], rule[1]
+
+
+def beta_rule_derivatives(n: int, a0: float, b0: float) -> tuple[np.ndarray, ...]:
+    """(d x/d a0, d x/d b0, d log w/d a0, d log w/d b0) of beta_rule's nodes and weights."""
+    return _jacobi_cached(int(n), float(a0), float(b0))[2:]
 
 
 @dataclass(frozen=True)
@@ -110,6 +165,13 @@ class Bucket:
     rows: np.ndarray          # outcome rows of these people (contiguous per person)
     local_person: np.ndarray  # per row: index into `people`
     starts: np.ndarray        # per person: first position in `rows`
+    # the likelihood's split (parameter-free, built once): a helped row's factor w c is a
+    # power of w times a constant, so only the other rows need a value at every node
+    n_helped: np.ndarray      # per person: helped rows (float)
+    miss_rows: np.ndarray     # rows not helped, per person in order
+    miss_local: np.ndarray    # per such row: index into `people`
+    miss_people: np.ndarray | slice   # people with such rows (into `people`; all: a slice)
+    miss_starts: np.ndarray   # per such person: first position in `miss_rows`
 
 
 def make_buckets(data: OutcomeData, extra_degree: int = 0) -> list[Bucket]:
@@ -119,13 +181,22 @@ def make_buckets(data: OutcomeData, extra_degree: int = 0) -> list[Bucket]:
     if need.max(initial=1) > ladder[-1]:
         ladder = np.append(ladder, need.max())
     rung = ladder[np.searchsorted(ladder, need)]
+    helped = data.result == HELPED
     buckets = []
     for n in np.unique(rung[counts > 0]):
         people = np.flatnonzero((rung == n) & (counts > 0))
         rows = np.flatnonzero(np.isin(data.person, people))
         local = np.searchsorted(people, data.person[rows])
         starts = np.searchsorted(local, np.arange(people.size))
-        buckets.append(Bucket(int(n), people, rows, local, starts))
+        n_helped = np.bincount(local, helped[rows], minlength=people.size).astype(float)
+        miss = rows[~helped[rows]]
+        miss_local = local[~helped[rows]]
+        missing, miss_starts = np.unique(miss_local, return_index=True)
+        # everyone: a view, not a copy per evaluation
+        miss_people: np.ndarray | slice = (slice(None) if missing.size == people.size
+                                           else missing)
+        buckets.append(Bucket(int(n), people, rows, local, starts, n_helped, miss,
+                              miss_local, miss_people, miss_starts))
     return buckets
 
 
@@ -161,6 +232,14 @@ class SiteLikelihood:
         self.use_reporting_factor = (self.n_no_response > 0 if use_reporting_factor is None
                                      else use_reporting_factor)
         self._loads_at: tuple | None = None      # (half-life, loads, d loads / d log h)
+        self._helped = data.result == HELPED
+        self._no_response = data.result == NO_RESPONSE
+        self._row_weight = self.weight[data.person]
+        self._slope_base = np.where(self._helped, -1.0, 0.0)    # d log(w c) / d u = -1
+        self._no_response_f = self._no_response.astype(float)
+        self._buffers: tuple | None = None
+        self._helped_rows = np.flatnonzero(self._helped)
+        self._helped_person = data.person[self._helped_rows]
 
     @property
     def has_ask_times(self) -> bool:
@@ -179,62 +258,103 @@ class SiteLikelihood:
             self._loads_at = (h, load, dload)
         return self._loads_at[1], self._loads_at[2]
 
-    # -- per-row log factors at the nodes ------------------------------------------------
-    def _row_terms(self, b: Bucket, x: np.ndarray, p: SiteParams, want_grad: bool):
-        d = self.data
-        load, dload = self.loads(p)
-        xb, fb, rb = d.busyness[b.rows], load[b.rows], d.result[b.rows]
-        logc = -(p.k_busy * xb + p.k_load * fb)[:, None]
-        c = np.exp(logc)
-        helped = (rb == HELPED)[:, None]
-        q_row = np.where(rb == NO_RESPONSE, p.notice_probability, 1.0)[:, None]
-        e = x[None, :] * c * q_row                       # chance the factor removes
-        with np.errstate(divide="ignore"):
-            log_fail = np.log1p(-e)
-        logf = np.where(helped, np.log(x)[None, :] + logc, log_fail)
-        if not want_grad:
-            return logf, None
-        ratio = np.where(helped, 0.0, e / (1.0 - e))     # d/d(-log c) of log(1 - e)
-        # d logf / d(-log c) is -1 (helped) or ratio (not helped); -log c = k_busy x + k_load f
-        slope = np.where(helped, -1.0, ratio)
-        dk_busy = slope * xb[:, None]
-        dk_load = slope * fb[:, None]
-        nr = (rb == NO_RESPONSE)[:, None]
-        dq = np.where(nr, -(x[None, :] * c) / (1.0 - e), 0.0)
-        # half-life: f_j moves with log h, so d logf / d log h = slope k_load df_j/dlog h
-        dlog_h = (slope * (p.k_load * dload[b.rows])[:, None] if dload is not None
-                  else np.zeros_like(dk_busy))
-        return logf, (dk_busy, dk_load, dq, dlog_h)
+    # -- the likelihood and its gradient ------------------------------------------------
+    def _work(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """Three buffers of one value per not-helped row and node.
 
-    def per_person(self, p: SiteParams, want_grad: bool = False):
-        """Return log L_i per person (unweighted, without the reporting factor) and, if asked.
-
-        d/d(k_busy, k_load, q, log h) per person at fixed nodes (the nodes depend on a0, b0 only).
+        Kept between evaluations (so an instance is not for concurrent use; each refit builds its
+        own).
         """
-        ll = np.zeros(self.data.n_people)
-        grad = np.zeros((self.data.n_people, 4)) if want_grad else None
+        if self._buffers is None:
+            size = max((b.miss_rows.size * b.nodes for b in self.buckets), default=0)
+            self._buffers = tuple(np.empty(size) for _ in range(3))
+        return self._buffers
+
+    def _row_constants(self, p: SiteParams):
+        """Return per row u = k_busy x + k_load f and the factor's removal chance per unit w.
+
+        Per row: u = k_busy x + k_load f (c = exp(-u)) and the chance c q' a not-helped row's
+        factor removes per unit of w (q' = q for no response, 1 for a decline).
+        """
+        load, dload = self.loads(p)
+        u = p.k_busy * self.data.busyness + p.k_load * load
+        cq = np.exp(-u)
+        cq *= 1.0 + self._no_response_f * (p.notice_probability - 1.0)
+        return u, cq, load, dload
+
+    def _evaluate(self, p: SiteParams, want_grad: bool):
+        """Return log L_i per person and, if asked, the weighted gradient.
+
+        log L_i is unweighted and without the reporting factor; the gradient is in (a0, b0,
+        k_busy, k_load, q, log h).
+
+        Per person, log L_i = log sum_k w_k x_k^H_i prod_(j not helped) (1 - x_k c_j q'_j)
+        - sum_(j helped) u_j.  Its derivative is the posterior mean over the nodes of the
+        derivative of the log summand, the nodes and weights moving with a0, b0 (exactly:
+        beta_rule_derivatives).  Per row only one value at each node is formed,
+        r_jk = x_k c_j q'_j / (1 - x_k c_j q'_j); every derivative is a contraction of it.
+        """
+        d = self.data
+        u, cq, load, dload = self._row_constants(p)
+        ll = -np.bincount(self._helped_person, np.take(u, self._helped_rows),
+                          minlength=d.n_people).astype(float)     # int when none helped
+        slope = self._slope_base.copy() if want_grad else None   # d logf_j / d u_j
+        g_ab = np.zeros(2)
+        work = self._work()
+        # np.take, einsum and ufuncs into kept buffers, not fancy indexing, matmul and fresh
+        # arrays: several times faster on these tall, narrow arrays (no page faults of new
+        # memory, no BLAS threads, which stall on a loaded machine)
         for b in self.buckets:
-            x, logw = beta_rule(b.nodes, p.prior_a, p.prior_b)
-            logf, parts = self._row_terms(b, x, p, want_grad)
-            s = np.add.reduceat(logf, b.starts, axis=0) + logw[None, :]
+            x, logw, dxa, dxb, dlwa, dlwb = _jacobi_cached(b.nodes, float(p.prior_a),
+                                                           float(p.prior_b))
+            s = np.multiply.outer(b.n_helped, np.log(x))
+            s += logw
+            m = b.miss_rows.size
+            if m:
+                e, log_one_minus, post_rows = (w[:m * b.nodes].reshape(m, b.nodes)
+                                               for w in work)
+                np.multiply.outer(np.take(cq, b.miss_rows), x, out=e)
+                np.subtract(1.0, e, out=log_one_minus)
+                if want_grad:
+                    np.divide(e, log_one_minus, out=e)          # r_jk = e / (1 - e)
+                np.log(log_one_minus, out=log_one_minus)
+                s[b.miss_people] += np.add.reduceat(log_one_minus, b.miss_starts, axis=0)
             lli = logsumexp(s, axis=1)
-            ll[b.people] = lli
-            if grad is not None:
-                post = np.exp(s - lli[:, None])          # posterior weights per person
-                rowpost = post[b.local_person]
-                for k, part in enumerate(parts):
-                    grad[b.people, k] = np.bincount(b.local_person,
-                                                    np.sum(rowpost * part, axis=1),
-                                                    minlength=b.people.size)
-        return ll, grad
+            ll[b.people] += lli
+            if not want_grad:
+                continue
+            post = np.exp(s - lli[:, None])      # posterior weights of the nodes per person
+            # d log summand_k / d a0 = d log w_k + (H_i - sum_j r_jk) dx_k / x_k (b0 alike)
+            va, vb = dxa / x, dxb / x
+            coef = b.n_helped[:, None] * post
+            if m:
+                ratio = e
+                assert slope is not None   # made with want_grad
+                np.take(post, b.miss_local, axis=0, out=post_rows, mode="clip")
+                slope[b.miss_rows] = np.einsum("ij,ij->i", post_rows, ratio)
+                coef[b.miss_people] -= post[b.miss_people] * np.add.reduceat(
+                    ratio, b.miss_starts, axis=0)
+            wp = np.take(self.weight, b.people)
+            pw, cw = np.einsum("i,ij->j", wp, post), np.einsum("i,ij->j", wp, coef)
+            g_ab += (pw @ dlwa + cw @ va, pw @ dlwb + cw @ vb)
+        if not want_grad:
+            return ll, None
+        ws = slope * self._row_weight
+        dot = lambda col: float(np.einsum("i,i->", ws, col))    # noqa: E731
+        g = np.array([g_ab[0], g_ab[1], dot(d.busyness), dot(load),
+                      -dot(self._no_response_f) / p.notice_probability,
+                      p.k_load * dot(dload) if dload is not None else 0.0])
+        return ll, g
 
     def value_and_grad(self, p: SiteParams) -> tuple[float, np.ndarray]:
-        """Weighted log-likelihood and its derivatives in (k_busy, k_load, q, tau, log h)."""
-        ll_i, g_i = self.per_person(p, want_grad=True)
+        """Return the weighted log-likelihood and its derivatives.
+
+        Weighted log-likelihood and its derivatives in (a0, b0, k_busy, k_load, q, tau, log h).
+        """
+        ll_i, g = self._evaluate(p, want_grad=True)
         rep, rep_q, rep_t = self.reporting_term(p)
-        wg = self.weight @ g_i
-        g = np.array([wg[0], wg[1], wg[2] + rep_q, rep_t, wg[3]])
-        return float(self.weight @ ll_i) + rep, g
+        return (float(np.einsum("i,i->", self.weight, ll_i)) + rep,
+                np.array([g[0], g[1], g[2], g[3], g[4] + rep_q, rep_t, g[5]]))
 
     def reporting_term(self, p: SiteParams) -> tuple[float, float, float]:
         """Return log of nu^H tau^D (1-tau)^R and its derivatives in q and tau (0 when unused)."""
@@ -252,24 +372,28 @@ class SiteLikelihood:
         return float(val), float(d_q), float(d_tau)
 
     def loglik(self, p: SiteParams) -> float:
-        ll, _ = self.per_person(p)
-        return float(self.weight @ ll) + self.reporting_term(p)[0]
+        ll, _ = self._evaluate(p, want_grad=False)
+        return float(np.einsum("i,i->", self.weight, ll)) + self.reporting_term(p)[0]
+
+    def per_person(self, p: SiteParams) -> np.ndarray:
+        """Return log L_i per person (unweighted, without the reporting factor)."""
+        return self._evaluate(p, want_grad=False)[0]
 
     # -- held-out prediction -----------------------------------------------------------
     def sequential_help_probability(self, p: SiteParams) -> np.ndarray:
         """P(help) of each row given only that person's earlier rows (exact posterior)."""
         out = np.zeros(self.data.n_outcomes)
+        u, cq, _, _ = self._row_constants(p)
         for b in make_buckets(self.data, extra_degree=1):
             x, logw = beta_rule(b.nodes, p.prior_a, p.prior_b)
-            logf, _ = self._row_terms(b, x, p, False)
+            with np.errstate(divide="ignore"):
+                logf = np.where(self._helped[b.rows, None], np.log(x)[None, :]
+                                - u[b.rows, None], np.log1p(-cq[b.rows, None] * x[None, :]))
             cum = np.cumsum(logf, axis=0)
             before_start = (cum[b.starts] - logf[b.starts])[b.local_person]
             excl = cum - logf - before_start + logw[None, :]
             post = np.exp(excl - logsumexp(excl, axis=1, keepdims=True))
-            d = self.data
-            load = self.loads(p)[0]
-            c = np.exp(-(p.k_busy * d.busyness[b.rows] + p.k_load * load[b.rows]))
-            out[b.rows] = c * (post @ x)
+            out[b.rows] = np.exp(-u[b.rows]) * (post @ x)
         return np.clip(out, 0.0, 1.0)
 
     def new_person_help_probability(self, p: SiteParams) -> np.ndarray:
