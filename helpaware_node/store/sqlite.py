@@ -24,7 +24,6 @@ import contextlib
 import datetime
 import hashlib
 import json
-import mmap
 import os
 import sqlite3
 import threading
@@ -44,6 +43,7 @@ DAY_S = 86400.0
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
 ASK_COLUMNS = "event_id, robot_id, person_key, time_s, request_kind, request_id"
 SQLITE_HEADER = b"SQLite format 3\x00"
+SCAN_CHUNK_BYTES = 1 << 20     # forget's search of the file, per read
 
 
 def set_pragmas(conn: sqlite3.Connection) -> None:
@@ -526,18 +526,25 @@ class SqliteStore:
         return "left"
 
     def file_holds(self, needle: bytes) -> bool:
-        """Whether the database file or its WAL holds these bytes anywhere (free pages too)."""
+        """Whether the database file or its WAL holds these bytes anywhere (free pages too).
+
+        Read in chunks: each read lets go of the interpreter, so a scan of a large file on a
+        worker does not hold the executor's thread for its length."""
+        overlap = len(needle) - 1
         for suffix in ("", "-wal"):
-            name = str(self.path) + suffix
             try:
-                with open(name, "rb") as fh:
-                    if os.fstat(fh.fileno()).st_size == 0:
-                        continue
-                    with mmap.mmap(fh.fileno(), 0, access=mmap.ACCESS_READ) as mm:
-                        if mm.find(needle) >= 0:
-                            return True
+                fh = open(str(self.path) + suffix, "rb", buffering=0)
             except FileNotFoundError:
                 continue
+            with fh:
+                tail = b""
+                while True:
+                    chunk = fh.read(SCAN_CHUNK_BYTES)
+                    if not chunk:
+                        break
+                    if needle in tail + chunk[:overlap] or needle in chunk:
+                        return True
+                    tail = chunk[-overlap:] if overlap else b""
         return False
 
     def checkpoint(self, c: sqlite3.Connection | None = None) -> None:
@@ -664,13 +671,13 @@ class SqliteStore:
         batch = sorted(asks, key=lambda a: (float(a.time_s), a.event_id))
         for a in batch:
             check_ask(a)
+        batch = [a for a in batch
+                 if a.person_key not in self._opted and a.person_key not in self._forgetting]
         if not batch:
             return []
         with self._batch() as c:
             stored = []
             for a in batch:
-                if a.person_key in self._opted or a.person_key in self._forgetting:
-                    continue
                 cur = c.execute(f"INSERT OR IGNORE INTO asks ({ASK_COLUMNS}) VALUES "
                                 "(?,?,?,?,?,?)", (a.event_id, a.robot_id, a.person_key,
                                                   float(a.time_s), a.request_kind,
