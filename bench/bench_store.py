@@ -99,13 +99,25 @@ def run(path: str, n_people: int, n_events: int, commits: int) -> int:
     rss_mb = max(r[4] for r in runs) / 1024.0
 
     progress(f"durable commit latency ({commits} of each, interleaved)")
+    t_next = n_events * 2.5 + 10.0
+    store_s, floor_s, removed, forget_s, stranger_s = commit_latency(path, n_people, t_next,
+                                                                     commits)
+
+    progress("the executor while store jobs run on the worker (5 ms timer, longest gap)")
+    gaps = executor_gaps(path, n_people, t_next)
+    report(n_people, n_events, size_mb, build_s, import_s, open_s, rss_mb, store_s, floor_s,
+           removed, forget_s, stranger_s, gaps)
+    return 0
+
+
+def commit_latency(path: str, n_people: int, t_next: float, commits: int):
+    """store.append beside its floor, interleaved; then a forget in the caller, as before."""
     store = SqliteStore(path, "bench", SITE_KEY)
     conn = store._conn      # the same file, connection and pragmas for the floor
     rng = random.Random(3)
     people = rng.sample(range(n_people), 2 * commits)
     keys = [person_key(SITE_KEY, f"person-{i}") for i in people[:commits]]
     floor_keys = [person_key(SITE_KEY, f"person-{i}") for i in people[commits:]]
-    t_next = n_events * 2.5 + 10.0
     store_s, floor_s = [], []
     for i in range(commits):
         e = StoredEvent(store.next_event_id(), keys[i], t_next + i, RESULTS[i % 3], 0.3, 0.4,
@@ -143,12 +155,13 @@ def run(path: str, n_people: int, n_events: int, commits: int) -> int:
     assert store.forget("ef" * 32) == 0
     stranger_s = time.perf_counter() - t
     store.close()
+    return store_s, floor_s, removed, forget_s, stranger_s
+
+
+def report(n_people, n_events, size_mb, build_s, import_s, open_s, rss_mb, store_s, floor_s,
+           removed, forget_s, stranger_s, gaps) -> None:
     med_store, med_floor = statistics.median(store_s), statistics.median(floor_s)
     p95 = lambda xs: sorted(xs)[int(0.95 * (len(xs) - 1))]  # noqa: E731
-
-    progress("the executor while store jobs run on the worker (5 ms timer, longest gap)")
-    gaps = executor_gaps(path, n_people, t_next)
-
     print()
     print(f"people {n_people}, events {n_events}, file {size_mb:.1f} MB, build {build_s:.1f} s")
     print(f"{'measure':<52}{'value':>14}")
