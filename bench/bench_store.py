@@ -243,7 +243,7 @@ def executor_gaps(path: str, n_people: int, t_end: float) -> dict:
             timer.cancel()
         timer = node.create_timer(0.001, run)
         return Sync
-    measure("forget in callback (old)", in_callback)
+    measure("forget in a callback", in_callback)
     jobs.close()
     store.close()
     executor.shutdown(timeout_sec=1.0)
