@@ -21,8 +21,12 @@ import sys
 import tempfile
 import time
 
+from ros_domain import loopback_own_domain  # noqa: E402  (bench/ is this script's folder)
+
 from helpaware_node.core import Result
 from helpaware_node.store import SqliteStore, StoredEvent, person_key
+
+loopback_own_domain()   # the executor-gap part starts rclpy: loopback, a domain of its own
 
 SITE_KEY = b"b" * 32
 RESULTS = [Result.HELPED, Result.DECLINED, Result.NO_RESPONSE, Result.COULD_NOT_ASK]

@@ -20,7 +20,7 @@ from collections import deque
 from dataclasses import dataclass
 from typing import Any, Callable, Optional
 
-COMPACT_KEYS_PER_COMMIT = 50    # the node's appends wait for at most this many people's fold (~20 ms)
+COMPACT_KEYS_PER_COMMIT = 50    # people per commit: an append waits ~20 ms at most
 
 
 @dataclass
