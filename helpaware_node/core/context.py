@@ -27,9 +27,10 @@ def ask_load(ask_times_s: Iterable[float], now_s: float, half_life_s: float) -> 
 
 def context_factor(busyness, load, k_busy: float, k_load: float):
     """c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
-    if type(busyness) is float and type(load) is float:
-        # one outcome (the store's fold): the same checks, messages and arithmetic without
-        # building arrays, a fifth of a durable append's own time otherwise
+    if (type(busyness) is float and type(load) is float and type(k_busy) is float
+            and type(k_load) is float):
+        # one outcome under one model (the store's fold): the same checks, messages and
+        # arithmetic without building arrays (constants as arrays: a fit's grid, below)
         if not 0.0 <= busyness <= 1.0:
             raise CoreInputError(f"busyness: {short_number(busyness)} must lie in [0, 1]")
         if not 0.0 <= load < math.inf:
