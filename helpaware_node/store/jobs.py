@@ -13,6 +13,7 @@ No ROS here: the node wires the wake-up (ros/node.py).
 """
 from __future__ import annotations
 
+import os
 import queue
 import threading
 import time
@@ -20,7 +21,9 @@ from collections import deque
 from dataclasses import dataclass
 from typing import Any, Callable, Optional
 
+WORKER_NICE = 10                # a long compaction yields the CPU to the callbacks
 COMPACT_KEYS_PER_COMMIT = 50    # people per commit: an append waits ~20 ms at most
+COMPACT_PAUSE_S = 0.005         # between commits: the disk and CPUs free for the callbacks
 
 
 @dataclass
@@ -121,6 +124,10 @@ class StoreJobs:
 
     # -- the worker thread ----------------------------------------------------------------
     def _worker(self) -> None:
+        try:    # below the executor's thread for the CPU (Linux: nice is per thread)
+            os.setpriority(os.PRIO_PROCESS, threading.get_native_id(), WORKER_NICE)
+        except (AttributeError, OSError):
+            pass
         conn = None
         try:
             while True:
@@ -160,7 +167,8 @@ class StoreJobs:
             return s.forget_rows(conn, *job.args)
         if job.kind == "opt_out":
             return s.opt_out_rows(conn, *job.args)
-        return s.compact_rows(conn, *job.args, keys_per_commit=COMPACT_KEYS_PER_COMMIT)
+        return s.compact_rows(conn, *job.args, keys_per_commit=COMPACT_KEYS_PER_COMMIT,
+                              pause_s=COMPACT_PAUSE_S)
 
     def _finish(self, job: StoreJob) -> None:
         job.done = True

@@ -567,7 +567,8 @@ class SqliteStore:
             return self.compact_rows(self._conn, older_than_s, now_s)
 
     def compact_rows(self, c: sqlite3.Connection, older_than_s: float,
-                     now_s: float | None = None, keys_per_commit: int = 0) -> int:
+                     now_s: float | None = None, keys_per_commit: int = 0,
+                     pause_s: float = 0.0) -> int:
         """compact() on connection `c`; with `keys_per_commit` > 0 (a worker) one
         transaction per that many people, so the node's appends wait for one batch at most
         (each person's base and deletion still commit together)."""
@@ -592,6 +593,8 @@ class SqliteStore:
                 if c.in_transaction:
                     c.execute("ROLLBACK")
                 raise
+            if keys_per_commit > 0:
+                time.sleep(pause_s)     # a worker: room for the node's callbacks and appends
         if removed or asks_removed:
             self.checkpoint(c)
         return removed
