@@ -5,6 +5,7 @@ factor    c = exp(-(k_busy * x + k_load * f))
 """
 from __future__ import annotations
 
+import math
 from typing import Iterable
 
 import numpy as np
@@ -26,6 +27,15 @@ def ask_load(ask_times_s: Iterable[float], now_s: float, half_life_s: float) -> 
 
 def context_factor(busyness, load, k_busy: float, k_load: float):
     """c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
+    if (type(busyness) is float and type(load) is float and type(k_busy) is float
+            and type(k_load) is float):
+        # one outcome under one model (the store's fold): the same checks, messages and
+        # arithmetic without building arrays (constants as arrays: a fit's grid, below)
+        if not 0.0 <= busyness <= 1.0:
+            raise CoreInputError(f"busyness: {short_number(busyness)} must lie in [0, 1]")
+        if not 0.0 <= load < math.inf:
+            raise CoreInputError(f"ask load: {short_number(load)} must be finite and >= 0")
+        return float(np.exp(-(k_busy * busyness + k_load * load)))
     x = np.asarray(busyness, dtype=float)
     f = np.asarray(load, dtype=float)
     bad_x = ~np.isfinite(x) | (x < 0.0) | (x > 1.0)

@@ -92,12 +92,13 @@ def check_person_key(value: Any) -> str:
     return value
 
 
-def check_event(event) -> None:
-    """Refuse anything that is not a hashed key or a well-formed outcome (names the field)."""
+def check_event(event):
+    """Refuse anything that is not a hashed key or a well-formed outcome (names the field);
+    returns the event's OutcomeEvent (built once: the fold reuses it)."""
     check_person_key(event.person_key)
     check_event_id(event.event_id)
     check_text("request_kind", event.request_kind or "", MAX_LABEL_CHARS)
-    event.to_outcome()          # validates time, busyness, ask load and result ranges
+    return event.to_outcome()   # validates time, busyness, ask load and result ranges
 
 
 def check_ask(ask) -> None:
