@@ -127,3 +127,32 @@ def test_bad_site_model_names_the_field():
         SiteModel(prior_a=0.0)
     with pytest.raises(CoreInputError, match="k_busy: expected a number"):
         SiteModel(k_busy="2")
+
+
+# -- one-person paths (the store's fold of one outcome) against the vectorised ones ----------
+from hypothesis import given, strategies as st  # noqa: E402
+
+from helpaware_node.core.context import context_factor  # noqa: E402
+
+POSITIVE = st.floats(min_value=5e-324, max_value=1e12, allow_nan=False)
+UNIT = st.one_of(st.floats(0.0, 1.0), st.sampled_from([0.0, 1.0, 5e-324, 1.0 - 2 ** -53]))
+
+
+@given(a=POSITIVE, b=POSITIVE, c=UNIT)
+def test_declined_ab_of_floats_is_bit_for_bit_the_vectorised_update(a, b, c):
+    # exact: the float path repeats the array path's operations in the same order (IEEE 754)
+    na, nb = declined_ab(a, b, c)
+    va, vb = declined_ab(np.array([a]), np.array([b]), np.array([c]))
+    assert (na, nb) == (float(va[0]), float(vb[0]))
+
+
+@given(x=st.floats(allow_nan=True, allow_infinity=True, width=64),
+       f=st.floats(allow_nan=True, allow_infinity=True, width=64),
+       kb=st.floats(0.0, 10.0), kl=st.floats(0.0, 10.0))
+def test_context_factor_of_floats_is_the_array_result_or_the_same_refusal(x, f, kb, kl):
+    def run(*args):
+        try:
+            return context_factor(*args, kb, kl)
+        except CoreInputError as exc:
+            return str(exc)
+    assert run(x, f) == run(np.array(x), np.array(f))

@@ -51,3 +51,66 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         assert nurse["excluded"] == "opted_out"
     finally:
         rig.close()
+
+
+def test_privacy_requests_on_a_store_file_hold_at_once_on_disk_and_after_a_restart(ctx, tmp_path):
+    """The rows go on the node's store worker.
+
+    Decisions respect the request before that, the answer on the fleet topic comes after it, and a
+    restart keeps it.
+    """
+    import sqlite3
+    from helpaware_node.fleet_documents import decode_document
+    from std_msgs.msg import String
+    path = str(tmp_path / "beliefs.sqlite3")
+    people = [{"id": "nurse-a", "distance_m": 1.0, "busyness": 0.0},
+              {"id": "porter-b", "distance_m": 1.5, "busyness": 0.0}]
+    rig = Rig(ctx, namespace="/jobs1", store_path=path, robot_id="rJ")
+    try:
+        assert rig.connected() and rig.show_people(people)
+        d = rig.open_need("j1", "handover", urgency=1.0)
+        rig.report("j1", d["person_id"], "helped")
+        asked = rig.node.store.key_for(d["person_id"])
+        other_id = "porter-b" if d["person_id"] == "nurse-a" else "nurse-a"
+        other = rig.node.store.key_for(other_id)
+        answers = []
+        rig.driver.create_subscription(String, rig.node.fleet.topic,
+                                       lambda m: answers.append(m.data), 50)
+        opt = rig.send_privacy("opt_out", other_id)
+        forget = rig.send_privacy("forget", d["person_id"])
+        assert rig.spin_until(lambda: rig.node.store.is_opted_out(other)
+                              and asked not in rig.node.store.keys())
+        assert rig.spin_until(lambda: rig.node.store_jobs.pending == 0)
+
+        def answered():
+            ids = set()
+            for text in answers:
+                try:
+                    ids.add(decode_document(text, rig.node.fleet.keys)[1].request_id)
+                except Exception:  # noqa: BLE001 - other kinds of fleet documents
+                    pass
+            return {opt.act_id, forget.act_id} <= ids
+        assert rig.spin_until(answered)
+        conn = sqlite3.connect(path)      # on disk, read past the node's store
+        try:
+            assert conn.execute("SELECT count(*) FROM opt_out WHERE person_key = ?",
+                                (other,)).fetchone()[0] == 1
+            assert conn.execute("SELECT count(*) FROM events WHERE person_key = ?",
+                                (asked,)).fetchone()[0] == 0
+        finally:
+            conn.close()
+        d2 = rig.open_need("j2", "handover", urgency=1.0)
+        row = [r for r in d2["rationale"] if r["person_id"] == other_id][0]
+        assert row["excluded"] == "opted_out" and d2["person_id"] != other_id
+    finally:
+        rig.close()
+    rig = Rig(ctx, namespace="/jobs2", store_path=path, robot_id="rJ")
+    try:
+        assert rig.connected() and rig.node.store.is_opted_out(other)
+        assert rig.node.store.events_for(asked) == []
+        assert rig.show_people(people)
+        d3 = rig.open_need("j3", "handover", urgency=1.0)
+        row = [r for r in d3["rationale"] if r["person_id"] == other_id][0]
+        assert row["excluded"] == "opted_out"
+    finally:
+        rig.close()

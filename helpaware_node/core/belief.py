@@ -40,6 +40,8 @@ class Belief:
 
 
 _TINY = float(np.nextafter(0.0, 1.0))
+# 0/0 and overflow arise only at c = 1 with b/(a+b) underflowing, where the closed form is used
+_AT_C_ONE_ONLY = {"divide": "ignore", "invalid": "ignore", "over": "ignore"}
 
 
 Floats = NDArray[np.float64]
@@ -79,7 +81,6 @@ def declined_moments(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, 
     cancel catastrophically near a mean of 1.
     """
     a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
-    # 0/0 and overflow arise only at c = 1 with b/(a+b) underflowing, where the closed form is used
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         mean = m0 * ((k + c * b * r1) / z)
         # u0 v0 + u1 v1 + u0 u1 (a/(s(s+1)))^2, with a/s and b/(s Z) taken out of all three
@@ -94,8 +95,9 @@ def declined_ab(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Float
     M(1-M)/V - 1 = E[w(1-w)]/V (as M(1-M) - V = E[w] - E[w^2]), a ratio of positive sums;
     a' = M times it and b' = (1 - M) times it, with a and b kept as factors.
     """
+    if type(a) is float and type(b) is float and type(c) is float:
+        return _declined_ab_one(a, b, c)
     a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
-    # 0/0 and overflow arise only at c = 1 with b/(a+b) underflowing, where the closed form is used
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         # concentration / s, with the factor b/(s Z) of E[w(1-w)] and V cancelled
         ratio = (k * r1 + c * n1 * r2) / (k * r1 + c * s * r1 * n1 * r2
@@ -105,6 +107,31 @@ def declined_ab(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Float
     # below the smallest positive double (a or b near 5e-324 already): hold there, so a, b > 0
     na, nb = np.maximum(na, _TINY), np.maximum(nb, _TINY)
     return _exact_ends(c, na, nb, a, b + 1.0, a, b)
+
+
+def _declined_ab_one(a: float, b: float, c: float) -> tuple[float, float]:
+    """declined_ab for one person (the store's fold of one outcome).
+
+    The same operations in the same order on floats, so bit for bit the vectorised result
+    (test_belief.py checks), without building arrays; 0 < c < 1 here, so z > 0 and nothing divides
+    by zero.
+    """
+    if c <= 0.0:
+        return a, b
+    if c >= 1.0:
+        return a, b + 1.0
+    s = a + b
+    m0 = a / s
+    n0 = b / s
+    r1 = 1.0 / (s + 1.0)
+    r2 = 1.0 / (s + 2.0)
+    n1 = (b + 1.0) * r1
+    k = 1.0 - c
+    z = k + c * n0
+    ratio = (k * r1 + c * n1 * r2) / (k * r1 + c * s * r1 * n1 * r2 + k * c * m0 * r1 * r1 / z)
+    na = a * (ratio * ((k + c * b * r1) / z))
+    nb = b * (ratio * ((k + c * n1) / z))
+    return max(na, _TINY), max(nb, _TINY)
 
 
 def _exact_ends(c: Floats, mixed_a: Floats, mixed_b: Floats, full_a: Floats, full_b: Floats,

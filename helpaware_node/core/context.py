@@ -5,6 +5,7 @@ factor    c = exp(-(k_busy * x + k_load * f))
 """
 from __future__ import annotations
 
+import math
 from typing import Iterable, Union, overload
 
 import numpy as np
@@ -30,13 +31,22 @@ def context_factor(busyness: float, load: float, k_busy: float, k_load: float) -
 
 
 @overload
-def context_factor(busyness: NDArray[np.float64], load: ArrayLike, k_busy: float,
-                   k_load: float) -> NDArray[np.float64]: ...
+def context_factor(busyness: NDArray[np.float64], load: ArrayLike, k_busy: ArrayLike,
+                   k_load: ArrayLike) -> NDArray[np.float64]: ...
 
 
-def context_factor(busyness: ArrayLike, load: ArrayLike, k_busy: float,
-                   k_load: float) -> Union[float, NDArray[np.float64]]:
+def context_factor(busyness: ArrayLike, load: ArrayLike, k_busy: ArrayLike,
+                   k_load: ArrayLike) -> Union[float, NDArray[np.float64]]:
     """Return c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
+    if (type(busyness) is float and type(load) is float and type(k_busy) is float
+            and type(k_load) is float):
+        # one outcome under one model (the store's fold): the same checks, messages and
+        # arithmetic without building arrays (constants as arrays: a fit's grid, below)
+        if not 0.0 <= busyness <= 1.0:
+            raise CoreInputError(f"busyness: {short_number(busyness)} must lie in [0, 1]")
+        if not 0.0 <= load < math.inf:
+            raise CoreInputError(f"ask load: {short_number(load)} must be finite and >= 0")
+        return float(np.exp(-(k_busy * busyness + k_load * load)))
     x = np.asarray(busyness, dtype=float)
     f = np.asarray(load, dtype=float)
     bad_x = ~np.isfinite(x) | (x < 0.0) | (x > 1.0)
@@ -45,7 +55,9 @@ def context_factor(busyness: ArrayLike, load: ArrayLike, k_busy: float,
     bad_f = ~np.isfinite(f) | (f < 0.0)
     if np.any(bad_f):
         raise CoreInputError(f"ask load: {_first(f, bad_f)} must be finite and >= 0")
-    c = np.exp(-(k_busy * x + k_load * f))
+    kb = np.asarray(k_busy, dtype=float)
+    kl = np.asarray(k_load, dtype=float)
+    c = np.exp(-(kb * x + kl * f))
     return float(c) if c.ndim == 0 else c
 
 

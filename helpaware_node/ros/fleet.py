@@ -128,6 +128,8 @@ class FleetLink(CountsRefusals):
     batch is stored.  Asks travel and queue like outcomes; without an owner's `append_many`
     they go to the store's `append_asks`.  Documents are signed with `keys` (default: the
     store's site key file) and only documents signed with a key of that ring are taken.
+    With `jobs` (store/jobs.py) a forget or opt-out is in force in memory at once and its
+    rows are written on the worker; the answer to a request is published once they are.
     """
 
     def __init__(self, node, store, on_merged: Optional[Merged] = None,
@@ -137,9 +139,10 @@ class FleetLink(CountsRefusals):
                  append_many: Optional[Callable[[list[AnyEvent]],
                                                 list[AnyEvent]]] = None,
                  keys: Optional[KeyRing] = None,
-                 clock: Callable[[], float] = time.time) -> None:
+                 clock: Callable[[], float] = time.time, jobs=None) -> None:
         self._node = node
         self._store = store
+        self._jobs = jobs
         self._on_merged = on_merged
         self._append = append
         self._append_many = append_many
@@ -229,6 +232,9 @@ class FleetLink(CountsRefusals):
         """
         act = PrivacyAct.new("forget", person_key, self.sender, request_id)
         self._remember(act.identity)
+        if self._jobs is not None:      # removed here once the worker has done it: 0 now
+            self._forget_here(person_key, self._answer_when_done(act, act))
+            return 0
         n = self._forget_here(person_key)
         self.publish_act(act)
         return n
@@ -237,8 +243,32 @@ class FleetLink(CountsRefusals):
         """Opt out here and on every robot of the site."""
         act = PrivacyAct.new("opt_out", person_key, self.sender, request_id)
         self._remember(act.identity)
+        if self._jobs is not None:
+            self._jobs.opt_out(person_key, self._answer_when_done(act, act))
+            return
         self._store.opt_out(person_key)
         self.publish_act(act)
+
+    def _answer_when_done(self, act: PrivacyAct, answer: Optional[PrivacyAct]):
+        """Return the worker's report (on the executor).
+
+        Publish `answer` once the rows are written; a store that refused forgets the request, so a
+        copy offered again is applied then (as a synchronous refusal would).
+        """
+        def done(job) -> None:
+            if job.error is None:
+                if answer is not None:
+                    self.publish_act(answer)
+                return
+            with self._lock:
+                self._applied.pop(act.identity, None)
+            self.store_failures += 1
+            text = self._log.due("privacy_store_error", f"{self.topic}: the store refused "
+                                 f"{act.action} of {act.person_key[:12]}... "
+                                 f"({exception_text(job.error)}); applied again when offered")
+            if text is not None:
+                self._node.get_logger().error(text)
+        return done
 
     def apply_act(self, act: PrivacyAct) -> bool:
         """Apply a forget or opt-out received from the console or a peer.
@@ -250,6 +280,16 @@ class FleetLink(CountsRefusals):
         with self._lock:
             if act.identity in self._applied:
                 return False
+        if self._jobs is not None:     # in memory now, rows on the worker, answer after
+            answer = (PrivacyAct.new(act.action, act.person_key, self.sender,
+                                     request_id=act.request_id) if act.request_id else None)
+            self._remember(act.identity)
+            done = self._answer_when_done(act, answer)
+            if act.action == "forget":
+                self._forget_here(act.person_key, done)
+            else:
+                self._jobs.opt_out(act.person_key, done)
+            return True
         if act.action == "forget":     # a store that refuses raises: not remembered, so a
             self._forget_here(act.person_key)   # copy offered again is applied then
         else:
@@ -270,10 +310,14 @@ class FleetLink(CountsRefusals):
             self.acts_applied += 1
             return True
 
-    def _forget_here(self, key: str) -> int:
+    def _forget_here(self, key: str, done=None) -> int:
         with self._lock:
             self._forgotten.add(key)
-            n = self._store.forget(key)
+            if self._jobs is not None:
+                self._jobs.forget(key, done)
+                n = 0
+            else:
+                n = self._store.forget(key)
         if self._on_forgotten is not None:
             self._on_forgotten(key)
         return n

@@ -39,6 +39,7 @@ from ..session import HelpSession, Step, StoreStatus
 from ..session.state import MAX_GOAL_STATUSES
 from ..store import default_store_path, open_store
 from ..store.base import BeliefStore
+from ..store.jobs import StoreJobs
 from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
 from .markers import PersonMarkers
@@ -75,6 +76,7 @@ class HelpAwareNode(LifecycleNode):
         self._session: Optional[HelpSession] = None   # made at configure, with the store
         self.held: Optional[HeldOutcomes] = None
         self.learning: Optional[NodeLearning] = None  # site learning, made at configure
+        self.store_jobs: Optional[StoreJobs] = None   # forget/opt-out/compaction off the executor
         try:
             self.params = NodeParameters(self, on_change=self._on_parameters_changed)
         except (CoreInputError, rclpy.exceptions.ParameterException) as exc:
@@ -191,10 +193,17 @@ class HelpAwareNode(LifecycleNode):
         timers = [self.create_timer(s.diagnostics_period_s, self._publish_status, clock=steady),
                   self.create_timer(HOUSEKEEPING_PERIOD_S, self._housekeeping, clock=steady)]
         self._entities = subs + timers + [self.decision_pub, self.marker_pub, self.diag_pub]
+        # forgets, opt-outs and compactions write their rows on a worker thread (store/jobs.py;
+        # a forget on a store of a million events takes seconds): in force in memory at once,
+        # reported back here by a guard condition the worker triggers
+        wake = self.create_guard_condition(self._on_store_jobs)
+        self.store_jobs = StoreJobs(self.store, wake=wake.trigger)
+        self._entities.append(wake)
         # signed fleet documents in and out (outcomes and asks) and live opt-out/forget on the
         # site-wide topics from parameters (docs/store.md, docs/security.md)
         self.fleet = FleetLink(self, self.store, append_many=self.session.peer_events,
-                               on_forgotten=self.session.forgotten, topic=s.fleet_topic)
+                               on_forgotten=self.session.forgotten, topic=s.fleet_topic,
+                               jobs=self.store_jobs)
         self.privacy = PrivacyRequests(self, self.store, self.fleet, lambda action, key: (
             self.session.forgotten(key) if action == "forget" else None),
             topic=s.privacy_topic, allow_unsigned=s.allow_unsigned_privacy_requests)
@@ -228,9 +237,12 @@ class HelpAwareNode(LifecycleNode):
                 pass
         if self.held is not None:
             self.held.report_at_stop()
+        self._finish_store_jobs()
         for e in self._entities:
             try:
-                if hasattr(e, "cancel"):
+                if hasattr(e, "trigger"):
+                    self.destroy_guard_condition(e)
+                elif hasattr(e, "cancel"):
                     self.destroy_timer(e)
                 elif hasattr(e, "publish"):
                     self.destroy_publisher(e)
@@ -245,9 +257,11 @@ class HelpAwareNode(LifecycleNode):
 
     def destroy_node(self) -> None:
         # getattr: destroy_node also runs for a node whose parameters were refused
-        held, store = getattr(self, "held", None), getattr(self, "store", None)
+        held = getattr(self, "held", None)
         if held is not None:
             held.report_at_stop()
+        self._finish_store_jobs()
+        store = getattr(self, "store", None)
         if store is not None:
             store.close()
             self.store = None
@@ -431,6 +445,28 @@ class HelpAwareNode(LifecycleNode):
                 self.get_logger().warning(line)
             else:
                 self.get_logger().info(line)
+
+    def _on_store_jobs(self) -> None:
+        """Run the reports of store jobs the worker finished (answers to requests)."""
+        try:
+            if self.store_jobs is not None:
+                self.store_jobs.poll()
+        except Exception as exc:  # noqa: BLE001 - a report must not stop the executor
+            self.counters.housekeeping_errors += 1
+            text = self.log_lines.due("store_job_error", f"store job report failed "
+                                      f"({exception_text(exc)})")
+            if text is not None:
+                self.get_logger().error(text)
+
+    def _finish_store_jobs(self) -> None:
+        """Write a forget or opt-out asked for before the store closes."""
+        jobs, self.store_jobs = getattr(self, "store_jobs", None), None
+        if jobs is not None:
+            try:
+                if not jobs.close():
+                    self.get_logger().error("store jobs still running at stop")
+            except Exception:  # noqa: BLE001 - stopping: the store closes next
+                pass
 
     def _housekeeping(self) -> None:
         try:

@@ -18,6 +18,7 @@ from ..core.preview import quoted
 from ..wire import MAX_ID_CHARS, MAX_LABEL_CHARS, lone_surrogate_at
 
 if TYPE_CHECKING:   # base.py imports this module
+    from ..core import OutcomeEvent
     from .base import AskEvent, StoredEvent
 
 MAX_ROBOT_ID_CHARS = 64            # a host name label is at most 63 characters
@@ -95,12 +96,15 @@ def check_person_key(value: Any) -> str:
     return value
 
 
-def check_event(event: "StoredEvent") -> None:
-    """Refuse anything that is not a hashed key or a well-formed outcome (names the field)."""
+def check_event(event: "StoredEvent") -> "OutcomeEvent":
+    """Refuse anything that is not a hashed key or a well-formed outcome (names the field).
+
+    Returns the event's OutcomeEvent (built once: the fold reuses it).
+    """
     check_person_key(event.person_key)
     check_event_id(event.event_id)
     check_text("request_kind", event.request_kind or "", MAX_LABEL_CHARS)
-    event.to_outcome()          # validates time, busyness, ask load and result ranges
+    return event.to_outcome()   # validates time, busyness, ask load and result ranges
 
 
 def check_ask(ask: "AskEvent") -> None:

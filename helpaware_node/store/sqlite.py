@@ -8,8 +8,12 @@ The log of asks the hard limits count.
 - WAL mode, synchronous=FULL, one transaction per outcome: when append() returns the
   outcome survives a crash or power loss.  append_many() stores a batch (fleet catch-up) in
   one such transaction.
-- secure_delete is on, and forget() checkpoints the WAL with TRUNCATE, so erased rows do not
-  linger in free pages or in the log.
+- secure_delete is on (on every connection that writes), forget() checkpoints the WAL with
+  TRUNCATE and then searches the file's bytes for the key, rebuilding the indexes (or the
+  whole file) if a copy is found, so erased rows linger in no page, free or not, nor the log.
+- Opt-outs are held in memory too (the decision path reads them per candidate), and a
+  forget begun is in force in memory at once; the rows of a forget, an opt-out or a
+  compaction can be written on a worker thread's own connection (store/jobs.py).
 - `asks` holds every ask (own, and peers' from the fleet), one durable transaction each,
   written before the decision is published; it never changes a belief.
 - A damaged file is moved aside (never deleted) and the store starts on priors with
@@ -29,7 +33,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Iterable, Iterator, Optional, Sequence
 
-from ..core import Belief, Result, SiteModel, fold_events
+from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
 from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
 from .ids import PERSON_KEY_RE, check_ask, check_event, check_robot_id  # noqa: F401 (re-exported)
@@ -40,6 +44,16 @@ DAY_S = 86400.0
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
 ASK_COLUMNS = "event_id, robot_id, person_key, time_s, request_kind, request_id"
 SQLITE_HEADER = b"SQLite format 3\x00"
+SCAN_CHUNK_BYTES = 1 << 20     # forget's search of the file, per read
+
+
+def set_pragmas(conn: sqlite3.Connection) -> None:
+    """Set the per-connection settings every writer of the file uses (the node's, a worker's).
+
+    a commit is on disk when it returns, and deleted rows are zeroed, not left in free space.
+    """
+    conn.execute("PRAGMA synchronous=FULL")
+    conn.execute("PRAGMA secure_delete=ON")
 
 
 class StoreCorruptError(RuntimeError):
@@ -136,6 +150,13 @@ class SqliteStore:
                 "ERROR", f"damaged store moved aside to {self.moved_aside}; started on priors "
                 f"(cause: {str(exc)[:80]})")
         self._next_seq = self._load_next_seq()
+        # opt-outs in memory: the decision path asks for every candidate, and SQL there costs
+        # a query per candidate per decision; kept equal to the table by every write below
+        self._opted: set[str] = {r[0] for r in self._conn.execute(
+            "SELECT person_key FROM opt_out")}
+        # forgets begun (their rows go on a worker's connection, store/jobs.py): the person
+        # is unknown to every read at once
+        self._forgetting: set[str] = set()
         if retention_days > 0:
             self.compact(retention_days * DAY_S)
 
@@ -157,8 +178,7 @@ class SqliteStore:
                 os.umask(old_umask)
             if str(mode).lower() != "wal":
                 raise StoreCorruptError(f"cannot switch to WAL mode (got {mode})")
-            conn.execute("PRAGMA synchronous=FULL")
-            conn.execute("PRAGMA secure_delete=ON")
+            set_pragmas(conn)
             if existed and integrity_check:
                 problems = [r[0] for r in conn.execute("PRAGMA quick_check(5)")]
                 if problems != ["ok"]:
@@ -224,16 +244,18 @@ class SqliteStore:
     def append(self, event: StoredEvent) -> bool:
         """Store one outcome durably before returning.
 
-        False when nothing was stored: a duplicate event id, an opted-out person, or an
-        event older than the person's compacted history.
+        False when nothing was stored: a duplicate event id, an opted-out person (or one
+        being forgotten), or an event older than the person's compacted history.
         """
-        check_event(event)
+        outcome = check_event(event)
         row = event_to_row(event)
+        if event.person_key in self._opted or event.person_key in self._forgetting:
+            return False        # in memory: no SQL for it (the table says the same)
         with self._lock:
             c = self._conn
             c.execute("BEGIN IMMEDIATE")
             try:
-                stored = self._append_in_tx(event, row)
+                stored = self._append_in_tx(event, row, outcome=outcome)
                 if not stored:
                     c.execute("ROLLBACK")
                     return False
@@ -245,7 +267,8 @@ class SqliteStore:
                 raise
 
     def _append_in_tx(self, event: StoredEvent, row: tuple[Any, ...],
-                      refold_later: set[str] | None = None) -> bool:
+                      refold_later: set[str] | None = None,
+                      outcome: Optional[OutcomeEvent] = None) -> bool:
         """Insert one event inside the open transaction and keep its snapshot the fold.
 
         With `refold_later` (a batch), a person whose event arrives out of order is refolded
@@ -253,7 +276,7 @@ class SqliteStore:
         """
         c = self._conn
         key = event.person_key
-        if c.execute("SELECT 1 FROM opt_out WHERE person_key = ?", (key,)).fetchone():
+        if key in self._opted or key in self._forgetting:
             return False
         snap = c.execute("SELECT a, b, last_time_s, last_event_id, event_count, model_hash, "
                          "base_time_s, base_event_id FROM snapshot WHERE person_key = ?",
@@ -269,13 +292,13 @@ class SqliteStore:
             pass                # refolded once when the batch ends
         elif (snap is not None and snap[5] == self._model_hash and snap[2] is not None
                 and order > (snap[2], snap[3])):
-            belief, last = fold_events([event.to_outcome()], self.model,
+            belief, last = fold_events([outcome or event.to_outcome()], self.model,
                                        Belief(snap[0], snap[1]), snap[2])
             c.execute("UPDATE snapshot SET a = ?, b = ?, last_time_s = ?, last_event_id = ?, "
                       "event_count = event_count + 1 WHERE person_key = ?",
                       (belief.a, belief.b, last, event.event_id, key))
         elif snap is None:
-            belief, last = fold_events([event.to_outcome()], self.model)
+            belief, last = fold_events([outcome or event.to_outcome()], self.model)
             c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
                       "event_count, model_hash) VALUES (?,?,?,?,?,1,?)",
                       (key, belief.a, belief.b, last, event.event_id, self._model_hash))
@@ -299,16 +322,17 @@ class SqliteStore:
         within the batch), opted-out people, events older than a compacted base.
         """
         batch = sorted(events, key=lambda e: (float(e.time_s), e.event_id))
-        rows = []
+        rows: list[tuple[Any, ...]] = []
+        outcomes: list[OutcomeEvent] = []
         for e in batch:
-            check_event(e)
+            outcomes.append(check_event(e))
             rows.append(event_to_row(e))
         if not batch:
             return []
         with self._batch() as c:
             refold_later: set[str] = set()
-            stored = [e for e, row in zip(batch, rows)
-                      if self._append_in_tx(e, row, refold_later)]
+            stored = [e for e, row, o in zip(batch, rows, outcomes)
+                      if self._append_in_tx(e, row, refold_later, o)]
             for key in refold_later:
                 self._refold(c, key)
             return stored
@@ -367,17 +391,22 @@ class SqliteStore:
             raise
 
     def events_for(self, key: str) -> list[StoredEvent]:
+        if key in self._forgetting:
+            return []
         with self._lock:
             return self._events(self._conn, key)
 
     def keys(self) -> list[str]:
         with self._lock:
-            return [r[0] for r in self._conn.execute(
+            keys = [r[0] for r in self._conn.execute(
                 "SELECT person_key FROM snapshot ORDER BY person_key")]
+        return [k for k in keys if k not in self._forgetting] if self._forgetting else keys
 
     def belief(self, key: str, model: SiteModel | None = None) -> tuple[Belief, float | None]:
         """Return the cached fold under the store's model; any other model refolds (not cached)."""
         model = model or self.model
+        if key in self._forgetting:     # erased at once, whatever the worker has done yet
+            return Belief.prior(model), None
         with self._lock:
             c = self._conn
             if model_hash(model) != self._model_hash:
@@ -402,61 +431,147 @@ class SqliteStore:
                                       "FROM snapshot").fetchall()
         out = {}
         for key, a, b, last, mh in rows:
-            out[key] = (Belief(a, b), last) if mh == self._model_hash else self.belief(key)
+            if key not in self._forgetting:
+                out[key] = (Belief(a, b), last) if mh == self._model_hash else self.belief(key)
         return out
 
     def is_opted_out(self, key: str) -> bool:
-        with self._lock:
-            return self._conn.execute("SELECT 1 FROM opt_out WHERE person_key = ?",
-                                      (key,)).fetchone() is not None
+        """From memory (loaded at open, kept by every opt-out and forget).
+
+        No SQL on the decision path.
+        """
+        return key in self._opted
 
     def opt_out(self, key: str) -> None:
         """No more learning about this person (their existing events stay until forget)."""
+        self.begin_opt_out(key)
+        with self._lock:
+            self.opt_out_rows(self._conn, key)
+
+    def begin_opt_out(self, key: str) -> None:
+        """Put the opt-out in memory, in force for every decision and append from now on.
+
+        Its row is written by opt_out_rows (here, or on a worker's connection: store/jobs.py).
+        """
         if not PERSON_KEY_RE.match(key or ""):
             raise CoreInputError("person_key: expected 64 lowercase hex digits")
-        with self._lock:
-            self._conn.execute("INSERT OR IGNORE INTO opt_out (person_key, since_s) VALUES (?, ?)",
-                               (key, time.time()))
+        self._opted.add(key)
+
+    def opt_out_rows(self, c: sqlite3.Connection, key: str) -> None:
+        c.execute("INSERT OR IGNORE INTO opt_out (person_key, since_s) VALUES (?, ?)",
+                  (key, time.time()))
 
     def opted_out(self) -> list[str]:
-        with self._lock:
-            return [r[0] for r in self._conn.execute("SELECT person_key FROM opt_out")]
+        return sorted(self._opted)
 
     def forget(self, key: str) -> int:
-        """Delete every row that holds the key (asks too).
+        """Delete every row that holds the key (asks too) and leave no copy of it.
 
-        Then truncate the WAL so no copy lingers.
-
-        Returns the events removed, compacted ones included.
+        Delete every row that holds the key (asks too) and leave no copy of it in the file or the
+        WAL (see forget_rows).  Returns the events removed, compacted ones included.
         """
-        with self._lock:
-            c = self._conn
-            c.execute("BEGIN IMMEDIATE")
-            try:
-                row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
-                                (key,)).fetchone()
-                n = row[0] if row else 0       # compacted events count as removed too
-                n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
-                rows = n + sum(c.execute(f"DELETE FROM {table} WHERE person_key = ?",
-                                         (key,)).rowcount
-                               for table in ("asks", "snapshot", "opt_out"))
-                if rows:
-                    # interior index pages may still hold the key as a divider: rebuild them
-                    # (secure_delete zeroes the freed pages). A key never stored left no
-                    # trace, so a peer's forget of a stranger costs no rebuild (seconds on a
-                    # large store, with the executor waiting)
-                    for table in ("events_by_person", "asks_by_person", "snapshot", "opt_out"):
-                        c.execute(f"REINDEX {table}")
-                c.execute("COMMIT")
-            except BaseException:
-                c.execute("ROLLBACK")
-                raise
-            if rows:
-                self.checkpoint()
-            return n
+        self.begin_forget(key)
+        try:
+            with self._lock:
+                return self.forget_rows(self._conn, key)
+        finally:
+            self.end_forget(key)
 
-    def checkpoint(self) -> None:
-        busy, _, _ = self._conn.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
+    def begin_forget(self, key: str) -> None:
+        """Make the person unknown from now on.
+
+        Reads give the prior, appends are refused, the opt-out entry goes (as forget deletes it),
+        until end_forget after forget_rows.
+        """
+        if not PERSON_KEY_RE.match(key or ""):
+            raise CoreInputError("person_key: expected 64 lowercase hex digits")
+        self._forgetting.add(key)
+        self._opted.discard(key)
+
+    def end_forget(self, key: str) -> None:
+        self._forgetting.discard(key)
+
+    def forget_rows(self, c: sqlite3.Connection, key: str) -> int:
+        """Delete the key's rows on connection `c`, checkpoint the WAL away.
+
+        Then search the file's bytes for the key: a copy can outlive the rows as a divider in an
+        interior index page, so a find rebuilds the indexes, and one still found after that
+        rewrites the whole file (VACUUM).  A key never stored costs one small transaction.
+        """
+        c.execute("BEGIN IMMEDIATE")
+        try:
+            row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
+                            (key,)).fetchone()
+            n = row[0] if row else 0       # compacted events count as removed too
+            n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
+            rows = n + sum(c.execute(f"DELETE FROM {table} WHERE person_key = ?",
+                                     (key,)).rowcount
+                           for table in ("asks", "snapshot", "opt_out"))
+            c.execute("COMMIT")
+        except BaseException:
+            if c.in_transaction:
+                c.execute("ROLLBACK")
+            raise
+        if rows:
+            self.erase_copies(c, key)
+        return n
+
+    def erase_copies(self, c: sqlite3.Connection, key: str) -> str:
+        """Make sure no byte of `key` is left in the file or its WAL.
+
+        Returns what it took ("none", "reindex", "vacuum"; "left" when a copy remained, health then
+        ERROR).
+        """
+        needle = key.encode()
+        self.checkpoint(c)
+        if not self.file_holds(needle):
+            return "none"
+        c.execute("BEGIN IMMEDIATE")
+        try:
+            for index in ("events_by_person", "asks_by_person", "snapshot", "opt_out"):
+                c.execute(f"REINDEX {index}")
+            c.execute("COMMIT")
+        except BaseException:
+            if c.in_transaction:
+                c.execute("ROLLBACK")
+            raise
+        self.checkpoint(c)
+        if not self.file_holds(needle):
+            return "reindex"
+        c.execute("VACUUM")
+        self.checkpoint(c)
+        if not self.file_holds(needle):
+            return "vacuum"
+        self.health = StoreHealth("ERROR", f"store {self.path}: a forgotten key is still in "
+                                  "the file (a reader held the WAL?); forget it again")
+        return "left"
+
+    def file_holds(self, needle: bytes) -> bool:
+        """Whether the database file or its WAL holds these bytes anywhere (free pages too).
+
+        Read in chunks: each read lets go of the interpreter, so a scan of a large file on a
+        worker does not hold the executor's thread for its length.
+        """
+        overlap = len(needle) - 1
+        for suffix in ("", "-wal"):
+            try:
+                fh = open(str(self.path) + suffix, "rb", buffering=0)
+            except FileNotFoundError:
+                continue
+            with fh:
+                tail = b""
+                while True:
+                    chunk = fh.read(SCAN_CHUNK_BYTES)
+                    if not chunk:
+                        break
+                    if needle in tail + chunk[:overlap] or needle in chunk:
+                        return True
+                    tail = chunk[-overlap:] if overlap else b""
+        return False
+
+    def checkpoint(self, c: sqlite3.Connection | None = None) -> None:
+        c = self._conn if c is None else c
+        busy, _, _ = c.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
         if busy:
             self.health = StoreHealth("ERROR", f"store {self.path}: WAL checkpoint blocked by "
                                       "another reader; erased rows may remain in the WAL")
@@ -471,27 +586,53 @@ class SqliteStore:
         the longest limit window (a day, or min_reask_interval_s) shortens what the limits
         see after a restart: docs/store.md.
         """
+        with self._lock:
+            return self.compact_rows(self._conn, older_than_s, now_s)
+
+    def compact_rows(self, c: sqlite3.Connection, older_than_s: float,
+                     now_s: float | None = None, keys_per_commit: int = 0,
+                     pause_s: float = 0.0) -> int:
+        """compact() on connection `c`.
+
+        With `keys_per_commit` > 0 (a worker) one transaction per that many people, so the node's
+        appends wait for one batch at most (each person's base and deletion still commit together).
+        """
         if older_than_s < 0:
             raise CoreInputError(f"older_than_s: {older_than_s!r} must be >= 0")
         cutoff = (time.time() if now_s is None else now_s) - older_than_s
-        removed = 0
-        with self._lock:
-            c = self._conn
-            keys = [r[0] for r in c.execute(
-                "SELECT DISTINCT person_key FROM events WHERE time_s < ?", (cutoff,))]
+        removed = asks_removed = 0
+        keys = [r[0] for r in c.execute(
+            "SELECT DISTINCT person_key FROM events WHERE time_s < ?", (cutoff,))]
+        step = keys_per_commit if keys_per_commit > 0 else max(len(keys), 1)
+        for start in range(0, max(len(keys), 1), step):
             c.execute("BEGIN IMMEDIATE")
             try:
-                for key in keys:
-                    removed += self._compact_key(c, key, cutoff)
-                asks_removed = c.execute("DELETE FROM asks WHERE time_s < ?",
-                                         (cutoff,)).rowcount
+                for key in keys[start:start + step]:
+                    if key not in self._forgetting:
+                        removed += self._compact_key(c, key, cutoff)
+                if start + step >= len(keys):
+                    asks_removed = c.execute("DELETE FROM asks WHERE time_s < ?",
+                                             (cutoff,)).rowcount
                 c.execute("COMMIT")
             except BaseException:
-                c.execute("ROLLBACK")
+                if c.in_transaction:
+                    c.execute("ROLLBACK")
                 raise
-            if removed or asks_removed:
-                self.checkpoint()
+            if keys_per_commit > 0:
+                time.sleep(pause_s)     # a worker: room for the node's callbacks and appends
+        if removed or asks_removed:
+            self.checkpoint(c)
         return removed
+
+    def worker_connection(self) -> sqlite3.Connection:
+        """Return a connection of its own for a worker thread (store/jobs.py).
+
+        Set like the node's.
+        """
+        conn = sqlite3.connect(str(self.path), isolation_level=None, check_same_thread=False,
+                               timeout=10.0)
+        set_pragmas(conn)
+        return conn
 
     def _compact_key(self, c: sqlite3.Connection, key: str, cutoff: float) -> int:
         snap = c.execute("SELECT model_hash FROM snapshot WHERE person_key = ?",
@@ -563,14 +704,13 @@ class SqliteStore:
         batch = sorted(asks, key=lambda a: (float(a.time_s), a.event_id))
         for a in batch:
             check_ask(a)
+        batch = [a for a in batch
+                 if a.person_key not in self._opted and a.person_key not in self._forgetting]
         if not batch:
             return []
         with self._batch() as c:
             stored = []
             for a in batch:
-                if c.execute("SELECT 1 FROM opt_out WHERE person_key = ?",
-                             (a.person_key,)).fetchone():
-                    continue
                 cur = c.execute(f"INSERT OR IGNORE INTO asks ({ASK_COLUMNS}) VALUES "
                                 "(?,?,?,?,?,?)", (a.event_id, a.robot_id, a.person_key,
                                                   float(a.time_s), a.request_kind,
@@ -610,9 +750,12 @@ class SqliteStore:
         sql = (f"SELECT {ASK_COLUMNS} FROM asks{hint}"
                + (" WHERE " + " AND ".join(where) if where else "")
                + " ORDER BY time_s DESC, event_id DESC LIMIT ?")
+        if person_key is not None and person_key in self._forgetting:
+            return []
         with self._lock:
             rows = self._conn.execute(sql, args + [max(int(limit), 0)]).fetchall()
-        return [row_to_ask(r) for r in reversed(rows)]
+        return [row_to_ask(r) for r in reversed(rows)
+                if not self._forgetting or r[2] not in self._forgetting]
 
     def move_asks_forward(self, by_s: float) -> int:
         """Move every stored ask forward by a forward jump of the system clock.
