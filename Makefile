@@ -23,7 +23,15 @@ export ROS_DOMAIN_ID := $(shell python3 -c "import random; print(random.randint(
 unexport ROS_LOCALHOST_ONLY
 export PYTHONDONTWRITEBYTECODE := 1
 
-.PHONY: demo test bench soak venv clean
+.PHONY: demo test check lint bench soak venv clean
+
+# the pure core's tests (no rclpy, no processes): what `make check` runs after the linters
+CORE_TESTS := test/test_belief.py test/test_baselines.py test/test_declined_numerics.py \
+	test/test_lasting_cost.py test/test_limits_property.py test/test_policy.py \
+	test/test_properties.py test/test_session.py test/test_session_bounds.py \
+	test/test_session_properties.py test/test_wire.py test/test_json_nesting.py \
+	test/test_error_messages.py test/test_event_ids.py test/test_store_memory.py
+LINT_TESTS := test/test_flake8.py test/test_pep257.py test/test_copyright.py
 
 venv: $(STAMP)
 
@@ -44,7 +52,17 @@ demo: $(STAMP)
 	@echo "ROS_DOMAIN_ID=$(ROS_DOMAIN_ID) ROS_AUTOMATIC_DISCOVERY_RANGE=$(ROS_AUTOMATIC_DISCOVERY_RANGE)"
 	$(PY) -m helpaware_node.cli demo
 
-test: $(TEST_SETUP)
+# ruff (ruff.toml) and mypy (setup.cfg [mypy]): seconds, so first; the ament linters run
+# inside pytest (test/test_flake8.py, test_pep257.py), as under `colcon test`
+lint: $(STAMP)
+	$(PY) -m ruff check .
+	$(PY) -m mypy
+
+# the quick checks for contributors: lint, types, the ament linters, the pure-core tests
+check: lint
+	HELPAWARE_HYPOTHESIS_PROFILE=quick $(PY) -m pytest -q $(LINT_TESTS) $(CORE_TESTS)
+
+test: $(TEST_SETUP) lint
 	$(PY) -m pytest
 
 bench: $(STAMP)
@@ -56,4 +74,4 @@ soak: $(STAMP)
 	HELPAWARE_SOAK=1 $(PY) -m pytest -q test/reliability
 
 clean:
-	rm -rf $(VENV) build *.egg-info .pytest_cache .hypothesis out
+	rm -rf $(VENV) build *.egg-info .pytest_cache .hypothesis .mypy_cache .ruff_cache out

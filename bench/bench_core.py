@@ -25,7 +25,7 @@ def make_candidates(n: int, rng: np.random.Generator, now: float) -> list[Candid
 
 
 def floor_pass(a, b, x, f, model, config, cost):
-    """The same arithmetic as the decision, with nothing around it."""
+    """Return the same arithmetic as the decision, with nothing around it."""
     m = a / (a + b)
     c = np.exp(-(model.k_busy * x + model.k_load * f))
     p = c * m
@@ -53,7 +53,8 @@ def main() -> int:
     rng = np.random.default_rng(1)
     now = 100000.0
     need = HelpNeed("bench", "door", now)
-    print(f"bench_core  python {sys.version.split()[0]}  {platform.machine()}  numpy {np.__version__}")
+    print(f"bench_core  python {sys.version.split()[0]}  {platform.machine()}  "
+          f"numpy {np.__version__}")
     print(f"{'candidates':>10}  {'decide ms':>10}  {'floor ms':>9}  {'ratio':>6}")
     ok = True
     for n in (1, 10, 100, 1000):

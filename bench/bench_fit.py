@@ -1,5 +1,7 @@
-"""Fit time, peak memory and held-out log loss: the site model beside statsmodels' variational
-binomial mixed GLM (BinomialBayesMixedGLM.fit_vb) and our own AGQ GLMM, on the same data.
+"""Fit time, peak memory and held-out log loss.
+
+The site model beside statsmodels' variational binomial mixed GLM (BinomialBayesMixedGLM.fit_vb)
+and our own AGQ GLMM, on the same data.
 
 Data: simulated from the site model (default 10 000 people, about 200 000 answered asks);
 people are split 80/20 into training and held-out sets; held-out rows are predicted from the
@@ -47,7 +49,8 @@ def fit_statsmodels(train, method: str = "L-BFGS-B"):
                                  (np.arange(train.n_outcomes), train.person)),
                                 shape=(train.n_outcomes, train.n_people))
     model = BinomialBayesMixedGLM(y, glmm_design(train), exog_vc, np.zeros(train.n_people, int),
-                                  fep_names=["const", "busyness", "ask_load"], vcp_names=["person"])
+                                  fep_names=["const", "busyness",
+                                             "ask_load"], vcp_names=["person"])
     # statsmodels' default optimiser is BFGS, whose dense inverse Hessian over every random
     # effect's mean and sd (2 * people + 4 values) dominates its memory on this size
     return model.fit_vb(fit_method=method)
@@ -86,7 +89,8 @@ def main(argv=None) -> int:
     glmm, t_g, m_g = measured(lambda: RandomInterceptLogit(
         ytr, np.ones_like(ytr), glmm_design(train), train.person, nodes=15).fit(
             progress=Progress("glmm fit", enabled=True), standard_errors=False))
-    p_g = sequential_help_probability(glmm.beta, glmm.sigma, glmm_design(test), test.person, y_test)
+    p_g = sequential_help_probability(glmm.beta, glmm.sigma, glmm_design(test), test.person,
+                                      y_test)
     rows.append(["GLMM, adaptive Gauss-Hermite (ours)", t_g, m_g, log_loss(p_g, y_test)])
 
     if not args.skip_statsmodels:
@@ -98,7 +102,8 @@ def main(argv=None) -> int:
         if sm is not None:
             beta, sigma = np.asarray(sm.fe_mean), float(math.exp(sm.vcp_mean[0]))
             p_sm = sequential_help_probability(beta, sigma, glmm_design(test), test.person, y_test)
-            rows.append([f"statsmodels BinomialBayesMixedGLM.fit_vb ({args.statsmodels_method})", t_sm, m_sm,
+            rows.append([f"statsmodels BinomialBayesMixedGLM.fit_vb ({args.statsmodels_method})",
+                         t_sm, m_sm,
                          log_loss(p_sm, y_test)])
     base = log_loss(np.full(y_test.size, ytr.mean()), y_test)
     ref = rows[-1]

@@ -1,5 +1,7 @@
-"""What hostile inputs cost the help session now, beside what they cost before the bounds
-(issue 14 items 3 and 4), in one run, on a MemoryStore (no ROS, no disk).
+"""What hostile inputs cost the help session now.
+
+Beside what they cost before the bounds (issue 14 items 3 and 4), in one run, on a MemoryStore (no
+ROS, no disk).
 
 - People piled up from successive documents: 500 per document, all in view. The session now
   keeps the nearest 500 (wire.MAX_CANDIDATES) that fit in one decision document; before, every
@@ -48,7 +50,9 @@ def published_bytes(out) -> int:
 
 def pile(total: int, rounds: int) -> tuple:
     """(bounded candidates, ms, bytes, unbounded candidates, ms, bytes): medians of rounds.
-    Each time is the decision and its document text, as the node makes both."""
+
+    Each time is the decision and its document text, as the node makes both.
+    """
     crowd = [Person(f"p{i}", 1.0 + (i * 7919 % total) * 0.001) for i in range(total)]
     bounded_ms, unbounded_ms = [], []
     for r in range(rounds):

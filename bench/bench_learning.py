@@ -1,5 +1,6 @@
-"""Site learning: refit time at the node's store sizes, the half-life's recovery, the cost of a
-change of constants on a big store, and decisions while a refit runs beside them.
+"""Site learning: refit time at the node's store sizes, the half-life's recovery.
+
+The cost of a change of constants on a big store, and decisions while a refit runs beside them.
 
 1. Refit time: simulated sites (10 outcomes per person, 15 % of asks unanswered) of 1 000,
    10 000 and 100 000 outcomes in an SQLite store; the read of every outcome and ask (the
@@ -199,7 +200,8 @@ def decisions_beside_a_refit(tmp, pause_s: float) -> None:
         ("in a worker process (the node)", f"{t_proc:.1f}", len(in_process),
          q(in_process, 50), q(in_process, 95), q(in_process, 100))],
         (False, True, True, True, True, True)))
-    print(f"the same refit both ways: {reply[0][0] == 'ok' and reply[0][1].model == box['r'].model}"
+    same = reply[0][0] == "ok" and reply[0][1].model == box["r"].model
+    print(f"the same refit both ways: {same}"
           " (the process's time includes its start, about 2 s, and sending the events)")
 
 

@@ -105,7 +105,8 @@ def main() -> int:
         a = by_level[level]
         n_people = r["levels"][level]["people"]
         print(f"{level:5}  {a['s']:7.1f}  {a['people_sent'] / a['s']:8.1f}  {n_people:7d}  "
-              f"{a['needs'] / a['s']:7.2f}  {100.0 * a['people_rx'] / max(a['people_sent'], 1):11.1f}"
+              f"{a['needs'] / a['s']:7.2f}  "
+              f"{100.0 * a['people_rx'] / max(a['people_sent'], 1):11.1f}"
               f"  {a['cpu_s']:10.2f}  {a['cpu_s'] / a['s']:7.3f}")
     print("(people rx: share of the people documents sent that the node counted, /diagnostics)")
     print()

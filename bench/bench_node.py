@@ -55,8 +55,11 @@ def percentile(xs, q):
 
 
 def print_encoder_costs() -> None:
-    """One 200-candidate decision document written by json and by orjson (in this process:
-    the codec's own cost, apart from the middleware)."""
+    """Print the cost of writing one 200-candidate decision by json and by orjson.
+
+    One 200-candidate decision document written by json and by orjson (in this process: the codec's
+    own cost, apart from the middleware).
+    """
     from helpaware_node import wire
     from helpaware_node.core import DecisionConfig, SiteModel
     from helpaware_node.core.belief import Belief
@@ -161,7 +164,8 @@ def main() -> int:
                   f"{percentile(xs, 0.99) * 1e3:7.3f}  {len(xs):8d}")
 
         lat = round_trips(view(20, "p"), args.needs, "a")
-        print(f"help need -> decision across processes, 20 people in view, {args.needs} needs each")
+        print("help need -> decision across processes, 20 people in view, "
+              f"{args.needs} needs each")
         print(f"{'':8}  {'median ms':>9}  {'p99 ms':>7}  {'received':>8}")
         for tag in ("node", "relay"):
             row(tag, lat[tag])

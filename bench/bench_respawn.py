@@ -1,5 +1,6 @@
-"""Benchmark: how soon a decision node killed with SIGKILL and started again answers a help need,
-beside a clean first start, against inputs that stay up the whole time.
+"""Benchmark: how soon a decision node killed with SIGKILL and started again answers a help need.
+
+Beside a clean first start, against inputs that stay up the whole time.
 
 A separate long-lived process (test/reliability/long_lived_inputs.py) publishes `people` at
 10 Hz and, for each node start, opens a help need every 0.1 s until the node decides one with
@@ -221,15 +222,18 @@ def comparison(starts: list[Start], variants: list[str]) -> list[str]:
     return lines
 
 
-DEFAULTS_PROFILE = ('<?xml version="1.0" encoding="UTF-8" ?>\n<dds xmlns="http://www.eprosima.com">'
+DEFAULTS_PROFILE = ('<?xml version="1.0" encoding="UTF-8" ?>\n'
+                    '<dds xmlns="http://www.eprosima.com">'
                     '<profiles><participant profile_name="middleware_defaults" '
                     'is_default_profile="true"><rtps/></participant></profiles></dds>\n')
 
 
 def variants(profile: str, defaults_profile: str) -> dict:
-    """name -> (environment of the node, of the long-lived process, share of the respawns per
-    round).  Every process gets the profile variable, so none falls back to what
-    launch_config would choose."""
+    """Return the variants: name -> node environment, process environment, share of respawns.
+
+    name -> (environment of the node, of the long-lived process, share of the respawns per round).
+    Every process gets the profile variable, so none falls back to what launch_config would choose.
+    """
     with_profile = {PROFILE_ENV: profile}
     without = {PROFILE_ENV: defaults_profile}
     return {

@@ -58,8 +58,8 @@ def main() -> int:
         bag = os.path.join(tmp, "bag")
         per_need = 6   # about: decision, 2 task_status, outcome, markers, diagnostics, people
         t0 = time.perf_counter()
-        written = write_sample_bag(bag, needs=args.needs,
-                                   extra_people_messages=max(0, args.messages - per_need * args.needs))
+        extra = max(0, args.messages - per_need * args.needs)
+        written = write_sample_bag(bag, needs=args.needs, extra_people_messages=extra)
         write_s = time.perf_counter() - t0
         size_mb = sum(os.path.getsize(os.path.join(bag, f)) for f in os.listdir(bag)) / 1e6
         print(f"bag: {size_mb:.0f} MB, {written.decisions} decisions, {written.people_messages} "
@@ -71,8 +71,8 @@ def main() -> int:
             runs[kind] = json.loads(proc.stdout.strip().splitlines()[-1])
     f, r = runs["floor"], runs["review"]
     print(f"{'':24}{'seconds':>10}{'messages':>12}{'peak RSS MB':>14}")
-    print(f"{'floor (read+deserialise)':24}{f['seconds']:>10.2f}{f['messages']:>12}{f['max_rss_mb']:>14.0f}")
-    print(f"{'review (report+summary)':24}{r['seconds']:>10.2f}{r['messages']:>12}{r['max_rss_mb']:>14.0f}")
+    for label, row in (("floor (read+deserialise)", f), ("review (report+summary)", r)):
+        print(f"{label:24}{row['seconds']:>10.2f}{row['messages']:>12}{row['max_rss_mb']:>14.0f}")
     ratio = r["seconds"] / f["seconds"]
     print(f"ratio review / floor: {ratio:.2f} (target <= 2: {'met' if ratio <= 2 else 'NOT met'})")
     return 0

@@ -40,7 +40,8 @@ import time
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, os.path.dirname(HERE))
 
-from helpaware_node.core import DecisionConfig, SiteModel, candidate_from_record, decide  # noqa: E402
+from helpaware_node.core import (DecisionConfig, SiteModel, candidate_from_record,  # noqa: E402
+                                 decide)
 from helpaware_node.core import HelpNeed, PersonRecord  # noqa: E402
 from helpaware_node.sim.compare import (TARGET_LABELS, compare, describe_pair,  # noqa: E402
                                         describe_regret, regret, summary_table, targets)
@@ -98,7 +99,7 @@ def speed(scenario_path: str) -> None:
 
 
 def site_learner_factory():
-    """(factory, None) when fit.online.SiteLearner can be built, else (None, the reason)."""
+    """Return (factory, None) when fit.online.SiteLearner can be built, else (None, the reason)."""
     try:
         from helpaware_node.fit.online import LearningSettings, SiteLearner
     except ImportError as exc:
@@ -118,8 +119,11 @@ def no_lookahead(sc, seeds: int) -> dict:
 
 
 def learning_rows(sc, factory, seeds: int, budget_s: float) -> tuple[list, list, float]:
-    """Runs of `learning` on the first seeds while the budget lasts (at least one batch of
-    JOBS seeds, run side by side)."""
+    """Run `learning` on the first seeds while the budget lasts.
+
+    Runs of `learning` on the first seeds while the budget lasts (at least one batch of JOBS seeds,
+    run side by side).
+    """
     runs, t0 = [], time.monotonic()
     while budget_s > 0.0 and len(runs) < seeds:
         if runs and time.monotonic() - t0 > budget_s * len(runs) / (len(runs) + JOBS):

@@ -187,16 +187,21 @@ def report(n_people, n_events, size_mb, build_s, import_s, open_s, rss_mb, store
         print(f"{f'  its time {where}{extra} (s)':<52}{job_s:>14.3f}")
     print()
     print("floor: BEGIN IMMEDIATE; INSERT the event row; UPDATE the person's snapshot row; upsert")
-    print("the robot's sequence; COMMIT - by hand with the sqlite3 module, in the store's own tables")
+    print("the robot's sequence; COMMIT - by hand with the sqlite3 module, in the store's own "
+          "tables")
     print("and connection (WAL, synchronous=FULL, secure_delete), other people than the store's;")
-    print("append = store.append of the same kind of outcome (checks, snapshot read, fold, writes).")
+    print("append = store.append of the same kind of outcome (checks, snapshot read, fold, "
+          "writes).")
     return 0
 
 
 def executor_gaps(path: str, n_people: int, t_end: float) -> dict:
-    """The longest gap between the calls of a 5 ms timer while each store job runs on the
-    worker (store/jobs.py, reported back by a guard condition as in ros/node.py), on the
-    big store; the reference row runs a forget in a timer callback, as the node did."""
+    """Print the longest timer gap while each store job runs on the worker.
+
+    The longest gap between the calls of a 5 ms timer while each store job runs on the worker
+    (store/jobs.py, reported back by a guard condition as in ros/node.py), on the big store; the
+    reference row runs a forget in a timer callback, as the node did.
+    """
     import rclpy
     from rclpy.executors import SingleThreadedExecutor
     from helpaware_node.store.jobs import StoreJobs

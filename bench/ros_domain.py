@@ -15,7 +15,7 @@ _HELD: list = []
 
 
 def claim_domain_id() -> str:
-    """A free id in the Linux-safe range 1-101 (the first one locked by nobody else)."""
+    """Return a free id in the Linux-safe range 1-101 (the first one locked by nobody else)."""
     ids = list(range(1, 102))
     random.SystemRandom().shuffle(ids)
     for domain_id in ids:

@@ -8,14 +8,18 @@ import sys
 # subcommand -> (module under helpaware_node, one-line help). Each module has
 # add_arguments(parser) and run(args) -> exit code; imported only when used.
 SUBCOMMANDS = {
-    "record": ("tools.record", "record the node's topics into a rosbag2 MCAP bag (hashed person ids)"),
-    "review": ("tools.review", "report on a bag: timeline, willingness, calibration, limits, replay"),
+    "record": ("tools.record",
+               "record the node's topics into a rosbag2 MCAP bag (hashed person ids)"),
+    "review": ("tools.review",
+               "report on a bag: timeline, willingness, calibration, limits, replay"),
     "demo": ("tools.demo", "run the demo scenario (invented hospital night shift)"),
     "fit": ("tools.fit", "fit the site constants from logged outcomes; writes a parameter file"),
-    "store": ("tools.store_admin", "inspect the belief store; opt out, forget, compact, export CSV"),
+    "store": ("tools.store_admin",
+              "inspect the belief store; opt out, forget, compact, export CSV"),
     "simulate": ("tools.simulate", "run every policy on a simulated site; table, JSON, plots"),
     "privacy": ("tools.privacy", "opt out or erase a person on every robot (signed requests)"),
-    "shm-sweep": ("tools.shm_sweep", "remove the shared-memory files that killed decision nodes left"),
+    "shm-sweep": ("tools.shm_sweep",
+                  "remove the shared-memory files that killed decision nodes left"),
 }
 
 

@@ -40,7 +40,10 @@ WHAT = "fleet message"
 
 
 def refusal_reason(exc: CoreInputError) -> str:
-    """The /diagnostics bucket of a refusal: a signature reason, old_format, or malformed."""
+    """Return the /diagnostics bucket of a refusal.
+
+    a signature reason, old_format, or malformed.
+    """
     return getattr(exc, "reason", MALFORMED)
 
 
@@ -51,7 +54,8 @@ class PrivacyAct:
 
     `request_id` names the request the act belongs to: the console's request has its own id
     there, a robot's answer carries the id of the request it applied, and an opt-out a robot
-    re-offers at start has none.  Each robot applies one request once (`identity`)."""
+    re-offers at start has none.  Each robot applies one request once (`identity`).
+    """
 
     action: str         # "forget" or "opt_out" (the document kind)
     person_key: str
@@ -67,7 +71,7 @@ class PrivacyAct:
     @classmethod
     def new(cls, action: str, person_key: str, sender: str, request_id: Optional[str] = None,
             issued_s: Optional[float] = None) -> "PrivacyAct":
-        """A fresh act; `request_id=None` makes it a request of its own."""
+        """Return a fresh act; `request_id=None` makes it a request of its own."""
         act_id = f"{sender}/{secrets.token_hex(8)}"
         return cls(action, person_key, sender, act_id,
                    act_id if request_id is None else request_id,
@@ -89,8 +93,11 @@ def _outcome_fields(e: StoredEvent) -> dict:
 
 
 def _number(doc: Mapping, name: str) -> float:
-    """A number field as float, or CoreInputError naming it (missing, not a number, beyond
-    any float); its range is the store's check."""
+    """Return a number field as float.
+
+    Or CoreInputError naming it (missing, not a number, beyond any float); its range is the store's
+    check.
+    """
     if name not in doc:
         raise CoreInputError(f"{WHAT}: missing field {name}")
     value = doc[name]
@@ -104,7 +111,7 @@ def _number(doc: Mapping, name: str) -> float:
 
 
 def _text(doc: Mapping, name: str, default: Optional[str] = None) -> str:
-    """A text field (its length and content are the store's checks), or CoreInputError."""
+    """Return a text field (its length and content are the store's checks), or CoreInputError."""
     if name not in doc:
         if default is None:
             raise CoreInputError(f"{WHAT}: missing field {name}")
@@ -175,7 +182,7 @@ KINDS: dict[str, Kind] = {
 
 # ---------------------------------------------------------------------------- the pair
 def encode_document(kind: str, value: Any, keys: KeyRing) -> str:
-    """The signed JSON text of `value` as a document of `kind` (checked as it would be read)."""
+    """Return the signed JSON text of `value` as a `kind` document (checked as it is read)."""
     if kind not in KINDS:
         raise CoreInputError(f"{WHAT}: kind {kind!r} is not one of {', '.join(KINDS)}")
     doc = {"v": FORMAT_VERSION, "kind": kind, **KINDS[kind].to_fields(value)}
@@ -185,13 +192,16 @@ def encode_document(kind: str, value: Any, keys: KeyRing) -> str:
 
 def decode_document(text: Any, keys: KeyRing, now_s: Optional[float] = None,
                     what: str = WHAT) -> tuple[str, Any]:
-    """(kind, value) of a signed document: StoredEvent for outcome, AskEvent for ask,
-    PrivacyAct for forget and opt_out.  The signature is checked before any field is looked at."""
+    """(kind, value) of a signed document.
+
+    StoredEvent for outcome, AskEvent for ask, PrivacyAct for forget and opt_out.  The signature is
+    checked before any field is looked at.
+    """
     return decode_parsed(load_document(text, what), keys, now_s, what)
 
 
 def load_document(text: Any, what: str = WHAT) -> dict:
-    """The JSON object in `text` (duplicate names and NaN/Infinity refused)."""
+    """Return the JSON object in `text` (duplicate names and NaN/Infinity refused)."""
     if not isinstance(text, str):
         raise CoreInputError(f"{what}: expected text, got {type(text).__name__}")
     if len(text) > MAX_DOCUMENT_CHARS:
@@ -237,9 +247,9 @@ def _sender(doc: Mapping) -> str:
 
 
 # ---------------------------------------------------------------------------- privacy topic
-REQUEST_MAX_AGE_S = 600.0     # a privacy request older (or newer) than this is refused as a
-                              # replay (common practice for signed requests, no source; the
-                              # sender's and the robot's clocks must agree to within it)
+# a privacy request older (or newer) than this is refused as a replay (common practice for
+# signed requests, no source; the sender's and the robot's clocks must agree to within it)
+REQUEST_MAX_AGE_S = 600.0
 
 
 def check_fresh(act: PrivacyAct, now_s: float, what: str) -> None:
@@ -251,9 +261,11 @@ def check_fresh(act: PrivacyAct, now_s: float, what: str) -> None:
 
 def parse_unsigned_request(doc: Mapping, key_for: Callable[[str], str],
                            what: str) -> tuple[str, str]:
-    """(action, person_key) of an unsigned lab request
-    {"action": "opt_out"|"forget", "person_id"|"person_key": ...}; a perceived id is hashed at
-    once and never kept or logged."""
+    """Return (action, person_key) of an unsigned lab request.
+
+    (action, person_key) of an unsigned lab request {"action": "opt_out"|"forget",
+    "person_id"|"person_key": ...}; a perceived id is hashed at once and never kept or logged.
+    """
     for name in ("action", "person_id", "person_key"):
         value = doc.get(name)
         if isinstance(value, str):

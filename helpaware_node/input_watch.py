@@ -51,7 +51,7 @@ class InputWatch:
         self._episode_from_s: dict[str, Optional[float]] = {t: None for t in self.topics}
 
     def note(self, topic: str, now_s: float) -> None:
-        """A message on `topic` arrived at `now_s`."""
+        """Note that a message on `topic` arrived at `now_s`."""
         if topic not in self._last_s:
             raise KeyError(f"topic: {topic!r} is not watched (watched: {', '.join(self.topics)})")
         if self._first_s[topic] is None:
@@ -60,15 +60,18 @@ class InputWatch:
         self._last_s[topic] = now_s if last is None else max(last, now_s)
 
     def silent_since_s(self, topic: str) -> float:
-        """The time silence is counted from: the last message, or the start of watching."""
+        """Return the time silence is counted from: the last message, or the start of watching."""
         last = self._last_s[topic]
         return self.start_s if last is None else last
 
     def check(self, now_s: float, limits_s: Mapping[str, float],
               publishers: Mapping[str, int]) -> tuple[list[TopicStatus], list[SilenceChange]]:
-        """Statuses of every watched topic at `now_s`, and the episodes begun or ended since the
-        last check.  `limits_s[topic]` is the silence limit in seconds (0 or missing: no
-        warning); `publishers[topic]` the matched publisher count to report."""
+        """Statuses of every watched topic at `now_s`.
+
+        The episodes begun or ended since the last check.  `limits_s[topic]` is the silence limit
+        in seconds (0 or missing: no warning); `publishers[topic]` the matched publisher count to
+        report.
+        """
         statuses, changes = [], []
         for topic in self.topics:
             since = self.silent_since_s(topic)
@@ -100,7 +103,7 @@ def warning_text(statuses: Iterable[TopicStatus]) -> str:
 
 
 def change_text(change: SilenceChange, limit_s: float) -> str:
-    """The log line for one change (said once per episode)."""
+    """Return the log line for one change (said once per episode)."""
     who = f"{change.publishers} publisher{'' if change.publishers == 1 else 's'} matched"
     if change.began:
         return (f"{change.topic}: no message for {change.silence_s:.1f} s ({who}, limit "

@@ -3,8 +3,9 @@
 The file has the usual form `<node name or /**/name>: {ros__parameters: {...}}`.  Nested
 groups are flattened with '.'; names are the node's (`k_busy`, `continue_cost_s.door`, ...).
 Values not given keep the `base` values (the recorded parameters), so a file may hold only the
-values to change.  The conversion is the node's own (`helpaware_node.ros.params.build`).  Parameters that are not decision settings (topics, store, ...) are listed in
-`ignored` so the report can show them.
+values to change.  The conversion is the node's own (`helpaware_node.ros.params.build`).
+Parameters that are not decision settings (topics, store, ...) are listed in `ignored` so the
+report can show them.
 """
 from __future__ import annotations
 
@@ -31,7 +32,7 @@ class LoadedParams:
 
 
 def _find_parameters(doc: Any, path: str) -> dict:
-    """The first `ros__parameters` mapping in the file (depth-first, file order)."""
+    """Return the first `ros__parameters` mapping in the file (depth-first, file order)."""
     if isinstance(doc, Mapping):
         if "ros__parameters" in doc:
             params = doc["ros__parameters"]
@@ -66,9 +67,12 @@ def parameters_from_yaml(path: str) -> dict:
 
 def apply_parameters(flat: Mapping[str, Any], base_model: SiteModel, base_config: DecisionConfig,
                      path: str = "<parameters>") -> LoadedParams:
-    """Overlay the file's values on the base values and build them with the node's own
-    conversion (`ros.params.build`, importable without rclpy), so ranges and cross-checks
-    are exactly the node's."""
+    """Overlay the file's values on the base values, built by the node's own conversion.
+
+    Overlay the file's values on the base values and build them with the node's own conversion
+    (`ros.params.build`, importable without rclpy), so ranges and cross-checks are exactly the
+    node's.
+    """
     from .ros import params as node_params
     values = node_params.defaults(list(base_config.continue_costs_s))
     base = {**to_plain(base_model), **to_plain(base_config)}

@@ -20,7 +20,7 @@ SOURCE_DIRS = {"config": "config", "scenarios": "scenarios",
 
 
 def ament_prefix() -> Optional[str]:
-    """The package's prefix in the ament index (AMENT_PREFIX_PATH), or None outside one."""
+    """Return the package's prefix in the ament index (AMENT_PREFIX_PATH), or None outside one."""
     if not os.environ.get("AMENT_PREFIX_PATH"):
         return None
     try:
@@ -46,9 +46,11 @@ def data_dir(kind: str) -> str:
 
 
 def data_file(kind: str, name: str) -> str:
-    """A file the user named: a path that exists, or any name with a folder in it, is taken as
-    given; a bare name (`hospital_night.yaml`, or `hospital_night`) is looked up in
-    data_dir(kind)."""
+    """Return the path of a file the user named.
+
+    A path that exists, or any name with a folder in it, is taken as given; a bare name
+    (`hospital_night.yaml`, or `hospital_night`) is looked up in data_dir(kind).
+    """
     if os.path.exists(name) or os.sep in name or (os.altsep and os.altsep in name):
         return os.path.abspath(name)
     folder = data_dir(kind)
@@ -64,8 +66,11 @@ def available(kind: str) -> list[str]:
 
 
 def executable(name: str) -> Optional[str]:
-    """lib/<package>/<name> (the ament_python layout `ros2 run` uses) in the first install that
-    has it, else the console script beside this Python (a venv's bin/); None if neither."""
+    """Return the path of an installed executable, or None.
+
+    lib/<package>/<name> (the ament_python layout `ros2 run` uses) in the first install that has
+    it, else the console script beside this Python (a venv's bin/); None if neither.
+    """
     candidates = [os.path.join(p, "lib", PACKAGE, name) for p in install_prefixes()]
     candidates.append(os.path.join(os.path.dirname(sys.executable), name))
     for path in candidates:

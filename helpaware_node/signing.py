@@ -1,4 +1,4 @@
-"""Signatures on fleet and privacy documents: key derivation, canonical encoding, HMAC (no rclpy).
+r"""Signatures on fleet and privacy documents: key derivation, canonical encoding, HMAC (no rclpy).
 
 Every document a robot or the operator console publishes on the fleet or the privacy topic
 carries three fields besides its own:
@@ -12,7 +12,8 @@ carries three fields besides its own:
 The signing key is never the key that hashes person ids: it is derived with HKDF-SHA256
 (RFC 5869) from the site key file's signing root under a purpose label, and so is the key id:
 
-  signing key = HKDF(IKM = signing root, salt = "", info = "helpaware fleet signing key v2", L = 32)
+  signing key = HKDF(IKM = signing root, salt = "",
+                     info = "helpaware fleet signing key v2", L = 32)
   key id      = HKDF(IKM = signing root, salt = "", info = "helpaware fleet key id v2", L = 8)
 
 Until a site first rotates its signing key the signing root is the site key itself (one secret
@@ -20,7 +21,7 @@ file does both jobs, through two different keys); see store/keys.py and docs/sec
 
 Canonical encoding (one byte string per JSON value; self-delimiting, so unambiguous):
 
-  document = b"helpaware signed document v2\\n" + value(the object without "sig")
+  document = b"helpaware signed document v2\n" + value(the object without "sig")
   null  -> b"n"              true -> b"T"           false -> b"F"
   number-> b"d" + IEEE 754 binary64, big-endian     (JSON has one number type: 1 and 1.0 are
                                                      the same number; -0 is written as 0)
@@ -88,7 +89,7 @@ def hkdf_sha256(ikm: bytes, info: bytes, length: int = 32, salt: bytes = b"") ->
 
 # ---------------------------------------------------------------------------- encoding
 def canonical_bytes(document: Mapping[str, Any]) -> bytes:
-    """The bytes the signature covers: the document without its `sig` field."""
+    """Return the bytes the signature covers: the document without its `sig` field."""
     if not isinstance(document, Mapping):
         raise CanonicalError("document: expected a JSON object")
     body = {k: v for k, v in document.items() if k != SIG_FIELD}
@@ -182,8 +183,11 @@ class SigningKey:
 
 @dataclass(frozen=True)
 class KeyRing:
-    """The keys a robot signs with and accepts: the current one, and for a stated window the
-    previous one (a rotation, docs/security.md).  Times are seconds since the epoch (UTC)."""
+    """The keys a robot signs with and accepts.
+
+    The current one, and for a stated window the previous one (a rotation, docs/security.md).
+    Times are seconds since the epoch (UTC).
+    """
 
     site_id: str
     current: SigningKey
@@ -191,7 +195,7 @@ class KeyRing:
     previous_until_s: float = 0.0
 
     def sign(self, document: Mapping[str, Any]) -> dict:
-        """A copy of `document` with site, key_id and sig (any old signature replaced)."""
+        """Return a copy of `document` with site, key_id and sig (any old signature replaced)."""
         doc = {k: v for k, v in document.items() if k not in SIGNATURE_FIELDS}
         doc[SITE_FIELD] = self.site_id
         doc[KEY_ID_FIELD] = self.current.key_id
@@ -199,8 +203,10 @@ class KeyRing:
         return doc
 
     def check(self, document: Mapping[str, Any], now_s: float, what: str = "document") -> str:
-        """Raise Refused unless the document is signed by a key this ring accepts at `now_s`;
-        returns the key id that signed it."""
+        """Raise Refused unless the document is signed by a key this ring accepts at `now_s`.
+
+        Returns the key id that signed it.
+        """
         sig = document.get(SIG_FIELD)
         if sig is None:
             raise Refused(UNSIGNED, f"{what}: unsigned (no sig field); only documents signed "

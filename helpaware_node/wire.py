@@ -16,7 +16,7 @@ import json
 import math
 import re
 from dataclasses import dataclass, field
-from typing import Any, Iterable, Mapping, Optional, Sequence
+from typing import Any, Iterable, Mapping, NoReturn, Optional, Sequence
 
 import numpy as np
 
@@ -29,7 +29,7 @@ from .core.preview import describe, quoted, short_name, short_number
 try:      # optional (pip extra "fast"): writes a 200-candidate decision ~10x faster
     import orjson
 except ImportError:   # pragma: no cover - the standard library does the same, slower
-    orjson = None
+    orjson = None  # type: ignore[assignment, unused-ignore]   # None: tested where used
 
 VERSION = 1
 MAX_DOCUMENT_BYTES = 1_000_000
@@ -56,7 +56,8 @@ class WireError(ValueError):
 
 @dataclass(frozen=True)
 class F:
-    kind: str                       # string | number | integer | boolean | enum | array | object | any_object
+    # string | number | integer | boolean | enum | array | object | any_object
+    kind: str
     required: bool = True
     nullable: bool = False
     low: float = -BIG
@@ -64,21 +65,21 @@ class F:
     low_open: bool = False
     min_len: int = 0
     max_len: int = MAX_TEXT_CHARS
-    choices: tuple = ()
+    choices: tuple[Any, ...] = ()
     items: Optional["F"] = None
     fields: Mapping[str, "F"] = field(default_factory=dict)
     description: str = ""
 
 
-def _id(desc: str, **kw) -> F:
+def _id(desc: str, **kw: Any) -> F:
     return F("string", min_len=1, max_len=MAX_ID_CHARS, description=desc, **kw)
 
 
-def _time(desc: str, **kw) -> F:
+def _time(desc: str, **kw: Any) -> F:
     return F("number", low=-TIME_LIMIT_S, high=TIME_LIMIT_S, description=desc, **kw)
 
 
-def _header(name: str) -> dict:
+def _header(name: str) -> dict[str, Any]:
     return {"doc": F("enum", choices=(name,), description="document name"),
             "version": F("enum", choices=(VERSION,), description="document version")}
 
@@ -128,7 +129,8 @@ NEED = F("object", fields={
     "request_id": _id("help need id"),
     "kind": F("string", min_len=1, max_len=MAX_LABEL_CHARS, description="request kind"),
     "urgency": F("number", low=0.0, high=1.0, description="urgency"),
-    "continue_cost_s": F("number", nullable=True, low=0.0, high=1e9, description="override or null"),
+    "continue_cost_s": F("number", nullable=True, low=0.0, high=1e9,
+                         description="override or null"),
     "help_time_s": F("number", nullable=True, low=0.0, high=1e9, description="override or null"),
     "opened_at_s": _time("when the need opened, seconds"),
 })
@@ -215,7 +217,7 @@ SPECS: dict[str, F] = {"people": PEOPLE, "task_status": TASK_STATUS, "outcome": 
 _LONGEST_NUMBER = -2.2250738585072014e-308      # repr: 24 characters, the most a float takes
 
 
-def _fixed_bytes(spec: F, own: tuple) -> int:
+def _fixed_bytes(spec: F, own: tuple[Any, ...]) -> int:
     doc: dict[str, Any] = {}
     for name, f in spec.fields.items():
         if name in own:
@@ -237,10 +239,12 @@ ASK_TIME_BYTES = len(repr(_LONGEST_NUMBER)) + 1
 
 
 def candidate_bytes_bound(candidate: Candidate, quick: bool = False) -> int:
-    """At most how many bytes `candidate` adds to a decision document (its entry in
-    `candidates` and its row in `rationale`, as `fast_text` writes them). `quick`: a looser
-    bound from lengths alone (12 bytes a character: two escapes of six), without writing the
-    texts."""
+    """Return at most how many bytes `candidate` adds to a decision document.
+
+    At most how many bytes `candidate` adds to a decision document (its entry in `candidates` and
+    its row in `rationale`, as `fast_text` writes them). `quick`: a looser bound from lengths alone
+    (12 bytes a character: two escapes of six), without writing the texts.
+    """
     if quick:
         text, activity = 12 * len(candidate.person_id), 12 * len(candidate.activity)
     else:
@@ -258,9 +262,11 @@ _PERSON_FIELDS = frozenset(PERSON.fields)
 
 
 def _plain_person(p: Any) -> bool:
-    """True for a person entry that `_check(PERSON, ...)` accepts, settled in one pass (a
-    people document at 30 Hz holds up to MAX_PEOPLE of them). False means "not settled
-    here", never "invalid": the generic check then runs and names the field."""
+    """Return True for a person entry that `_check(PERSON, ...)` accepts.
+
+    Settled in one pass (a people document at 30 Hz holds up to MAX_PEOPLE of them). False means
+    "not settled here", never "invalid": the generic check then runs and names the field.
+    """
     if type(p) is not dict or not _PERSON_FIELDS.issuperset(p):
         return False
     pid = p.get("id")
@@ -329,10 +335,12 @@ def _check(spec: F, value: Any, path: str) -> None:
         if not spec.min_len <= len(value) <= spec.max_len:
             raise WireError(f"{path}: {len(value)} items is outside the allowed "
                             f"[{spec.min_len}, {spec.max_len}]")
-        plain = _PLAIN_ITEM.get(id(spec.items))
+        items = spec.items
+        assert items is not None, spec   # every array spec names its items
+        plain = _PLAIN_ITEM.get(id(items))
         for i, item in enumerate(value):
             if plain is None or not plain(item):
-                _check(spec.items, item, f"{path}[{i}]")
+                _check(items, item, f"{path}[{i}]")
     elif k == "any_object":
         if not isinstance(value, dict):
             raise WireError(f"{path}: expected an object, got {describe(value)}")
@@ -354,7 +362,7 @@ def _check(spec: F, value: Any, path: str) -> None:
             _check(sub, value[name], sub_path)
 
 
-def validate(name: str, document: Any) -> dict:
+def validate(name: str, document: Any) -> dict[str, Any]:
     """Check a decoded document against its spec; returns it or raises WireError."""
     spec = SPECS.get(name)
     if spec is None:
@@ -371,8 +379,10 @@ def validate(name: str, document: Any) -> dict:
 
 
 def lone_surrogate_at(text: str) -> Optional[int]:
-    """Where a lone surrogate (JSON "\\ud800") sits in `text`, or None. Such text cannot be
-    hashed, stored in SQLite or published, so every input refuses it by field."""
+    r"""Where a lone surrogate (JSON "\ud800") sits in `text`, or None.
+
+    Such text cannot be hashed, stored in SQLite or published, so every input refuses it by field.
+    """
     if text.isascii():
         return None
     try:
@@ -382,15 +392,15 @@ def lone_surrogate_at(text: str) -> Optional[int]:
     return None
 
 
-def _refuse_constant(text: str):
+def _refuse_constant(text: str) -> NoReturn:
     raise WireError(f"document: {text} is not allowed (numbers must be finite)")
 
 
-def _refuse_duplicates(pairs: list) -> dict:
+def _refuse_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     """JSON objects with a repeated name are ambiguous (parsers keep the first or the last)."""
     obj = dict(pairs)
     if len(obj) != len(pairs):
-        seen: set = set()
+        seen: set[str] = set()
         for name, _ in pairs:
             if name in seen:
                 raise WireError(f"document: duplicate field {quoted(name)} in one JSON object")
@@ -398,7 +408,7 @@ def _refuse_duplicates(pairs: list) -> dict:
     return obj
 
 
-def decode(name: str, text: Any) -> dict:
+def decode(name: str, text: Any) -> dict[str, Any]:
     """Parse and validate the JSON text of document `name`."""
     if isinstance(text, (bytes, bytearray)):
         try:
@@ -413,8 +423,11 @@ def decode(name: str, text: Any) -> dict:
 
 
 def parse_json(text: str) -> Any:
-    """JSON text to values, strictly: NaN/Infinity and repeated names in one object refused
-    (WireError, "document: ..."); also used for the signed fleet documents."""
+    """JSON text to values, strictly.
+
+    NaN/Infinity and repeated names in one object refused (WireError, "document: ..."); also used
+    for the signed fleet documents.
+    """
     try:
         return json.loads(text, parse_constant=_refuse_constant,
                           object_pairs_hook=_refuse_duplicates)
@@ -439,8 +452,9 @@ def deep_nesting_at(text: str, levels: int) -> Optional[tuple[str, int]]:
     """(path, levels) of the first value nested `levels` deep in JSON `text`, or None.
 
     Reads the text without recursion (the json module recurses, and gives up without saying
-    where), so a refusal can name the field that holds the nesting: `time_s[0][0][0]...`."""
-    stack: list[list] = []              # per open container: [is_object, key or index]
+    where), so a refusal can name the field that holds the nesting: `time_s[0][0][0]...`.
+    """
+    stack: list[list[Any]] = []              # per open container: [is_object, key or index]
     expect_key = False
     for m in _JSON_TOKEN.finditer(text):
         tok = m.group()
@@ -468,9 +482,11 @@ def deep_nesting_at(text: str, levels: int) -> Optional[tuple[str, int]]:
     return None
 
 
-def _nesting_path(stack: list[list], parts_shown: int = 6) -> str:
-    """The path of the innermost container's place, as wire writes paths, cut short after
-    `parts_shown` parts (the field that holds the nesting comes first)."""
+def _nesting_path(stack: list[list[Any]], parts_shown: int = 6) -> str:
+    """Return the path of the innermost container's place, as wire writes paths.
+
+    Cut short after `parts_shown` parts (the field that holds the nesting comes first).
+    """
     parts: list[str] = []
     for is_object, at in stack[:parts_shown]:
         if is_object:
@@ -496,7 +512,8 @@ def encode(name: str, document: Mapping[str, Any]) -> str:
 # ----------------------------------------------------------------------------------------
 # One-call builders for integrators (each returns validated JSON text).
 
-def people_document(people: Iterable[Mapping[str, Any]], stamp_s: float, frame_id: str = "") -> str:
+def people_document(people: Iterable[Mapping[str, Any]], stamp_s: float,
+                    frame_id: str = "") -> str:
     """people: mappings with id, distance_m and optional busyness, activity, position."""
     doc = {"doc": "people", "version": VERSION, "stamp_s": float(stamp_s),
            "people": [dict(p) for p in people]}
@@ -551,12 +568,13 @@ def people_from(doc: Mapping[str, Any]) -> list[SeenPerson]:
         pos = p.get("position")
         out.append(SeenPerson(p["id"], float(p["distance_m"]),
                               None if p.get("busyness") is None else float(p["busyness"]),
-                              p.get("activity", ""), tuple(float(v) for v in pos) if pos else None))
+                              p.get("activity", ""),
+                              (float(pos[0]), float(pos[1]), float(pos[2])) if pos else None))
     return out
 
 
 def help_need_from(doc: Mapping[str, Any], opened_at_s: float) -> HelpNeed:
-    """A HelpNeed from an `open` task_status document (opened at the node's clock time)."""
+    """Return a HelpNeed from an `open` task_status document (opened at the node's clock time)."""
     return HelpNeed(request_id=doc["request_id"], kind=doc["kind"], opened_at_s=opened_at_s,
                     urgency=float(doc.get("urgency", 0.0)),
                     continue_cost_s=doc.get("continue_cost_s"), help_time_s=doc.get("help_time_s"))
@@ -565,13 +583,13 @@ def help_need_from(doc: Mapping[str, Any], opened_at_s: float) -> HelpNeed:
 # ----------------------------------------------------------------------------------------
 # The decision document and its exact replay.
 
-def _need_plain(need: HelpNeed) -> dict:
+def _need_plain(need: HelpNeed) -> dict[str, Any]:
     return {"request_id": need.request_id, "kind": need.kind, "urgency": float(need.urgency),
             "continue_cost_s": need.continue_cost_s, "help_time_s": need.help_time_s,
             "opened_at_s": float(need.opened_at_s)}
 
 
-def _candidate_plain(c: Candidate) -> dict:
+def _candidate_plain(c: Candidate) -> dict[str, Any]:
     times = c.ask_times_s
     return {"person_id": c.person_id, "distance_m": float(c.distance_m),
             "observed_at_s": float(c.observed_at_s), "a": float(c.belief.a),
@@ -586,8 +604,9 @@ def _candidate_plain(c: Candidate) -> dict:
 def decision_to_document(decision: Decision, robot_ask_times_s: Sequence[float],
                          model: Optional[SiteModel] = None,
                          config: Optional[DecisionConfig] = None, robot_id: str = "",
-                         check: bool = True, source: Optional[tuple[str, int]] = None) -> dict:
-    """The decision as a plain document; `encode("decision", doc)` makes the text.
+                         check: bool = True,
+                         source: Optional[tuple[str, int]] = None) -> dict[str, Any]:
+    """Return the decision as a plain document; `encode("decision", doc)` makes the text.
 
     `check=False` skips validation (the node: every value comes from validated core values,
     and validating costs more than deciding; the tests check its output documents).
@@ -623,25 +642,31 @@ def _parameters_plain_cached(model: SiteModel, config: DecisionConfig,
 
 
 def _parameters_plain(model: SiteModel, config: DecisionConfig,
-                      source: Optional[tuple[str, int]] = None) -> dict:
-    return json.loads(_parameters_plain_cached(model, config, source))
+                      source: Optional[tuple[str, int]] = None) -> dict[str, Any]:
+    plain: dict[str, Any] = json.loads(_parameters_plain_cached(model, config, source))
+    return plain
 
 
 def compact_json(document: Any, finite: bool = False) -> str:
-    """Compact JSON text of a plain document; NaN and infinity are refused (ValueError).
+    r"""Compact JSON text of a plain document; NaN and infinity are refused (ValueError).
 
     `finite=True` says the caller has checked every float is finite, which lets orjson (when
     installed) write it: orjson would write NaN as null instead of refusing it. Its text is
-    never longer than the standard library's (UTF-8 rather than \\u escapes, shortest
-    float forms), so the byte bounds above hold for both."""
+    never longer than the standard library's (UTF-8 rather than \u escapes, shortest
+    float forms), so the byte bounds above hold for both.
+    """
     if finite and orjson is not None:
-        return orjson.dumps(document).decode("utf-8")
+        text: str = orjson.dumps(document).decode("utf-8")
+        return text
     return json.dumps(document, separators=(",", ":"), allow_nan=False)
 
 
 def evaluation_is_finite(decision: Decision) -> bool:
-    """Every number a decision document takes from the evaluation is finite (the inputs were
-    range-checked by the core, so these arrays are the only place a NaN could arise)."""
+    """Tell whether every number a decision takes from the evaluation is finite.
+
+    Every number a decision document takes from the evaluation is finite (the inputs were
+    range-checked by the core, so these arrays are the only place a NaN could arise).
+    """
     ev = decision.evaluation
     arrays = (ev.a, ev.b, ev.mean, ev.busyness, ev.ask_load, ev.c, ev.p, ev.interruption_s,
               ev.advantage_s, ev.voi_s, ev.future_requests, ev.lasting_cost_s, ev.score_s)
@@ -687,15 +712,18 @@ def replay_inputs(document: Mapping[str, Any]
     cands = [Candidate(person_id=c["person_id"], distance_m=c["distance_m"],
                        observed_at_s=c["observed_at_s"], belief=Belief(c["a"], c["b"]),
                        busyness=c["busyness"], activity=c["activity"],
-                       ask_times_s=tuple(c["ask_times_s"]), candidate_count=int(c["candidate_count"]),
+                       ask_times_s=tuple(c["ask_times_s"]),
+                       candidate_count=int(c["candidate_count"]),
                        first_seen_s=c["first_seen_s"], opted_out=c["opted_out"])
              for c in document["candidates"]]
     return need, cands, float(document["stamp_s"]), tuple(document["robot_ask_times_s"])
 
 
 def recorded_source(document: Mapping[str, Any]) -> tuple[str, int]:
-    """(site_constants, revision) of a decision's model; documents from before site
-    learning carry none: their constants came from the parameter file."""
+    """(site_constants, revision) of a decision's model.
+
+    Documents from before site learning carry none: their constants came from the parameter file.
+    """
     params = document.get("parameters") if isinstance(document, Mapping) else None
     source = params.get("source") if isinstance(params, dict) else None
     if not isinstance(source, dict):
@@ -704,7 +732,7 @@ def recorded_source(document: Mapping[str, Any]) -> tuple[str, int]:
 
 
 def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionConfig]:
-    """The SiteModel and DecisionConfig in force at the decision (from its `parameters`)."""
+    """Return the SiteModel and DecisionConfig in force at the decision (from its `parameters`)."""
     params = document.get("parameters") if isinstance(document, Mapping) else None
     if not isinstance(params, dict):
         raise WireError("parameters: absent from this decision document")
@@ -717,10 +745,11 @@ def recorded_params(document: Mapping[str, Any]) -> tuple[SiteModel, DecisionCon
 # ----------------------------------------------------------------------------------------
 # JSON Schema (draft 2020-12) generated from the same specs.
 
-def _schema(spec: F) -> dict:
+def _schema(spec: F) -> dict[str, Any]:
     k = spec.kind
     if k == "string":
-        out: dict[str, Any] = {"type": "string", "minLength": spec.min_len, "maxLength": spec.max_len}
+        out: dict[str, Any] = {"type": "string", "minLength": spec.min_len,
+                               "maxLength": spec.max_len}
     elif k in ("number", "integer"):
         out = {"type": k}
         out["exclusiveMinimum" if spec.low_open else "minimum"] = spec.low
@@ -730,6 +759,7 @@ def _schema(spec: F) -> dict:
     elif k == "enum":
         out = {"enum": list(spec.choices)}
     elif k == "array":
+        assert spec.items is not None, spec
         out = {"type": "array", "items": _schema(spec.items), "maxItems": spec.max_len}
         if spec.min_len:
             out["minItems"] = spec.min_len
@@ -749,7 +779,7 @@ def _schema(spec: F) -> dict:
     return out
 
 
-def json_schema(name: str) -> dict:
+def json_schema(name: str) -> dict[str, Any]:
     schema = _schema(SPECS[name])
     schema = {"$schema": "https://json-schema.org/draft/2020-12/schema",
               "$id": f"helpaware_node/{name}/v{VERSION}", "title": f"helpaware {name} document",

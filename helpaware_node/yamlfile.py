@@ -7,7 +7,7 @@ import yaml
 
 
 def load_yaml_file(path: str, error: type[Exception], what: str) -> Any:
-    """The parsed document; `error(message)` names `what`, the file and the reason."""
+    """Return the parsed document; `error(message)` names `what`, the file and the reason."""
     try:
         with open(path, encoding="utf-8") as fh:
             return yaml.safe_load(fh)

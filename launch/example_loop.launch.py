@@ -1,5 +1,7 @@
-"""The whole loop on a ROS 2 install: the decision node with the example stand-ins for
-perception, the behaviour layer and the ask delivery (helpaware_node/ros/examples/).
+"""The whole loop on a ROS 2 install.
+
+The decision node with the example stand-ins for perception, the behaviour layer and the ask
+delivery (helpaware_node/ros/examples/).
 
     ros2 launch helpaware_node example_loop.launch.py
     ros2 launch helpaware_node example_loop.launch.py namespace:=robot1 answer:=declined

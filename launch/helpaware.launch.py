@@ -1,6 +1,7 @@
-"""Launch the help-aware decision node (ROS 2 Humble, Jazzy, Kilted; needs launch_ros).
+r"""Launch the help-aware decision node (ROS 2 Humble, Jazzy, Kilted; needs launch_ros).
 
-    ros2 launch helpaware_node helpaware.launch.py params_file:=hospital_night.yaml namespace:=ward3
+    ros2 launch helpaware_node helpaware.launch.py params_file:=hospital_night.yaml \
+        namespace:=ward3
     ros2 launch helpaware_node helpaware.launch.py people_topic:=perception/people respawn:=true
 
 Arguments, executable, parameter file lookup and remaps come from

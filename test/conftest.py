@@ -13,7 +13,7 @@ os.environ.pop("ROS_LOCALHOST_ONLY", None)
 
 
 def _claim_domain_id() -> int:
-    """A domain id in the Linux-safe range 1-101 that no other test run on this machine holds.
+    """Claim a domain id in the Linux-safe range 1-101 that no other test run here holds.
 
     Each run keeps an exclusive lock on a file named after its id until it exits, so
     concurrent runs never share a domain; random order keeps runs from queueing on one id.
@@ -39,7 +39,9 @@ os.environ["ROS_DOMAIN_ID"] = str(_claim_domain_id())
 # A slow, noisy 2-core machine: no per-example deadlines.
 settings.register_profile("ci", deadline=None, max_examples=200,
                           suppress_health_check=[HealthCheck.too_slow])
-settings.load_profile("ci")
+# `make check` (quick checks for contributors) draws fewer examples; `make test` all of them
+settings.register_profile("quick", parent=settings.get_profile("ci"), max_examples=30)
+settings.load_profile(os.environ.get("HELPAWARE_HYPOTHESIS_PROFILE", "ci"))
 
 DATA_DIR = os.path.join(os.path.dirname(__file__), "data")
 
@@ -51,14 +53,17 @@ def data_dir():
 
 @pytest.fixture(autouse=True)
 def _own_ros_home(tmp_path_factory, monkeypatch):
-    """Each test gets its own ROS home, so a node's default store file never crosses tests
-    and nothing is written under the real ~/.ros."""
+    """Each test gets its own ROS home.
+
+    So a node's default store file never crosses tests and nothing is written under the real
+    ~/.ros.
+    """
     monkeypatch.setenv("ROS_HOME", str(tmp_path_factory.mktemp("ros_home")))
 
 
 @pytest.fixture(scope="module")
 def ctx():
-    """An rclpy context of its own for each module of node tests (imported only when used)."""
+    """Return an rclpy context of its own for each module of node tests."""
     import rclpy
     context = rclpy.Context()
     rclpy.init(context=context)

@@ -1,7 +1,7 @@
 """Second process of test_launch: publishes people, help needs and outcomes; prints decisions.
 
-Usage: python cross_process_driver.py <people topic> <namespace> ; prints one JSON line per decision and a
-final {"done": ...} line.  Everything is bounded by deadlines.
+Usage: python cross_process_driver.py <people topic> <namespace> ; prints one JSON line per
+decision and a final {"done": ...} line.  Everything is bounded by deadlines.
 """
 import json
 import sys
@@ -24,7 +24,8 @@ def main():
     tasks = node.create_publisher(String, "task_status", RELIABLE)
     outcomes = node.create_publisher(String, "outcome", RELIABLE)
     decisions = []
-    node.create_subscription(String, "decision", lambda m: decisions.append(json.loads(m.data)), RELIABLE)
+    node.create_subscription(String, "decision", lambda m: decisions.append(json.loads(m.data)),
+                             RELIABLE)
 
     def spin_until(pred, timeout_s):
         end = time.monotonic() + timeout_s
@@ -32,8 +33,9 @@ def main():
             rclpy.spin_once(node, timeout_sec=0.05)
         return pred()
 
-    ok = spin_until(lambda: people.get_subscription_count() and tasks.get_subscription_count()
-                    and outcomes.get_subscription_count() and node.count_publishers("decision"), 60)
+    ok = spin_until(lambda: (people.get_subscription_count() and tasks.get_subscription_count()
+                             and outcomes.get_subscription_count()
+                             and node.count_publishers("decision")), 60)
     view = [{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1},
             {"id": "porter-b", "distance_m": 3.0, "busyness": 0.7}]
     for _ in range(8):   # best-effort topic: let the first few get through before any need
@@ -41,6 +43,7 @@ def main():
         spin_until(lambda: False, 0.2)
     for step in range(3):
         rid = f"x{step}"
+
         def want():
             return any(d["request_id"] == rid for d in decisions)
         t_end = time.monotonic() + 60

@@ -1,4 +1,7 @@
-"""Walk a JSON document's fields and replace one of them: shared by the wire and node fuzz tests."""
+"""Walk a JSON document's fields and replace one of them.
+
+Shared by the wire and node fuzz tests.
+"""
 import copy
 
 
@@ -14,7 +17,7 @@ def field_paths(value, prefix=(), items_per_list=None):
 
 
 def replaced(doc, path, new):
-    """A deep copy of `doc` with the field at `path` set to `new` (the root path gives `new`)."""
+    """Return a deep copy of `doc` with the field at `path` set to `new` (root: `new`)."""
     if not path:
         return new
     d = copy.deepcopy(doc)

@@ -14,14 +14,17 @@ RESULTS = {0: Result.HELPED, 1: Result.DECLINED, 2: Result.NO_RESPONSE}
 
 
 def key_of(label: str) -> str:
-    """A 64-hex person key (as the store's HMAC gives) for a simulated person."""
+    """Return a 64-hex person key (as the store's HMAC gives) for a simulated person."""
     return hashlib.sha256(label.encode()).hexdigest()
 
 
 def events(sim: SimulatedAsks, robots: tuple[str, ...] = ("r1",)
            ) -> tuple[list[StoredEvent], list[AskEvent]]:
-    """Every ask as an AskEvent and every answered one as a StoredEvent, the robots taking
-    turns (so some are peers' events), each robot's ids in sequence like a real store."""
+    """Every ask as an AskEvent and every answered one as a StoredEvent.
+
+    The robots taking turns (so some are peers' events), each robot's ids in sequence like a real
+    store.
+    """
     keys = [key_of(k) for k in sim.person_keys]
     seq = {r: 0 for r in robots}
     outcomes, asks = [], []
@@ -47,11 +50,14 @@ def site(truth: SiteParams, people: int, asks_per_person: float, seed: int,
 
 def session_across_a_change(learned_values: dict, needs: int = 40, change_at: int = 20,
                             seed: int = 2, strangers: bool = True):
-    """A help session that decides `needs` needs, with the constants of `learned_values` put
-    in force at need `change_at` (as the node does on a new revision). Returns (decision
-    texts, outcome records (time_s, request id, person id, result), the store, the session,
-    the learned model). Answers are drawn at random (invented). With the ask's lasting cost in
-    the score, the robot prefers the stranger of each need to staff it will meet again."""
+    """Run a help session whose constants change at need `change_at`.
+
+    A help session that decides `needs` needs, with the constants of `learned_values` put in force
+    at need `change_at` (as the node does on a new revision). Returns (decision texts, outcome
+    records (time_s, request id, person id, result), the store, the session, the learned model).
+    Answers are drawn at random (invented). With the ask's lasting cost in the score, the robot
+    prefers the stranger of each need to staff it will meet again.
+    """
     import random
 
     from helpaware_node import wire

@@ -58,9 +58,11 @@ class Rig:
         """Publish until the node holds every listed person (best-effort topic)."""
         text = wire.people_document(people, self.node.now_s())
         ids = {p["id"] for p in people}
+
         def seen():
-            return ids <= set(self.node.session.seen) and all(
-                self.node.session.seen[p["id"]].person.distance_m == p["distance_m"] for p in people)
+            seen = self.node.session.seen
+            return ids <= set(seen) and all(
+                seen[p["id"]].person.distance_m == p["distance_m"] for p in people)
         for _ in range(100):
             self.people_pub.publish(String(data=text))
             if self.spin_until(seen, 0.3):
@@ -69,8 +71,12 @@ class Rig:
 
     def open_need(self, request_id, kind="door", **kw):
         n = len(self.decisions)
-        self.task_pub.publish(String(data=wire.task_status_document(request_id, "open", kind, **kw)))
-        mine = lambda: [d for d in self.decisions[n:] if d["request_id"] == request_id]  # noqa: E731
+        self.task_pub.publish(String(data=wire.task_status_document(request_id, "open", kind,
+                                                                    **kw)))
+
+        def mine():
+            return [d for d in self.decisions[n:] if d["request_id"] == request_id]
+
         assert self.spin_until(lambda: bool(mine())), "no decision arrived"
         return mine()[0]
 
@@ -80,8 +86,11 @@ class Rig:
         assert self.spin_until(lambda: self.node.counters.received["outcome"] > n)
 
     def send_privacy(self, action, person_id):
-        """A signed opt_out or forget request for a perceived id, as `helpaware privacy`
-        sends it (signed with the node's own site key file)."""
+        """Send a signed opt_out or forget request for a perceived id.
+
+        A signed opt_out or forget request for a perceived id, as `helpaware privacy` sends it
+        (signed with the node's own site key file).
+        """
         from helpaware_node.fleet_documents import PrivacyAct, encode_document
         from helpaware_node.ros.privacy import PRIVACY_QOS
         if getattr(self, "_privacy_pub", None) is None:

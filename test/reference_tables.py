@@ -1,5 +1,7 @@
-"""The published tables in test/data/ as arrays, checked against the counts in their README
-(one reader for the fit tests)."""
+"""The published tables in test/data/ as arrays.
+
+Checked against the counts in their README (one reader for the fit tests).
+"""
 from __future__ import annotations
 
 import os

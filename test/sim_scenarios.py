@@ -8,8 +8,11 @@ from helpaware_node.sim.scenario import Scenario, parse
 
 
 def scenario_from(base: Mapping, **changes) -> Scenario:
-    """`base` with each change applied at its path (`people__regulars=3` sets
-    base["people"]["regulars"]), parsed as a scenario file would be."""
+    """Return `base` with each change applied at its path, parsed as a scenario file would be.
+
+    `base` with each change applied at its path (`people__regulars=3` sets
+    base["people"]["regulars"]), parsed as a scenario file would be.
+    """
     data = copy.deepcopy(dict(base))
     for path, value in changes.items():
         node = data

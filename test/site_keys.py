@@ -1,5 +1,8 @@
-"""A fixed site key written where the store looks for it, for tests that start stores or
-nodes on files (one writer for all of them)."""
+"""A fixed site key written where the store looks for it.
+
+A fixed site key written where the store looks for it, for tests that start stores or nodes on
+files (one writer for all of them).
+"""
 from __future__ import annotations
 
 import os

@@ -6,7 +6,7 @@ from rosbags.rosbag2 import Reader, Writer
 from rosbags.rosbag2.enums import StoragePlugin
 
 from helpaware_node.bag import (BagReadError, BagSource, BagWriter, STRING_TYPE,
-                                        deserialize_string, serialize_string, typestore)
+                                deserialize_string, serialize_string, typestore)
 
 
 def test_string_cdr_matches_rosbags_serialiser():

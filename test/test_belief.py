@@ -120,7 +120,8 @@ def test_bad_belief_is_refused(a, b):
 
 
 def test_bad_site_model_names_the_field():
-    with pytest.raises(CoreInputError, match=r"notice_probability: 1.5 is outside the allowed range \[0, 1\]"):
+    with pytest.raises(CoreInputError,
+                       match=r"notice_probability: 1.5 is outside the allowed range \[0, 1\]"):
         SiteModel(notice_probability=1.5)
     with pytest.raises(CoreInputError, match="prior_a"):
         SiteModel(prior_a=0.0)

@@ -34,7 +34,7 @@ NUMBERS = st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.integers(
 
 
 def general_candidate_error(pid, d, t, x):
-    """What the field-by-field check says of these values (None: all in range)."""
+    """Return what the field-by-field check says of these values (None: all in range)."""
     try:
         check_range(f"distance_m of {pid}", d, 0.0, 1e6)
         check_range(f"observed_at_s of {pid}", t, -1e15, 1e15)
@@ -68,8 +68,11 @@ PERSON_VALUES = st.fixed_dictionaries(
 @settings(max_examples=600, deadline=None)
 @given(person=PERSON_VALUES)
 def test_the_one_pass_person_check_never_accepts_what_the_field_check_refuses(person):
-    """`_plain_person` True must mean `_check(PERSON)` passes; where it says False, decoding
-    still gives the field check's verdict and message (the generic path runs)."""
+    """`_plain_person` True must mean `_check(PERSON)` passes.
+
+    Where it says False, decoding still gives the field check's verdict and message (the generic
+    path runs).
+    """
     try:
         wire._check(wire.PERSON, person, "people[0]")
         valid = True

@@ -49,8 +49,11 @@ SUBNORMAL_STEP = Fraction(5e-324)
 
 
 def close(got: float, exact: Fraction, rel: float = 1e-14) -> bool:
-    """Within `rel` of the exact value, or, where the exact value is below the normal floats
-    (which carry no relative accuracy there), within 8 steps of the subnormal spacing."""
+    """Within `rel` of the exact value, or.
+
+    Where the exact value is below the normal floats (which carry no relative accuracy there),
+    within 8 steps of the subnormal spacing.
+    """
     if exact >= SMALLEST_NORMAL:
         return rel_err(got, exact) < rel
     return abs(Fraction(float(got)) - exact) <= 8 * SUBNORMAL_STEP
@@ -153,7 +156,8 @@ def _quad_posterior(a, b, c):
     """Z, E[w], E[1 - w], Var[w] of (1 - c w) Beta(w; a, b) by scipy.integrate.quad.
 
     The Beta weight w^(a-1) (1-w)^(b-1) is handed to QUADPACK's algebraic-weight rule
-    (weight="alg"), which integrates endpoint singularities (a or b < 1) reliably."""
+    (weight="alg"), which integrates endpoint singularities (a or b < 1) reliably.
+    """
     kw = {"weight": "alg", "wvar": (a - 1.0, b - 1.0), "epsabs": 0.0, "epsrel": 1e-13,
           "limit": 200}
     z = integrate.quad(lambda w: 1.0 - c * w, 0.0, 1.0, **kw)[0]

@@ -36,8 +36,11 @@ def nested(leaf, depth: int, kind: str):
 
 
 class Hostile:
-    """A drawn value with a short label: hypothesis prints the label, as repr() of the value
-    itself may recurse or refuse (the very thing tested)."""
+    """A drawn value with a short label.
+
+    Hypothesis prints the label, as repr() of the value itself may recurse or refuse (the very
+    thing tested).
+    """
 
     def __init__(self, value, label: str):
         self.value, self.label = value, label
@@ -250,7 +253,8 @@ def test_longest_messages():
     for name, doc in DOCS.items():
         for path in field_paths(doc, items_per_list=1):
             for value in corpus:
-                err = refused_within_bounds(lambda: wire.validate(name, replaced(doc, path, value)),
+                err = refused_within_bounds(lambda: wire.validate(name,
+                                                                  replaced(doc, path, value)),
                                             errors=(wire.WireError,))
                 if isinstance(err, Exception) and len(str(err)) > len(longest):
                     longest = str(err)

@@ -1,5 +1,7 @@
-"""What may enter a store (store/ids.py): event ids, robot ids, bounded text, and which failed
-writes are the store's (kept) rather than one event's (dropped).
+"""What may enter a store (store/ids.py).
+
+Event ids, robot ids, bounded text, and which failed writes are the store's (kept) rather than one
+event's (dropped).
 
 Outside sources: Python's own sqlite3 module for SQLite's integer range (it refuses to bind an
 integer past 2**63 - 1), Python's str.isdigit / int for the digits that are not ASCII, and real

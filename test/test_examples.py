@@ -1,5 +1,8 @@
-"""The example stand-ins of docs/integration.md (helpaware_node/ros/examples/) work against the
-decision node, in-process as users' own tests would start them."""
+"""The example stand-ins of docs/integration.md work against the decision node.
+
+The example stand-ins of docs/integration.md (helpaware_node/ros/examples/) work against the
+decision node, in-process as users' own tests would start them.
+"""
 import pytest
 from rclpy.parameter import Parameter
 
@@ -27,7 +30,8 @@ def test_behaviour_layer_and_ask_delivery_close_the_loop(ctx):
         assert rig.spin_until(lambda: rid in behaviour.finished and not rig.node.session.needs)
         assert behaviour.finished[rid] == "resolved"
         assert delivery.delivered == [(rid, "nurse-a", "helped")]
-        assert rig.node.session.memory.records[rig.node.store.key_for("nurse-a")].belief == Belief(3.0, 2.0)
+        key = rig.node.store.key_for("nurse-a")
+        assert rig.node.session.memory.records[key].belief == Belief(3.0, 2.0)
         # nobody in view: the node says continue and the behaviour layer gives the need up
         rig.node.session.seen.clear()
         rid2 = behaviour.open_need("door")

@@ -137,8 +137,11 @@ def betabinom_loglik(y, n, z):
 
 
 def betabinom_gradient_hessian(y, n, z):
-    """Exact derivatives of sum[betaln(y + a, n - y + b) - betaln(a, b)] in (log a, log b),
-    from scipy.special.digamma and polygamma (trigamma)."""
+    """Return exact derivatives of the beta-binomial log-likelihood in (log a, log b).
+
+    Exact derivatives of sum[betaln(y + a, n - y + b) - betaln(a, b)] in (log a, log b), from
+    scipy.special.digamma and polygamma (trigamma).
+    """
     a, b = np.exp(z)
     t = lambda x: polygamma(1, x)                     # noqa: E731
     s_a = np.sum(digamma(y + a) - digamma(n + a + b) - digamma(a) + digamma(a + b))
@@ -152,8 +155,11 @@ def betabinom_gradient_hessian(y, n, z):
 
 
 def helped_last(y, n):
-    """Each group as one person, declines first: the order in which L-BFGS-B's line search
-    stopped with ABNORMAL at the 71-group optimum on the development machine (issue 17)."""
+    """Each group as one person, declines first.
+
+    The order in which L-BFGS-B's line search stopped with ABNORMAL at the 71-group optimum on the
+    development machine (issue 17).
+    """
     person, result = [], []
     for g, (yg, ng) in enumerate(zip(y, n)):
         person += [str(g)] * int(ng)
@@ -221,7 +227,7 @@ def cbpp():
 
 
 def quad_loglik(inc, size, X, herd, theta):
-    """The cbpp marginal log-likelihood by scipy.integrate.quad over each herd's intercept."""
+    """Return the cbpp marginal log-likelihood by scipy.integrate.quad over each intercept."""
     beta, sigma = theta[:-1], math.exp(theta[-1])
     total = 0.0
     for h in np.unique(herd):
@@ -276,7 +282,10 @@ def test_glmm_every_answer_the_same_is_not_converged(cbpp):
 
 
 def simulate_glmm(seed, sd, groups=40, per_group=10):
-    """A random-intercept logit with known constants b0 = -0.5, b1 = 1.2 and herd sd `sd`."""
+    """Return a random-intercept logit with known constants b0 = -0.5.
+
+    b1 = 1.2 and herd sd `sd`.
+    """
     rng = np.random.default_rng(seed)
     g = np.repeat(np.arange(groups), per_group)
     x = rng.random(g.size)

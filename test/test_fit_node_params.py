@@ -3,7 +3,6 @@
 Checked against the node's parameter table (helpaware_node/ros/params.py) and, through rclpy,
 by declaring every parameter on a node started with `--params-file` on the written file.
 """
-import os
 
 import pytest
 
@@ -47,7 +46,8 @@ def test_written_file_loads_into_node_declarations(tmp_path):
                 assert node.get_parameter(name).value == value
                 assert getattr(declared.model, name) == value
             # a parameter the file does not give keeps the node's default
-            assert declared.model.ask_memory_half_life_s == params.MODEL_DEFAULTS.ask_memory_half_life_s
+            default = params.MODEL_DEFAULTS.ask_memory_half_life_s
+            assert declared.model.ask_memory_half_life_s == default
         finally:
             node.destroy_node()
     finally:

@@ -13,7 +13,6 @@ here; the late joiner's store is read with the sqlite3 module (not the store cla
 beliefs are core.person.fold_events over the union of the peers' events in (time, event id)
 order, the fold the design defines.
 """
-import os
 import queue
 import random
 import sqlite3
@@ -149,7 +148,7 @@ def deliver(link, text):
 
 
 def test_stored_before_learning_idempotent_and_forget_blocks_queued_events(tmp_path,
-                                                                         link_node):
+                                                                           link_node):
     store = SqliteStore(tmp_path / "rules.sqlite3", "here", SITE_KEY)
     seen_stored = []
 

@@ -21,6 +21,7 @@ def encode_event(e: StoredEvent) -> str:
 def encode_forget(key: str, sender: str) -> str:
     return encode_document("forget", PrivacyAct.new("forget", key, sender), KEYS)
 
+
 events_st = st.lists(
     st.tuples(st.sampled_from(["r1", "r2", "r3"]), st.integers(0, 2),
               st.floats(0, 2000, allow_nan=False).map(lambda t: round(t, 1)),  # ties happen
@@ -36,7 +37,7 @@ def build(rows):
 @settings(max_examples=40)
 @given(events_st, st.randoms(use_true_random=False), st.randoms(use_true_random=False))
 def test_any_delivery_order_and_duplication_gives_the_same_beliefs(tmp_path_factory, rows,
-                                                                  rng1, rng2):
+                                                                   rng1, rng2):
     events = build(rows)
     messages = [encode_event(e) for e in events]
     beliefs = []
@@ -87,8 +88,10 @@ asks_st = st.lists(st.tuples(st.sampled_from(["r1", "r2"]), st.integers(0, 2),
 @settings(max_examples=30)
 @given(asks_st, st.randoms(use_true_random=False))
 def test_asks_merge_idempotently_in_any_order(tmp_path_factory, rows, rng):
-    """Asks from the fleet: any order and duplication store each ask once, and a person's
-    asks read back are the same set on every robot, in (time, event id) order."""
+    """Asks from the fleet: any order and duplication store each ask once.
+
+    a person's asks read back are the same set on every robot, in (time, event id) order.
+    """
     asks = [AskEvent(f"{r}/{i}", PEOPLE[p], t, "door", f"need-{i}")
             for i, (r, p, t) in enumerate(rows)]
     messages = [encode_document("ask", a, KEYS) for a in asks]
@@ -98,7 +101,8 @@ def test_asks_merge_idempotently_in_any_order(tmp_path_factory, rows, rng):
     merged = [a for m in delivery for a in merge(store, m, KEYS)]
     assert sorted(a.event_id for a in merged) == sorted(a.event_id for a in asks)
     for key in PEOPLE:
-        mine = sorted((a for a in asks if a.person_key == key), key=lambda a: (a.time_s, a.event_id))
+        mine = sorted((a for a in asks if a.person_key == key),
+                      key=lambda a: (a.time_s, a.event_id))
         assert store.asks(person_key=key) == mine
     store.close()
 

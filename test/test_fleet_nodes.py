@@ -6,7 +6,6 @@ process drives each robot over its topics and reads beliefs from the candidates 
 decisions.
 """
 import json
-import os
 import subprocess
 import sys
 import time
@@ -97,7 +96,7 @@ class Fleet:
         return mine()[0]
 
     def belief_seen(self, d, person, timeout_s=20.0):
-        """(a, b) the robot uses for `person` in its next decision (person in view)."""
+        """Return (a, b) the robot uses for `person` in its next decision (person in view)."""
         doc = self.decide(d, timeout_s=timeout_s)
         for c in doc["candidates"]:
             if c["person_id"] == person:

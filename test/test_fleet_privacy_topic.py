@@ -1,6 +1,8 @@
-"""Live opt-out and forget through the privacy topic (in one process, own context): signed
-requests are applied once and answered on the fleet topic; unsigned ones are refused unless
-the lab switch is on; stale and foreign ones are refused."""
+"""Live opt-out and forget through the privacy topic (in one process, own context).
+
+Signed requests are applied once and answered on the fleet topic; unsigned ones are refused unless
+the lab switch is on; stale and foreign ones are refused.
+"""
 import json
 import time
 

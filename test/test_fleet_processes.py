@@ -4,7 +4,6 @@ The peers are `python -m helpaware_node.ros.fleet` (FleetLink on an SQLite store
 process also listens on the fleet topic to check that no raw id travels on it, and that every
 document there is signed for the site.
 """
-import os
 import queue
 import subprocess
 import sys

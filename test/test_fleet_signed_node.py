@@ -1,8 +1,10 @@
-"""The decision node on the fleet topic: only documents signed with the site key change what it
-learns.  A peer without the key publishes 1 000 documents through the topic (unsigned, the old
-unsigned format, signed for another site, forged, signed with a key of this site it does not
-hold): none is stored or merged, each is counted by reason in /diagnostics, each reason is
-logged once.  A peer with the key is merged.  An old store is re-offered signed at start.
+"""The decision node on the fleet topic.
+
+Only documents signed with the site key change what it learns.  A peer without the key publishes 1
+000 documents through the topic (unsigned, the old unsigned format, signed for another site,
+forged, signed with a key of this site it does not hold): none is stored or merged, each is counted
+by reason in /diagnostics, each reason is logged once.  A peer with the key is merged.  An old
+store is re-offered signed at start.
 
 Checks against outside sources: stored rows are read with the sqlite3 module; beliefs after a
 merge are core.person.fold_events of the stored events (the fold the design defines); person
@@ -23,7 +25,8 @@ from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 from std_msgs.msg import String  # noqa: E402
 
 from helpaware_node.core import Result, fold_events  # noqa: E402
-from helpaware_node.fleet_documents import PrivacyAct, decode_document, encode_document  # noqa: E402
+from helpaware_node.fleet_documents import (PrivacyAct, decode_document,  # noqa: E402
+                                            encode_document)
 from helpaware_node.ros.fleet import FLEET_TOPIC, FleetLink, fleet_qos  # noqa: E402
 from helpaware_node.signing import canonical_bytes  # noqa: E402
 from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402
@@ -53,7 +56,7 @@ def stored_rows(path):
 
 
 def forged_documents(n: int, rng: random.Random) -> list[str]:
-    """What a peer without the site key can send: every way of getting it wrong."""
+    """Return what a peer without the site key can send: every way of getting it wrong."""
     site = SiteKeys.single(SITE_KEY)
     stranger = SiteKeys.single(STRANGER_KEY).key_ring()
     same_site_other_key = SiteKeys(SITE_KEY, os.urandom(32)).key_ring()   # site id right
@@ -139,9 +142,12 @@ def test_a_peer_without_the_key_publishes_1000_documents_and_none_is_stored(ctx,
 
 
 def test_an_old_store_is_offered_signed_and_a_rotated_key_file_still_talks(ctx, tmp_path):
-    """Migration: a store written before signatures (the schema did not change) is re-offered
-    at start as signed v2 documents; after a rotation of the signing key, documents signed with
-    the previous key are still merged within the window."""
+    """Check that an old store is offered signed and a rotated key file still talks.
+
+    Migration: a store written before signatures (the schema did not change) is re-offered at start
+    as signed v2 documents; after a rotation of the signing key, documents signed with the previous
+    key are still merged within the window.
+    """
     key_path = write_site_key(tmp_path, SITE_KEY)
     old = SqliteStore(tmp_path / "old.sqlite3", "ward1", SITE_KEY)
     history = [StoredEvent(f"ward1/{i + 1}", key_of(NURSE), 100.0 + i, Result.HELPED, 0.1, 0.0)

@@ -67,8 +67,10 @@ def test_sequential_and_new_group_predictions_match_quad():
     eta = X @ beta
     prior = lambda u: stats.norm.pdf(u, 0, sigma)    # noqa: E731
     new0 = integrate.quad(lambda u: expit(eta[0] + u) * prior(u), -15, 15)[0]
-    num = integrate.quad(lambda u: (1 - expit(eta[0] + u)) * expit(eta[1] + u) * prior(u), -15, 15)[0]
+    num = integrate.quad(lambda u: (1 - expit(eta[0] + u)) * expit(eta[1] + u) * prior(u), -15,
+                         15)[0]
     den = integrate.quad(lambda u: (1 - expit(eta[0] + u)) * prior(u), -15, 15)[0]
     assert seq[0] == pytest.approx(new0, abs=1e-9)
     assert seq[1] == pytest.approx(num / den, abs=1e-9)
-    assert new_group_help_probability(beta, sigma, X[:1], nodes=60)[0] == pytest.approx(new0, abs=1e-9)
+    assert new_group_help_probability(beta, sigma, X[:1], nodes=60)[0] == pytest.approx(new0,
+                                                                                        abs=1e-9)

@@ -1,7 +1,10 @@
-"""The input watchdog on a running node: /diagnostics goes WARN while `people` is silent for
-longer than `people_silence_warn_s`, naming the topic, the matched publishers and the silence,
-and the log says so once per silence (helpaware_node/input_watch.py has the logic's own tests).
-Bounded spins; the only time in an assertion is the parameter itself."""
+"""The input watchdog on a running node.
+
+/diagnostics goes WARN while `people` is silent for longer than `people_silence_warn_s`, naming the
+topic, the matched publishers and the silence, and the log says so once per silence
+(helpaware_node/input_watch.py has the logic's own tests). Bounded spins; the only time in an
+assertion is the parameter itself.
+"""
 from diagnostic_msgs.msg import DiagnosticStatus
 from rclpy.parameter import Parameter
 

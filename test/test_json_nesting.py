@@ -18,7 +18,9 @@ from helpaware_node.store import SiteKeys
 
 
 def nested(depth: int, as_object: bool = False) -> str:
-    return ('{"a":' * depth + "1" + "}" * depth) if as_object else ("[" * depth + "1" + "]" * depth)
+    if as_object:
+        return '{"a":' * depth + "1" + "}" * depth
+    return "[" * depth + "1" + "]" * depth
 
 
 def at_stack_depth(extra: int, fn, *args):

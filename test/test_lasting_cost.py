@@ -3,7 +3,8 @@
 Outside checks: scipy.integrate.quad of the defining integral
     r * int_0^H e^(-s/tau) [U(f u(s)) - U((f + 1) u(s))] ds,  u(s) = 2^(-s/h),
 with U written out here from its definition, and scipy.special's lower incomplete gamma
-function for the identity D(rho, x) = Gamma(rho + 1) x^-rho P(rho, x)."""
+function for the identity D(rho, x) = Gamma(rho + 1) x^-rho P(rho, x).
+"""
 from __future__ import annotations
 
 import math
@@ -25,8 +26,10 @@ def typical_u(load, alpha, beta, gamma, k):
 
 
 def kinks_s(alpha, beta, gamma, k, f, h, horizon):
-    """Where f u(s) or (f + 1) u(s) crosses the zero of U (the integrand's kinks), found
-    with scipy.optimize.brentq, independently of the module's Lambert-W root."""
+    """Where f u(s) or (f + 1) u(s) crosses the zero of U (the integrand's kinks).
+
+    Found with scipy.optimize.brentq, independently of the module's Lambert-W root.
+    """
     from scipy.optimize import brentq
 
     def g(x):
@@ -41,8 +44,10 @@ def kinks_s(alpha, beta, gamma, k, f, h, horizon):
 
 
 def by_quadrature(rate, alpha, beta, gamma, k, f, h, tau, horizon):
-    """The defining integral, split at h/8, h/4, h/2, ... so quad sees the fast decay, and at
-    the integrand's kinks."""
+    """Return the defining integral, split at h/8, h/4, h/2, ... so quad sees the fast decay.
+
+    At the integrand's kinks.
+    """
     def drop(s):
         u = 2.0 ** (-s / h)
         return math.exp(-s / tau) * (typical_u(f * u, alpha, beta, gamma, k)
@@ -77,9 +82,12 @@ def test_closed_form_equals_the_integral(alpha, beta, gamma, k, f, log_h, log_ta
 @pytest.mark.parametrize("f", [0.0, 0.4, 2.5])
 @pytest.mark.parametrize("horizon", [600.0, 28800.0, 3e5])
 def test_linear_drop_exact_form(f, horizon):
-    """k_load = 0 and U positive up to load f + 1: the drop is gamma u(s), so by exact algebra
-    LC = r gamma int_0^H e^(-s/tau) 2^(-s/h) ds = r gamma (1 - e^(-kappa H)) / kappa,
-    kappa = 1/tau + ln 2 / h (an exponential integrated: no numerics)."""
+    """k_load = 0 and U positive up to load f + 1.
+
+    The drop is gamma u(s), so by exact algebra LC = r gamma int_0^H e^(-s/tau) 2^(-s/h) ds = r
+    gamma (1 - e^(-kappa H)) / kappa, kappa = 1/tau + ln 2 / h (an exponential integrated: no
+    numerics).
+    """
     r, alpha, beta, gamma, h, tau = 2e-4, 90.0, 20.0, 6.0, 5400.0, 14400.0
     assert alpha - beta - gamma * (f + 1.0) > 0.0
     kappa = 1.0 / tau + math.log(2.0) / h
@@ -90,11 +98,13 @@ def test_linear_drop_exact_form(f, horizon):
 
 @pytest.mark.parametrize("k,f", [(0.3, 0.0), (1.0, 0.7), (1.5, 0.8)])
 def test_exponential_drop_exact_form_when_half_life_is_tau_ln2(k, f):
-    """gamma = 0 and alpha e^(-k (f+1)) > beta (U positive throughout), h = tau ln 2 so that
-    u(s) = e^(-s/tau). With v = e^(-s/tau), ds = -tau dv / v:
-    int_0^H e^(-s/tau) e^(-c u(s)) ds = tau int_{v_H}^1 e^(-c v) dv = tau (e^(-c v_H) - e^(-c)) / c,
-    so LC = r alpha tau [E(k f) - E(k (f + 1))], E(c) that integral over tau (E(0) = 1 - v_H):
-    exact algebra, no numerics."""
+    """Check gamma = 0 and alpha e^(-k (f+1)) > beta (U positive throughout).
+
+    h = tau ln 2 so that u(s) = e^(-s/tau). With v = e^(-s/tau), ds = -tau dv / v: int_0^H
+    e^(-s/tau) e^(-c u(s)) ds = tau int_{v_H}^1 e^(-c v) dv = tau (e^(-c v_H) - e^(-c)) / c, so LC
+    = r alpha tau [E(k f) - E(k (f + 1))], E(c) that integral over tau (E(0) = 1 - v_H): exact
+    algebra, no numerics.
+    """
     r, alpha, beta, tau, horizon = 3e-4, 120.0, 5.0, 14400.0, 28800.0
     h = tau * math.log(2.0)
     assert alpha * math.exp(-k * (f + 1.0)) > beta
@@ -110,8 +120,11 @@ def test_exponential_drop_exact_form_when_half_life_is_tau_ln2(k, f):
 @pytest.mark.parametrize("rho", [1e-9, 1e-3, 0.2, 1.0, 7.5, 300.0, 1e6, 1e12])
 @pytest.mark.parametrize("x", [0.0, 1e-9, 0.3, 5.0, 60.0, 699.0, 701.0, 5e4])
 def test_decay_mean_is_the_incomplete_gamma_ratio(rho, x):
-    """D(rho, x) = rho int_0^1 t^(rho-1) e^(-x t) dt: by quad (as int_0^1 e^(-x v^(1/rho)) dv,
-    the substitution v = t^rho) and, where it is finite, Gamma(rho+1) x^-rho P(rho, x)."""
+    """D(rho, x) = rho int_0^1 t^(rho-1) e^(-x t) dt.
+
+    By quad (as int_0^1 e^(-x v^(1/rho)) dv, the substitution v = t^rho) and, where it is finite,
+    Gamma(rho+1) x^-rho P(rho, x).
+    """
     got = float(decay_mean(rho, x))
     assert 0.0 <= got <= 1.0
     pieces = [0.0, 1e-12, 1e-9, 1e-6, 1e-3, 0.1, 0.9, 1 - 1e-3, 1 - 1e-6, 1 - 1e-9, 1 - 1e-12,
@@ -130,8 +143,11 @@ def test_decay_mean_is_the_incomplete_gamma_ratio(rho, x):
     (50.0, 20.0, 5.0, 0.0), (200.0, 199.0, 1e-8, 1e-3), (3.0, 1.0, 3.8e-229, 2.0),
     (1e9, 0.0, 1e-300, 1.0), (1e9, 1e-300, 1e-300, 1.0)])
 def test_the_zero_of_the_typical_advantage(alpha, beta, gamma, k):
-    """L* against scipy.optimize.brentq on alpha e^(-k L) - beta - gamma L (bracket [0, 1e4]
-    or, for a root beyond double range near alpha e^(-kL) = gamma L, its log form)."""
+    """L* against scipy.optimize.brentq on alpha e^(-k L) - beta.
+
+    gamma L (bracket [0, 1e4] or, for a root beyond double range near alpha e^(-kL) = gamma L, its
+    log form).
+    """
     from scipy.optimize import brentq
     from helpaware_node.core.lasting import _root
     got = float(_root(np.array([alpha]), np.array([beta]), np.array([gamma]), k)[0])
@@ -158,8 +174,10 @@ def test_nothing_is_lost_when_nothing_is_there_to_lose():
 
 
 def test_a_longer_ask_memory_costs_more_for_a_fresh_person():
-    """With no present load the drop U(0) - U(u) grows with u, and u(s) = 2^(-s/h) grows
-    with h at every s, so the integral does too."""
+    """With no present load the drop U(0).
+
+    U(u) grows with u, and u(s) = 2^(-s/h) grows with h at every s, so the integral does too.
+    """
     costs = [float(lasting_cost(1e-4, 50.0, 20.0, 12.0, 0.7, 0.0, h, 14400.0, 28800.0))
              for h in (60.0, 1800.0, 3600.0, 86400.0)]
     assert costs == sorted(costs) and costs[0] < costs[-1]
@@ -191,8 +209,10 @@ def test_the_score_subtracts_the_lasting_cost_with_the_rate_of_n():
 
 
 def test_replay_from_the_document_reproduces_the_lasting_cost_bit_for_bit():
-    """The decision document (JSON text) carries every input of the lasting cost: replaying
-    it gives the same rationale rows, lasting_cost_s included, to the last bit."""
+    """The decision document (JSON text) carries every input of the lasting cost.
+
+    Replaying it gives the same rationale rows, lasting_cost_s included, to the last bit.
+    """
     from helpaware_node import wire
     from helpaware_node.core import decide
     model = SiteModel(ask_memory_half_life_s=86400.0, k_load=1.1)
@@ -230,10 +250,12 @@ def decide_one(model, config, now):
 
 
 def test_a_person_in_view_at_every_need_weighs_at_most_the_robots_hourly_cap():
-    """Seen at 500 needs in the last 10 h (50 an hour) by a robot that asks at most 3 an hour:
-    N and the lasting cost use 3 / 3600 s, not 50 / 3600 s (the later asks where either can
-    matter are at most the robot's own); the lasting cost is again the defining integral
-    (scipy.integrate.quad) at that rate."""
+    """Seen at 500 needs in the last 10 h (50 an hour) by a robot that asks at most 3 an hour.
+
+    N and the lasting cost use 3 / 3600 s, not 50 / 3600 s (the later asks where either can matter
+    are at most the robot's own); the lasting cost is again the defining integral
+    (scipy.integrate.quad) at that rate.
+    """
     model = SiteModel()
     config = DecisionConfig(max_asks_per_hour=3)
     now = 1e6

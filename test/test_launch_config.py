@@ -41,7 +41,8 @@ def test_node_process_from_launch_config_decides_for_a_driver_process(tmp_path):
         assert first["action"] == "ask" and first["person_id"] == "nurse-a"
         # the node ran with the site file: its parameters are recorded in every decision
         model, config = wire.recorded_params(first)
-        assert config.continue_costs_s["door"] == 150.0 and "on_call" in config.protected_activities
+        assert config.continue_costs_s["door"] == 150.0
+        assert "on_call" in config.protected_activities
         for d in decisions:   # each is reproduced by the core from its own record
             again = decide(*wire.replay_inputs(d), model, config)
             assert (again.action, again.person_id) == (d["action"], d["person_id"])
@@ -86,7 +87,8 @@ def test_launch_arguments_become_the_node_command_line():
     pairs = list(zip(cmd, cmd[1:]))
     assert ("-r", "__ns:=/ward3") in pairs and ("-r", "people:=perception/people") in pairs
     assert ("-r", "__node:=helpaware_decider") in pairs and ("-p", "use_sim_time:=true") in pairs
-    assert ("--params-file", os.path.join(launch_config.config_dir(), "hospital_night.yaml")) in pairs
+    assert ("--params-file",
+            os.path.join(launch_config.config_dir(), "hospital_night.yaml")) in pairs
     assert not any(a.startswith("task_status:=") for a in cmd)    # identity remaps left out
     kw = spec.launch_kwargs()
     assert kw["namespace"] == "/ward3" and kw["remappings"] == [("people", "perception/people")]
@@ -123,7 +125,10 @@ def test_loop_arguments_are_checked_and_shared():
 
 
 def test_executable_is_the_one_under_the_ament_prefix_when_one_is_sourced(tmp_path, monkeypatch):
-    """A sourced workspace wins over the venv: lib/helpaware_node/<exe> under its prefix."""
+    """A sourced workspace wins over the venv.
+
+    Lib/helpaware_node/<exe> under its prefix.
+    """
     index = tmp_path / "share" / "ament_index" / "resource_index" / "packages"
     index.mkdir(parents=True)
     (index / "helpaware_node").write_text("")

@@ -55,8 +55,7 @@ def test_demo_learns_the_site_during_the_night(tmp_path):
     # the night's many declines are explained by lower willingness, heavier busyness, or
     # both (the truth has both: prior mean 0.32, k_busy 3.5); from some 30-60 answers the fit
     # cannot always tell the two apart, so either one moving the truth's way is the check
-    assert float(end.group(1)) < 0.5 or float(end.group(2)) > 2.5, (start.group(0),
-                                                                   end.group(0))
+    assert float(end.group(1)) < 0.5 or float(end.group(2)) > 2.5, (start.group(0), end.group(0))
     assert re.search(r"site learning: revisions [\d, ]+ in force during the bag", out)
     assert re.search(r"calibration: parameter file \d+ asks, Brier [\d.]+; learned \d+ asks", out)
     assert re.search(r"replay with recorded parameters: (\d+) of \1 decisions reproduced", out)

@@ -1,5 +1,7 @@
-"""The launch files, read without running them: only launch and launch_ros names that exist in
-the ROS 2 releases we support, and exactly the arguments docs/integration.md lists.
+"""The launch files, read without running them.
+
+Only launch and launch_ros names that exist in the ROS 2 releases we support, and exactly the
+arguments docs/integration.md lists.
 
 Supported releases: Humble, Jazzy and Kilted. The names below are checked against the vendored
 sources (../shared/vendor/ros-launch: launch 3.7.1 and launch_ros 0.28.0 from rolling, December
@@ -88,6 +90,7 @@ def test_names_exist_in_the_launch_that_is_installed():
         mod = importlib.import_module(module)
         for n in names:
             assert hasattr(mod, n), f"{module}.{n}"
+
     def params(cls):
         return {p for k in cls.__mro__ if "__init__" in vars(k)
                 for p in inspect.signature(k.__init__).parameters}
@@ -98,7 +101,7 @@ def test_names_exist_in_the_launch_that_is_installed():
 
 
 def documented_arguments(launch_file):
-    """The argument table that follows the paragraph naming `launch_file` in integration.md."""
+    """Return the argument table after the paragraph naming `launch_file` in integration.md."""
     with open(os.path.join(ROOT, "docs", "integration.md")) as fh:
         lines = fh.read().splitlines()
     start = next(i for i, x in enumerate(lines) if x.startswith(f"`{launch_file}`"))

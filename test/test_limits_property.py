@@ -69,8 +69,11 @@ def run(steps_, model, config):
 
 
 def most_in_any_window(times, window_s):
-    """The most asks inside any half-open window [t, t + window_s) (windows that start at an
-    ask are the fullest ones)."""
+    """Return the most asks inside any half-open window [t, t + window_s).
+
+    The most asks inside any half-open window [t, t + window_s) (windows that start at an ask are
+    the fullest ones).
+    """
     return max((sum(1 for u in times if t <= u < t + window_s) for t in times), default=0)
 
 
@@ -86,8 +89,10 @@ def test_no_decision_breaks_a_hard_limit(steps_, model, config):
 
 
 def test_the_sequences_reach_the_limits():
-    """The property above is not empty: with these strategies asks happen and each limit
-    binds (one fixed sequence per limit)."""
+    """The property above is not empty.
+
+    With these strategies asks happen and each limit binds (one fixed sequence per limit).
+    """
     model = SiteModel()
     view = list(PEOPLE[:1])
     # one person, a need every 25 h: only a > 24 h interval can stop the second ask
@@ -104,10 +109,12 @@ def test_the_sequences_reach_the_limits():
 
 @given(st.lists(st.floats(-1e7, 1e7), min_size=1, max_size=40), models)
 def test_note_ask_never_drops_what_a_limit_needs(times, model):
-    """Asks noted at any times, in any order (clock jumps, asks noted late): the record keeps
-    the latest-stamped ask, every ask within the history horizon of the last one noted, and
-    the one before the latest while within MAX_REASK_INTERVAL_S (so taking back the latest,
-    as could_not_ask does, still leaves the right one); never more than MAX_ASKS_CAP."""
+    """Asks noted at any times, in any order (clock jumps, asks noted late).
+
+    The record keeps the latest-stamped ask, every ask within the history horizon of the last one
+    noted, and the one before the latest while within MAX_REASK_INTERVAL_S (so taking back the
+    latest, as could_not_ask does, still leaves the right one); never more than MAX_ASKS_CAP.
+    """
     from helpaware_node.core.model import MAX_ASKS_CAP
     from helpaware_node.core.person import ask_history_horizon_s
     record = PersonRecord.new(model)

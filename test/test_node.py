@@ -1,6 +1,5 @@
 """The decision node in-process, driven over real topics with bounded spinning."""
 import pytest
-import rclpy
 from rclpy.parameter import Parameter
 from std_msgs.msg import String
 
@@ -93,11 +92,13 @@ def test_pending_asks_unknown_could_not_ask_and_expiry(ctx):
         d = rig.open_need("e1", "handover", urgency=1.0)
         key = rig.node.store.key_for(d["person_id"])
         assert rig.spin_until(lambda: rig.node.session.expired_asks == 1, 30)
-        assert rig.node.session.memory.records[key].belief == Belief(2.0, 2.0)       # expiry: no evidence
+        # expiry: no evidence
+        assert rig.node.session.memory.records[key].belief == Belief(2.0, 2.0)
         d = rig.open_need("e2", "handover", urgency=1.0)
         rig.report("e2", d["person_id"], "could_not_ask")
         assert rig.node.session.could_not_ask == 1
-        assert rig.node.session.memory.records[rig.node.store.key_for(d["person_id"])].belief == Belief(2.0, 2.0)
+        key = rig.node.store.key_for(d["person_id"])
+        assert rig.node.session.memory.records[key].belief == Belief(2.0, 2.0)
         assert rig.node.store.keys() == []
         rig.report("e2", d["person_id"], "helped")                      # no longer pending
         assert rig.node.counters.rejected["outcome"] == 2
@@ -115,6 +116,7 @@ def test_sim_time_never_decides_on_time_zero(ctx):
         assert rig.spin_until(lambda: "z1" in rig.node.session.needs, 30)
         rig.spin_until(lambda: False, 0.5)
         assert rig.decisions == []                                      # time is still zero
+
         def tick():
             msg = Clock()
             msg.clock.sec = 5000
@@ -134,6 +136,7 @@ def test_navigation_abort_opens_and_success_resolves(ctx):
         assert rig.connected()
         pub = rig.driver.create_publisher(GoalStatusArray, "navigate/_action/status", 10)
         assert rig.spin_until(lambda: pub.get_subscription_count() > 0)
+
         def status(code):
             st = GoalStatus()
             st.goal_info.goal_id.uuid = list(range(16))
@@ -163,8 +166,10 @@ def test_markers_and_diagnostics(rig):
     assert {m.type for m in marks} == {Marker.TEXT_VIEW_FACING}
     assert all(m.text.startswith("w=0.50") for m in marks)             # prior mean 2/(2+2)
     rig.node.set_parameters([Parameter("max_observation_age_s", value=0.0)])
-    assert rig.spin_until(lambda: any(m.action == Marker.DELETE for a in got for m in a.markers), 40)
+    assert rig.spin_until(lambda: any(m.action == Marker.DELETE for a in got for m in a.markers),
+                          40)
     rig.outcome_pub.publish(String(data="not json"))
+
     def warned():
         return any(s.level == DiagnosticStatus.WARN and dict((v.key, v.value) for v in s.values)
                    .get("outcome.rejected") == "1" for a in rig.diagnostics for s in a.status)
@@ -213,7 +218,8 @@ def test_learned_belief_survives_a_restart_with_a_store_file(ctx, tmp_path):
         rig.close()
     rig = Rig(ctx, namespace="/persist2", store_path=store, robot_id="r1")
     try:
-        assert rig.node.session.memory.record_for(key).belief == learned        # folded again from the file
+        # folded again from the file
+        assert rig.node.session.memory.record_for(key).belief == learned
     finally:
         rig.close()
 
@@ -224,6 +230,7 @@ def test_diagnostics_report_store_state(ctx, tmp_path):
         assert rig.connected() and rig.show_people(TWO)
         d = rig.open_need("q1", "handover", urgency=1.0)
         rig.report("q1", d["person_id"], "helped")
+
         def has_event():
             for arr in rig.diagnostics:
                 vals = {v.key: v.value for s in arr.status for v in s.values}

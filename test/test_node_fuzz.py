@@ -1,10 +1,12 @@
-"""Hostile input: >= 1000 malformed documents per input topic; the node stays up, counts each
-rejection, keeps its beliefs, and still decides afterwards. Most go straight to the handlers
-(fast); a smaller set goes through the real topics and is read back from /diagnostics."""
+"""Hostile input: >= 1000 malformed documents per input topic.
+
+The node stays up, counts each rejection, keeps its beliefs, and still decides afterwards. Most go
+straight to the handlers (fast); a smaller set goes through the real topics and is read back from
+/diagnostics.
+"""
 import json
 import random
 
-import pytest
 from std_msgs.msg import String
 
 from helpaware_node import wire
@@ -64,8 +66,8 @@ def hostile_corpus(topic, now, n, seed):
 
 def _snapshot(node):
     return ({k: (r.belief, r.ask_times_s) for k, r in node.session.memory.records.items()},
-            set(node.session.needs), set(node.session.pending), [e for k in node.store.keys()
-                                                 for e in node.store.events_for(k)])
+            set(node.session.needs), set(node.session.pending),
+            [e for k in node.store.keys() for e in node.store.events_for(k)])
 
 
 def test_thousands_of_hostile_documents_per_topic_at_the_handlers(ctx):

@@ -32,7 +32,7 @@ def test_information_value_is_gain_times_knowledge_gradient(a, b, m_star, publis
     # With c = 1 (no busyness, no load, typical busyness 0): U(m) = G max(0, m - m*), with
     # gain G = Cbar - t_help + t_ask and threshold m* = (t_ask + Ibar) / G; so VOI = G * KG.
     model = SiteModel(k_busy=2.0, k_load=1.0)
-    t_ask, t_help, w = 10.0, 20.0, 6.0
+    t_ask, t_help = 10.0, 20.0
     gain = 120.0 - t_help + t_ask
     ibar = m_star * gain - t_ask   # choose Ibar so the threshold is m*
     config = DecisionConfig(typical_busyness=0.0, typical_continue_cost_s=120.0,
@@ -189,14 +189,18 @@ def test_reask_interval_is_bounded_at_30_days_by_name():
 @pytest.mark.parametrize("count,span_s", [(0, 0.0), (1, 3600.0), (1, 10 * 86400.0),
                                           (12, 3 * 86400.0), (40, 600.0)])
 def test_encounter_rate_is_the_gamma_poisson_posterior_mean(count, span_s):
-    """N's rate: Gamma(shape prior_rate * window / day, rate window) prior on the person's
-    candidate rate, `count` encounters seen over `span_s` since first seen; the posterior
-    mean by numerical integration (scipy.integrate.quad over scipy.stats densities)."""
+    """N's rate is the Gamma-Poisson posterior mean.
+
+    N's rate: Gamma(shape prior_rate * window / day, rate window) prior on the person's candidate
+    rate, `count` encounters seen over `span_s` since first seen; the posterior mean by numerical
+    integration (scipy.integrate.quad over scipy.stats densities).
+    """
     from scipy import integrate, stats
     from helpaware_node.core.policy import discounted_horizon_s, encounter_rate_per_s
     config = DecisionConfig()
     shape = config.prior_candidate_rate_per_day * config.prior_rate_window_s / 86400.0
     scale = 1.0 / config.prior_rate_window_s
+
     def weight(lam):
         return stats.gamma.pdf(lam, shape, scale=scale) * stats.poisson.pmf(count, lam * span_s)
     hi = 5000.0 * (shape + count + 1.0) / (config.prior_rate_window_s + span_s)
@@ -216,9 +220,11 @@ def test_encounter_rate_is_the_gamma_poisson_posterior_mean(count, span_s):
 
 
 def test_a_stranger_weighs_far_less_than_a_regular():
-    """A first-seen person's N is the prior's (0.3 a day: most first-seen people are never
-    seen again); someone seen 12 times in 3 days (12.1 / 80 h, 3.6 a day) weighs 12 times
-    as much."""
+    """A stranger weighs far less than a regular.
+
+    A first-seen person's N is the prior's (0.3 a day: most first-seen people are never seen
+    again); someone seen 12 times in 3 days (12.1 / 80 h, 3.6 a day) weighs 12 times as much.
+    """
     config = DecisionConfig()
     now = 5e5
     stranger = float(future_requests(0, now, now, config))

@@ -1,6 +1,8 @@
-"""`helpaware privacy opt-out` reaches every robot of the site: two decision-node processes in
-their own namespaces (/robotA, /robotB, no remapping) apply it and answer, and a third robot
-started afterwards gets it from their answers on the fleet topic and does not ask the person.
+"""`helpaware privacy opt-out` reaches every robot of the site.
+
+Two decision-node processes in their own namespaces (/robotA, /robotB, no remapping) apply it and
+answer, and a third robot started afterwards gets it from their answers on the fleet topic and does
+not ask the person.
 
 Checks against outside sources: the person key is computed here with Python's hmac; each
 store's opt-out list is read with the sqlite3 module (read-only), not through the store class.

@@ -2,7 +2,7 @@
 import math
 
 import numpy as np
-from hypothesis import assume, given
+from hypothesis import given
 from hypothesis import strategies as st
 from scipy import integrate, stats
 
@@ -79,7 +79,8 @@ events = st.lists(st.tuples(st.floats(0.0, 1e5), st.sampled_from(list(Result)),
 @given(events, st.randoms())
 def test_fold_does_not_depend_on_arrival_order(rows, rnd):
     model = SiteModel(evidence_half_life_s=7200.0)
-    evs = [OutcomeEvent(t, r, x, f, event_id=f"robot/{i:04d}") for i, (t, r, x, f) in enumerate(rows)]
+    evs = [OutcomeEvent(t, r, x, f, event_id=f"robot/{i:04d}") for i, (t, r, x,
+                                                                       f) in enumerate(rows)]
     shuffled = list(evs)
     rnd.shuffle(shuffled)
     assert fold_events(evs, model) == fold_events(shuffled, model)
@@ -114,8 +115,11 @@ def test_limits_are_never_traded_for_value(people, cost, cap, interval):
 @given(st.lists(st.floats(-1e7, 1e7), max_size=40), st.floats(-1e7, 1e7),
        st.floats(1.0, 1e6), st.integers(0, 50))
 def test_kept_asks_hold_the_recent_ones_and_the_newest_cap(times, now, horizon, keep_last):
-    """DESIGN.md limits under clock jumps: pruning keeps every ask inside the horizon and the
-    newest `keep_last` whatever their time, in order, and drops only asks past the horizon."""
+    """DESIGN.md limits under clock jumps.
+
+    Pruning keeps every ask inside the horizon and the newest `keep_last` whatever their time, in
+    order, and drops only asks past the horizon.
+    """
     kept = list(keep_recent_asks(times, now, horizon, keep_last))
     it = iter(times)
     assert all(any(t == u for u in it) for t in kept)          # an order-keeping subsequence

@@ -1,6 +1,5 @@
 """record: person ids hashed in wire documents; a live recording closed cleanly by SIGTERM."""
 import json
-import os
 import signal
 import subprocess
 import sys

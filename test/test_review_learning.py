@@ -1,8 +1,11 @@
-"""The review's site-learning section: constants over time and calibration before and after,
-from a bag whose decisions span a change of constants (a help session's real documents,
-written with the bag package), and `helpaware fit` on that bag with its ask times.
+"""The review's site-learning section.
 
-Expected counts come from the documents and outcomes written here, counted in the test."""
+Constants over time and calibration before and after, from a bag whose decisions span a change of
+constants (a help session's real documents, written with the bag package), and `helpaware fit` on
+that bag with its ask times.
+
+Expected counts come from the documents and outcomes written here, counted in the test.
+"""
 import json
 
 import pytest

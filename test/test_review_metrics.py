@@ -4,7 +4,7 @@ import math
 import pytest
 
 from helpaware_node.review.metrics import (beta_interval, brier_score, log_loss,
-                                                 reliability_bins)
+                                           reliability_bins)
 
 
 def test_brier_hand_worked():

@@ -1,4 +1,7 @@
-"""review: counts against an independent read of the bag, HTML and PNGs, damaged and partial bags."""
+"""review: counts against an independent read of the bag, HTML and PNGs.
+
+Damaged and partial bags.
+"""
 import base64
 import json
 import os
@@ -29,7 +32,7 @@ def sample(tmp_path_factory):
 
 
 def independent_counts(bag):
-    """Counts straight from the rosbags reader and its typestore deserialiser."""
+    """Count straight from the rosbags reader and its typestore deserialiser."""
     store = typestore()
     topics, actions, results, states = Counter(), Counter(), Counter(), Counter()
     with Reader(bag) as reader:

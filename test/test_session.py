@@ -329,8 +329,10 @@ def test_asking_disabled_always_continues_with_its_policy():
 
 
 def test_a_need_decided_again_counts_each_candidate_once():
-    """candidate_count is 'help needs where the person was a candidate' (core.person): a need
-    decided three times (two declines) adds one per person, not three."""
+    """candidate_count is 'help needs where the person was a candidate' (core.person).
+
+    a need decided three times (two declines) adds one per person, not three.
+    """
     s = session(rules=SessionRules(max_asks_per_need=3))
     s.people_seen(STAFF, T0)
     d = only(s.need_opened(need(), T0))

@@ -1,5 +1,7 @@
-"""The help session stays bounded whatever perception and navigation send (issue 14 items 3
-and 4), on a MemoryStore without ROS.
+"""The help session stays bounded whatever perception and navigation send.
+
+The help session stays bounded whatever perception and navigation send (issue 14 items 3 and 4), on
+a MemoryStore without ROS.
 
 - People in view: people from successive documents piled up (500, then 500 others, gave a
   decision with 1 000 candidates, which wire.decode refuses). Now at most wire.MAX_CANDIDATES
@@ -34,7 +36,7 @@ def session(config=CONFIG):
 
 
 def published(out, config=CONFIG) -> str:
-    """The decision as the node publishes it (fast_text), read back by the schema."""
+    """Return the decision as the node publishes it (fast_text), read back by the schema."""
     doc = wire.decision_to_document(out.decision, out.robot_ask_times_s, None, None, "r1",
                                     check=False)
     text = wire.fast_text(doc, MODEL, config)
@@ -84,9 +86,12 @@ def test_a_pile_of_many_documents_stays_bounded():
 
 
 def test_the_largest_candidates_still_fit_in_one_document():
-    """500 people with 128-character ids outside the Basic Multilingual Plane (12 bytes each
-    once escaped), 64-character activities and 1 000 remembered asks each: only the nearest
-    that fit in one document are candidates, and the document is valid."""
+    """Check that the largest candidates still fit in one document.
+
+    500 people with 128-character ids outside the Basic Multilingual Plane (12 bytes each once
+    escaped), 64-character activities and 1 000 remembered asks each: only the nearest that fit in
+    one document are candidates, and the document is valid.
+    """
     s = session()
     wide = "\U0001F600"
     people = [Person(f"{i:04d}" + wide * 124, 1.0 + i, 0.1, wide * 64) for i in range(500)]

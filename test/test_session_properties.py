@@ -1,5 +1,7 @@
-"""Property: over any sequence of session events, with restarts in between (a new session on
-the same store), no hard limit is ever crossed.
+"""Property: no hard limit is ever crossed, across restarts.
+
+Property: over any sequence of session events, with restarts in between (a new session on the same
+store), no hard limit is ever crossed.
 
 The driver plays a site: people come and go, needs open and close, outcomes arrive, asks
 expire, peers ask, people opt out, the system clock jumps forward or back, and the robot
@@ -37,7 +39,7 @@ TIMEOUT_S = 120.0
 
 _open = st.tuples(st.just("open"))
 _answer = st.tuples(st.just("answer"), st.sampled_from(["helped", "declined", "declined",
-                                                         "no_response", "could_not_ask"]))
+                                                        "no_response", "could_not_ask"]))
 # opening and answering weigh more: the limits bind only when asks come thick and fast
 op_st = st.one_of(
     _open, _open, _open, _answer, _answer, _answer,
@@ -56,6 +58,7 @@ op_st = st.one_of(
 @dataclass
 class Ledger:
     """Every ask, on the real time line: (real time, person, robot, request id or '')."""
+
     asks: list = field(default_factory=list)
     unreached: set = field(default_factory=set)      # indices of asks answered could_not_ask
     opted_out: set = field(default_factory=set)
@@ -93,7 +96,8 @@ def play(ops, store, count_peers: bool) -> Ledger:
     """Drive sessions through `ops` as a site would; return the ledger of every ask.
 
     The behaviour layer here resolves a need as soon as the robot decides to continue or is
-    helped, and after a restart may re-send a need it still holds (`reopen`, the same id)."""
+    helped, and after a restart may re-send a need it still holds (`reopen`, the same id).
+    """
     rules = SessionRules(max_asks_per_need=RULES.max_asks_per_need,
                          pending_ask_timeout_s=TIMEOUT_S, count_peer_asks=count_peers)
     real, node = 1_000.0, 1_000_000.0

@@ -103,7 +103,10 @@ def test_a_killed_process_files_are_removed_and_a_running_one_is_left_alone(dirs
 
 
 def test_a_set_a_live_process_locked_since_is_left_alone(dirs):
-    """A restarted participant takes the dead port again: it holds the old `_el` file."""
+    """A restarted participant takes the dead port again.
+
+    It holds the old `_el` file.
+    """
     shm, records = dirs
     child = Child(shm, records)
     child.kill()
@@ -124,7 +127,10 @@ def test_a_set_a_live_process_locked_since_is_left_alone(dirs):
 
 
 def test_a_file_created_again_since_the_record_is_not_removed(dirs):
-    """A writer that reset the dead port made a new file under the same name: not ours."""
+    """A writer that reset the dead port made a new file under the same name.
+
+    Not ours.
+    """
     shm, records = dirs
     child = Child(shm, records)
     child.kill()
@@ -137,9 +143,12 @@ def test_a_file_created_again_since_the_record_is_not_removed(dirs):
 
 
 def test_a_port_whose_lock_file_went_at_a_clean_close_is_removed_too(dirs):
-    """Fast DDS removes a listener's lock file at a clean close but leaves the port while other
-    processes still map it (a killed writer never lets go): the rest of the set goes too, and
-    no lock file is left behind."""
+    """Check that a port whose lock file went at a clean close is removed too.
+
+    Fast DDS removes a listener's lock file at a clean close but leaves the port while other
+    processes still map it (a killed writer never lets go): the rest of the set goes too, and no
+    lock file is left behind.
+    """
     shm, records = dirs
     child = Child(shm, records)
     child.kill()
@@ -211,8 +220,11 @@ def test_the_command_lists_then_removes(dirs, capsys):
 
 
 def test_ports_that_a_live_process_maps_from_removed_files_are_kept_from_a_start(dirs, tmp_path):
-    """A publisher that still writes into a removed port file would not be heard by a new
-    listener on that port number: the start holds such ports until its participant exists."""
+    """Check that ports a live process maps from removed files are kept from a start.
+
+    A publisher that still writes into a removed port file would not be heard by a new listener on
+    that port number: the start holds such ports until its participant exists.
+    """
     shm, records = dirs
     proc = tmp_path / "proc"
     (proc / "4242").mkdir(parents=True)
@@ -237,8 +249,10 @@ def test_ports_that_a_live_process_maps_from_removed_files_are_kept_from_a_start
 
 
 def test_a_start_holds_the_dead_files_until_its_participant_is_up(dirs, monkeypatch):
-    """StartupSweep: claimed before rclpy starts, removed once the participant exists; with
-    HELPAWARE_SHM_PORT_HOLD=0 removed at once and nothing held (the bench's comparison)."""
+    """StartupSweep: claimed before rclpy starts, removed once the participant exists.
+
+    With HELPAWARE_SHM_PORT_HOLD=0 removed at once and nothing held (the bench's comparison).
+    """
     shm, records = dirs
     child = Child(shm, records)
     child.kill()

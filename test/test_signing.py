@@ -83,7 +83,10 @@ def test_the_signature_is_the_hmac_sha256_of_the_canonical_bytes():
 
 
 def test_canonical_bytes_of_one_document_assembled_by_hand():
-    """The format in signing.py's docstring, built with struct (not with the encoder)."""
+    """The format in signing.py's docstring.
+
+    Built with struct (not with the encoder).
+    """
     u32 = lambda n: struct.pack(">I", n)                       # noqa: E731
     s = lambda t: b"s" + u32(len(t.encode())) + t.encode()     # noqa: E731
     doc = {"b": [True, None, -0.0], "a": "é", "c": {"z": 1, "y": False}, "sig": "ignored"}
@@ -96,7 +99,7 @@ def test_canonical_bytes_of_one_document_assembled_by_hand():
 
 # ---------------------------------------------------------------------------- one-to-one
 def parse_canonical(data: bytes):
-    """An independent reader of the canonical format; returns (value, bytes used)."""
+    """Return an independent reader of the canonical format; returns (value, bytes used)."""
     def value(i):
         tag = data[i:i + 1]
         if tag == b"n":
@@ -133,7 +136,7 @@ def parse_canonical(data: bytes):
 
 
 def as_json_value(v):
-    """JSON's own equality: one number type, -0 is 0, no sig member at the top."""
+    """Return the value under JSON's own equality: one number type, -0 is 0, no top sig."""
     if isinstance(v, bool) or v is None or isinstance(v, str):
         return v
     if isinstance(v, (int, float)):
@@ -249,8 +252,10 @@ EXPECTED_FOR_FIELD = {"site": OTHER_SITE, "key_id": UNKNOWN_KEY}
 @settings(max_examples=150)
 @given(st.sampled_from(sorted(KINDS)), st.data())
 def test_a_tampered_field_of_a_valid_document_is_refused(kind, data):
-    """Every field of every kind, the signature fields and v included: any other value
-    (of the same JSON type) and the document is refused."""
+    """Every field of every kind, the signature fields and v included.
+
+    Any other value (of the same JSON type) and the document is refused.
+    """
     doc = signed(kind)
     for name in sorted(doc):
         changed = dict(doc)
@@ -273,7 +278,10 @@ def smallest_change(value):
 
 
 def test_each_field_changed_by_the_smallest_step_is_refused_as_a_bad_signature():
-    """A loop over every field of every kind, the smallest change a damaged copy could carry."""
+    """A loop over every field of every kind.
+
+    The smallest change a damaged copy could carry.
+    """
     tried = 0
     for kind in KINDS:
         doc = signed(kind)

@@ -42,7 +42,8 @@ def scenario(**changes):
 
 
 def test_same_seed_same_results_to_the_last_digit():
-    sc = parse({**_yaml("scenarios/hospital_night.yaml"), "shift": {"days": 2, "hours_per_day": 6.0}})
+    sc = parse({**_yaml("scenarios/hospital_night.yaml"),
+                "shift": {"days": 2, "hours_per_day": 6.0}})
     one = compare(sc, seeds=2, progress=False)
     two = compare(sc, seeds=2, progress=False)
     assert json.dumps(one[1], sort_keys=True) == json.dumps(two[1], sort_keys=True)
@@ -57,7 +58,8 @@ def test_seeds_in_parallel_processes_give_the_same_results_to_the_last_digit():
     # each seed is its own world, so `jobs` changes only where a seed runs; the learner
     # factory (a lambda, which cannot be pickled) reaches the workers through fork
     from helpaware_node.fit.online import LearningSettings, SiteLearner
-    sc = parse({**_yaml("scenarios/hospital_night.yaml"), "shift": {"days": 1, "hours_per_day": 6.0}})
+    sc = parse({**_yaml("scenarios/hospital_night.yaml"),
+                "shift": {"days": 1, "hours_per_day": 6.0}})
     kw = dict(policies=["ours", "never", "oracle"], seeds=3, progress=False,
               learner_factory=lambda: SiteLearner(SiteModel(), LearningSettings(mode="apply")))
     serial, parallel = compare(sc, jobs=1, **kw), compare(sc, jobs=2, **kw)
@@ -128,9 +130,12 @@ def test_fully_willing_regulars_greedy_oracle_asks_nearest_eligible_and_ours_ask
 
 def declines_until_asking_stops(model: SiteModel, config: DecisionConfig, cost_s: float,
                                 help_s: float) -> int:
-    """Smallest k such that after k declines at c = 1 (belief Beta(a0, b0 + k), exact) both
-    the advantage A is <= 0 with the least interruption (x = 0, f = 0) and the information
-    value is 0 (U(mean after a help) = 0 makes every U term 0). Beliefs only fall from there."""
+    """Return the smallest k of declines after which asking stops.
+
+    Smallest k such that after k declines at c = 1 (belief Beta(a0, b0 + k), exact) both the
+    advantage A is <= 0 with the least interruption (x = 0, f = 0) and the information value is 0
+    (U(mean after a help) = 0 makes every U term 0). Beliefs only fall from there.
+    """
     cbar = math.exp(-model.k_busy * config.typical_busyness)
     g = cbar * (config.typical_continue_cost_s - help_s + config.ask_time_s)
     ibar = config.interruption_weight_s * (1 + config.busy_cost * config.typical_busyness)
@@ -180,8 +185,11 @@ def test_reward_is_the_decision_cost_terms():
 
 
 def test_simulator_decision_equals_core_decide_for_a_scripted_need():
-    """The simulator's session, given a store with some history, decides as core.decide does
-    on records built by the core's own functions (note_ask, note_outcome)."""
+    """The simulator's session, given a store with some history.
+
+    Decides as core.decide does on records built by the core's own functions (note_ask,
+    note_outcome).
+    """
     model, config = SiteModel(), DecisionConfig()
     store = MemoryStore(robot_id=SIM_ROBOT_ID)
     k1, k2 = store.key_for("p1"), store.key_for("p2")
@@ -212,9 +220,12 @@ def test_simulator_decision_equals_core_decide_for_a_scripted_need():
 
 
 def test_simulator_asks_again_after_a_decline_as_the_node_does():
-    """Nobody ever helps (w ~ 0): at every need with two or more eligible people the session
-    asks twice (max_asks_per_need 2, the node's default), never the same person twice, and
-    the second ask uses the need's second draw pair; with max_asks_per_need 1, once."""
+    """Nobody ever helps (w ~ 0).
+
+    At every need with two or more eligible people the session asks twice (max_asks_per_need 2, the
+    node's default), never the same person twice, and the second ask uses the need's second draw
+    pair; with max_asks_per_need 1, once.
+    """
     sc = scenario(people__willingness={"beta": [1e-6, 1e6]}, people__regulars=30,
                   people__regulars_per_need=4.0, shift__days=1)
     world = build_world(sc, 8)
@@ -241,8 +252,11 @@ def test_simulator_asks_again_after_a_decline_as_the_node_does():
 
 
 def test_later_ask_draws_do_not_change_the_world():
-    """More draw pairs per need change nothing else: the same needs, people and first draws
-    (common random numbers hold whatever the number of asks per need)."""
+    """More draw pairs per need change nothing else.
+
+    The same needs, people and first draws (common random numbers hold whatever the number of asks
+    per need).
+    """
     sc = scenario()
     two, five = build_world(sc, 4, ask_draws=2), build_world(sc, 4, ask_draws=5)
     assert [(n.time_s, n.seen, n.u_help[:2], n.u_silent[:2]) for n in two.needs] == \
@@ -268,7 +282,8 @@ def test_gini_exact_values():
     ("people__regulars", 2.5, "people.regulars"),
     ("ground_truth__model", "magic", "ground_truth.model"),
     ("people__willingness", {"beta": [0.0, 1.0]}, "people.willingness.beta[0]"),
-    ("activities", [{"name": "x", "busyness": 1.5, "mean_duration_s": 1.0}], "activities[0].busyness"),
+    ("activities", [{"name": "x", "busyness": 1.5, "mean_duration_s": 1.0}],
+     "activities[0].busyness"),
     ("shift__days", 0, "shift.days"),
 ])
 def test_bad_scenario_names_the_field(path, value, field):
@@ -292,9 +307,10 @@ def test_shipped_scenarios_load_and_differ_in_kind():
     lab = load("scenarios/research_lab_quiet.yaml")
     hub = load("scenarios/transit_concourse_busy.yaml")
     assert hosp.regulars == 40 and "with_patient" in hosp.never_ask_activities
-    assert {a.name for a in hosp.activities} >= {"charting", "on_call", "walking_fast", "with_patient"}
+    assert {a.name for a in hosp.activities} >= {"charting", "on_call", "walking_fast",
+                                                 "with_patient"}
     assert hub.strangers_per_need > 2 * hub.regulars_per_need  # many strangers
-    assert lab.strangers_per_need < 0.1 * lab.regulars_per_need  # few regulars, nearly no strangers
+    assert lab.strangers_per_need < 0.1 * lab.regulars_per_need  # few regulars, ~no strangers
     assert hub.needs_per_hour > 4 * lab.needs_per_hour  # very busy vs quiet
     assert hub.truth_model == "logistic"
 
@@ -315,8 +331,11 @@ def _simulate_with(tmp_path, params_text):
 
 
 def test_simulate_uses_the_node_parameter_file(tmp_path):
-    """A node parameter file drives the simulated decision: with the hourly cap at 0 the
-    robot never asks; with the shipped defaults it does (same seed, same world)."""
+    """A node parameter file drives the simulated decision.
+
+    With the hourly cap at 0 the robot never asks; with the shipped defaults it does (same seed,
+    same world).
+    """
     code, capped = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
                                             "    max_asks_per_hour: 0\n")
     assert code == 0 and capped["summary"]["ours"]["asks"]["mean"] == 0.0
@@ -334,8 +353,11 @@ def test_simulate_refuses_a_bad_parameter_file_naming_it(tmp_path, capsys):
 
 
 def test_simulate_takes_max_asks_per_need_from_the_node_parameter_file(tmp_path):
-    """The session's rules come from the same file: one ask per need asks less than three
-    (same seed, same world; the later asks at a need are the asks again after a decline)."""
+    """The session's rules come from the same file.
+
+    One ask per need asks less than three (same seed, same world; the later asks at a need are the
+    asks again after a decline).
+    """
     code, one = _simulate_with(tmp_path, "/**/helpaware_decider:\n  ros__parameters:\n"
                                          "    max_asks_per_need: 1\n")
     assert code == 0

@@ -40,7 +40,7 @@ def node(tmp_path_factory):
 
 
 def _history(store, robot_id: str) -> None:
-    """ann helped at 1000 s, bo declined at 2000 s (busy), both asked by this robot."""
+    """Store the history: ann helped at 1000 s, bo declined at 2000 s (busy), both asked here."""
     ann, bo = store.key_for("ann"), store.key_for("bo")
     store.append(StoredEvent(f"{robot_id}/901", ann, 1000.0, Result.HELPED, 0.2, 0.0))
     store.append(StoredEvent(f"{robot_id}/902", bo, 2000.0, Result.DECLINED, 0.5, 0.0))

@@ -1,5 +1,8 @@
-"""The simulator scores the world: its costs and truth, the site-informed constants, the
-oracles, site learning plumbing, paired comparisons and the re-encounter check."""
+"""The simulator scores the world.
+
+Its costs and truth, the site-informed constants, the oracles, site learning plumbing, paired
+comparisons and the re-encounter check.
+"""
 from __future__ import annotations
 
 import dataclasses
@@ -67,10 +70,13 @@ WRONG_CONFIG = DecisionConfig(ask_time_s=60.0, repeat_cost=0.0, interruption_wei
 
 
 def world_reward_by_hand(res, true_half_life_s: float = 7200.0):
-    """The world's reward and interruption cost of a run, summed by hand from its decisions
-    with the world's costs (WORLD_COSTS) and each ask's true load (plain algebra: 2^(-age/h)
-    over the person's earlier asks, h the world's half-life), all needs a door (120 s, help
-    20 s). Also whether the robot's own interruption figure ever differed from the world's."""
+    """Return the world's reward and interruption cost of a run.
+
+    Summed by hand from its decisions with the world's costs (WORLD_COSTS) and each ask's true load
+    (plain algebra: 2^(-age/h) over the person's earlier asks, h the world's half-life), all needs
+    a door (120 s, help 20 s). Also whether the robot's own interruption figure ever differed from
+    the world's.
+    """
     c = WORLD_COSTS
     past: dict = {}
     interruption, robot_differs = 0.0, False
@@ -87,8 +93,10 @@ def world_reward_by_hand(res, true_half_life_s: float = 7200.0):
 
 
 def test_reward_is_the_worlds_whatever_the_robot_believes():
-    """The nearest-person policy ignores costs and constants, so robots with different
-    parameters make the same asks; the reward is the world's either way."""
+    """The nearest-person policy ignores costs and constants.
+
+    So robots with different parameters make the same asks; the reward is the world's either way.
+    """
     sc = scenario(costs=WORLD_COSTS)
     world = build_world(sc, 4)
     runs = [run_policy(world, "nearest", model, cfg, keep_decisions=True)
@@ -108,9 +116,12 @@ def test_reward_is_the_worlds_whatever_the_robot_believes():
 @pytest.mark.parametrize("model,config", [(SiteModel(), DecisionConfig()),
                                           (WRONG_MODEL, WRONG_CONFIG)])
 def test_ours_is_paid_the_worlds_costs_not_its_own(model, config):
-    """Our policy decides with the robot's costs and constants, but each ask is paid at the
-    world's: the hand sum with the world's costs and the true load matches, while the robot's
-    own interruption figure differs from the world's (so the check can tell them apart)."""
+    """Our policy decides with the robot's costs and constants.
+
+    But each ask is paid at the world's: the hand sum with the world's costs and the true load
+    matches, while the robot's own interruption figure differs from the world's (so the check can
+    tell them apart).
+    """
     world = build_world(scenario(costs=WORLD_COSTS), 5)
     res = run_policy(world, "ours", model, config, keep_decisions=True)
     expected, interruption, robot_differs = world_reward_by_hand(res)
@@ -120,8 +131,11 @@ def test_ours_is_paid_the_worlds_costs_not_its_own(model, config):
 
 
 def test_the_oracles_do_not_read_the_robots_parameters():
-    """The oracles score with the world's truth and costs: a robot with other costs and
-    constants (same hard limits) makes the same asks and is paid the same, to the bit."""
+    """The oracles score with the world's truth and costs.
+
+    a robot with other costs and constants (same hard limits) makes the same asks and is paid the
+    same, to the bit.
+    """
     world = build_world(scenario(costs=WORLD_COSTS), 6)
     for policy in ("oracle", "oracle_greedy"):
         a, b = (run_policy(world, policy, m, c) for m, c in
@@ -134,9 +148,11 @@ def test_the_oracles_do_not_read_the_robots_parameters():
 # ------------------------------------------------------------------ site-informed constants
 
 def test_true_prior_matches_the_pooled_willingness_moments():
-    """Regulars Beta(3, 2) (8 people) and strangers Beta(1, 3) (expected 0.5 * 4 * 8 * 3 =
-    48): the pooled mean and variance by the law of total variance over scipy.stats.beta's
-    moments, and the matched Beta has exactly those (scipy.stats.beta.stats)."""
+    """Regulars Beta(3, 2) (8 people) and strangers Beta(1, 3) (expected 0.5 * 4 * 8 * 3 = 48).
+
+    The pooled mean and variance by the law of total variance over scipy.stats.beta's moments, and
+    the matched Beta has exactly those (scipy.stats.beta.stats).
+    """
     sc = scenario()
     a0, b0 = true_prior(sc)
     groups = [(8.0, stats.beta(3.0, 2.0)), (48.0, stats.beta(1.0, 3.0))]
@@ -149,8 +165,11 @@ def test_true_prior_matches_the_pooled_willingness_moments():
 
 
 def test_logistic_truth_moments_by_quadrature():
-    """E[w], E[w^2] of w = logistic(logit 0.3 + 1.2 z) against scipy.integrate.quad over the
-    normal density (scipy.stats.norm)."""
+    """Check E[w] and E[w^2] of the logistic truth against quadrature.
+
+    E[w], E[w^2] of w = logistic(logit 0.3 + 1.2 z) against scipy.integrate.quad over the normal
+    density (scipy.stats.norm).
+    """
     m1, m2 = logit_normal_moments(0.3, 1.2)
     w = lambda z: 1.0 / (1.0 + math.exp(-(math.log(0.3 / 0.7) + 1.2 * z)))  # noqa: E731
     q1 = integrate.quad(lambda z: w(z) * stats.norm.pdf(z), -40, 40)[0]
@@ -185,8 +204,11 @@ def test_constants_true_starts_every_policy_from_the_truth():
 # ------------------------------------------------------------------ the oracles
 
 def _tiny_world(times, k_load=1.0, h=3600.0):
-    """One person p (w = 1, never busy) alone at needs at `times`; the world's interruption
-    cost 0 and t_ask 10, so a true advantage is p (C - t_help) - (1 - p) 10, p = e^(-k f)."""
+    """One person p (w = 1, never busy) alone at needs at `times`.
+
+    The world's interruption cost 0 and t_ask 10, so a true advantage is p (C - t_help) - (1 - p)
+    10, p = e^(-k f).
+    """
     sc = scenario(ground_truth={"model": "ours", "k_busy": 0.0, "k_load": k_load,
                                 "ask_memory_half_life_s": h, "no_response_fraction": 0.0},
                   costs={"interruption_weight_s": 0.0, "ask_time_s": 10.0})
@@ -196,9 +218,11 @@ def _tiny_world(times, k_load=1.0, h=3600.0):
 
 
 def test_oracle_lasting_cost_is_the_greedy_rollout_by_hand():
-    """Now t = 1000; p is met again at 2800 and 8200 (h = 3600 s, k_load = 1). Without an
-    ask now the greedy oracle asks at 2800 (load 0) and at 8200 (load 2^-1.5); with one,
-    the loads are 2^-0.5 and 2^-2 + 2^-1.5. The lasting cost is the difference."""
+    """Now t = 1000; p is met again at 2800 and 8200 (h = 3600 s, k_load = 1).
+
+    Without an ask now the greedy oracle asks at 2800 (load 0) and at 8200 (load 2^-1.5); with one,
+    the loads are 2^-0.5 and 2^-2 + 2^-1.5. The lasting cost is the difference.
+    """
     world = _tiny_world([1000.0, 2800.0, 8200.0])
     truth = TrueWorld(world, DecisionConfig())
     truth.need_index = 0
@@ -214,16 +238,21 @@ def test_oracle_lasting_cost_is_the_greedy_rollout_by_hand():
 
 
 def test_oracle_counts_the_reask_interval_it_fills():
-    """Met again 600 s later, inside the 900 s re-ask interval: with an ask now the oracle
-    could not ask there, so the whole advantage there is lost."""
+    """Met again 600 s later, inside the 900 s re-ask interval.
+
+    With an ask now the oracle could not ask there, so the whole advantage there is lost.
+    """
     world = _tiny_world([1000.0, 1600.0], k_load=0.0)
     truth = TrueWorld(world, DecisionConfig(min_reask_interval_s=900.0))
     assert truth.lasting_cost("p", 1000.0) == pytest.approx(80.0)
 
 
 def test_oracle_beats_its_greedy_self_on_a_long_ask_memory():
-    """Twenty regulars who remember an ask for a day: on the same worlds the look-ahead
-    oracle, which counts the load it leaves, saves more than the greedy one."""
+    """Twenty regulars who remember an ask for a day.
+
+    On the same worlds the look-ahead oracle, which counts the load it leaves, saves more than the
+    greedy one.
+    """
     sc = scenario(people__regulars=20, people__regulars_per_need=1.5,
                   people__strangers_per_need=0.0, shift__days=6,
                   ground_truth={"model": "ours", "k_busy": 2.0, "k_load": 1.5,
@@ -238,8 +267,10 @@ def test_oracle_beats_its_greedy_self_on_a_long_ask_memory():
 # ------------------------------------------------------------------ site learning plumbing
 
 class SwitchAfter:
-    """A stand-in site learner: due once `k` outcomes were stored; then 'refits' to fixed
-    constants (accepted or not). Records what it was given."""
+    """A stand-in site learner: due once `k` outcomes were stored.
+
+    Then 'refits' to fixed constants (accepted or not). Records what it was given.
+    """
 
     def __init__(self, k: int, model: SiteModel, accept: bool = True):
         self.k, self.model, self.accept = k, model, accept
@@ -287,8 +318,10 @@ def test_an_accepted_refit_is_put_in_force_and_a_refused_one_changes_nothing():
 
 
 class ProposeOnly(SwitchAfter):
-    """Accepted but not applied (the site learner's `propose` mode): the constants in force
-    stay the file's, so the run must not switch."""
+    """Accepted but not applied (the site learner's `propose` mode).
+
+    The constants in force stay the file's, so the run must not switch.
+    """
 
     def refit(self, outcomes, asks, now_s):
         r = super().refit(outcomes, asks, now_s)
@@ -307,9 +340,11 @@ def test_a_proposal_that_is_not_applied_changes_nothing():
 
 
 def test_the_site_learner_plugs_in_when_present():
-    """helpaware_node.fit.online (the site-learning branch) through the run's hook: refits are
-    made on the run's own events, and once one is applied the decisions carry its constants,
-    each inside the learner's ranges. Skipped where that module is not installed."""
+    """helpaware_node.fit.online (the site-learning branch) through the run's hook.
+
+    Refits are made on the run's own events, and once one is applied the decisions carry its
+    constants, each inside the learner's ranges. Skipped where that module is not installed.
+    """
     online = pytest.importorskip("helpaware_node.fit.online")
     world = build_world(scenario(shift__days=3), 2)
     learner = online.SiteLearner(SiteModel(), online.LearningSettings(
@@ -380,11 +415,13 @@ def test_regulars_come_back_and_the_check_counts_it():
 
 
 def test_the_check_compares_n_with_the_discounted_real_later_encounters():
-    """One person met at 1000, 2800, 8200 s and near the end of a 3-day run: at each
-    encounter the robot's N is the Gamma-Poisson mean (0.3 / day over 8 h prior, k earlier
-    encounters since first seen) times tau (1 - e^(-H/tau)), and the real figure is
-    sum e^(-dt/tau) over later encounters within H (plain algebra); the last encounter, whose
-    horizon passes the end of the run, is left out."""
+    """One person met at 1000, 2800, 8200 s and near the end of a 3-day run.
+
+    At each encounter the robot's N is the Gamma-Poisson mean (0.3 / day over 8 h prior, k earlier
+    encounters since first seen) times tau (1 - e^(-H/tau)), and the real figure is sum e^(-dt/tau)
+    over later encounters within H (plain algebra); the last encounter, whose horizon passes the
+    end of the run, is left out.
+    """
     from helpaware_node.sim.encounters import encounter_rows
     end = 3 * 86400.0
     times = [1000.0, 2800.0, 8200.0, end - 100.0]

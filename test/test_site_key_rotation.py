@@ -115,7 +115,7 @@ def test_a_damaged_text_key_file_is_refused_naming_the_line(body, words):
 
 
 def test_comments_and_blank_lines_are_allowed(tmp_path):
-    body = (FILE_HEADER + b"# copied to every robot on 2026-03-01\n\nperson-ids " + RAW_KEY.hex().encode()
-            + b"   # the stores' key\nsigning " + b"cd" * 32 + b"\n")
+    body = (FILE_HEADER + b"# copied to every robot on 2026-03-01\n\nperson-ids "
+            + RAW_KEY.hex().encode() + b"   # the stores' key\nsigning " + b"cd" * 32 + b"\n")
     keys = parse_site_key_file(body)
     assert keys.person_id_key == RAW_KEY and keys.site_id == key_fingerprint(RAW_KEY)[:16]

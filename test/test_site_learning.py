@@ -1,5 +1,7 @@
-"""Site learning (fit/online.py) without ROS: the refit against the offline fit, shrinkage,
-degenerate streams, fleet determinism, the half-life, the store's history, replay.
+"""Site learning (fit/online.py) without ROS.
+
+The refit against the offline fit, shrinkage, degenerate streams, fleet determinism, the half-life,
+the store's history, replay.
 
 Outside references, named beside each check: BDA3 Table 5.1 (rat tumours) with the reference
 MLE in test/data/REFERENCE_VALUES.md where the penalty is 0; scipy.optimize (Nelder-Mead and
@@ -398,7 +400,7 @@ def test_store_file_at_version_3_is_upgraded_with_its_asks_and_an_empty_history(
 
 
 def test_fit_command_estimates_the_half_life_from_the_exports_ask_rows(tmp_path, capsys,
-                                                                         big_site):
+                                                                       big_site):
     # `helpaware fit` on `helpaware store export`: the half-life row is fitted with a
     # standard error, and the written parameter file carries it (read back with the node's
     # own reader, checked against SiteModel's ranges)

@@ -1,6 +1,8 @@
-"""Site learning on an in-process node: propose writes a parameter file the node loads and
-keeps the file's values in force; switching the mode live puts the learned or the file's
-constants in force at once; every decision carries where its constants came from.
+"""Site learning on an in-process node.
+
+Propose writes a parameter file the node loads and keeps the file's values in force; switching the
+mode live puts the learned or the file's constants in force at once; every decision carries where
+its constants came from.
 
 The store is an SQLite file in tmp_path filled with a simulated site (invented data) before
 the node starts; the proposal is read back with the package's own parameter-file reader and

@@ -1,9 +1,11 @@
-"""The SROS2 policy template (config/sros2/helpaware.policy.xml) lists exactly what the node and
-the console create: the graph of a running node (rclpy's own introspection) is compared with
-the template's names, resolved the way ROS 2 resolves them (a relative name in the profile's
-namespace, "~" under the node; the ROS 2 topic and service names design article).  The
-template is not turned into permissions here: the wheels have no sros2 and their Fast DDS is
-built without security."""
+"""The SROS2 policy template lists exactly what the node and the console create.
+
+The SROS2 policy template (config/sros2/helpaware.policy.xml) lists exactly what the node and the
+console create: the graph of a running node (rclpy's own introspection) is compared with the
+template's names, resolved the way ROS 2 resolves them (a relative name in the profile's namespace,
+"~" under the node; the ROS 2 topic and service names design article).  The template is not turned
+into permissions here: the wheels have no sros2 and their Fast DDS is built without security.
+"""
 import os
 import time
 import xml.etree.ElementTree as ET

@@ -1,6 +1,8 @@
-"""Forget, opt-out and compaction off the caller's thread (store/jobs.py): in force in memory
-at once, written on the worker's own connection, reported back on the caller's thread, and
-durable once reported; opt-outs held in memory agree with the table by every route."""
+"""Forget, opt-out and compaction off the caller's thread (store/jobs.py).
+
+In force in memory at once, written on the worker's own connection, reported back on the caller's
+thread, and durable once reported; opt-outs held in memory agree with the table by every route.
+"""
 import glob
 import sqlite3
 import subprocess
@@ -45,8 +47,11 @@ def file_bytes(path):
 
 
 class HeldWriter:
-    """Holds the file's write lock from a third connection, so the worker's job waits and
-    the test sees the state between the request and the rows being written."""
+    """Holds the file's write lock from a third connection.
+
+    So the worker's job waits and the test sees the state between the request and the rows being
+    written.
+    """
 
     def __init__(self, path):
         self.conn = sqlite3.connect(str(path), isolation_level=None, check_same_thread=False)

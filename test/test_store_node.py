@@ -1,8 +1,10 @@
-"""The node on a damaged store file: starts on priors, file moved aside, ERROR in diagnostics,
-keeps deciding and learning; and a live forget through privacy_request."""
+"""The node on a damaged store file.
+
+Starts on priors, file moved aside, ERROR in diagnostics, keeps deciding and learning; and a live
+forget through privacy_request.
+"""
 import os
 
-import pytest
 from diagnostic_msgs.msg import DiagnosticStatus
 
 from helpaware_node.core.belief import Belief
@@ -31,7 +33,8 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         # keeps working: decides on the prior and learns from an outcome
         assert rig.show_people([{"id": "nurse-a", "distance_m": 1.0, "busyness": 0.0}])
         d = rig.open_need("n1", "handover", urgency=1.0)
-        assert d["action"] == "ask" and (d["candidates"][0]["a"], d["candidates"][0]["b"]) == (2.0, 2.0)
+        assert d["action"] == "ask" and (d["candidates"][0]["a"], d["candidates"][0]["b"]) == (2.0,
+                                                                                               2.0)
         rig.report("n1", "nurse-a", "helped")
         key = rig.node.store.key_for("nurse-a")
         assert rig.node.session.memory.records[key].belief == Belief(3.0, 2.0)
@@ -44,14 +47,18 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         assert rig.spin_until(lambda: rig.node.store.is_opted_out(key))
         d = rig.open_need("n2", "handover", urgency=1.0)
         assert d["action"] == "continue"
-        assert [r for r in d["rationale"] if r["person_id"] == "nurse-a"][0]["excluded"] == "opted_out"
+        nurse = [r for r in d["rationale"] if r["person_id"] == "nurse-a"][0]
+        assert nurse["excluded"] == "opted_out"
     finally:
         rig.close()
 
 
 def test_privacy_requests_on_a_store_file_hold_at_once_on_disk_and_after_a_restart(ctx, tmp_path):
-    """The rows go on the node's store worker; decisions respect the request before that,
-    the answer on the fleet topic comes after it, and a restart keeps it."""
+    """The rows go on the node's store worker.
+
+    Decisions respect the request before that, the answer on the fleet topic comes after it, and a
+    restart keeps it.
+    """
     import sqlite3
     from helpaware_node.fleet_documents import decode_document
     from std_msgs.msg import String

@@ -16,7 +16,7 @@ RAW_IDS = ["badge-7731-ward-C", "nurse-ingrid-olsen", "porter_42_night"]
 
 
 def store_bytes(path):
-    """The database and every companion file (-wal, -shm, -journal) as bytes."""
+    """Return the database and every companion file (-wal, -shm, -journal) as bytes."""
     return {p: open(p, "rb").read() for p in glob.glob(str(path) + "*")}
 
 
@@ -110,9 +110,11 @@ OPS = st.lists(st.tuples(st.sampled_from(["append", "ask", "compact", "opt_out",
 @settings(max_examples=40)
 @given(seed=st.binary(min_size=32, max_size=32), ops=OPS, victim=st.integers(0, 11))
 def test_no_byte_of_a_forgotten_key_after_forget_and_compaction(tmp_path_factory, seed, ops,
-                                                                 victim):
-    """Whatever came before, after forget + compaction the key's bytes are nowhere in the
-    file, its free pages or the WAL (searched raw), while a key kept is still found."""
+                                                                victim):
+    """Whatever came before, after forget + compaction the key's bytes are nowhere in the file.
+
+    Its free pages or the WAL (searched raw), while a key kept is still found.
+    """
     path = tmp_path_factory.mktemp("leak") / "b.sqlite3"
     store = SqliteStore(path, "r1", seed)
     keys = [store.key_for(f"visitor-{i}") for i in range(12)]

@@ -1,5 +1,7 @@
-"""The SQLite store: snapshot equals the refold, restart is exact, compaction keeps beliefs,
-migrations, site key checks, and damaged files moved aside."""
+"""The SQLite store: snapshot equals the refold, restart is exact, compaction keeps beliefs.
+
+Migrations, site key checks, and damaged files moved aside.
+"""
 import os
 import sqlite3
 
@@ -117,8 +119,10 @@ def test_migration_from_version_1_rebuilds_snapshots(tmp_path):
     conn = sqlite3.connect(path, isolation_level=None)
     schema.migrate(conn, target=1)
     k = "ab" * 32
-    conn.execute("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, request_kind) VALUES ('r9/1', ?, 5.0, 0.2, 0.0, 'helped', '')", (k,))
-    conn.execute("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, request_kind) VALUES ('r9/2', ?, 6.0, 0.2, 0.0, 'declined', '')", (k,))
+    insert = ("INSERT INTO events (event_id, person_key, time_s, busyness, ask_load, result, "
+              "request_kind) VALUES (?, ?, ?, 0.2, 0.0, ?, '')")
+    conn.execute(insert, ("r9/1", k, 5.0, "helped"))
+    conn.execute(insert, ("r9/2", k, 6.0, "declined"))
     conn.close()
     store = SqliteStore(path, "r1", KEY, model=MODEL)
     assert store.counts()["schema_version"] == schema.SCHEMA_VERSION == 4
@@ -128,8 +132,11 @@ def test_migration_from_version_1_rebuilds_snapshots(tmp_path):
 
 def test_migration_of_a_version_2_file_with_data_keeps_everything_and_adds_asks(
         tmp_path, monkeypatch):
-    """A file written at version 2 (the store's own write path, migrations stopped at 2),
-    opened by this version: events, snapshot and sequences as they were, asks usable."""
+    """A version 2 file with data keeps everything and gains asks.
+
+    A file written at version 2 (the store's own write path, migrations stopped at 2), opened by
+    this version: events, snapshot and sequences as they were, asks usable.
+    """
     import functools
     from helpaware_node.store import AskEvent
     from helpaware_node.store import sqlite as sqlite_module

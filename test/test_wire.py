@@ -6,7 +6,6 @@ depend on our own code.
 """
 import copy
 import json
-import math
 import os
 import random
 
@@ -30,9 +29,11 @@ def _no_constant(name):
 
 
 def schema_ok(schema, doc) -> bool:
-    """Would a standard validator accept this document as it travels, as JSON text? NaN and
-    infinities are not JSON (RFC 8259), so a document holding one is refused before any schema
-    sees it, as a strict JSON parser refuses it."""
+    """Would a standard validator accept this document as it travels, as JSON text.
+
+    NaN and infinities are not JSON (RFC 8259), so a document holding one is refused before any
+    schema sees it, as a strict JSON parser refuses it.
+    """
     try:
         value = json.loads(json.dumps(doc), parse_constant=_no_constant)
     except ValueError:
@@ -97,8 +98,11 @@ def mutants(doc):
 
 
 def wire_ok(name, doc):
-    """Does the node take this document, sent as text (NaN and infinities as Python's json
-    writes them, which the node's decoder refuses as not JSON)?"""
+    """Tell whether the node takes this document.
+
+    Sent as text (NaN and infinities as Python's json writes them, which the node's decoder refuses
+    as not JSON)?
+    """
     try:
         wire.decode(name, json.dumps(doc))
         return True
@@ -136,14 +140,17 @@ def test_schema_and_code_accept_and_reject_the_same_documents(name):
 def test_errors_name_the_field_and_range():
     doc = valid_documents()["people"]
     doc["people"][0]["busyness"] = 1.7
-    with pytest.raises(wire.WireError, match=r"people\[0\]\.busyness: 1.7 is outside the allowed range \[0, 1\]"):
+    with pytest.raises(wire.WireError,
+                       match=r"people\[0\]\.busyness: 1.7 is outside the allowed range \[0, 1\]"):
         wire.validate("people", doc)
     with pytest.raises(wire.WireError, match="result: 'maybe' is not one of helped"):
-        wire.decode("outcome", '{"doc":"outcome","version":1,"request_id":"r","person_id":"p","result":"maybe"}')
+        wire.decode("outcome", '{"doc":"outcome","version":1,"request_id":"r","person_id":"p",'
+                    '"result":"maybe"}')
     with pytest.raises(wire.WireError, match="NaN is not allowed"):
         wire.decode("people", '{"doc":"people","version":1,"stamp_s":NaN,"people":[]}')
     with pytest.raises(wire.WireError, match="kind: required when state is open"):
-        wire.decode("task_status", '{"doc":"task_status","version":1,"request_id":"r","state":"open"}')
+        wire.decode("task_status",
+                    '{"doc":"task_status","version":1,"request_id":"r","state":"open"}')
     with pytest.raises(wire.WireError, match="not valid JSON"):
         wire.decode("outcome", "{nope")
 
@@ -152,7 +159,8 @@ def test_size_caps():
     with pytest.raises(wire.WireError, match="1000000 bytes"):
         wire.decode("people", '{"a":"' + "x" * wire.MAX_DOCUMENT_BYTES + '"}')
     many = [{"id": f"p{i}", "distance_m": 1.0} for i in range(wire.MAX_PEOPLE + 1)]
-    with pytest.raises(wire.WireError, match=r"people: 501 items is outside the allowed \[0, 500\]"):
+    with pytest.raises(wire.WireError,
+                       match=r"people: 501 items is outside the allowed \[0, 500\]"):
         wire.people_document(many, 1.0)
     assert len(wire.decode("people", wire.people_document(many[:-1], 1.0))["people"]) == 500
 
@@ -189,19 +197,25 @@ def test_replay_inputs_reproduce_the_decision_exactly(cands, robot_asks, urgency
 
 
 def test_builders_round_trip_into_core_values():
-    doc = wire.decode("task_status", wire.task_status_document("r9", "open", "door", 0.5, help_time_s=15.0))
+    doc = wire.decode("task_status",
+                      wire.task_status_document("r9", "open", "door", 0.5, help_time_s=15.0))
     need = wire.help_need_from(doc, 42.0)
-    assert (need.kind, need.urgency, need.help_time_s, need.opened_at_s) == ("door", 0.5, 15.0, 42.0)
+    assert (need.kind, need.urgency, need.help_time_s, need.opened_at_s) == ("door", 0.5, 15.0,
+                                                                             42.0)
     seen = wire.people_from(wire.decode("people", wire.people_document(
         [{"id": "n1", "distance_m": 3.0, "position": [1.0, 2.0, 3.0]}], 5.0)))
-    assert seen[0].person_id == "n1" and seen[0].busyness is None and seen[0].position == (1.0, 2.0, 3.0)
+    assert seen[0].person_id == "n1" and seen[0].busyness is None
+    assert seen[0].position == (1.0, 2.0, 3.0)
 
 
 def test_a_decision_at_the_largest_caps_is_a_valid_document():
-    """Found by the load work: the caps used to allow 100 000 asks while a decision document
-    holds 1 000 ask times, so a robot allowed that many would publish decisions that review
-    and replay refuse. The caps now stop at MAX_ASKS_CAP = wire.MAX_TIMES, and a decision at
-    that cap, with a person asked that often too, still decodes."""
+    """Found by the load work.
+
+    The caps used to allow 100 000 asks while a decision document holds 1 000 ask times, so a robot
+    allowed that many would publish decisions that review and replay refuse. The caps now stop at
+    MAX_ASKS_CAP = wire.MAX_TIMES, and a decision at that cap, with a person asked that often too,
+    still decodes.
+    """
     from helpaware_node.core import PersonRecord, candidate_from_record, note_ask
     from helpaware_node.core.model import MAX_ASKS_CAP, CoreInputError
     assert wire.MAX_TIMES == MAX_ASKS_CAP

@@ -1,5 +1,7 @@
-"""rosbag2 bags with the `rosbags` library (no ROS install needed): the floor that the recorder
-(ros/), the review (review/) and the fit (fit/) read and write through."""
+"""rosbag2 bags with the `rosbags` library (no ROS install needed).
+
+The floor that the recorder (ros/), the review (review/) and the fit (fit/) read and write through.
+"""
 from .reader import BagInfo, BagMessage, BagSource
 from .salvage import McapSalvage
 from .types import (BAG_FORMAT_VERSION, DIAGNOSTIC_ARRAY_TYPE, GOAL_STATUS_ARRAY_TYPE,

@@ -26,14 +26,16 @@ HASHED_MARK = "helpaware.person_ids"
 
 
 def hash_ids_in(doc, key_of: Callable[[str], str], inside_person: bool = False):
-    """The document with every person id replaced by key_of(id) (a new object)."""
+    """Return the document with every person id replaced by key_of(id) (a new object)."""
     if isinstance(doc, dict):
         out = {}
         for k, v in doc.items():
-            if k in PERSON_ID_FIELDS and isinstance(v, str) and (k == "person_id" or inside_person):
+            if k in PERSON_ID_FIELDS and isinstance(v,
+                                                    str) and (k == "person_id" or inside_person):
                 out[k] = key_of(v)
             else:
-                out[k] = hash_ids_in(v, key_of, inside_person=k in ("people", "persons", "candidates"))
+                out[k] = hash_ids_in(v, key_of,
+                                     inside_person=k in ("people", "persons", "candidates"))
         return out
     if isinstance(doc, list):
         return [hash_ids_in(v, key_of, inside_person) for v in doc]
@@ -41,7 +43,7 @@ def hash_ids_in(doc, key_of: Callable[[str], str], inside_person: bool = False):
 
 
 def id_hasher(site_key: bytes) -> Callable[[bytes], bytes]:
-    """A transform of raw std_msgs/String bytes: JSON in, JSON with hashed ids out."""
+    """Return a transform of raw std_msgs/String bytes: JSON in, JSON with hashed ids out."""
     cache: dict[str, str] = {}
 
     def key_of(raw_id: str) -> str:

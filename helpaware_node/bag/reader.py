@@ -1,6 +1,8 @@
-"""Reading rosbag2 bags: MCAP or sqlite3, ours or made by `ros2 bag record`; a bag directory or a
-single .mcap/.db3 file.  A truncated or corrupt MCAP file is read as far as its records are
-whole (`BagReadError` says which file and how far), so a review can still report what was there.
+"""Reading rosbag2 bags: MCAP or sqlite3, ours or made by `ros2 bag record`.
+
+a bag directory or a single .mcap/.db3 file.  A truncated or corrupt MCAP file is read as far as
+its records are whole (`BagReadError` says which file and how far), so a review can still report
+what was there.
 """
 from __future__ import annotations
 
@@ -15,6 +17,7 @@ from rosbags.rosbag2.errors import ReaderError
 
 from .salvage import McapSalvage
 from .types import BagReadError
+
 
 @dataclass
 class BagMessage:
@@ -76,10 +79,12 @@ class BagSource:
                 IndexError, TypeError) as exc:
             self._reader = None
             if self.storage != "mcap":
-                raise BagReadError(str(self.path), f"cannot open {self.storage} bag: {exc}") from exc
+                raise BagReadError(str(self.path),
+                                   f"cannot open {self.storage} bag: {exc}") from exc
             self._open_reason = f"damaged MCAP file ({exc})"
             self.info.salvaged = True
             return
+        assert self._reader is not None   # opened above
         for conn in self._reader.connections:
             self.info.topics.setdefault(conn.topic, conn.msgtype)
             self.info.counts[conn.topic] = self.info.counts.get(conn.topic, 0) + conn.msgcount
@@ -88,8 +93,11 @@ class BagSource:
 
     @property
     def index_counts(self) -> Optional[dict[str, int]]:
-        """Per-topic counts from the bag's own index, when the bag opened intact and its index
-        accounts for every message (else None: count by reading)."""
+        """Per-topic counts from the bag's own index.
+
+        When the bag opened intact and its index accounts for every message (else None: count by
+        reading).
+        """
         if self._reader is None:
             return None
         total = self._reader.message_count
@@ -120,15 +128,20 @@ class BagSource:
             yield BagMessage(conn.topic, conn.msgtype, t_ns, data)
 
     def _indexed(self, topics: Optional[set[str]]):
-        """Messages of an intact bag through its index; a failure part-way is kept in
-        `self.error` with how far the reading got, instead of ending the caller."""
-        conns = [c for c in self._reader.connections if topics is None or c.topic in topics]
+        """Messages of an intact bag through its index.
+
+        a failure part-way is kept in `self.error` with how far the reading got, instead of ending
+        the caller.
+        """
+        reader = self._reader
+        assert reader is not None   # messages() salvages a bag without one
+        conns = [c for c in reader.connections if topics is None or c.topic in topics]
         if not conns:
             return
         count = 0
         last = None
         try:
-            for conn, t_ns, data in self._reader.messages(connections=conns):
+            for conn, t_ns, data in reader.messages(connections=conns):
                 count += 1
                 last = t_ns
                 yield conn, t_ns, data

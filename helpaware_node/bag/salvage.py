@@ -82,7 +82,7 @@ class McapSalvage:
             try:
                 from compression import zstd  # type: ignore
             except ImportError:
-                from backports import zstd  # type: ignore
+                from backports import zstd
             payload = zstd.decompress(payload)
         elif comp == "lz4":
             import lz4.frame

@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 import struct
-from typing import Optional
+from typing import Literal, Optional
 
 from rosbags.typesys import Stores, get_typestore
 
@@ -11,7 +11,7 @@ MARKER_ARRAY_TYPE = "visualization_msgs/msg/MarkerArray"
 DIAGNOSTIC_ARRAY_TYPE = "diagnostic_msgs/msg/DiagnosticArray"
 GOAL_STATUS_ARRAY_TYPE = "action_msgs/msg/GoalStatusArray"
 KNOWN_TYPES = (STRING_TYPE, MARKER_ARRAY_TYPE, DIAGNOSTIC_ARRAY_TYPE, GOAL_STATUS_ARRAY_TYPE)
-BAG_FORMAT_VERSION = 9
+BAG_FORMAT_VERSION: Literal[9] = 9
 
 _TYPESTORE = None
 
@@ -35,8 +35,11 @@ class BagReadError(RuntimeError):
 
 
 def typestore():
-    """ROS 2 message definitions (the 'kilted' set; String, MarkerArray, ... are identical
-    across current distributions, so their type hashes match what the node publishes)."""
+    """Return the ROS 2 message definitions of the 'kilted' set.
+
+    ROS 2 message definitions (the 'kilted' set; String, MarkerArray, ... are identical across
+    current distributions, so their type hashes match what the node publishes).
+    """
     global _TYPESTORE
     if _TYPESTORE is None:
         _TYPESTORE = get_typestore(Stores.ROS2_KILTED)
@@ -60,7 +63,7 @@ def serialize_string(text: str) -> bytes:
 
 
 def deserialize_string(data: bytes | memoryview) -> str:
-    """The text of a CDR-serialised std_msgs/String (either byte order)."""
+    """Return the text of a CDR-serialised std_msgs/String (either byte order)."""
     if len(data) < 8:
         raise ValueError(f"{len(data)} bytes is too short for a std_msgs/String")
     little = data[1] == 1

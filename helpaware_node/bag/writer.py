@@ -1,16 +1,20 @@
-"""Writing rosbag2 bags: always MCAP storage, rosbag2 format version 9, with the ROS 2 message
-definition and type hash of every topic, so `ros2 bag info/play` and any rosbag2 reader accept
-the bag."""
+"""Writing rosbag2 bags.
+
+Always MCAP storage, rosbag2 format version 9, with the ROS 2 message definition and type hash of
+every topic, so `ros2 bag info/play` and any rosbag2 reader accept the bag.
+"""
 from __future__ import annotations
 
 import os
 from pathlib import Path
 from typing import Optional
 
+from rosbags.interfaces import Connection
 from rosbags.rosbag2 import Writer
 from rosbags.rosbag2.enums import StoragePlugin
 
 from .types import BAG_FORMAT_VERSION, STRING_TYPE, normalise_type, serialize_string, typestore
+
 
 class BagWriter:
     """Writes raw (already serialised) messages into a new MCAP bag.
@@ -21,12 +25,12 @@ class BagWriter:
 
     def __init__(self, path: str | os.PathLike, custom_data: Optional[dict] = None) -> None:
         self.path = Path(path)
-        self._writer = Writer(self.path, version=BAG_FORMAT_VERSION,
+        self._writer = Writer(self.path, version=BAG_FORMAT_VERSION,   # a Literal in rosbags
                               storage_plugin=StoragePlugin.MCAP)
         for key, value in (custom_data or {}).items():
             self._writer.set_custom_data(key, str(value))
         self._writer.open()
-        self._connections: dict[str, object] = {}
+        self._connections: dict[str, Connection] = {}
         self.counts: dict[str, int] = {}
         self._closed = False
 
@@ -64,8 +68,9 @@ class BagWriter:
         """End the pending MCAP chunk now, so a crash loses at most what came after."""
         storage = self._writer.storage
         chunk = getattr(storage, "chunk", None)
-        if chunk is not None and chunk.bio.tell() and hasattr(storage, "close_chunk"):
-            storage.close_chunk()
+        close_chunk = getattr(storage, "close_chunk", None)
+        if chunk is not None and chunk.bio.tell() and close_chunk is not None:
+            close_chunk()
 
     def close(self) -> None:
         if not self._closed:

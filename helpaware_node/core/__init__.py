@@ -8,4 +8,10 @@ from .person import (OutcomeEvent, PersonRecord, Result, apply_event, belief_at,
 from .policy import (Candidate, Decision, Evaluation, Exclusion, HelpNeed, candidate_from_record,
                      choose_lookahead, conclude, decide, evaluate, information_value)
 
-__all__ = [name for name in dir() if not name.startswith("_")]
+__all__ = ["Belief", "declined_ab", "declined_moments", "forget", "predictive_help",
+           "update_declined", "update_helped", "update_no_response", "ask_load", "context_factor",
+           "CoreInputError", "DecisionConfig", "SiteModel", "params_hash", "OutcomeEvent",
+           "PersonRecord", "Result", "apply_event", "belief_at", "fold_events", "keep_recent_asks",
+           "note_ask", "note_candidate", "note_outcome", "Candidate", "Decision", "Evaluation",
+           "Exclusion", "HelpNeed", "candidate_from_record", "choose_lookahead", "conclude",
+           "decide", "evaluate", "information_value"]

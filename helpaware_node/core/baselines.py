@@ -11,7 +11,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from .model import DecisionConfig
-from .policy import Evaluation, ask_advantage, best_positive, choose_lookahead
+from .policy import Chooser, Evaluation, ask_advantage, best_positive, choose_lookahead
 from .preview import quoted
 
 
@@ -46,8 +46,11 @@ class BusynessThreshold:
 
 
 class WillingnessOnly:
-    """Willingness alone: the advantage with p = belief mean, ignoring busyness and recent
-    asks (interruption at its context-free base weight), and no information value."""
+    """Willingness alone: the advantage with p = belief mean.
+
+    Ignoring busyness and recent asks (interruption at its context-free base weight), and no
+    information value.
+    """
 
     def __init__(self, config: DecisionConfig):
         self.config = config
@@ -59,8 +62,11 @@ class WillingnessOnly:
 
 
 class ThompsonSampling:
-    """Draw w from each candidate's Beta belief (seeded), ask the best positive advantage
-    with p = c * w in the same context and with the same interruption cost."""
+    """Draw w from each candidate's Beta belief (seeded).
+
+    Ask the best positive advantage with p = c * w in the same context and with the same
+    interruption cost.
+    """
 
     def __init__(self, config: DecisionConfig, seed: int = 0):
         self.config = config
@@ -76,9 +82,11 @@ class ThompsonSampling:
 
 
 class Oracle:
-    """A ceiling: asks the candidate with the best positive true score. `true_score(ev)`
-    returns one value in robot-seconds per candidate from whoever knows the truth (the
-    simulator, sim/oracle.py: the true advantage alone, or with the true lasting cost)."""
+    """A ceiling: asks the candidate with the best positive true score.
+
+    `true_score(ev)` returns one value in robot-seconds per candidate from whoever knows the truth
+    (the simulator, sim/oracle.py: the true advantage alone, or with the true lasting cost).
+    """
 
     def __init__(self, true_score: Callable[[Evaluation], np.ndarray]):
         self.true_score = true_score
@@ -92,9 +100,10 @@ class Oracle:
 POLICY_NAMES = ("ours", "never", "nearest", "busyness", "willingness", "thompson", "oracle")
 
 
-def make_chooser(name: str, config: DecisionConfig, seed: int = 0, true_score=None,
-                 busyness_threshold: float = 0.3):
-    """A fresh chooser by name (stateful ones carry their own seeded generator)."""
+def make_chooser(name: str, config: DecisionConfig, seed: int = 0,
+                 true_score: Optional[Callable[[Evaluation], np.ndarray]] = None,
+                 busyness_threshold: float = 0.3) -> Chooser:
+    """Return a fresh chooser by name (stateful ones carry their own seeded generator)."""
     if name == "ours":
         return choose_lookahead
     if name == "never":

@@ -11,6 +11,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
 from .model import CoreInputError, SiteModel, check_range
 
@@ -43,8 +44,11 @@ _TINY = float(np.nextafter(0.0, 1.0))
 _AT_C_ONE_ONLY = {"divide": "ignore", "invalid": "ignore", "over": "ignore"}
 
 
-def _declined_mixture(a, b, c):
-    """The parts of the exact declined posterior, a two-Beta mixture, that never cancel.
+Floats = NDArray[np.float64]
+
+
+def _declined_mixture(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, ...]:
+    """Return the parts of the exact declined posterior, a two-Beta mixture, that never cancel.
 
     1 - c w = (1 - c) + c (1 - w) and (1 - w) Beta(w; a, b) = b/s Beta(w; a, b + 1), s = a + b:
 
@@ -57,7 +61,7 @@ def _declined_mixture(a, b, c):
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
     c = np.asarray(c, dtype=float)
-    s = a + b
+    s: Floats = a + b
     m0 = a / s                   # mean of Beta(a, b) ...
     n0 = b / s                   # ... and one minus it, each computed directly
     r1 = 1.0 / (s + 1.0)
@@ -68,7 +72,7 @@ def _declined_mixture(a, b, c):
     return a, b, c, s, m0, n0, r1, r2, n1, k, z
 
 
-def declined_moments(a, b, c):
+def declined_moments(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Floats]:
     """Mean and variance of the exact posterior  ∝ (1 - c w) Beta(w; a, b) (vectorised).
 
     mean = a/s [(1 - c) + c b/(s+1)] / Z; variance = the components' variances plus the
@@ -77,15 +81,15 @@ def declined_moments(a, b, c):
     cancel catastrophically near a mean of 1.
     """
     a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
-    with np.errstate(**_AT_C_ONE_ONLY):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         mean = m0 * ((k + c * b * r1) / z)
         # u0 v0 + u1 v1 + u0 u1 (a/(s(s+1)))^2, with a/s and b/(s Z) taken out of all three
         var = m0 * (n0 / z) * (k * r1 + c * s * r1 * n1 * r2 + k * c * m0 * r1 * r1 / z)
     return _exact_ends(c, mean, var, a * r1, a * r1 * n1 * r2, m0, m0 * n0 * r1)
 
 
-def declined_ab(a, b, c):
-    """(a, b) after a declined ask at context factor c in [0, 1] (moment-matched, vectorised).
+def declined_ab(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Floats]:
+    """Return (a, b) after a declined ask at context factor c in [0, 1] (moment-matched).
 
     The matched Beta has the posterior's mean M and variance V; its concentration is
     M(1-M)/V - 1 = E[w(1-w)]/V (as M(1-M) - V = E[w] - E[w^2]), a ratio of positive sums;
@@ -94,7 +98,7 @@ def declined_ab(a, b, c):
     if type(a) is float and type(b) is float and type(c) is float:
         return _declined_ab_one(a, b, c)
     a, b, c, s, m0, n0, r1, r2, n1, k, z = _declined_mixture(a, b, c)
-    with np.errstate(**_AT_C_ONE_ONLY):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         # concentration / s, with the factor b/(s Z) of E[w(1-w)] and V cancelled
         ratio = (k * r1 + c * n1 * r2) / (k * r1 + c * s * r1 * n1 * r2
                                           + k * c * m0 * r1 * r1 / z)
@@ -106,9 +110,12 @@ def declined_ab(a, b, c):
 
 
 def _declined_ab_one(a: float, b: float, c: float) -> tuple[float, float]:
-    """declined_ab for one person (the store's fold of one outcome): the same operations in
-    the same order on floats, so bit for bit the vectorised result (test_belief.py checks),
-    without building arrays; 0 < c < 1 here, so z > 0 and nothing divides by zero."""
+    """declined_ab for one person (the store's fold of one outcome).
+
+    The same operations in the same order on floats, so bit for bit the vectorised result
+    (test_belief.py checks), without building arrays; 0 < c < 1 here, so z > 0 and nothing divides
+    by zero.
+    """
     if c <= 0.0:
         return a, b
     if c >= 1.0:
@@ -127,9 +134,12 @@ def _declined_ab_one(a: float, b: float, c: float) -> tuple[float, float]:
     return max(na, _TINY), max(nb, _TINY)
 
 
-def _exact_ends(c, mixed_a, mixed_b, full_a, full_b, none_a, none_b):
-    """c = 0 carries no information and c = 1 gives the conjugate Beta(a, b + 1): use the
-    closed forms there (bit for bit, and no 0/0 where b/(a+b) underflows to 0)."""
+def _exact_ends(c: Floats, mixed_a: Floats, mixed_b: Floats, full_a: Floats, full_b: Floats,
+                none_a: Floats, none_b: Floats) -> tuple[Floats, Floats]:
+    """Pick the closed forms at c = 0 (no information) and c = 1 (the conjugate Beta(a, b + 1)).
+
+    Use the closed forms there (bit for bit, and no 0/0 where b/(a+b) underflows to 0).
+    """
     return (np.where(c <= 0.0, none_a, np.where(c >= 1.0, full_a, mixed_a)),
             np.where(c <= 0.0, none_b, np.where(c >= 1.0, full_b, mixed_b)))
 
@@ -162,11 +172,11 @@ def forgetting_factor(dt_s: float, half_life_s: float) -> float:
         return 1.0
     if math.isnan(dt_s):
         raise CoreInputError("dt_s: NaN is not a time interval")
-    return 2.0 ** (-max(dt_s, 0.0) / half_life_s)
+    return float(2.0 ** (-max(dt_s, 0.0) / half_life_s))   # float: a negative base never occurs
 
 
 def forget(belief: Belief, prior: Belief, dt_s: float, half_life_s: float) -> Belief:
-    """(a, b) <- (a0, b0) + L ((a, b) - (a0, b0)): evidence fades towards the prior."""
+    """Return (a, b) <- (a0, b0) + L ((a, b) - (a0, b0)): evidence fades towards the prior."""
     lam = forgetting_factor(dt_s, half_life_s)
     if lam == 1.0:
         return belief
@@ -174,5 +184,5 @@ def forget(belief: Belief, prior: Belief, dt_s: float, half_life_s: float) -> Be
 
 
 def predictive_help(belief: Belief, c: float) -> float:
-    """p = c * a / (a + b): probability the person helps when asked in context c."""
+    """Return p = c * a / (a + b): probability the person helps when asked in context c."""
     return _check_c(c) * belief.mean

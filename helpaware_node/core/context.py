@@ -6,9 +6,10 @@ factor    c = exp(-(k_busy * x + k_load * f))
 from __future__ import annotations
 
 import math
-from typing import Iterable
+from typing import Iterable, Union, overload
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
 from .model import CoreInputError
 from .preview import short_number
@@ -25,8 +26,18 @@ def ask_load(ask_times_s: Iterable[float], now_s: float, half_life_s: float) -> 
     return float(np.sum(np.exp2(-ages / half_life_s)))
 
 
-def context_factor(busyness, load, k_busy: float, k_load: float):
-    """c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
+@overload
+def context_factor(busyness: float, load: float, k_busy: float, k_load: float) -> float: ...
+
+
+@overload
+def context_factor(busyness: NDArray[np.float64], load: ArrayLike, k_busy: ArrayLike,
+                   k_load: ArrayLike) -> NDArray[np.float64]: ...
+
+
+def context_factor(busyness: ArrayLike, load: ArrayLike, k_busy: ArrayLike,
+                   k_load: ArrayLike) -> Union[float, NDArray[np.float64]]:
+    """Return c = exp(-(k_busy x + k_load f)); scalars or arrays; busyness in [0, 1], load >= 0."""
     if (type(busyness) is float and type(load) is float and type(k_busy) is float
             and type(k_load) is float):
         # one outcome under one model (the store's fold): the same checks, messages and
@@ -44,10 +55,12 @@ def context_factor(busyness, load, k_busy: float, k_load: float):
     bad_f = ~np.isfinite(f) | (f < 0.0)
     if np.any(bad_f):
         raise CoreInputError(f"ask load: {_first(f, bad_f)} must be finite and >= 0")
-    c = np.exp(-(k_busy * x + k_load * f))
+    kb = np.asarray(k_busy, dtype=float)
+    kl = np.asarray(k_load, dtype=float)
+    c = np.exp(-(kb * x + kl * f))
     return float(c) if c.ndim == 0 else c
 
 
-def _first(values: np.ndarray, bad: np.ndarray) -> str:
+def _first(values: NDArray[np.float64], bad: NDArray[np.bool_]) -> str:
     shown = short_number(float(values[bad].flat[0]))
     return shown if values.ndim == 0 else f"{shown} (one of {values.size} values)"

@@ -15,9 +15,10 @@ horizon H, exactly as N counts them, so
 
     lasting_cost = r * integral_0^H e^(-s/tau) [U(f u(s)) - U((f + 1) u(s))] ds,  u = 2^(-s/h).
 
-U is decreasing and convex; L* (U(L*) = 0, by Lambert's W function) splits the integral into the part where both loads leave a
-positive advantage (drop alpha (e^(-k f u) - e^(-k (f+1) u)) + gamma u) and the part where only
-the load without the ask does (drop U(f u)). Each piece is closed form through
+U is decreasing and convex; L* (U(L*) = 0, by Lambert's W function) splits the integral into
+the part where both loads leave a positive advantage (drop alpha (e^(-k f u) - e^(-k (f+1) u))
++ gamma u) and the part where only the load without the ask does (drop U(f u)). Each piece is
+closed form through
 
     K(s, c) = integral_s^inf e^(-t/tau) e^(-c u(t)) dt = tau e^(-s/tau) D(rho, c u(s)),
     D(rho, x) = rho integral_0^1 t^(rho-1) e^(-x t) dt = e^(-x) M(1, rho + 1, x)
@@ -35,6 +36,7 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 from scipy import special
 
 LN2 = math.log(2.0)
@@ -42,11 +44,15 @@ _SERIES_MAX_X = 700.0     # e^(-x) M(1, rho + 1, x) in double range (M <= e^x)
 _NEWTON_STEPS = 8         # each Newton use starts close: converged after 3 or 4 steps
 
 
-def decay_mean(rho: float, x):
+Floats = NDArray[np.float64]
+
+
+def decay_mean(rho: float, x: ArrayLike) -> Floats:
     """D(rho, x) = rho int_0^1 t^(rho-1) e^(-x t) dt in [0, 1], for x >= 0 (vectorised)."""
     x = np.asarray(x, dtype=float)
     if not np.any(x > _SERIES_MAX_X):
-        return np.exp(-x) * special.hyp1f1(1.0, rho + 1.0, x)
+        out: Floats = np.exp(-x) * special.hyp1f1(1.0, rho + 1.0, x)
+        return out
     small = x <= _SERIES_MAX_X
     xs = np.where(small, x, 0.0)
     xl = np.where(small, 1.0, x)
@@ -60,7 +66,7 @@ def decay_mean(rho: float, x):
     return np.where(small, series, big)
 
 
-def _root(alpha, beta, gamma, k: float):
+def _root(alpha: Floats, beta: Floats, gamma: Floats, k: float) -> Floats:
     """L* > 0 with alpha e^(-k L) = beta + gamma L, where the left side starts above.
 
     With z = k L + s, s = k beta / gamma, the equation is z e^z = (k alpha / gamma) e^s, so
@@ -70,7 +76,8 @@ def _root(alpha, beta, gamma, k: float):
     xi - ln xi. For s > 50 (gamma L small beside beta) Newton's method on
     g(L) = alpha e^(-k L) - beta - gamma L itself, from ln(alpha / beta) / k: g is convex and
     decreasing, so after the first step the iterates rise to the root. k = 0 and gamma = 0
-    have their own closed forms."""
+    have their own closed forms.
+    """
     if k == 0.0:
         return (alpha - beta) / gamma          # gamma > 0: else U never reaches 0
     L = np.empty_like(alpha)
@@ -98,10 +105,14 @@ def _root(alpha, beta, gamma, k: float):
     return L
 
 
-def lasting_cost(rate_per_s, alpha, beta, gamma, k_load: float, load, half_life_s: float,
-                 discount_s: float, horizon_s: float):
-    """Expected discounted loss, in robot-seconds, that one more ask now causes at the
-    person's later requests within the horizon (module doc). Vectorised over candidates."""
+def lasting_cost(rate_per_s: ArrayLike, alpha: ArrayLike, beta: ArrayLike, gamma: ArrayLike,
+                 k_load: float, load: ArrayLike, half_life_s: float, discount_s: float,
+                 horizon_s: float) -> Floats:
+    """Return the lasting cost of one more ask now, in robot-seconds.
+
+    Expected discounted loss, in robot-seconds, that one more ask now causes at the person's later
+    requests within the horizon (module doc). Vectorised over candidates.
+    """
     rate, alpha, beta, gamma, load = (np.asarray(v, dtype=float) for v in np.broadcast_arrays(
         rate_per_s, alpha, beta, gamma, load))
     out = np.zeros(rate.shape)

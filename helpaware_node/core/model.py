@@ -12,7 +12,7 @@ import hashlib
 import json
 import math
 from dataclasses import dataclass, field
-from typing import Any, Mapping
+from typing import Any, ClassVar, Mapping, Protocol, TypeVar
 
 from .preview import describe, short_name, short_number
 
@@ -27,6 +27,7 @@ MAX_ASKS_CAP = 1000
 # soon" policy a site has asked for; longer is an opt-out, which the store keeps for good.
 MAX_REASK_INTERVAL_S = 30 * 86400.0
 
+
 class CoreInputError(ValueError):
     """A value given to the core is outside what the model allows (names field and range)."""
 
@@ -35,7 +36,8 @@ def check_range(name: str, value: Any, low: float, high: float = math.inf,
                 low_open: bool = False, high_open: bool = False) -> float:
     """Return `value` as float or raise CoreInputError naming `name` and the allowed range.
 
-    The message is bounded and never recurses into `value` (core.preview), whatever it is."""
+    The message is bounded and never recurses into `value` (core.preview), whatever it is.
+    """
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise CoreInputError(f"{short_name(name)}: expected a number, got {describe(value)}")
     try:
@@ -105,7 +107,8 @@ class DecisionConfig:
     typical_continue_cost_s: float = 120.0
     lookahead_horizon_s: float = 28800.0    # future requests counted up to 8 h ahead
     future_discount_time_s: float = 14400.0  # exponential discount of later requests
-    prior_candidate_rate_per_day: float = 0.3  # prior mean rate of a never-seen person (decision.md)
+    # prior mean rate of a never-seen person (decision.md)
+    prior_candidate_rate_per_day: float = 0.3
     prior_rate_window_s: float = 28800.0     # weight of that prior rate, in seconds seen
     # hard limits, applied before any score
     min_reask_interval_s: float = 900.0
@@ -123,7 +126,8 @@ class DecisionConfig:
                      "prior_candidate_rate_per_day"):
             check_range(name, getattr(self, name), 0.0, 1e9)
         check_range("min_reask_interval_s", self.min_reask_interval_s, 0.0, MAX_REASK_INTERVAL_S)
-        check_range("future_discount_time_s", self.future_discount_time_s, 0.0, 1e12, low_open=True)
+        check_range("future_discount_time_s", self.future_discount_time_s, 0.0, 1e12,
+                    low_open=True)
         check_range("prior_rate_window_s", self.prior_rate_window_s, 0.0, 1e12, low_open=True)
         check_range("typical_busyness", self.typical_busyness, 0.0, 1.0)
         check_range("busyness_limit", self.busyness_limit, 0.0, 1.0)
@@ -160,20 +164,30 @@ class DecisionConfig:
         return base * (1.0 + self.urgency_cost_gain * urgency)
 
 
-class _FrozenDict(dict):
+class _Dataclass(Protocol):
+    """What dataclasses.fields needs: any dataclass (as typeshed's DataclassInstance)."""
+
+    __dataclass_fields__: ClassVar[dict[str, Any]]
+
+
+_T = TypeVar("_T", bound=_Dataclass)
+
+
+class _FrozenDict(dict[str, float]):
     """A read-only dict, so a DecisionConfig's continue costs cannot change under it."""
 
     def _refuse(self, *args: Any, **kwargs: Any) -> None:
         raise TypeError("DecisionConfig.continue_costs_s is read-only; use dataclasses.replace")
 
-    __setitem__ = __delitem__ = clear = pop = popitem = setdefault = update = _refuse  # type: ignore
+    __setitem__ = __delitem__ = clear = pop = popitem = _refuse  # type: ignore
+    setdefault = update = _refuse  # type: ignore
 
     def __hash__(self) -> int:  # type: ignore[override]
         return hash(tuple(sorted(self.items())))
 
 
-def to_plain(value: Any) -> dict:
-    """A SiteModel or DecisionConfig as plain JSON-ready values."""
+def to_plain(value: Any) -> dict[str, Any]:
+    """Return a SiteModel or DecisionConfig as plain JSON-ready values."""
     out = dataclasses.asdict(value)
     for k, v in out.items():
         if isinstance(v, tuple):
@@ -183,7 +197,7 @@ def to_plain(value: Any) -> dict:
     return out
 
 
-def from_plain(cls: type, data: Mapping[str, Any]):
+def from_plain(cls: type[_T], data: Mapping[str, Any]) -> _T:
     """Build `cls` from plain values; unknown keys are refused by name."""
     names = {f.name for f in dataclasses.fields(cls)}
     if not isinstance(data, Mapping):

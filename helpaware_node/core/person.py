@@ -101,7 +101,7 @@ class PersonRecord:
 
 
 def belief_at(record: PersonRecord, now_s: float, model: SiteModel) -> Belief:
-    """The belief brought forward to `now_s` by forgetting."""
+    """Return the belief brought forward to `now_s` by forgetting."""
     if record.belief_time_s is None:
         return record.belief
     return forget(record.belief, Belief.prior(model), now_s - record.belief_time_s,
@@ -116,8 +116,9 @@ def note_candidate(record: PersonRecord, now_s: float) -> PersonRecord:
                         record.candidate_count + 1, first)
 
 
-def keep_recent_asks(ask_times_s, now_s: float, horizon_s: float, keep_last: int) -> tuple:
-    """The asks inside the horizon, and always the newest `keep_last` of them in any case.
+def keep_recent_asks(ask_times_s: Iterable[float], now_s: float, horizon_s: float,
+                     keep_last: int) -> tuple[float, ...]:
+    """Return the asks inside the horizon, and always the newest `keep_last` of them in any case.
 
     Pruning by time alone lets one decision at a clock far ahead (a bad /clock, a wrong system
     time) drop every real ask; when the clock came back the caps would count from zero. The
@@ -129,30 +130,39 @@ def keep_recent_asks(ask_times_s, now_s: float, horizon_s: float, keep_last: int
 
 
 def ask_history_horizon_s(model: SiteModel) -> float:
-    """Asks this recent are all remembered: a day (the daily cap) or ten ask-memory
-    half-lives if longer (the ask load; an older ask adds less than 2^-10)."""
+    """Asks this recent are all remembered.
+
+    a day (the daily cap) or ten ask-memory half-lives if longer (the ask load; an older ask adds
+    less than 2^-10).
+    """
     return max(DAY_S, 10.0 * model.ask_memory_half_life_s)
 
 
 def ask_retention_s(model: SiteModel) -> float:
-    """How long after a person's latest ask their record (or a stored ask history) must be
-    kept for every hard limit to hold: the ask history horizon, or the longest re-ask
-    interval allowed (MAX_REASK_INTERVAL_S, 30 days) if longer. Whoever forgets records
-    or ask histories (eviction, a store, a session) keeps them at least this long."""
+    """Return how long a record must be kept after a person's latest ask.
+
+    How long after a person's latest ask their record (or a stored ask history) must be kept for
+    every hard limit to hold: the ask history horizon, or the longest re-ask interval allowed
+    (MAX_REASK_INTERVAL_S, 30 days) if longer. Whoever forgets records or ask histories (eviction,
+    a store, a session) keeps them at least this long.
+    """
     return max(ask_history_horizon_s(model), MAX_REASK_INTERVAL_S)
 
 
 def note_ask(record: PersonRecord, now_s: float, model: SiteModel) -> PersonRecord:
-    """Remember an ask. Kept: every ask within `ask_history_horizon_s` (all that the daily
-    cap and the ask load count) and, of the older ones, the latest while it is within
-    MAX_REASK_INTERVAL_S; at most MAX_ASKS_CAP in all.
+    """Remember an ask.
+
+    Kept: every ask within `ask_history_horizon_s` (all that the daily cap and the ask load count)
+    and, of the older ones, the latest while it is within MAX_REASK_INTERVAL_S; at most
+    MAX_ASKS_CAP in all.
 
     The re-ask interval needs only the latest ask, which always stays: it is this ask or one
     stamped later (a clock that jumped back, an ask noted late), which pruning by age keeps
     as "in the future". The latest older ask stays too, so that taking one ask back (it
     could not be made) still leaves the one before it. Any allowed interval is honoured
     without keeping a month of asks in every decision document (which carries each
-    candidate's remembered asks); how long a record must be kept is `ask_retention_s`."""
+    candidate's remembered asks); how long a record must be kept is `ask_retention_s`.
+    """
     horizon = ask_history_horizon_s(model)
     kept = [t for t in record.ask_times_s if now_s - t < horizon]
     older = [t for t in record.ask_times_s if not now_s - t < horizon]

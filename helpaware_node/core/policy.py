@@ -16,13 +16,14 @@ from __future__ import annotations
 
 import enum
 import math
-from dataclasses import dataclass, field
-from typing import Callable, Optional, Sequence
+from dataclasses import dataclass
+from typing import Any, Callable, Optional, Sequence, Union
 
 import numpy as np
+from numpy.typing import ArrayLike, NDArray
 
 from .belief import Belief, declined_moments
-from .context import ask_load, context_factor
+from .context import context_factor
 from .lasting import lasting_cost
 from .model import CoreInputError, DecisionConfig, SiteModel, check_range, params_hash
 from .person import DAY_S, PersonRecord, belief_at
@@ -99,7 +100,7 @@ def candidate_from_record(person_id: str, record: PersonRecord, now_s: float, mo
                           distance_m: float, observed_at_s: float,
                           busyness: Optional[float] = None, activity: str = "",
                           opted_out: bool = False) -> Candidate:
-    """The one way node, simulator and replay turn a remembered person into a candidate."""
+    """Return the one way node, simulator and replay turn a remembered person into a candidate."""
     return Candidate(person_id=person_id, distance_m=distance_m, observed_at_s=observed_at_s,
                      belief=belief_at(record, now_s, model), busyness=busyness,
                      activity=activity, ask_times_s=record.ask_times_s,
@@ -153,9 +154,11 @@ class Decision:
             return None
         return self.evaluation.candidates[self.person_index].person_id
 
-    def rationale(self) -> list[dict]:
-        """Per candidate: belief, context, A, VOI, N, lasting cost, Q, or the exclusion that
-        ruled them out."""
+    def rationale(self) -> list[dict[str, Any]]:
+        """Per candidate: belief, context, A, VOI, N, lasting cost, Q.
+
+        Or the exclusion that ruled them out.
+        """
         ev = self.evaluation
         # one tolist() per array (plain floats, in one pass) instead of a float() per entry
         columns = zip(ev.a.tolist(), ev.b.tolist(), ev.mean.tolist(), ev.busyness.tolist(),
@@ -200,14 +203,22 @@ def _limits(cand: Candidate, busyness: float, now_s: float, config: DecisionConf
     return None
 
 
-def ask_advantage(p, continue_cost_s, help_time_s, ask_time_s, interruption_s):
-    """A = p (C - t_help) - (1 - p) t_ask - I."""
+Floats = NDArray[np.float64]
+Num = Union[float, Floats]    # a value per candidate, or one for all
+
+
+def ask_advantage(p: Floats, continue_cost_s: Num, help_time_s: Num, ask_time_s: float,
+                  interruption_s: Num) -> Floats:
+    """Return a = p (C - t_help) - (1 - p) t_ask - I."""
     return p * (continue_cost_s - help_time_s) - (1.0 - p) * ask_time_s - interruption_s
 
 
-def typical_terms(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
-    """(alpha, beta, gamma) of the advantage at a typical future request with ask load L:
-    alpha e^(-k_load L) - beta - gamma L, at typical busyness (DESIGN.md section 4)."""
+def typical_terms(mean: ArrayLike, model: SiteModel, config: DecisionConfig,
+                  help_time_s: float) -> tuple[Floats, float, float]:
+    """(alpha, beta, gamma) of the advantage at a typical future request with ask load L.
+
+    alpha e^(-k_load L) - beta - gamma L, at typical busyness (DESIGN.md section 4).
+    """
     cbar = math.exp(-model.k_busy * config.typical_busyness)
     ibar = config.interruption_weight_s * (1.0 + config.busy_cost * config.typical_busyness)
     gain = cbar * (config.typical_continue_cost_s - help_time_s + config.ask_time_s)
@@ -215,13 +226,15 @@ def typical_terms(mean, model: SiteModel, config: DecisionConfig, help_time_s: f
             config.interruption_weight_s * config.repeat_cost)
 
 
-def typical_gain(mean, model: SiteModel, config: DecisionConfig, help_time_s: float):
+def typical_gain(mean: ArrayLike, model: SiteModel, config: DecisionConfig,
+                 help_time_s: float) -> Floats:
     """U(m): advantage of the best choice at a typical future request (never below 0)."""
     alpha, beta, _ = typical_terms(mean, model, config, help_time_s)
     return np.maximum(0.0, alpha - beta)
 
 
-def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_time_s: float):
+def information_value(a: ArrayLike, b: ArrayLike, c: Floats, model: SiteModel,
+                      config: DecisionConfig, help_time_s: float) -> Floats:
     """VOI = p U(m_helped) + (1 - p) U(m_declined) - U(m) with the updates the answer causes."""
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
@@ -229,33 +242,42 @@ def information_value(a, b, c, model: SiteModel, config: DecisionConfig, help_ti
     p = c * m
     m_helped = (a + 1.0) / (a + b + 1.0)
     m_declined, _ = declined_moments(a, b, c)
-    u = lambda x: typical_gain(x, model, config, help_time_s)  # noqa: E731
-    voi = p * u(m_helped) + (1.0 - p) * u(m_declined) - u(m)
+
+    def u(x: Floats) -> Floats:
+        return typical_gain(x, model, config, help_time_s)
+
+    voi: Floats = p * u(m_helped) + (1.0 - p) * u(m_declined) - u(m)
     # U is convex and the mean a martingale, so VOI >= 0; clip only rounding noise
     return np.maximum(voi, 0.0)
 
 
-def encounter_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """How often this person is a candidate at a need: the Gamma-Poisson posterior mean
-    (prior_count + count) / (window + time since first seen), prior_count =
-    prior_candidate_rate_per_day * window / 1 day, window = prior_rate_window_s.
+def encounter_rate_per_s(counts: ArrayLike, first_seen_s: ArrayLike, now_s: float,
+                         config: DecisionConfig) -> Floats:
+    """How often this person is a candidate at a need.
+
+    The Gamma-Poisson posterior mean (prior_count + count) / (window + time since first seen),
+    prior_count = prior_candidate_rate_per_day * window / 1 day, window = prior_rate_window_s.
 
     `count` counts the needs before this one where the person was a candidate, the first
     included: the first encounter is how they entered the record, and this need (they are
     here now) is the first one after it, so `count` is the number of encounters seen since
-    first_seen_s, the exposure that Gamma-Poisson conjugacy wants (docs/decision.md)."""
+    first_seen_s, the exposure that Gamma-Poisson conjugacy wants (docs/decision.md).
+    """
     window = config.prior_rate_window_s
     prior_count = config.prior_candidate_rate_per_day * window / DAY_S
     span = np.maximum(now_s - np.asarray(first_seen_s, dtype=float), 0.0)
     return (prior_count + np.asarray(counts, dtype=float)) / (window + span)
 
 
-def future_ask_rate_per_s(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """The rate of later requests where this person's answer or load can matter: the
-    encounter rate, at most the robot's own max_asks_per_hour. Both the value of learning and
-    the lasting cost are realised only at later asks, and the robot asks nobody more often than
-    its hourly cap, so a person in view at every need weighs no more than that (without the
-    cap, N and the lasting cost of such a person grow with the need rate without bound)."""
+def future_ask_rate_per_s(counts: ArrayLike, first_seen_s: ArrayLike, now_s: float,
+                          config: DecisionConfig) -> Floats:
+    """Return the rate of later requests where this person's answer or load can matter.
+
+    The encounter rate, at most the robot's own max_asks_per_hour. Both the value of learning and
+    the lasting cost are realised only at later asks, and the robot asks nobody more often than its
+    hourly cap, so a person in view at every need weighs no more than that (without the cap, N and
+    the lasting cost of such a person grow with the need rate without bound).
+    """
     cap_per_s = config.max_asks_per_hour / 3600.0
     return np.minimum(encounter_rate_per_s(counts, first_seen_s, now_s, config), cap_per_s)
 
@@ -266,10 +288,15 @@ def discounted_horizon_s(config: DecisionConfig) -> float:
     return tau * -math.expm1(-config.lookahead_horizon_s / tau)
 
 
-def future_requests(counts, first_seen_s, now_s: float, config: DecisionConfig):
-    """N: expected discounted future requests with this person a candidate (the rate, capped
-    at the robot's hourly ask cap, times the discounted length of the look-ahead horizon)."""
-    return future_ask_rate_per_s(counts, first_seen_s, now_s, config) * discounted_horizon_s(config)
+def future_requests(counts: ArrayLike, first_seen_s: ArrayLike, now_s: float,
+                    config: DecisionConfig) -> Floats:
+    """Return N, the expected discounted future requests with this person a candidate.
+
+    N: expected discounted future requests with this person a candidate (the rate, capped at the
+    robot's hourly ask cap, times the discounted length of the look-ahead horizon).
+    """
+    return future_ask_rate_per_s(counts, first_seen_s, now_s,
+                                 config) * discounted_horizon_s(config)
 
 
 def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
@@ -340,9 +367,10 @@ Chooser = Callable[[Evaluation], Optional[int]]
 def conclude(ev: Evaluation, index: Optional[int], policy: str = "lookahead") -> Decision:
     """Wrap a chooser's pick into a Decision with the reason for the action."""
     if index is not None:
-        if ev.exclusions[index] is not None:  # a chooser must never override a hard limit
+        excluded = ev.exclusions[index]
+        if excluded is not None:  # a chooser must never override a hard limit
             raise CoreInputError(f"policy {policy} picked an excluded candidate "
-                                 f"({ev.exclusions[index].value})")
+                                 f"({excluded.value})")
         return Decision(ev, "ask", index, "best_score_positive", policy)
     if not ev.candidates:
         why = "no_candidates"
@@ -356,6 +384,6 @@ def conclude(ev: Evaluation, index: Optional[int], policy: str = "lookahead") ->
 def decide(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
            robot_ask_times_s: Sequence[float], model: SiteModel, config: DecisionConfig,
            chooser: Chooser = choose_lookahead, policy: str = "lookahead") -> Decision:
-    """The one decision code path of node, simulator and replay."""
+    """Return the one decision code path of node, simulator and replay."""
     ev = evaluate(need, candidates, now_s, robot_ask_times_s, model, config)
     return conclude(ev, chooser(ev), policy)

@@ -26,8 +26,11 @@ def _count(n: int, one: str, many: str) -> str:
 
 
 def _quoted(text: str, limit: int = _TEXT_CHARS) -> str:
-    """repr of the start of `text`; control characters and lone surrogates come out escaped
-    (repr never fails on a str), shortened until the escapes fit too."""
+    """Return the repr of the start of `text`.
+
+    Control characters and lone surrogates come out escaped (repr never fails on a str), shortened
+    until the escapes fit too.
+    """
     n = min(len(text), limit)
     shown = repr(text[:n])
     while len(shown) > limit + 2 and n > 1:
@@ -39,7 +42,10 @@ def _quoted(text: str, limit: int = _TEXT_CHARS) -> str:
 
 
 def short_number(value: Any) -> str:
-    """A number as text: repr for floats and ordinary integers, the size of a huge integer."""
+    """Return a number as text.
+
+    Repr for floats and ordinary integers, the size of a huge integer.
+    """
     if isinstance(value, bool):
         return repr(bool(value))
     if isinstance(value, int):
@@ -76,12 +82,15 @@ def describe(value: Any) -> str:
 
 
 def quoted(value: Any) -> str:
-    """A value that should have been text: its quoted start if it is a string, else `describe`."""
+    """Return a value that should have been text.
+
+    Its quoted start if it is a string, else `describe`.
+    """
     return _quoted(value) if isinstance(value, str) else describe(value)
 
 
 def short_name(name: Any) -> str:
-    """A field name or label as given by a caller (it may carry an id), bounded."""
+    """Return a field name or label as given by a caller (it may carry an id), bounded."""
     if not isinstance(name, str):
         return describe(name)
     if len(name) <= _NAME_CHARS and name.isprintable():

@@ -26,13 +26,18 @@ STAFF = [Staff("nurse-ward3-a", 0.85), Staff("porter-b", 0.6), Staff("doctor-c",
 
 # (time s, request kind, urgency, [(person, busyness, distance m, activity)])
 SCRIPT = [
-    (60.0, "door", 0.0, [("nurse-ward3-a", 0.2, 2.5, "charting"), ("doctor-c", 0.6, 4.0, "walking_fast")]),
-    (420.0, "elevator", 0.3, [("porter-b", 0.1, 3.0, "idle"), ("nurse-ward3-a", 0.3, 6.0, "charting")]),
-    (900.0, "door", 0.0, [("nurse-ward3-a", 0.1, 1.5, "idle"), ("nurse-ward5-d", 0.95, 2.0, "with_patient")]),
+    (60.0, "door", 0.0,
+     [("nurse-ward3-a", 0.2, 2.5, "charting"), ("doctor-c", 0.6, 4.0, "walking_fast")]),
+    (420.0, "elevator", 0.3,
+     [("porter-b", 0.1, 3.0, "idle"), ("nurse-ward3-a", 0.3, 6.0, "charting")]),
+    (900.0, "door", 0.0,
+     [("nurse-ward3-a", 0.1, 1.5, "idle"), ("nurse-ward5-d", 0.95, 2.0, "with_patient")]),
     (1500.0, "handover", 0.5, [("doctor-c", 0.2, 2.0, "idle"), ("porter-b", 0.4, 5.0, "on_call")]),
-    (2400.0, "door", 0.0, [("nurse-ward3-a", 0.2, 2.0, "charting"), ("porter-b", 0.2, 2.5, "idle")]),
+    (2400.0, "door", 0.0,
+     [("nurse-ward3-a", 0.2, 2.0, "charting"), ("porter-b", 0.2, 2.5, "idle")]),
     (3300.0, "elevator", 0.0, [("doctor-c", 0.3, 1.0, "charting")]),
-    (4200.0, "door", 0.0, [("nurse-ward5-d", 0.1, 2.0, "idle"), ("nurse-ward3-a", 0.1, 3.0, "idle")]),
+    (4200.0, "door", 0.0,
+     [("nurse-ward5-d", 0.1, 2.0, "idle"), ("nurse-ward3-a", 0.1, 3.0, "idle")]),
 ]
 
 
@@ -56,15 +61,19 @@ def run(seed: int = 7, out=print) -> list[dict]:
             records[pid] = note_candidate(records[pid], now)
         rows = []
         for r in decision.rationale():
-            rows.append([r["person_id"], fmt(r["mean"]), f"{r['a']:.2f}/{r['b']:.2f}", fmt(r["busyness"]),
+            rows.append([r["person_id"], fmt(r["mean"]), f"{r['a']:.2f}/{r['b']:.2f}",
+                         fmt(r["busyness"]),
                          fmt(r["c"]), fmt(r["p"]), fmt(r["advantage_s"], 1), fmt(r["voi_s"], 2),
                          fmt(r["future_requests"], 1), fmt(r["score_s"], 1), r["excluded"] or "-"])
         out(f"[t={now:6.0f} s] {need.request_id} {kind} (urgency {urgency:.1f}): "
             f"continuing would cost about {decision.evaluation.continue_cost_s:.0f} s")
-        out(render_table(["person", "mean", "a/b", "busy", "c", "p", "A s", "VOI s", "N", "Q s", "excluded"],
+        out(render_table(["person", "mean", "a/b", "busy", "c", "p", "A s", "VOI s", "N", "Q s",
+                          "excluded"],
                          rows, [False] + [True] * 9 + [False]))
         result = None
         if decision.action == "ask":
+            # an ask names its person
+            assert decision.person_id is not None and decision.person_index is not None
             pid = decision.person_id
             i = decision.person_index
             ev = decision.evaluation

@@ -46,6 +46,7 @@ def start_node(namespace: str, store_path: str) -> subprocess.Popen:
 
 def wait_configured(node: subprocess.Popen, timeout_s: float = 30.0) -> bool:
     deadline = time.monotonic() + timeout_s
+    assert node.stderr is not None   # started with stderr=PIPE
     while time.monotonic() < deadline:
         line = node.stderr.readline()
         if "configured" in line:
@@ -56,7 +57,7 @@ def wait_configured(node: subprocess.Popen, timeout_s: float = 30.0) -> bool:
 
 
 def run_night_shift(args: argparse.Namespace) -> int:
-    """The demo's steps, in order."""
+    """Return the demo's steps, in order."""
     started = time.monotonic()
     print("helpaware demo: invented hospital night shift (a supply robot, 40 staff), sped up")
     out_dir = record_and_review.OUT_DIR
@@ -66,7 +67,8 @@ def run_night_shift(args: argparse.Namespace) -> int:
     try:
         if not wait_configured(node):
             print("demo: the decision node did not start:")
-            print(node.stderr.read() if node.poll() is not None else "(no output)")
+            print(node.stderr.read() if node.stderr and node.poll() is not None
+                  else "(no output)")
             return 1
         print(f"node up in {args.namespace} (site parameters config/hospital_night.yaml)\n")
         recorder = record_and_review.start_recorder(

@@ -23,6 +23,7 @@ import random
 import sys
 import time
 from dataclasses import dataclass
+from typing import Any
 
 ACTIVITIES = {  # activity -> (busyness range, share of sightings)
     "idle": ((0.0, 0.15), 0.20),
@@ -81,8 +82,11 @@ def clock_text(t_s: float) -> str:
 
 
 def answer(rng: random.Random, person: Staff, busyness: float, t_s: float) -> str:
-    """Invented ground truth: helps with w exp(-(k_busy x + k_load f)), f the person's earlier
-    asks decayed with TRUE_HALF_LIFE_S; some asks go unnoticed."""
+    """Invented ground truth.
+
+    Helps with w exp(-(k_busy x + k_load f)), f the person's earlier asks decayed with
+    TRUE_HALF_LIFE_S; some asks go unnoticed.
+    """
     if rng.random() < 0.04:
         return "could_not_ask"
     load = sum(2.0 ** (-(t_s - a) / TRUE_HALF_LIFE_S) for a in person.ask_times_s)
@@ -94,7 +98,7 @@ def answer(rng: random.Random, person: Staff, busyness: float, t_s: float) -> st
 
 
 def constants_line(params: dict) -> str:
-    """The site constants a decision was made with, and where they came from."""
+    """Return the site constants a decision was made with, and where they came from."""
     m = params.get("model", {})
     src = params.get("source", {})
     where = (f"learned revision {src.get('revision')}" if src.get("site_constants") == "learned"
@@ -150,8 +154,11 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         clock_pub.publish(msg)
 
     def wait_decision(rid: str, t_s: float) -> bool:
-        """Spin until the need is decided, publishing the held clock as a paused simulator
-        does (a reading lost before the node's /clock matched must not leave it at zero)."""
+        """Spin until the need is decided.
+
+        Publishing the held clock as a paused simulator does (a reading lost before the node's
+        /clock matched must not leave it at zero).
+        """
         end = time.monotonic() + DECISION_WAIT_S
         while time.monotonic() < end:
             set_clock(t_s)
@@ -182,7 +189,8 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         t += rng.uniform(120.0, 600.0)                       # 2 to 10 minutes between needs
         ward = rng.randint(1, 6)
         local = [s for s in staff if s.ward == ward] + rng.sample(staff, 4)
-        view, seen = [], set()
+        view: list[dict[str, Any]] = []
+        seen = set()
         for s in rng.sample(local, min(len(local), rng.randint(1, 5))):
             if s.person_id in seen:
                 continue
@@ -227,7 +235,7 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
             who.helped += result == "helped"
             set_clock(t + 20.0)
             outcome_pub.publish(String(data=wire.outcome_document(rid, who.person_id, result,
-                                                                   stamp_s=t + 20.0)))
+                                                                  stamp_s=t + 20.0)))
             spin_for(0.05)
             text = f"ask {who.name} ({who.role}, p={row['p']:.2f})"
         else:
@@ -242,14 +250,16 @@ def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float =
         f"{counts['continue']}; helped {counts['helped']}, declined {counts['declined']}, "
         f"no response {counts['no_response']}, could not ask {counts['could_not_ask']}")
     if limits:
-        out("limits that kept people out: " + ", ".join(f"{k} {v}" for k, v in sorted(limits.items())))
+        out("limits that kept people out: "
+            + ", ".join(f"{k} {v}" for k, v in sorted(limits.items())))
     out("")
     out(f"{'staff':10}  {'role':7}  {'asked':5}  {'helped':6}  {'invented w':10}  learned mean")
     for s in sorted(staff, key=lambda s: -s.asked)[:10]:
         learned = "-" if math.isnan(s.learned_mean) else f"{s.learned_mean:.2f}"
-        out(f"{s.name:10}  {s.role:7}  {s.asked:5}  {s.helped:6}  {s.willingness:10.2f}  {learned}")
+        out(f"{s.name:10}  {s.role:7}  {s.asked:5}  {s.helped:6}  {s.willingness:10.2f}  "
+            f"{learned}")
     out("(learned mean: the node's belief at the last decision that person was part of)")
-    if last_params:
+    if last_params and first_params:
         out("")
         out(f"site constants at the start: {constants_line(first_params)}")
         out(f"site constants at the end:   {constants_line(last_params)}")

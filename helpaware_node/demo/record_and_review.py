@@ -33,6 +33,7 @@ def start_recorder(namespace: str, site_key_file: str, out_dir: str = OUT_DIR,
         print(f"demo: no site key at {site_key_file}; recording with raw ids")
         cmd += ["--keep-raw-ids"]
     proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    assert proc.stderr is not None
     deadline = time.monotonic() + timeout_s
     while time.monotonic() < deadline:
         line = proc.stderr.readline()

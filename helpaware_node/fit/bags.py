@@ -1,9 +1,12 @@
-"""Outcomes from bags: each outcome joined with the decision that asked (same request id and
-person), whose candidate row carries the busyness and ask load in force at the ask, and the
-person's ask times the robot remembered then (so the half-life can be estimated: the load is
-recomputed from them under each candidate half-life).  Those are the asks the robot counted
-(its own, and peers' while count_peer_asks was on) within its ask-history horizon.
-Uses the review's bag loader (review/data.py over the bag package)."""
+"""Outcomes from bags, each joined with the decision that asked.
+
+Outcomes from bags: each outcome joined with the decision that asked (same request id and person),
+whose candidate row carries the busyness and ask load in force at the ask, and the person's ask
+times the robot remembered then (so the half-life can be estimated: the load is recomputed from
+them under each candidate half-life).  Those are the asks the robot counted (its own, and peers'
+while count_peer_asks was on) within its ask-history horizon. Uses the review's bag loader
+(review/data.py over the bag package).
+"""
 from __future__ import annotations
 
 from .data import RESULT_CODE, AskAges, FitInputError, OutcomeData, from_arrays
@@ -25,8 +28,9 @@ def read_outcome_bags(paths) -> OutcomeData:
         asked = {}
         for d in bag.decisions:
             if d.action == "ask" and d.person_key:
-                history = next((c.get("ask_times_s", []) for c in d.document.get("candidates", [])
-                                if c.get("person_id") == d.person_key), [])
+                rows = d.document.get("candidates", [])
+                history: list[float] = next((c.get("ask_times_s", []) for c in rows
+                                             if c.get("person_id") == d.person_key), [])
                 stamp = float(d.document.get("stamp_s", d.time_s))
                 for cand in d.candidates:
                     if cand.get("person_id") == d.person_key:

@@ -48,11 +48,13 @@ CAUSES = ("not_finite", "edge", "flat", "iteration_limit", "stalled", "drift", "
 
 @dataclass(frozen=True)
 class Coordinate:
-    """One optimiser coordinate and its limits.  `low`/`high`: at or beyond this value the
-    coordinate counts as at that limit (for a box bound, the bound; for a probability on the
-    logit scale, where the optimiser never reaches the infinite bound, a value where the
-    probability is within 1e-6 of 0 or 1).  `*_natural`: the limit is a value the model allows
-    (a maximum there is an answer) rather than the edge of the search range."""
+    """One optimiser coordinate and its limits.
+
+    `low`/`high`: at or beyond this value the coordinate counts as at that limit (for a box bound,
+    the bound; for a probability on the logit scale, where the optimiser never reaches the infinite
+    bound, a value where the probability is within 1e-6 of 0 or 1).  `*_natural`: the limit is a
+    value the model allows (a maximum there is an answer) rather than the edge of the search range.
+    """
 
     name: str
     low: float = -math.inf
@@ -86,7 +88,7 @@ class ConvergenceVerdict:
     optimiser_status: str = ""         # the optimiser's own message, kept for the record only
 
     def line(self) -> str:
-        """The verdict as a tool prints it: 'converged: ...' or 'NOT converged: ...'."""
+        """Return the verdict as a tool prints it: 'converged: ...' or 'NOT converged: ...'."""
         return f"{'converged' if self.converged else 'NOT converged'}: {self.reason}"
 
     def to_dict(self) -> dict:
@@ -108,11 +110,12 @@ def assess_convergence(coords: Sequence[Coordinate], z: np.ndarray, loglik: floa
                        gradient: np.ndarray, hessian: np.ndarray,
                        loglik_history: Sequence[float], max_iter: int,
                        optimiser_status: str = "") -> ConvergenceVerdict:
-    """The verdict at the solution z of a maximisation.
+    """Return the verdict at the solution z of a maximisation.
 
     gradient, hessian: of the log-likelihood (or any objective being maximised) in z, over
     `coords` (the Hessian's rows of coordinates held at a limit are not used);
-    loglik_history: the objective at the start and after each iteration.  Pure: no I/O."""
+    loglik_history: the objective at the start and after each iteration.  Pure: no I/O.
+    """
     z = np.asarray(z, float)
     g = np.asarray(gradient, float)
     hess = np.asarray(hessian, float)
@@ -129,7 +132,8 @@ def assess_convergence(coords: Sequence[Coordinate], z: np.ndarray, loglik: floa
         return verdict(False, "the log-likelihood or its gradient is not finite at the solution "
                        f"(log-likelihood {loglik!r}): check the data for impossible rows",
                        "not_finite")
-    held, free = [], []
+    held: list[int] = []
+    free: list[int] = []
     for i, c in enumerate(coords):
         at_low, at_high = z[i] <= c.low, z[i] >= c.high
         outward = (at_low and g[i] <= 0.0) or (at_high and g[i] >= 0.0)
@@ -206,9 +210,12 @@ def _tail(last: float | None) -> str:
 
 
 class IterationLog:
-    """Wraps a minimisation objective fun(z) -> (value, gradient) so that the log-likelihood
-    (-value) at the start and after each accepted iteration is kept, without extra
-    evaluations when the optimiser's last evaluation was the accepted point."""
+    """A minimisation objective that keeps the log-likelihood of each iteration.
+
+    Wraps a minimisation objective fun(z) -> (value, gradient) so that the log-likelihood (-value)
+    at the start and after each accepted iteration is kept, without extra evaluations when the
+    optimiser's last evaluation was the accepted point.
+    """
 
     def __init__(self, fun: Callable[[np.ndarray], tuple[float, np.ndarray]],
                  on_iteration: Callable[[float], None] | None = None):
@@ -235,14 +242,17 @@ class IterationLog:
 
 
 def hessian_by_differences(grad: Callable[[np.ndarray], np.ndarray], z: np.ndarray,
-                           idx: Sequence[int], h: float = 1e-4,
+                           idx: Sequence[int] | np.ndarray, h: float = 1e-4,
                            lower: np.ndarray | None = None,
                            upper: np.ndarray | None = None, central: bool = True,
                            grad_at_z: np.ndarray | None = None) -> np.ndarray:
-    """Hessian (full size; rows and columns outside `idx` left at 0) from differences of the
-    gradient: central (error O(h^2), for standard errors) where z +/- h stays inside
-    [lower, upper] (where the function is defined), else one-sided into the interior, which
-    costs half as many gradients (error O(h), ample for a verdict) when central is False."""
+    """Return the Hessian from differences of the gradient.
+
+    Hessian (full size; rows and columns outside `idx` left at 0) from differences of the gradient:
+    central (error O(h^2), for standard errors) where z +/- h stays inside [lower, upper] (where
+    the function is defined), else one-sided into the interior, which costs half as many gradients
+    (error O(h), ample for a verdict) when central is False.
+    """
     k = z.size
     lo = np.full(k, -np.inf) if lower is None else np.asarray(lower, float)
     hi = np.full(k, np.inf) if upper is None else np.asarray(upper, float)

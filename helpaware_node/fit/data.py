@@ -16,9 +16,10 @@ import contextlib
 import csv
 import math
 from dataclasses import dataclass
-from typing import Iterable, Sequence
+from typing import Any, Iterable, Sequence
 
 import numpy as np
+from numpy.typing import ArrayLike
 
 from ..core.context import ask_load as core_ask_load
 from ..core.model import MAX_ASKS_CAP, CoreInputError
@@ -46,7 +47,8 @@ class AskAges:
 
     The ask load of row j under half-life h is  sum over its pairs of 2^(-age/h)  (the core's
     `ask_load`); sorted by age, the pairs that matter for a given h (age below 40 h) are a
-    prefix, so one half-life costs one vectorised pass over that prefix."""
+    prefix, so one half-life costs one vectorised pass over that prefix.
+    """
 
     row: np.ndarray           # int32: outcome row the ask came before
     age_s: np.ndarray         # float: outcome time minus ask time, > 0, ascending
@@ -62,14 +64,20 @@ class AskAges:
 
     @classmethod
     def of(cls, row: np.ndarray, age_s: np.ndarray) -> "AskAges":
-        """Pairs as given, sorted by age; ages clipped at 0 (an ask stamped after the outcome,
-        a clock that jumped, counts as just made, as in the core)."""
+        """Pairs as given, sorted by age.
+
+        Ages clipped at 0 (an ask stamped after the outcome, a clock that jumped, counts as just
+        made, as in the core).
+        """
         age = np.maximum(np.asarray(age_s, float), 0.0)
         order = np.argsort(age, kind="stable")
         return cls(np.asarray(row, np.int32)[order], age[order])
 
     def reindexed(self, new_row_of_old: np.ndarray, keep: np.ndarray | None = None) -> "AskAges":
-        """The same pairs for rows renumbered (new_row_of_old[old]); `keep`: old rows kept."""
+        """Return the same pairs for rows renumbered (new_row_of_old[old]).
+
+        `keep`: old rows kept.
+        """
         mask = np.ones(self.row.size, bool) if keep is None else keep[self.row]
         return AskAges(new_row_of_old[self.row[mask]].astype(np.int32), self.age_s[mask])
 
@@ -89,9 +97,12 @@ def ask_ages_from_times(outcome_person: np.ndarray, outcome_time_s: np.ndarray,
                         ask_person: np.ndarray, ask_time_s: np.ndarray,
                         max_prior: int = MAX_PRIOR_ASKS,
                         max_age_s: float = MAX_PRIOR_ASK_AGE_S) -> AskAges:
-    """Pairs (outcome, age) for every ask of the same person strictly before each outcome (the
-    ask the outcome answers shares its time and is not counted), the newest `max_prior` and
-    none older than `max_age_s`. Vectorised: one sort of outcomes and asks together."""
+    """Return pairs (outcome, age) for every earlier ask of the same person.
+
+    Pairs (outcome, age) for every ask of the same person strictly before each outcome (the ask the
+    outcome answers shares its time and is not counted), the newest `max_prior` and none older than
+    `max_age_s`. Vectorised: one sort of outcomes and asks together.
+    """
     op, ot = np.asarray(outcome_person, np.int64), np.asarray(outcome_time_s, float)
     ap, at = np.asarray(ask_person, np.int64), np.asarray(ask_time_s, float)
     n_people = int(max(op.max(initial=-1), ap.max(initial=-1))) + 1
@@ -145,12 +156,14 @@ class OutcomeData:
                 "no_response": int(np.sum(self.result == NO_RESPONSE))}
 
     def weighted_counts(self) -> tuple[float, float, float]:
-        """(helped, declined, no response), each row counted with its person's weight."""
+        """Return (helped, declined, no response), each row counted with its person's weight."""
         w = np.ones(self.n_outcomes) if self.weight is None else self.weight[self.person]
-        return tuple(float(np.sum(w[self.result == r])) for r in (HELPED, DECLINED, NO_RESPONSE))
+        helped, declined, no_response = (float(np.sum(w[self.result == r]))
+                                         for r in (HELPED, DECLINED, NO_RESPONSE))
+        return helped, declined, no_response
 
     def subset_people(self, people: np.ndarray) -> "OutcomeData":
-        """The outcomes of the given person indices (renumbered 0..len-1)."""
+        """Return the outcomes of the given person indices (renumbered 0..len-1)."""
         people = np.unique(np.asarray(people, dtype=int))
         mask = np.isin(self.person, people)
         remap = np.full(self.n_people, -1, dtype=int)
@@ -164,12 +177,14 @@ class OutcomeData:
                            self.sources, asks, weight)
 
 
-def from_arrays(person: Sequence, busyness: Sequence, load: Sequence, result: Sequence,
+def from_arrays(person: Iterable[Any], busyness: ArrayLike, load: ArrayLike, result: ArrayLike,
                 person_keys: Sequence[str] | None = None, sources: Sequence[str] = (),
                 prior_asks: AskAges | None = None, weight: Sequence[float] | None = None
                 ) -> OutcomeData:
     """Build (and sort) a table from parallel arrays; `person` may be any hashable labels.
-    `prior_asks` rows and `weight` (per person key) refer to the order given."""
+
+    `prior_asks` rows and `weight` (per person key) refer to the order given.
+    """
     labels = list(person)
     if person_keys is None:
         person_keys = sorted({str(p) for p in labels})
@@ -214,7 +229,8 @@ class _Records:
 
     Comment ('#') and blank lines are skipped only between records, so a quoted field that
     holds line breaks (a request kind from a peer may) stays whole and the line numbers stay
-    right; the csv module reads the file itself, one line at a time."""
+    right; the csv module reads the file itself, one line at a time.
+    """
 
     def __init__(self, handle) -> None:
         self._handle = handle
@@ -239,8 +255,11 @@ class _Records:
 
 @contextlib.contextmanager
 def _long_fields():
-    """The csv module refuses a field past 131 072 characters; a store written before request
-    kinds were bounded may hold a longer one (fit never reads it). Raised for this read only."""
+    """Let the csv module read fields past 131 072 characters, for this read only.
+
+    The csv module refuses a longer field; a store written before request kinds were bounded
+    may hold one (fit never reads it).
+    """
     before = csv.field_size_limit()
     csv.field_size_limit(MAX_CSV_FIELD_CHARS)
     try:
@@ -251,8 +270,8 @@ def _long_fields():
 
 def _read_rows(path: str, records: "_Records", asks: list) -> list:
     """Outcome rows of one file; its ask rows (person_key, time_s) go to `asks`."""
-    records = iter(records)
-    first = next(records, None)
+    it = iter(records)
+    first = next(it, None)
     if first is None:
         raise FitInputError(f"{path}: no header line (expected columns "
                             f"{', '.join(REQUIRED_COLUMNS)}, ...)")
@@ -262,7 +281,7 @@ def _read_rows(path: str, records: "_Records", asks: list) -> list:
         raise FitInputError(f"{path}:{header_line}: missing column(s) {', '.join(missing)}")
     col = {h: i for i, h in enumerate(header)}
     rows = []
-    for line, fields in records:
+    for line, fields in it:
         if len(fields) != len(header):
             raise FitInputError(f"{path}:{line}: {len(fields)} fields, header has "
                                 f"{len(header)}")

@@ -157,8 +157,10 @@ class RandomInterceptLogit:
 
 
 def sequential_help_probability(beta, sigma, X, group, y, nodes: int = 40) -> np.ndarray:
-    """P(y_j = 1) for Bernoulli rows given only the same group's earlier rows (row order),
-    integrating u over its posterior with Gauss-Hermite nodes on the N(0, sigma^2) prior."""
+    """P(y_j = 1) for Bernoulli rows given only the same group's earlier rows (row order).
+
+    Integrating u over its posterior with Gauss-Hermite nodes on the N(0, sigma^2) prior.
+    """
     z, w = roots_hermite(nodes)
     u = math.sqrt(2.0) * sigma * z
     logw = np.log(w) - 0.5 * math.log(math.pi)

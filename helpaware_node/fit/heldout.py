@@ -82,7 +82,7 @@ def kfold(data: OutcomeData, folds: int = 5, seed: int = 0, notice_probability: 
         rows = np.flatnonzero(np.isin(data.person, test_people))   # same order as `test`
         site = fit_site(train, notice_probability=notice_probability, standard_errors=False)
         if not site.converged:
-            unconverged.append(f"fold {k + 1} site model: {site.verdict.reason}")
+            unconverged.append(f"fold {k + 1} site model: {site.reason}")
         lik = SiteLikelihood(test)
         node_seq = lik.sequential_help_probability(site.params)
         preds["ns"][rows] = node_seq

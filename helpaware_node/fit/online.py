@@ -96,9 +96,11 @@ class LearningSettings:
 
 @dataclass(frozen=True)
 class Refit:
-    accepted: bool                   # False: nothing changes (failed, not converged, too few outcomes, mode off)
+    # False: nothing changes (failed, not converged, too few outcomes, mode off)
+    accepted: bool
     reason: str                      # one line, names what happened
-    model: SiteModel                 # the constants in force after this refit (unchanged when not accepted)
+    # the constants in force after this refit (unchanged when not accepted)
+    model: SiteModel
     previous: SiteModel
     n_outcomes: int
     revision: int                    # increases with each accepted change
@@ -122,7 +124,8 @@ class Refit:
     def summary(self) -> str:
         """One line for the log: old -> new of each constant, number of outcomes."""
         if not self.accepted:
-            return f"site learning: refit on {self.n_outcomes} outcomes changed nothing: {self.reason}"
+            return (f"site learning: refit on {self.n_outcomes} outcomes changed nothing: "
+                    f"{self.reason}")
         moved = ", ".join(f"{n} {_g(a)} -> {_g(b)}" for n, a, b in self.changes()) or "no change"
         what = (f"revision {self.revision}" if self.applied else "proposal (not applied)")
         return (f"site learning: {what} from {self.n_outcomes} outcomes of {self.n_people} "
@@ -134,7 +137,7 @@ def _g(v: float) -> str:
 
 
 def overlay(file_model: SiteModel, constants: Mapping[str, float]) -> SiteModel:
-    """The file's model with the learned constants in force (the other fields untouched)."""
+    """Return the file's model with the learned constants in force (the other fields untouched)."""
     return replace(file_model, **{k: float(constants[k]) for k in LEARNED if k in constants})
 
 
@@ -143,10 +146,12 @@ def learned_values(model: SiteModel) -> dict[str, float]:
 
 
 def learning_data(outcomes: Sequence[StoredEvent], asks: Sequence[AskEvent]) -> OutcomeData:
-    """The events as a fit table, in one order whatever order they came in: people by key,
-    each person's outcomes by (time, event id); each row's ask load is recomputed from the
-    person's asks strictly before it (own and peers'), and the robot's recorded ask_load is
-    the load column (used only where the half-life is not fitted)."""
+    """Return the events as a fit table, in one order whatever order they came in.
+
+    People by key, each person's outcomes by (time, event id); each row's ask load is recomputed
+    from the person's asks strictly before it (own and peers'), and the robot's recorded ask_load
+    is the load column (used only where the half-life is not fitted).
+    """
     rows = sorted((e for e in outcomes if e.result is not Result.COULD_NOT_ASK),
                   key=lambda e: (e.person_key, float(e.time_s), e.event_id))
     if not rows:
@@ -174,8 +179,11 @@ def site_params(model: SiteModel, decline_aloud: float) -> "SiteParams":
 def refit_constants(data: OutcomeData, target: SiteModel, prior_weight: float,
                     ranges: Mapping[str, tuple[float, float]], max_iter: int = 300
                     ) -> tuple["SiteFit", float]:
-    """The penalised fit of the data shrunk towards `target` (pure; raises FitInputError).
-    Returns the fit and the tau of the pseudo-outcomes."""
+    """Fit the data shrunk towards `target` (pure; raises FitInputError).
+
+    The penalised fit of the data shrunk towards `target` (pure; raises FitInputError). Returns the
+    fit and the tau of the pseudo-outcomes.
+    """
     from .pseudo_outcomes import curvature_floor, pseudo_outcomes, reporting_share
     from .site_fit import fit_site
     tau = reporting_share(data)
@@ -192,8 +200,10 @@ def refit_constants(data: OutcomeData, target: SiteModel, prior_weight: float,
 
 @dataclass(frozen=True)
 class RefitJob:
-    """One refit as plain values: the learner's state when it was asked for. `run` is pure
-    (no I/O, no shared state), so it may run in another thread or process."""
+    """One refit as plain values: the learner's state when it was asked for.
+
+    `run` is pure (no I/O, no shared state), so it may run in another thread or process.
+    """
 
     settings: LearningSettings
     file_model: SiteModel
@@ -230,7 +240,8 @@ class RefitJob:
         except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
             return refused(f"refit failed: {type(exc).__name__}: {str(exc)[:120]}")
         if not fit.converged:
-            return refused(f"not converged: {fit.verdict.reason}", fit.verdict, data.n_people)
+            return refused(f"not converged: {fit.reason}", fit.verdict, data.n_people)
+        assert fit.verdict is not None   # converged: a verdict said so
         values = {}
         for k in LEARNED:
             v = getattr(fit.params, k)
@@ -256,7 +267,8 @@ class SiteLearner:
                  ranges: Optional[Mapping[str, tuple[float, float]]] = None,
                  resume: Optional[LearnedEntry] = None) -> None:
         self.settings = settings
-        self.ranges = {k: tuple(v) for k, v in (ranges or MODEL_RANGES).items() if k in LEARNED}
+        self.ranges = {k: (float(v[0]), float(v[1])) for k, v in (ranges or MODEL_RANGES).items()
+                       if k in LEARNED}
         for k, v in MODEL_RANGES.items():
             self.ranges.setdefault(k, v)
         self._lock = threading.Lock()
@@ -282,7 +294,10 @@ class SiteLearner:
     # -- what is in force
     @property
     def current(self) -> SiteModel:
-        """The constants in force: the file's, with the learned ones over them (mode apply)."""
+        """Return the constants in force.
+
+        The file's, with the learned ones over them (mode apply).
+        """
         if self.settings.mode != "apply" or not self.learned:
             return self.file_model
         return overlay(self.file_model, self.learned)
@@ -295,8 +310,11 @@ class SiteLearner:
         return "parameter_file", 0
 
     def set_file_model(self, model: SiteModel) -> None:
-        """The parameter values changed (a live `ros2 param set`): they are the new shrinkage
-        target; when a learned constant's value changed, refit at the next chance."""
+        """Take the changed parameter values (a live `ros2 param set`).
+
+        They are the new shrinkage target; when a learned constant's value changed, refit at the
+        next chance.
+        """
         with self._lock:
             if learned_values(model) != learned_values(self.file_model):
                 self._target_changed = True
@@ -308,8 +326,10 @@ class SiteLearner:
 
     # -- when
     def due(self, new_outcomes: int, now_s: float) -> bool:
-        """N new outcomes since the last refit, or T seconds with at least one new outcome,
-        or a changed target; never in mode off or with fewer outcomes than a fit needs."""
+        """N new outcomes since the last refit, or T seconds with at least one new outcome.
+
+        Or a changed target; never in mode off or with fewer outcomes than a fit needs.
+        """
         s = self.settings
         if s.mode == "off":
             return False
@@ -328,24 +348,30 @@ class SiteLearner:
 
     # -- the refit
     def job(self, now_s: float) -> "RefitJob":
-        """What a refit needs of this learner, as plain values (for another process)."""
+        """Return what a refit needs of this learner, as plain values (for another process)."""
         with self._lock:
             return RefitJob(self.settings, self.file_model, self.current, self.revision,
                             dict(self.ranges), now_s)
 
     def refit(self, outcomes: Sequence[StoredEvent], asks: Sequence[AskEvent],
               now_s: float, record: bool = True) -> Refit:
-        """The refit (no I/O). `record` True: its result is recorded here at once (revision,
-        constants in force, time, outcomes seen); False: the caller records it with
-        `record(refit)` later, e.g. on its executor after keeping it in a store."""
+        """Return the result of refitting (no I/O).
+
+        `record` True: its result is recorded here at once (revision, constants in force, time,
+        outcomes seen); False: the caller records it with `record(refit)` later, e.g. on its
+        executor after keeping it in a store.
+        """
         refit = self.job(now_s).run(outcomes, asks)
         if record:
             self.record(refit)
         return refit
 
     def record(self, refit: Refit) -> None:
-        """Take a refit's result: the attempt (time, outcomes seen) and, if applied, its
-        constants and revision as the ones in force."""
+        """Take a refit's result.
+
+        The attempt (time, outcomes seen) and, if applied, its constants and revision as the ones
+        in force.
+        """
         with self._lock:
             self.last = refit
             self.outcomes_seen = max(self.outcomes_seen, refit.n_outcomes)
@@ -359,7 +385,7 @@ class SiteLearner:
                 self.revision = refit.revision
 
     def entry(self, refit: Refit, robot_id: str = "", recorded_utc: str = "") -> LearnedEntry:
-        """The history row of an applied refit, for the store."""
+        """Return the history row of an applied refit, for the store."""
         constants = learned_values(refit.model)
         if refit.decline_aloud is not None:
             constants[NUISANCE] = refit.decline_aloud

@@ -29,13 +29,15 @@ def render_param_file(values: Mapping[str, float], comments: Iterable[str],
 
 
 def node_key(node_name: str) -> str:
-    """`/**/name` (this node name in any namespace), as config/default.yaml does; a name
-    that already starts with '/' is used as given."""
+    """`/**/name` (this node name in any namespace), as config/default.yaml does.
+
+    a name that already starts with '/' is used as given.
+    """
     return node_name if node_name.startswith("/") else f"/**/{node_name}"
 
 
 def read_param_file(path: str, node_name: str = DEFAULT_NODE_NAME) -> dict:
-    """The parameters of `node_name` in a file written by `write_param_file`."""
+    """Return the parameters of `node_name` in a file written by `write_param_file`."""
     doc = load_yaml_file(path, ValueError, "parameter file")
     try:
         return dict(doc[node_key(node_name)]["ros__parameters"])

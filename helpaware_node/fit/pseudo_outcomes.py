@@ -74,7 +74,7 @@ NEUTRAL_TAU = 0.5
 
 
 def reporting_share(data: OutcomeData) -> float:
-    """tau of the pseudo-outcomes: declines among the data's answers other than help."""
+    """Return tau of the pseudo-outcomes: declines among the data's answers other than help."""
     c = data.counts()
     other = c["declined"] + c["no_response"]
     if other == 0:
@@ -107,7 +107,12 @@ def pseudo_outcomes(target: SiteParams, weight: float) -> OutcomeData:
 
 class _Rows:
     def __init__(self) -> None:
-        self.person, self.x, self.load, self.result, self.ages, self.weight = ([] for _ in range(6))
+        self.person: list[str] = []
+        self.x: list[float] = []
+        self.load: list[float] = []
+        self.result: list[int] = []
+        self.ages: list[list[float]] = []
+        self.weight: list[float] = []
 
     def add(self, results, xs, loads, ages, weight: float) -> None:
         key = f"pseudo{len(self.weight):05d}"
@@ -139,6 +144,7 @@ def _regulars(rows: _Rows, p: SiteParams, outcomes: float) -> None:
 
 
 def _contexts(rows: _Rows, p: SiteParams, outcomes: float) -> None:
+    assert p.ask_memory_half_life_s is not None   # the file's constants always give it
     h = float(p.ask_memory_half_life_s)
     x_nodes, logw = beta_rule(2, p.prior_a, p.prior_b)              # exact to degree 2
     qw = np.exp(logw)
@@ -159,12 +165,16 @@ def _contexts(rows: _Rows, p: SiteParams, outcomes: float) -> None:
 
 def curvature_floor(target: SiteParams, weight: float, pseudo: OutcomeData
                     ) -> tuple[np.ndarray, np.ndarray]:
-    """(centre, precision) in the fit's theta of the Gaussian term that lifts the penalty's
-    curvature at the file's values to weight * MIN_INFORMATION in every direction."""
+    """Return the Gaussian term that lifts the penalty's curvature.
+
+    (centre, precision) in the fit's theta of the Gaussian term that lifts the penalty's curvature
+    at the file's values to weight * MIN_INFORMATION in every direction.
+    """
     from .convergence import hessian_by_differences
     from .site_fit import NAMES, Objective, to_theta
     from .site_likelihood import SiteLikelihood
     centre = to_theta(target)
+    assert pseudo.weight is not None   # pseudo_outcomes always weighs its rows
     unit = replace(pseudo, weight=pseudo.weight / weight)      # one pseudo-outcome's worth
     obj = Objective([SiteLikelihood(unit, use_reporting_factor=True)],
                     np.ones(len(NAMES), bool), centre)

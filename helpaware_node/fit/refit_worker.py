@@ -20,7 +20,7 @@ NICENESS = 10      # a refit is background work: the node's own threads get the 
 
 
 def serve(conn) -> None:
-    """The worker's loop: (reader, job) in, ("ok", Refit) or ("error", text) out."""
+    """Run the worker's loop: (reader, job) in, ("ok", Refit) or ("error", text) out."""
     try:
         os.nice(NICENESS)
     except (AttributeError, OSError):     # not on this platform: the same, at equal priority
@@ -65,8 +65,10 @@ class RefitWorker:
         self.busy = True
 
     def poll(self) -> Optional[tuple[str, Any]]:
-        """The finished job's reply, or None while it runs. Raises EOFError when the worker
-        died meanwhile."""
+        """Return the finished job's reply, or None while it runs.
+
+        Raises EOFError when the worker died meanwhile.
+        """
         if not self.busy:
             return None
         if self._conn.poll():
@@ -78,8 +80,10 @@ class RefitWorker:
         return None
 
     def stop(self, timeout_s: float = 2.0) -> None:
-        """Ask the worker to stop; a refit still running is ended (its result is not
-        needed: nothing changed yet)."""
+        """Ask the worker to stop.
+
+        a refit still running is ended (its result is not needed: nothing changed yet).
+        """
         try:
             if not self.busy:
                 self._conn.send(None)

@@ -31,7 +31,7 @@ def simulate(params: SiteParams, n_people: int, asks_per_person: float, seed: in
 
 
 def draw_results(rng: np.random.Generator, params: SiteParams, wc: np.ndarray) -> np.ndarray:
-    """The generative story of the module doc, per ask with help chance w c when noticed."""
+    """Draw results by the module doc's generative story: help chance w c when noticed."""
     n = wc.size
     tau, q = params.decline_aloud, params.notice_probability
     nu = tau + q * (1.0 - tau)
@@ -50,7 +50,7 @@ class SimulatedAsks:
     ask_person: np.ndarray         # index into person_keys, per ask
     ask_time_s: np.ndarray
     answered: np.ndarray           # bool per ask: an outcome was recorded
-    result: np.ndarray             # per ask (HELPED / DECLINED / NO_RESPONSE), meaningful if answered
+    result: np.ndarray             # per ask (HELPED / DECLINED / NO_RESPONSE) if answered
     busyness: np.ndarray           # per ask
     robot_load: np.ndarray         # per ask: the load the robot computed with its half-life
 
@@ -65,7 +65,9 @@ def simulate_with_asks(params: SiteParams, n_people: int, asks_per_person: float
     data see loads from near 1 per earlier ask down to near 0); a share `unanswered` of asks
     get no outcome (expired) but still weigh on the person. The load column of the returned
     data is what a robot with `robot_half_life_s` would have computed (a wrong half-life, to
-    show it is not used when the half-life is fitted)."""
+    show it is not used when the half-life is fitted).
+    """
+    assert params.ask_memory_half_life_s is not None, "simulate with a half-life"
     h = float(params.ask_memory_half_life_s)
     rng = np.random.default_rng(seed)
     counts = 1 + rng.poisson(max(asks_per_person - 1.0, 0.0), size=n_people)

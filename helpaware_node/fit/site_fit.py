@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import Sequence
+from typing import Any, Callable, Sequence
 
 import numpy as np
 from scipy import optimize, stats
@@ -46,25 +46,29 @@ MIN_SPREAD = 1e-9                 # a covariate with less spread than this is "c
 BOUND_SLACK = 1e-8                # this close to a box bound counts as at it
 LOGIT_AT_LIMIT = 14.0             # |logit| beyond this: a probability within 1e-6 of 0 or 1
 BOUNDS = (LOG_AB_BOUNDS, LOG_AB_BOUNDS, (0.0, K_MAX), (0.0, K_MAX), LOGIT_BOUNDS, LOGIT_BOUNDS,
-          tuple(math.log(v) for v in HALF_LIFE_BOUNDS_S))
+          (math.log(HALF_LIFE_BOUNDS_S[0]), math.log(HALF_LIFE_BOUNDS_S[1])))
 PRIOR_HINTS = {"low_hint": "people look as if each always or never helps: collect more asks "
                            "per person, or set prior_a and prior_b by hand",
                "high_hint": "willingness shows no spread across people that the data can "
                             "measure: collect more asks per person, or set prior_a and prior_b "
                             "by hand"}
 K_HINT = "help practically stops as this covariate rises: check its scale in the data, or fix it"
-H_HINTS = {"low_hint": "asks seem to weigh on people for no time at all: fix "
-                       "ask_memory_half_life_s, or fix k_load at 0",
-           "high_hint": "asks seem to weigh on people for longer than the search range: fix "
-                        "ask_memory_half_life_s at the longest memory you believe"}
+H_HINTS: dict[str, Any] = {
+    "low_hint": "asks seem to weigh on people for no time at all: fix ask_memory_half_life_s, "
+                "or fix k_load at 0",
+    "high_hint": "asks seem to weigh on people for longer than the search range: fix "
+                 "ask_memory_half_life_s at the longest memory you believe"}
 
 
 def theta_bounds(ranges: dict | None = None) -> list[tuple[float, float]]:
-    """The search box in theta: BOUNDS narrowed by `ranges` (natural scale, name -> (low,
-    high), e.g. the node's parameter ranges), never widened."""
+    """Return the search box in theta.
+
+    BOUNDS narrowed by `ranges` (natural scale, name -> (low, high), e.g. the node's parameter
+    ranges), never widened.
+    """
     out = list(BOUNDS)
-    to_z = {0: math.log, 1: math.log, 2: float, 3: float, 4: _logit_safe, 5: _logit_safe,
-            6: math.log}
+    to_z: dict[int, Callable[[float], float]] = {
+        0: math.log, 1: math.log, 2: float, 3: float, 4: _logit_safe, 5: _logit_safe, 6: math.log}
     for name, (low, high) in (ranges or {}).items():
         if name not in NAMES:
             continue
@@ -83,11 +87,13 @@ def _logit_safe(v: float) -> float:
 
 
 def coordinates(bounds: Sequence[tuple[float, float]] = BOUNDS) -> tuple[Coordinate, ...]:
-    """The optimiser's coordinates with their limits: a0, b0 have only search-range edges
-    (a Beta prior of strength 0 or infinity is no answer); k = 0 and probabilities of 0 or 1
-    are values the model allows; the half-life's edges are the search range's.  A range
-    narrowed below a natural limit (a node's k_busy range starting at 0.5) makes that limit
-    an edge."""
+    """Return the optimiser's coordinates with their limits.
+
+    a0, b0 have only search-range edges (a Beta prior of strength 0 or infinity is no answer); k =
+    0 and probabilities of 0 or 1 are values the model allows; the half-life's edges are the search
+    range's.  A range narrowed below a natural limit (a node's k_busy range starting at 0.5) makes
+    that limit an edge.
+    """
     (la, ha), (lb, hb), (lk1, hk1), (lk2, hk2), (lq, hq), (lt, ht), (lh, hh) = bounds
     prior = lambda lo, hi: dict(low=lo + BOUND_SLACK, high=hi - BOUND_SLACK,   # noqa: E731
                                 scale="log", **PRIOR_HINTS)
@@ -116,14 +122,14 @@ def to_theta(p: SiteParams) -> np.ndarray:
 
 
 def from_theta(theta: np.ndarray, half_life: bool = True) -> SiteParams:
-    """The natural values; `half_life` False: no half-life (the data's load column)."""
+    """Return the natural values; `half_life` False: no half-life (the data's load column)."""
     return SiteParams(math.exp(theta[0]), math.exp(theta[1]), float(theta[2]), float(theta[3]),
                       float(expit(theta[4])), float(expit(theta[5])),
                       math.exp(theta[H]) if half_life else None)
 
 
 def natural_jacobian(theta: np.ndarray) -> np.ndarray:
-    """d natural / d theta (diagonal) for the delta method."""
+    """Return d natural / d theta (diagonal) for the delta method."""
     q, t = expit(theta[4]), expit(theta[5])
     return np.array([math.exp(theta[0]), math.exp(theta[1]), 1.0, 1.0, q * (1 - q), t * (1 - t),
                      math.exp(theta[H])])
@@ -131,8 +137,10 @@ def natural_jacobian(theta: np.ndarray) -> np.ndarray:
 
 class Objective:
     """Negative log-likelihood and its gradient in theta, on the free coordinates only.
-    `liks`: the terms summed (the data, and for an online refit the pseudo-outcomes); each is
-    the same SiteLikelihood, so the penalised objective is one likelihood code path."""
+
+    `liks`: the terms summed (the data, and for an online refit the pseudo-outcomes); each is the
+    same SiteLikelihood, so the penalised objective is one likelihood code path.
+    """
 
     def __init__(self, lik: SiteLikelihood | Sequence[SiteLikelihood], free: np.ndarray,
                  fixed_theta: np.ndarray, half_life: bool = True,
@@ -201,9 +209,14 @@ class SiteFit:
     def converged(self) -> bool:
         return self.verdict is not None and self.verdict.converged
 
+    @property
+    def reason(self) -> str:
+        """Why the fit stopped: the verdict's words, or "no convergence verdict" without one."""
+        return self.verdict.reason if self.verdict is not None else "no convergence verdict"
+
 
 def moments_start(data: OutcomeData) -> tuple[float, float]:
-    """Method of moments on per-person help rates (mean and sd with ddof = 1 of y/n)."""
+    """Start by the method of moments on per-person help rates (mean and sd, ddof = 1, of y/n)."""
     n = np.bincount(data.person, minlength=data.n_people).astype(float)
     y = np.bincount(data.person, (data.result == HELPED).astype(float), minlength=data.n_people)
     rate = (y / np.maximum(n, 1))[n > 0]
@@ -223,10 +236,12 @@ def check_data(data: OutcomeData, fix_k_busy: bool = False, fix_k_load: bool = F
                penalised: bool = False
                ) -> tuple[dict[str, float], dict[str, str], list[str]]:
     """Decide which constants the data can identify. Returns (fixed values, reasons, notes).
+
     Raises FitInputError when nothing sensible can be fitted.  `load`: the ask load per row
-    (recomputed from ask times) when not the data's column.  `penalised`: pseudo-outcomes
-    from the parameter file join the data (an online refit), so only too little data is
-    refused and nothing is fixed for want of variation: the pseudo-outcomes pin it."""
+    (recomputed from ask times) when not the data's column.  `penalised`: pseudo-outcomes from the
+    parameter file join the data (an online refit), so only too little data is refused and nothing
+    is fixed for want of variation: the pseudo-outcomes pin it.
+    """
     counts = data.counts()
     n = data.n_outcomes
     if n < MIN_OUTCOMES:
@@ -282,7 +297,8 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
     to the likelihood (an online refit's shrinkage, fit/pseudo_outcomes.py).  ranges: name ->
     (low, high) on the natural scale, narrowing the search box (a node's parameter ranges).
     quadratic: (centre, precision) in theta, a Gaussian term added to the objective (the
-    shrinkage's curvature floor, fit/pseudo_outcomes.py)."""
+    shrinkage's curvature floor, fit/pseudo_outcomes.py).
+    """
     use_h = data.prior_asks is not None
     lik = SiteLikelihood(data, use_reporting_factor=True if pseudo is not None else None)
     start_h = float(start.ask_memory_half_life_s) if (
@@ -375,8 +391,11 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
 
 def std_errors_from_hessian(hess: np.ndarray, theta: np.ndarray, free: np.ndarray,
                             at_bound: list[str]) -> dict[str, float]:
-    """Observed information (the log-likelihood's Hessian from central differences of the
-    gradient) on the interior free coordinates; delta method to the natural scale."""
+    """Return standard errors from the observed information.
+
+    Observed information (the log-likelihood's Hessian from central differences of the gradient) on
+    the interior free coordinates; delta method to the natural scale.
+    """
     idx = [i for i in range(len(NAMES)) if free[i] and NAMES[i] not in at_bound]
     if not idx:
         return {}

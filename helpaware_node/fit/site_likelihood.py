@@ -46,10 +46,12 @@ from scipy.linalg import eigh_tridiagonal
 from .data import HELPED, NO_RESPONSE, OutcomeData
 
 
-
 def logsumexp(x: np.ndarray, axis: int | None = None, keepdims: bool = False) -> np.ndarray:
-    """log(sum(exp(x))) along `axis`, stable; plain numpy (scipy's version costs ~1 ms a call
-    in array-API bookkeeping, which dominated small fits)."""
+    """log(sum(exp(x))) along `axis`, stable.
+
+    Plain numpy (scipy's version costs ~1 ms a call in array-API bookkeeping, which dominated small
+    fits).
+    """
     m = np.max(x, axis=axis, keepdims=True)
     m = np.where(np.isfinite(m), m, 0.0)
     with np.errstate(divide="ignore"):
@@ -70,9 +72,11 @@ def nodes_needed(n_outcomes: np.ndarray, extra_degree: int = 0) -> np.ndarray:
 
 
 def _jacobi_entries(n: int, al: np.ndarray, be: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Diagonal and off-diagonal of the Jacobi matrix of the Beta(a0, b0) measure, normalised
-    (so no overflow of the 2^(alpha+beta+1) B(.,.) total mass that scipy's roots_jacobi forms);
-    al = b0 - 1, be = a0 - 1 as columns (one row per point; complex: the complex step)."""
+    """Diagonal and off-diagonal of the Jacobi matrix of the Beta(a0, b0) measure.
+
+    Normalised (so no overflow of the 2^(alpha+beta+1) B(.,.) total mass that scipy's roots_jacobi
+    forms); al = b0 - 1, be = a0 - 1 as columns (one row per point; complex: the complex step).
+    """
     k = np.arange(n, dtype=float)
     s = 2.0 * k + al + be
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -89,9 +93,12 @@ def _jacobi_entries(n: int, al: np.ndarray, be: np.ndarray) -> tuple[np.ndarray,
 
 
 def _log_christoffel(t: np.ndarray, diag: np.ndarray, off: np.ndarray) -> np.ndarray:
-    """log of the Gauss weights 1 / sum_j p_j(t)^2 (p_j orthonormal for the measure, by the
-    three-term recurrence; one row per point): relative accuracy even for tiny weights, which
-    an eigenvector's first component squared lacks; analytic, so the complex step applies."""
+    """Return the log Christoffel weights by the three-term recurrence.
+
+    log of the Gauss weights 1 / sum_j p_j(t)^2 (p_j orthonormal for the measure, by the three-term
+    recurrence; one row per point): relative accuracy even for tiny weights, which an eigenvector's
+    first component squared lacks; analytic, so the complex step applies.
+    """
     p_prev, p = np.zeros_like(t), np.ones_like(t)
     total = np.ones_like(t)
     for j in range(diag.shape[1] - 1):
@@ -106,11 +113,13 @@ COMPLEX_STEP = 1e-30     # exact first derivatives (no subtraction), any step th
 
 @functools.lru_cache(maxsize=256)
 def _jacobi_cached(n: int, a0: float, b0: float) -> tuple[np.ndarray, ...]:
-    """Golub-Welsch nodes of the Beta(a0, b0) measure, Christoffel log weights, and their
-    derivatives in a0 and b0: the nodes' by Hellmann-Feynman (dt_k = v_k' dJ v_k), the
-    weights' by the complex step through the recurrence.  The rule is exact for the
-    likelihood's polynomial at every (a0, b0), so these give its exact derivative there.
-    Row 0 steps a0 (be), row 1 b0 (al); their real parts are the values themselves."""
+    """Golub-Welsch nodes of the Beta(a0, b0) measure, Christoffel log weights.
+
+    Their derivatives in a0 and b0: the nodes' by Hellmann-Feynman (dt_k = v_k' dJ v_k), the
+    weights' by the complex step through the recurrence.  The rule is exact for the likelihood's
+    polynomial at every (a0, b0), so these give its exact derivative there. Row 0 steps a0 (be),
+    row 1 b0 (al); their real parts are the values themselves.
+    """
     h = COMPLEX_STEP
     al = np.array([[b0 - 1.0 + 0j], [b0 - 1.0 + 1j * h]])   # Jacobi weight (1-t)^al (1+t)^be,
     be = np.array([[a0 - 1.0 + 1j * h], [a0 - 1.0 + 0j]])   # w = (1+t)/2
@@ -140,7 +149,8 @@ def _jacobi_cached(n: int, a0: float, b0: float) -> tuple[np.ndarray, ...]:
 
 def beta_rule(n: int, a0: float, b0: float) -> tuple[np.ndarray, np.ndarray]:
     """Nodes on (0, 1) and log weights summing to 1 for E_{Beta(a0, b0)}[g(w)]."""
-    return _jacobi_cached(int(n), float(a0), float(b0))[:2]
+    rule = _jacobi_cached(int(n), float(a0), float(b0))
+    return rule[0], rule[1]
 
 
 def beta_rule_derivatives(n: int, a0: float, b0: float) -> tuple[np.ndarray, ...]:
@@ -181,9 +191,10 @@ def make_buckets(data: OutcomeData, extra_degree: int = 0) -> list[Bucket]:
         n_helped = np.bincount(local, helped[rows], minlength=people.size).astype(float)
         miss = rows[~helped[rows]]
         miss_local = local[~helped[rows]]
-        miss_people, miss_starts = np.unique(miss_local, return_index=True)
-        if miss_people.size == people.size:
-            miss_people = slice(None)          # everyone: a view, not a copy per evaluation
+        missing, miss_starts = np.unique(miss_local, return_index=True)
+        # everyone: a view, not a copy per evaluation
+        miss_people: np.ndarray | slice = (slice(None) if missing.size == people.size
+                                           else missing)
         buckets.append(Bucket(int(n), people, rows, local, starts, n_helped, miss,
                               miss_local, miss_people, miss_starts))
     return buckets
@@ -201,10 +212,10 @@ class SiteParams:
 
     @property
     def noticed(self) -> float:
-        """nu = tau + q (1 - tau): chance an ask is noticed (1 without no-response data)."""
+        """Return nu = tau + q (1 - tau), the chance an ask is seen (1 without no-responses)."""
         return self.decline_aloud + self.notice_probability * (1.0 - self.decline_aloud)
 
-    def as_tuple(self) -> tuple[float, ...]:
+    def as_tuple(self) -> tuple[float | None, ...]:
         return (self.prior_a, self.prior_b, self.k_busy, self.k_load,
                 self.notice_probability, self.decline_aloud, self.ask_memory_half_life_s)
 
@@ -235,8 +246,10 @@ class SiteLikelihood:
         return self.data.prior_asks is not None
 
     def loads(self, p: SiteParams) -> tuple[np.ndarray, np.ndarray | None]:
-        """Ask load per row under p's half-life (and its derivative in log h), or the data's
-        column when p has no half-life or the data no ask times."""
+        """Ask load per row under p's half-life (and its derivative in log h).
+
+        Or the data's column when p has no half-life or the data no ask times.
+        """
         h = p.ask_memory_half_life_s
         if h is None or self.data.prior_asks is None:
             return self.data.load, None
@@ -247,16 +260,22 @@ class SiteLikelihood:
 
     # -- the likelihood and its gradient ------------------------------------------------
     def _work(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-        """Three buffers of one value per not-helped row and node, kept between evaluations
-        (so an instance is not for concurrent use; each refit builds its own)."""
+        """Three buffers of one value per not-helped row and node.
+
+        Kept between evaluations (so an instance is not for concurrent use; each refit builds its
+        own).
+        """
         if self._buffers is None:
             size = max((b.miss_rows.size * b.nodes for b in self.buckets), default=0)
             self._buffers = tuple(np.empty(size) for _ in range(3))
         return self._buffers
 
     def _row_constants(self, p: SiteParams):
-        """Per row: u = k_busy x + k_load f (c = exp(-u)) and the chance c q' a not-helped
-        row's factor removes per unit of w (q' = q for no response, 1 for a decline)."""
+        """Return per row u = k_busy x + k_load f and the factor's removal chance per unit w.
+
+        Per row: u = k_busy x + k_load f (c = exp(-u)) and the chance c q' a not-helped row's
+        factor removes per unit of w (q' = q for no response, 1 for a decline).
+        """
         load, dload = self.loads(p)
         u = p.k_busy * self.data.busyness + p.k_load * load
         cq = np.exp(-u)
@@ -264,14 +283,17 @@ class SiteLikelihood:
         return u, cq, load, dload
 
     def _evaluate(self, p: SiteParams, want_grad: bool):
-        """log L_i per person (unweighted, without the reporting factor) and, if asked, the
-        weighted gradient in (a0, b0, k_busy, k_load, q, log h).
+        """Return log L_i per person and, if asked, the weighted gradient.
+
+        log L_i is unweighted and without the reporting factor; the gradient is in (a0, b0,
+        k_busy, k_load, q, log h).
 
         Per person, log L_i = log sum_k w_k x_k^H_i prod_(j not helped) (1 - x_k c_j q'_j)
         - sum_(j helped) u_j.  Its derivative is the posterior mean over the nodes of the
         derivative of the log summand, the nodes and weights moving with a0, b0 (exactly:
         beta_rule_derivatives).  Per row only one value at each node is formed,
-        r_jk = x_k c_j q'_j / (1 - x_k c_j q'_j); every derivative is a contraction of it."""
+        r_jk = x_k c_j q'_j / (1 - x_k c_j q'_j); every derivative is a contraction of it.
+        """
         d = self.data
         u, cq, load, dload = self._row_constants(p)
         ll = -np.bincount(self._helped_person, np.take(u, self._helped_rows),
@@ -307,6 +329,7 @@ class SiteLikelihood:
             coef = b.n_helped[:, None] * post
             if m:
                 ratio = e
+                assert slope is not None   # made with want_grad
                 np.take(post, b.miss_local, axis=0, out=post_rows, mode="clip")
                 slope[b.miss_rows] = np.einsum("ij,ij->i", post_rows, ratio)
                 coef[b.miss_people] -= post[b.miss_people] * np.add.reduceat(
@@ -324,15 +347,17 @@ class SiteLikelihood:
         return ll, g
 
     def value_and_grad(self, p: SiteParams) -> tuple[float, np.ndarray]:
-        """Weighted log-likelihood and its derivatives in (a0, b0, k_busy, k_load, q, tau,
-        log h)."""
+        """Return the weighted log-likelihood and its derivatives.
+
+        Weighted log-likelihood and its derivatives in (a0, b0, k_busy, k_load, q, tau, log h).
+        """
         ll_i, g = self._evaluate(p, want_grad=True)
         rep, rep_q, rep_t = self.reporting_term(p)
         return (float(np.einsum("i,i->", self.weight, ll_i)) + rep,
                 np.array([g[0], g[1], g[2], g[3], g[4] + rep_q, rep_t, g[5]]))
 
     def reporting_term(self, p: SiteParams) -> tuple[float, float, float]:
-        """log of nu^H tau^D (1-tau)^R and its derivatives in q and tau (0 when unused)."""
+        """Return log of nu^H tau^D (1-tau)^R and its derivatives in q and tau (0 when unused)."""
         if not self.use_reporting_factor:
             return 0.0, 0.0, 0.0
         q, tau = p.notice_probability, p.decline_aloud
@@ -351,7 +376,7 @@ class SiteLikelihood:
         return float(np.einsum("i,i->", self.weight, ll)) + self.reporting_term(p)[0]
 
     def per_person(self, p: SiteParams) -> np.ndarray:
-        """log L_i per person (unweighted, without the reporting factor)."""
+        """Return log L_i per person (unweighted, without the reporting factor)."""
         return self._evaluate(p, want_grad=False)[0]
 
     # -- held-out prediction -----------------------------------------------------------

@@ -71,7 +71,7 @@ class ReviewData:
         return [k for k in EXPECTED_TOPICS if self.counts.get(k, 0) == 0]
 
     def belief_series(self) -> dict[str, list[tuple[float, float, float]]]:
-        """person key -> [(time s, a, b)] at each decision the person was a candidate in."""
+        """Return person key -> [(time s, a, b)] at each decision the person was a candidate in."""
         out: dict[str, list[tuple[float, float, float]]] = {}
         for d in self.decisions:
             for c in d.candidates:
@@ -145,7 +145,7 @@ def load(path: str) -> ReviewData:
         data.topic_names.setdefault(topic_kind(topic), topic)
     times = [d.time_s for d in data.decisions] + [n.time_s for n in data.needs] + \
             [o.time_s for o in data.outcomes]
-    if first_ns is not None:
+    if first_ns is not None and last_ns is not None:
         times += [first_ns * 1e-9, last_ns * 1e-9]
     data.start_s = min(times) if times else 0.0
     data.end_s = max(times) if times else 0.0

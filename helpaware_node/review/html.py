@@ -44,7 +44,7 @@ def table(headers, rows) -> str:
 
 
 def duration_text(seconds: float) -> str:
-    """A time span as people read it: `7 h 28 min`, `12 min 5 s`, `42.0 s`."""
+    """Return a time span as people read it: `7 h 28 min`, `12 min 5 s`, `42.0 s`."""
     if not math.isfinite(seconds) or seconds < 0:
         return "n/a"
     if seconds < 60:
@@ -62,10 +62,12 @@ MIN_ASKS_TO_JUDGE = 20
 
 
 def calibration_gap(bins: list[dict]) -> dict:
-    """Calibration in the large from the bins: asks, mean predicted p, observed help rate, and
-    the standard error of their difference. The error uses each bin's mean p, which bounds
-    the exact binomial error sum p(1-p) from above (p(1-p) is concave), so a gap called larger
-    than chance is one."""
+    """Calibration in the large from the bins.
+
+    Asks, mean predicted p, observed help rate, and the standard error of their difference. The
+    error uses each bin's mean p, which bounds the exact binomial error sum p(1-p) from above
+    (p(1-p) is concave), so a gap called larger than chance is one.
+    """
     n = sum(b["count"] for b in bins)
     if not n:
         return {"asks": 0}
@@ -77,7 +79,7 @@ def calibration_gap(bins: list[dict]) -> dict:
 
 
 def calibration_advice(bag: str, bins: list[dict]) -> str:
-    """What the calibration section says to do, with the commands to do it on this bag."""
+    """Return what the calibration section says to do, with the commands to do it on this bag."""
     g = calibration_gap(bins)
     if not g["asks"]:
         return "<p>No answered asks in this bag: nothing to compare predictions with.</p>"
@@ -118,14 +120,16 @@ def calibration_advice(bag: str, bins: list[dict]) -> str:
 def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = None) -> str:
     s = summary
     parts = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
-             f"<title>helpaware review: {esc(s['bag'])}</title><style>{STYLE}</style></head><body>",
+             f"<title>helpaware review: {esc(s['bag'])}</title><style>{STYLE}</style>"
+             "</head><body>",
              f"<h1>Review of {esc(s['bag'])}</h1>"]
     if s["read_error"]:
         parts.append(f'<p class="warn">Partial report: the bag could not be read to its end. '
                      f'{esc(s["read_error"])}</p>')
     if s["missing_topics"]:
         parts.append(f'<p class="warn">Topics missing or empty in this bag: '
-                     f'{esc(", ".join(s["missing_topics"]))}. Sections built from them are empty.</p>')
+                     f'{esc(", ".join(s["missing_topics"]))}. '
+                     'Sections built from them are empty.</p>')
     if s["documents_not_understood"]:
         parts.append('<p class="warn">Documents not understood (skipped): ' + esc(", ".join(
             f"{k}: {v} (e.g. {s['documents_not_understood_examples'].get(k, '')})"
@@ -180,13 +184,14 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
                  f"{pend['timeout_s']:g} s (expired); {pend['still_pending_at_end']} were still "
                  f"pending when the bag ended.</p>")
     if pend["expired_request_ids"]:
-        parts.append("<p class=\"note\">Expired: " + esc(", ".join(pend["expired_request_ids"][:50]))
-                     + "</p>")
+        expired = ", ".join(pend["expired_request_ids"][:50])
+        parts.append("<p class=\"note\">Expired: " + esc(expired) + "</p>")
     par = s["parameters"]
     parts.append("<h2>Parameters in force</h2>" + table(
         ["parameter hash", "decisions"], [[h, n] for h, n in par["hashes"].items()]))
     for h, values in par["in_force"].items():
-        parts.append(f"<h3>{esc(h)}</h3><pre>{esc(json.dumps(values, indent=1, sort_keys=True))}</pre>")
+        text = json.dumps(values, indent=1, sort_keys=True)
+        parts.append(f"<h3>{esc(h)}</h3><pre>{esc(text)}</pre>")
     if replay is not None:
         parts.append(render_replay(replay, figures.get("replay")))
     parts.append("<h2>Cautions</h2><p class=\"note\">The node only decides whether to ask; it "
@@ -237,7 +242,8 @@ def render_replay(replay: dict, figure: Optional[bytes]) -> str:
                  f"{replay['changed']} decisions change; {replay['reproduced']} of "
                  f"{replay['needs']} recorded decisions reproduced with the recorded "
                  "parameters.</p>")
-    parts.append(table(["parameter set", "asks", "expected helps", "expected interruption (robot-s)",
+    parts.append(table(["parameter set", "asks", "expected helps",
+                        "expected interruption (robot-s)",
                         "expected time lost (robot-s)"],
                        [[r["label"], r["asks"], r["expected_helps"], r["expected_interruption_s"],
                          r["expected_time_lost_s"]] for r in replay["totals"]]))

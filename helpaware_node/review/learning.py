@@ -1,6 +1,7 @@
-"""Site learning as a bag shows it: the site constants each decision was made with, over
-time, and the calibration of the asks made under the parameter file's constants beside those
-made under learned ones.
+"""Site learning as a bag shows it.
+
+The site constants each decision was made with, over time, and the calibration of the asks made
+under the parameter file's constants beside those made under learned ones.
 
 Every decision document carries its model and where its constants came from
 (`parameters.source`: parameter_file or learned, with the revision), so this needs nothing but
@@ -29,8 +30,10 @@ def _source(doc: dict) -> tuple[str, int]:
 
 
 def constants_over_time(data: ReviewData) -> list[dict]:
-    """One row per change of the site constants in force (the first decision's included):
-    time_s, source, revision, and each constant."""
+    """One row per change of the site constants in force (the first decision's included).
+
+    time_s, source, revision, and each constant.
+    """
     rows: list[dict] = []
     for d in sorted(data.decisions, key=lambda d: d.time_s):
         params = rw.parameters_of(d.document) or {}
@@ -55,8 +58,11 @@ def _scores(p: list[float], y: list[int]) -> dict:
 
 
 def calibration_by_source(data: ReviewData) -> dict:
-    """Calibration of the asks made under the parameter file's constants and of those made
-    under learned constants (any revision)."""
+    """Return the calibration of asks under the file's constants and under learned ones.
+
+    Calibration of the asks made under the parameter file's constants and of those made under
+    learned constants (any revision).
+    """
     results = outcome_for(data)
     split: dict[str, tuple[list, list]] = {"parameter_file": ([], []), "learned": ([], [])}
     for d in data.decisions:
@@ -71,8 +77,11 @@ def calibration_by_source(data: ReviewData) -> dict:
 
 
 def summarise(data: ReviewData) -> Optional[dict]:
-    """The site-learning section of the summary (None when the bag has no decisions with
-    their parameters)."""
+    """Return the site-learning section of the summary.
+
+    The site-learning section of the summary (None when the bag has no decisions with their
+    parameters).
+    """
     changes = constants_over_time(data)
     if not changes:
         return None

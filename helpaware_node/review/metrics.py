@@ -16,34 +16,34 @@ LOG_LOSS_EPS = 1e-15
 
 
 def brier_score(p: Sequence[float], y: Sequence[int]) -> float:
-    p = np.asarray(p, dtype=float)
-    y = np.asarray(y, dtype=float)
-    if p.size == 0:
+    pa = np.asarray(p, dtype=float)
+    ya = np.asarray(y, dtype=float)
+    if pa.size == 0:
         return math.nan
-    return float(np.mean((p - y) ** 2))
+    return float(np.mean((pa - ya) ** 2))
 
 
 def log_loss(p: Sequence[float], y: Sequence[int], eps: float = LOG_LOSS_EPS) -> float:
-    p = np.clip(np.asarray(p, dtype=float), eps, 1.0 - eps)
-    y = np.asarray(y, dtype=float)
-    if p.size == 0:
+    pa = np.clip(np.asarray(p, dtype=float), eps, 1.0 - eps)
+    ya = np.asarray(y, dtype=float)
+    if pa.size == 0:
         return math.nan
-    return float(-np.mean(y * np.log(p) + (1.0 - y) * np.log1p(-p)))
+    return float(-np.mean(ya * np.log(pa) + (1.0 - ya) * np.log1p(-pa)))
 
 
 def reliability_bins(p: Sequence[float], y: Sequence[int], n_bins: int = 10) -> list[dict]:
     """Equal-width bins on [0, 1]; p = 1 falls in the last bin. Empty bins are left out."""
-    p = np.asarray(p, dtype=float)
-    y = np.asarray(y, dtype=float)
-    idx = np.minimum((p * n_bins).astype(int), n_bins - 1)
+    pa = np.asarray(p, dtype=float)
+    ya = np.asarray(y, dtype=float)
+    idx = np.minimum((pa * n_bins).astype(int), n_bins - 1)
     rows = []
     for k in range(n_bins):
         sel = idx == k
         n = int(sel.sum())
         if n:
             rows.append({"bin_low": k / n_bins, "bin_high": (k + 1) / n_bins, "count": n,
-                         "mean_predicted": float(p[sel].mean()),
-                         "observed_rate": float(y[sel].mean())})
+                         "mean_predicted": float(pa[sel].mean()),
+                         "observed_rate": float(ya[sel].mean())})
     return rows
 
 

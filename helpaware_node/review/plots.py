@@ -125,7 +125,7 @@ def asks_per_hour(data) -> bytes:
 
 
 def replay_comparison(rows: list[dict]) -> bytes:
-    """Expected asks, helps and interruption cost under each parameter set (model estimates)."""
+    """Plot expected asks, helps and interruption cost by parameter set (model estimates)."""
     fig, axes = plt.subplots(1, 3, figsize=(10, 3))
     for ax, field, label in zip(axes, ("asks", "expected_helps", "expected_interruption_s"),
                                 ("asks", "expected helps", "expected interruption (robot-s)")):

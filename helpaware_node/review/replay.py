@@ -33,9 +33,12 @@ def _never(_ev) -> None:
 
 
 def replay_one(document: dict, model: SiteModel, config: DecisionConfig) -> Decision:
-    """Decide again. A decision the node forced to continue (its policy is not the look-ahead,
-    e.g. the per-need ask limit or the operator switch) is forced again: those are node
-    settings the parameter set does not change."""
+    """Decide again.
+
+    A decision the node forced to continue (its policy is not the look-ahead, e.g. the per-need ask
+    limit or the operator switch) is forced again: those are node settings the parameter set does
+    not change.
+    """
     need, candidates, now_s, robot_asks = rw.replay_inputs(document)
     policy = document.get("policy", "lookahead")
     if policy != "lookahead":
@@ -59,7 +62,7 @@ def _totals(label: str, decisions: list[Decision], configs: list[DecisionConfig]
 
 def replay(data: ReviewData, other_model: Optional[SiteModel] = None,
            other_config: Optional[DecisionConfig] = None, params_file: str = "") -> dict:
-    """Recorded parameters (must reproduce every decision) beside the other parameters."""
+    """Replay the recorded parameters (they must reproduce every decision) beside the others."""
     recorded, other, changes, mismatches = [], [], [], []
     rec_configs, other_configs = [], []
     skipped = 0

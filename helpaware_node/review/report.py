@@ -45,15 +45,16 @@ def build(bag: str, out_dir: str, params_file: Optional[str] = None,
             replay["parameters_ignored"] = other.ignored
     summary["replay"] = replay
     summary["replay_error"] = replay_error
+    cal = summary["calibration"]
     figures = {
         "timeline": review_plots.timeline(data),
         "willingness": review_plots.willingness(data),
-        "reliability": review_plots.reliability(summary["calibration"]["bins"],
-                                                summary["calibration"]["brier_score"] or float("nan"),
-                                                summary["calibration"]["log_loss"] or float("nan"),
-                                                summary["calibration"]["answered_asks"]),
+        "reliability": review_plots.reliability(cal["bins"], cal["brier_score"] or float("nan"),
+                                                cal["log_loss"] or float("nan"),
+                                                cal["answered_asks"]),
         "asks_per_person": review_plots.bars(
-            {review_plots.short_key(k): v for k, v in list(summary["asks_per_person"].items())[:40]},
+            {review_plots.short_key(k): v
+             for k, v in list(summary["asks_per_person"].items())[:40]},
             "Asks per person (hashed key)", "person"),
         "asks_per_hour": review_plots.asks_per_hour(data),
     }
@@ -90,7 +91,7 @@ def build(bag: str, out_dir: str, params_file: Optional[str] = None,
 
 
 def summary_text(summary: dict, out_dir: str) -> str:
-    """The summary as the terminal shows it: a few lines, then where the report is."""
+    """Return the summary as the terminal shows it: a few lines, then where the report is."""
     cal = summary["calibration"]
     fmt = lambda v: "n/a" if v is None else f"{v:.3f}"  # noqa: E731
     lines = [f"bag {summary['bag']} ({summary['storage']}): "
@@ -98,7 +99,8 @@ def summary_text(summary: dict, out_dir: str) -> str:
              f"{summary['decisions']} decisions: {summary['asks']} asks, "
              f"{summary['continues']} continues; outcomes "
              + (", ".join(f"{k} {v}" for k, v in summary["outcomes"].items()) or "none"),
-             f"calibration over {cal['answered_asks']} answered asks: Brier {fmt(cal['brier_score'])}, "
+             f"calibration over {cal['answered_asks']} answered asks: "
+             f"Brier {fmt(cal['brier_score'])}, "
              f"log loss {fmt(cal['log_loss'])}",
              f"pending asks expired: {summary['pending_asks']['expired']}"]
     if summary["missing_topics"]:

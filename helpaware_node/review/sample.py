@@ -16,7 +16,7 @@ from ..core.context import context_factor
 from ..store.base import person_key
 from . import documents as rw
 from ..bag import (DIAGNOSTIC_ARRAY_TYPE, MARKER_ARRAY_TYPE, BagWriter, STRING_TYPE,
-                    typestore)
+                   typestore)
 from ..bag.person_ids import HASHED_MARK
 
 SAMPLE_SITE_KEY = b"invented-night-shift-site-key"
@@ -106,7 +106,8 @@ def write_sample_bag(path: str, needs: int = 40, people: int = 12, seed: int = 3
             cands = []
             for hk, busy, dist, act in obs:
                 rec = records.setdefault(hk, PersonRecord.new(model))
-                cands.append(candidate_from_record(hk, rec, now, model, dist, now - 0.5, busy, act))
+                cands.append(candidate_from_record(hk, rec, now, model, dist, now - 0.5, busy,
+                                                   act))
             decision = decide(need, cands, now, tuple(robot_asks), model, config)
             emit("decision", now, rw.decision_document(decision, tuple(robot_asks), model, config))
             counts.decisions += 1
@@ -121,6 +122,7 @@ def write_sample_bag(path: str, needs: int = 40, people: int = 12, seed: int = 3
                 asks_made += 1
                 i = decision.person_index
                 ev = decision.evaluation
+                assert decision.person_id is not None   # an ask names its person
                 hk = decision.person_id
                 raw = next(p for p in staff if key[p] == hk)
                 records[hk] = note_ask(records[hk], now, model)

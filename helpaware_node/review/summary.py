@@ -35,8 +35,11 @@ def calibration_pairs(data: ReviewData) -> tuple[list[float], list[int]]:
 
 
 def find_expired(data: ReviewData, timeout_s: float) -> list[DecisionRow]:
-    """Asks with no outcome within `timeout_s` (asks younger than that at the bag's end are
-    still pending, not expired)."""
+    """Return the asks with no outcome within `timeout_s`.
+
+    Asks with no outcome within `timeout_s` (asks younger than that at the bag's end are still
+    pending, not expired).
+    """
     answered = outcome_for(data)
     expired = []
     for d in data.decisions:
@@ -71,7 +74,7 @@ def summarise(data: ReviewData, pending_timeout: Optional[float] = None) -> dict
     brier, ll = brier_score(p, y), log_loss(p, y)
     limits = Counter(c["excluded"] for d in data.decisions for c in d.candidates
                      if c.get("excluded"))
-    limit_decisions = Counter()
+    limit_decisions: Counter[str] = Counter()
     for d in data.decisions:
         for code in {c["excluded"] for c in d.candidates if c.get("excluded")}:
             limit_decisions[code] += 1

@@ -11,7 +11,7 @@ from __future__ import annotations
 import importlib
 import sys
 import time
-from typing import Callable, Optional
+from typing import Any, Callable, Optional
 
 import rclpy
 from rclpy._rclpy_pybind11 import RCLError
@@ -63,7 +63,7 @@ class BagRecorder(Node):
         self.writer = writer
         self.wanted = {self.resolve_topic_name(t): ty for t, ty in topics.items()}
         self.transforms = {self.resolve_topic_name(t): f for t, f in transforms.items()}
-        self.subs = {}
+        self.subs: dict[str, Any] = {}   # topic -> subscription (None: not recorded)
         self.dropped: dict[str, int] = {}
         self.before_clock = 0
         for name, qos in CONTRACT_QOS.items():

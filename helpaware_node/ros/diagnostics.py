@@ -1,5 +1,6 @@
-"""/diagnostics: input rates, rejected documents with the last reason, asks, store state, and
-the input watchdog (silent topics).
+"""/diagnostics: input rates, rejected documents with the last reason, asks, store state.
+
+The input watchdog (silent topics).
 
 `InputCounters` counts the node's own input topics; `decision_values` gathers every value the
 node reports (inputs, fleet and privacy topics, session, store, parameters) in one place;
@@ -8,7 +9,7 @@ node reports (inputs, fleet and privacy topics, session, store, parameters) in o
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import Any, Mapping
 
 from diagnostic_msgs.msg import DiagnosticArray, DiagnosticStatus, KeyValue
 
@@ -72,7 +73,7 @@ def level_for(new_rejections: int, qos_incompatible: int, store_ok: bool) -> tup
 
 
 def side_inputs(node) -> list:
-    """The fleet and privacy topics: refusals counted by their own handlers."""
+    """Return the fleet and privacy topics: refusals counted by their own handlers."""
     return [(name, part) for name, part in (("fleet_outcomes", getattr(node, "fleet", None)),
                                             ("privacy_request", getattr(node, "privacy", None)))
             if part is not None]
@@ -141,17 +142,20 @@ def decision_values(node, rates: dict) -> dict:
 
 
 def silence_limits_s(settings) -> dict:
-    """The silence limit of each watched topic, from the node settings (0: no warning)."""
+    """Return the silence limit of each watched topic, from the node settings (0: no warning)."""
     return {"people": settings.people_silence_warn_s,
             "task_status": settings.task_status_silence_warn_s}
 
 
 class WatchedInputs:
-    """The input watchdog on the node (the logic is helpaware_node/input_watch.py): publisher
-    counts from the node's own subscriptions, so remaps count the topic really subscribed; one
-    log line when a silence begins and one when it ends; WARN in /diagnostics meanwhile."""
+    """The input watchdog on the node (the logic is helpaware_node/input_watch.py).
 
-    def __init__(self, subscriptions: Mapping[str, object], logger, start_s: float) -> None:
+    Publisher counts from the node's own subscriptions, so remaps count the topic really
+    subscribed; one log line when a silence begins and one when it ends; WARN in /diagnostics
+    meanwhile.
+    """
+
+    def __init__(self, subscriptions: Mapping[str, Any], logger, start_s: float) -> None:
         self._subscriptions = dict(subscriptions)
         self._logger = logger
         self.watch = InputWatch(self._subscriptions, start_s)
@@ -170,8 +174,10 @@ class WatchedInputs:
 
     def report(self, now_s: float, limits_s: Mapping[str, float], values: dict, level,
                message: str) -> tuple:
-        """Add `<topic>.publishers`, `.silent_s`, `.first_message_after_s` to `values`; log the
-        episodes begun or ended; return the level and message with any silence in them."""
+        """Add `<topic>.publishers`, `.silent_s`, `.first_message_after_s` to `values`.
+
+        Log the episodes begun or ended; return the level and message with any silence in them.
+        """
         statuses, changes = self.watch.check(now_s, limits_s, self._publishers())
         for change in changes:
             text = change_text(change, limits_s.get(change.topic, 0.0))

@@ -39,7 +39,7 @@ from rclpy.clock import Clock, ClockType
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
-from ..core import CoreInputError, Result
+from ..core import CoreInputError, Result, SiteModel
 from ..fleet_documents import (MALFORMED, OLD_FORMAT, PRIVACY_KINDS, PrivacyAct,
                                decode_document, encode_document)
 from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
@@ -54,9 +54,10 @@ FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
 MERGE_PERIOD_S = 0.05           # how often the queue of received fleet events is looked at
 MERGE_BATCH = 500               # events stored per tick at most (one transaction)
 MERGE_TICK_BUDGET_S = 0.1       # one-by-one appends (the node's ingest): work per tick at most
-MERGE_WAIT_S = 0.2              # a smaller batch waits this long for more (catch-up: 6 000
-                                # events out of order take 24 s one by one, 2 s in 500s)
-MAX_QUEUED = 200_000            # bound on events received but not yet stored (~40 peers' histories)
+# a smaller batch waits this long for more (catch-up: 6 000 events out of order take 24 s one
+# by one, 2 s in 500s)
+MERGE_WAIT_S = 0.2
+MAX_QUEUED = 200_000            # events received but not yet stored (~40 peers' histories)
 MAX_REMEMBERED_REQUESTS = 100_000   # privacy requests applied this session (each applied once)
 REFUSAL_REASONS = (UNSIGNED, OLD_FORMAT, OTHER_SITE, UNKNOWN_KEY, EXPIRED_KEY, BAD_SIGNATURE,
                    MALFORMED, HANDLER_ERROR)
@@ -72,15 +73,18 @@ def fleet_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
 
 
 def fleet_reader_qos(depth: int = FLEET_HISTORY_DEPTH) -> QoSProfile:
-    """The subscription's QoS: keeps all, since one reader holds every peer's history at
-    once (`depth` only matters to readers that fall back to keep-last)."""
+    """Return the subscription's QoS.
+
+    Keeps all, since one reader holds every peer's history at once (`depth` only matters to readers
+    that fall back to keep-last).
+    """
     return QoSProfile(history=HistoryPolicy.KEEP_ALL, depth=depth,
                       reliability=ReliabilityPolicy.RELIABLE,
                       durability=DurabilityPolicy.TRANSIENT_LOCAL)
 
 
 def key_ring_of(store) -> KeyRing:
-    """The signing keys of the store's site key file (signing.py, store/keys.py)."""
+    """Return the signing keys of the store's site key file (signing.py, store/keys.py)."""
     return store.site_keys.key_ring()
 
 
@@ -132,8 +136,8 @@ class FleetLink(CountsRefusals):
                  topic: str = FLEET_TOPIC, depth: int = FLEET_HISTORY_DEPTH,
                  replay: bool = True, append: Optional[Callable[[StoredEvent], bool]] = None,
                  on_forgotten: Optional[Callable[[str], None]] = None,
-                 append_many: Optional[Callable[[list[StoredEvent]],
-                                                list[StoredEvent]]] = None,
+                 append_many: Optional[Callable[[list[AnyEvent]],
+                                                list[AnyEvent]]] = None,
                  keys: Optional[KeyRing] = None,
                  clock: Callable[[], float] = time.time, jobs=None) -> None:
         self._node = node
@@ -183,7 +187,7 @@ class FleetLink(CountsRefusals):
 
     @property
     def entities(self) -> list:
-        """Publisher, subscription and merge timer, for the owner's teardown."""
+        """Return the publisher, subscription and merge timer, for the owner's teardown."""
         return [self._pub, self._sub, self._timer]
 
     @property
@@ -201,9 +205,11 @@ class FleetLink(CountsRefusals):
         self._pub.publish(String(data=encode_document(kind, event, self._keys)))
 
     def publish_many(self, events: Iterable[AnyEvent]) -> None:
-        """Share stored events (the re-offer at start). One the rules refuse now (stored by
-        an older version: a long request kind, an odd event id) is skipped and counted, so an
-        old store never stops a start."""
+        """Share stored events (the re-offer at start).
+
+        One the rules refuse now (stored by an older version: a long request kind, an odd event id)
+        is skipped and counted, so an old store never stops a start.
+        """
         for e in events:
             try:
                 self.publish(e)
@@ -219,8 +225,11 @@ class FleetLink(CountsRefusals):
         self._pub.publish(String(data=encode_document(act.action, act, self._keys)))
 
     def forget(self, person_key: str, request_id: Optional[str] = None) -> int:
-        """Forget here and ask every robot to forget too (a request of its own unless
-        `request_id` names the one this answers); returns the events removed here."""
+        """Forget here and ask every robot to forget too.
+
+        Forget here and ask every robot to forget too (a request of its own unless `request_id`
+        names the one this answers); returns the events removed here.
+        """
         act = PrivacyAct.new("forget", person_key, self.sender, request_id)
         self._remember(act.identity)
         if self._jobs is not None:      # removed here once the worker has done it: 0 now
@@ -241,9 +250,11 @@ class FleetLink(CountsRefusals):
         self.publish_act(act)
 
     def _answer_when_done(self, act: PrivacyAct, answer: Optional[PrivacyAct]):
-        """The worker's report (on the executor): publish `answer` once the rows are
-        written; a store that refused forgets the request, so a copy offered again is
-        applied then (as a synchronous refusal would)."""
+        """Return the worker's report (on the executor).
+
+        Publish `answer` once the rows are written; a store that refused forgets the request, so a
+        copy offered again is applied then (as a synchronous refusal would).
+        """
         def done(job) -> None:
             if job.error is None:
                 if answer is not None:
@@ -260,9 +271,12 @@ class FleetLink(CountsRefusals):
         return done
 
     def apply_act(self, act: PrivacyAct) -> bool:
-        """A forget or opt-out received from the console or a peer: applied once per request,
-        and a request is answered once with this robot's own signed act (which also carries
-        it to robots that were not listening).  False when it was applied here already."""
+        """Apply a forget or opt-out received from the console or a peer.
+
+        Applied once per request, and a request is answered once with this robot's own signed act
+        (which also carries it to robots that were not listening).  False when it was applied here
+        already.
+        """
         with self._lock:
             if act.identity in self._applied:
                 return False
@@ -308,15 +322,16 @@ class FleetLink(CountsRefusals):
             self._on_forgotten(key)
         return n
 
-    def diagnostic_values(self) -> dict:
-        """What /diagnostics shows of the link: queue, refusals by reason, keys in force."""
+    def diagnostic_values(self) -> dict[str, object]:
+        """Return what /diagnostics shows of the link: queue, refusals by reason, keys in force."""
         p, k = DIAGNOSTICS_PREFIX, self._keys
-        values = {f"{p}.queued": self.queued_count, f"{p}.dropped": self.dropped_count,
-                  f"{p}.store_failures": self.store_failures,
-                  f"{p}.dropped_bad_events": self.dropped_bad_events,
-                  f"{p}.not_reoffered": self.not_reoffered,
-                  f"{p}.merge_errors": self.tick_errors,
-                  f"{p}.privacy_acts_applied": self.acts_applied}
+        values: dict[str, object] = {f"{p}.queued": self.queued_count,
+                                     f"{p}.dropped": self.dropped_count,
+                                     f"{p}.store_failures": self.store_failures,
+                                     f"{p}.dropped_bad_events": self.dropped_bad_events,
+                                     f"{p}.not_reoffered": self.not_reoffered,
+                                     f"{p}.merge_errors": self.tick_errors,
+                                     f"{p}.privacy_acts_applied": self.acts_applied}
         values.update({f"{p}.refused.{r}": self.refusals[r] for r in REFUSAL_REASONS})
         values.update({"fleet.topic": self.topic, "fleet.site_id": k.site_id,
                        "fleet.key_id": k.current.key_id,
@@ -327,9 +342,11 @@ class FleetLink(CountsRefusals):
 
     # -- receiving
     def _on_delivery(self, msg: String) -> None:
-        """The subscription callback: decode, queue, return (storing is the timer's job).
-        Whatever one document does, it is contained here: a refusal is counted by reason,
-        anything else under handler_error; the robot carries on either way."""
+        """Take a delivery (the subscription callback): decode, queue, return; the timer stores.
+
+        Whatever one document does, it is contained here: a refusal is counted by reason, anything
+        else under handler_error; the robot carries on either way.
+        """
         try:
             item = self._decode_counted(msg.data)
             if item is not None:
@@ -379,7 +396,10 @@ class FleetLink(CountsRefusals):
             return None
 
     def _on_tick(self) -> None:
-        """The timer: store a full batch at once, a smaller one once it waited MERGE_WAIT_S."""
+        """Store a full batch at once (the timer).
+
+        a smaller one once it waited MERGE_WAIT_S.
+        """
         try:
             if self._queued and (len(self._queued) >= MERGE_BATCH
                                  or time.monotonic() - self._queued_since_s >= MERGE_WAIT_S):
@@ -422,26 +442,31 @@ class FleetLink(CountsRefusals):
         return None if error is not None else len(new)
 
     def _store_batch(self, events: list[AnyEvent]):
-        """(stored, not yet tried, error): a batch call is all or nothing; one call per event
-        stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not held long.
+        """Return (stored, not yet tried, error): a batch call is all or nothing.
+
+        One call per event stops after MERGE_TICK_BUDGET_S, so the owner's other callbacks are not
+        held long.
 
         A write that fails because of the store (refused_by_store: disk full, read-only, I/O)
         keeps the events for the next try.  One that fails because of its events (a value
         the store cannot hold, which the decoder should have refused) must not hold the
         queue forever: the culprits are found by halving and dropped, counted and logged,
-        and the rest of the batch is stored."""
+        and the rest of the batch is stored.
+        """
         whole = self._append_many or (None if self._append is not None
                                       else lambda batch: append_batch(self._store, batch))
         if whole is not None:
             return self._isolated(whole, events)
         stored: list[AnyEvent] = []
+        append = self._append
+        assert append is not None   # else `whole` took the batch
         deadline_s = time.monotonic() + MERGE_TICK_BUDGET_S
         for i, e in enumerate(events):
             if i and time.monotonic() > deadline_s:
                 return stored, events[i:], None
             try:
                 new = (bool(self._store.append_asks([e])) if isinstance(e, AskEvent)
-                       else self._append(e))
+                       else append(e))
                 if new:
                     stored.append(e)
             except Exception as exc:
@@ -451,8 +476,10 @@ class FleetLink(CountsRefusals):
         return stored, [], None
 
     def _isolated(self, whole, events: list[AnyEvent]):
-        """`whole(events)`; if it raises for its events, each half on its own, down to the
-        single events that fail alone (about 2 log2(n) writes for one culprit in n)."""
+        """`whole(events)`; if it raises for its events, each half on its own.
+
+        Down to the single events that fail alone (about 2 log2(n) writes for one culprit in n).
+        """
         stored: list[AnyEvent] = []
         parts = [events]
         while parts:
@@ -480,8 +507,7 @@ class FleetLink(CountsRefusals):
 
 # -- a small stand-alone peer (tests, trying the exchange by hand) ------------------------
 def run_peer(argv: list[str] | None = None) -> int:
-    """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'counts',
-    'quit'.
+    """Line protocol on stdin: 'outcome RAW_ID RESULT TIME_S', 'belief RAW_ID', 'counts', 'quit'.
 
     Prints 'ready', 'ack EVENT_ID', 'merged EVENT_ID', 'belief A B' (repr floats),
     'counts merged=N refused=N <reason>=N ...'.
@@ -511,7 +537,12 @@ def run_peer(argv: list[str] | None = None) -> int:
 
     rclpy.init()
     node = rclpy.create_node(f"fleet_peer_{args.robot_id}")
-    link = FleetLink(node, store, lambda evs: [say(f"merged {e.event_id}") for e in evs],
+
+    def merged(evs: list[AnyEvent]) -> None:
+        for e in evs:
+            say(f"merged {e.event_id}")
+
+    link = FleetLink(node, store, merged,
                      depth=args.depth, topic=args.topic)
     executor = SingleThreadedExecutor()
     executor.add_node(node)
@@ -532,7 +563,7 @@ def run_peer(argv: list[str] | None = None) -> int:
                     link.publish(e)
                 say(f"ack {e.event_id}")
             elif parts[0] == "belief":
-                b, _ = store.belief(store.key_for(parts[1]))
+                b, _ = store.belief(store.key_for(parts[1]), SiteModel())   # open_store's model
                 say(f"belief {b.a!r} {b.b!r}")
             elif parts[0] == "counts":
                 say(f"counts merged={link.merged_count} refused={link.refused_count} "

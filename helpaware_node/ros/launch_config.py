@@ -13,7 +13,7 @@ import signal
 import subprocess
 import sys
 from dataclasses import dataclass, field
-from typing import Mapping, Optional, Sequence
+from typing import Any, Mapping, Optional, Sequence
 
 from .. import package_data
 
@@ -66,7 +66,8 @@ DECIDER_ARGUMENTS: tuple[LaunchArgument, ...] = (
     LaunchArgument("namespace", "", "namespace of the node, e.g. robot1"),
     *(LaunchArgument(f"{src}_topic", dst, f"topic the node's `{src}` is remapped to")
       for src, dst in REMAPS),
-    LaunchArgument("use_sim_time", "false", "true: decide in /clock time (simulation, bag replay)"),
+    LaunchArgument("use_sim_time", "false",
+                   "true: decide in /clock time (simulation, bag replay)"),
     LaunchArgument("respawn", "false", "true: start the node again when it dies"),
     LaunchArgument("respawn_delay_s", "2.0", "seconds before a respawn"),
 )
@@ -81,32 +82,37 @@ LOOP_ARGUMENTS: tuple[LaunchArgument, ...] = DECIDER_ARGUMENTS[:2] + (
 
 
 def config_dir() -> str:
-    """The installed share/<package>/config, else the source tree's config/."""
+    """Return the installed share/<package>/config, else the source tree's config/."""
     return package_data.data_dir("config")
 
 
 def params_file(name: str = DEFAULT_PARAMS_FILE) -> str:
-    """A parameter file by name (config/) or by path (see package_data.data_file)."""
+    """Return a parameter file by name (config/) or by path (see package_data.data_file)."""
     return package_data.data_file("config", name)
 
 
 def middleware_profile() -> str:
-    """The shipped Fast DDS profile for the whole robot ('' if it is not installed)."""
+    """Return the shipped Fast DDS profile for the whole robot ('' if it is not installed)."""
     path = os.path.join(config_dir(), MIDDLEWARE_PROFILE_FILE)
     return path if os.path.isfile(path) else ""
 
 
 def profile_environment(base: Mapping[str, str]) -> dict:
-    """What to add to `base` for the robot's middleware profile: nothing when `base` names a
-    profile of its own (or the file is not installed)."""
+    """Return what to add to `base` for the robot's middleware profile.
+
+    Nothing when `base` names a profile of its own (or the file is not installed).
+    """
     if base.get(PROFILE_ENV) or base.get(PROFILE_ENV_OLD) or not middleware_profile():
         return {}
     return {PROFILE_ENV: middleware_profile()}
 
 
 def executable(name: str = EXECUTABLE) -> list[str]:
-    """The installed executable (lib/<package>/<name> under the ament prefix or the venv),
-    else `python -m` on the module, so a plain source checkout still runs."""
+    """Return the command that starts the installed executable.
+
+    The installed executable (lib/<package>/<name> under the ament prefix or the venv), else
+    `python -m` on the module, so a plain source checkout still runs.
+    """
     found = package_data.executable(name)
     if found:
         return [found]
@@ -121,6 +127,7 @@ def _ros_value(value: object) -> str:
 @dataclass(frozen=True)
 class NodeSpec:
     """One node as it is started: by launch_ros (launch_kwargs) or as a process (command)."""
+
     executable: str
     name: str
     namespace: str = ""
@@ -148,18 +155,22 @@ class NodeSpec:
         return args
 
     def command(self) -> list[str]:
-        """The process's command line (what `ros2 run` would start, with these arguments)."""
+        """Return the process's command line (what `ros2 run` would start, with these args)."""
         return executable(self.executable) + self.ros_arguments()
 
     def launch_kwargs(self) -> dict:
-        """Keyword arguments of launch_ros.actions.Node for this node (see
-        LAUNCH_ROS_NODE_KWARGS for the releases they exist in)."""
+        """Return the keyword arguments of launch_ros.actions.Node for this node.
+
+        Keyword arguments of launch_ros.actions.Node for this node (see LAUNCH_ROS_NODE_KWARGS for
+        the releases they exist in).
+        """
         parameters: list = [self.params_file] if self.params_file else []
         if self.overrides:
             parameters.append(dict(self.overrides))
-        kwargs = {"package": PACKAGE, "executable": self.executable, "name": self.name,
-                  "namespace": self.fully_qualified_namespace or None, "parameters": parameters,
-                  "remappings": list(self.remaps)}
+        kwargs: dict[str, Any] = {
+            "package": PACKAGE, "executable": self.executable, "name": self.name,
+            "namespace": self.fully_qualified_namespace or None, "parameters": parameters,
+            "remappings": list(self.remaps)}
         if self.respawn:
             kwargs.update(respawn=True, respawn_delay=self.respawn_delay_s)
         profile = profile_environment(os.environ)   # launch's environment, which nodes inherit
@@ -182,7 +193,7 @@ def decider(params: Optional[str] = None, namespace: str = "",
             remaps: Sequence[tuple[str, str]] = REMAPS,
             overrides: Optional[Mapping[str, object]] = None,
             respawn: bool = False, respawn_delay_s: float = 0.0) -> NodeSpec:
-    """The decision node, with a parameter file from config/ (by name) or a path."""
+    """Return the decision node, with a parameter file from config/ (by name) or a path."""
     return NodeSpec(EXECUTABLE, NODE_NAME, namespace, params_file(params or DEFAULT_PARAMS_FILE),
                     tuple((s, d) for s, d in remaps if s != d), dict(overrides or {}),
                     respawn, respawn_delay_s)
@@ -218,7 +229,7 @@ def _float_argument(values: Mapping[str, str], name: str, default: str,
 
 
 def decider_from_arguments(values: Mapping[str, str]) -> NodeSpec:
-    """The decider from launch argument values (strings, as `ros2 launch` passes them)."""
+    """Return the decider from launch argument values (strings, as `ros2 launch` passes them)."""
     defaults = {a.name: a.default for a in DECIDER_ARGUMENTS}
     get = lambda name: str(values.get(name, defaults[name]))  # noqa: E731
     overrides = {"use_sim_time": True} if _bool_argument(values, "use_sim_time") else {}
@@ -235,7 +246,7 @@ RESULTS = ("helped", "declined", "no_response", "could_not_ask")
 
 
 def loop_from_arguments(values: Mapping[str, str]) -> list[NodeSpec]:
-    """The decider and the three stand-ins, for launch/example_loop.launch.py."""
+    """Return the decider and the three stand-ins, for launch/example_loop.launch.py."""
     defaults = {a.name: a.default for a in LOOP_ARGUMENTS}
     ns = str(values.get("namespace", defaults["namespace"]))
     period = _float_argument(values, "stuck_period_s", defaults["stuck_period_s"], 1.0, 86400.0)
@@ -261,9 +272,11 @@ def command(**kwargs) -> list[str]:
 
 def start(stdout=None, stderr=None, env: Optional[Mapping[str, str]] = None,
           spec: Optional[NodeSpec] = None, **kwargs) -> subprocess.Popen:
-    """Start a node (the decider unless `spec` says otherwise) as its own process. It inherits
-    ROS_DOMAIN_ID and ROS_AUTOMATIC_DISCOVERY_RANGE from `env` (default: this process), and
-    the robot's middleware profile as `profile_environment` says."""
+    """Start a node (the decider unless `spec` says otherwise) as its own process.
+
+    It inherits ROS_DOMAIN_ID and ROS_AUTOMATIC_DISCOVERY_RANGE from `env` (default: this process),
+    and the robot's middleware profile as `profile_environment` says.
+    """
     spec = spec or decider(**kwargs)
     base = dict(env if env is not None else os.environ)
     return subprocess.Popen(spec.command(), stdout=stdout, stderr=stderr,

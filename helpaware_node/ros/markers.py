@@ -61,8 +61,11 @@ def marker_array(markers: Iterable[Marker]) -> MarkerArray:
 
 
 class PersonMarkers:
-    """The markers of the people in view: belief mean and what the last decision did with
-    each ("asked" / "passed over"); people who left get a delete."""
+    """The markers of the people in view.
+
+    Belief mean and what the last decision did with each ("asked" / "passed over"); people who left
+    get a delete.
+    """
 
     def __init__(self) -> None:
         self._ids = MarkerIds()
@@ -107,8 +110,11 @@ class PersonMarkers:
         return marker_array(markers) if markers else None
 
     def reset(self, seen: dict) -> None:
-        """Nobody listens: build nothing, keep only what the people in view need (a late
-        subscriber gets fresh markers; the ones shown before expire by their lifetime)."""
+        """Nobody listens: build nothing.
+
+        Keep only what the people in view need (a late subscriber gets fresh markers; the ones
+        shown before expire by their lifetime).
+        """
         self._marked.clear()
         self._markers.clear()
         for pid in [p for p in self._last_action if p not in seen]:

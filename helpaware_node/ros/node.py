@@ -14,19 +14,19 @@ site-wide, absolute by default: parameters fleet_topic and privacy_topic):
 Wiring only: messages become events of the help session (helpaware_node/session: needs, asks,
 limits, every decision through core.policy.decide); its Steps come back as documents, fleet
 events and log lines. Site learning (site_learning.py) refits the site constants in a worker
-process (a thread where none can start); the housekeeping timer puts a new revision in force. Beside this file: fleet.py,
-store_retry.py, diagnostics.py, markers.py, site_learning.py.
+process (a thread where none can start); the housekeeping timer puts a new revision in force.
+Beside this file: fleet.py, store_retry.py, diagnostics.py, markers.py, site_learning.py.
 """
 from __future__ import annotations
 
 import re
 import sys
 import time
-from typing import Optional
+from typing import Any, Optional
 
 import rclpy
 from rclpy._rclpy_pybind11 import RCLError
-from rclpy.clock import Clock, ClockType
+from rclpy.clock import Clock, ClockType, ROSClock
 from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
 from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
@@ -38,6 +38,7 @@ from ..core.model import CoreInputError
 from ..session import HelpSession, Step, StoreStatus
 from ..session.state import MAX_GOAL_STATUSES
 from ..store import default_store_path, open_store
+from ..store.base import BeliefStore
 from ..store.jobs import StoreJobs
 from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
@@ -71,8 +72,8 @@ class HelpAwareNode(LifecycleNode):
             super().__init__(node_name, **kwargs)
         except rclpy.exceptions.ParameterException as exc:   # e.g. use_sim_time: 1 in a file
             raise StartupError(f"parameters refused: {exc}") from exc
-        self.store = None
-        self.session: Optional[HelpSession] = None   # made at configure, with the store
+        self.store: Optional[BeliefStore] = None
+        self._session: Optional[HelpSession] = None   # made at configure, with the store
         self.held: Optional[HeldOutcomes] = None
         self.learning: Optional[NodeLearning] = None  # site learning, made at configure
         self.store_jobs: Optional[StoreJobs] = None   # forget/opt-out/compaction off the executor
@@ -87,7 +88,7 @@ class HelpAwareNode(LifecycleNode):
         self.side_refusals = diag.SideRefusals()
         self.log_lines = LogThrottle()      # per-document lines: by kind, bounded (diagnostics)
         self._active = False
-        self._entities = []
+        self._entities: list[Any] = []   # timers, publishers, subscriptions
         self._configure_error = ""
         if self.params.settings.autostart:
             self.trigger_configure()
@@ -99,6 +100,16 @@ class HelpAwareNode(LifecycleNode):
                                    f"managed node, autostart:=false, would stay unconfigured "
                                    f"for its manager instead)")
             self.trigger_activate()
+
+    @property
+    def session(self) -> HelpSession:
+        """Return the help session.
+
+        Made at configure (every callback that uses it starts there).
+        """
+        if self._session is None:
+            raise RuntimeError("the node is not configured yet: it has no help session")
+        return self._session
 
     @property
     def _store_file(self) -> str:
@@ -120,9 +131,9 @@ class HelpAwareNode(LifecycleNode):
                                                  self._store_file), self.get_name())
             self.store.use_model(self.model_in_force)
             # the asks made before this start (own of the last hour) are loaded here
-            self.session = HelpSession(self.store, self.model_in_force, self.params.config,
-                                       s.session_rules(), now_s=self.now_s(), writer=self.held,
-                                       status=status)
+            self._session = HelpSession(self.store, self.model_in_force, self.params.config,
+                                        s.session_rules(), now_s=self.now_s(), writer=self.held,
+                                        status=status)
             self.session.active = False
         except Exception as exc:  # an unreadable store must not start a node that forgets
             self._configure_error = f"{label} could not open: {exc}"
@@ -148,7 +159,10 @@ class HelpAwareNode(LifecycleNode):
         return TransitionCallbackReturn.SUCCESS
 
     def _create_entities(self, s) -> None:
-        """Publishers, subscriptions, timers, fleet link and privacy requests (configure)."""
+        """Create publishers, subscriptions, timers, fleet link and privacy requests.
+
+        Fleet link and privacy requests (configure).
+        """
         from rclpy.event_handler import SubscriptionEventCallbacks, PublisherEventCallbacks
         sub_events = SubscriptionEventCallbacks(incompatible_qos=self._on_qos_incompatible)
         pub_events = PublisherEventCallbacks(incompatible_qos=self._on_qos_incompatible)
@@ -243,11 +257,13 @@ class HelpAwareNode(LifecycleNode):
 
     def destroy_node(self) -> None:
         # getattr: destroy_node also runs for a node whose parameters were refused
-        if getattr(self, "held", None) is not None:
-            self.held.report_at_stop()
+        held = getattr(self, "held", None)
+        if held is not None:
+            held.report_at_stop()
         self._finish_store_jobs()
-        if getattr(self, "store", None) is not None:
-            self.store.close()
+        store = getattr(self, "store", None)
+        if store is not None:
+            store.close()
             self.store = None
         super().destroy_node()
 
@@ -256,17 +272,25 @@ class HelpAwareNode(LifecycleNode):
         return self.get_clock().now().nanoseconds * 1e-9
 
     def _read_clock(self) -> float:
-        """The node's time, with a jump of system time against the steady clock followed
-        by the session (sim time is the truth and is not followed)."""
+        """Return the node's time; the session follows a jump of system time.
+
+        The node's time, with a jump of system time against the steady clock followed by the
+        session (sim time is the truth and is not followed).
+        """
         now = self.now_s()
-        steady = None if self.get_clock().ros_time_is_active else time.monotonic()
+        clock = self.get_clock()
+        sim_time = isinstance(clock, ROSClock) and clock.ros_time_is_active
+        steady = None if sim_time else time.monotonic()
         self._apply(self.session.clock(now, steady))
         return now
 
     @property
     def model_in_force(self):
-        """The site model decisions use: the parameter values, with the learned constants
-        over them when site_learning is apply and a revision exists."""
+        """Return the site model decisions use.
+
+        The parameter values, with the learned constants over them when site_learning is apply and
+        a revision exists.
+        """
         return self.learning.current if self.learning is not None else self.params.model
 
     @property
@@ -278,8 +302,11 @@ class HelpAwareNode(LifecycleNode):
         return params_hash(self.model_in_force, self.params.config)
 
     def _reject(self, topic: str, reason: str) -> None:
-        """Count and log a refused document: one line per topic and field at once, then at
-        most one a minute with the number since (every count is in /diagnostics)."""
+        """Count and log a refused document.
+
+        One line per topic and field at once, then at most one a minute with the number since
+        (every count is in /diagnostics).
+        """
         self.counters.reject(topic, reason)
         field = re.sub(r"\[\d+\]", "[]", reason.partition(":")[0])[:60]
         text = self.log_lines.due(f"rejected.{topic}.{field}",
@@ -288,8 +315,10 @@ class HelpAwareNode(LifecycleNode):
             self.get_logger().warning(text)
 
     def _failed(self, topic: str, exc: BaseException) -> None:
-        """Handling one document raised something that is not a refusal: contained, counted
-        apart (a defect to report) and as a rejection; the robot carries on."""
+        """Count and log a document whose handling raised something that is not a refusal.
+
+        Contained, counted apart (a defect to report) and as a rejection; the robot carries on.
+        """
         self.counters.failed[topic] += 1
         self._reject(topic, f"document: could not be handled ({exception_text(exc)})")
 
@@ -298,17 +327,20 @@ class HelpAwareNode(LifecycleNode):
         self.get_logger().warning(f"incompatible QoS: {event}", throttle_duration_sec=5.0)
 
     def _on_parameters_changed(self) -> None:
-        if getattr(self, "learning", None) is not None:
+        learning = getattr(self, "learning", None)
+        if learning is not None:
             # the parameter values are the shrinkage target; a changed mode may put the file's
             # values back in force (off, propose) or the learned ones (apply)
-            self.learning.set_parameters(self.params.model,
-                                         self.params.settings.learning_settings())
-        if getattr(self, "session", None) is not None:
+            learning.set_parameters(self.params.model, self.params.settings.learning_settings())
+        if getattr(self, "_session", None) is not None:
             self._use_model(self.model_in_force)
 
     def _use_model(self, model) -> None:
-        """Put a site model in force: beliefs are folded under it from now on (lazily, as
-        each person is next read), new people start at its prior."""
+        """Put a site model in force.
+
+        Beliefs are folded under it from now on (lazily, as each person is next read), new people
+        start at its prior.
+        """
         self.session.set_parameters(model, self.params.config,
                                     self.params.settings.session_rules())
         if self.store is not None:
@@ -362,8 +394,11 @@ class HelpAwareNode(LifecycleNode):
             self._failed("outcome", exc)
 
     def _on_navigation_status(self, msg) -> None:
-        """A status array: its last MAX_GOAL_STATUSES entries, at most one new need (from its
-        newest aborted goal), so any array takes bounded time (session.navigation_status)."""
+        """Take a navigation status array.
+
+        Its last MAX_GOAL_STATUSES entries, at most one new need (from its newest aborted goal), so
+        any array takes bounded time (session.navigation_status).
+        """
         self.counters.received["navigation_status"] += 1
         try:
             entries = msg.status_list
@@ -400,19 +435,19 @@ class HelpAwareNode(LifecycleNode):
         for event in step.share:
             self.fleet.publish(event)     # stored here first: shared only once durable
         for note in step.notes:           # by kind, bounded: a document may cause a note
-            text = self.log_lines.due(note.kind or note.level, note.text,
+            line = self.log_lines.due(note.kind or note.level, note.text,
                                       note.throttle_s or None)
-            if text is None:
+            if line is None:
                 continue
             if note.level == "error":     # one call site per severity (rclpy's rule)
-                self.get_logger().error(text)
+                self.get_logger().error(line)
             elif note.level == "warning":
-                self.get_logger().warning(text)
+                self.get_logger().warning(line)
             else:
-                self.get_logger().info(text)
+                self.get_logger().info(line)
 
     def _on_store_jobs(self) -> None:
-        """The worker finished store jobs: their reports (answers to requests) run here."""
+        """Run the reports of store jobs the worker finished (answers to requests)."""
         try:
             if self.store_jobs is not None:
                 self.store_jobs.poll()
@@ -424,7 +459,7 @@ class HelpAwareNode(LifecycleNode):
                 self.get_logger().error(text)
 
     def _finish_store_jobs(self) -> None:
-        """A forget or opt-out asked for is written before the store closes."""
+        """Write a forget or opt-out asked for before the store closes."""
         jobs, self.store_jobs = getattr(self, "store_jobs", None), None
         if jobs is not None:
             try:
@@ -435,6 +470,7 @@ class HelpAwareNode(LifecycleNode):
 
     def _housekeeping(self) -> None:
         try:
+            assert self.held is not None and self.learning is not None   # made at configure
             self.held.retry()
             now = self._read_clock()
             learned = self.learning.poll(now)      # a refit finished in its worker: in force now
@@ -460,8 +496,9 @@ class HelpAwareNode(LifecycleNode):
                    + self.side_refusals.new_since_tick(self))
         level, message = diag.level_for(new_rej, self.counters.qos_incompatible,
                                         self.session.status.ok)
-        if self.held.waiting:
-            message = (f"store refuses writes: asking paused, {self.held.waiting} outcome(s) "
+        waiting = self.held.waiting if self.held is not None else 0
+        if waiting:
+            message = (f"store refuses writes: asking paused, {waiting} outcome(s) "
                        f"held in memory ({self.session.status.error})")[:250]
         level, message = self.input_watch.report(   # the input watchdog: silent topics
             time.monotonic(), diag.silence_limits_s(self.params.settings), values, level, message)

@@ -51,7 +51,8 @@ class ParamSpec:
 
 
 def _m(name, desc, units, low, high):
-    return ParamSpec(name, float(getattr(MODEL_DEFAULTS, name)), desc, units, low, high, group="model")
+    return ParamSpec(name, float(getattr(MODEL_DEFAULTS, name)), desc, units, low, high,
+                     group="model")
 
 
 def _c(name, desc, units, low, high):
@@ -64,11 +65,15 @@ MODEL_PARAMS = [
     _m("prior_a", "a0 of the Beta prior on willingness", "pseudo-helps", 1e-6, 1e6),
     _m("prior_b", "b0 of the Beta prior on willingness", "pseudo-declines", 1e-6, 1e6),
     _m("k_busy", "weight of busyness in the context factor c", "1 per unit busyness", 0.0, 50.0),
-    _m("k_load", "weight of recent asks in the context factor c", "1 per unit ask load", 0.0, 50.0),
-    _m("notice_probability", "chance a person noticed an ask they did not answer", "probability", 0.0, 1.0),
+    _m("k_load", "weight of recent asks in the context factor c", "1 per unit ask load", 0.0,
+       50.0),
+    _m("notice_probability", "chance a person noticed an ask they did not answer", "probability",
+       0.0, 1.0),
     _m("ask_memory_half_life_s", "half-life of the ask load", "seconds", 1e-3, 1e9),
-    _m("evidence_half_life_s", "half-life of forgetting towards the prior (0 disables)", "seconds", 0.0, 1e12),
-    _m("default_busyness", "busyness used when perception gives none", "fraction [0, 1]", 0.0, 1.0),
+    _m("evidence_half_life_s", "half-life of forgetting towards the prior (0 disables)", "seconds",
+       0.0, 1e12),
+    _m("default_busyness", "busyness used when perception gives none", "fraction [0, 1]", 0.0,
+       1.0),
 ]
 
 CONFIG_PARAMS = [
@@ -78,11 +83,15 @@ CONFIG_PARAMS = [
     _c("busy_cost", "extra interruption per unit busyness", "factor", 0.0, 1e9),
     _c("repeat_cost", "extra interruption per unit ask load", "factor", 0.0, 1e9),
     _c("urgency_cost_gain", "C_r = base * (1 + gain * urgency)", "factor", 0.0, 1e9),
-    _c("default_continue_cost_s", "continue cost of a kind without its own", "robot-seconds", 0.0, 1e9),
-    _c("typical_busyness", "busyness of a typical future request (information value)", "fraction [0, 1]", 0.0, 1.0),
-    _c("typical_continue_cost_s", "continue cost of a typical future request", "robot-seconds", 0.0, 1e9),
+    _c("default_continue_cost_s", "continue cost of a kind without its own", "robot-seconds", 0.0,
+       1e9),
+    _c("typical_busyness", "busyness of a typical future request (information value)",
+       "fraction [0, 1]", 0.0, 1.0),
+    _c("typical_continue_cost_s", "continue cost of a typical future request", "robot-seconds",
+       0.0, 1e9),
     _c("lookahead_horizon_s", "future requests counted up to this far ahead", "seconds", 0.0, 1e9),
-    _c("future_discount_time_s", "exponential discount time of later requests", "seconds", 1e-3, 1e12),
+    _c("future_discount_time_s", "exponential discount time of later requests", "seconds", 1e-3,
+       1e12),
     _c("prior_candidate_rate_per_day", "prior mean rate at which a never-seen person is a "
        "candidate again (most are never seen again)", "per day", 0.0, 1e9),
     _c("prior_rate_window_s", "weight of that prior rate", "seconds", 1e-3, 1e12),
@@ -94,7 +103,8 @@ CONFIG_PARAMS = [
        MAX_ASKS_CAP),
     _c("busyness_limit", "never ask at or above this busyness", "fraction [0, 1]", 0.0, 1.0),
     _c("max_distance_m", "never ask someone farther away", "metres", 0.0, 1e6),
-    _c("max_observation_age_s", "never ask on an observation older than this", "seconds", 0.0, 1e9),
+    _c("max_observation_age_s", "never ask on an observation older than this", "seconds", 0.0,
+       1e9),
     ParamSpec("protected_activities", list(CONFIG_DEFAULTS.protected_activities),
               "activity labels whose people are never asked", "labels", group="config"),
 ]
@@ -102,7 +112,8 @@ CONFIG_PARAMS = [
 NODE_PARAMS = [
     ParamSpec("robot_id", "", "robot id in event ids (empty: HELPAWARE_ROBOT_ID or host name)",
               "text", read_only=True),
-    ParamSpec("store_path", "", "belief store file (empty: ROS_HOME or ~/.ros, then helpaware/beliefs.sqlite3; "
+    ParamSpec("store_path", "",
+              "belief store file (empty: ROS_HOME or ~/.ros, then helpaware/beliefs.sqlite3; "
               "'memory': kept in this process only, lost at exit)", "path",
               read_only=True),
     ParamSpec("navigation_status_topic", "",
@@ -113,11 +124,13 @@ NODE_PARAMS = [
               read_only=True),
     ParamSpec("autostart", True, "managed mode: configure and activate by itself at start-up",
               "flag", read_only=True),
-    ParamSpec("pending_ask_timeout_s", 120.0, "an ask without outcome expires after this (no belief change)",
+    ParamSpec("pending_ask_timeout_s", 120.0,
+              "an ask without outcome expires after this (no belief change)",
               "seconds", 1.0, 86400.0),
     ParamSpec("max_asks_per_need", 2, "asks at one help need before the robot carries on alone",
               "asks", 1, 100),
-    ParamSpec("diagnostics_period_s", 1.0, "period of /diagnostics and markers", "seconds", 0.1, 60.0,
+    ParamSpec("diagnostics_period_s", 1.0, "period of /diagnostics and markers", "seconds", 0.1,
+              60.0,
               read_only=True),
     ParamSpec("asking_enabled", True, "operator switch: false means always continue", "flag"),
     ParamSpec("count_peer_asks", True,
@@ -164,7 +177,7 @@ NODE_PARAMS = [
 
 
 def model_ranges() -> dict[str, tuple[float, float]]:
-    """The declared range of each model parameter (site learning stays inside them)."""
+    """Return the declared range of each model parameter (site learning stays inside them)."""
     return {s.name: (float(s.low), float(s.high)) for s in MODEL_PARAMS}
 
 
@@ -208,7 +221,7 @@ class NodeSettings:
                                 every_s=self.site_learning_every_s)
 
     def session_rules(self):
-        """The help session's rules from these settings (session.SessionRules)."""
+        """Return the help session's rules from these settings (session.SessionRules)."""
         from ..session import SessionRules
         return SessionRules(max_asks_per_need=self.max_asks_per_need,
                             pending_ask_timeout_s=self.pending_ask_timeout_s,
@@ -248,10 +261,11 @@ def build(values: dict[str, Any], pairs: bool = True
         raise CoreInputError(f"privacy_topic: must differ from fleet_topic "
                              f"({node_values['fleet_topic']!r})")
     for s in NODE_PARAMS:
-        if s.low is not None and s.name in node_values:
+        if s.low is not None and s.high is not None and s.name in node_values:
             v = node_values[s.name]
             if not (isinstance(v, (int, float)) and math.isfinite(v) and s.low <= v <= s.high):
-                raise CoreInputError(f"{s.name}: {v!r} is outside the allowed range [{s.low:g}, {s.high:g}]")
+                raise CoreInputError(f"{s.name}: {v!r} is outside the allowed range "
+                                     f"[{s.low:g}, {s.high:g}]")
     return model, config, NodeSettings(**node_values)
 
 
@@ -278,7 +292,8 @@ class NodeParameters:
         # registered before any declaration, so file overrides are checked too
         node.add_on_set_parameters_callback(self._check)
         kind_desc = ParameterDescriptor(description=_describe(NODE_PARAMS[3]), read_only=True)
-        kinds = node.declare_parameter(KINDS_PARAM, list(DEFAULT_CONTINUE_COSTS_S), kind_desc).value
+        kinds = node.declare_parameter(KINDS_PARAM, list(DEFAULT_CONTINUE_COSTS_S),
+                                       kind_desc).value
         if kinds is None:
             raise CoreInputError(f"{KINDS_PARAM}: {_EMPTY_LIST}")
         kinds = [k for k in kinds if k]
@@ -291,7 +306,9 @@ class NodeParameters:
             if spec.name == KINDS_PARAM:
                 continue
             desc = ParameterDescriptor(description=_describe(spec), read_only=spec.read_only)
-            if spec.type_name == "double":
+            if spec.low is None or spec.high is None:
+                pass   # no range to declare
+            elif spec.type_name == "double":
                 desc.floating_point_range = [FloatingPointRange(
                     from_value=float(spec.low), to_value=float(spec.high), step=0.0)]
             elif spec.type_name == "integer":
@@ -337,7 +354,7 @@ _EMPTY_LIST = ("has no value: an empty list [] carries no type in a ROS 2 parame
 
 
 def _check_topic(node, name: str, topic: str) -> None:
-    """A topic name rclpy cannot resolve would fail the configure step with no message."""
+    """Refuse a topic name rclpy cannot resolve (configure would fail with no message)."""
     if not topic:
         return
     try:
@@ -369,13 +386,17 @@ def markdown_table() -> str:
             "|---|---|---|---|---|---|---|"]
     for s in all_specs():
         rng = f"[{s.low:g}, {s.high:g}]" if s.low is not None else "-"
-        rows.append(f"| `{s.name}` | {s.type_name} | `{_fmt_default(s.default)}` | {rng} | {s.units} | "
+        rows.append(f"| `{s.name}` | {s.type_name} | `{_fmt_default(s.default)}` | {rng} | "
+                    f"{s.units} | "
                     f"{'no' if s.read_only else 'yes'} | {s.description} |")
     return "\n".join(rows)
 
 
 def yaml_text(node_name: str, overrides: Optional[dict] = None) -> str:
-    """A parameter file keyed by the node name, floats always written with a decimal point."""
+    """Return a parameter file keyed by the node name.
+
+    Floats always written with a decimal point.
+    """
     overrides = overrides or {}
     lines = [f"/**/{node_name}:", "  ros__parameters:"]  # this node name in any namespace
     for s in all_specs():

@@ -36,8 +36,11 @@ ALLOW_UNSIGNED_PARAM = "allow_unsigned_privacy_requests"
 
 
 class PrivacyRequests(CountsRefusals):
-    """The node's privacy topic.  `fleet` (a FleetLink) applies and passes on each request;
-    `on_applied(action, key)` lets the node drop what it holds in memory at once."""
+    """The node's privacy topic.
+
+    `fleet` (a FleetLink) applies and passes on each request; `on_applied(action, key)` lets the
+    node drop what it holds in memory at once.
+    """
 
     def __init__(self, node, store, fleet=None,
                  on_applied: Optional[Callable[[str, str], None]] = None,
@@ -60,8 +63,10 @@ class PrivacyRequests(CountsRefusals):
                                       "ROS graph can opt people out and erase them (lab only)")
 
     def apply(self, text: str) -> tuple[str, str]:
-        """(action, person_key) of a request applied now (or applied here before); raises
-        CoreInputError (signing.Refused for a signature reason) for a refused one."""
+        """Apply a request now and return its (action, person_key) (or those applied here before).
+
+        Raises CoreInputError (signing.Refused for a signature reason) for a refused one.
+        """
         what = self.topic
         doc = load_document(text, what)
         if "v" not in doc:                          # the unsigned lab form
@@ -97,8 +102,9 @@ class PrivacyRequests(CountsRefusals):
         else:
             self._store.forget(key)
 
-    def diagnostic_values(self) -> dict:
-        values = {f"privacy_request.refused.{r}": self.refusals[r] for r in PRIVACY_REFUSALS}
+    def diagnostic_values(self) -> dict[str, object]:
+        values: dict[str, object] = {f"privacy_request.refused.{r}": self.refusals[r]
+                                     for r in PRIVACY_REFUSALS}
         values.update({"privacy_request.applied": self.applied_count,
                        "privacy_request.duplicates": self.duplicate_count,
                        "privacy_request.store_failures": self.store_failures,
@@ -108,10 +114,12 @@ class PrivacyRequests(CountsRefusals):
         return values
 
     def _on_message(self, msg: String) -> None:
-        """One request: applied, or refused and counted by reason; whatever it does is
-        contained here. Applied requests are logged like refusals (the first of each kind at
-        once, then at most one line a minute with the number since; counts in /diagnostics),
-        so a flood of valid requests is no flood of lines."""
+        """One request: applied, or refused and counted by reason.
+
+        Whatever it does is contained here. Applied requests are logged like refusals (the first of
+        each kind at once, then at most one line a minute with the number since; counts in
+        /diagnostics), so a flood of valid requests is no flood of lines.
+        """
         n = self.duplicate_count
         try:
             action, key = self.apply(msg.data)
@@ -147,9 +155,12 @@ def console_name() -> str:
 
 def open_console(context, on_fleet: Callable[[String], None], topic: str = PRIVACY_TOPIC,
                  fleet_topic: str = ""):
-    """The console's node: publishes on the privacy topic, reads the fleet topic, and has
-    nothing else (no parameter services, no /rosout), so its SROS2 profile stays small
-    (config/sros2/helpaware.policy.xml).  Returns (node, publisher)."""
+    """Return the console's node.
+
+    Publishes on the privacy topic, reads the fleet topic, and has nothing else (no parameter
+    services, no /rosout), so its SROS2 profile stays small (config/sros2/helpaware.policy.xml).
+    Returns (node, publisher).
+    """
     import rclpy
     from .fleet import FLEET_TOPIC, fleet_reader_qos
     node = rclpy.create_node(CONSOLE_NODE, context=context, start_parameter_services=False,

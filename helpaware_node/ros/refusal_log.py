@@ -1,8 +1,10 @@
-"""Log lines that documents cause, bounded: counted by kind, the first logged at once, the rest
-at most once a period with their number.  Refused documents on a side topic go through it, and
-so do the node's per-document notes (an unknown request resolved, a privacy request applied):
-valid but pointless documents at any rate give a few lines a minute, and the counts go to
-/diagnostics."""
+"""Log lines that documents cause, bounded.
+
+Counted by kind, the first logged at once, the rest at most once a period with their number.
+Refused documents on a side topic go through it, and so do the node's per-document notes (an
+unknown request resolved, a privacy request applied): valid but pointless documents at any rate
+give a few lines a minute, and the counts go to /diagnostics.
+"""
 from __future__ import annotations
 
 import time
@@ -19,15 +21,20 @@ HANDLER_ERROR = "handler_error"     # a document whose handling failed for no na
 
 
 class HandlerFailure(CoreInputError):
-    """Handling one document raised something other than a refusal: contained and counted
-    under HANDLER_ERROR (a defect to report; the tests hold this count at zero)."""
+    """Handling one document raised something other than a refusal.
+
+    Contained and counted under HANDLER_ERROR (a defect to report; the tests hold this count at
+    zero).
+    """
 
     reason = HANDLER_ERROR
 
 
 def exception_text(exc: BaseException, limit: int = 200) -> str:
-    """`Type: message` of any exception, bounded; never fails (a KeyError's text is the repr of
-    its key, which may be nested too deep to print)."""
+    """`Type: message` of any exception, bounded.
+
+    Never fails (a KeyError's text is the repr of its key, which may be nested too deep to print).
+    """
     try:
         text = str(exc)
     except Exception:  # noqa: BLE001 - RecursionError, a huge integer, a broken __str__
@@ -36,9 +43,11 @@ def exception_text(exc: BaseException, limit: int = 200) -> str:
 
 
 class LogThrottle:
-    """Lines by kind: the first of each kind goes out at once, later ones at most once per
-    `period_s` (the line then says how many were held back); every one is counted.  `clock`
-    is a steady clock in seconds."""
+    """Lines by kind: the first of each kind goes out at once.
+
+    Later ones at most once per `period_s` (the line then says how many were held back); every one
+    is counted.  `clock` is a steady clock in seconds.
+    """
 
     def __init__(self, period_s: float = REPORT_PERIOD_S,
                  clock: Callable[[], float] = time.monotonic) -> None:
@@ -53,9 +62,12 @@ class LogThrottle:
         return sum(self.counts.values()) - self.lines
 
     def due(self, kind: str, line: str, period_s: Optional[float] = None) -> Optional[str]:
-        """Count one line of `kind`: the text to log now (with how many were held back since
-        the last one), or None while its kind waits. The caller logs it from its own call
-        site: rclpy ties a severity to each line of code that logs."""
+        """Count one line of `kind`.
+
+        The text to log now (with how many were held back since the last one), or None while its
+        kind waits. The caller logs it from its own call site: rclpy ties a severity to each line
+        of code that logs.
+        """
         if kind not in self.counts and len(self.counts) >= MAX_KINDS:
             kind = "other"
         self.counts[kind] += 1
@@ -73,11 +85,13 @@ class LogThrottle:
 
 
 class Refusals:
-    """What a topic refused: the total, by reason, the last reason.  The first refusal of each
-    reason is logged at once; later ones at most once per `period_s`, with the number refused
-    since the last line (the counts are in /diagnostics).
+    """What a topic refused: the total, by reason, the last reason.
 
-    `warn` is the logger's warning method; `clock` a steady clock (seconds)."""
+    The first refusal of each reason is logged at once; later ones at most once per `period_s`,
+    with the number refused since the last line (the counts are in /diagnostics).
+
+    `warn` is the logger's warning method; `clock` a steady clock (seconds).
+    """
 
     def __init__(self, warn: Callable[[str], None], topic: str,
                  period_s: float = REPORT_PERIOD_S,
@@ -104,10 +118,12 @@ class Refusals:
             self._warn(text)
 
     def failed(self, exc: BaseException, log: LogThrottle, error: Callable[[str], None]) -> bool:
-        """Handling one document raised `exc`, which is not a refusal. The store refusing a
-        write (disk full, read-only: store.ids.refused_by_store) is logged through `log` as
-        `store_failure` and True returned (the caller counts it); anything else is counted as
-        a refusal under HANDLER_ERROR. Either way the document is dropped."""
+        """Count and log a document whose handling raised `exc`, which is not a refusal.
+
+        The store refusing a write (disk full, read-only: store.ids.refused_by_store) is logged
+        through `log` as `store_failure` and True returned (the caller counts it); anything else is
+        counted as a refusal under HANDLER_ERROR. Either way the document is dropped.
+        """
         if refused_by_store(exc):
             text = log.due("store_failure", f"{self._topic}: the store refused a write "
                            f"({exception_text(exc)}); applied when offered again")
@@ -120,8 +136,10 @@ class Refusals:
 
 
 class CountsRefusals:
-    """For a topic handler that keeps a `Refusals` in `self._refused`: the names the node's
-    /diagnostics reads (refused_count, last_refusal) and the counts by reason."""
+    """For a topic handler that keeps a `Refusals` in `self._refused`.
+
+    The names the node's /diagnostics reads (refused_count, last_refusal) and the counts by reason.
+    """
 
     _refused: Refusals
 

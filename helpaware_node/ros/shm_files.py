@@ -60,7 +60,10 @@ def is_fastdds_lock(name: str) -> bool:
 
 
 def set_members(lock_name: str) -> list[str]:
-    """The files of one set, given its `_el` lock file: data or port file, lock, port mutex."""
+    """Return the files of one set, given its `_el` lock file.
+
+    Data or port file, lock, port mutex.
+    """
     base = lock_name[:-len("_el")]
     members = [base, lock_name]
     if PORT_LOCK_RE.match(lock_name):
@@ -105,7 +108,7 @@ def locked_inodes(pid: int) -> Optional[set[int]]:
 
 
 def held_lock_names(pid: int, shm_dir: Path = SHM_DIR) -> list[str]:
-    """The Fast DDS `_el` files that process `pid` has open and holds locked."""
+    """Return the Fast DDS `_el` files that process `pid` has open and holds locked."""
     prefix = str(shm_dir) + "/"
     names = {}
     try:
@@ -136,11 +139,13 @@ def _identity(path: Path) -> Optional[dict]:
 
 def record_own_files(directory: Optional[Path] = None, shm_dir: Path = SHM_DIR,
                      pid: Optional[int] = None, keep_recorded: bool = False) -> Optional[Path]:
-    """Write the record of this process's sets (after its participant exists); its path, or
-    None when there is nothing to record (no /dev/shm, no Fast DDS shared memory).
-    `keep_recorded`: add to this process's earlier record instead of replacing it (the
-    middleware may open a port file again during a run, so the record is brought up to date
-    before a clean exit; the sets recorded earlier stay, a set taken again is updated)."""
+    """Write the record of this process's sets (after its participant exists).
+
+    Its path, or None when there is nothing to record (no /dev/shm, no Fast DDS shared memory).
+    `keep_recorded`: add to this process's earlier record instead of replacing it (the middleware
+    may open a port file again during a run, so the record is brought up to date before a clean
+    exit; the sets recorded earlier stay, a set taken again is updated).
+    """
     pid = os.getpid() if pid is None else pid
     directory = records_dir() if directory is None else Path(directory)
     sets = {}
@@ -176,7 +181,7 @@ class Record:
 
     @property
     def alive(self) -> bool:
-        """The recorded process still runs (same pid, same start time, same boot)."""
+        """Return the recorded process still runs (same pid, same start time, same boot)."""
         if self.boot_id and self.boot_id != boot_id():
             return False
         now = process_start_ticks(self.pid)
@@ -216,6 +221,7 @@ class ClaimedSet:
 @dataclass
 class Outcome:
     """What a sweep did, per set (for the command's output and the log)."""
+
     removed: list[str] = field(default_factory=list)       # file paths
     removed_bytes: int = 0
     in_use: list[str] = field(default_factory=list)        # sets a live process holds
@@ -236,6 +242,7 @@ class Outcome:
 @dataclass
 class PortHold:
     """A port number kept from the starting participant: the lock of `fastdds_port<N>_el`."""
+
     path: Path
     fd: int
     made: bool              # the lock file did not exist: made here, removed on release
@@ -255,16 +262,21 @@ class PortHold:
 
 @dataclass
 class Claim:
-    """The locks of the dead instances' sets, held until `remove()` (or `release()`), and of
-    the ports with stale mappings (`stale_port_names`), held until then too."""
+    """The locks of the dead instances' sets, held until `remove()` (or `release()`).
+
+    Of the ports with stale mappings (`stale_port_names`), held until then too.
+    """
+
     sets: list[ClaimedSet]
     records: list[Record]
     outcome: Outcome
     holds: list[PortHold] = field(default_factory=list)
 
     def remove(self) -> Outcome:
-        """Unlink every claimed file that is still the recorded one, then let go of the locks
-        and delete the records of the dead processes."""
+        """Unlink every claimed file that is still the recorded one.
+
+        Then let go of the locks and delete the records of the dead processes.
+        """
         for claimed in self.sets:
             try:
                 for name, ident in claimed.members.items():
@@ -322,10 +334,12 @@ def claim_dead_instances(directory: Optional[Path] = None,
                          also_pid: Optional[int] = None, hold_stale_ports: bool = False,
                          shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> Claim:
     """Lock the sets that dead instances recorded and nobody holds (see the module text).
-    `also_pid`: take that process's record as finished too (this process, at its clean exit,
-    after its participant is gone: ports other processes still map outlive their owner).
+
+    `also_pid`: take that process's record as finished too (this process, at its clean exit, after
+    its participant is gone: ports other processes still map outlive their owner).
     `hold_stale_ports`: also keep every port in `shm_dir` that a live process has mapped from a
-    removed file (a participant about to start must not listen there; `stale_port_names`)."""
+    removed file (a participant about to start must not listen there; `stale_port_names`).
+    """
     records, _ = read_records(directory)
     outcome = Outcome()
     claimed, dead = [], []
@@ -356,13 +370,16 @@ def claim_dead_instances(directory: Optional[Path] = None,
 
 
 def stale_port_names(shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> set[str]:
-    """Ports (`fastdds_port<N>`) that some live process still has mapped from a file that was
-    removed: a publisher of a participant that died and whose port was removed or reset since.
-    It writes into that old mapping until its middleware notices (or, when the dead listener
-    was not waiting, perhaps never), so a new listener on port N would not hear it.  Read from
-    /proc/<pid>/maps of every process this user may read."""
+    """Return the ports that a live process still maps from a removed file.
+
+    Ports (`fastdds_port<N>`) that some live process still has mapped from a file that was removed:
+    a publisher of a participant that died and whose port was removed or reset since. It writes
+    into that old mapping until its middleware notices (or, when the dead listener was not waiting,
+    perhaps never), so a new listener on port N would not hear it.  Read from /proc/<pid>/maps of
+    every process this user may read.
+    """
     prefix = f"{shm_dir}/fastdds_port"
-    names = set()
+    names: set[str] = set()
     try:
         pids = [p for p in os.listdir(proc) if p.isdigit()]
     except OSError:
@@ -382,8 +399,11 @@ def stale_port_names(shm_dir: Path = SHM_DIR, proc: Path = Path("/proc")) -> set
 
 
 def _open_lock_file(path: Path) -> Optional[tuple[int, bool]]:
-    """(fd, made): the lock file opened, or made (O_EXCL) when it is missing, as a listener
-    does; None when it cannot be opened, or someone else made it first."""
+    """(fd, made): the lock file opened.
+
+    Or made (O_EXCL) when it is missing, as a listener does; None when it cannot be opened, or
+    someone else made it first.
+    """
     try:
         return os.open(path, os.O_RDONLY | os.O_NOFOLLOW | os.O_CLOEXEC), False
     except FileNotFoundError:
@@ -411,13 +431,15 @@ def _hold_port(path: Path) -> Optional[PortHold]:
 
 
 def _lock_if_same(path: Path, ident: Optional[dict]) -> Optional[int]:
-    """An fd holding the exclusive flock of `path` if it is the recorded file and free;
-    -1 if a live process holds it; None if another file has the name now.  A lock file that is
-    gone (Fast DDS removes it at a clean close, and leaves the port itself while other
-    processes still map it) is made again and locked, as a listener would, so the rest of the
-    set can go without a participant taking the port meanwhile."""
+    """Return an fd holding the exclusive flock of `path` if it is the recorded file and free.
+
+    -1 if a live process holds it; None if another file has the name now.  A lock file that is gone
+    (Fast DDS removes it at a clean close, and leaves the port itself while other processes still
+    map it) is made again and locked, as a listener would, so the rest of the set can go without a
+    participant taking the port meanwhile.
+    """
     opened = _open_lock_file(path) if ident is not None else None
-    if opened is None:
+    if opened is None or ident is None:
         return None               # not recorded, or someone made it first: theirs, not ours
     fd, made = opened
     try:
@@ -434,10 +456,12 @@ def _lock_if_same(path: Path, ident: Optional[dict]) -> Optional[int]:
 
 def remove_own_files(directory: Optional[Path] = None, attempts: int = 5,
                      pause_s: float = 0.1) -> Outcome:
-    """At a clean exit, after the participant is gone: this process's sets and those of dead
-    instances. The middleware's own threads may let go of a lock a moment after the context
-    is shut down, so a set still locked is tried again a few times before it is left for the
-    next start's sweep."""
+    """At a clean exit, after the participant is gone.
+
+    This process's sets and those of dead instances. The middleware's own threads may let go of a
+    lock a moment after the context is shut down, so a set still locked is tried again a few times
+    before it is left for the next start's sweep.
+    """
     outcome = claim_dead_instances(directory, also_pid=os.getpid()).remove()
     for _ in range(attempts - 1):
         if not outcome.in_use:
@@ -453,10 +477,12 @@ def sweep_dead_instances(directory: Optional[Path] = None) -> Outcome:
 
 
 class StartupSweep:
-    """The node process's part (four calls in `main()`): claim the dead instances' sets before
-    rclpy starts, remove them and record this process's own once the participant exists,
-    bring the record up to date before shutdown, and at the end remove what this process
-    itself left (its participant is gone by then)."""
+    """The node process's part (four calls in `main()`).
+
+    Claim the dead instances' sets before rclpy starts, remove them and record this process's own
+    once the participant exists, bring the record up to date before shutdown, and at the end remove
+    what this process itself left (its participant is gone by then).
+    """
 
     def __init__(self, directory: Optional[Path] = None) -> None:
         self.directory = records_dir() if directory is None else Path(directory)

@@ -30,8 +30,10 @@ CHECK_EVERY_S = 2.0
 
 
 def proposal_path(setting: str, store_file: str) -> str:
-    """site_learning_proposal_path resolved: empty means beside the store file (or under
-    ROS_HOME/helpaware for a store kept in memory)."""
+    """site_learning_proposal_path resolved.
+
+    Empty means beside the store file (or under ROS_HOME/helpaware for a store kept in memory).
+    """
     if setting:
         return setting
     if store_file:
@@ -47,7 +49,7 @@ class NodeLearning:
         self.proposal_file, self.node_name = proposal_file, node_name
         resume = store.latest_learned() if hasattr(store, "latest_learned") else None
         self.learner = SiteLearner(file_model, settings, ranges, resume)
-        self._worker = None        # RefitWorker (a process), made at the first refit
+        self._worker: Optional[RefitWorker] = None   # a process, made at the first refit
         self._pool: Optional[concurrent.futures.ThreadPoolExecutor] = None   # if no process
         self._future: Optional[concurrent.futures.Future] = None
         self.refits = 0           # finished refit attempts
@@ -79,8 +81,11 @@ class NodeLearning:
 
     # ---------------------------------------------------------------- on the executor
     def poll(self, now_s: float) -> Optional[SiteModel]:
-        """Pick up a finished refit (the model to put in force, if it changed) or start one
-        that is due. Never blocks."""
+        """Pick up a finished refit or start one that is due; never blocks.
+
+        Pick up a finished refit (the model to put in force, if it changed) or start one that is
+        due. Never blocks.
+        """
         if self.running:
             try:
                 refit = self._collect()
@@ -130,12 +135,13 @@ class NodeLearning:
         self._future = self._pool.submit(_run, reader, job)
 
     def _collect(self) -> Optional[Refit]:
-        """The finished refit, or None while one runs (raises when it failed)."""
+        """Return the finished refit, or None while one runs (raises when it failed)."""
         if self._future is not None:
             if not self._future.done():
                 return None
             future, self._future = self._future, None
             return future.result()
+        assert self._worker is not None   # busy: a thread's future or a worker process
         reply = self._worker.poll()
         if reply is None:
             return None
@@ -224,8 +230,11 @@ class NodeLearning:
         return values
 
     def shutdown(self) -> None:
-        """Stop the worker: a refit still running is ended (process) or finishes in its
-        thread and is dropped; nothing of it was in force yet."""
+        """Stop the worker; a refit still running is dropped.
+
+        Stop the worker: a refit still running is ended (process) or finishes in its thread and is
+        dropped; nothing of it was in force yet.
+        """
         if self._worker is not None:
             self._worker.stop()
             self._worker = None
@@ -236,7 +245,7 @@ class NodeLearning:
 
 
 def _run(reader, job) -> Refit:
-    """A refit in a thread (when no worker process could be started)."""
+    """Return a refit in a thread (when no worker process could be started)."""
     outcomes, asks = reader()
     return job.run(outcomes, asks)
 

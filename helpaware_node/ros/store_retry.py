@@ -32,8 +32,10 @@ class HeldOutcomes:
         return len(self.held)
 
     def write(self, event: StoredEvent) -> Optional[bool]:
-        """Store now (True/False as store.append), or hold: None behind earlier refusals,
-        and the store's error raised when it refuses this one."""
+        """Store now (True/False as store.append), or hold.
+
+        None behind earlier refusals, and the store's error raised when it refuses this one.
+        """
         if self.held:
             self._hold(event)
             return None
@@ -73,7 +75,7 @@ class HeldOutcomes:
         self._logger.info("store accepts writes again: held outcomes saved, asking resumes")
 
     def report_at_stop(self) -> None:
-        """What a stop while the store refuses writes costs: said once, then let go."""
+        """Say what a stop while the store refuses writes costs: said once, then let go."""
         if self.held:
             self._logger.error(f"stopping with {len(self.held)} outcome(s) the store refused "
                                f"({self._status.error}); they are not saved")

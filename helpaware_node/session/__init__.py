@@ -1,5 +1,8 @@
-"""The help session: the life of help needs and asks, driven alike by the node and the
-simulator (pure Python, no ROS). See session.py for the events and rules."""
+"""The help session: the life of help needs and asks.
+
+Driven alike by the node and the simulator (pure Python, no ROS). See session.py for the events and
+rules.
+"""
 from .memory import PersonMemory
 from .ports import DirectWrites, OutcomeWriter, SessionStore, StoreStatus
 from .session import HelpSession

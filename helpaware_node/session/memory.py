@@ -8,7 +8,7 @@ bound memory forgets nothing the limits count.
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Iterable
+from typing import Iterable, Optional
 
 from ..core import PersonRecord, SiteModel, note_ask, note_candidate
 from ..core.model import DecisionConfig
@@ -33,7 +33,7 @@ class PersonMemory:
 
     # -- reading
     def record_for(self, key: str) -> PersonRecord:
-        """The person's record, loaded from the store (belief and asks) if not held."""
+        """Return the person's record, loaded from the store (belief and asks) if not held."""
         rec = self.records.get(key)
         if rec is None:
             rec = self._with_stored_asks(self._with_stored_belief(PersonRecord.new(self.model),
@@ -44,9 +44,11 @@ class PersonMemory:
         self._stale.discard(key)
         return rec
 
-    def held(self, key: str):
-        """The record if held (belief refolded if the model changed since), else None: for
-        displays, which must not load people from the store."""
+    def held(self, key: str) -> Optional[PersonRecord]:
+        """Return the record when held, its belief refolded if the model changed; else None.
+
+        For displays, which must not load people from the store.
+        """
         return self.record_for(key) if key in self.records else None
 
     def counts(self, ask: AskEvent) -> bool:
@@ -66,7 +68,7 @@ class PersonMemory:
 
     # -- changes
     def refresh_belief(self, key: str) -> None:
-        """An outcome of this person was stored: the belief is the store's fold again."""
+        """Note that an outcome of this person was stored: the belief is the store's fold again."""
         rec = self.records.get(key)
         if rec is not None:
             self.records[key] = self._with_stored_belief(rec, key)
@@ -83,8 +85,11 @@ class PersonMemory:
                 self.records[ask.person_key] = note_ask(rec, ask.time_s, self.model)
 
     def withdraw_ask(self, key: str, time_s: float) -> None:
-        """The ask never reached the person (could_not_ask): it adds no ask load in memory.
-        The stored ask stays, so after a restart it counts again (the stricter side)."""
+        """Withdraw an ask that never reached the person (could_not_ask).
+
+        It adds no ask load in memory. The stored ask stays, so after a restart it counts again
+        (the stricter side).
+        """
         rec = self.records.get(key)
         if rec is not None:
             times = list(rec.ask_times_s)
@@ -104,8 +109,10 @@ class PersonMemory:
         self._stale.discard(key)
 
     def drop(self, key: str) -> None:
-        """Let go of a record that may be out of date: it loads whole from the store on its
-        next use."""
+        """Let go of a record that may be out of date.
+
+        It loads whole from the store on its next use.
+        """
         self.records.pop(key, None)
 
     def move_asks_forward(self, by_s: float) -> None:
@@ -115,9 +122,12 @@ class PersonMemory:
                                                                    for t in rec.ask_times_s))
 
     def use_model(self, model: SiteModel) -> None:
-        """The belief of each person is the fold of their events under the model in force:
-        each held record is refolded when it is next read (record_for), not here, so a change
-        of constants (site learning) costs the caller nothing however many people are held."""
+        """Put a model in force; each held record is refolded when next read.
+
+        The belief of each person is the fold of their events under the model in force: each held
+        record is refolded when it is next read (record_for), not here, so a change of constants
+        (site learning) costs the caller nothing however many people are held.
+        """
         if model != self.model:
             self.model = model
             self._stale = set(self.records)
@@ -130,11 +140,13 @@ class PersonMemory:
 
     # -- bounds
     def evict_if_needed(self, now_s: float, keep: set[str], config: DecisionConfig) -> None:
-        """Keep memory bounded on a busy site: drop the records of the people seen longest
-        ago, down to 90 % of the limit. Their beliefs and asks stay in the store and come
-        back when they are seen again; only their encounter count and first-seen time are
-        lost. People in `keep` (in view, with a pending ask) and people asked within the ask
-        memory are never dropped."""
+        """Keep memory bounded on a busy site.
+
+        Drop the records of the people seen longest ago, down to 90 % of the limit. Their beliefs
+        and asks stay in the store and come back when they are seen again; only their encounter
+        count and first-seen time are lost. People in `keep` (in view, with a pending ask) and
+        people asked within the ask memory are never dropped.
+        """
         if len(self.records) <= self.max_records and len(self.last_seen_s) <= 2 * self.max_records:
             return
         horizon = ask_history_horizon_s(self.model)

@@ -23,25 +23,29 @@ class SessionStore(Protocol):
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, Optional[float]]: ...
     def is_opted_out(self, key: str) -> bool: ...
     def append(self, event: StoredEvent) -> bool: ...
-    def append_many(self, events: list[StoredEvent]) -> list[StoredEvent]: ...
     def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...
+
     def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
              request_id: Optional[str] = None, since_s: Optional[float] = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]: ...
+
     def move_asks_forward(self, by_s: float) -> int: ...
 
 
 class OutcomeWriter(Protocol):
     def write(self, event: StoredEvent) -> Optional[bool]:
-        """True: stored; False: not stored (duplicate, opted out); None: kept to be written
-        later. Raises when the store refused it (a holding writer keeps it as well)."""
+        """Return True: stored; False: not stored (duplicate, opted out).
+
+        None: kept to be written later. Raises when the store refused it (a holding writer keeps it
+        as well).
+        """
 
     @property
     def waiting(self) -> int:
         """Outcomes kept for a store that refused them."""
 
     def drop_person(self, key: str) -> None:
-        """A forgotten person: any outcome of theirs still kept is never written."""
+        """Drop a forgotten person: any outcome of theirs still kept is never written."""
 
 
 class DirectWrites:
@@ -75,9 +79,11 @@ class StoreStatus:
                     f"disk space and that the file is writable)", throttle_s=5.0,
                     kind="store_refused")
 
-    def wrote(self, store) -> None:
-        """A write went through: healthy again unless the store itself says otherwise (a
-        damaged file moved aside at start stays an error)."""
+    def wrote(self, store: object) -> None:
+        """Note that a write went through.
+
+        Healthy again unless the store itself says otherwise (a damaged file moved aside at start
+        stays an error).
+        """
         health = getattr(store, "health", None)
         self.ok = health is None or health.level == "OK"
-

@@ -20,12 +20,12 @@ Rules:
 from __future__ import annotations
 
 from dataclasses import replace
-from typing import Iterable, Optional, Sequence
+from typing import Any, Iterable, Optional, Sequence
 
 from ..core import (DecisionConfig, HelpNeed, PersonRecord, Result, SiteModel,
                     candidate_from_record, conclude, decide, keep_recent_asks)
 from ..core.model import CoreInputError
-from ..core.policy import HOUR_S, Chooser, choose_lookahead
+from ..core.policy import HOUR_S, Candidate, Chooser, Evaluation, choose_lookahead
 from ..core.preview import quoted
 from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
 from ..store.ids import refused_by_store
@@ -41,12 +41,14 @@ NAV_FAILURE_KIND = "navigation_failure"
 
 
 def nav_request_id(goal_id: str) -> str:
-    """The request id of the need a goal's abort opens: the whole goal id (a UUID as 32 hex
-    digits from the node), so two goals never share a need."""
+    """Return the request id of the need a goal's abort opens.
+
+    The whole goal id (a UUID as 32 hex digits from the node), so two goals never share a need.
+    """
     return f"nav-{goal_id[:64]}"
 
 
-def _never(ev) -> None:
+def _never(ev: Evaluation) -> None:
     return None
 
 
@@ -81,8 +83,10 @@ class HelpSession:
         self.people_dropped = 0                    # people in view let go past the bound
 
     def _stored_robot_asks(self, now_s: Optional[float]) -> list[float]:
-        """The robot's own asks of the last hour (all of them before a clock runs), and the
-        newest max_asks_per_hour in any case, as keep_recent_asks keeps them."""
+        """Return the robot's own asks of the last hour (all of them before a clock runs).
+
+        The newest max_asks_per_hour in any case, as keep_recent_asks keeps them.
+        """
         since = now_s - HOUR_S if now_s is not None and now_s > 0.0 else None
         found = {a.event_id: a for a in
                  self.store.asks(robot_id=self.robot_id, since_s=since)
@@ -90,12 +94,16 @@ class HelpSession:
         return [a.time_s for a in sorted(found.values(), key=lambda a: (a.time_s, a.event_id))]
 
     # ------------------------------------------------------------------ inputs
-    def people_seen(self, people: Iterable, now_s: float, frame_id: str = "",
+    # people: wire.SeenPerson or sim.world.SeenPerson (the same fields)
+    def people_seen(self, people: Iterable[Any], now_s: float, frame_id: str = "",
                     complete_view: bool = False) -> None:
-        """People perceived at `now_s`. `complete_view`: everyone else has left (the
-        simulator's view at a need); otherwise they stay until their observation is stale.
-        However many documents bring however many people, at most MAX_PEOPLE_IN_VIEW stay
-        (`_bound_seen`), so every decision has at most that many candidates."""
+        """People perceived at `now_s`.
+
+        `complete_view`: everyone else has left (the simulator's view at a need); otherwise they
+        stay until their observation is stale. However many documents bring however many people, at
+        most MAX_PEOPLE_IN_VIEW stay (`_bound_seen`), so every decision has at most that many
+        candidates.
+        """
         if complete_view:
             self.seen.clear()
         for p in people:
@@ -109,10 +117,12 @@ class HelpSession:
             self._bound_seen(now_s)
 
     def _bound_seen(self, now_s: float) -> None:
-        """Past MAX_PEOPLE_IN_VIEW (wire.MAX_CANDIDATES: what one decision document holds),
-        those out of view go first (older than max_observation_age_s + IN_VIEW_EXTRA_S, as at
-        every tick), then those stale for a decision (older than max_observation_age_s), then
-        the farthest; the rest keep their order."""
+        """Past MAX_PEOPLE_IN_VIEW (wire.MAX_CANDIDATES: what one decision document holds).
+
+        Those out of view go first (older than max_observation_age_s + IN_VIEW_EXTRA_S, as at every
+        tick), then those stale for a decision (older than max_observation_age_s), then the
+        farthest; the rest keep their order.
+        """
         fresh_s, listed_s = self.config.max_observation_age_s, \
             self.config.max_observation_age_s + IN_VIEW_EXTRA_S
         for pid in [p for p, s in self.seen.items() if now_s - s.observed_at_s > listed_s]:
@@ -151,12 +161,15 @@ class HelpSession:
         return step
 
     def navigation_status(self, goals: Sequence[tuple[str, str, float]], now_s: float) -> Step:
-        """One status array of a navigation action: (goal id, status, accepted-at stamp, s)
-        with status "aborted", "succeeded", "canceled" or anything else (ignored).
+        """One status array of a navigation action.
+
+        (goal id, status, accepted-at stamp, s) with status "aborted", "succeeded", "canceled" or
+        anything else (ignored).
 
         Bounded whatever the array holds: only its last MAX_GOAL_STATUSES entries are looked
         at, and only its newest aborted goal (by stamp, then position) may open a need, so
-        one array gives at most one decision."""
+        one array gives at most one decision.
+        """
         step = Step()
         newest = None
         for i, (goal_id, status, stamp_s) in enumerate(goals[-MAX_GOAL_STATUSES:]):
@@ -170,10 +183,13 @@ class HelpSession:
         return step
 
     def goal_aborted(self, goal_id: str, now_s: float, stamp_s: Optional[float] = None) -> Step:
-        """A navigation goal aborted: a help need of kind navigation_failure, once per goal,
-        and at most one open at a time. A newer abort replaces the open one unless an ask for
-        it is out (the robot is asking for help with its navigation already; the outcome
-        decides again). An abort stamped before one already handled is history."""
+        """Return a navigation goal aborted.
+
+        a help need of kind navigation_failure, once per goal, and at most one open at a time. A
+        newer abort replaces the open one unless an ask for it is out (the robot is asking for help
+        with its navigation already; the outcome decides again). An abort stamped before one
+        already handled is history.
+        """
         step = Step()
         if self._goals.get(goal_id) == "aborted":
             return step
@@ -207,8 +223,9 @@ class HelpSession:
         while len(self._goals) > MAX_GOALS_REMEMBERED:
             self._goals.pop(next(iter(self._goals)))
 
-    def outcome(self, request_id: str, person_id: str, result, now_s: float) -> Step:
-        """What happened to the pending ask of `request_id`; refused when there is none."""
+    def outcome(self, request_id: str, person_id: str, result: Result | str,
+                now_s: float) -> Step:
+        """Return what happened to the pending ask of `request_id`; refused when there is none."""
         ask = self.pending.get(request_id)
         if ask is None:
             raise SessionInputError(f"request_id: no pending ask for {request_id[:64]!r}")
@@ -216,7 +233,7 @@ class HelpSession:
             raise SessionInputError(f"person_id: the pending ask of {ask.request_id!r} "
                                     f"went to another person")
         try:
-            result = result if isinstance(result, Result) else Result.parse(result)
+            result = result if isinstance(result, Result) else Result.parse(str(result))
         except CoreInputError as exc:
             raise SessionInputError(str(exc)) from None
         del self.pending[request_id]
@@ -255,14 +272,16 @@ class HelpSession:
         return bool(stored)
 
     def outcome_saved(self, event: StoredEvent) -> None:
-        """An outcome the store refused earlier is stored now (the writer's retry)."""
+        """Note that an outcome the store refused earlier is stored now (the writer's retry)."""
         self.memory.refresh_belief(event.person_key)
 
     def peer_events(self, events: list[AnyEvent]) -> list[AnyEvent]:
-        """Peers' outcomes and asks: stored as one batch, then learned from. A write that
-        fails raises, so the caller keeps the batch and tries again (the store refusing
-        writes), or finds the events it cannot hold and drops them (store.ids
-        refused_by_store tells the two apart; only the first marks the store failing)."""
+        """Peers' outcomes and asks: stored as one batch, then learned from.
+
+        A write that fails raises, so the caller keeps the batch and tries again (the store
+        refusing writes), or finds the events it cannot hold and drops them (store.ids
+        refused_by_store tells the two apart; only the first marks the store failing).
+        """
         try:
             stored = append_batch(self.store, events)
         except Exception as exc:
@@ -279,21 +298,25 @@ class HelpSession:
         return stored
 
     def forgotten(self, key: str) -> None:
-        """The store has forgotten a person: drop their record, any pending ask and any
-        outcome still kept for a store that refused it."""
+        """Note that the store has forgotten a person.
+
+        Drop their record, any pending ask and any outcome still kept for a store that refused it.
+        """
         self.memory.forget(key)
         self.writer.drop_person(key)
         self.pending = {r: a for r, a in self.pending.items() if a.key != key}
 
     # ------------------------------------------------------------------ time
     def clock(self, now_s: float, steady_s: Optional[float]) -> Step:
-        """The driver's clock reading. On system time (`steady_s` given), a jump forward (an
-        NTP step, a clock set by hand) would age every remembered ask at once and reopen the
-        hourly cap, the re-ask interval and the daily cap. The steady clock says how much time
-        really passed: everything kept in node time moves forward with the jump, in memory and
-        in the store, so each ask keeps its real age after a restart too. Sim time
-        (`steady_s` None) is the truth, and a jump back is already safe (asks 'in the future'
-        count as recent), so neither is touched."""
+        """Return the driver's clock reading.
+
+        On system time (`steady_s` given), a jump forward (an NTP step, a clock set by hand) would
+        age every remembered ask at once and reopen the hourly cap, the re-ask interval and the
+        daily cap. The steady clock says how much time really passed: everything kept in node time
+        moves forward with the jump, in memory and in the store, so each ask keeps its real age
+        after a restart too. Sim time (`steady_s` None) is the truth, and a jump back is already
+        safe (asks 'in the future' count as recent), so neither is touched.
+        """
         step = Step()
         mark = self._clock_mark
         self._clock_mark = None if steady_s is None else (now_s, steady_s)
@@ -320,8 +343,11 @@ class HelpSession:
         return step
 
     def tick(self, now_s: float) -> Step:
-        """Housekeeping: expire pending asks (and decide again), decide the needs that waited
-        for the clock, drop people out of view, bound the records in memory."""
+        """Housekeeping: expire pending asks (and decide again).
+
+        Decide the needs that waited for the clock, drop people out of view, bound the records in
+        memory.
+        """
         step = Step()
         if now_s <= 0.0:
             return step
@@ -402,6 +428,7 @@ class HelpSession:
                                       config.max_asks_per_hour)
         ask = None
         if decision.action == "ask":
+            assert decision.person_index is not None   # an ask always names its person
             ask = self._store_ask(keys[decision.person_index], state.need, now_s, step)
             if ask is None:       # not stored, so not made: nobody is asked
                 decision = conclude(decision.evaluation, None, STORE_UNAVAILABLE)
@@ -412,6 +439,7 @@ class HelpSession:
                 self.memory.note_candidate(key, now_s)
         if ask is not None:
             i = decision.person_index
+            assert i is not None and decision.person_id is not None
             ev = decision.evaluation
             self.memory.note_ask(ask.person_key, now_s)
             self.robot_ask_times_s = list(robot_asks) + [now_s]
@@ -423,12 +451,14 @@ class HelpSession:
             step.share.append(ask)
         step.decisions.append(DecisionOut(decision, tuple(robot_asks), ask))
 
-    def _within_one_document(self, cands: list) -> Optional[list[int]]:
-        """None when every candidate fits in one decision document; else the indices (in
-        order) of the nearest that do: at most wire.MAX_CANDIDATES, and within the bytes
-        MAX_DOCUMENT_BYTES leaves for candidates (wire.candidate_bytes_bound: long unicode
-        ids and many remembered asks make a candidate large), so every decision published is
-        valid by its own schema and can be replayed."""
+    def _within_one_document(self, cands: list[Candidate]) -> Optional[list[int]]:
+        """None when every candidate fits in one decision document.
+
+        Else the indices (in order) of the nearest that do: at most wire.MAX_CANDIDATES, and within
+        the bytes MAX_DOCUMENT_BYTES leaves for candidates (wire.candidate_bytes_bound: long
+        unicode ids and many remembered asks make a candidate large), so every decision published
+        is valid by its own schema and can be replayed.
+        """
         budget = MAX_DOCUMENT_BYTES - DECISION_OTHER_BYTES
         if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(
                 candidate_bytes_bound(c, quick=True) for c in cands) <= budget:
@@ -437,7 +467,7 @@ class HelpSession:
         if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(sizes) <= budget:
             return None
         nearest = sorted(range(len(cands)), key=lambda i: (cands[i].distance_m,
-                                                            -cands[i].observed_at_s, i))
+                                                           -cands[i].observed_at_s, i))
         kept, used = [], 0
         for i in nearest[:MAX_PEOPLE_IN_VIEW]:
             if used + sizes[i] > budget:
@@ -449,8 +479,10 @@ class HelpSession:
 
     def _store_ask(self, key: str, need: HelpNeed, now_s: float,
                    step: Step) -> Optional[AskEvent]:
-        """Write the ask durably before anyone hears of it; None when the store did not
-        take it (refused, or the person opted out meanwhile)."""
+        """Write the ask durably before anyone hears of it.
+
+        None when the store did not take it (refused, or the person opted out meanwhile).
+        """
         ask = AskEvent(self.store.next_event_id(), key, now_s, need.kind, need.request_id)
         try:
             stored = self.store.append_asks([ask])
@@ -463,4 +495,3 @@ class HelpSession:
                       f"{need.request_id!r} (opted out meanwhile?): nobody asked")
             return None
         return ask
-

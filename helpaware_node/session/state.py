@@ -1,5 +1,8 @@
-"""The plain values a help session keeps and returns: people in view, open needs, pending
-asks, its rules, and the Step each event gives back to its driver."""
+"""The plain values a help session keeps and returns.
+
+People in view, open needs, pending asks, its rules, and the Step each event gives back to its
+driver.
+"""
 from __future__ import annotations
 
 from dataclasses import dataclass, field
@@ -14,11 +17,13 @@ IN_VIEW_EXTRA_S = 5.0          # people stay listed a little past the staleness 
 MAX_OPEN_NEEDS = 1000          # a behaviour layer that never resolves: the oldest need goes
 MAX_PEOPLE_IN_MEMORY = 20_000  # person records kept in memory; beliefs and asks stay in the store
 MAX_GOALS_REMEMBERED = 1000    # navigation goals whose abort was already handled
-MAX_GOAL_STATUSES = 1000       # entries of one navigation status array looked at (its last;
-                               # a server lists a finished goal only for its result timeout)
+# entries of one navigation status array looked at (its last; a server lists a finished goal
+# only for its result timeout)
+MAX_GOAL_STATUSES = 1000
 MAX_PEOPLE_IN_VIEW = MAX_CANDIDATES   # people in view at once: a decision's candidates
-DECISION_OTHER_BYTES = 64_000  # of a decision document's MAX_DOCUMENT_BYTES, kept for all but
-                               # its candidates (need, the robot's 1 000 ask times, parameters)
+# of a decision document's MAX_DOCUMENT_BYTES, kept for all but its candidates (need, the
+# robot's 1 000 ask times, parameters)
+DECISION_OTHER_BYTES = 64_000
 STORE_UNAVAILABLE = "store_unavailable"   # decision policy while the store refuses writes
 
 
@@ -40,8 +45,11 @@ class SessionRules:
 
 @dataclass
 class Seen:
-    """A person in view: `person` has person_id, distance_m, busyness and activity
-    (wire.SeenPerson, the simulator's SeenPerson); `frame_id` is the driver's."""
+    """A person in view: `person` has person_id, distance_m.
+
+    Busyness and activity (wire.SeenPerson, the simulator's SeenPerson); `frame_id` is the
+    driver's.
+    """
 
     person: Any
     key: str
@@ -55,7 +63,7 @@ class OpenNeed:
     asks: int = 0                 # asks made for it, before a restart included
     served: bool = False          # someone helped: no further decisions for it
     waiting_for_clock: bool = False
-    candidates: set = field(default_factory=set)   # person keys counted as its candidates
+    candidates: set[str] = field(default_factory=set)   # person keys counted as its candidates
 
 
 @dataclass
@@ -72,9 +80,12 @@ class PendingAsk:
 
 @dataclass(frozen=True)
 class Note:
-    """A line for the driver's log. `kind` names what it reports (the node counts notes by
-    kind and logs each kind a bounded number of times: a document may cause a note, and
-    documents can come at any rate); `throttle_s` > 0: the period of a repeated condition."""
+    """A line for the driver's log.
+
+    `kind` names what it reports (the node counts notes by kind and logs each kind a bounded number
+    of times: a document may cause a note, and documents can come at any rate); `throttle_s` > 0:
+    the period of a repeated condition.
+    """
 
     level: str                    # "info", "warning" or "error"
     text: str
@@ -84,8 +95,11 @@ class Note:
 
 @dataclass(frozen=True)
 class DecisionOut:
-    """A decision to publish, with the robot's recent asks it was made on (the document's
-    robot_ask_times_s) and the ask event stored for it, if it asks."""
+    """A decision to publish, with what it was made on and the ask event stored for it.
+
+    A decision to publish, with the robot's recent asks it was made on (the document's
+    robot_ask_times_s) and the ask event stored for it, if it asks.
+    """
 
     decision: Decision
     robot_ask_times_s: tuple[float, ...]
@@ -94,8 +108,10 @@ class DecisionOut:
 
 @dataclass
 class Step:
-    """What one event gives back: decisions to publish (in order), events stored here to share
-    with the fleet, notes for the log."""
+    """What one event gives back.
+
+    Decisions to publish (in order), events stored here to share with the fleet, notes for the log.
+    """
 
     decisions: list[DecisionOut] = field(default_factory=list)
     share: list[AnyEvent] = field(default_factory=list)

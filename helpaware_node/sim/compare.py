@@ -46,7 +46,7 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
             progress: bool = True, first_seed: int = 0, rules: Optional[SessionRules] = None,
             constants: str = "defaults", learner_factory: Optional[Callable[[], Any]] = None,
             jobs: int = 1):
-    """Returns (summary by policy, per-seed metrics by policy, runs by policy).
+    """Return (summary by policy, per-seed metrics by policy, runs by policy).
 
     `rules`: the help session's rules (max_asks_per_need ...), the node's defaults if None.
     `constants`: "defaults" (the robot starts from `model`, the shipped SiteModel if None)
@@ -55,7 +55,8 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
     starting from the same constants, with site learning).
     `jobs`: seeds run in this many processes at once. Each seed is a world of its own, built
     from its seed alone, so the results are the same for any `jobs` (only the order in which
-    seeds finish differs; they are put back in seed order)."""
+    seeds finish differs; they are put back in seed order).
+    """
     model = model or SiteModel()
     config = config or DecisionConfig()
     rules = rules or SessionRules()
@@ -97,7 +98,7 @@ class _SeedJob:
 
     def run(self, seed: int, progress: Optional[Callable[[int], None]] = None
             ) -> tuple[dict, int]:
-        """(runs by policy, needs in the world)."""
+        """Return (runs by policy, needs in the world)."""
         w = build_world(self.sc, seed, ask_draws=self.draws)
         out = {}
         for p in self.policies:
@@ -121,8 +122,11 @@ def _run_forked(seed: int) -> tuple[int, dict, int]:
 
 
 def _in_processes(job: _SeedJob, seeds: list, jobs: int, bar: ProgressBar) -> list:
-    """Seeds in forked worker processes. The job (with its learner factory, often a lambda)
-    is inherited through fork rather than pickled; the runs come back pickled."""
+    """Seeds in forked worker processes.
+
+    The job (with its learner factory, often a lambda) is inherited through fork rather than
+    pickled; the runs come back pickled.
+    """
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
     global _FORKED_JOB
@@ -161,7 +165,7 @@ def summary_table(summary: dict) -> str:
 
 
 def mostly_regulars(sc: Scenario) -> bool:
-    """A site of regulars: at least 2/3 of the people in view at a need are regulars."""
+    """Return a site of regulars: at least 2/3 of the people in view at a need are regulars."""
     total = sc.regulars_per_need + sc.strangers_per_need
     return total > 0 and sc.regulars_per_need >= 2.0 * total / 3.0
 
@@ -175,8 +179,11 @@ def _paired(per_seed: dict, x: str, y: Optional[str], key: str, ratio: float = 1
 
 
 def regret(per_seed: dict, start: str = "ours") -> dict:
-    """The regret of not knowing the site: informed minus the policy that starts from the
-    robot's constants, over the whole run and over its second half (paired over seeds)."""
+    """Return the regret of not knowing the site.
+
+    Informed minus the policy that starts from the robot's constants, over the whole run and over
+    its second half (paired over seeds).
+    """
     if "informed" not in per_seed or start not in per_seed:
         return {}
     return {half: _paired(per_seed, "informed", start, key)
@@ -184,8 +191,10 @@ def regret(per_seed: dict, start: str = "ours") -> dict:
 
 
 def targets(sc: Scenario, per_seed: dict) -> dict:
-    """The issue's targets for the policy that starts from the shipped defaults (`learning`
-    when it ran, else `ours`), each a paired comparison over seeds (metrics.paired_difference).
+    """Return the issue's targets for the policy that starts from the shipped defaults.
+
+    The issue's targets for the policy that starts from the shipped defaults (`learning` when it
+    ran, else `ours`), each a paired comparison over seeds (metrics.paired_difference).
     """
     start = "learning" if "learning" in per_seed else "ours"
     out: dict = {"start": start}

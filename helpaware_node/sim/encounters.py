@@ -53,7 +53,7 @@ def encounter_rows(world: World, config: DecisionConfig) -> list[tuple[str, int,
 
 
 def site_rate_prior(worlds: Sequence[World]) -> dict:
-    """The Gamma moment-matched to first-met people's later encounter rates (module doc)."""
+    """Return the Gamma moment-matched to first-met people's later encounter rates (module doc)."""
     rates = []
     for w in worlds:
         times = np.array([n.time_s for n in w.needs])
@@ -126,7 +126,7 @@ def report(scenarios: Sequence[Scenario], config: DecisionConfig, seeds: int = 3
 
 
 def main(argv=None) -> int:
-    """python -m helpaware_node.sim.encounters SCENARIO.yaml ... [--seeds N]"""
+    """Run `python -m helpaware_node.sim.encounters SCENARIO.yaml ... [--seeds N]`."""
     import argparse
     from .scenario import load
     ap = argparse.ArgumentParser(description="the re-encounter check on scenario files, "

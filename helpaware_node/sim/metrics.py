@@ -55,9 +55,11 @@ def t_interval(values, level: float = 0.95) -> tuple[float, float, int]:
 
 
 def paired_difference(xs, ys, ratio: float = 1.0, level: float = 0.95) -> dict:
-    """Mean and t half-width over seeds of x_s - ratio * y_s (the same seed's runs paired),
-    and the verdict on x >= ratio * y: "met" when the whole interval is >= 0, "missed" when it
-    is all below 0, "undecided" when it holds 0."""
+    """Mean and t half-width over seeds of x_s.
+
+    Ratio * y_s (the same seed's runs paired), and the verdict on x >= ratio * y: "met" when the
+    whole interval is >= 0, "missed" when it is all below 0, "undecided" when it holds 0.
+    """
     d = [x - ratio * y for x, y in zip(xs, ys)]
     mean, half, n = t_interval(d, level)
     if n < 2 or math.isnan(half):

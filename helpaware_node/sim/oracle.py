@@ -49,7 +49,7 @@ class TrueWorld:
         return ask_load(self.true_asks.get(pid, ()), t, self.sc.truth_ask_half_life_s)
 
     def advantage(self, pid: str, busyness: float, load: float, need: SimNeed) -> float:
-        """True A = p (C - t_help) - (1 - p) t_ask - I, with the world's costs."""
+        """Return True A = p (C - t_help) - (1 - p) t_ask - I, with the world's costs."""
         p = self.world.true_help_probability(pid, busyness, load)
         costs = self.sc.costs
         return (p * (need.continue_cost_s - need.help_time_s) - (1.0 - p) * costs.ask_time_s
@@ -83,8 +83,10 @@ class TrueWorld:
                          for k, c in enumerate(ev.candidates)])
 
     def lasting_cost(self, pid: str, now_s: float) -> float:
-        """Greedy rollout over the person's later encounters without and with an ask now:
-        the expected true advantage it loses (module doc)."""
+        """Greedy rollout over the person's later encounters without and with an ask now.
+
+        The expected true advantage it loses (module doc).
+        """
         h = self.sc.truth_ask_half_life_s
         horizon = ORACLE_HALF_LIVES * h
         needs = self.world.needs
@@ -111,7 +113,7 @@ class TrueWorld:
         return self._rollout(pid, later, past, h) - self._rollout(pid, later, past + (now_s,), h)
 
     def _rollout(self, pid: str, later, asks: tuple, h: float) -> float:
-        """Expected advantage of the greedy oracle over `later`, from this ask history."""
+        """Return the greedy oracle's expected advantage over `later`, from this ask history."""
         times = list(asks)
         total = 0.0
         cfg = self.config

@@ -76,7 +76,7 @@ class RunResult:
 
 
 def site_config(world: World, config: DecisionConfig) -> DecisionConfig:
-    """The site's never-ask activities are hard limits of the decision (a site rule)."""
+    """Return the site's never-ask activities are hard limits of the decision (a site rule)."""
     extra = tuple(a for a in world.scenario.never_ask_activities
                   if a not in config.protected_activities)
     if not extra:
@@ -85,7 +85,7 @@ def site_config(world: World, config: DecisionConfig) -> DecisionConfig:
 
 
 def open_sim_need(session: HelpSession, need: SimNeed) -> Step:
-    """The view at the need (everyone else has left), then the need: the first decision."""
+    """Return the view at the need (everyone else has left), then the need: the first decision."""
     t = need.time_s
     session.people_seen(need.seen, t, complete_view=True)
     return session.need_opened(HelpNeed(need.request_id, need.kind, t,
@@ -95,7 +95,7 @@ def open_sim_need(session: HelpSession, need: SimNeed) -> Step:
 
 def robot_settings(world: World, policy: str, model: SiteModel,
                    config: DecisionConfig) -> tuple[SiteModel, DecisionConfig]:
-    """The robot's model and settings for a policy: `informed` is told the site's truth."""
+    """Return the robot's model and settings for a policy: `informed` is told the site's truth."""
     if policy == "informed":
         return true_site_model(world.scenario, model), informed_config(world.scenario, config)
     return model, config
@@ -105,8 +105,11 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
                keep_decisions: bool = False, progress: Optional[Callable[[int], None]] = None,
                rules: SessionRules = SessionRules(), learner: Any = None,
                label: Optional[str] = None) -> RunResult:
-    """One policy on one world. `learner`: site learning (module doc); `label`: the name
-    the result carries (default: the policy's)."""
+    """One policy on one world.
+
+    `learner`: site learning (module doc); `label`: the name the result carries (default: the
+    policy's).
+    """
     if policy not in SIM_POLICY_NAMES:
         raise ValueError(f"policy: {policy!r} is not one of {', '.join(SIM_POLICY_NAMES)}")
     model, config = robot_settings(world, policy, model, config)
@@ -145,6 +148,7 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
                 break
             result = _answer(world, truth, decision, need, k, res, j)
             k += 1
+            assert decision.person_id is not None   # an ask names its person
             step = session.outcome(need.request_id, decision.person_id, result, need.time_s)
             steps.append(step)
         session.need_closed(need.request_id)
@@ -169,8 +173,11 @@ def run_policy(world: World, policy: str, model: SiteModel, config: DecisionConf
 
 def _answer(world: World, truth: TrueWorld, decision, need: SimNeed, k: int,
             res: RunResult, j: int) -> Result:
-    """The world's answer to the k-th ask at need j (its k-th draw pair), with the world's
-    reward: its costs, the true ask load."""
+    """Return the world's answer to the k-th ask at need j, with the world's reward.
+
+    The world's answer to the k-th ask at need j (its k-th draw pair), with the world's reward: its
+    costs, the true ask load.
+    """
     sc = world.scenario
     pid = decision.person_id
     busyness = next(s.busyness for s in need.seen if s.person_id == pid)

@@ -32,15 +32,18 @@ class NeedKind:
 
 @dataclass(frozen=True)
 class WorldCosts:
-    """What an ask costs the world, in robot-seconds: the simulator's reward uses these, never
-    the robot's DecisionConfig, so runs with different robot parameters stay comparable.
-    Continue cost and help time are per need kind (NeedKind). Defaults: the shipped
-    DecisionConfig values, so a scenario without a `costs` section keeps its meaning."""
+    """What an ask costs the world, in robot-seconds.
+
+    The simulator's reward uses these, never the robot's DecisionConfig, so runs with different
+    robot parameters stay comparable. Continue cost and help time are per need kind (NeedKind).
+    Defaults: the shipped DecisionConfig values, so a scenario without a `costs` section keeps its
+    meaning.
+    """
 
     ask_time_s: float = DecisionConfig.ask_time_s                 # lost to an ask not helped
     interruption_weight_s: float = DecisionConfig.interruption_weight_s
     busy_cost: float = DecisionConfig.busy_cost                   # I = weight (1 + busy_cost x
-    repeat_cost: float = DecisionConfig.repeat_cost               #   + repeat_cost f_true)
+    repeat_cost: float = DecisionConfig.repeat_cost               # + repeat_cost f_true)
 
     def interruption_s(self, busyness: float, true_ask_load: float) -> float:
         return self.interruption_weight_s * (1.0 + self.busy_cost * busyness

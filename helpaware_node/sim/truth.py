@@ -36,8 +36,10 @@ _HERMITE_NODES = 80    # Gauss-Hermite nodes for the moments of a logistic-norma
 
 
 def beta_mixture_moments(mixture) -> tuple[float, float]:
-    """Mean and E[w^2] of a weighted mixture of Beta(a, b): E[w] = a/s, E[w^2] =
-    a (a + 1) / (s (s + 1)), s = a + b, per component."""
+    """Mean and E[w^2] of a weighted mixture of Beta(a, b).
+
+    E[w] = a/s, E[w^2] = a (a + 1) / (s (s + 1)), s = a + b, per component.
+    """
     total = sum(m[0] for m in mixture)
     m1 = sum(wt * a / (a + b) for wt, a, b in mixture) / total
     m2 = sum(wt * a * (a + 1.0) / ((a + b) * (a + b + 1.0)) for wt, a, b in mixture) / total
@@ -45,8 +47,11 @@ def beta_mixture_moments(mixture) -> tuple[float, float]:
 
 
 def logit_normal_moments(mean_w: float, sd: float) -> tuple[float, float]:
-    """E[w] and E[w^2] of w = logistic(logit(mean_w) + sd z), z standard normal (the world's
-    logistic truth), by Gauss-Hermite quadrature (probabilists' weight e^(-z^2/2))."""
+    """E[w] and E[w^2] of w = logistic(logit(mean_w) + sd z).
+
+    z standard normal (the world's logistic truth), by Gauss-Hermite quadrature (probabilists'
+    weight e^(-z^2/2)).
+    """
     z, wts = np.polynomial.hermite_e.hermegauss(_HERMITE_NODES)
     wts = wts / wts.sum()
     mean_w = min(max(mean_w, 1e-6), 1.0 - 1e-6)
@@ -67,7 +72,7 @@ def expected_strangers(sc: Scenario) -> float:
 
 
 def moment_matched_beta(mean: float, second: float) -> tuple[float, float]:
-    """The Beta with this mean and E[w^2]: concentration m (1 - m) / var - 1."""
+    """Return the Beta with this mean and E[w^2]: concentration m (1 - m) / var - 1."""
     var = max(second - mean * mean, 1e-12)
     conc = max(mean * (1.0 - mean) / var - 1.0, 1e-6)
     a = min(max(mean * conc, 1e-6), 1e6)
@@ -98,7 +103,7 @@ def true_site_model(sc: Scenario, base: SiteModel = SiteModel()) -> SiteModel:
 
 
 def informed_config(sc: Scenario, config: DecisionConfig) -> DecisionConfig:
-    """The robot's settings with the world's costs of an ask (limits and look-ahead kept)."""
+    """Return the robot's settings with the world's costs of an ask (limits, look-ahead kept)."""
     c = sc.costs
     return dataclasses.replace(config, ask_time_s=c.ask_time_s,
                                interruption_weight_s=c.interruption_weight_s,

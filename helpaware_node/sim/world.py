@@ -97,8 +97,11 @@ def _pick(cumulative: np.ndarray, rng: np.random.Generator) -> int:
 
 
 def _weighted_sample(weights: np.ndarray, k: int, rng: np.random.Generator) -> np.ndarray:
-    """k distinct indices, drawn one after another with probability proportional to weight
-    (exponential-race keys: the k smallest E_i / w_i), in draw order."""
+    """Draw k distinct indices with probability proportional to weight.
+
+    k distinct indices, drawn one after another with probability proportional to weight
+    (exponential-race keys: the k smallest E_i / w_i), in draw order.
+    """
     keys = rng.exponential(size=weights.size) / weights
     top = np.argpartition(keys, k - 1)[:k] if k < weights.size else np.arange(weights.size)
     return top[np.argsort(keys[top], kind="stable")]
@@ -146,7 +149,8 @@ def build_world(sc: Scenario, seed: int, ask_draws: int = ASK_DRAWS_PER_NEED) ->
     n = sc.regulars
     ids = [f"{sc.name}-r{i:03d}" for i in range(n)]
     will = dict(zip(ids, _willingness(rng, sc, sc.willingness, n).tolist()))
-    around = rng.gamma(sc.encounter_spread, 1.0 / sc.encounter_spread, size=n) if n else np.empty(0)
+    around = rng.gamma(sc.encounter_spread, 1.0 / sc.encounter_spread,
+                       size=n) if n else np.empty(0)
     sched = _Schedules(sc, random.Random(int(rng.integers(2**63))), n)
     kind_w = np.array([k.weight for k in sc.kinds], dtype=float)
     kind_cum = np.cumsum(kind_w / kind_w.sum())

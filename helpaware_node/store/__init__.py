@@ -12,6 +12,7 @@ from .keys import (KEY_FILE_NAME, SiteKeyError, SiteKeys, default_key_path, defa
 from .sqlite import SqliteStore, StoreCorruptError
 from .schema import SCHEMA_VERSION, StoreVersionError
 
+
 def default_robot_id() -> str:
     """HELPAWARE_ROBOT_ID, else the host name (no '/'), so each robot's ids are its own."""
     rid = os.environ.get("HELPAWARE_ROBOT_ID") or socket.gethostname().split(".")[0] or "robot"
@@ -20,7 +21,7 @@ def default_robot_id() -> str:
 
 def open_store(path: str = "", robot_id: str = "", model: SiteModel | None = None,
                key_path: str = "", retention_days: float = 0.0) -> BeliefStore:
-    """The store the node uses.
+    """Return the store the node uses.
 
     `path` empty: in this process only (MemoryStore, a random key per run).  Otherwise an
     SQLite file (the node's default is `default_store_path()`: ROS_HOME or ~/.ros, then
@@ -35,7 +36,7 @@ def open_store(path: str = "", robot_id: str = "", model: SiteModel | None = Non
 
 
 def key_path_for(store_path: str) -> str:
-    """The site key file a store file uses by default: `site_key` in the same directory."""
+    """Return the site key file a store file uses by default: `site_key` in the same directory."""
     return os.path.join(os.path.dirname(os.path.abspath(store_path)), KEY_FILE_NAME)
 
 

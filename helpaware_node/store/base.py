@@ -13,7 +13,7 @@ import hmac
 import math
 import os
 from dataclasses import dataclass
-from typing import Iterable, Optional, Protocol, Union
+from typing import Any, Iterable, Optional, Protocol, Union
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError
@@ -50,7 +50,7 @@ class StoredEvent:
 class AskEvent:
     """One ask as stored and shared, keyed like outcomes (hashed person key, never the raw id)."""
 
-    event_id: str          # "<robot_id>/<sequence>": the robot's own sequence, shared with outcomes
+    event_id: str          # "<robot_id>/<sequence>": the robot's own sequence, as outcomes
     person_key: str
     time_s: float          # when the ask was made (the robot's clock)
     request_kind: str = ""
@@ -66,34 +66,40 @@ AnyEvent = Union[StoredEvent, AskEvent]
 
 @dataclass(frozen=True)
 class LearnedEntry:
-    """One revision of the site constants learned online (fit/online.py), as kept in the
-    store's history: plain values only, so the store needs nothing of the fit."""
+    """One revision of the site constants learned online, as the store keeps it.
+
+    One revision of the site constants learned online (fit/online.py), as kept in the store's
+    history: plain values only, so the store needs nothing of the fit.
+    """
 
     revision: int              # 1, 2, ...: each change of the constants in force
     time_s: float              # the node's clock at the refit
-    constants: dict            # the learned SiteModel fields (and decline_aloud)
-    target: dict               # the parameter file's values it was shrunk towards, prior_weight
+    constants: dict[str, Any]  # the learned SiteModel fields (and decline_aloud)
+    target: dict[str, Any]     # the parameter file's values it was shrunk towards, prior_weight
     n_outcomes: int            # outcomes the refit used
-    verdict: dict              # ConvergenceVerdict.to_dict() of the refit
+    verdict: dict[str, Any]    # ConvergenceVerdict.to_dict() of the refit
     recorded_utc: str = ""     # wall-clock time it was stored
     robot_id: str = ""
 
 
 @dataclass(frozen=True)
 class EventsReader:
-    """The events site learning reads, copied when it was made (a MemoryStore's): callable,
-    and picklable, so the refit can run in another thread or process."""
+    """The events site learning reads, copied when it was made (a MemoryStore's).
 
-    outcomes: tuple
-    asks: tuple
+    Callable, and picklable, so the refit can run in another thread or process.
+    """
 
-    def __call__(self) -> tuple[list, list]:
+    outcomes: tuple[StoredEvent, ...]
+    asks: tuple[AskEvent, ...]
+
+    def __call__(self) -> tuple[list[StoredEvent], list[AskEvent]]:
         return list(self.outcomes), list(self.asks)
 
 
 def check_learned(entry: LearnedEntry) -> None:
     """Refuse a history row that is not plain, finite values (names the field)."""
-    if isinstance(entry.revision, bool) or not isinstance(entry.revision, int) or entry.revision < 1:
+    if isinstance(entry.revision, bool) or not isinstance(entry.revision,
+                                                          int) or entry.revision < 1:
         raise CoreInputError(f"revision: {entry.revision!r} must be a whole number >= 1")
     for name in ("constants", "target"):
         values = getattr(entry, name)
@@ -105,16 +111,25 @@ def check_learned(entry: LearnedEntry) -> None:
         raise CoreInputError(f"n_outcomes: {entry.n_outcomes!r} must be a whole number >= 0")
 
 
-def append_batch(store, events: Iterable[AnyEvent]) -> list[AnyEvent]:
-    """Store a mixed batch (a fleet delivery): outcomes in one transaction, then asks in
-    another; returns what was new. Both are idempotent, so a batch retried after a refusal
-    stores each event once."""
+class _Appends(Protocol):
+    def append(self, event: StoredEvent) -> bool: ...
+
+    def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...
+
+
+def append_batch(store: _Appends, events: Iterable[AnyEvent]) -> list[AnyEvent]:
+    """Store a mixed batch (a fleet delivery).
+
+    Outcomes in one transaction, then asks in another; returns what was new. Both are idempotent,
+    so a batch retried after a refusal stores each event once.
+    """
     events = list(events)
     outcomes = [e for e in events if isinstance(e, StoredEvent)]
     asks = [e for e in events if isinstance(e, AskEvent)]
     stored: list[AnyEvent] = []
     if outcomes:
-        stored += (store.append_many(outcomes) if hasattr(store, "append_many")
+        many = getattr(store, "append_many", None)   # one transaction where the store has it
+        stored += (many(outcomes) if many is not None
                    else [e for e in outcomes if store.append(e)])
     if asks:
         stored += store.append_asks(asks)
@@ -129,9 +144,12 @@ def person_key(site_key: bytes, raw_id: str) -> str:
 class BeliefStore(Protocol):
     """What the node, the tools and the fleet exchange need from a store."""
 
+    robot_id: str
+
     def key_for(self, raw_id: str) -> str: ...
-    def next_event_id(self) -> str: ...                        # "<robot_id>/<sequence>", never reused
-    def append(self, event: StoredEvent) -> bool: ...          # durable on return; False: not stored (duplicate, opted out)
+    def next_event_id(self) -> str: ...      # "<robot_id>/<sequence>", never reused
+    # durable on return; False: not stored (duplicate, opted out)
+    def append(self, event: StoredEvent) -> bool: ...
     def events_for(self, key: str) -> list[StoredEvent]: ...
     def keys(self) -> list[str]: ...
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, float | None]: ...
@@ -139,10 +157,14 @@ class BeliefStore(Protocol):
     def opt_out(self, key: str) -> None: ...
     def forget(self, key: str) -> int: ...                     # events removed (asks go too)
     def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...   # durable; new ones
+
     def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
              request_id: Optional[str] = None, since_s: Optional[float] = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]: ...   # newest `limit`, in time order
+
     def move_asks_forward(self, by_s: float) -> int: ...      # a forward jump of the clock
+    def opted_out(self) -> list[str]: ...
+    def use_model(self, model: SiteModel) -> None: ...        # the model beliefs fold under
     def close(self) -> None: ...
 
 
@@ -160,7 +182,8 @@ class MemoryStore:
         self._events: dict[str, StoredEvent] = {}
         self._by_key: dict[str, list[str]] = {}
         self._opted_out: set[str] = set()
-        self._folds: dict[str, tuple] = {}      # key -> (model, belief, last time, last order)
+        # key -> (model, belief, last time, last order)
+        self._folds: dict[str, tuple[Any, ...]] = {}
         self._asks: dict[str, AskEvent] = {}
         self._asks_by: dict[tuple[str, str], list[str]] = {}   # (field, value) -> ask ids
         self._learned: list[LearnedEntry] = []
@@ -190,15 +213,18 @@ class MemoryStore:
         return sorted(self._by_key)
 
     def belief(self, key: str, model: SiteModel) -> tuple[Belief, float | None]:
-        """The fold of the person's events; extended by the newest event when it comes last
-        in (time, event id) order (the same arithmetic as folding all again), else refolded."""
+        """Return the fold of the person's events.
+
+        Extended by the newest event when it comes last in (time, event id) order (the same
+        arithmetic as folding all again), else refolded.
+        """
         ids = self._by_key.get(key, [])
         cached = self._folds.get(key)
         if cached is not None and cached[0] == model and cached[4] == len(ids):
             return cached[1], cached[2]
         newest = self._events[ids[-1]] if ids else None
-        if (cached is not None and cached[0] == model and cached[4] == len(ids) - 1
-                and (newest.time_s, newest.event_id) > cached[3]):
+        if (cached is not None and newest is not None and cached[0] == model
+                and cached[4] == len(ids) - 1 and (newest.time_s, newest.event_id) > cached[3]):
             belief, last = fold_events([newest.to_outcome()], model, cached[1], cached[2])
         else:
             belief, last = fold_events([e.to_outcome() for e in self.events_for(key)], model)
@@ -246,8 +272,10 @@ class MemoryStore:
     def asks(self, *, person_key: Optional[str] = None, robot_id: Optional[str] = None,
              request_id: Optional[str] = None, since_s: Optional[float] = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]:
-        """Asks matching every filter given (and at or after `since_s`): the newest `limit`
-        of them, in (time, event id) order."""
+        """Asks matching every filter given (and at or after `since_s`).
+
+        The newest `limit` of them, in (time, event id) order.
+        """
         filters = [(f, v) for f, v in (("person_key", person_key), ("robot_id", robot_id),
                                        ("request_id", request_id)) if v is not None]
         if filters:      # the shortest index list, then the other filters on each ask
@@ -272,11 +300,13 @@ class MemoryStore:
         return len(self._events)
 
     def use_model(self, model: SiteModel) -> None:
-        """The model beliefs are folded under from now on (folds are cached per model)."""
+        """Set the model beliefs are folded under from now on (folds are cached per model)."""
 
     def learning_reader(self) -> EventsReader:
-        """(outcomes, asks) of people not opted out, for a refit in another thread or
-        process: the copies are taken now, on the caller's thread."""
+        """(outcomes, asks) of people not opted out, for a refit in another thread or process.
+
+        The copies are taken now, on the caller's thread.
+        """
         return EventsReader(
             tuple(e for e in self._events.values() if e.person_key not in self._opted_out),
             tuple(a for a in self._asks.values() if a.person_key not in self._opted_out))
@@ -289,7 +319,7 @@ class MemoryStore:
         self._learned.append(entry)
 
     def learned_history(self, limit: int = 1000) -> list[LearnedEntry]:
-        """The newest `limit` revisions, oldest first."""
+        """Return the newest `limit` revisions, oldest first."""
         out = sorted(self._learned, key=lambda e: e.revision)
         return out[max(len(out) - int(limit), 0):]
 

@@ -1,5 +1,6 @@
-"""The store's events and asks as CSV (hashed keys only): what `helpaware store export` writes
-and `helpaware fit` reads.
+"""The store's events and asks as CSV (hashed keys only).
+
+What `helpaware store export` writes and `helpaware fit` reads.
 
 One row per stored outcome (`record` outcome) and per stored ask (`record` ask), merged in
 (time, event id) order. An ask row has no busyness, ask load or result (it is not evidence:

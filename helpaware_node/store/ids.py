@@ -11,11 +11,15 @@ from __future__ import annotations
 
 import re
 import sqlite3
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..core.model import CoreInputError, check_range
 from ..core.preview import quoted
 from ..wire import MAX_ID_CHARS, MAX_LABEL_CHARS, lone_surrogate_at
+
+if TYPE_CHECKING:   # base.py imports this module
+    from ..core import OutcomeEvent
+    from .base import AskEvent, StoredEvent
 
 MAX_ROBOT_ID_CHARS = 64            # a host name label is at most 63 characters
 MAX_SEQUENCE = 2 ** 63 - 2         # SQLite INTEGER is at most 2**63 - 1; the store keeps seq + 1
@@ -50,7 +54,7 @@ def check_robot_id(value: Any, name: str = "robot_id") -> str:
     if problem:
         raise CoreInputError(f"{name}: {quoted(value)} {problem}; a robot id is "
                              f"{ROBOT_ID_RULE}")
-    return value
+    return str(value)
 
 
 def check_event_id(value: Any, name: str = "event_id") -> tuple[str, int]:
@@ -92,16 +96,18 @@ def check_person_key(value: Any) -> str:
     return value
 
 
-def check_event(event):
-    """Refuse anything that is not a hashed key or a well-formed outcome (names the field);
-    returns the event's OutcomeEvent (built once: the fold reuses it)."""
+def check_event(event: "StoredEvent") -> "OutcomeEvent":
+    """Refuse anything that is not a hashed key or a well-formed outcome (names the field).
+
+    Returns the event's OutcomeEvent (built once: the fold reuses it).
+    """
     check_person_key(event.person_key)
     check_event_id(event.event_id)
     check_text("request_kind", event.request_kind or "", MAX_LABEL_CHARS)
     return event.to_outcome()   # validates time, busyness, ask load and result ranges
 
 
-def check_ask(ask) -> None:
+def check_ask(ask: "AskEvent") -> None:
     """Refuse an ask that is not keyed like an event (names the field and the allowed range)."""
     check_person_key(ask.person_key)
     check_event_id(ask.event_id)
@@ -111,9 +117,12 @@ def check_ask(ask) -> None:
 
 
 def refused_by_store(exc: BaseException) -> bool:
-    """Whether a failed write is the store's condition (disk full, read-only, I/O error, locked,
-    damaged, out of memory: keep the events and try again) rather than one event's fault (a
-    value the store cannot hold: drop that event)."""
+    """Tell whether a failed write is the store's condition rather than one event's fault.
+
+    Whether a failed write is the store's condition (disk full, read-only, I/O error, locked,
+    damaged, out of memory: keep the events and try again) rather than one event's fault (a value
+    the store cannot hold: drop that event).
+    """
     if isinstance(exc, (sqlite3.IntegrityError, sqlite3.DataError, sqlite3.InterfaceError,
                         sqlite3.ProgrammingError)):
         return False

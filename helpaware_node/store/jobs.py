@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import os
 import queue
+import sqlite3
 import threading
 import time
 from collections import deque
@@ -29,7 +30,7 @@ COMPACT_PAUSE_S = 0.005         # between commits: the disk and CPUs free for th
 @dataclass
 class StoreJob:
     kind: str                           # "forget" | "opt_out" | "compact"
-    args: tuple
+    args: tuple[Any, ...]
     on_done: Optional[Callable[["StoreJob"], None]] = None
     result: Any = None                  # forget: events removed; compact: events compacted
     error: Optional[BaseException] = None
@@ -40,11 +41,11 @@ class StoreJob:
 class StoreJobs:
     """Queue of the store's long writes; one worker thread, started on the first job."""
 
-    def __init__(self, store, wake: Optional[Callable[[], None]] = None) -> None:
+    def __init__(self, store: Any, wake: Optional[Callable[[], None]] = None) -> None:
         self._store = store
         self._wake = wake                   # called on the worker after each job (thread-safe)
         self.threaded = hasattr(store, "worker_connection")
-        self._todo: queue.SimpleQueue = queue.SimpleQueue()
+        self._todo: queue.SimpleQueue[Optional[StoreJob]] = queue.SimpleQueue()
         self._done: deque[StoreJob] = deque()
         self._lock = threading.Lock()
         self._idle = threading.Condition(self._lock)
@@ -54,18 +55,18 @@ class StoreJobs:
         self.completed = 0
 
     # -- the caller's thread ------------------------------------------------------------
-    def forget(self, key: str, on_done=None) -> StoreJob:
+    def forget(self, key: str, on_done: Optional[Callable[[StoreJob], None]] = None) -> StoreJob:
         if hasattr(self._store, "begin_forget"):
             self._store.begin_forget(key)       # every read forgets the person from now on
         return self._submit(StoreJob("forget", (key,), on_done))
 
-    def opt_out(self, key: str, on_done=None) -> StoreJob:
+    def opt_out(self, key: str, on_done: Optional[Callable[[StoreJob], None]] = None) -> StoreJob:
         if hasattr(self._store, "begin_opt_out"):
             self._store.begin_opt_out(key)      # no append or decision uses them from now on
         return self._submit(StoreJob("opt_out", (key,), on_done))
 
     def compact(self, older_than_s: float, now_s: Optional[float] = None,
-                on_done=None) -> StoreJob:
+                on_done: Optional[Callable[[StoreJob], None]] = None) -> StoreJob:
         return self._submit(StoreJob("compact", (older_than_s, now_s), on_done))
 
     @property
@@ -146,7 +147,7 @@ class StoreJobs:
             if conn is not None:
                 conn.close()
 
-    def _run(self, job: StoreJob, conn) -> None:
+    def _run(self, job: StoreJob, conn: Optional[sqlite3.Connection]) -> None:
         t0 = time.perf_counter()
         try:
             job.result = self._execute(job, conn)
@@ -155,7 +156,7 @@ class StoreJobs:
         job.elapsed_s = time.perf_counter() - t0
         self._finish(job)
 
-    def _execute(self, job: StoreJob, conn):
+    def _execute(self, job: StoreJob, conn: Optional[sqlite3.Connection]) -> Any:
         s = self._store
         if conn is None:                    # a store without a worker connection: its own calls
             if job.kind == "forget":

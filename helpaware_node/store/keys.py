@@ -26,7 +26,10 @@ import stat
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
+
+if TYPE_CHECKING:
+    from ..signing import KeyRing
 
 KEY_BYTES = 32
 KEY_FILE_NAME = "site_key"
@@ -97,20 +100,22 @@ def write_new_owner_only(path: Path, data: bytes) -> None:
         os.close(fd)
 
 
-def load_site_key(path: str | os.PathLike | None = None, create: bool = True) -> bytes:
-    """The key that hashes person ids, from `path` (default under the ROS home), the file
-    created if missing and allowed."""
+def load_site_key(path: str | os.PathLike[str] | None = None, create: bool = True) -> bytes:
+    """Return the key that hashes person ids, from `path` (default under the ROS home).
+
+    The file created if missing and allowed.
+    """
     return load_site_keys(path, create).person_id_key
 
 
-def load_site_keys(path: str | os.PathLike | None = None, create: bool = True) -> "SiteKeys":
+def load_site_keys(path: str | os.PathLike[str] | None = None, create: bool = True) -> "SiteKeys":
     """Every key of the site key file at `path` (see the module doc)."""
     p = Path(path) if path else default_key_path()
     return parse_site_key_file(read_key_file(p, create), str(p))
 
 
 def read_key_file(p: Path, create: bool = True) -> bytes:
-    """The raw bytes of the key file, created if missing and allowed; checked for mode."""
+    """Return the raw bytes of the key file, created if missing and allowed; checked for mode."""
     try:
         if not p.exists():
             if not create:
@@ -136,7 +141,7 @@ def read_key_file(p: Path, create: bool = True) -> bytes:
 
 
 def key_fingerprint(key: bytes) -> str:
-    """A value that identifies the key without revealing it (domain-separated hash)."""
+    """Return a value that identifies the key without revealing it (domain-separated hash)."""
     return hashlib.sha256(b"helpaware.site-key-fingerprint\x00" + key).hexdigest()[:32]
 
 
@@ -146,10 +151,13 @@ FILE_HEADER = b"helpaware site key file v2\n"
 
 @dataclass(frozen=True)
 class SiteKeys:
-    """What a site key file holds.  `person_id_key` hashes perceived ids and is never rotated
-    in place (that would split every person in two); `signing_root` is what the fleet signing
-    key is derived from (the site key itself until the first rotation), and the previous root
-    stays accepted until `previous_until_s` (seconds since the epoch, UTC)."""
+    """What a site key file holds.
+
+    `person_id_key` hashes perceived ids and is never rotated in place (that would split every
+    person in two); `signing_root` is what the fleet signing key is derived from (the site key
+    itself until the first rotation), and the previous root stays accepted until `previous_until_s`
+    (seconds since the epoch, UTC).
+    """
 
     person_id_key: bytes
     signing_root: bytes
@@ -166,7 +174,7 @@ class SiteKeys:
         """Public name of the site: the start of the person-id key's fingerprint."""
         return key_fingerprint(self.person_id_key)[:16]
 
-    def key_ring(self):
+    def key_ring(self) -> "KeyRing":
         from ..signing import KeyRing, SigningKey
         previous = (SigningKey.derive(self.previous_signing_root)
                     if self.previous_signing_root is not None else None)
@@ -178,7 +186,7 @@ class SiteKeys:
 
 
 def parse_site_key_file(raw: bytes, where: str = "site key file") -> SiteKeys:
-    """SiteKeys from the bytes of a key file of either form; SiteKeyError names the line."""
+    """Parse SiteKeys from the bytes of a key file of either form; SiteKeyError names the line."""
     if not raw.startswith(FILE_HEADER):
         if len(raw) < 16:
             raise SiteKeyError(f"site key file {where} holds {len(raw)} bytes; expected "
@@ -226,7 +234,7 @@ def _parse_utc(text: str, where: str, line: int) -> float:
 
 
 def site_key_file_text(keys: SiteKeys) -> bytes:
-    """The text form of `keys` (see the module doc)."""
+    """Return the text form of `keys` (see the module doc)."""
     lines = [FILE_HEADER.decode(),
              "# person-ids: hashes perceived ids; keep it as long as the stores made with it\n",
              f"person-ids {keys.person_id_key.hex()}\n",
@@ -237,7 +245,7 @@ def site_key_file_text(keys: SiteKeys) -> bytes:
     return "".join(lines).encode("ascii")
 
 
-def rotate_signing_key(path: str | os.PathLike, window_s: float, now_s: float | None = None,
+def rotate_signing_key(path: str | os.PathLike[str], window_s: float, now_s: float | None = None,
                        force: bool = False) -> SiteKeys:
     """Give the site a new signing root; the current one stays accepted for `window_s`.
 

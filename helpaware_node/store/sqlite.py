@@ -1,5 +1,6 @@
-"""The SQLite store: a durable, append-only outcome log with a per-person fold cache, and
-the log of asks the hard limits count.
+"""The SQLite store: a durable, append-only outcome log with a per-person fold cache.
+
+The log of asks the hard limits count.
 
 - `events` is the source of truth; `snapshot` caches each person's fold
   (core.person.fold_events in (time, event id) order) and is updated in the same
@@ -30,14 +31,14 @@ import threading
 import time
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterable, Iterator
+from typing import Any, Iterable, Iterator, Optional, Sequence
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
 from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
 from .ids import PERSON_KEY_RE, check_ask, check_event, check_robot_id  # noqa: F401 (re-exported)
 from .keys import SiteKeyError, SiteKeys, key_fingerprint
-from .schema import SCHEMA_VERSION, StoreVersionError, file_version, migrate
+from .schema import StoreVersionError, file_version, migrate
 
 DAY_S = 86400.0
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
@@ -47,8 +48,10 @@ SCAN_CHUNK_BYTES = 1 << 20     # forget's search of the file, per read
 
 
 def set_pragmas(conn: sqlite3.Connection) -> None:
-    """The per-connection settings every writer of the file uses (the node's and a worker's):
-    a commit is on disk when it returns, and deleted rows are zeroed, not left in free space."""
+    """Set the per-connection settings every writer of the file uses (the node's, a worker's).
+
+    a commit is on disk when it returns, and deleted rows are zeroed, not left in free space.
+    """
     conn.execute("PRAGMA synchronous=FULL")
     conn.execute("PRAGMA secure_delete=ON")
 
@@ -62,15 +65,15 @@ def model_hash(model: SiteModel) -> str:
     return hashlib.sha256(text.encode()).hexdigest()[:16]
 
 
-def row_to_ask(row) -> AskEvent:
+def row_to_ask(row: Sequence[Any]) -> AskEvent:
     return AskEvent(row[0], row[2], row[3], row[4], row[5])
 
 
-def row_to_event(row) -> StoredEvent:
+def row_to_event(row: Sequence[Any]) -> StoredEvent:
     return StoredEvent(row[0], row[1], row[2], Result(row[5]), row[3], row[4], row[6])
 
 
-def event_to_row(e: StoredEvent) -> tuple:
+def event_to_row(e: StoredEvent) -> tuple[Any, ...]:
     result = e.result.value if isinstance(e.result, Result) else Result.parse(e.result).value
     return (e.event_id, e.person_key, float(e.time_s), float(e.busyness), float(e.ask_load),
             result, e.request_kind or "")
@@ -119,7 +122,7 @@ class SqliteReader:
 class SqliteStore:
     """BeliefStore on one SQLite file (see the module doc and docs/store.md)."""
 
-    def __init__(self, path: str | os.PathLike, robot_id: str, site_key: bytes | SiteKeys,
+    def __init__(self, path: str | os.PathLike[str], robot_id: str, site_key: bytes | SiteKeys,
                  model: SiteModel | None = None, retention_days: float = 0.0,
                  integrity_check: bool = True) -> None:
         check_robot_id(robot_id)
@@ -232,7 +235,7 @@ class SqliteStore:
         return person_key(self._site_key, raw_id)
 
     def next_event_id(self) -> str:
-        """A new event id for this robot; never reused, even after restarts or forget."""
+        """Return a new event id for this robot; never reused, even after restarts or forget."""
         with self._lock:
             seq = self._next_seq
             self._next_seq += 1
@@ -263,8 +266,9 @@ class SqliteStore:
                     c.execute("ROLLBACK")
                 raise
 
-    def _append_in_tx(self, event: StoredEvent, row: tuple,
-                      refold_later: set[str] | None = None, outcome=None) -> bool:
+    def _append_in_tx(self, event: StoredEvent, row: tuple[Any, ...],
+                      refold_later: set[str] | None = None,
+                      outcome: Optional[OutcomeEvent] = None) -> bool:
         """Insert one event inside the open transaction and keep its snapshot the fold.
 
         With `refold_later` (a batch), a person whose event arrives out of order is refolded
@@ -318,7 +322,8 @@ class SqliteStore:
         within the batch), opted-out people, events older than a compacted base.
         """
         batch = sorted(events, key=lambda e: (float(e.time_s), e.event_id))
-        rows, outcomes = [], []
+        rows: list[tuple[Any, ...]] = []
+        outcomes: list[OutcomeEvent] = []
         for e in batch:
             outcomes.append(check_event(e))
             rows.append(event_to_row(e))
@@ -333,7 +338,7 @@ class SqliteStore:
             return stored
 
     @contextlib.contextmanager
-    def _batch(self):
+    def _batch(self) -> Iterator[sqlite3.Connection]:
         """One durable transaction for a batch: all of it, or nothing and the sequence back."""
         with self._lock:
             c = self._conn
@@ -348,12 +353,13 @@ class SqliteStore:
                 self._next_seq = next_seq       # nothing of the batch was stored
                 raise
 
-    def _events(self, c, key: str) -> list[StoredEvent]:
+    def _events(self, c: sqlite3.Connection, key: str) -> list[StoredEvent]:
         return [row_to_event(r) for r in c.execute(
             f"SELECT {EVENT_COLUMNS} FROM events WHERE person_key = ? ORDER BY time_s, event_id",
             (key,))]
 
-    def _fold(self, c, key: str, model: SiteModel):
+    def _fold(self, c: sqlite3.Connection, key: str,
+              model: SiteModel) -> tuple[Belief, Optional[float], Optional[str], int]:
         """(belief, last time, last event id, count) refolded from the base and the events."""
         base = c.execute("SELECT base_a, base_b, base_time_s, base_event_id, base_count "
                          "FROM snapshot WHERE person_key = ?", (key,)).fetchone()
@@ -365,7 +371,7 @@ class SqliteStore:
         last_id = max(((e.time_s, e.event_id) for e in events), default=(None, start_id))[1]
         return belief, last, last_id, count + len(events)
 
-    def _refold(self, c, key: str) -> None:
+    def _refold(self, c: sqlite3.Connection, key: str) -> None:
         belief, last, last_id, count = self._fold(c, key, self.model)
         c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
                   "event_count, model_hash) VALUES (?,?,?,?,?,?,?) ON CONFLICT(person_key) DO "
@@ -374,7 +380,7 @@ class SqliteStore:
                   " model_hash = excluded.model_hash",
                   (key, belief.a, belief.b, last, last_id, count, self._model_hash))
 
-    def _rebuild_all(self, conn) -> None:
+    def _rebuild_all(self, conn: sqlite3.Connection) -> None:
         conn.execute("BEGIN IMMEDIATE")
         try:
             for (key,) in conn.execute("SELECT DISTINCT person_key FROM events").fetchall():
@@ -397,7 +403,7 @@ class SqliteStore:
         return [k for k in keys if k not in self._forgetting] if self._forgetting else keys
 
     def belief(self, key: str, model: SiteModel | None = None) -> tuple[Belief, float | None]:
-        """The cached fold under the store's model; any other model refolds (not cached)."""
+        """Return the cached fold under the store's model; any other model refolds (not cached)."""
         model = model or self.model
         if key in self._forgetting:     # erased at once, whatever the worker has done yet
             return Belief.prior(model), None
@@ -430,8 +436,10 @@ class SqliteStore:
         return out
 
     def is_opted_out(self, key: str) -> bool:
-        """From memory (loaded at open, kept by every opt-out and forget): no SQL on the
-        decision path."""
+        """From memory (loaded at open, kept by every opt-out and forget).
+
+        No SQL on the decision path.
+        """
         return key in self._opted
 
     def opt_out(self, key: str) -> None:
@@ -441,8 +449,10 @@ class SqliteStore:
             self.opt_out_rows(self._conn, key)
 
     def begin_opt_out(self, key: str) -> None:
-        """The opt-out in memory, in force for every decision and append from now on; its
-        row is written by opt_out_rows (here, or on a worker's connection: store/jobs.py)."""
+        """Put the opt-out in memory, in force for every decision and append from now on.
+
+        Its row is written by opt_out_rows (here, or on a worker's connection: store/jobs.py).
+        """
         if not PERSON_KEY_RE.match(key or ""):
             raise CoreInputError("person_key: expected 64 lowercase hex digits")
         self._opted.add(key)
@@ -455,8 +465,11 @@ class SqliteStore:
         return sorted(self._opted)
 
     def forget(self, key: str) -> int:
-        """Delete every row that holds the key (asks too) and leave no copy of it in the file
-        or the WAL (see forget_rows).  Returns the events removed, compacted ones included."""
+        """Delete every row that holds the key (asks too) and leave no copy of it.
+
+        Delete every row that holds the key (asks too) and leave no copy of it in the file or the
+        WAL (see forget_rows).  Returns the events removed, compacted ones included.
+        """
         self.begin_forget(key)
         try:
             with self._lock:
@@ -465,8 +478,11 @@ class SqliteStore:
             self.end_forget(key)
 
     def begin_forget(self, key: str) -> None:
-        """The person is unknown from now on: reads give the prior, appends are refused, the
-        opt-out entry goes (as forget deletes it), until end_forget after forget_rows."""
+        """Make the person unknown from now on.
+
+        Reads give the prior, appends are refused, the opt-out entry goes (as forget deletes it),
+        until end_forget after forget_rows.
+        """
         if not PERSON_KEY_RE.match(key or ""):
             raise CoreInputError("person_key: expected 64 lowercase hex digits")
         self._forgetting.add(key)
@@ -476,10 +492,12 @@ class SqliteStore:
         self._forgetting.discard(key)
 
     def forget_rows(self, c: sqlite3.Connection, key: str) -> int:
-        """Delete the key's rows on connection `c`, checkpoint the WAL away, then search the
-        file's bytes for the key: a copy can outlive the rows as a divider in an interior
-        index page, so a find rebuilds the indexes, and one still found after that rewrites
-        the whole file (VACUUM).  A key never stored costs one small transaction."""
+        """Delete the key's rows on connection `c`, checkpoint the WAL away.
+
+        Then search the file's bytes for the key: a copy can outlive the rows as a divider in an
+        interior index page, so a find rebuilds the indexes, and one still found after that
+        rewrites the whole file (VACUUM).  A key never stored costs one small transaction.
+        """
         c.execute("BEGIN IMMEDIATE")
         try:
             row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
@@ -499,8 +517,11 @@ class SqliteStore:
         return n
 
     def erase_copies(self, c: sqlite3.Connection, key: str) -> str:
-        """Make sure no byte of `key` is left in the file or its WAL; returns what it took
-        ("none", "reindex", "vacuum"; "left" when a copy remained, health then ERROR)."""
+        """Make sure no byte of `key` is left in the file or its WAL.
+
+        Returns what it took ("none", "reindex", "vacuum"; "left" when a copy remained, health then
+        ERROR).
+        """
         needle = key.encode()
         self.checkpoint(c)
         if not self.file_holds(needle):
@@ -529,7 +550,8 @@ class SqliteStore:
         """Whether the database file or its WAL holds these bytes anywhere (free pages too).
 
         Read in chunks: each read lets go of the interpreter, so a scan of a large file on a
-        worker does not hold the executor's thread for its length."""
+        worker does not hold the executor's thread for its length.
+        """
         overlap = len(needle) - 1
         for suffix in ("", "-wal"):
             try:
@@ -555,8 +577,9 @@ class SqliteStore:
                                       "another reader; erased rows may remain in the WAL")
 
     def compact(self, older_than_s: float, now_s: float | None = None) -> int:
-        """Fold events older than `older_than_s` into each person's base and delete them;
-        asks older than that go too (they carry no evidence).
+        """Fold events older than `older_than_s` into each person's base and delete them.
+
+        Asks older than that go too (they carry no evidence).
 
         Beliefs do not change: the fold is sequential, and the base is exactly the fold of
         the deleted prefix.  Returns the number of events removed.  A retention shorter than
@@ -569,9 +592,11 @@ class SqliteStore:
     def compact_rows(self, c: sqlite3.Connection, older_than_s: float,
                      now_s: float | None = None, keys_per_commit: int = 0,
                      pause_s: float = 0.0) -> int:
-        """compact() on connection `c`; with `keys_per_commit` > 0 (a worker) one
-        transaction per that many people, so the node's appends wait for one batch at most
-        (each person's base and deletion still commit together)."""
+        """compact() on connection `c`.
+
+        With `keys_per_commit` > 0 (a worker) one transaction per that many people, so the node's
+        appends wait for one batch at most (each person's base and deletion still commit together).
+        """
         if older_than_s < 0:
             raise CoreInputError(f"older_than_s: {older_than_s!r} must be >= 0")
         cutoff = (time.time() if now_s is None else now_s) - older_than_s
@@ -600,13 +625,16 @@ class SqliteStore:
         return removed
 
     def worker_connection(self) -> sqlite3.Connection:
-        """A connection of its own for a worker thread (store/jobs.py), set like the node's."""
+        """Return a connection of its own for a worker thread (store/jobs.py).
+
+        Set like the node's.
+        """
         conn = sqlite3.connect(str(self.path), isolation_level=None, check_same_thread=False,
                                timeout=10.0)
         set_pragmas(conn)
         return conn
 
-    def _compact_key(self, c, key: str, cutoff: float) -> int:
+    def _compact_key(self, c: sqlite3.Connection, key: str, cutoff: float) -> int:
         snap = c.execute("SELECT model_hash FROM snapshot WHERE person_key = ?",
                          (key,)).fetchone()
         if snap is None or snap[0] != self._model_hash:
@@ -628,7 +656,9 @@ class SqliteStore:
     # -- admin -------------------------------------------------------------------------
     def counts(self) -> dict[str, int | str]:
         with self._lock:
-            q = lambda sql: self._conn.execute(sql).fetchone()[0]   # noqa: E731
+            def q(sql: str) -> int:
+                return int(self._conn.execute(sql).fetchone()[0])
+
             return {
                 "schema_version": file_version(self._conn),
                 "events": q("SELECT count(*) FROM events"),
@@ -648,7 +678,7 @@ class SqliteStore:
             ids |= {r[0] for r in self._conn.execute("SELECT DISTINCT robot_id FROM asks")}
         return sorted(ids)
 
-    def _in_order(self, table: str, columns: str) -> list:
+    def _in_order(self, table: str, columns: str) -> list[Any]:
         with self._lock:
             return self._conn.execute(f"SELECT {columns} FROM {table} "
                                       "ORDER BY time_s, event_id").fetchall()
@@ -690,7 +720,7 @@ class SqliteStore:
                     self._note_own_sequence(c, a.event_id)
             return stored
 
-    def _note_own_sequence(self, c, event_id: str) -> None:
+    def _note_own_sequence(self, c: sqlite3.Connection, event_id: str) -> None:
         robot, _, seq = event_id.rpartition("/")
         if robot == self.robot_id and seq.isdigit():
             c.execute("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
@@ -701,9 +731,12 @@ class SqliteStore:
     def asks(self, *, person_key: str | None = None, robot_id: str | None = None,
              request_id: str | None = None, since_s: float | None = None,
              limit: int = MAX_ASKS_CAP) -> list[AskEvent]:
-        """Asks matching every filter given (and at or after `since_s`): the newest `limit`
-        of them, in (time, event id) order."""
-        where, args = [], []
+        """Asks matching every filter given (and at or after `since_s`).
+
+        The newest `limit` of them, in (time, event id) order.
+        """
+        where: list[str] = []
+        args: list[str | float] = []
         for column, value in (("person_key", person_key), ("robot_id", robot_id),
                               ("request_id", request_id)):
             if value is not None:
@@ -725,8 +758,11 @@ class SqliteStore:
                 if not self._forgetting or r[2] not in self._forgetting]
 
     def move_asks_forward(self, by_s: float) -> int:
-        """A forward jump of the system clock (seen against the steady clock while the node
-        ran): every stored ask moves with it, so after a restart each keeps its real age."""
+        """Move every stored ask forward by a forward jump of the system clock.
+
+        A forward jump of the system clock (seen against the steady clock while the node ran):
+        every stored ask moves with it, so after a restart each keeps its real age.
+        """
         with self._lock:
             return self._conn.execute("UPDATE asks SET time_s = time_s + ?",
                                       (float(by_s),)).rowcount
@@ -766,7 +802,8 @@ class SqliteStore:
 
         Nothing is refolded here: each person's snapshot carries the hash of the model it was
         folded under, and belief() refolds a stale one when that person is next read, so a
-        change of constants costs the executor nothing on a big store."""
+        change of constants costs the executor nothing on a big store.
+        """
         with self._lock:
             if model_hash(model) == self._model_hash:
                 return
@@ -776,9 +813,12 @@ class SqliteStore:
                                (json.dumps(to_plain(model), sort_keys=True),))
 
     def learning_reader(self) -> "SqliteReader":
-        """(outcomes, asks) of people not opted out, read by whoever calls it (a refit's
-        worker thread or process) on its own read-only connection: WAL lets it read while the
-        node writes, and the node's connection and lock are never held by a refit."""
+        """(outcomes, asks) of people not opted out.
+
+        Read by whoever calls it (a refit's worker thread or process) on its own read-only
+        connection: WAL lets it read while the node writes, and the node's connection and lock are
+        never held by a refit.
+        """
         return SqliteReader(str(self.path))
 
     def record_learned(self, entry: LearnedEntry) -> None:
@@ -798,7 +838,7 @@ class SqliteStore:
                                      "history") from None
 
     def learned_history(self, limit: int = 1000) -> list[LearnedEntry]:
-        """The newest `limit` revisions, oldest first."""
+        """Return the newest `limit` revisions, oldest first."""
         with self._lock:
             rows = self._conn.execute(
                 "SELECT revision, time_s, constants, target, n_outcomes, verdict, recorded_utc, "
@@ -819,4 +859,5 @@ class SqliteStore:
                 except sqlite3.Error:
                     pass
                 self._conn.close()
-                self._conn = None
+                # closed for good: any later use fails at once on None
+                self._conn = None  # type: ignore[assignment]

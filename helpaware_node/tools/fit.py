@@ -13,6 +13,7 @@ import datetime
 import math
 import os
 import sys
+from typing import Optional
 
 from ..fit.data import FitInputError, read_outcome_csv
 from ..fit.heldout import kfold
@@ -64,12 +65,12 @@ def _load(inputs, half_life_s):
     return read_outcome_csv(csvs, half_life_s)
 
 
-def _fmt(v: float) -> str:
+def _fmt(v: Optional[float]) -> str:
     return "n/a" if v is None or (isinstance(v, float) and math.isnan(v)) else f"{v:.4g}"
 
 
 def verdict_line(verdict) -> str:
-    """The verdict as printed, with the option to change where the command has one."""
+    """Return the verdict as printed, with the option to change where the command has one."""
     option = CAUSE_OPTION.get(verdict.cause)
     return verdict.line() + (f" ({option})" if option else "")
 
@@ -113,15 +114,18 @@ def run(args: argparse.Namespace) -> int:
             status = "fitted"
         shown = "-" if value is None else f"{value:.4f}"
         rows.append((name, shown, _fmt(fit.std_errors.get(name)), status))
-    print(render_table(("constant", "estimate", "std error", ""), rows, (False, True, True, False)))
+    print(render_table(("constant", "estimate", "std error", ""), rows,
+                       (False, True, True, False)))
     print(f"log marginal likelihood {fit.loglik:.3f} ({fit.iterations} iterations)")
     print(verdict_line(fit.verdict))
     if not fit.converged:
-        print(f"fit: not converged, no parameter file written: {fit.verdict.reason}",
+        print(f"fit: not converged, no parameter file written: {fit.reason}",
               file=sys.stderr)
         return NOT_CONVERGED
+    assert fit.verdict is not None   # converged: a verdict said so
     test = context_test(data, fit, args.notice_probability)
-    if test is not None and not test.null_verdict.converged:
+    if (test is not None and test.null_verdict is not None
+            and not test.null_verdict.converged):
         print(f"context terms (k = 0): not tested: the fit with k = 0 did not converge "
               f"({test.null_verdict.reason})")
         test = None

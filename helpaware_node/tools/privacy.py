@@ -124,6 +124,7 @@ def _rotate(path: str, args) -> int:
         return 2
     new = rotate_signing_key(path, args.window_days * DAY_S, force=args.force)
     ring = new.key_ring()
+    assert ring.previous is not None   # a rotation keeps the previous key for the window
     print(f"{path}: new signing key {ring.current.key_id}; the previous key "
           f"{ring.previous.key_id} is accepted until {utc_text(ring.previous_until_s)}.")
     print("Copy this file to every robot and console of the site (owner-only, mode 600) and "

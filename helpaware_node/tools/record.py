@@ -15,9 +15,13 @@ from typing import Optional
 from ..bag import BagWriter
 from ..bag.person_ids import HASHED_MARK, ID_TOPICS, NODE_TOPICS, id_hasher
 
+
 def load_site_key(path: Optional[str]) -> bytes:
-    """The site key the store uses (`store.load_site_key`): from --site-key-file, else the
-    store's default key file.  Never created here: a new key would not match the store."""
+    """Return the site key the store uses (`store.load_site_key`).
+
+    From --site-key-file, else the store's default key file.  Never created here: a new key would
+    not match the store.
+    """
     from ..store import SiteKeyError, default_key_path
     from ..store import load_site_key as store_load_site_key
     try:

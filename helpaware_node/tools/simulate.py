@@ -42,8 +42,9 @@ def add_arguments(parser) -> None:
                         help="seeds run in N processes at once (default 1); the results are "
                         "the same for any N")
     parser.add_argument("--params", metavar="FILE",
-                        help="the node's parameter file (ROS 2 YAML, e.g. config/hospital_night.yaml)"
-                             ": simulate with the site's own costs and limits")
+                        help="the node's parameter file (ROS 2 YAML, e.g. "
+                             "config/hospital_night.yaml): simulate with the site's own costs "
+                             "and limits")
     parser.add_argument("--constants", choices=("defaults", "true"), default="defaults",
                         help="what the robot starts from: the shipped defaults (or --params), "
                              "or the site's true constants (docs/scenarios.md)")

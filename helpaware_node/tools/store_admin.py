@@ -18,6 +18,7 @@ from ..store.keys import KEY_FILE_NAME
 from ..store.export import EXPORT_COLUMNS, write_csv
 from ..text_table import fmt, render_table
 
+
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--path", default="", help=f"store file (default {default_store_path()})")
     parser.add_argument("--key-file", default="", help="site key file (default: site_key "
@@ -100,12 +101,12 @@ def do_inspect(store: SqliteStore, args) -> int:
     events = store.events_for(key)
     known = key in set(store.keys())
     print(f"person key {key}")
-    rows = [["known", "yes" if known else "no (site prior)"],
-            ["opted out", "yes" if store.is_opted_out(key) else "no"],
-            ["a", fmt(belief.a, 4)], ["b", fmt(belief.b, 4)],
-            ["mean willingness", fmt(belief.mean, 3)],
-            ["events stored", len(events)],
-            ["last event time_s", "-" if last is None else fmt(last, 1)]]
+    rows: list[list[object]] = [["known", "yes" if known else "no (site prior)"],
+                                ["opted out", "yes" if store.is_opted_out(key) else "no"],
+                                ["a", fmt(belief.a, 4)], ["b", fmt(belief.b, 4)],
+                                ["mean willingness", fmt(belief.mean, 3)],
+                                ["events stored", len(events)],
+                                ["last event time_s", "-" if last is None else fmt(last, 1)]]
     asks = store.asks(person_key=key)
     rows.append(["asks stored", len(asks)])
     print(render_table(["item", "value"], rows, [False, True]))
@@ -143,7 +144,7 @@ def do_compact(store: SqliteStore, args) -> int:
     now = time.time() if args.now is None else args.now
     asks_before = store.counts()["asks"]
     n = store.compact(args.older_than_days * 86400.0, now_s=now)
-    asks_removed = asks_before - store.counts()["asks"]
+    asks_removed = int(asks_before) - int(store.counts()["asks"])
     print(f"compacted {n} event(s) older than {args.older_than_days:g} day(s); "
           f"deleted {asks_removed} ask(s) as old")
     return 0

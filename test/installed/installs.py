@@ -37,7 +37,7 @@ class Install:
     env_delta: dict = field(default_factory=dict)   # what sourcing the install changes
 
     def env(self) -> dict:
-        """This process's environment (its ROS_HOME, domain, discovery range) + the install."""
+        """Return this process's environment (ROS_HOME, domain, discovery range) + the install."""
         env = dict(os.environ)
         env.update(self.env_delta)
         missing = [k for k in DDS_KEYS if not env.get(k)]
@@ -86,7 +86,7 @@ def build_environment() -> dict:
 
 
 def sourced_delta(setup_script: str, cwd: str) -> dict:
-    """What `source install/setup.bash` changes in the environment."""
+    """Return what `source install/setup.bash` changes in the environment."""
     base = build_environment()
     dump = f"{sys.executable} -c 'import json, os; print(json.dumps(dict(os.environ)))'"
     out = subprocess.run(["bash", "-c", f"source {setup_script} >/dev/null 2>&1 && {dump}"],
@@ -119,7 +119,10 @@ def run_colcon(workspace: str, variant: str) -> ColconBuild:
 
 
 def hand_built_prefix(prefix: str) -> Install:
-    """An ament prefix with what launch_ros and package_data look for, running the venv's code."""
+    """Return an ament prefix with what launch_ros and package_data look for.
+
+    Running the venv's code.
+    """
     index = os.path.join(prefix, "share", "ament_index", "resource_index", "packages")
     os.makedirs(index)
     open(os.path.join(index, PACKAGE), "w").close()

@@ -49,8 +49,11 @@ def test_launch_file(path, ament_install, tmp_path):
 
 
 def test_launch_file_against_a_hand_built_prefix(tmp_path):
-    """Where colcon is missing, the launch tests run against a prefix made of the package's
-    marker, package.xml, data and executables: that prefix must be one launch_ros accepts."""
+    """Where colcon is missing.
+
+    The launch tests run against a prefix made of the package's marker, package.xml, data and
+    executables: that prefix must be one launch_ros accepts.
+    """
     prefix = hand_built_prefix(str(tmp_path / "prefix"))
     defaults = next(p for p in LAUNCH_TESTS if p.endswith("decider_defaults_launch.py"))
     code, out = run_launch_test(defaults, prefix, str(tmp_path))

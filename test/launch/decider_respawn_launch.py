@@ -29,7 +29,7 @@ def decisions_for(probe, request_id):
 
 
 def belief_of(decision, person_id):
-    """(a, b) of a person as the decision used it."""
+    """Return (a, b) of a person as the decision used it."""
     row = next(c for c in decision["candidates"] if c["person_id"] == person_id)
     return (row["a"], row["b"])
 

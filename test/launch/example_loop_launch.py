@@ -19,7 +19,8 @@ STAND_IN_PEOPLE = {"nurse-ward3-a", "porter-b", "doctor-c"}   # ros/examples/per
 
 @pytest.mark.launch_test
 def generate_test_description():
-    return described_launch("example_loop.launch.py", {"namespace": "loop", "stuck_period_s": "2.0"})
+    return described_launch("example_loop.launch.py",
+                            {"namespace": "loop", "stuck_period_s": "2.0"})
 
 
 class TestLoop(unittest.TestCase):

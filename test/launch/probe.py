@@ -22,13 +22,13 @@ VIEW = [{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1},
 
 
 def installed_launch_file(name: str) -> str:
-    """The launch file as installed: share/helpaware_node/launch through the ament index."""
+    """Return the launch file as installed: share/helpaware_node/launch through the ament index."""
     from ament_index_python.packages import get_package_share_directory
     return os.path.join(get_package_share_directory("helpaware_node"), "launch", name)
 
 
 def described_launch(launch_file: str, arguments=None):
-    """The installed launch file with these arguments, then ReadyToTest."""
+    """Return the installed launch file with these arguments, then ReadyToTest."""
     import launch
     import launch_testing.actions
     from launch.actions import IncludeLaunchDescription
@@ -49,8 +49,11 @@ def assert_clean_shutdown(case, proc_info, proc_output) -> None:
 
 
 def clean_shutdown_test():
-    """A post-shutdown TestCase for a launch test module: `TestShutdown = clean_shutdown_test()`
-    (launch_testing finds post-shutdown tests among the module's classes)."""
+    """Return a post-shutdown TestCase for a launch test module.
+
+    `TestShutdown = clean_shutdown_test()` (launch_testing finds post-shutdown tests among the
+    module's classes).
+    """
     import unittest
 
     import launch_testing
@@ -63,7 +66,7 @@ def clean_shutdown_test():
 
 
 def process_environment(pid: int) -> dict:
-    """The environment a launched process really has (Linux /proc)."""
+    """Return the environment a launched process really has (Linux /proc)."""
     with open(f"/proc/{pid}/environ", "rb") as fh:
         items = [x.split(b"=", 1) for x in fh.read().split(b"\0") if b"=" in x]
     return {k.decode(): v.decode(errors="replace") for k, v in items}

@@ -165,7 +165,7 @@ def _with_raw(doc: dict, path: tuple, raw: str, ensure_ascii: bool = True) -> st
 
 
 def _rule_ok_text(rule: tuple, value: str) -> bool:
-    """Does `value` follow the hand rule of its field (the oracle)?"""
+    """Tell whether `value` follows the hand rule of its field (the oracle)."""
     if re.search(r"[\ud800-\udfff]", value):
         return False                      # no lone surrogate is text anywhere
     kind = rule[0]
@@ -256,9 +256,12 @@ def _word(path: tuple) -> str:
 
 
 def _resigned(text_: str, keys: KeyRing, topic: str, path: tuple) -> str:
-    """Signed again with the site key when the topic's documents are signed and the canonical
-    encoding can hold the value; else the changed text with the signature it had (the seed's,
-    as a peer without the key would send it). A changed signature field is sent as it is."""
+    """Return the changed text signed again, or with the signature it had.
+
+    Signed again with the site key when the topic's documents are signed and the canonical encoding
+    can hold the value; else the changed text with the signature it had (the seed's, as a peer
+    without the key would send it). A changed signature field is sent as it is.
+    """
     if not topic.startswith(("fleet:", "privacy:")) or topic == "privacy:unsigned":
         return text_
     if path[-1] in SIGNATURE_FIELDS:
@@ -270,8 +273,11 @@ def _resigned(text_: str, keys: KeyRing, topic: str, path: tuple) -> str:
 
 
 def refusal_names(case: Case, reason: str) -> bool:
-    """Does the reason name the case's field, or say why the whole document was refused
-    before any field (too long for the topic, too deep to parse)?"""
+    """Tell whether the reason names the case's field.
+
+    Or say why the whole document was refused before any field (too long for the topic, too deep to
+    parse)?
+    """
     if re.search(r"longer than|larger than|not valid JSON", reason):
         return True
     if case.topic in ("people", "task_status", "outcome"):
@@ -284,9 +290,11 @@ def refusal_names(case: Case, reason: str) -> bool:
 
 
 def names_some_field(topic: str, reason: str) -> bool:
-    """For a document that may be valid and was refused for the robot's state (an outcome
-    for a request nobody asked about): the reason still starts with, or holds, a field of
-    its topic."""
+    """Tell whether a refusal for the robot's state still names a field.
+
+    For a document that may be valid and was refused for the robot's state (an outcome for a
+    request nobody asked about): the reason still starts with, or holds, a field of its topic.
+    """
     names = {p for path in FIELDS[topic][1] for p in path if isinstance(p, str)}
     names |= {"document", "v", "kind", "sig", "site", "key_id", "person_id", "person_key"}
     if topic in ("people", "task_status", "outcome"):

@@ -182,6 +182,7 @@ def main(argv=None) -> int:
         for _ in range(WARMUP_PEOPLE_MESSAGES):
             people_pub.publish(String(data=wire.people_document(warm, time.time())))
             spin_until(lambda: False, 0.05)
+
         def fresh_people_count() -> int:
             # two more /diagnostics ticks (about 2 s with nothing sent on people): the count
             # then holds every people message sent so far that the node will ever get

@@ -1,5 +1,6 @@
-"""The robot's long-lived side in a process of its own: perception and the behaviour layer stay
-up while the decision node is killed and started again.
+"""The robot's long-lived side in a process of its own.
+
+Perception and the behaviour layer stay up while the decision node is killed and started again.
 
 Used by test/reliability/test_respawn.py (every restart must answer) and bench/bench_respawn.py
 (how long a restart takes to answer).  One rclpy context for the whole life of the process, as a
@@ -71,7 +72,7 @@ class LongLivedInputs:
 
     @staticmethod
     def _matched(topic: str):
-        """A line each time a node's subscription is matched or dropped (lease ended)."""
+        """Return a line each time a node's subscription is matched or dropped (lease ended)."""
         from rclpy.event_handler import PublisherEventCallbacks
 
         def said(info) -> None:
@@ -172,7 +173,7 @@ class LongLivedProcess:
         return None
 
     def diag_after(self, wall_s: float, timeout_s: float) -> dict:
-        """The values of the node's first /diagnostics status after `wall_s` ({} if none)."""
+        """Return the values of the first /diagnostics status after `wall_s` ({} if none)."""
         end = time.monotonic() + timeout_s
         while time.monotonic() < end:
             late = [d for d in list(self.diags) if d["wall_s"] > wall_s]
@@ -229,7 +230,7 @@ def main() -> int:
         rclpy.try_shutdown()
         done = shm_files.remove_own_files(records)
         say({"shm_exit": {"removed": done.removed, "in_use": done.in_use,
-                           "replaced": done.replaced, "records_done": done.records_done}})
+                          "replaced": done.replaced, "records_done": done.records_done}})
     return 0
 
 

@@ -52,12 +52,15 @@ FAST_ASKING = {
 
 
 def write_site_key(directory: Path) -> Path:
-    """The store looks for `site_key` beside the store file; owner-only, as the store demands."""
+    """Return the store looks for `site_key` beside the store file.
+
+    Owner-only, as the store demands.
+    """
     return site_keys.write_site_key(directory, SITE_KEY)
 
 
 def own_fleet_topic(namespace: str) -> str:
-    """A fleet topic of the robot's own, for a test that must not hear other robots."""
+    """Return a fleet topic of the robot's own, for a test that must not hear other robots."""
     return f"{namespace}/helpaware/fleet"
 
 
@@ -128,7 +131,7 @@ def stored_asks(path: Path) -> list[tuple[str, str, float]]:
 
 
 def event_ids(path: Path) -> set[str]:
-    """The stored event ids only (a light read while the node is writing: WAL readers share)."""
+    """Return the stored event ids only (a light read while the node writes: WAL readers share)."""
     conn = sqlite3.connect(f"file:{path}?mode=ro", uri=True, timeout=10.0)
     try:
         return {r[0] for r in conn.execute("SELECT event_id FROM events")}
@@ -155,6 +158,7 @@ class Every:
 @dataclass
 class Robot:
     """One node process as the driver sees it."""
+
     robot_id: str
     namespace: str
     fleet_topic: str
@@ -303,7 +307,7 @@ class Drive:
         return predicate()
 
     def probe(self, robot: Robot, timeout_s: float = 60.0) -> dict:
-        """A decision from a (re)started node with every person of the view among its candidates.
+        """Return a decision from a (re)started node with everyone in view among its candidates.
 
         Needs are re-sent once a second: one published before the node's subscription matched
         is gone (volatile topic), and a killed node's endpoints linger until their lease ends.
@@ -331,7 +335,8 @@ class Drive:
         end = time.monotonic() + timeout_s
         while time.monotonic() < end:
             self._pubs[robot.robot_id][2].publish(String(data=text))
-            if self.spin_until(lambda: bool(robot.acked - known), min(2.0, end - time.monotonic())):
+            if self.spin_until(lambda: bool(robot.acked - known),
+                               min(2.0, end - time.monotonic())):
                 return True
         return bool(robot.acked - known)
 
@@ -343,7 +348,7 @@ class Drive:
 
 
 def beliefs_in(decision: dict, site_key: bytes = SITE_KEY) -> dict[str, Belief]:
-    """The (a, b) the node used for each candidate, keyed by the hashed person key."""
+    """Return the (a, b) the node used for each candidate, keyed by the hashed person key."""
     return {person_key(site_key, c["person_id"]): Belief(c["a"], c["b"])
             for c in decision["candidates"]}
 

@@ -19,7 +19,7 @@ SOAK = os.environ.get("HELPAWARE_SOAK", "") not in ("", "0")
 
 
 def scaled(ci_count: int, soak_count: int) -> int:
-    """The CI size, or the soak size when HELPAWARE_SOAK is set (make soak)."""
+    """Return the CI size, or the soak size when HELPAWARE_SOAK is set (make soak)."""
     return soak_count if SOAK else ci_count
 
 
@@ -89,7 +89,7 @@ def run_sequence(rng: np.random.Generator, n_decisions: int, times_s, model: Sit
 
 
 def retimed(ledger: Ledger, times_s) -> Ledger:
-    """The same asks placed at other times (e.g. real elapsed time instead of a jumpy clock)."""
+    """Return the same asks at other times (e.g. real elapsed time instead of a jumpy clock)."""
     out = Ledger(asks_of_opted_out=ledger.asks_of_opted_out, decisions=ledger.decisions)
     for k, pid in ledger.ask_steps:
         out.person_asks_s.setdefault(pid, []).append(float(times_s[k]))

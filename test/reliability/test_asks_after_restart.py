@@ -44,7 +44,7 @@ def test_sigkill_after_a_decline_and_after_an_unanswered_ask_keeps_the_reask_int
     store, log = tmp_path / "beliefs.sqlite3", tmp_path / "node.log"
     drive = Drive("reask_driver")
     robot = drive.add(Robot("rk1", "/reask", own_fleet_topic("/reask"), [NURSE],
-                                  random.Random(1)))
+                            random.Random(1)))
     proc = start_node(store, "rk1", "/reask", log, limits=REASK_LIMITS)
     try:
         # 1. nurse-a asked, she declines; SIGKILL right after the node stored the decline

@@ -79,8 +79,11 @@ def _stderr_until(proc, text, deadline_s=60.0):
 
 
 def test_node_refuses_a_world_readable_site_key(tmp_path):
-    """Started on its own (autostart, the default), the node exits 2 with one line naming the
-    key and the chmod to run; the key is left as it was and the store is not written."""
+    """Started on its own (autostart, the default).
+
+    The node exits 2 with one line naming the key and the chmod to run; the key is left as it was
+    and the store is not written.
+    """
     store = tmp_path / "beliefs.sqlite3"
     key = tmp_path / "site_key"
     key.write_bytes(os.urandom(32))
@@ -102,8 +105,10 @@ def test_node_refuses_a_site_key_that_is_a_directory(tmp_path):
 
 
 def test_managed_node_with_a_bad_key_stays_up_unconfigured(tmp_path):
-    """With autostart:=false a lifecycle manager owns the transitions: a failed configure
-    leaves the node up, unconfigured, for the manager to report or retry."""
+    """With autostart:=false a lifecycle manager owns the transitions.
+
+    a failed configure leaves the node up, unconfigured, for the manager to report or retry.
+    """
     store = tmp_path / "beliefs.sqlite3"
     key = tmp_path / "site_key"
     key.write_bytes(os.urandom(32))
@@ -139,9 +144,12 @@ sys.exit(0)
 
 
 def test_unreadable_site_key_is_a_site_key_error_naming_what_to_do(tmp_path):
-    """Mode 0600 owned by another user. The tests run as root here, where a mode never stops
-    a read, so the reader drops to the 'nobody' user first (skipped where that is not
-    possible); run as a normal user, mode 000 does the same."""
+    """Mode 0600 owned by another user.
+
+    The tests run as root here, where a mode never stops a read, so the reader drops to the
+    'nobody' user first (skipped where that is not possible); run as a normal user, mode 000 does
+    the same.
+    """
     key = tmp_path / "site_key"
     key.write_bytes(os.urandom(32))
     os.chmod(key, 0o600)

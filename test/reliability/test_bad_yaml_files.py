@@ -1,6 +1,9 @@
-"""Corrupt YAML given to the offline tools: scenario files (`helpaware simulate`), parameter
-files (`helpaware review --params`, the files `helpaware fit` writes). Each gives its own
-error naming the file and the reason; none escapes as a raw yaml, OS or decode error."""
+"""Corrupt YAML given to the offline tools.
+
+Scenario files (`helpaware simulate`), parameter files (`helpaware review --params`, the files
+`helpaware fit` writes). Each gives its own error naming the file and the reason; none escapes as a
+raw yaml, OS or decode error.
+"""
 import pytest
 
 from helpaware_node.fit.paramfile import read_param_file

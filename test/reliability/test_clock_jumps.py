@@ -10,7 +10,6 @@ What the core does (helpaware_node/core/policy.py `_limits`, `evaluate`):
 - the look-ahead's time seen is max(now_s - first_seen_s, 0).
 So a backward jump cannot open a burst of asks; a forward jump only ages asks as real time would.
 """
-import math
 from dataclasses import replace
 
 import numpy as np
@@ -135,8 +134,10 @@ def test_backward_jumps_and_pauses_hold_every_limit(seed):
 
 
 def test_paused_clock_gives_at_most_one_ask_per_person():
-    """Sim time paused: the same now_s for many needs; each person asked once, the robot at
-    most max_asks_per_hour times."""
+    """Sim time paused: the same now_s for many needs.
+
+    Each person asked once, the robot at most max_asks_per_hour times.
+    """
     rng = np.random.default_rng(5)
     n = 500
     ledger = run_sequence(rng, n, np.full(n, 7_200.0), MODEL, CONFIG, n_people=40,
@@ -146,10 +147,13 @@ def test_paused_clock_gives_at_most_one_ask_per_person():
 
 
 def test_forward_excursion_then_back_keeps_the_hourly_cap():
-    """Regression (found by this suite): 12 asks in an hour, one need at a clock 5 days ahead,
-    the clock comes back. Pruning by `now - t < 3600` alone dropped the 12 real asks and
-    allowed 12 more inside the same real hour (24). The node and the simulator prune with
-    core `keep_recent_asks`, which always keeps the newest `max_asks_per_hour`."""
+    """Regression (found by this suite).
+
+    12 asks in an hour, one need at a clock 5 days ahead, the clock comes back. Pruning by `now - t
+    < 3600` alone dropped the 12 real asks and allowed 12 more inside the same real hour (24). The
+    node and the simulator prune with core `keep_recent_asks`, which always keeps the newest
+    `max_asks_per_hour`.
+    """
     config = DecisionConfig(max_asks_per_person_per_day=100, min_reask_interval_s=0.0)
     robot = []
     asks = 0
@@ -166,9 +170,11 @@ def test_forward_excursion_then_back_keeps_the_hourly_cap():
 
 
 def test_forward_excursion_then_back_keeps_the_daily_cap():
-    """One person's memory (`note_ask`, horizon a day) prunes by time alone, and that is safe:
-    3 asks, the third at a clock 5 days ahead, back: the excursion ask counts as recent until
-    the clock catches up, so the person is not asked again on the real day."""
+    """One person's memory (`note_ask`, horizon a day) prunes by time alone, and that is safe.
+
+    3 asks, the third at a clock 5 days ahead, back: the excursion ask counts as recent until the
+    clock catches up, so the person is not asked again on the real day.
+    """
     config = DecisionConfig(max_asks_per_person_per_day=3, min_reask_interval_s=0.0,
                             max_asks_per_hour=1000)
     rec = replace(PersonRecord.new(MODEL), belief=Belief(8.0, 1.0))

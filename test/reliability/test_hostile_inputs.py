@@ -1,8 +1,9 @@
-"""Hostile peers and inputs (issue 14 items 1-6), each class in general: hypothesis documents
-of every class (hostile_documents.py) at the real handlers for every input topic and every
-fleet kind, signed with the test's site key so the field checks behind the signature are hit;
-seeded documents of every class through the real topics; and each finding of the issue
-translated to the signed fleet format, through the real topics.
+"""Hostile peers and inputs (issue 14 items 1-6), each class in general.
+
+Hypothesis documents of every class (hostile_documents.py) at the real handlers for every input
+topic and every fleet kind, signed with the test's site key so the field checks behind the
+signature are hit; seeded documents of every class through the real topics; and each finding of the
+issue translated to the signed fleet format, through the real topics.
 
 For every document: nothing raises out of a handler, nothing is counted as a handler error
 (every refusal is a refusal with a reason), a value that breaks its field's rule (the hand
@@ -102,7 +103,7 @@ def stored_rows(path):
 
 
 def part(node, topic):
-    """(handler, refusal counter, last reason, handler errors) of a hostile_documents topic."""
+    """Return (handler, refusal counter, last reason, handler errors) of a topic."""
     if topic in ("people", "task_status", "outcome"):
         fn = {"people": node._on_people, "task_status": node._on_task_status,
               "outcome": node._on_outcome}[topic]
@@ -116,8 +117,11 @@ def part(node, topic):
 
 
 def at_stack_depth(extra: int, fn, *args):
-    """Call fn with `extra` more frames on the stack: a nesting that parses at one depth may
-    overflow a recursive step at another (the issue's crash: parsed, then printed)."""
+    """Call fn with `extra` more frames on the stack.
+
+    a nesting that parses at one depth may overflow a recursive step at another (the issue's crash:
+    parsed, then printed).
+    """
     if extra <= 0:
         return fn(*args)
     return at_stack_depth(extra - 1, fn, *args)
@@ -154,7 +158,7 @@ def feed(rig, case: hd.Case, extra_frames: int = 0) -> bool:
 
 
 def keeps_deciding(rig, tag: str) -> dict:
-    """A help need after the hostile input gets a valid decision within DECISION_WAIT_S."""
+    """Return a help need after the hostile input gets a valid decision within DECISION_WAIT_S."""
     node = rig.node
     node._publish_status()                # diagnostics carry the last reasons: must publish
     node.session.seen.clear()
@@ -196,15 +200,20 @@ BURST = 10                          # hostile documents before each sentinel
 
 
 def publishable(text: str) -> str:
-    """A raw lone surrogate cannot go into a ROS String: written as its JSON escape, which
-    decodes to the same value (the signature still matches)."""
+    """Return a raw lone surrogate cannot go into a ROS String.
+
+    Written as its JSON escape, which decodes to the same value (the signature still matches).
+    """
     return re.sub(r"[\ud800-\udfff]", lambda m: f"\\u{ord(m.group()):04x}", text)
 
 
 def test_every_class_through_the_real_topics(rig):
-    """Seeded documents of every class published on every topic (fleet and privacy signed
-    with the site key). After each burst a valid sentinel shows that the burst was handled
-    (one writer's messages arrive in order); none was a handler error."""
+    """Check every class of hostile document through the real topics.
+
+    Seeded documents of every class published on every topic (fleet and privacy signed with the
+    site key). After each burst a valid sentinel shows that the burst was handled (one writer's
+    messages arrive in order); none was a handler error.
+    """
     from rclpy.qos import qos_profile_sensor_data  # noqa: F401 - the people topic's QoS
     node, driver = rig.node, rig.driver
     pubs = {"people": rig.people_pub, "task_status": rig.task_pub, "outcome": rig.outcome_pub,
@@ -268,10 +277,13 @@ def deep_number(depth: int) -> str:
 
 
 def test_crash_loop_a_peer_history_of_deep_numbers_at_every_start(ctx, tmp_path):
-    """Issue 14 item 1, translated: the sender's transient-local history holds a number nested
-    980 lists deep in each numeric field of every fleet kind (it cannot be signed: the
-    canonical encoding stops at 16 levels), and the same fields nested 2 deep and correctly
-    signed. A robot started on it, and started again, refuses each by field and decides."""
+    """Issue 14 item 1, translated.
+
+    The sender's transient-local history holds a number nested 980 lists deep in each numeric field
+    of every fleet kind (it cannot be signed: the canonical encoding stops at 16 levels), and the
+    same fields nested 2 deep and correctly signed. A robot started on it, and started again,
+    refuses each by field and decides.
+    """
     import rclpy
     write_site_key(tmp_path, SITE_KEY)
     store = tmp_path / "beliefs.sqlite3"
@@ -285,7 +297,8 @@ def test_crash_loop_a_peer_history_of_deep_numbers_at_every_start(ctx, tmp_path)
                 continue
             for depth in (2, 17, 980):
                 signed = KEYS.sign(seed)
-                text = json.dumps({**signed, name[0]: "HOLE"}).replace('"HOLE"', deep_number(depth))
+                text = json.dumps({**signed, name[0]: "HOLE"}).replace('"HOLE"',
+                                                                       deep_number(depth))
                 if depth == 2:
                     text = json.dumps(KEYS.sign(json.loads(text)))   # correctly signed
                 texts.append(text)
@@ -316,8 +329,11 @@ def test_crash_loop_a_peer_history_of_deep_numbers_at_every_start(ctx, tmp_path)
 
 
 def test_crash_loop_through_a_node_process_and_its_restart(tmp_path):
-    """The node process itself (launch_config), on its own fleet topic whose history holds the
-    hostile documents: it keeps running and deciding, and again after a restart."""
+    """Check the node process with hostile documents in its fleet history, and after a restart.
+
+    The node process itself (launch_config), on its own fleet topic whose history holds the hostile
+    documents: it keeps running and deciding, and again after a restart.
+    """
     import process_rig as pr
     pr.write_site_key(tmp_path)
     keys = SiteKeys.single(pr.SITE_KEY).key_ring()
@@ -327,8 +343,8 @@ def test_crash_loop_through_a_node_process_and_its_restart(tmp_path):
     history = drive.node.create_publisher(String, topic, fleet_mod.fleet_qos(100))
     for name in ("time_s", "busyness", "ask_load"):
         doc = keys.sign(hd.seed_of("fleet:outcome"))
-        history.publish(String(data=json.dumps({**doc, name: "H"}).replace('"H"',
-                                                                          deep_number(980))))
+        text = json.dumps({**doc, name: "H"}).replace('"H"', deep_number(980))
+        history.publish(String(data=text))
         history.publish(String(data=json.dumps(keys.sign({**hd.seed_of("fleet:outcome"),
                                                          name: [[0.5]]}))))
     robot = drive.add(pr.Robot("r1", ns, topic, pr.staff(3, 5), random.Random(1)))
@@ -356,8 +372,11 @@ def test_crash_loop_through_a_node_process_and_its_restart(tmp_path):
 
 # ------------------------------------------------------------------ item 2: poison event
 def test_poison_event_ids_are_refused_and_the_rest_of_the_burst_is_stored(ctx, tmp_path):
-    """Issue 14 item 2, translated: with robot_id r1, peer events r1/99999999999999999999 and
-    r1/² (signed with the site key) among good ones, in one burst through the fleet topic."""
+    """Issue 14 item 2, translated.
+
+    With robot_id r1, peer events r1/99999999999999999999 and r1/² (signed with the site key) among
+    good ones, in one burst through the fleet topic.
+    """
     write_site_key(tmp_path, SITE_KEY)
     path = tmp_path / "beliefs.sqlite3"
     rig = Rig(ctx, namespace="/poison", store_path=str(path), robot_id="r1",
@@ -406,8 +425,10 @@ def test_poison_event_ids_are_refused_and_the_rest_of_the_burst_is_stored(ctx, t
 
 
 class FailingStore:
-    """A store whose batch write raises for one chosen event (a value it cannot hold) or, while
-    `full` is set, for every write (the store refusing writes)."""
+    """A store whose batch write raises for one chosen event (a value it cannot hold) or.
+
+    While `full` is set, for every write (the store refusing writes).
+    """
 
     def __init__(self, inner, culprit: str) -> None:
         self.inner, self.culprit, self.full, self.calls = inner, culprit, False, 0
@@ -425,9 +446,11 @@ class FailingStore:
 
 
 def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_path):
-    """The queue is never poisoned: an event the store cannot hold (past the decoder, which
-    should have refused it) is found by halving and dropped; the store refusing writes keeps
-    every event for the next try."""
+    """The queue is never poisoned.
+
+    An event the store cannot hold (past the decoder, which should have refused it) is found by
+    halving and dropped; the store refusing writes keeps every event for the next try.
+    """
     import rclpy
     from helpaware_node.store import SqliteStore
     inner = SqliteStore(tmp_path / "s.sqlite3", "r1", SiteKeys.single(SITE_KEY))
@@ -455,9 +478,11 @@ def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_p
 
 # ------------------------------------------------------------------ item 3: people in view
 def test_two_crowds_through_the_people_topic_give_a_valid_decision(rig):
-    """Issue 14 item 3: 500 people, then 500 others within 8 s: a decision with 1 000
-    candidates, which the project's decoder refused. Rig decodes every decision with
-    wire.decode, so an invalid one fails here."""
+    """Issue 14 item 3: 500 people, then 500 others within 8 s.
+
+    a decision with 1 000 candidates, which the project's decoder refused. Rig decodes every
+    decision with wire.decode, so an invalid one fails here.
+    """
     node = rig.node
     node.session.seen.clear()
     far = [{"id": f"far-{i}", "distance_m": 4.0 + 0.001 * i} for i in range(500)]
@@ -479,9 +504,12 @@ def test_two_crowds_through_the_people_topic_give_a_valid_decision(rig):
 @settings(max_examples=scaled(25, 250), **SETTINGS)
 @given(st.lists(st.tuples(st.integers(1, 500), st.floats(0.0, 50.0)), min_size=1, max_size=8))
 def test_many_people_across_documents_every_decision_valid(rig, docs):
-    """Any sequence of people documents (up to 500 people each, distances and ages at
-    random) at the handler: people in view stay at most wire.MAX_CANDIDATES, and the decision
-    after them decodes by its own schema."""
+    """Any sequence of people documents keeps every decision valid.
+
+    Any sequence of people documents (up to 500 people each, distances and ages at random) at the
+    handler: people in view stay at most wire.MAX_CANDIDATES, and the decision after them decodes
+    by its own schema.
+    """
     node = rig.node
     node.session.seen.clear()
     now = node.now_s()
@@ -512,8 +540,11 @@ def status_array(n: int, code: int, first_stamp_s: int = 1):
 
 
 def test_a_status_array_of_20000_aborted_goals_gives_one_decision(rig):
-    """Issue 14 item 4: one GoalStatusArray with 20 000 aborted goals gave 20 000 decisions in
-    one callback, and nobody got a decision for 10-20 s."""
+    """Check that 20 000 aborted goals in one status array give one decision.
+
+    Issue 14 item 4: one GoalStatusArray with 20 000 aborted goals gave 20 000 decisions in one
+    callback, and nobody got a decision for 10-20 s.
+    """
     from action_msgs.msg import GoalStatus, GoalStatusArray
     node = rig.node
     pub = rig.driver.create_publisher(GoalStatusArray, NAV_TOPIC, 10)
@@ -540,8 +571,11 @@ def test_a_status_array_of_20000_aborted_goals_gives_one_decision(rig):
 @given(st.lists(st.tuples(st.integers(0, 3000), st.sampled_from([1, 2, 4, 5, 6]),
                           st.integers(0, 10**6)), min_size=0, max_size=3))
 def test_large_status_arrays_at_the_handler(rig, arrays):
-    """Status arrays of up to 3 000 goals of any status and stamp: at most one decision per
-    array, at most one open navigation-failure need, never a handler error."""
+    """Status arrays of up to 3 000 goals of any status and stamp.
+
+    At most one decision per array, at most one open navigation-failure need, never a handler
+    error.
+    """
     node = rig.node
     for size, code, first in arrays:
         n = len(rig.decisions)
@@ -568,8 +602,11 @@ def test_large_status_arrays_at_the_handler(rig, arrays):
     ("privacy:unsigned", "person_id", "p" * 129),
 ])
 def test_every_string_from_peers_is_bounded_by_name(rig, kind, field, value):
-    """Issue 14 item 5: a peer's 1.2 MB request_kind was stored. Each peer string is bounded
-    like the robot's own inputs (wire.MAX_LABEL_CHARS for kinds, wire.MAX_ID_CHARS for ids)."""
+    """Issue 14 item 5: a peer's 1.2 MB request_kind was stored.
+
+    Each peer string is bounded like the robot's own inputs (wire.MAX_LABEL_CHARS for kinds,
+    wire.MAX_ID_CHARS for ids).
+    """
     doc = {**hd.seed_of(kind), field: value}
     text = json.dumps(doc if kind == "privacy:unsigned" else KEYS.sign(doc))
     case = hd.Case(kind, "huge_string", (field,), text, "refused", field)
@@ -585,9 +622,11 @@ def test_a_1_2_mb_kind_is_refused_as_too_long(rig):
 
 
 def test_an_old_store_with_a_long_kind_still_starts_and_re_offers_the_rest(ctx, tmp_path):
-    """A store written before kinds were bounded (bulk_load does not check: an import) holds a
-    1.2 MB kind: the node starts, re-offers every other event, counts the one it cannot, and
-    decides."""
+    """A store with a 1.2 MB kind still starts and re-offers the rest.
+
+    A store written before kinds were bounded (bulk_load does not check: an import) holds a 1.2 MB
+    kind: the node starts, re-offers every other event, counts the one it cannot, and decides.
+    """
     from helpaware_node.store import SqliteStore
     write_site_key(tmp_path, SITE_KEY)
     path = tmp_path / "beliefs.sqlite3"
@@ -608,8 +647,11 @@ def test_an_old_store_with_a_long_kind_still_starts_and_re_offers_the_rest(ctx, 
 
 # ------------------------------------------------------------------ item 6: log floods
 class LineCounter:
-    """Counts the lines the node logs, by level (stands in for its logger's methods; rclpy
-    ties a severity to each line of code that logs, so one wrapper cannot pass all on)."""
+    """Count the lines the node logs, by level.
+
+    Counts the lines the node logs, by level (stands in for its logger's methods; rclpy ties a
+    severity to each line of code that logs, so one wrapper cannot pass all on).
+    """
 
     def __init__(self, logger) -> None:
         self.lines = collections.Counter()
@@ -626,9 +668,12 @@ class LineCounter:
 
 
 def test_valid_but_pointless_documents_do_not_flood_the_log(ctx, tmp_path):
-    """Issue 14 item 6: 'resolved for unknown request' and 'privacy_request ... applied' were
-    one INFO line per document (223 lines/s). Now each kind of line is logged at once and then
-    at most once a minute, and counted in /diagnostics."""
+    """Check that valid but pointless documents do not flood the log.
+
+    Issue 14 item 6: 'resolved for unknown request' and 'privacy_request ... applied' were one INFO
+    line per document (223 lines/s). Now each kind of line is logged at once and then at most once
+    a minute, and counted in /diagnostics.
+    """
     from helpaware_node.ros.refusal_log import REPORT_PERIOD_S
     write_site_key(tmp_path, SITE_KEY)
     rig = Rig(ctx, namespace="/flood", store_path=str(tmp_path / "b.sqlite3"), robot_id="r1",
@@ -672,9 +717,12 @@ def test_valid_but_pointless_documents_do_not_flood_the_log(ctx, tmp_path):
 @given(st.lists(st.tuples(st.integers(0, 5), st.sampled_from(list(Result)[:3]),
                           st.booleans()), min_size=1, max_size=25))
 def test_duplicated_and_replayed_events_are_stored_once(rig, deliveries):
-    """The same signed events delivered many times, and copies of an event id with other
-    content (a replay that changed it, correctly signed): the store keeps the first of each
-    id (merge by id is idempotent), beliefs are the fold of exactly those; asks likewise."""
+    """The same signed events delivered many times.
+
+    Copies of an event id with other content (a replay that changed it, correctly signed): the
+    store keeps the first of each id (merge by id is idempotent), beliefs are the fold of exactly
+    those; asks likewise.
+    """
     node = rig.node
     tag = f"dup{time.monotonic_ns()}"
     key = node.store.key_for(f"visitor-{tag}")

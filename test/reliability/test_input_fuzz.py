@@ -1,5 +1,7 @@
-"""Fuzz of every input document of the node: hypothesis documents at the handlers, then random
-text and raw garbage CDR bytes through the real topics.
+"""Fuzz of every input document of the node.
+
+Hypothesis documents at the handlers, then random text and raw garbage CDR bytes through the real
+topics.
 
 Topics: people, task_status, outcome (wire documents), the fleet and privacy topics (signed
 fleet_documents). Fleet and privacy documents are fuzzed as they arrive (so nearly every change
@@ -64,6 +66,8 @@ KEYS = SiteKeys.single(FUZZ_SITE_KEY).key_ring()
 
 def signed_seed(kind: str, value) -> dict:
     return json.loads(encode_document(kind, value, KEYS))
+
+
 TOPICS = ("people", "task_status", "outcome", FLEET_TOPIC, PRIVACY_TOPIC)
 WIRE_TOPICS = ("people", "task_status", "outcome")
 
@@ -101,8 +105,11 @@ def seed(topic: str, i: int) -> dict:
 
 
 def resigned(text: str) -> str:
-    """The text signed again with the site key, when it is a JSON object with a version and
-    the canonical encoding can hold it; else the text as it was."""
+    """Return the text signed again with the site key.
+
+    When it is a JSON object with a version and the canonical encoding can hold it; else the text
+    as it was.
+    """
     try:
         doc = json.loads(text)
         if not isinstance(doc, dict) or "v" not in doc:
@@ -111,8 +118,10 @@ def resigned(text: str) -> str:
     except (ValueError, RecursionError, TypeError):
         return text
 
+
 # JSON types of each seed field, written from docs/schemas/*.json (not from wire.SPECS).
-NUM, INT, STR, ARR, OBJ, NULL, BOOL = "number", "integer", "string", "array", "object", "null", "boolean"
+NUM, INT, STR, ARR, OBJ = "number", "integer", "string", "array", "object"
+NULL, BOOL = "null", "boolean"
 FIELD_TYPES = {
     "people": {("doc",): {STR}, ("version",): {INT}, ("stamp_s",): {NUM, INT},
                ("frame_id",): {STR}, ("people",): {ARR}, ("people", 0): {OBJ},
@@ -151,7 +160,7 @@ WIRE_NAMES = {t: _spec_names(wire.SPECS[t], {"document", t}) for t in WIRE_TOPIC
 
 
 def path_text(path) -> str:
-    """A path tuple the way wire writes it: people[0].distance_m."""
+    """Return a path tuple the way wire writes it: people[0].distance_m."""
     out = ""
     for p in path:
         out += f"[{p}]" if isinstance(p, int) else (f".{p}" if out else p)
@@ -171,7 +180,10 @@ def reason_names_a_field(topic: str, reason: str) -> bool:
 
 
 def reason_class(reason: str) -> str:
-    """The histogram bucket: the reason's field path (indices as []) and its first plain words."""
+    """Return the histogram bucket.
+
+    The reason's field path (indices as []) and its first plain words.
+    """
     head, _, rest = reason.partition(": ")
     words = [w for w in rest.split()[:8] if re.fullmatch(r"[A-Za-z_]+", w)][:4]
     return re.sub(r"\[\d+\]", "[]", head)[:40] + ": " + " ".join(words)
@@ -195,7 +207,7 @@ def dumps(value) -> str:
 
 
 def with_hole(doc, path, text: str) -> str:
-    """The document's JSON with the field at `path` replaced by raw JSON `text`."""
+    """Return the document's JSON with the field at `path` replaced by raw JSON `text`."""
     return dumps(replaced(doc, path, HOLE)).replace(json.dumps(HOLE), text, 1)
 
 
@@ -261,7 +273,8 @@ def changed_text(draw, topic: str) -> str:
             elif op == "flip":
                 text = text[:i] + chr(ord(text[i]) ^ (1 << draw(st.integers(0, 6)))) + text[i + 1:]
             else:
-                text = text[:i] + draw(st.sampled_from(list('{}[]":,\\0e-.') + ["\x00"])) + text[i:]
+                junk = draw(st.sampled_from(list('{}[]":,\\0e-.') + ["\x00"]))
+                text = text[:i] + junk + text[i:]
         return text
     return dumps(doc)
 
@@ -335,7 +348,7 @@ def handler(node, topic):
 
 
 def decodes(topic, text, node) -> bool:
-    """The outside view: would this text be taken by the topic's own parser?"""
+    """Return the outside view: would this text be taken by the topic's own parser."""
     try:
         if topic in WIRE_TOPICS:
             wire.decode(topic, text)
@@ -453,7 +466,8 @@ def test_a_wrong_type_in_one_field_is_refused_naming_that_field(rig, topic):
     (PRIVACY_TOPIC, "[" * 100_000, "JSON"),
     (PRIVACY_TOPIC, '{"action":"forget","person_id":"\\ud800"}', "person_id"),
 ], ids=["surrogate_id", "huge_int_stamp", "huge_int_urgency", "huge_negative_stamp",
-        "duplicate_key", "unknown_top_level_field", "fleet_deep_nesting", "fleet_huge_int", "fleet_surrogate_kind",
+        "duplicate_key", "unknown_top_level_field", "fleet_deep_nesting", "fleet_huge_int",
+        "fleet_surrogate_kind",
         "fleet_surrogate_event_id", "fleet_unsigned", "fleet_old_format", "fleet_signed_bad_field",
         "privacy_deep_nesting", "privacy_surrogate_id"])
 def test_found_by_the_fuzz_each_refused_by_name(rig, topic, text, field):
@@ -464,7 +478,7 @@ def test_found_by_the_fuzz_each_refused_by_name(rig, topic, text, field):
 
 # ---------------------------------------------------------------------------- real topics
 def _cdr_string(payload: bytes) -> bytes:
-    """A little-endian CDR std_msgs/String around `payload` (length includes the NUL)."""
+    """Return a little-endian CDR std_msgs/String around `payload` (length includes the NUL)."""
     return b"\x00\x01\x00\x00" + (len(payload) + 1).to_bytes(4, "little") + payload + b"\x00"
 
 
@@ -516,13 +530,14 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
     valid = {t: serialize_message(String(data=dumps(seed(t, len(SEEDS[t]) - 1)))) for t in TOPICS}
 
     def sentinel(topic, i):
-        """A valid document whose effect shows it (and all before it, in order) arrived."""
+        """Return a valid document whose effect shows it (and all before it, in order) arrived."""
         tag = f"sentinel-{i}"
         if topic == "people":
             return wire.people_document([{"id": tag, "distance_m": 1.0}], 1.0), \
                 lambda: tag in node.session.seen
         if topic == "task_status":
-            return wire.task_status_document(tag, "open", "door", 0.5), lambda: tag in node.session.needs
+            return wire.task_status_document(tag, "open", "door",
+                                             0.5), lambda: tag in node.session.needs
         if topic == "outcome":
             return wire.outcome_document(tag, "nobody", "helped"), \
                 lambda: tag in node.counters.last_reason["outcome"]
@@ -530,7 +545,8 @@ def test_random_text_and_garbage_cdr_through_the_topics(rig):
             key = "cd" * 32          # not UNKNOWN_KEY: the fuzz sent forgets for that one
             e = encode_document("outcome", StoredEvent(f"driver/{i}", key, 100.0,
                                                        Result.DECLINED, 0.2, 0.0, "door"), KEYS)
-            return e, lambda: any(ev.event_id == f"driver/{i}" for ev in node.store.events_for(key))
+            return e, lambda: any(ev.event_id == f"driver/{i}"
+                                  for ev in node.store.events_for(key))
         key = node.store.key_for(tag)
         return encode_document("opt_out", PrivacyAct.new("opt_out", key, "console@fuzz"), KEYS), \
             lambda: node.store.is_opted_out(key)

@@ -2,8 +2,8 @@
 
 20 000 decisions in `make test`, 100 000 under `make soak` (HELPAWARE_SOAK=1). Checked against
 an independent ledger of every ask (exact counting, reliability_sequence.limit_breaches): no
-opted-out person asked, no re-ask inside min_reask_interval_s, no per-person daily cap or robot hourly cap
-exceeded.
+opted-out person asked, no re-ask inside min_reask_interval_s, no per-person daily cap or robot
+hourly cap exceeded.
 """
 import numpy as np
 import pytest

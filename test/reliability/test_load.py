@@ -55,7 +55,7 @@ RSS_SECOND_HALF_GROWTH_LIMIT_KIB = 2048
 
 
 def _key(person_id: str) -> str:
-    """The store's person key, computed here with the standard library's HMAC-SHA256."""
+    """Return the store's person key, computed here with the standard library's HMAC-SHA256."""
     return hmac.new(SITE_KEY, person_id.encode("utf-8"), hashlib.sha256).hexdigest()
 
 
@@ -71,7 +71,7 @@ def _stop(proc, sig=signal.SIGINT):
 
 
 def _rss_at(samples, t_s):
-    """The sample nearest to t_s seconds after the load started."""
+    """Return the sample nearest to t_s seconds after the load started."""
     return min(samples, key=lambda s: abs(s[0] - t_s))[1]
 
 

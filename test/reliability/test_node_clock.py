@@ -1,6 +1,8 @@
-"""Clock faults through the running node: sim time (`use_sim_time`) paused, jumped forward
-and back on /clock. The core-level checks are in test_clock_jumps.py; these drive the node's
-own bookkeeping (robot ask memory, person records, pending asks) through the real topics.
+"""Clock faults through the running node.
+
+Sim time (`use_sim_time`) paused, jumped forward and back on /clock. The core-level checks are in
+test_clock_jumps.py; these drive the node's own bookkeeping (robot ask memory, person records,
+pending asks) through the real topics.
 
 What must hold (DESIGN.md limits; docs/RELIABILITY.md): no burst of asks, no negative
 interval in any number the node publishes, every limit holds on the clock the node runs on.
@@ -60,8 +62,11 @@ def _check_no_negative_interval(d):
 
 
 def test_paused_sim_clock_gives_no_burst_of_asks(ctx):
-    """40 needs at one frozen sim time with 16 people in view: each person asked at most once
-    (the re-ask interval sees a gap of 0 s) and the robot at most its hourly cap."""
+    """40 needs at one frozen sim time with 16 people in view.
+
+    Each person asked at most once (the re-ask interval sees a gap of 0 s) and the robot at most
+    its hourly cap.
+    """
     rig = _sim_rig(ctx, "/paused")
     try:
         assert rig.connected()
@@ -83,8 +88,10 @@ def test_paused_sim_clock_gives_no_burst_of_asks(ctx):
 
 
 def test_sim_clock_forward_excursion_and_back_keeps_the_hourly_cap(ctx):
-    """12 asks in a sim hour, one need at a clock 5 days ahead, the clock back inside the hour:
-    no more asks there (the node's robot ask memory keeps its newest max_asks_per_hour)."""
+    """12 asks in a sim hour, one need at a clock 5 days ahead, the clock back inside the hour.
+
+    No more asks there (the node's robot ask memory keeps its newest max_asks_per_hour).
+    """
     rig = _sim_rig(ctx, "/excursion")
     try:
         assert rig.connected()
@@ -110,8 +117,11 @@ def test_sim_clock_forward_excursion_and_back_keeps_the_hourly_cap(ctx):
 
 
 def test_sim_clock_jump_back_asks_nobody_already_asked(ctx):
-    """Asks at t = 50 000 s, the clock back to 40 000 s: every earlier ask is 'in the future',
-    so the re-ask interval excludes each of those people; the others may still be asked."""
+    """Asks at t = 50 000 s, the clock back to 40 000 s.
+
+    Every earlier ask is 'in the future', so the re-ask interval excludes each of those people; the
+    others may still be asked.
+    """
     rig = _sim_rig(ctx, "/jumpback")
     try:
         assert rig.connected()
@@ -137,8 +147,10 @@ def test_sim_clock_jump_back_asks_nobody_already_asked(ctx):
 
 
 class _JumpyWallClock:
-    """System time with a step added at will (what an NTP step does to the node's clock);
-    the steady clock underneath keeps counting real time."""
+    """System time with a step added at will (what an NTP step does to the node's clock).
+
+    The steady clock underneath keeps counting real time.
+    """
 
     def __init__(self, node):
         self.offset_s = 0.0
@@ -147,8 +159,10 @@ class _JumpyWallClock:
 
 
 def test_system_time_jump_forward_keeps_the_limits_on_real_time(ctx):
-    """On system time (no sim), 12 asks, then the wall clock steps 2 days ahead: the hourly
-    cap and the re-ask interval still count the asks' real ages, so no burst follows."""
+    """On system time (no sim), 12 asks, then the wall clock steps 2 days ahead.
+
+    The hourly cap and the re-ask interval still count the asks' real ages, so no burst follows.
+    """
     rig = Rig(ctx, namespace="/ntpstep", store_path="memory", max_asks_per_hour=CAP_PER_HOUR,
               max_asks_per_person_per_day=3, min_reask_interval_s=600.0,
               pending_ask_timeout_s=30.0)
@@ -177,10 +191,12 @@ def test_system_time_jump_forward_keeps_the_limits_on_real_time(ctx):
 
 
 def test_a_need_before_the_first_clock_waits_then_is_decided_on_a_held_clock(ctx):
-    """A need that arrives before any /clock is not decided on time zero; once a clock
-    reading arrives and then holds (a paused simulator), the need is decided at that time,
-    and /diagnostics keeps coming while the clock stands still (the node's cadence runs on
-    the steady clock, not on sim time)."""
+    """A need that arrives before any /clock is not decided on time zero.
+
+    Once a clock reading arrives and then holds (a paused simulator), the need is decided at that
+    time, and /diagnostics keeps coming while the clock stands still (the node's cadence runs on
+    the steady clock, not on sim time).
+    """
     from diagnostic_msgs.msg import DiagnosticArray
     rig = _sim_rig(ctx, "/firstclock")
     statuses = []

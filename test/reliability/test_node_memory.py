@@ -33,7 +33,8 @@ def test_records_are_bounded_and_come_back_from_the_store(ctx, tmp_path):
         assert rig.spin_until(lambda: len(node.session.memory.records) <= 20)
         assert node.session.memory.evicted >= 180
         # the person asked within the ask memory keeps their record (and so their asks)
-        assert kept in node.session.memory.records and node.session.memory.records[kept].ask_times_s
+        records = node.session.memory.records
+        assert kept in records and records[kept].ask_times_s
         # a dropped person comes back with the store's belief: Beta(2, 2) prior, one declined
         back = node.store.key_for("visitor-0")
         assert back not in node.session.memory.records

@@ -148,7 +148,8 @@ def corpus(tmp_path) -> list[dict]:
 
     def add(kind, data, **extra):
         path = tmp_path / f"{len(cases):04d}_{kind}.yaml"
-        path.write_bytes(data if isinstance(data, bytes) else data.encode("utf-8", "surrogatepass"))
+        path.write_bytes(data if isinstance(data, bytes) else data.encode("utf-8",
+                                                                          "surrogatepass"))
         cases.append({"path": str(path), "kind": kind, **extra})
 
     for name, text in seeds.items():
@@ -172,7 +173,8 @@ def corpus(tmp_path) -> list[dict]:
             elif op == "flip":
                 text = text[:i] + chr((ord(text[i]) ^ (1 << rng.randrange(7))) or 1) + text[i + 1:]
             else:
-                text = text[:i] + rng.choice(list(":-[]{}\"'#&*!|>%@`,\t ") + ["\n", "\x00"]) + text[i:]
+                text = text[:i] + rng.choice(list(":-[]{}\"'#&*!|>%@`,\t ") + ["\n",
+                                                                               "\x00"]) + text[i:]
         add("char_edit", text)
     for _ in range(LINE_EDITS):
         lines = rng.choice(list(seeds.values())).split("\n")
@@ -263,9 +265,12 @@ def _collect(cases, mine, proc):
 
 
 def run_batch(cases, tmp_path):
-    """The files in chunks of CHUNK, CHILDREN child processes at a time (a fresh process per
-    chunk: the cost per context grows over thousands of them); returns {index: result}.
-    A child that dies (a segfault in rcl, say) or hangs names the file it was on."""
+    """Return the files in chunks of CHUNK.
+
+    CHILDREN child processes at a time (a fresh process per chunk: the cost per context grows over
+    thousands of them); returns {index: result}. A child that dies (a segfault in rcl, say) or
+    hangs names the file it was on.
+    """
     chunks = [list(range(i, min(i + CHUNK, len(cases)))) for i in range(0, len(cases), CHUNK)]
     results, running = {}, []
     for k, mine in enumerate(chunks):
@@ -293,7 +298,7 @@ TYPE_CHECK = {"double": lambda v: isinstance(v, float), "bool": lambda v: isinst
 
 
 def _names_a_parameter(message: str) -> bool:
-    """A parameter by name, or the store file the parameters point at (store_path)."""
+    """Return a parameter by name, or the store file the parameters point at (store_path)."""
     return (any(n in message for n in SPECS) or "use_sim_time" in message
             or ("could not open" in message and "store" in message))
 
@@ -318,8 +323,8 @@ def test_every_file_gives_a_config_or_a_named_refusal(fuzz):
 
 def test_a_value_of_another_type_is_refused_naming_the_parameter(fuzz):
     cases, results, _ = fuzz
-    typed = [(c, results[i]) for i, c in enumerate(cases) if c["kind"] in ("wrong_type",
-                                                                         "bad_value")]
+    typed = [(c, results[i]) for i, c in enumerate(cases)
+             if c["kind"] in ("wrong_type", "bad_value")]
     per_param = collections.Counter(c["param"] for c, _ in typed if c["kind"] == "wrong_type")
     assert set(SPECS) <= set(per_param) and min(per_param.values()) >= 1
     assert min(per_param[n] for n in SPECS) >= WRONG_TYPES_PER_PARAM
@@ -391,7 +396,8 @@ def test_refused_files_through_the_process_entry(fuzz, kind):
         pick = [c for c in cases if c["kind"] == "wrong_type" and c["param"] == "max_distance_m"
                 and c["literal_type"] == "string array"][0]
     elif kind == "empty_request_kinds":
-        pick = [c for c in cases if c["kind"] == "empty_value" and c["param"] == "request_kinds"][0]
+        pick = [c for c in cases
+                if c["kind"] == "empty_value" and c["param"] == "request_kinds"][0]
     else:
         pick = [c for c in cases if c.get("param") == "navigation_status_topic"][0]
     rc, err = _refused_start(pick["path"])

@@ -43,11 +43,14 @@ SEED = 20261202
 NODE_KILL_TRIALS = scaled(4, 12)
 PEER_KILL_ROUNDS = scaled(1, 3)
 FLEET = ("wardA", "wardB", "wardC")
-EXPECTED_MODEL = SiteModel(ask_memory_half_life_s=0.5)   # default.yaml plus process_rig.FAST_ASKING
+EXPECTED_MODEL = SiteModel(ask_memory_half_life_s=0.5)   # default.yaml + process_rig.FAST_ASKING
 
 
 def check_store(view, acked: set[str], label: str) -> None:
-    """(a) nothing acknowledged is missing, (b) the file is sound and its cache is the fold."""
+    """Check nothing acknowledged is missing and the file is sound, its cache the fold.
+
+    (b) the file is sound and its cache is the fold.
+    """
     assert view.integrity == ["ok"], f"{label}: integrity_check {view.integrity[:5]}"
     lost = acked - view.events.keys()
     assert not lost, f"{label}: {len(lost)} acknowledged outcomes lost, e.g. {sorted(lost)[:5]}"
@@ -217,8 +220,11 @@ def test_fleet_peer_killed_mid_exchange_catches_up_and_every_store_converges(tmp
 
 
 def test_a_burst_of_outcomes_beyond_the_queue_depth_reaches_the_store(ctx, tmp_path):
-    """Regression: 150 answered asks reported at once while the node's executor is not
-    spinning (as when a long callback holds it): every outcome is stored, none dropped."""
+    """Check that a burst of outcomes beyond the queue depth reaches the store.
+
+    Regression: 150 answered asks reported at once while the node's executor is not spinning (as
+    when a long callback holds it): every outcome is stored, none dropped.
+    """
     from node_harness import Rig
     from rclpy.qos import QoSProfile, ReliabilityPolicy
     from std_msgs.msg import String
@@ -262,9 +268,11 @@ def test_a_burst_of_outcomes_beyond_the_queue_depth_reaches_the_store(ctx, tmp_p
 
 @pytest.mark.skipif(not SOAK, reason="about a minute: make soak (HELPAWARE_SOAK=1)")
 def test_late_joiner_gets_two_peers_large_histories(tmp_path):
-    """Two peers hold 3 000 events each (together more than one reader's history depth);
+    """Two peers hold 3 000 events each (together more than one reader's history depth).
+
     a third robot starting late must end up with all 6 000 (soak size of
-    test/test_fleet_catch_up.py)."""
+    test/test_fleet_catch_up.py).
+    """
     from helpaware_node.core import Result as R
     from helpaware_node.store import SqliteStore, StoredEvent
 

@@ -50,11 +50,14 @@ def shm_files_of(pid: int) -> dict:
 
 
 def in_this_domain(path: str) -> bool:
-    """Data segments (random names), and ports of this run's domain, which test/conftest.py
-    holds for this run alone (RTPS port numbers: 7400 + 250 * domain + offset).  Fast DDS also
-    gives each participant a port numbered from 7000 across the whole machine; once its owner
-    is dead, a participant of another test run on this machine may take it over (the sweep
-    then leaves it to that one, rightly) and leave it at its own exit: not checked here."""
+    """Return the data segments (random names).
+
+    Ports of this run's domain, which test/conftest.py holds for this run alone (RTPS port numbers:
+    7400 + 250 * domain + offset).  Fast DDS also gives each participant a port numbered from 7000
+    across the whole machine; once its owner is dead, a participant of another test run on this
+    machine may take it over (the sweep then leaves it to that one, rightly) and leave it at its
+    own exit: not checked here.
+    """
     name = os.path.basename(path)
     if not name.startswith("fastdds_port"):
         return True
@@ -64,8 +67,11 @@ def in_this_domain(path: str) -> bool:
 
 
 def own_sets(pid: int, files: dict) -> dict:
-    """Only the sets the instance owned: those whose `_el` lock it held (the rest, mapped to
-    write into other participants' ports or read their data, belong to those)."""
+    """Only the sets the instance owned.
+
+    Those whose `_el` lock it held (the rest, mapped to write into other participants' ports or
+    read their data, belong to those).
+    """
     locked = flock_inodes(pid)
     own = {}
     for path, ino in files.items():
@@ -90,7 +96,7 @@ def flock_inodes(pid=None) -> set:
 
 
 def leftovers(recorded: dict) -> list:
-    """Recorded files still there (same inode) whose set nobody holds locked now."""
+    """Return recorded files still there (same inode) whose set nobody holds locked now."""
     held = flock_inodes()
     left = []
     for path, ino in recorded.items():
@@ -142,7 +148,8 @@ def test_every_restart_answers_and_no_shared_memory_of_the_killed_is_left(tmp_pa
         assert any(p.endswith("_el") for p in last), last    # the test sees the sets at all
         kill_hard(proc)
         proc = None
-        segment = [p for p in last if "fastdds_port" not in p and not p.endswith(("_el", "_mutex"))]
+        segment = [p for p in last if "fastdds_port" not in p and not p.endswith(("_el",
+                                                                                  "_mutex"))]
         assert segment and set(segment) <= set(leftovers(last))   # a kill leaves its files
         sweep = subprocess.run([sys.executable, "-m", "helpaware_node.cli", "shm-sweep"],
                                capture_output=True, text=True, timeout=60)

@@ -1,5 +1,7 @@
-"""Refusals on the fleet and privacy topics reach /diagnostics like the main inputs: counted,
-by reason, the last reason shown, and the status WARN for the period they happened in."""
+"""Refusals on the fleet and privacy topics reach /diagnostics like the main inputs.
+
+Counted, by reason, the last reason shown, and the status WARN for the period they happened in.
+"""
 import json
 
 from diagnostic_msgs.msg import DiagnosticStatus

@@ -1,5 +1,7 @@
-"""Site learning in a node process: a revision learned from the store's outcomes shows in
-/diagnostics, is kept in the store, and is in force again after a restart (no refit needed).
+"""Site learning in a node process.
+
+a revision learned from the store's outcomes shows in /diagnostics, is kept in the store, and is in
+force again after a restart (no refit needed).
 
 The node is started as users start it (ros/launch_config.py through process_rig) on an SQLite
 store in tmp_path that already holds a simulated site's outcomes and asks (invented data);
@@ -15,7 +17,8 @@ import pytest
 pytest.importorskip("rclpy")
 
 from diagnostic_msgs.msg import DiagnosticArray  # noqa: E402
-from process_rig import Drive, Robot, SITE_KEY, start_node, stop_gently, write_site_key  # noqa: E402
+from process_rig import (Drive, Robot, SITE_KEY, start_node, stop_gently,  # noqa: E402
+                         write_site_key)
 
 from helpaware_node.fit.online import LEARNED  # noqa: E402
 from helpaware_node.fit.site_likelihood import SiteParams  # noqa: E402

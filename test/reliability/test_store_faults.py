@@ -163,8 +163,11 @@ def test_unreadable_store_at_decision_time_asks_nobody_and_keeps_running(ctx, tm
 
 
 def test_forget_drops_an_outcome_held_for_a_full_store(ctx, tmp_path):
-    """Privacy comes first: a person forgotten while their outcome waits for disk space is
-    never written once space returns."""
+    """Privacy comes first while the store is full.
+
+    Privacy comes first: a person forgotten while their outcome waits for disk space is never
+    written once space returns.
+    """
     load_site_key(tmp_path / "site_key")
     path = tmp_path / "beliefs.sqlite3"
     rig = Rig(ctx, namespace="/heldforget", store_path=str(path), robot_id="rG",
@@ -187,10 +190,12 @@ def test_forget_drops_an_outcome_held_for_a_full_store(ctx, tmp_path):
 
 
 def test_fleet_event_during_a_full_store_is_kept_and_not_shared_again(ctx, tmp_path):
-    """A peer's event arrives once (transient local history is not resent to a subscriber
-    that already has it), so one the store refuses stays queued in the fleet link and is
-    stored once space returns; only our own outcome then goes out on the fleet topic, never
-    the peer's copy."""
+    """A fleet event refused by a full store stays queued.
+
+    A peer's event arrives once (transient local history is not resent to a subscriber that already
+    has it), so one the store refuses stays queued in the fleet link and is stored once space
+    returns; only our own outcome then goes out on the fleet topic, never the peer's copy.
+    """
     from std_msgs.msg import String
     from helpaware_node.fleet_documents import encode_document
     from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos

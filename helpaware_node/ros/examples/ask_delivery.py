@@ -1,5 +1,7 @@
-"""Example: the side that speaks to people. On an `ask` decision it delivers the ask (screen,
-speech...) and reports what happened as an `outcome` document.
+"""Example: the side that speaks to people.
+
+On an `ask` decision it delivers the ask (screen, speech...) and reports what happened as an
+`outcome` document.
 
 Run next to the node:  ros2 run helpaware_node example_ask_delivery --ros-args -r __ns:=/robot1
                        (venv: example_ask_delivery --ros-args ...)
@@ -25,7 +27,7 @@ RESULTS = ("helped", "declined", "no_response", "could_not_ask")
 class AskDelivery(Node):
     def __init__(self, answer_fn: Optional[Callable[[str], str]] = None, **kwargs):
         super().__init__("ask_delivery", **kwargs)
-        answer = self.declare_parameter("answer", "helped").value
+        answer: str = self.declare_parameter("answer", "helped").value
         if answer not in RESULTS:
             raise ValueError(f"answer: {answer!r} is not one of {', '.join(RESULTS)}")
         self.answer_fn = answer_fn or (lambda person_id: answer)

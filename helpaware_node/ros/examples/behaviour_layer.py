@@ -1,5 +1,7 @@
-"""Example: the behaviour-layer side. Opens a help need when the robot is stuck, follows the
-decision, and resolves the need when the way is clear (or cancels it when giving up).
+"""Example: the behaviour-layer side.
+
+Opens a help need when the robot is stuck, follows the decision, and resolves the need when the way
+is clear (or cancels it when giving up).
 
 Run next to the node:  ros2 run helpaware_node example_behaviour_layer --ros-args -r __ns:=/robot1
                        (venv: example_behaviour_layer --ros-args ...)
@@ -35,7 +37,10 @@ class BehaviourLayer(Node):
         self.open: dict[str, str] = {}          # request id -> kind
         self.finished: dict[str, str] = {}      # request id -> how it ended
         if period > 0:
-            self.create_timer(period, lambda: self.open_need("door"))
+            self.create_timer(period, self._open_door_need)
+
+    def _open_door_need(self) -> None:
+        self.open_need("door")
 
     def open_need(self, kind: str, urgency: float = 0.0) -> str:
         rid = f"{self.get_name()}-{next(self._ids)}"

@@ -16,7 +16,7 @@ RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 
 
 def decode_or_warn(node: Node, name: str, text: str) -> Optional[dict]:
-    """The document, or None after a warning that names what was wrong with it."""
+    """Return the document, or None after a warning that names what was wrong with it."""
     try:
         return wire.decode(name, text)
     except wire.WireError as exc:
