@@ -145,3 +145,16 @@ def test_executable_is_the_one_under_the_ament_prefix_when_one_is_sourced(tmp_pa
         assert launch_config.executable() == [venv_exe]
     else:
         assert launch_config.executable()[-2:] == ["-m", "helpaware_node.ros.node"]
+
+
+@pytest.mark.parametrize("value", ["off", "on", "yes", "No", "true", "null", "~", "1.5", "12",
+                                   "", "a: b", "[1]", "it's", "apply", "memory", "/tmp/x.db"])
+def test_string_overrides_reach_the_node_as_strings(value):
+    # rcl reads each `-p name:=value` as YAML 1.1 (as PyYAML's safe_load does: off, yes and
+    # null are not strings there), so the text on the command line must read back as the
+    # string given; PyYAML is the outside reference
+    import yaml
+    args = launch_config.decider(None, "", (), {"site_learning": value}).ros_arguments()
+    text = args[args.index("-p") + 1].split(":=", 1)[1]
+    assert yaml.safe_load(text) == value and isinstance(yaml.safe_load(text), str)
+

@@ -15,6 +15,8 @@ import sys
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Optional, Sequence
 
+import yaml
+
 from .. import package_data
 
 PACKAGE = package_data.PACKAGE
@@ -121,7 +123,21 @@ def executable(name: str = EXECUTABLE) -> list[str]:
 
 
 def _ros_value(value: object) -> str:
-    return ("true" if value else "false") if isinstance(value, bool) else str(value)
+    """Return the text of one `-p name:=value`, which rcl reads as YAML.
+
+    A string YAML would read as something else (off, yes, 1.5, null, the empty string) is
+    quoted, so `site_learning: "off"` reaches the node as the string it is, not as false.
+    """
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        try:
+            plain = yaml.safe_load(value) == value
+        except yaml.YAMLError:
+            plain = False
+        if not plain:
+            return "'" + value.replace("'", "''") + "'"
+    return str(value)
 
 
 @dataclass(frozen=True)

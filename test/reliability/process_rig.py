@@ -98,10 +98,11 @@ class StoreView:
     snapshot: dict[str, Belief]
     model: SiteModel
 
-    def refold(self, key: str) -> Belief:
-        """core.person.fold_events over this key's stored events (no compaction in these runs)."""
+    def refold(self, key: str, model: SiteModel | None = None) -> Belief:
+        """core.person.fold_events over this key's stored events (no compaction in these runs),
+        under `model` (default: the store's own, the parameter file's constants)."""
         mine = [e.to_outcome() for e in self.events.values() if e.person_key == key]
-        return fold_events(mine, self.model)[0]
+        return fold_events(mine, model or self.model)[0]
 
 
 def read_store(path: Path) -> StoreView:
