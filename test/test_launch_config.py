@@ -157,4 +157,3 @@ def test_string_overrides_reach_the_node_as_strings(value):
     args = launch_config.decider(None, "", (), {"site_learning": value}).ros_arguments()
     text = args[args.index("-p") + 1].split(":=", 1)[1]
     assert yaml.safe_load(text) == value and isinstance(yaml.safe_load(text), str)
-

@@ -99,8 +99,11 @@ class StoreView:
     model: SiteModel
 
     def refold(self, key: str, model: SiteModel | None = None) -> Belief:
-        """core.person.fold_events over this key's stored events (no compaction in these runs),
-        under `model` (default: the store's own, the parameter file's constants)."""
+        """Fold this key's stored events with core.person.fold_events.
+
+        No compaction happens in these runs. `model`: the constants to fold under (default:
+        the store's own, the parameter file's).
+        """
         mine = [e.to_outcome() for e in self.events.values() if e.person_key == key]
         return fold_events(mine, model or self.model)[0]
 
