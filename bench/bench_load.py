@@ -30,9 +30,10 @@ loopback_own_domain()   # loopback, and a domain id no test run on this machine 
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 DRIVER = os.path.join(HERE, "..", "test", "reliability", "load_driver.py")
-# the same wide limits as test_load.py: the node keeps asking for the whole run
+# wide limits, so the node keeps asking for the whole run: the caps at 1000, the most the
+# parameters allow (core.model.MAX_ASKS_CAP; a larger value is refused at start-up)
 OVERRIDES = {"robot_id": "bench-load", "min_reask_interval_s": 5.0,
-             "max_asks_per_person_per_day": 100000, "max_asks_per_hour": 100000}
+             "max_asks_per_person_per_day": 1000, "max_asks_per_hour": 1000}
 
 
 def pct_ms(xs, q):
@@ -61,7 +62,8 @@ def main() -> int:
     with tempfile.TemporaryDirectory(prefix="bench_load_") as tmp:
         env = dict(os.environ, ROS_HOME=os.path.join(tmp, "ros_home"))
         store_file = os.path.join(tmp, "beliefs.sqlite3")
-        node = launch_config.start(stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+        node_log = open(os.path.join(tmp, "node.log"), "w+")
+        node = launch_config.start(stdout=node_log, stderr=subprocess.STDOUT,
                                    env=env, namespace="/bench_load",
                                    overrides={**OVERRIDES, "store_path": store_file})
         try:
@@ -79,7 +81,9 @@ def main() -> int:
         lines = [x for x in drv.stdout.splitlines() if x.startswith("{")]
         if drv.returncode != 0 or not lines:
             print(f"bench_load: driver failed (exit {drv.returncode})")
-            print(drv.stderr[-3000:], file=sys.stderr)
+            node_log.seek(0)
+            print(drv.stderr[-3000:] + "\nnode log, last lines:\n" + node_log.read()[-2000:],
+                  file=sys.stderr)
             return 1
         r = json.loads(lines[-1])
         with sqlite3.connect(f"file:{store_file}?mode=ro", uri=True) as db:
