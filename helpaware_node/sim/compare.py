@@ -55,7 +55,9 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
     starting from the same constants, with site learning).
     `jobs`: seeds run in this many processes at once. Each seed is a world of its own, built
     from its seed alone, so the results are the same for any `jobs` (only the order in which
-    seeds finish differs; they are put back in seed order).
+    seeds finish differs; they are put back in seed order). The workers are forked: call it
+    with jobs > 1 from a process that runs no other threads (a command line tool, a bench), as
+    a fork can inherit a lock another thread holds.
     """
     model = model or SiteModel()
     config = config or DecisionConfig()
@@ -73,13 +75,15 @@ def compare(sc: Scenario, policies: Sequence[str] = SIM_POLICY_NAMES, seeds: int
         raise ValueError("policy learning: needs a learner_factory")
     job = _SeedJob(sc, tuple(policies), model, config, rules, learner_factory)
     seed_list = [first_seed + s for s in range(seeds)]
-    # the bar's total needs every world's needs: built here only when the bar is shown
-    total = (sum(len(build_world(sc, s, ask_draws=job.draws).needs) for s in seed_list)
-             * len(policies) if progress else 1)
+    serial = jobs == 1 or seeds < 2
+    # built here when they run here, or for the bar's total; workers build their own
+    worlds = ({s: job.world(s) for s in seed_list} if serial or progress else {})
+    total = sum(len(w.needs) for w in worlds.values()) * len(policies) if progress else 1
     bar = ProgressBar(total, f"simulate {sc.name}", enabled=progress)
-    if jobs == 1 or seeds < 2:
-        by_seed = [job.run(s, bar)[0] for s in seed_list]
+    if serial:
+        by_seed = [job.run(worlds[s], bar) for s in seed_list]
     else:
+        worlds.clear()
         by_seed = _in_processes(job, seed_list, min(jobs, seeds), bar)
     runs = {p: [seed_runs[p] for seed_runs in by_seed] for p in policies}
     per_seed = {p: [run_metrics(r) for r in rs] for p, rs in runs.items()}
@@ -96,10 +100,11 @@ class _SeedJob:
         # more draws per need than the rules use change nothing else in the world
         self.draws = max(ASK_DRAWS_PER_NEED, rules.max_asks_per_need)
 
-    def run(self, seed: int, progress: Optional[Callable[[int], None]] = None
-            ) -> tuple[dict, int]:
-        """Return (runs by policy, needs in the world)."""
-        w = build_world(self.sc, seed, ask_draws=self.draws)
+    def world(self, seed: int) -> Any:
+        return build_world(self.sc, seed, ask_draws=self.draws)
+
+    def run(self, w: Any, progress: Optional[Callable[[int], None]] = None) -> dict:
+        """Return the runs by policy on world `w`."""
         out = {}
         for p in self.policies:
             if p == "learning":
@@ -109,7 +114,7 @@ class _SeedJob:
             else:
                 out[p] = run_policy(w, p, self.model, self.config, progress=progress,
                                     rules=self.rules)
-        return out, len(w.needs)
+        return out
 
 
 _FORKED_JOB: Optional[_SeedJob] = None     # the job a forked worker inherits (not pickled)
@@ -117,8 +122,8 @@ _FORKED_JOB: Optional[_SeedJob] = None     # the job a forked worker inherits (n
 
 def _run_forked(seed: int) -> tuple[int, dict, int]:
     assert _FORKED_JOB is not None
-    runs, needs = _FORKED_JOB.run(seed)
-    return seed, runs, needs
+    w = _FORKED_JOB.world(seed)
+    return seed, _FORKED_JOB.run(w), len(w.needs)
 
 
 def _in_processes(job: _SeedJob, seeds: list, jobs: int, bar: ProgressBar) -> list:
@@ -128,15 +133,15 @@ def _in_processes(job: _SeedJob, seeds: list, jobs: int, bar: ProgressBar) -> li
     pickled; the runs come back pickled.
     """
     import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor, as_completed
     global _FORKED_JOB
     _FORKED_JOB = job
     try:
         done: dict = {}
-        with ProcessPoolExecutor(max_workers=jobs,
-                                 mp_context=multiprocessing.get_context("fork")) as pool:
-            for fut in as_completed([pool.submit(_run_forked, s) for s in seeds]):
-                seed, runs, needs = fut.result()
+        # multiprocessing.Pool forks every worker in its constructor, before it starts its
+        # own threads (a ProcessPoolExecutor forks on demand beside its queue threads, and a
+        # child can inherit a lock one of them holds: seen here as a hung worker)
+        with multiprocessing.get_context("fork").Pool(jobs) as pool:
+            for seed, runs, needs in pool.imap_unordered(_run_forked, seeds):
                 done[seed] = runs
                 bar(needs * len(job.policies))
         return [done[s] for s in seeds]
