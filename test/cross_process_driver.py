@@ -24,8 +24,8 @@ def main():
     tasks = node.create_publisher(String, "task_status", RELIABLE)
     outcomes = node.create_publisher(String, "outcome", RELIABLE)
     decisions = []
-    node.create_subscription(String, "decision", lambda m: decisions.append(json.loads(m.data)),
-                             RELIABLE)
+    decision_sub = node.create_subscription(
+        String, "decision", lambda m: decisions.append(json.loads(m.data)), RELIABLE)
 
     def spin_until(pred, timeout_s):
         end = time.monotonic() + timeout_s
@@ -35,7 +35,7 @@ def main():
 
     ok = spin_until(lambda: (people.get_subscription_count() and tasks.get_subscription_count()
                              and outcomes.get_subscription_count()
-                             and node.count_publishers("decision")), 60)
+                             and decision_sub.get_publisher_count()), 60)
     view = [{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1},
             {"id": "porter-b", "distance_m": 3.0, "busyness": 0.7}]
     for _ in range(8):   # best-effort topic: let the first few get through before any need

@@ -32,8 +32,9 @@ class Rig:
         self.outcome_pub = self.driver.create_publisher(String, "outcome", RELIABLE)
         self.decisions = []
         self.diagnostics = []
-        self.driver.create_subscription(String, "decision", lambda m: self.decisions.append(
-            wire.decode("decision", m.data)), RELIABLE)
+        self.decision_sub = self.driver.create_subscription(
+            String, "decision", lambda m: self.decisions.append(wire.decode("decision", m.data)),
+            RELIABLE)
         from diagnostic_msgs.msg import DiagnosticArray
         self.driver.create_subscription(DiagnosticArray, "/diagnostics",
                                         lambda m: self.diagnostics.append(m), 10)
@@ -52,7 +53,7 @@ class Rig:
     def connected(self, timeout_s=30.0):
         pubs = (self.people_pub, self.task_pub, self.outcome_pub)
         return self.spin_until(lambda: all(p.get_subscription_count() > 0 for p in pubs)
-                               and self.node.decision_pub.get_subscription_count() > 0, timeout_s)
+                               and self.decision_sub.get_publisher_count() > 0, timeout_s)
 
     def show_people(self, people):
         """Publish until the node holds every listed person (best-effort topic)."""

@@ -23,8 +23,11 @@ def test_behaviour_layer_and_ask_delivery_close_the_loop(ctx):
     rig.executor.add_node(delivery)
     try:
         assert rig.connected()
+        # the stand-ins hear the node's decisions too (the harness's own subscription and
+        # theirs: three matched), or a decision before their match is lost
         assert rig.spin_until(lambda: behaviour.task_pub.get_subscription_count() > 0
-                              and delivery.outcome_pub.get_subscription_count() > 0)
+                              and delivery.outcome_pub.get_subscription_count() > 0
+                              and rig.node.decision_pub.get_subscription_count() >= 3)
         assert rig.show_people([{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1}])
         rid = behaviour.open_need("handover", urgency=1.0)
         assert rig.spin_until(lambda: rid in behaviour.finished and not rig.node.session.needs)

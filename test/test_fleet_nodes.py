@@ -43,13 +43,17 @@ class Driver:
         self.task = node.create_publisher(String, f"/{name}/task_status", RELIABLE)
         self.outcome = node.create_publisher(String, f"/{name}/outcome", RELIABLE)
         self.decisions = []
-        node.create_subscription(String, f"/{name}/decision", lambda m: self.decisions.append(
-            json.loads(m.data)), RELIABLE)
+        self.decision_sub = node.create_subscription(
+            String, f"/{name}/decision", lambda m: self.decisions.append(json.loads(m.data)),
+            RELIABLE)
         self.in_view = []
         self.n = 0
 
     def connected(self):
-        return all(p.get_subscription_count() > 0 for p in (self.people, self.task, self.outcome))
+        # both directions matched: a decision published before the driver's subscription is
+        # matched is lost (volatile), and the test would wait for it in vain
+        return (all(p.get_subscription_count() > 0 for p in (self.people, self.task, self.outcome))
+                and self.decision_sub.get_publisher_count() > 0)
 
     def tick(self, now_s):
         if self.in_view:

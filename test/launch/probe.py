@@ -83,9 +83,8 @@ class Probe:
         self.decisions: list[dict] = []
         self.outcomes: list[dict] = []
         self.tasks: list[dict] = []
-        self.node.create_subscription(String, "decision",
-                                      lambda m: self.decisions.append(json.loads(m.data)),
-                                      RELIABLE)
+        self.decision_sub = self.node.create_subscription(
+            String, "decision", lambda m: self.decisions.append(json.loads(m.data)), RELIABLE)
         self.node.create_subscription(String, "outcome",
                                       lambda m: self.outcomes.append(json.loads(m.data)),
                                       RELIABLE)
@@ -111,7 +110,7 @@ class Probe:
         pubs = (self.people_pub, self.task_pub, self.outcome_pub)
         return self.spin_until(lambda: full_name in self.node_names()
                                and all(p.get_subscription_count() > 0 for p in pubs)
-                               and self.node.count_publishers("decision") > 0, timeout_s)
+                               and self.decision_sub.get_publisher_count() > 0, timeout_s)
 
     def decide(self, request_id: str, view=VIEW, kind: str = "handover",
                timeout_s: float = 60.0):

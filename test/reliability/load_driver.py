@@ -149,7 +149,7 @@ def main(argv=None) -> int:
                 diag["last"] = {kv.key: kv.value for kv in st.values}
                 diag["ticks"] += 1
 
-    node.create_subscription(String, "decision", on_decision, reliable)
+    decision_sub = node.create_subscription(String, "decision", on_decision, reliable)
     node.create_subscription(DiagnosticArray, "/diagnostics", on_diag, 10)
 
     def spin_until(pred, timeout_s: float) -> bool:
@@ -171,7 +171,7 @@ def main(argv=None) -> int:
         connected = spin_until(lambda: people_pub.get_subscription_count() > 0
                                and task_pub.get_subscription_count() > 0
                                and outcome_pub.get_subscription_count() > 0
-                               and node.count_publishers(f"{args.namespace}/decision") > 0
+                               and decision_sub.get_publisher_count() > 0
                                and diag["last"] is not None, 60.0)
         out["connected"] = connected
         if not connected:
