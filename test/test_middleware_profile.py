@@ -17,14 +17,14 @@ NS = {"dds": "http://www.eprosima.com"}
 PROFILE = os.path.join(os.path.dirname(__file__), "..", "config", "fastdds_robot.xml")
 
 
-def test_the_profile_is_the_default_participant_profile_with_half_second_announcements():
+def test_the_profile_is_the_default_participant_profile_with_quarter_second_announcements():
     root = ET.parse(PROFILE).getroot()
     (participant,) = root.findall("dds:profiles/dds:participant", NS)
     assert participant.get("is_default_profile") == "true"
     period = participant.find("dds:rtps/dds:builtin/dds:discovery_config/dds:leaseAnnouncement",
                               NS)
     assert (int(period.find("dds:sec", NS).text), int(period.find("dds:nanosec", NS).text)) == (
-        0, 500_000_000)
+        0, 250_000_000)
     # nothing else is changed: no transports (ignored under LOCALHOST anyway), no lease
     assert root.find(".//dds:userTransports", NS) is None
     assert root.find(".//dds:leaseDuration", NS) is None
