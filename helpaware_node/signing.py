@@ -106,6 +106,15 @@ def _field(path: str) -> str:
     return f"field {path!r}" if path else "document"
 
 
+def _child(path: str, name: str) -> str:
+    """Return the path of field `name` under `path`.
+
+    Never empty: a field named "" is shown as '""', so a reason names it and not the document.
+    """
+    label = name[:40] if name else '""'
+    return f"{path}.{label}" if path else label
+
+
 def _text(value: str, path: str) -> bytes:
     try:
         return value.encode("utf-8")
@@ -151,11 +160,11 @@ def _put(out: bytearray, value: Any, path: str, depth: int) -> None:
         for name in value:
             if not isinstance(name, str):
                 raise CanonicalError(f"{_field(path)}: field name {name!r} is not text")
-            names.append((_text(name, f"{path}.{name[:40]}" if path else name[:40]), name))
+            names.append((_text(name, _child(path, name)), name))
         out += b"o" + _u32(len(names))
         for raw, name in sorted(names):
             out += b"s" + _u32(len(raw)) + raw
-            _put(out, value[name], f"{path}.{name}" if path else name, depth + 1)
+            _put(out, value[name], _child(path, name), depth + 1)
     else:
         raise CanonicalError(f"{_field(path)}: {type(value).__name__} is not a JSON value")
 

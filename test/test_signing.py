@@ -346,3 +346,13 @@ def test_a_memory_store_signs_for_a_site_of_its_own():
     assert a.site_keys.site_id != b.site_keys.site_id
     text = encode_document("outcome", outcome(), a.site_keys.key_ring())
     assert refusal(text, b.site_keys.key_ring()) == OTHER_SITE
+
+
+def test_a_refusal_in_a_field_named_empty_names_that_field():
+    """A field named "" is shown as '""' in the reason, never as the whole document."""
+    for doc, head in (({"": 10**30 + 1}, "field '\"\"'"),
+                      ({"a": {"": float("nan")}}, "field 'a.\"\"'"),
+                      ({"b": [{"": "\ud800"}]}, "field 'b[0].\"\"'")):
+        with pytest.raises(CanonicalError) as err:
+            canonical_bytes(doc)
+        assert str(err.value).startswith(head + ":"), str(err.value)

@@ -457,6 +457,8 @@ def test_a_wrong_type_in_one_field_is_refused_naming_that_field(rig, topic):
     (FLEET_TOPIC, json.dumps({**SEEDS[FLEET_TOPIC][0], "time_s": 10**400}), "time_s"),
     (FLEET_TOPIC, json.dumps({**SEEDS[FLEET_TOPIC][0], "request_kind": "\ud800"}),
      "request_kind"),
+    # a field named "" holding a number no binary64 holds: the reason named the document
+    (FLEET_TOPIC, json.dumps({**SEEDS[FLEET_TOPIC][0], "": 10**30 + 1}), "field '\"\"'"),
     (FLEET_TOPIC, json.dumps({**SEEDS[FLEET_TOPIC][0], "event_id": "\udc00/1"}), "event_id"),
     (FLEET_TOPIC, json.dumps({k: v for k, v in SEEDS[FLEET_TOPIC][0].items() if k != "sig"}),
      "unsigned (no sig field)"),
@@ -467,7 +469,7 @@ def test_a_wrong_type_in_one_field_is_refused_naming_that_field(rig, topic):
     (PRIVACY_TOPIC, '{"action":"forget","person_id":"\\ud800"}', "person_id"),
 ], ids=["surrogate_id", "huge_int_stamp", "huge_int_urgency", "huge_negative_stamp",
         "duplicate_key", "unknown_top_level_field", "fleet_deep_nesting", "fleet_huge_int",
-        "fleet_surrogate_kind",
+        "fleet_surrogate_kind", "fleet_empty_field_name",
         "fleet_surrogate_event_id", "fleet_unsigned", "fleet_old_format", "fleet_signed_bad_field",
         "privacy_deep_nesting", "privacy_surrogate_id"])
 def test_found_by_the_fuzz_each_refused_by_name(rig, topic, text, field):
