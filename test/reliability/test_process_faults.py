@@ -14,7 +14,8 @@ plus the late-joiner check below. Run with -s to see the figures.
 Found here:
 - A burst of more than 50 outcomes while the node's executor was busy was overwritten in the
   `outcome` subscription's reliable KEEP_LAST(50) history: 150 reported, 50 stored. Fixed:
-  `outcome` and `task_status` now keep 1000 (ros/node.py INPUT_QUEUE); regression test below.
+  `outcome` and `task_status` now keep 1000 (ros/node_entities.py INPUT_QUEUE); regression
+  test below.
 - A late joiner offered two peers' histories of 3 000 events each merged about 5 100 of
   6 000 (eight runs: 5 034-5 918). Cause: fleet/outcomes has no key, so the reader's keep-last
   depth (5 000) is one queue shared by every writer; what it had not taken while both
