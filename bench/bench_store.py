@@ -199,8 +199,8 @@ def executor_gaps(path: str, n_people: int, t_end: float) -> dict:
     """Print the longest timer gap while each store job runs on the worker.
 
     The longest gap between the calls of a 5 ms timer while each store job runs on the worker
-    (store/jobs.py, reported back by a guard condition as in ros/node.py), on the big store; the
-    reference row runs a forget in a timer callback, as the node did.
+    (store/jobs.py, reported back by a guard condition as in ros/node_entities.py), on the big
+    store; the reference row runs a forget in a timer callback, as the node did.
     """
     import rclpy
     from rclpy.executors import SingleThreadedExecutor

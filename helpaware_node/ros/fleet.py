@@ -576,7 +576,8 @@ def run_peer(argv: list[str] | None = None) -> int:
     return 0
 
 
-# the privacy topic lives in ros/privacy.py; ros/node.py imports both from here
+# the privacy topic lives in ros/privacy.py; ros/node.py and ros/node_entities.py import both
+# from here
 from .privacy import PRIVACY_TOPIC, PrivacyRequests  # noqa: E402,F401
 
 if __name__ == "__main__":

@@ -9,7 +9,7 @@ the caller's thread (the node: a guard condition the worker triggers), ends the 
 memory and runs each job's `on_done` there.  A store without a worker connection (the
 MemoryStore) runs each job at once; its `on_done` still comes from poll().
 
-No ROS here: the node wires the wake-up (ros/node.py).
+No ROS here: the node wires the wake-up (ros/node_entities.py).
 """
 from __future__ import annotations
 
