@@ -242,7 +242,8 @@ def reference_limit(cand, x, now_s, config, robot_capped):
     from helpaware_node.core.policy import Exclusion as E
     checks = [
         (E.OPTED_OUT, cand.opted_out),
-        (E.PROTECTED_ACTIVITY, bool(cand.activity) and cand.activity in config.protected_activities),
+        (E.PROTECTED_ACTIVITY,
+         bool(cand.activity) and cand.activity in config.protected_activities),
         (E.STALE_OBSERVATION, now_s - cand.observed_at_s > config.max_observation_age_s),
         (E.TOO_FAR, cand.distance_m > config.max_distance_m),
         (E.TOO_BUSY, x >= config.busyness_limit),

@@ -102,9 +102,10 @@ def declined_mean(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> Floats:
     r1 = 1.0 / (s + 1.0)
     k = 1.0 - c
     z = k + c * (b / s)
-    with np.errstate(**_AT_C_ONE_ONLY):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         mean = m0 * ((k + c * b * r1) / z)
-    return np.where(c <= 0.0, m0, np.where(c >= 1.0, a * r1, mean))
+    out: Floats = np.where(c <= 0.0, m0, np.where(c >= 1.0, a * r1, mean))
+    return out
 
 
 def declined_ab(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Floats]:
