@@ -254,6 +254,12 @@ def candidate_bytes_bound(candidate: Candidate, quick: bool = False) -> int:
             + ASK_TIME_BYTES * len(candidate.ask_times_s))
 
 
+def candidates_bytes_bound_quick(candidates: Iterable[Candidate]) -> int:
+    """Return the sum of `candidate_bytes_bound(c, quick=True)` over `candidates`, in one pass."""
+    return sum(CANDIDATE_FIXED_BYTES + 24 * len(c.person_id) + 12 * len(c.activity)
+               + ASK_TIME_BYTES * len(c.ask_times_s) for c in candidates)
+
+
 def _is_number(v: Any, low: float, high: float) -> bool:
     return (type(v) is float or type(v) is int) and low <= v <= high   # NaN fails both
 

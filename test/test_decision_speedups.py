@@ -159,6 +159,7 @@ def test_note_candidate_equals_the_replace_it_stands_for(count, first, now):
     want = dataclasses.replace(rec, candidate_count=count + 1,
                                first_seen_s=now if first is None else min(first, now))
     assert note_candidate(rec, now) == want
+    assert vars(note_candidate(rec, now)) == vars(want)     # every field, none missing or extra
 
 
 def test_a_person_still_in_view_keeps_the_key_the_store_gives():
@@ -396,3 +397,14 @@ def test_task_status_documents_are_read_the_fast_way():
     text = wire.task_status_document("need-1", "open", "door", urgency=0.5)
     assert len(text) <= wire.FAST_PARSE_MAX_CHARS
     assert wire.orjson is None or wire._fast_parse(text) is not wire._UNSETTLED
+
+
+@settings(max_examples=200, deadline=None)
+@given(people=st.lists(st.tuples(st.text(min_size=1, max_size=20), st.text(max_size=10),
+                                 st.integers(0, 5)), max_size=6))
+def test_the_one_pass_quick_bound_is_the_sum_of_the_quick_bounds(people):
+    cands = [Candidate(pid, 1.0, 1.0, Belief(1.0, 1.0), activity=act,
+                       ask_times_s=tuple(float(k) for k in range(asks)))
+             for pid, act, asks in people]
+    assert wire.candidates_bytes_bound_quick(cands) == sum(
+        wire.candidate_bytes_bound(c, quick=True) for c in cands)

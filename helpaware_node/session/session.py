@@ -29,7 +29,7 @@ from ..core.policy import HOUR_S, Candidate, Chooser, Evaluation, choose_lookahe
 from ..core.preview import quoted
 from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
 from ..store.ids import refused_by_store
-from ..wire import MAX_DOCUMENT_BYTES, candidate_bytes_bound
+from ..wire import MAX_DOCUMENT_BYTES, candidate_bytes_bound, candidates_bytes_bound_quick
 from .memory import PersonMemory
 from .ports import DirectWrites, OutcomeWriter, SessionStore, StoreStatus
 from .state import (DECISION_OTHER_BYTES, IN_VIEW_EXTRA_S, MAX_GOAL_STATUSES,
@@ -462,8 +462,7 @@ class HelpSession:
         is valid by its own schema and can be replayed.
         """
         budget = MAX_DOCUMENT_BYTES - DECISION_OTHER_BYTES
-        if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(
-                candidate_bytes_bound(c, quick=True) for c in cands) <= budget:
+        if len(cands) <= MAX_PEOPLE_IN_VIEW and candidates_bytes_bound_quick(cands) <= budget:
             return None                      # the usual case: lengths alone show it fits
         sizes = [candidate_bytes_bound(c) for c in cands]
         if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(sizes) <= budget:
