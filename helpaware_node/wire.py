@@ -463,7 +463,7 @@ _UNSETTLED = object()
 
 
 def _fast_parse(text: str) -> Any:
-    """orjson's reading of `text` when it is the one `parse_json` gives; else _UNSETTLED.
+    """Return orjson's reading of `text` when it is the one `parse_json` gives; else _UNSETTLED.
 
     orjson keeps the last of repeated names and reads some texts the standard library refuses
     or reads otherwise, so its value counts only when writing it back gives `text` exactly:
@@ -478,6 +478,8 @@ def _fast_parse(text: str) -> Any:
     except (orjson.JSONDecodeError, orjson.JSONEncodeError, UnicodeEncodeError):
         return _UNSETTLED
     return value if same else _UNSETTLED
+
+
 _JSON_TOKEN = re.compile(r'"(?:[^"\\]|\\.)*"|[\[\]{},:]')
 
 

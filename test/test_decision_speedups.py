@@ -203,7 +203,7 @@ def test_markers_are_updated_in_place_and_people_who_left_are_deleted():
 # against the general code it replaces, written out here as it was
 
 def reference_information_value(a, b, c, model, config, help_time_s):
-    """The VOI as first written: declined_moments' mean and typical_gain of each mean."""
+    """Return the VOI as first written: declined_moments' mean and typical_gain of each mean."""
     from helpaware_node.core.belief import declined_moments
     from helpaware_node.core.policy import typical_gain
     a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
@@ -238,7 +238,7 @@ def test_declined_mean_and_the_voi_are_bit_for_bit_the_general_forms(ab, k_busy,
 
 
 def reference_limit(cand, x, now_s, config, robot_capped):
-    """The hard limits one candidate at a time, in Exclusion order (the first that applies)."""
+    """Return the first hard limit one candidate meets, checked in Exclusion order."""
     from helpaware_node.core.person import DAY_S
     from helpaware_node.core.policy import Exclusion as E
     checks = [
