@@ -96,10 +96,14 @@ def declined_mean(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> Floats:
     """
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
-    c = np.asarray(c, dtype=float)
     s = a + b
-    m0 = a / s
-    r1 = 1.0 / (s + 1.0)
+    return declined_mean_from(a, b, np.asarray(c, dtype=float), s, a / s, s + 1.0)
+
+
+def declined_mean_from(a: Floats, b: Floats, c: Floats, s: Floats, m0: Floats,
+                       s1: Floats) -> Floats:
+    """Return `declined_mean` from parts the caller has: s = a + b, m0 = a / s, s1 = s + 1."""
+    r1 = 1.0 / s1
     k = 1.0 - c
     z = k + c * (b / s)
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):

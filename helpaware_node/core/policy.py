@@ -22,7 +22,7 @@ from typing import Any, Callable, Optional, Sequence, Union
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .belief import Belief, declined_mean
+from .belief import Belief, declined_mean_from
 from .context import context_factor
 from .lasting import lasting_cost
 from .model import CoreInputError, DecisionConfig, SiteModel, check_range, params_hash
@@ -269,10 +269,18 @@ def information_value(a: ArrayLike, b: ArrayLike, c: Floats, model: SiteModel,
     """VOI = p U(m_helped) + (1 - p) U(m_declined) - U(m) with the updates the answer causes."""
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
-    m = a / (a + b)
-    p = c * m
-    m_helped = (a + 1.0) / (a + b + 1.0)
-    m_declined = declined_mean(a, b, c)
+    s = a + b
+    m = a / s
+    return _information_value(a, b, np.asarray(c, dtype=float), s, m, c * m, model, config,
+                              help_time_s)
+
+
+def _information_value(a: Floats, b: Floats, c: Floats, s: Floats, m: Floats, p: Floats,
+                       model: SiteModel, config: DecisionConfig, help_time_s: float) -> Floats:
+    """Return `information_value` from parts evaluate has: s = a + b, m = a / s, p = c m."""
+    s1 = s + 1.0
+    m_helped = (a + 1.0) / s1
+    m_declined = declined_mean_from(a, b, c, s, m, s1)
     # typical_gain of the three means, its constants worked out once (the same arithmetic)
     gain, beta, _ = _typical_constants(model, config, help_time_s)
 
@@ -360,7 +368,8 @@ def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
                      dtype=float)
     exclusions = _limits(cands, x_list, now_s, config, robot_capped)
 
-    mean = a / (a + b) if n else np.empty(0)
+    s = a + b
+    mean = a / s if n else np.empty(0)
     total_load = sum(load_list)
     if total_load == total_load:
         # every busyness passed Candidate's check, and each load is a sum of 2^-age terms:
@@ -374,7 +383,8 @@ def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
     interruption = config.interruption_weight_s * (1.0 + config.busy_cost * x
                                                    + config.repeat_cost * load)
     advantage = ask_advantage(p, continue_cost, help_time, config.ask_time_s, interruption)
-    voi = information_value(a, b, c, model, config, help_time) if n else np.empty(0)
+    voi = (_information_value(a, b, c, s, mean, p, model, config, help_time) if n
+           else np.empty(0))
     rate = future_ask_rate_per_s(counts, first, now_s, config)
     fut = rate * discounted_horizon_s(config)
     alpha, beta, gamma = typical_terms(mean, model, config, help_time)
