@@ -254,6 +254,12 @@ def candidate_bytes_bound(candidate: Candidate, quick: bool = False) -> int:
             + ASK_TIME_BYTES * len(candidate.ask_times_s))
 
 
+def candidates_bytes_bound_quick(candidates: Iterable[Candidate]) -> int:
+    """Return the sum of `candidate_bytes_bound(c, quick=True)` over `candidates`, in one pass."""
+    return sum(CANDIDATE_FIXED_BYTES + 24 * len(c.person_id) + 12 * len(c.activity)
+               + ASK_TIME_BYTES * len(c.ask_times_s) for c in candidates)
+
+
 def _is_number(v: Any, low: float, high: float) -> bool:
     return (type(v) is float or type(v) is int) and low <= v <= high   # NaN fails both
 
@@ -428,6 +434,10 @@ def parse_json(text: str) -> Any:
     NaN/Infinity and repeated names in one object refused (WireError, "document: ..."); also used
     for the signed fleet documents.
     """
+    if orjson is not None and len(text) <= FAST_PARSE_MAX_CHARS:
+        value = _fast_parse(text)
+        if value is not _UNSETTLED:
+            return value
     try:
         return json.loads(text, parse_constant=_refuse_constant,
                           object_pairs_hook=_refuse_duplicates)
@@ -445,6 +455,31 @@ def parse_json(text: str) -> Any:
 
 
 DEEP_NESTING_LEVELS = 64      # deeper than any document here (a decision: 4 levels)
+# Texts up to this long (task_status and outcome documents: the decision's latency path) are
+# read by orjson first. Such a text nests at most 500 levels, where the standard library's
+# parser is still far from its recursion limit, so both parsers read the same texts.
+FAST_PARSE_MAX_CHARS = 1000
+_UNSETTLED = object()
+
+
+def _fast_parse(text: str) -> Any:
+    """Return orjson's reading of `text` when it is the one `parse_json` gives; else _UNSETTLED.
+
+    orjson keeps the last of repeated names and reads some texts the standard library refuses
+    or reads otherwise, so its value counts only when writing it back gives `text` exactly:
+    then no name was repeated (one would be missing) and every number and string reads the
+    same in both. Anything else (refused, other spacing or escapes, "1E5") takes the strict
+    path, which gives every error message.
+    """
+    assert orjson is not None
+    try:
+        value = orjson.loads(text)
+        same = orjson.dumps(value) == text.encode("utf-8")
+    except (orjson.JSONDecodeError, orjson.JSONEncodeError, UnicodeEncodeError):
+        return _UNSETTLED
+    return value if same else _UNSETTLED
+
+
 _JSON_TOKEN = re.compile(r'"(?:[^"\\]|\\.)*"|[\[\]{},:]')
 
 

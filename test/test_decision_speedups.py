@@ -159,6 +159,7 @@ def test_note_candidate_equals_the_replace_it_stands_for(count, first, now):
     want = dataclasses.replace(rec, candidate_count=count + 1,
                                first_seen_s=now if first is None else min(first, now))
     assert note_candidate(rec, now) == want
+    assert vars(note_candidate(rec, now)) == vars(want)     # every field, none missing or extra
 
 
 def test_a_person_still_in_view_keeps_the_key_the_store_gives():
@@ -196,3 +197,214 @@ def test_markers_are_updated_in_place_and_people_who_left_are_deleted():
     marks.reset(seen(("bo", 2.0)))
     fresh = marks.update(seen(("bo", 2.0)), lambda k: 0.5, Time(sec=4), 2.0)
     assert len(fresh.markers) == 1 and fresh.markers[0].action == Marker.ADD
+
+
+# ---- the second round of shortcuts (issue 16, the decision's ratio to a bare relay): each
+# against the general code it replaces, written out here as it was
+
+def reference_information_value(a, b, c, model, config, help_time_s):
+    """Return the VOI as first written: declined_moments' mean and typical_gain of each mean."""
+    from helpaware_node.core.belief import declined_moments
+    from helpaware_node.core.policy import typical_gain
+    a, b = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    m = a / (a + b)
+    p = c * m
+    m_declined, _ = declined_moments(a, b, c)
+
+    def u(x):
+        return typical_gain(x, model, config, help_time_s)
+    return np.maximum(p * u((a + 1.0) / (a + b + 1.0)) + (1.0 - p) * u(m_declined) - u(m), 0.0)
+
+
+BELIEF_SIDE = st.one_of(st.floats(1e-300, 1e12), st.sampled_from([5e-324, 1e-3, 1.0, 1e12]))
+FACTOR = st.one_of(st.floats(0.0, 1.0), st.sampled_from([0.0, 1.0, 5e-324, 1.0 - 2**-53]))
+
+
+@settings(max_examples=300, deadline=None)
+@given(ab=st.lists(st.tuples(BELIEF_SIDE, BELIEF_SIDE, FACTOR), min_size=1, max_size=8),
+       k_busy=st.sampled_from([0.0, 0.7, 3.0]), help_time_s=st.sampled_from([5.0, 30.0]))
+def test_declined_mean_and_the_voi_are_bit_for_bit_the_general_forms(ab, k_busy, help_time_s):
+    from helpaware_node.core.belief import declined_mean, declined_moments
+    from helpaware_node.core.policy import information_value
+    a, b, c = (np.array(v, dtype=float) for v in zip(*ab))
+    with np.errstate(all="ignore"):
+        want_mean, _ = declined_moments(a, b, c)
+        model, config = SiteModel(k_busy=k_busy), DecisionConfig()
+        want = reference_information_value(a, b, c, model, config, help_time_s)
+    assert declined_mean(a, b, c).tobytes() == want_mean.tobytes()
+    with np.errstate(all="ignore"):
+        got = information_value(a, b, c, model, config, help_time_s)
+    assert got.tobytes() == want.tobytes()
+
+
+def reference_limit(cand, x, now_s, config, robot_capped):
+    """Return the first hard limit one candidate meets, checked in Exclusion order."""
+    from helpaware_node.core.person import DAY_S
+    from helpaware_node.core.policy import Exclusion as E
+    checks = [
+        (E.OPTED_OUT, cand.opted_out),
+        (E.PROTECTED_ACTIVITY,
+         bool(cand.activity) and cand.activity in config.protected_activities),
+        (E.STALE_OBSERVATION, now_s - cand.observed_at_s > config.max_observation_age_s),
+        (E.TOO_FAR, cand.distance_m > config.max_distance_m),
+        (E.TOO_BUSY, x >= config.busyness_limit),
+        (E.REASK_INTERVAL, any(now_s - t < config.min_reask_interval_s for t in cand.ask_times_s)),
+        (E.PERSON_DAILY_CAP, sum(now_s - t < DAY_S for t in cand.ask_times_s)
+         >= config.max_asks_per_person_per_day),
+        (E.ROBOT_HOURLY_CAP, robot_capped)]
+    return next((e for e, hit in checks if hit), None)
+
+
+CANDIDATE_FIELDS = st.tuples(
+    st.floats(0.0, 10.0), st.floats(0.0, 10.0), st.one_of(st.none(), st.floats(0.0, 1.0)),
+    st.sampled_from(["", "charting", "with_patient"]),
+    st.lists(st.floats(-2e5, 1.1e5), max_size=4), st.booleans())
+
+
+@settings(max_examples=300, deadline=None)
+@given(people=st.lists(CANDIDATE_FIELDS, max_size=6), day_cap=st.integers(0, 3),
+       reask_s=st.sampled_from([0.0, 600.0]), robot_asks=st.integers(0, 3),
+       busy_limit=st.sampled_from([0.5, 1.0]), max_age_s=st.sampled_from([0.0, 5.0]))
+def test_the_limits_loop_gives_each_candidates_first_limit(people, day_cap, reask_s, robot_asks,
+                                                           busy_limit, max_age_s):
+    from helpaware_node.core.policy import evaluate
+    now = 1e5
+    config = DecisionConfig(max_asks_per_person_per_day=day_cap, min_reask_interval_s=reask_s,
+                            max_asks_per_hour=2, busyness_limit=busy_limit,
+                            max_observation_age_s=max_age_s)
+    model = SiteModel()
+    cands = [Candidate(f"p{i}", d, now - age, Belief(1.0, 1.0), busyness=x, activity=act,
+                       ask_times_s=tuple(sorted(times)), opted_out=out)
+             for i, (d, age, x, act, times, out) in enumerate(people)]
+    robot = tuple(now - 10.0 * k for k in range(robot_asks))
+    ev = evaluate(HelpNeed("r", "door", now), cands, now, robot, model, config)
+    capped = robot_asks >= config.max_asks_per_hour
+    want = [reference_limit(c, model.default_busyness if c.busyness is None else c.busyness,
+                            now, config, capped) for c in cands]
+    assert list(ev.exclusions) == want
+    # the context factor without its checks is context_factor's arithmetic, bit for bit
+    from helpaware_node.core.context import context_factor
+    want_c = np.asarray(context_factor(ev.busyness, ev.ask_load, model.k_busy, model.k_load),
+                        dtype=float).reshape(len(cands))
+    assert ev.c.tobytes() == want_c.tobytes()
+
+
+def test_a_nan_ask_time_is_still_named_by_the_context_factor():
+    cand = Candidate("q", 1.0, 1.0, Belief(1.0, 1.0), ask_times_s=(math.nan,))
+    with pytest.raises(CoreInputError, match="ask load: nan"):
+        decide(HelpNeed("x", "door", 1.0), [cand], 2.0, (), SiteModel(), DecisionConfig())
+
+
+@settings(max_examples=300, deadline=None)
+@given(rate=st.lists(st.sampled_from([0.0, 0.0, 1e-4, 3e-3]), min_size=0, max_size=5),
+       alpha=st.floats(0.0, 50.0), beta=st.floats(0.0, 50.0), load=st.floats(0.0, 3.0),
+       horizon_s=st.sampled_from([0.0, 3600.0]))
+def test_the_lasting_costs_early_exit_gives_the_general_zeros(rate, alpha, beta, load,
+                                                              horizon_s):
+    from helpaware_node.core.lasting import lasting_cost
+    got = lasting_cost(np.array(rate, dtype=float), alpha, beta, 0.5, 0.3, load, 3600.0,
+                       1800.0, horizon_s)
+    assert got.shape == (len(rate),) and got.dtype == np.float64
+    if horizon_s <= 0.0 or not any(r > 0.0 for r in rate) or not alpha > beta:
+        assert not got.any()     # nobody live: zeros, as the general path gives
+    # beside one live entry (the general path throughout), the others are unchanged
+    both = lasting_cost(np.array(rate + [3e-3], dtype=float),
+                        np.array([alpha] * len(rate) + [beta + 1.0]), beta, 0.5, 0.3, load,
+                        3600.0, 1800.0, horizon_s)
+    assert both[:-1].tobytes() == got.tobytes()
+
+
+@settings(max_examples=400, deadline=None)
+@given(d=NUMBERS, t=NUMBERS, x=NUMBERS, count=st.integers(0, 50),
+       first=st.one_of(st.none(), st.floats(0.0, 1e6)), out=st.booleans(),
+       asks=st.lists(st.floats(0.0, 1e6), max_size=3))
+def test_candidate_from_record_is_the_constructors_candidate(d, t, x, count, first, out, asks):
+    from helpaware_node.core.policy import candidate_from_record
+    from helpaware_node.core.person import belief_at
+    model = SiteModel()
+    rec = PersonRecord(Belief(2.0, 3.0), 10.0, tuple(asks), count, first)
+    try:
+        want = Candidate("ann", d, t, belief_at(rec, 100.0, model), busyness=x,
+                         activity="charting", ask_times_s=tuple(asks), candidate_count=count,
+                         first_seen_s=first, opted_out=out)
+    except CoreInputError as exc:
+        with pytest.raises(CoreInputError) as got:
+            candidate_from_record("ann", rec, 100.0, model, d, t, busyness=x,
+                                  activity="charting", opted_out=out)
+        assert str(got.value) == str(exc)
+        return
+    got = candidate_from_record("ann", rec, 100.0, model, d, t, busyness=x,
+                                activity="charting", opted_out=out)
+    assert got == want and hash(got) == hash(want)
+    assert vars(got) == vars(want)           # every field, none missing or extra
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        got.distance_m = 1.0
+
+
+def strict_parse(text):
+    """parse_json's verdict on `text` by the standard library alone (orjson switched off)."""
+    with pytest.MonkeyPatch.context() as m:
+        m.setattr(wire, "orjson", None)
+        try:
+            return "value", repr(wire.parse_json(text))
+        except wire.WireError as exc:
+            return "error", str(exc)
+
+
+def verdict(text):
+    try:
+        return "value", repr(wire.parse_json(text))
+    except wire.WireError as exc:
+        return "error", str(exc)
+
+
+JSON_VALUES = st.recursive(
+    st.one_of(st.none(), st.booleans(), st.integers(-2**70, 2**70),
+              st.floats(allow_nan=False, allow_infinity=False), st.text(max_size=6)),
+    lambda inner: st.one_of(st.lists(inner, max_size=3),
+                            st.dictionaries(st.text(max_size=3), inner, max_size=3)),
+    max_leaves=8)
+
+
+@pytest.mark.skipif(wire.orjson is None, reason="orjson not installed")
+@settings(max_examples=500, deadline=None)
+@given(value=JSON_VALUES, spaced=st.booleans(), ascii_only=st.booleans(),
+       edit=st.one_of(st.none(), st.tuples(st.integers(0, 200), st.sampled_from(
+           ['"a":1,"a":2', "NaN", "Infinity", "1e400", "-0", "1E5", "\\ud800", "\ufeff", "[",
+            "}", ",", "\\u00e9", " ", "-", "0.0"]))))
+def test_the_fast_reading_gives_the_strict_readings_value_or_error(value, spaced, ascii_only,
+                                                                   edit):
+    separators = (", ", ": ") if spaced else (",", ":")
+    text = json.dumps(value, separators=separators, ensure_ascii=ascii_only)
+    if edit is not None:
+        at, piece = edit
+        at = min(at, len(text))
+        text = text[:at] + piece + text[at:]
+    assert verdict(text) == strict_parse(text)
+
+
+@pytest.mark.skipif(wire.orjson is None, reason="orjson not installed")
+@pytest.mark.parametrize("text", [
+    '{"doc":"task_status","doc":"people"}', '{"a":{"b":1,"b":2}}', '[NaN]', '{"a":-Infinity}',
+    '[1e400]', '"\\ud800"', '123456789012345678901234567890', "[" * 480 + "]" * 480,
+    '{"doc":"task_status","version":1,"request_id":"a","state":"open","kind":"door"}'])
+def test_the_fast_reading_on_the_strict_readings_hard_cases(text):
+    assert verdict(text) == strict_parse(text)
+
+
+def test_task_status_documents_are_read_the_fast_way():
+    # the shortcut must take the usual document, or it would not pay
+    text = wire.task_status_document("need-1", "open", "door", urgency=0.5)
+    assert len(text) <= wire.FAST_PARSE_MAX_CHARS
+    assert wire.orjson is None or wire._fast_parse(text) is not wire._UNSETTLED
+
+
+@settings(max_examples=200, deadline=None)
+@given(people=st.lists(st.tuples(st.text(min_size=1, max_size=20), st.text(max_size=10),
+                                 st.integers(0, 5)), max_size=6))
+def test_the_one_pass_quick_bound_is_the_sum_of_the_quick_bounds(people):
+    cands = [Candidate(pid, 1.0, 1.0, Belief(1.0, 1.0), activity=act,
+                       ask_times_s=tuple(float(k) for k in range(asks)))
+             for pid, act, asks in people]
+    assert wire.candidates_bytes_bound_quick(cands) == sum(
+        wire.candidate_bytes_bound(c, quick=True) for c in cands)

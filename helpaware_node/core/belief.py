@@ -88,6 +88,30 @@ def declined_moments(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, 
     return _exact_ends(c, mean, var, a * r1, a * r1 * n1 * r2, m0, m0 * n0 * r1)
 
 
+def declined_mean(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> Floats:
+    """Return the mean of `declined_moments` alone, bit for bit (the decision needs no variance).
+
+    The same operations as `_declined_mixture` and `declined_moments` in the same order (only
+    those the mean uses), with the same closed forms at c = 0 and c = 1.
+    """
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    s = a + b
+    return declined_mean_from(a, b, np.asarray(c, dtype=float), s, a / s, s + 1.0)
+
+
+def declined_mean_from(a: Floats, b: Floats, c: Floats, s: Floats, m0: Floats,
+                       s1: Floats) -> Floats:
+    """Return `declined_mean` from parts the caller has: s = a + b, m0 = a / s, s1 = s + 1."""
+    r1 = 1.0 / s1
+    k = 1.0 - c
+    z = k + c * (b / s)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        mean = m0 * ((k + c * b * r1) / z)
+    out: Floats = np.where(c <= 0.0, m0, np.where(c >= 1.0, a * r1, mean))
+    return out
+
+
 def declined_ab(a: ArrayLike, b: ArrayLike, c: ArrayLike) -> tuple[Floats, Floats]:
     """Return (a, b) after a declined ask at context factor c in [0, 1] (moment-matched).
 

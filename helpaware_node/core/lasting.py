@@ -113,6 +113,12 @@ def lasting_cost(rate_per_s: ArrayLike, alpha: ArrayLike, beta: ArrayLike, gamma
     Expected discounted loss, in robot-seconds, that one more ask now causes at the person's later
     requests within the horizon (module doc). Vectorised over candidates.
     """
+    # nobody live (no later requests, or no advantage to lose): zeros, without broadcasting
+    # five arrays first (the decision's usual case when the robot may not ask)
+    rate = np.asarray(rate_per_s, dtype=float)
+    if horizon_s <= 0.0 or not rate.size or not rate.max() > 0.0 or not (
+            (rate > 0.0) & (np.asarray(alpha, dtype=float) > np.asarray(beta, dtype=float))).any():
+        return np.zeros(np.broadcast(rate, alpha, beta, gamma, load).shape)
     rate, alpha, beta, gamma, load = (np.asarray(v, dtype=float) for v in np.broadcast_arrays(
         rate_per_s, alpha, beta, gamma, load))
     out = np.zeros(rate.shape)

@@ -22,7 +22,7 @@ from typing import Any, Callable, Optional, Sequence, Union
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .belief import Belief, declined_moments
+from .belief import Belief, declined_mean_from
 from .context import context_factor
 from .lasting import lasting_cost
 from .model import CoreInputError, DecisionConfig, SiteModel, check_range, params_hash
@@ -100,12 +100,24 @@ def candidate_from_record(person_id: str, record: PersonRecord, now_s: float, mo
                           distance_m: float, observed_at_s: float,
                           busyness: Optional[float] = None, activity: str = "",
                           opted_out: bool = False) -> Candidate:
-    """Return the one way node, simulator and replay turn a remembered person into a candidate."""
-    return Candidate(person_id=person_id, distance_m=distance_m, observed_at_s=observed_at_s,
-                     belief=belief_at(record, now_s, model), busyness=busyness,
-                     activity=activity, ask_times_s=record.ask_times_s,
-                     candidate_count=record.candidate_count, first_seen_s=record.first_seen_s,
-                     opted_out=opted_out)
+    """Return the one way node, simulator and replay turn a remembered person into a candidate.
+
+    Built as the constructor builds it, with the same check (__post_init__), but its fields
+    set in one step: a frozen dataclass's __init__ sets each through object.__setattr__,
+    and this runs for every person in view at every need (test_decision_speedups.py checks
+    that both give equal candidates and the same refusals).
+    """
+    cand = _new_object(Candidate)
+    cand.__dict__.update(person_id=person_id, distance_m=distance_m,
+                         observed_at_s=observed_at_s, belief=belief_at(record, now_s, model),
+                         busyness=busyness, activity=activity, ask_times_s=record.ask_times_s,
+                         candidate_count=record.candidate_count,
+                         first_seen_s=record.first_seen_s, opted_out=opted_out)
+    cand.__post_init__()
+    return cand
+
+
+_new_object = object.__new__
 
 
 @dataclass(frozen=True)
@@ -180,27 +192,40 @@ class Decision:
 _EXCLUSION_TEXT = {e: e.value for e in Exclusion}
 
 
-def _limits(cand: Candidate, busyness: float, now_s: float, config: DecisionConfig,
-            robot_capped: bool) -> Optional[Exclusion]:
-    if cand.opted_out:
-        return Exclusion.OPTED_OUT
-    if cand.activity and cand.activity in config.protected_activities:
-        return Exclusion.PROTECTED_ACTIVITY
-    if now_s - cand.observed_at_s > config.max_observation_age_s:
-        return Exclusion.STALE_OBSERVATION
-    if cand.distance_m > config.max_distance_m:
-        return Exclusion.TOO_FAR
-    if busyness >= config.busyness_limit:
-        return Exclusion.TOO_BUSY
-    # the interval against every remembered ask, not only the last day's (an ask stamped
-    # after now_s, from a clock that jumped back, counts as just made)
-    if any(now_s - t < config.min_reask_interval_s for t in cand.ask_times_s):
-        return Exclusion.REASK_INTERVAL
-    if sum(1 for t in cand.ask_times_s if now_s - t < DAY_S) >= config.max_asks_per_person_per_day:
-        return Exclusion.PERSON_DAILY_CAP
-    if robot_capped:
-        return Exclusion.ROBOT_HOURLY_CAP
-    return None
+def _limits(cands: Sequence[Candidate], busyness: Sequence[float], now_s: float,
+            config: DecisionConfig, robot_capped: bool) -> list[Optional[Exclusion]]:
+    """Return the first hard limit each candidate meets (None: eligible), in Exclusion order.
+
+    One loop with the limits read once, not a call per candidate (the decision's hot path).
+    """
+    protected = config.protected_activities
+    max_age_s, max_distance_m = config.max_observation_age_s, config.max_distance_m
+    busy_limit, reask_s = config.busyness_limit, config.min_reask_interval_s
+    daily_cap = config.max_asks_per_person_per_day
+    out: list[Optional[Exclusion]] = []
+    for cand, x in zip(cands, busyness):
+        times = cand.ask_times_s
+        if cand.opted_out:
+            out.append(Exclusion.OPTED_OUT)
+        elif cand.activity and cand.activity in protected:
+            out.append(Exclusion.PROTECTED_ACTIVITY)
+        elif now_s - cand.observed_at_s > max_age_s:
+            out.append(Exclusion.STALE_OBSERVATION)
+        elif cand.distance_m > max_distance_m:
+            out.append(Exclusion.TOO_FAR)
+        elif x >= busy_limit:
+            out.append(Exclusion.TOO_BUSY)
+        # the interval against every remembered ask, not only the last day's (an ask stamped
+        # after now_s, from a clock that jumped back, counts as just made)
+        elif times and any(now_s - t < reask_s for t in times):
+            out.append(Exclusion.REASK_INTERVAL)
+        elif (sum(1 for t in times if now_s - t < DAY_S) if times else 0) >= daily_cap:
+            out.append(Exclusion.PERSON_DAILY_CAP)
+        elif robot_capped:
+            out.append(Exclusion.ROBOT_HOURLY_CAP)
+        else:
+            out.append(None)
+    return out
 
 
 Floats = NDArray[np.float64]
@@ -219,11 +244,17 @@ def typical_terms(mean: ArrayLike, model: SiteModel, config: DecisionConfig,
 
     alpha e^(-k_load L) - beta - gamma L, at typical busyness (DESIGN.md section 4).
     """
+    gain, beta, gamma = _typical_constants(model, config, help_time_s)
+    return gain * np.asarray(mean, dtype=float), beta, gamma
+
+
+def _typical_constants(model: SiteModel, config: DecisionConfig,
+                       help_time_s: float) -> tuple[float, float, float]:
+    """(alpha per unit of mean, beta, gamma) of `typical_terms`."""
     cbar = math.exp(-model.k_busy * config.typical_busyness)
     ibar = config.interruption_weight_s * (1.0 + config.busy_cost * config.typical_busyness)
     gain = cbar * (config.typical_continue_cost_s - help_time_s + config.ask_time_s)
-    return (gain * np.asarray(mean, dtype=float), config.ask_time_s + ibar,
-            config.interruption_weight_s * config.repeat_cost)
+    return gain, config.ask_time_s + ibar, config.interruption_weight_s * config.repeat_cost
 
 
 def typical_gain(mean: ArrayLike, model: SiteModel, config: DecisionConfig,
@@ -238,13 +269,23 @@ def information_value(a: ArrayLike, b: ArrayLike, c: Floats, model: SiteModel,
     """VOI = p U(m_helped) + (1 - p) U(m_declined) - U(m) with the updates the answer causes."""
     a = np.asarray(a, dtype=float)
     b = np.asarray(b, dtype=float)
-    m = a / (a + b)
-    p = c * m
-    m_helped = (a + 1.0) / (a + b + 1.0)
-    m_declined, _ = declined_moments(a, b, c)
+    s = a + b
+    m = a / s
+    return _information_value(a, b, np.asarray(c, dtype=float), s, m, c * m, model, config,
+                              help_time_s)
+
+
+def _information_value(a: Floats, b: Floats, c: Floats, s: Floats, m: Floats, p: Floats,
+                       model: SiteModel, config: DecisionConfig, help_time_s: float) -> Floats:
+    """Return `information_value` from parts evaluate has: s = a + b, m = a / s, p = c m."""
+    s1 = s + 1.0
+    m_helped = (a + 1.0) / s1
+    m_declined = declined_mean_from(a, b, c, s, m, s1)
+    # typical_gain of the three means, its constants worked out once (the same arithmetic)
+    gain, beta, _ = _typical_constants(model, config, help_time_s)
 
     def u(x: Floats) -> Floats:
-        return typical_gain(x, model, config, help_time_s)
+        return np.maximum(0.0, gain * x - beta)
 
     voi: Floats = p * u(m_helped) + (1.0 - p) * u(m_declined) - u(m)
     # U is convex and the mean a martingale, so VOI >= 0; clip only rounding noise
@@ -319,20 +360,31 @@ def evaluate(need: HelpNeed, candidates: Sequence[Candidate], now_s: float,
     a = np.array([c.belief.a for c in cands], dtype=float)
     b = np.array([c.belief.b for c in cands], dtype=float)
     x = np.array(x_list, dtype=float)
-    load = np.array([sum(2.0 ** (-max(now_s - t, 0.0) / h) for t in c.ask_times_s)
-                     if c.ask_times_s else 0.0 for c in cands], dtype=float)
+    load_list = [sum(2.0 ** (-max(now_s - t, 0.0) / h) for t in c.ask_times_s)
+                 if c.ask_times_s else 0.0 for c in cands]
+    load = np.array(load_list, dtype=float)
     counts = np.array([c.candidate_count for c in cands], dtype=float)
     first = np.array([now_s if c.first_seen_s is None else c.first_seen_s for c in cands],
                      dtype=float)
-    exclusions = [_limits(c, xi, now_s, config, robot_capped) for c, xi in zip(cands, x_list)]
+    exclusions = _limits(cands, x_list, now_s, config, robot_capped)
 
-    mean = a / (a + b) if n else np.empty(0)
-    c = np.asarray(context_factor(x, load, model.k_busy, model.k_load), dtype=float).reshape(n)
+    s = a + b
+    mean = a / s if n else np.empty(0)
+    total_load = sum(load_list)
+    if total_load == total_load:
+        # every busyness passed Candidate's check, and each load is a sum of 2^-age terms:
+        # in range unless an ask time is NaN (NaN propagates into the sum), so c is
+        # context_factor's arithmetic without its checks
+        c = np.exp(-(model.k_busy * x + model.k_load * load))
+    else:   # context_factor names the bad value
+        c = np.asarray(context_factor(x, load, model.k_busy, model.k_load),
+                       dtype=float).reshape(n)
     p = c * mean
     interruption = config.interruption_weight_s * (1.0 + config.busy_cost * x
                                                    + config.repeat_cost * load)
     advantage = ask_advantage(p, continue_cost, help_time, config.ask_time_s, interruption)
-    voi = information_value(a, b, c, model, config, help_time) if n else np.empty(0)
+    voi = (_information_value(a, b, c, s, mean, p, model, config, help_time) if n
+           else np.empty(0))
     rate = future_ask_rate_per_s(counts, first, now_s, config)
     fut = rate * discounted_horizon_s(config)
     alpha, beta, gamma = typical_terms(mean, model, config, help_time)

@@ -100,6 +100,15 @@ class PersonMemory:
     def note_candidate(self, key: str, now_s: float) -> None:
         self.records[key] = note_candidate(self.record_for(key), now_s)
 
+    def note_candidates(self, keys: Iterable[str], now_s: float) -> None:
+        """note_candidate for each key; held records (the usual case at a need) read directly."""
+        records, stale = self.records, self._stale
+        for key in keys:
+            rec = records.get(key)
+            if rec is None or key in stale:
+                rec = self.record_for(key)
+            records[key] = note_candidate(rec, now_s)
+
     def saw(self, key: str, now_s: float) -> None:
         self.last_seen_s[key] = now_s
 

@@ -29,7 +29,7 @@ from ..core.policy import HOUR_S, Candidate, Chooser, Evaluation, choose_lookahe
 from ..core.preview import quoted
 from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
 from ..store.ids import refused_by_store
-from ..wire import MAX_DOCUMENT_BYTES, candidate_bytes_bound
+from ..wire import MAX_DOCUMENT_BYTES, candidate_bytes_bound, candidates_bytes_bound_quick
 from .memory import PersonMemory
 from .ports import DirectWrites, OutcomeWriter, SessionStore, StoreStatus
 from .state import (DECISION_OTHER_BYTES, IN_VIEW_EXTRA_S, MAX_GOAL_STATUSES,
@@ -394,20 +394,22 @@ class HelpSession:
         model, config = self.model, self.config
         horizon = config.max_observation_age_s + IN_VIEW_EXTRA_S
         cands, keys, read = [], [], []
+        record_for, is_opted_out = self.memory.record_for, self.store.is_opted_out
         for pid, s in self.seen.items():
             if now_s - s.observed_at_s > horizon:
                 continue
+            key, person = s.key, s.person
             try:
-                rec = self.memory.record_for(s.key)
-                opted_out = self.store.is_opted_out(s.key)
-                read.append(s.key)
+                rec = record_for(key)
+                opted_out = is_opted_out(key)
+                read.append(key)
             except Exception as exc:  # noqa: BLE001 - a store that cannot be read: nobody asked
                 step.notes.append(self.status.failed("read", exc))
                 store_failed, rec, opted_out = True, PersonRecord.new(model), True
             cands.append(candidate_from_record(
-                pid, rec, now_s, model, s.person.distance_m, s.observed_at_s,
-                busyness=s.person.busyness, activity=s.person.activity, opted_out=opted_out))
-            keys.append(s.key)
+                pid, rec, now_s, model, person.distance_m, s.observed_at_s,
+                busyness=person.busyness, activity=person.activity, opted_out=opted_out))
+            keys.append(key)
         kept = self._within_one_document(cands)
         if kept is not None:
             cands, keys = [cands[i] for i in kept], [keys[i] for i in kept]
@@ -433,10 +435,10 @@ class HelpSession:
             if ask is None:       # not stored, so not made: nobody is asked
                 decision = conclude(decision.evaluation, None, STORE_UNAVAILABLE)
         self.decisions += 1
-        for key in read:      # a candidate once per need, however often it is decided
-            if key not in state.candidates:
-                state.candidates.add(key)
-                self.memory.note_candidate(key, now_s)
+        # a candidate once per need, however often it is decided
+        fresh = [k for k in dict.fromkeys(read) if k not in state.candidates]
+        state.candidates.update(fresh)
+        self.memory.note_candidates(fresh, now_s)
         if ask is not None:
             i = decision.person_index
             assert i is not None and decision.person_id is not None
@@ -460,8 +462,7 @@ class HelpSession:
         is valid by its own schema and can be replayed.
         """
         budget = MAX_DOCUMENT_BYTES - DECISION_OTHER_BYTES
-        if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(
-                candidate_bytes_bound(c, quick=True) for c in cands) <= budget:
+        if len(cands) <= MAX_PEOPLE_IN_VIEW and candidates_bytes_bound_quick(cands) <= budget:
             return None                      # the usual case: lengths alone show it fits
         sizes = [candidate_bytes_bound(c) for c in cands]
         if len(cands) <= MAX_PEOPLE_IN_VIEW and sum(sizes) <= budget:
