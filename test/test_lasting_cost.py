@@ -79,6 +79,21 @@ def test_closed_form_equals_the_integral(alpha, beta, gamma, k, f, log_h, log_ta
     assert got >= 0.0
 
 
+@pytest.mark.filterwarnings("ignore::scipy.integrate.IntegrationWarning")
+@pytest.mark.parametrize("k", [5e-324, 1e-310, 1e-200, 1e-12, 1e-6])
+@pytest.mark.parametrize("beta, f", [(0.0, 0.0), (0.5, 1.0), (1.9, 3.0)])
+def test_a_load_effect_near_zero_gives_the_integral(k, beta, f):
+    """k_load down to the smallest subnormal: the root is that of k = 0, not digits lost.
+
+    Found by the hypothesis test above (k_load 5e-324, alpha 2, gamma 3 gave 0.0207 against
+    0.0180 by quadrature): Lambert's W of a subnormal argument divided by a subnormal k.
+    """
+    rate, alpha, gamma, h, tau, horizon = 1e-4, 2.0, 3.0, 1000.0, 3600.0, 28800.0
+    got = float(lasting_cost(rate, alpha, beta, gamma, k, f, h, tau, horizon))
+    want = by_quadrature(rate, alpha, beta, gamma, k, f, h, tau, horizon)
+    assert got == pytest.approx(want, rel=1e-7, abs=1e-8 * rate * (alpha + 1.0) * tau)
+
+
 @pytest.mark.parametrize("f", [0.0, 0.4, 2.5])
 @pytest.mark.parametrize("horizon", [600.0, 28800.0, 3e5])
 def test_linear_drop_exact_form(f, horizon):

@@ -73,7 +73,8 @@ def _root(alpha: Floats, beta: Floats, gamma: Floats, k: float) -> Floats:
     z is Lambert's W0 of the right side (scipy.special.lambertw) and L* = (z - s) / k. That
     subtraction loses about 1e-16 s of L*, so it is used for s <= 50 only; beyond double
     range (xi = log of the right side >= 700) z solves z + ln z = xi by Newton's method from
-    xi - ln xi. For s > 50 (gamma L small beside beta) Newton's method on
+    xi - ln xi; below xi = -25 (k near 0) W's series x - x^2 + 3/2 x^3 divided by k term by
+    term. For s > 50 (gamma L small beside beta) Newton's method on
     g(L) = alpha e^(-k L) - beta - gamma L itself, from ln(alpha / beta) / k: g is convex and
     decreasing, so after the first step the iterates rise to the root. k = 0 and gamma = 0
     have their own closed forms.
@@ -84,10 +85,17 @@ def _root(alpha: Floats, beta: Floats, gamma: Floats, k: float) -> Floats:
     with np.errstate(divide="ignore", over="ignore"):    # tiny gamma: shift = inf, flat path
         shift = np.where(gamma > 0.0, k * beta / np.where(gamma > 0.0, gamma, 1.0), np.inf)
         xi = math.log(k) + np.log(alpha) - np.log(np.where(gamma > 0.0, gamma, 1.0)) + shift
-    lambert = (shift <= 50.0) & (xi < 700.0)
+    # a tiny argument x = e^xi (k near zero): W(x) / k by its series, x / k = (alpha / gamma) e^s,
+    # never dividing W of a subnormal x by a subnormal k (that loses all digits)
+    tiny = (shift <= 50.0) & (xi < -25.0)
+    if tiny.any():
+        x = np.exp(xi[tiny])
+        per_k = alpha[tiny] / gamma[tiny] * np.exp(shift[tiny])
+        L[tiny] = per_k * (1.0 - x + 1.5 * x * x) - beta[tiny] / gamma[tiny]
+    lambert = (shift <= 50.0) & (xi < 700.0) & ~tiny
     if lambert.any():
         L[lambert] = (special.lambertw(np.exp(xi[lambert])).real - shift[lambert]) / k
-    huge = (shift <= 50.0) & ~lambert
+    huge = (shift <= 50.0) & (xi >= 700.0)
     if huge.any():
         big = xi[huge]
         z = big - np.log(big)
