@@ -35,6 +35,7 @@ from typing import Any, Iterable, Iterator, Optional, Sequence
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
+from ..core.person import fold_next
 from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
 from .ids import PERSON_KEY_RE, check_ask, check_event, check_robot_id  # noqa: F401 (re-exported)
 from .keys import SiteKeyError, SiteKeys, key_fingerprint
@@ -43,6 +44,9 @@ from .schema import StoreVersionError, file_version, migrate
 DAY_S = 86400.0
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
 ASK_COLUMNS = "event_id, robot_id, person_key, time_s, request_kind, request_id"
+INSERT_EVENT = f"INSERT OR IGNORE INTO events ({EVENT_COLUMNS}) VALUES (?,?,?,?,?,?,?)"
+UPSERT_SEQUENCE = ("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
+                   "SET next_seq = max(next_seq, excluded.next_seq)")
 SQLITE_HEADER = b"SQLite format 3\x00"
 SCAN_CHUNK_BYTES = 1 << 20     # forget's search of the file, per read
 
@@ -129,8 +133,7 @@ class SqliteStore:
         self.path = Path(path)
         self.robot_id = robot_id
         self._given_model = model
-        self.model = model or SiteModel()
-        self._model_hash = model_hash(self.model)
+        self._set_model(model or SiteModel())
         # the site key file's keys: person ids are hashed with person_id_key; the fleet link
         # derives its signing keys from the rest (signing.py)
         self.site_keys = site_key if isinstance(site_key, SiteKeys) else SiteKeys.single(site_key)
@@ -222,8 +225,12 @@ class SqliteStore:
             conn.execute("INSERT OR REPLACE INTO meta VALUES ('site_model', ?)",
                          (json.dumps(to_plain(self.model), sort_keys=True),))
         elif "site_model" in rows:
-            self.model = from_plain(SiteModel, json.loads(rows["site_model"]))
-            self._model_hash = model_hash(self.model)
+            self._set_model(from_plain(SiteModel, json.loads(rows["site_model"])))
+
+    def _set_model(self, model: SiteModel) -> None:
+        self.model = model
+        self._model_hash = model_hash(model)
+        self._prior = Belief.prior(model)      # built once: append folds one outcome in
 
     def _load_next_seq(self) -> int:
         row = self._conn.execute("SELECT next_seq FROM sequences WHERE robot_id = ?",
@@ -278,25 +285,25 @@ class SqliteStore:
         key = event.person_key
         if key in self._opted or key in self._forgetting:
             return False
-        snap = c.execute("SELECT a, b, last_time_s, last_event_id, event_count, model_hash, "
+        snap = c.execute("SELECT a, b, last_time_s, last_event_id, row_id, model_hash, "
                          "base_time_s, base_event_id FROM snapshot WHERE person_key = ?",
                          (key,)).fetchone()
         order = (float(event.time_s), event.event_id)
         if snap is not None and snap[6] is not None and order <= (snap[6], snap[7]):
             return False        # older than the compacted base: cannot be folded in order
-        cur = c.execute(f"INSERT OR IGNORE INTO events ({EVENT_COLUMNS}) VALUES (?,?,?,?,?,?,?)",
-                        row)
-        if cur.rowcount == 0:
+        if c.execute(INSERT_EVENT, row).rowcount == 0:
             return False
         if refold_later is not None and key in refold_later:
             pass                # refolded once when the batch ends
         elif (snap is not None and snap[5] == self._model_hash and snap[2] is not None
                 and order > (snap[2], snap[3])):
-            belief, last = fold_events([outcome or event.to_outcome()], self.model,
-                                       Belief(snap[0], snap[1]), snap[2])
+            # the next step of the fold (core.person.fold_next, as fold_events takes it); the
+            # row found again by its id, the key index walked once per append
+            belief, last = fold_next(Belief(snap[0], snap[1]), snap[2],
+                                     outcome or event.to_outcome(), self.model, self._prior)
             c.execute("UPDATE snapshot SET a = ?, b = ?, last_time_s = ?, last_event_id = ?, "
-                      "event_count = event_count + 1 WHERE person_key = ?",
-                      (belief.a, belief.b, last, event.event_id, key))
+                      "event_count = event_count + 1 WHERE row_id = ?",
+                      (belief.a, belief.b, last, event.event_id, snap[4]))
         elif snap is None:
             belief, last = fold_events([outcome or event.to_outcome()], self.model)
             c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
@@ -723,10 +730,10 @@ class SqliteStore:
     def _note_own_sequence(self, c: sqlite3.Connection, event_id: str) -> None:
         robot, _, seq = event_id.rpartition("/")
         if robot == self.robot_id and seq.isdigit():
-            c.execute("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
-                      "SET next_seq = max(next_seq, excluded.next_seq)",
-                      (self.robot_id, int(seq) + 1))
-            self._next_seq = max(self._next_seq, int(seq) + 1)
+            after = int(seq) + 1
+            c.execute(UPSERT_SEQUENCE, (robot, after))
+            if after > self._next_seq:
+                self._next_seq = after
 
     def asks(self, *, person_key: str | None = None, robot_id: str | None = None,
              request_id: str | None = None, since_s: float | None = None,
@@ -807,8 +814,7 @@ class SqliteStore:
         with self._lock:
             if model_hash(model) == self._model_hash:
                 return
-            self.model = model
-            self._model_hash = model_hash(model)
+            self._set_model(model)
             self._conn.execute("INSERT OR REPLACE INTO meta VALUES ('site_model', ?)",
                                (json.dumps(to_plain(model), sort_keys=True),))
 
