@@ -49,6 +49,7 @@ UPSERT_SEQUENCE = ("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO
                    "SET next_seq = max(next_seq, excluded.next_seq)")
 SQLITE_HEADER = b"SQLite format 3\x00"
 SCAN_CHUNK_BYTES = 1 << 20     # forget's search of the file, per read
+ASKS_PER_COMMIT = 500          # a worker's compaction deletes old asks this many at a time
 
 
 def set_pragmas(conn: sqlite3.Connection) -> None:
@@ -141,6 +142,10 @@ class SqliteStore:
         self._site_key = site_key
         self._fingerprint = key_fingerprint(site_key)
         self._lock = threading.RLock()
+        # held by every write transaction of this process's connections (the node's, the
+        # worker's): an append waiting for a worker's short transaction wakes when it ends,
+        # instead of SQLite's busy handler sleeping 1, 2, 5, 10 ... ms between tries
+        self._write_gate = threading.Lock()
         self.health = StoreHealth("OK", f"store {self.path}")
         self.moved_aside: Path | None = None
         self.path.parent.mkdir(parents=True, exist_ok=True, mode=0o700)
@@ -258,7 +263,7 @@ class SqliteStore:
         row = event_to_row(event)
         if event.person_key in self._opted or event.person_key in self._forgetting:
             return False        # in memory: no SQL for it (the table says the same)
-        with self._lock:
+        with self._lock, self._write_gate:
             c = self._conn
             c.execute("BEGIN IMMEDIATE")
             try:
@@ -347,7 +352,7 @@ class SqliteStore:
     @contextlib.contextmanager
     def _batch(self) -> Iterator[sqlite3.Connection]:
         """One durable transaction for a batch: all of it, or nothing and the sequence back."""
-        with self._lock:
+        with self._lock, self._write_gate:
             c = self._conn
             next_seq = self._next_seq
             c.execute("BEGIN IMMEDIATE")
@@ -424,9 +429,10 @@ class SqliteStore:
             if snap is None:
                 return Belief.prior(model), None
             if snap[3] != self._model_hash:     # cached under an older model: refresh
-                c.execute("BEGIN IMMEDIATE")
-                self._refold(c, key)
-                c.execute("COMMIT")
+                with self._write_gate:
+                    c.execute("BEGIN IMMEDIATE")
+                    self._refold(c, key)
+                    c.execute("COMMIT")
                 snap = c.execute("SELECT a, b, last_time_s FROM snapshot WHERE person_key = ?",
                                  (key,)).fetchone()
             return Belief(snap[0], snap[1]), snap[2]
@@ -465,8 +471,9 @@ class SqliteStore:
         self._opted.add(key)
 
     def opt_out_rows(self, c: sqlite3.Connection, key: str) -> None:
-        c.execute("INSERT OR IGNORE INTO opt_out (person_key, since_s) VALUES (?, ?)",
-                  (key, time.time()))
+        with self._write_gate:
+            c.execute("INSERT OR IGNORE INTO opt_out (person_key, since_s) VALUES (?, ?)",
+                      (key, time.time()))
 
     def opted_out(self) -> list[str]:
         return sorted(self._opted)
@@ -505,20 +512,21 @@ class SqliteStore:
         interior index page, so a find rebuilds the indexes, and one still found after that
         rewrites the whole file (VACUUM).  A key never stored costs one small transaction.
         """
-        c.execute("BEGIN IMMEDIATE")
-        try:
-            row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
-                            (key,)).fetchone()
-            n = row[0] if row else 0       # compacted events count as removed too
-            n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
-            rows = n + sum(c.execute(f"DELETE FROM {table} WHERE person_key = ?",
-                                     (key,)).rowcount
-                           for table in ("asks", "snapshot", "opt_out"))
-            c.execute("COMMIT")
-        except BaseException:
-            if c.in_transaction:
-                c.execute("ROLLBACK")
-            raise
+        with self._write_gate:
+            c.execute("BEGIN IMMEDIATE")
+            try:
+                row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
+                                (key,)).fetchone()
+                n = row[0] if row else 0       # compacted events count as removed too
+                n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
+                rows = n + sum(c.execute(f"DELETE FROM {table} WHERE person_key = ?",
+                                         (key,)).rowcount
+                               for table in ("asks", "snapshot", "opt_out"))
+                c.execute("COMMIT")
+            except BaseException:
+                if c.in_transaction:
+                    c.execute("ROLLBACK")
+                raise
         if rows:
             self.erase_copies(c, key)
         return n
@@ -577,8 +585,16 @@ class SqliteStore:
         return False
 
     def checkpoint(self, c: sqlite3.Connection | None = None) -> None:
+        """Copy the WAL into the file and empty it (no erased row lingers in the log).
+
+        A TRUNCATE checkpoint holds the write lock while it copies and syncs, so the frames go
+        first by a PASSIVE one, which lets appends commit meanwhile; the TRUNCATE then has the
+        few frames written since.
+        """
         c = self._conn if c is None else c
-        busy, _, _ = c.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
+        c.execute("PRAGMA wal_checkpoint(PASSIVE)").fetchone()
+        with self._write_gate:
+            busy, _, _ = c.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
         if busy:
             self.health = StoreHealth("ERROR", f"store {self.path}: WAL checkpoint blocked by "
                                       "another reader; erased rows may remain in the WAL")
@@ -598,11 +614,13 @@ class SqliteStore:
 
     def compact_rows(self, c: sqlite3.Connection, older_than_s: float,
                      now_s: float | None = None, keys_per_commit: int = 0,
-                     pause_s: float = 0.0) -> int:
+                     pause_s: float = 0.0, max_tx_s: float = 0.0) -> int:
         """compact() on connection `c`.
 
-        With `keys_per_commit` > 0 (a worker) one transaction per that many people, so the node's
-        appends wait for one batch at most (each person's base and deletion still commit together).
+        With `keys_per_commit` > 0 (a worker) one transaction per that many people at most, and
+        with `max_tx_s` > 0 one that ends once it has taken that long (the person begun is
+        finished: each person's base and deletion commit together), so the node's appends wait
+        for one short transaction at most; old asks go `ASKS_PER_COMMIT` at a time.
         """
         if older_than_s < 0:
             raise CoreInputError(f"older_than_s: {older_than_s!r} must be >= 0")
@@ -610,23 +628,41 @@ class SqliteStore:
         removed = asks_removed = 0
         keys = [r[0] for r in c.execute(
             "SELECT DISTINCT person_key FROM events WHERE time_s < ?", (cutoff,))]
-        step = keys_per_commit if keys_per_commit > 0 else max(len(keys), 1)
-        for start in range(0, max(len(keys), 1), step):
-            c.execute("BEGIN IMMEDIATE")
-            try:
-                for key in keys[start:start + step]:
-                    if key not in self._forgetting:
-                        removed += self._compact_key(c, key, cutoff)
-                if start + step >= len(keys):
-                    asks_removed = c.execute("DELETE FROM asks WHERE time_s < ?",
-                                             (cutoff,)).rowcount
-                c.execute("COMMIT")
-            except BaseException:
-                if c.in_transaction:
-                    c.execute("ROLLBACK")
-                raise
-            if keys_per_commit > 0:
-                time.sleep(pause_s)     # a worker: room for the node's callbacks and appends
+        worker = keys_per_commit > 0
+        per_commit = keys_per_commit if worker else max(len(keys), 1)
+        at = 0
+        asks_left = True
+        while at < len(keys) or asks_left:
+            with self._write_gate:
+                c.execute("BEGIN IMMEDIATE")
+                try:
+                    t0 = time.perf_counter()
+                    end = min(at + per_commit, len(keys))
+                    while at < end:
+                        key = keys[at]
+                        at += 1
+                        if key not in self._forgetting:
+                            removed += self._compact_key(c, key, cutoff)
+                        if max_tx_s > 0 and time.perf_counter() - t0 >= max_tx_s:
+                            break
+                    if at >= len(keys) and worker:    # then the asks, a batch at a time
+                        n = c.execute("DELETE FROM asks WHERE row_id IN (SELECT row_id FROM "
+                                      "asks WHERE time_s < ? LIMIT ?)",
+                                      (cutoff, ASKS_PER_COMMIT)).rowcount
+                        asks_removed += n
+                        asks_left = n == ASKS_PER_COMMIT
+                    elif at >= len(keys):
+                        asks_removed += c.execute("DELETE FROM asks WHERE time_s < ?",
+                                                  (cutoff,)).rowcount
+                        asks_left = False
+                    c.execute("COMMIT")
+                except BaseException:
+                    if c.in_transaction:
+                        c.execute("ROLLBACK")
+                    raise
+            if worker:      # the batch's frames into the file, the gate open (see below)
+                c.execute("PRAGMA wal_checkpoint(PASSIVE)").fetchone()
+                time.sleep(pause_s)     # room for the node's callbacks and appends
         if removed or asks_removed:
             self.checkpoint(c)
         return removed
@@ -639,6 +675,10 @@ class SqliteStore:
         conn = sqlite3.connect(str(self.path), isolation_level=None, check_same_thread=False,
                                timeout=10.0)
         set_pragmas(conn)
+        # SQLite checkpoints the WAL inside the COMMIT that takes it past 1000 pages: on the
+        # worker that would be inside the write gate, an append waiting for a whole checkpoint.
+        # The worker checkpoints after its commits instead (compact_rows, checkpoint()).
+        conn.execute("PRAGMA wal_autocheckpoint=0")
         return conn
 
     def _compact_key(self, c: sqlite3.Connection, key: str, cutoff: float) -> int:
