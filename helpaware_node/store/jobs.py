@@ -9,6 +9,9 @@ the caller's thread (the node: a guard condition the worker triggers), ends the 
 memory and runs each job's `on_done` there.  A store without a worker connection (the
 MemoryStore) runs each job at once; its `on_done` still comes from poll().
 
+A retention given when the store was opened (SqliteStore retention_days) is queued when the
+jobs are made, so opening a big store never waits for it.
+
 No ROS here: the node wires the wake-up (ros/node.py).
 """
 from __future__ import annotations
@@ -53,6 +56,9 @@ class StoreJobs:
         self._thread: Optional[threading.Thread] = None
         self.failures = 0
         self.completed = 0
+        # a retention given at open (SqliteStore retention_days) runs here, not in the opener
+        if getattr(store, "retention_s", 0.0) > 0 and self.threaded:
+            self.compact(store.retention_s, on_done=lambda job: store.end_retention())
 
     # -- the caller's thread ------------------------------------------------------------
     def forget(self, key: str, on_done: Optional[Callable[[StoreJob], None]] = None) -> StoreJob:

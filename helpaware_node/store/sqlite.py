@@ -25,6 +25,7 @@ import contextlib
 import datetime
 import hashlib
 import json
+import math
 import os
 import sqlite3
 import threading
@@ -165,8 +166,13 @@ class SqliteStore:
         # forgets begun (their rows go on a worker's connection, store/jobs.py): the person
         # is unknown to every read at once
         self._forgetting: set[str] = set()
-        if retention_days > 0:
-            self.compact(retention_days * DAY_S)
+        # retention at open: on a big store a compaction takes seconds, so it is not run here;
+        # a worker takes it (StoreJobs does at once, store/jobs.py), or the caller runs
+        # run_retention(). Until it has run, events_for() and asks() leave out what it deletes
+        # (beliefs are the same either way: the compacted base is the fold of the prefix)
+        self.retention_s = retention_days * DAY_S if retention_days > 0 else 0.0
+        self._retention_cutoff_s: float | None = (
+            time.time() - self.retention_s if self.retention_s > 0 else None)
 
     # -- opening -----------------------------------------------------------------------
     def _open_checked(self, integrity_check: bool) -> sqlite3.Connection:
@@ -406,7 +412,9 @@ class SqliteStore:
         if key in self._forgetting:
             return []
         with self._lock:
-            return self._events(self._conn, key)
+            events = self._events(self._conn, key)
+        cutoff = self._retention_cutoff_s
+        return events if cutoff is None else [e for e in events if e.time_s >= cutoff]
 
     def keys(self) -> list[str]:
         with self._lock:
@@ -599,6 +607,18 @@ class SqliteStore:
             self.health = StoreHealth("ERROR", f"store {self.path}: WAL checkpoint blocked by "
                                       "another reader; erased rows may remain in the WAL")
 
+    def run_retention(self) -> int:
+        """Run the retention given at open, in the caller (no worker); events removed."""
+        if not self.retention_s:
+            return 0
+        n = self.compact(self.retention_s)
+        self.end_retention()
+        return n
+
+    def end_retention(self) -> None:
+        """The retention given at open has run (or failed: reads show the file again)."""
+        self._retention_cutoff_s = None
+
     def compact(self, older_than_s: float, now_s: float | None = None) -> int:
         """Fold events older than `older_than_s` into each person's base and delete them.
 
@@ -789,9 +809,11 @@ class SqliteStore:
             if value is not None:
                 where.append(f"{column} = ?")
                 args.append(value)
-        if since_s is not None:
+        cutoff = self._retention_cutoff_s       # a retention at open not run yet
+        if since_s is not None or cutoff is not None:
             where.append("time_s >= ?")
-            args.append(float(since_s))
+            args.append(max(float(since_s if since_s is not None else -math.inf),
+                            cutoff if cutoff is not None else -math.inf))
         # by request id the planner would walk the robot's index (it sorts by time): say which
         hint = " INDEXED BY asks_by_request" if request_id is not None else ""
         sql = (f"SELECT {ASK_COLUMNS} FROM asks{hint}"
