@@ -186,7 +186,8 @@ def report(n_people, n_events, size_mb, build_s, import_s, open_s, rss_mb, store
         print(f"{f'executor max gap, {name} (ms; < 50)':<52}{gap_s * 1e3:>14.1f}")
         where = "in the callback" if "callback" in name else "on the worker"
         print(f"{f'  its time {where}{extra} (s)':<52}{job_s:>14.3f}")
-        print(f"{f'  longest of its {n_appends} appends meanwhile (ms)':<52}{append_s * 1e3:>14.1f}")
+        label = f"  longest of its {n_appends} appends meanwhile (ms)"
+        print(f"{label:<52}{append_s * 1e3:>14.1f}")
     print()
     print("floor: BEGIN IMMEDIATE; INSERT the event row; UPDATE the person's snapshot row; upsert")
     print("the robot's sequence; COMMIT - by hand with the sqlite3 module, in the store's own "

@@ -28,7 +28,7 @@ _START_LOCK = threading.Lock()     # one worker started at a time (the environme
 
 
 def worker_environment(environ: Mapping[str, str]) -> dict[str, str]:
-    """What the worker's environment adds to `environ`: one BLAS thread, where not set."""
+    """Return what the worker's environment adds to `environ`: one BLAS thread, where not set."""
     return {name: "1" for name in BLAS_THREAD_VARS if not environ.get(name)}
 
 

@@ -616,7 +616,7 @@ class SqliteStore:
         return n
 
     def end_retention(self) -> None:
-        """The retention given at open has run (or failed: reads show the file again)."""
+        """Note that the retention given at open has run (or failed: reads show the file again)."""
         self._retention_cutoff_s = None
 
     def compact(self, older_than_s: float, now_s: float | None = None) -> int:
