@@ -216,3 +216,49 @@ def test_a_reported_job_survives_a_crash(tmp_path, action):
         assert again.is_opted_out(keys[0]) and len(again.events_for(keys[0])) == 10
     assert len(again.events_for(keys[1])) == 10
     again.close()
+
+
+def test_retention_at_open_runs_on_the_worker_and_is_in_force_at_once(tmp_path):
+    """Opening compacts nothing; reads leave out what retention deletes; the worker deletes it."""
+    import time
+    path = tmp_path / "s.sqlite3"
+    now = time.time()
+    store = SqliteStore(path, "r1", KEY)
+    old = fill(store, people=3, events=30, t0=now - 40 * 86400.0)     # 40 days ago
+    fill(store, people=3, events=12, t0=now - 86400.0)                # yesterday
+    before = {k: store.belief(k) for k in old}
+    store.close()
+
+    store = SqliteStore(path, "r1", KEY, retention_days=30.0)
+    try:
+        # the opener did not compact: every event is still in the file ...
+        assert store.counts()["events"] == 42 and store.counts()["compacted_events"] == 0
+        # ... but the reads keep the retention at once, and no belief moves
+        assert all(e.time_s >= now - 30 * 86400.0 for k in old for e in store.events_for(k))
+        assert sum(len(store.events_for(k)) for k in old) == 12
+        assert all(a.time_s >= now - 30 * 86400.0 for a in store.asks())
+        assert {k: store.belief(k) for k in old} == before
+        jobs = StoreJobs(store)                 # takes the retention over at once
+        assert jobs.wait(60.0) and jobs.failures == 0
+        counts = store.counts()
+        assert counts["events"] == 12 and counts["compacted_events"] == 30
+        assert {k: store.belief(k) for k in old} == before
+        assert store._retention_cutoff_s is None
+        jobs.close()
+    finally:
+        store.close()
+
+
+def test_retention_at_open_without_a_worker_runs_when_the_caller_asks(tmp_path):
+    import time
+    path = tmp_path / "s.sqlite3"
+    store = SqliteStore(path, "r1", KEY)
+    fill(store, people=2, events=10, t0=time.time() - 40 * 86400.0)
+    store.close()
+    store = SqliteStore(path, "r1", KEY, retention_days=30.0)
+    try:
+        assert store.counts()["events"] == 10
+        assert store.run_retention() == 10
+        assert store.counts()["events"] == 0 and store.counts()["compacted_events"] == 10
+    finally:
+        store.close()

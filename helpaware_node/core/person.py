@@ -74,15 +74,25 @@ def fold_events(events: Iterable[OutcomeEvent], model: SiteModel,
                 start: Belief | None = None, start_time_s: float | None = None
                 ) -> tuple[Belief, float | None]:
     """Belief after `events` in (time, event id) order, and the time of the last one."""
-    belief = start if start is not None else Belief.prior(model)
     prior = Belief.prior(model)
+    belief = start if start is not None else prior
     last = start_time_s
     for event in sorted(events, key=event_order):
-        if last is not None:
-            belief = forget(belief, prior, event.time_s - last, model.evidence_half_life_s)
-        belief = apply_event(belief, event, model)
-        last = event.time_s if last is None else max(last, event.time_s)
+        belief, last = fold_next(belief, last, event, model, prior)
     return belief, last
+
+
+def fold_next(belief: Belief, last_s: float | None, event: OutcomeEvent, model: SiteModel,
+              prior: Belief) -> tuple[Belief, float | None]:
+    """One step of fold_events: `belief` (last event at `last_s`) extended by `event`.
+
+    `event` comes after every event folded in; `prior` is Belief.prior(model), passed in so a
+    store extending one fold per outcome builds it once.
+    """
+    if last_s is not None:
+        belief = forget(belief, prior, event.time_s - last_s, model.evidence_half_life_s)
+    belief = apply_event(belief, event, model)
+    return belief, event.time_s if last_s is None else max(last_s, event.time_s)
 
 
 @dataclass(frozen=True)

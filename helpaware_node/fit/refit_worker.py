@@ -7,16 +7,52 @@ shares nothing. The process is started once with the "spawn" method (a fork of a
 that runs middleware threads is unsafe), kept for the node's life, and given one job at a
 time over a pipe: the store's reader (a picklable path, or copied events) and the job. The
 caller polls for the result without blocking. The worker runs at a lower CPU priority (nice
-10), so on a busy machine the node's executor gets the CPU first. No ROS here.
+10), so on a busy machine the node's executor gets the CPU first, with one BLAS thread
+(OPENBLAS_NUM_THREADS, OMP_NUM_THREADS, MKL_NUM_THREADS set to 1 in its environment unless the
+user set them): L-BFGS-B's small products run about twice as slow threaded on two cores, and
+a threaded refit would take the executor's core too. No ROS here.
 """
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
 import os
-from typing import Any, Optional
+import threading
+from typing import Any, Iterator, Mapping, Optional
 
 
 NICENESS = 10      # a refit is background work: the node's own threads get the CPU first
+# read by OpenBLAS, OpenMP and MKL when numpy loads them: in the spawned worker, before then
+BLAS_THREAD_VARS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")
+_START_LOCK = threading.Lock()     # one worker started at a time (the environment is shared)
+
+
+def worker_environment(environ: Mapping[str, str]) -> dict[str, str]:
+    """Return what the worker's environment adds to `environ`: one BLAS thread, where not set."""
+    return {name: "1" for name in BLAS_THREAD_VARS if not environ.get(name)}
+
+
+@contextlib.contextmanager
+def _started_with(extra: Mapping[str, str]) -> Iterator[None]:
+    """`extra` in os.environ while a child is started ("spawn" copies the environment then).
+
+    The node's own BLAS was loaded long before, so its thread count does not change.
+    """
+    with _START_LOCK:
+        for name, value in extra.items():
+            os.environ[name] = value
+        try:
+            yield
+        finally:
+            for name in extra:
+                os.environ.pop(name, None)
+
+
+class BlasProbe:
+    """A job that reports the BLAS thread settings the worker runs with (tests)."""
+
+    def run(self, outcomes, asks) -> dict[str, Optional[str]]:
+        return {name: os.environ.get(name) for name in BLAS_THREAD_VARS}
 
 
 def serve(conn) -> None:
@@ -52,7 +88,8 @@ class RefitWorker:
         self._conn, child = ctx.Pipe()
         self._proc = ctx.Process(target=serve, args=(child,), daemon=True,
                                  name="helpaware_refit")
-        self._proc.start()
+        with _started_with(worker_environment(os.environ)):
+            self._proc.start()
         child.close()
         self.busy = False
 

@@ -9,6 +9,7 @@ naming the field and what is allowed, with a bounded preview of the value.
 """
 from __future__ import annotations
 
+import functools
 import re
 import sqlite3
 from typing import TYPE_CHECKING, Any
@@ -48,6 +49,11 @@ def robot_id_problem(value: Any) -> str:
     return ""
 
 
+# an outcome's event id is checked at every append: a fleet has a few robot ids, so each is
+# checked once (text only: the cache never holds other types)
+_robot_id_problem_of_text = functools.lru_cache(maxsize=1024)(robot_id_problem)
+
+
 def check_robot_id(value: Any, name: str = "robot_id") -> str:
     """`value` if it is a robot id, else CoreInputError naming `name` and the rule."""
     problem = robot_id_problem(value)
@@ -63,7 +69,7 @@ def check_event_id(value: Any, name: str = "event_id") -> tuple[str, int]:
         raise CoreInputError(f"{name}: {quoted(value)} is not '<robot_id>/<sequence>' (text "
                              f"of at most {MAX_EVENT_ID_CHARS} characters)")
     robot, _, seq = value.rpartition("/")
-    problem = robot_id_problem(robot)
+    problem = _robot_id_problem_of_text(robot)
     if problem:
         raise CoreInputError(f"{name}: {quoted(value)}: the robot id {problem} (a robot id "
                              f"is {ROBOT_ID_RULE})")

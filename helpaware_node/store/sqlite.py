@@ -25,6 +25,7 @@ import contextlib
 import datetime
 import hashlib
 import json
+import math
 import os
 import sqlite3
 import threading
@@ -35,6 +36,7 @@ from typing import Any, Iterable, Iterator, Optional, Sequence
 
 from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
 from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
+from ..core.person import fold_next
 from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
 from .ids import PERSON_KEY_RE, check_ask, check_event, check_robot_id  # noqa: F401 (re-exported)
 from .keys import SiteKeyError, SiteKeys, key_fingerprint
@@ -43,8 +45,12 @@ from .schema import StoreVersionError, file_version, migrate
 DAY_S = 86400.0
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"
 ASK_COLUMNS = "event_id, robot_id, person_key, time_s, request_kind, request_id"
+INSERT_EVENT = f"INSERT OR IGNORE INTO events ({EVENT_COLUMNS}) VALUES (?,?,?,?,?,?,?)"
+UPSERT_SEQUENCE = ("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
+                   "SET next_seq = max(next_seq, excluded.next_seq)")
 SQLITE_HEADER = b"SQLite format 3\x00"
 SCAN_CHUNK_BYTES = 1 << 20     # forget's search of the file, per read
+ASKS_PER_COMMIT = 500          # a worker's compaction deletes old asks this many at a time
 
 
 def set_pragmas(conn: sqlite3.Connection) -> None:
@@ -129,8 +135,7 @@ class SqliteStore:
         self.path = Path(path)
         self.robot_id = robot_id
         self._given_model = model
-        self.model = model or SiteModel()
-        self._model_hash = model_hash(self.model)
+        self._set_model(model or SiteModel())
         # the site key file's keys: person ids are hashed with person_id_key; the fleet link
         # derives its signing keys from the rest (signing.py)
         self.site_keys = site_key if isinstance(site_key, SiteKeys) else SiteKeys.single(site_key)
@@ -138,6 +143,10 @@ class SqliteStore:
         self._site_key = site_key
         self._fingerprint = key_fingerprint(site_key)
         self._lock = threading.RLock()
+        # held by every write transaction of this process's connections (the node's, the
+        # worker's): an append waiting for a worker's short transaction wakes when it ends,
+        # instead of SQLite's busy handler sleeping 1, 2, 5, 10 ... ms between tries
+        self._write_gate = threading.Lock()
         self.health = StoreHealth("OK", f"store {self.path}")
         self.moved_aside: Path | None = None
         self.path.parent.mkdir(parents=True, exist_ok=True, mode=0o700)
@@ -157,8 +166,13 @@ class SqliteStore:
         # forgets begun (their rows go on a worker's connection, store/jobs.py): the person
         # is unknown to every read at once
         self._forgetting: set[str] = set()
-        if retention_days > 0:
-            self.compact(retention_days * DAY_S)
+        # retention at open: on a big store a compaction takes seconds, so it is not run here;
+        # a worker takes it (StoreJobs does at once, store/jobs.py), or the caller runs
+        # run_retention(). Until it has run, events_for() and asks() leave out what it deletes
+        # (beliefs are the same either way: the compacted base is the fold of the prefix)
+        self.retention_s = retention_days * DAY_S if retention_days > 0 else 0.0
+        self._retention_cutoff_s: float | None = (
+            time.time() - self.retention_s if self.retention_s > 0 else None)
 
     # -- opening -----------------------------------------------------------------------
     def _open_checked(self, integrity_check: bool) -> sqlite3.Connection:
@@ -222,8 +236,12 @@ class SqliteStore:
             conn.execute("INSERT OR REPLACE INTO meta VALUES ('site_model', ?)",
                          (json.dumps(to_plain(self.model), sort_keys=True),))
         elif "site_model" in rows:
-            self.model = from_plain(SiteModel, json.loads(rows["site_model"]))
-            self._model_hash = model_hash(self.model)
+            self._set_model(from_plain(SiteModel, json.loads(rows["site_model"])))
+
+    def _set_model(self, model: SiteModel) -> None:
+        self.model = model
+        self._model_hash = model_hash(model)
+        self._prior = Belief.prior(model)      # built once: append folds one outcome in
 
     def _load_next_seq(self) -> int:
         row = self._conn.execute("SELECT next_seq FROM sequences WHERE robot_id = ?",
@@ -251,7 +269,7 @@ class SqliteStore:
         row = event_to_row(event)
         if event.person_key in self._opted or event.person_key in self._forgetting:
             return False        # in memory: no SQL for it (the table says the same)
-        with self._lock:
+        with self._lock, self._write_gate:
             c = self._conn
             c.execute("BEGIN IMMEDIATE")
             try:
@@ -278,25 +296,25 @@ class SqliteStore:
         key = event.person_key
         if key in self._opted or key in self._forgetting:
             return False
-        snap = c.execute("SELECT a, b, last_time_s, last_event_id, event_count, model_hash, "
+        snap = c.execute("SELECT a, b, last_time_s, last_event_id, row_id, model_hash, "
                          "base_time_s, base_event_id FROM snapshot WHERE person_key = ?",
                          (key,)).fetchone()
         order = (float(event.time_s), event.event_id)
         if snap is not None and snap[6] is not None and order <= (snap[6], snap[7]):
             return False        # older than the compacted base: cannot be folded in order
-        cur = c.execute(f"INSERT OR IGNORE INTO events ({EVENT_COLUMNS}) VALUES (?,?,?,?,?,?,?)",
-                        row)
-        if cur.rowcount == 0:
+        if c.execute(INSERT_EVENT, row).rowcount == 0:
             return False
         if refold_later is not None and key in refold_later:
             pass                # refolded once when the batch ends
         elif (snap is not None and snap[5] == self._model_hash and snap[2] is not None
                 and order > (snap[2], snap[3])):
-            belief, last = fold_events([outcome or event.to_outcome()], self.model,
-                                       Belief(snap[0], snap[1]), snap[2])
+            # the next step of the fold (core.person.fold_next, as fold_events takes it); the
+            # row found again by its id, the key index walked once per append
+            belief, last = fold_next(Belief(snap[0], snap[1]), snap[2],
+                                     outcome or event.to_outcome(), self.model, self._prior)
             c.execute("UPDATE snapshot SET a = ?, b = ?, last_time_s = ?, last_event_id = ?, "
-                      "event_count = event_count + 1 WHERE person_key = ?",
-                      (belief.a, belief.b, last, event.event_id, key))
+                      "event_count = event_count + 1 WHERE row_id = ?",
+                      (belief.a, belief.b, last, event.event_id, snap[4]))
         elif snap is None:
             belief, last = fold_events([outcome or event.to_outcome()], self.model)
             c.execute("INSERT INTO snapshot (person_key, a, b, last_time_s, last_event_id, "
@@ -340,7 +358,7 @@ class SqliteStore:
     @contextlib.contextmanager
     def _batch(self) -> Iterator[sqlite3.Connection]:
         """One durable transaction for a batch: all of it, or nothing and the sequence back."""
-        with self._lock:
+        with self._lock, self._write_gate:
             c = self._conn
             next_seq = self._next_seq
             c.execute("BEGIN IMMEDIATE")
@@ -394,7 +412,9 @@ class SqliteStore:
         if key in self._forgetting:
             return []
         with self._lock:
-            return self._events(self._conn, key)
+            events = self._events(self._conn, key)
+        cutoff = self._retention_cutoff_s
+        return events if cutoff is None else [e for e in events if e.time_s >= cutoff]
 
     def keys(self) -> list[str]:
         with self._lock:
@@ -417,9 +437,10 @@ class SqliteStore:
             if snap is None:
                 return Belief.prior(model), None
             if snap[3] != self._model_hash:     # cached under an older model: refresh
-                c.execute("BEGIN IMMEDIATE")
-                self._refold(c, key)
-                c.execute("COMMIT")
+                with self._write_gate:
+                    c.execute("BEGIN IMMEDIATE")
+                    self._refold(c, key)
+                    c.execute("COMMIT")
                 snap = c.execute("SELECT a, b, last_time_s FROM snapshot WHERE person_key = ?",
                                  (key,)).fetchone()
             return Belief(snap[0], snap[1]), snap[2]
@@ -458,8 +479,9 @@ class SqliteStore:
         self._opted.add(key)
 
     def opt_out_rows(self, c: sqlite3.Connection, key: str) -> None:
-        c.execute("INSERT OR IGNORE INTO opt_out (person_key, since_s) VALUES (?, ?)",
-                  (key, time.time()))
+        with self._write_gate:
+            c.execute("INSERT OR IGNORE INTO opt_out (person_key, since_s) VALUES (?, ?)",
+                      (key, time.time()))
 
     def opted_out(self) -> list[str]:
         return sorted(self._opted)
@@ -498,20 +520,21 @@ class SqliteStore:
         interior index page, so a find rebuilds the indexes, and one still found after that
         rewrites the whole file (VACUUM).  A key never stored costs one small transaction.
         """
-        c.execute("BEGIN IMMEDIATE")
-        try:
-            row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
-                            (key,)).fetchone()
-            n = row[0] if row else 0       # compacted events count as removed too
-            n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
-            rows = n + sum(c.execute(f"DELETE FROM {table} WHERE person_key = ?",
-                                     (key,)).rowcount
-                           for table in ("asks", "snapshot", "opt_out"))
-            c.execute("COMMIT")
-        except BaseException:
-            if c.in_transaction:
-                c.execute("ROLLBACK")
-            raise
+        with self._write_gate:
+            c.execute("BEGIN IMMEDIATE")
+            try:
+                row = c.execute("SELECT base_count FROM snapshot WHERE person_key = ?",
+                                (key,)).fetchone()
+                n = row[0] if row else 0       # compacted events count as removed too
+                n += c.execute("DELETE FROM events WHERE person_key = ?", (key,)).rowcount
+                rows = n + sum(c.execute(f"DELETE FROM {table} WHERE person_key = ?",
+                                         (key,)).rowcount
+                               for table in ("asks", "snapshot", "opt_out"))
+                c.execute("COMMIT")
+            except BaseException:
+                if c.in_transaction:
+                    c.execute("ROLLBACK")
+                raise
         if rows:
             self.erase_copies(c, key)
         return n
@@ -570,11 +593,31 @@ class SqliteStore:
         return False
 
     def checkpoint(self, c: sqlite3.Connection | None = None) -> None:
+        """Copy the WAL into the file and empty it (no erased row lingers in the log).
+
+        A TRUNCATE checkpoint holds the write lock while it copies and syncs, so the frames go
+        first by a PASSIVE one, which lets appends commit meanwhile; the TRUNCATE then has the
+        few frames written since.
+        """
         c = self._conn if c is None else c
-        busy, _, _ = c.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
+        c.execute("PRAGMA wal_checkpoint(PASSIVE)").fetchone()
+        with self._write_gate:
+            busy, _, _ = c.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
         if busy:
             self.health = StoreHealth("ERROR", f"store {self.path}: WAL checkpoint blocked by "
                                       "another reader; erased rows may remain in the WAL")
+
+    def run_retention(self) -> int:
+        """Run the retention given at open, in the caller (no worker); events removed."""
+        if not self.retention_s:
+            return 0
+        n = self.compact(self.retention_s)
+        self.end_retention()
+        return n
+
+    def end_retention(self) -> None:
+        """Note that the retention given at open has run (or failed: reads show the file again)."""
+        self._retention_cutoff_s = None
 
     def compact(self, older_than_s: float, now_s: float | None = None) -> int:
         """Fold events older than `older_than_s` into each person's base and delete them.
@@ -591,11 +634,13 @@ class SqliteStore:
 
     def compact_rows(self, c: sqlite3.Connection, older_than_s: float,
                      now_s: float | None = None, keys_per_commit: int = 0,
-                     pause_s: float = 0.0) -> int:
+                     pause_s: float = 0.0, max_tx_s: float = 0.0) -> int:
         """compact() on connection `c`.
 
-        With `keys_per_commit` > 0 (a worker) one transaction per that many people, so the node's
-        appends wait for one batch at most (each person's base and deletion still commit together).
+        With `keys_per_commit` > 0 (a worker) one transaction per that many people at most, and
+        with `max_tx_s` > 0 one that ends once it has taken that long (the person begun is
+        finished: each person's base and deletion commit together), so the node's appends wait
+        for one short transaction at most; old asks go `ASKS_PER_COMMIT` at a time.
         """
         if older_than_s < 0:
             raise CoreInputError(f"older_than_s: {older_than_s!r} must be >= 0")
@@ -603,23 +648,41 @@ class SqliteStore:
         removed = asks_removed = 0
         keys = [r[0] for r in c.execute(
             "SELECT DISTINCT person_key FROM events WHERE time_s < ?", (cutoff,))]
-        step = keys_per_commit if keys_per_commit > 0 else max(len(keys), 1)
-        for start in range(0, max(len(keys), 1), step):
-            c.execute("BEGIN IMMEDIATE")
-            try:
-                for key in keys[start:start + step]:
-                    if key not in self._forgetting:
-                        removed += self._compact_key(c, key, cutoff)
-                if start + step >= len(keys):
-                    asks_removed = c.execute("DELETE FROM asks WHERE time_s < ?",
-                                             (cutoff,)).rowcount
-                c.execute("COMMIT")
-            except BaseException:
-                if c.in_transaction:
-                    c.execute("ROLLBACK")
-                raise
-            if keys_per_commit > 0:
-                time.sleep(pause_s)     # a worker: room for the node's callbacks and appends
+        worker = keys_per_commit > 0
+        per_commit = keys_per_commit if worker else max(len(keys), 1)
+        at = 0
+        asks_left = True
+        while at < len(keys) or asks_left:
+            with self._write_gate:
+                c.execute("BEGIN IMMEDIATE")
+                try:
+                    t0 = time.perf_counter()
+                    end = min(at + per_commit, len(keys))
+                    while at < end:
+                        key = keys[at]
+                        at += 1
+                        if key not in self._forgetting:
+                            removed += self._compact_key(c, key, cutoff)
+                        if max_tx_s > 0 and time.perf_counter() - t0 >= max_tx_s:
+                            break
+                    if at >= len(keys) and worker:    # then the asks, a batch at a time
+                        n = c.execute("DELETE FROM asks WHERE row_id IN (SELECT row_id FROM "
+                                      "asks WHERE time_s < ? LIMIT ?)",
+                                      (cutoff, ASKS_PER_COMMIT)).rowcount
+                        asks_removed += n
+                        asks_left = n == ASKS_PER_COMMIT
+                    elif at >= len(keys):
+                        asks_removed += c.execute("DELETE FROM asks WHERE time_s < ?",
+                                                  (cutoff,)).rowcount
+                        asks_left = False
+                    c.execute("COMMIT")
+                except BaseException:
+                    if c.in_transaction:
+                        c.execute("ROLLBACK")
+                    raise
+            if worker:      # the batch's frames into the file, the gate open (see below)
+                c.execute("PRAGMA wal_checkpoint(PASSIVE)").fetchone()
+                time.sleep(pause_s)     # room for the node's callbacks and appends
         if removed or asks_removed:
             self.checkpoint(c)
         return removed
@@ -632,6 +695,10 @@ class SqliteStore:
         conn = sqlite3.connect(str(self.path), isolation_level=None, check_same_thread=False,
                                timeout=10.0)
         set_pragmas(conn)
+        # SQLite checkpoints the WAL inside the COMMIT that takes it past 1000 pages: on the
+        # worker that would be inside the write gate, an append waiting for a whole checkpoint.
+        # The worker checkpoints after its commits instead (compact_rows, checkpoint()).
+        conn.execute("PRAGMA wal_autocheckpoint=0")
         return conn
 
     def _compact_key(self, c: sqlite3.Connection, key: str, cutoff: float) -> int:
@@ -723,10 +790,10 @@ class SqliteStore:
     def _note_own_sequence(self, c: sqlite3.Connection, event_id: str) -> None:
         robot, _, seq = event_id.rpartition("/")
         if robot == self.robot_id and seq.isdigit():
-            c.execute("INSERT INTO sequences VALUES (?, ?) ON CONFLICT(robot_id) DO UPDATE "
-                      "SET next_seq = max(next_seq, excluded.next_seq)",
-                      (self.robot_id, int(seq) + 1))
-            self._next_seq = max(self._next_seq, int(seq) + 1)
+            after = int(seq) + 1
+            c.execute(UPSERT_SEQUENCE, (robot, after))
+            if after > self._next_seq:
+                self._next_seq = after
 
     def asks(self, *, person_key: str | None = None, robot_id: str | None = None,
              request_id: str | None = None, since_s: float | None = None,
@@ -742,9 +809,11 @@ class SqliteStore:
             if value is not None:
                 where.append(f"{column} = ?")
                 args.append(value)
-        if since_s is not None:
+        cutoff = self._retention_cutoff_s       # a retention at open not run yet
+        if since_s is not None or cutoff is not None:
             where.append("time_s >= ?")
-            args.append(float(since_s))
+            args.append(max(float(since_s if since_s is not None else -math.inf),
+                            cutoff if cutoff is not None else -math.inf))
         # by request id the planner would walk the robot's index (it sorts by time): say which
         hint = " INDEXED BY asks_by_request" if request_id is not None else ""
         sql = (f"SELECT {ASK_COLUMNS} FROM asks{hint}"
@@ -807,8 +876,7 @@ class SqliteStore:
         with self._lock:
             if model_hash(model) == self._model_hash:
                 return
-            self.model = model
-            self._model_hash = model_hash(model)
+            self._set_model(model)
             self._conn.execute("INSERT OR REPLACE INTO meta VALUES ('site_model', ?)",
                                (json.dumps(to_plain(model), sort_keys=True),))
 
