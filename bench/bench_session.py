@@ -25,10 +25,9 @@ import time
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, os.path.dirname(HERE))
 
-from helpaware_node.core import (DecisionConfig, HelpNeed, PersonRecord, Result,  # noqa: E402
-                                 SiteModel)
+from helpaware_node.core import DecisionConfig, HelpNeed, PersonRecord, Result, SiteModel  # noqa: E402
 from helpaware_node.session import HelpSession  # noqa: E402
-from helpaware_node.store import AskEvent, SqliteStore, StoredEvent, person_key  # noqa: E402
+from helpaware_node.store import AskEvent, person_key, SqliteStore, StoredEvent  # noqa: E402
 from helpaware_node.text_table import render_table  # noqa: E402
 
 SITE_KEY = b"s" * 32

@@ -12,20 +12,23 @@ import dataclasses
 import json
 import math
 
-import numpy as np
-import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-
 from helpaware_node import wire
-from helpaware_node.core import Belief, Candidate, CoreInputError, DecisionConfig, HelpNeed
-from helpaware_node.core import SiteModel
+from helpaware_node.core import (
+    Belief,
+    Candidate,
+    CoreInputError,
+    DecisionConfig,
+    HelpNeed,
+    SiteModel,
+)
 from helpaware_node.core.model import check_range
-from helpaware_node.core.person import PersonRecord, note_candidate
+from helpaware_node.core.person import note_candidate, PersonRecord
 from helpaware_node.core.policy import decide
 from helpaware_node.session import HelpSession, SessionRules
 from helpaware_node.store import MemoryStore
-
+from hypothesis import given, settings, strategies as st
+import numpy as np
+import pytest
 from session_people import Person
 
 NUMBERS = st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.integers(-3, 3),
@@ -172,10 +175,9 @@ def test_a_person_still_in_view_keeps_the_key_the_store_gives():
 
 
 def test_markers_are_updated_in_place_and_people_who_left_are_deleted():
-    from visualization_msgs.msg import Marker
-
     from helpaware_node.ros.markers import PersonMarkers
     from helpaware_node.session.state import Seen
+    from visualization_msgs.msg import Marker
 
     def seen(*people):
         return {p: Seen(wire.SeenPerson(p, d, 0.2, "", (d, 1.0, 0.0)), f"k-{p}", 1.0, "map")

@@ -14,11 +14,10 @@ import tomllib
 import xml.etree.ElementTree as ET
 
 import ament_flake8
-import pytest
 from ament_flake8.main import main_with_errors
 from flake8.plugins import finder
-
 from lint_paths import ROOT, SETUP_CFG, SOURCE_PATHS
+import pytest
 
 
 @pytest.mark.flake8

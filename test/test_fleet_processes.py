@@ -13,13 +13,12 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
+from helpaware_node.fleet_documents import decode_document  # noqa: E402
+from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC  # noqa: E402
+from helpaware_node.store.keys import load_site_key, load_site_keys  # noqa: E402
 from rclpy.context import Context  # noqa: E402
 from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 from std_msgs.msg import String  # noqa: E402
-
-from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos  # noqa: E402
-from helpaware_node.fleet_documents import decode_document  # noqa: E402
-from helpaware_node.store.keys import load_site_key, load_site_keys  # noqa: E402
 
 RAW = ["nurse-ingrid-olsen", "porter-7-night", "warmup-person"]
 

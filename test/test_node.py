@@ -1,13 +1,11 @@
 """The decision node in-process, driven over real topics with bounded spinning."""
-import pytest
-from rclpy.parameter import Parameter
-from std_msgs.msg import String
-
 from helpaware_node import wire
 from helpaware_node.core import decide
 from helpaware_node.core.belief import Belief
-
 from node_harness import Rig
+import pytest
+from rclpy.parameter import Parameter
+from std_msgs.msg import String
 
 
 @pytest.fixture

@@ -16,7 +16,7 @@ from helpaware_node import wire  # noqa: E402
 from helpaware_node.core import HelpNeed, Result  # noqa: E402
 from helpaware_node.ros.node import HelpAwareNode  # noqa: E402
 from helpaware_node.session import HelpSession  # noqa: E402
-from helpaware_node.sim.run import SIM_ROBOT_ID, open_sim_need  # noqa: E402
+from helpaware_node.sim.run import open_sim_need, SIM_ROBOT_ID  # noqa: E402
 from helpaware_node.sim.world import SeenPerson, SimNeed  # noqa: E402
 from helpaware_node.store import AskEvent, MemoryStore, StoredEvent  # noqa: E402
 

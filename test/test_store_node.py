@@ -6,10 +6,8 @@ forget through privacy_request.
 import os
 
 from diagnostic_msgs.msg import DiagnosticStatus
-
 from helpaware_node.core.belief import Belief
 from helpaware_node.store.keys import load_site_key
-
 from node_harness import Rig
 
 
@@ -60,6 +58,7 @@ def test_privacy_requests_on_a_store_file_hold_at_once_on_disk_and_after_a_resta
     restart keeps it.
     """
     import sqlite3
+
     from helpaware_node.fleet_documents import decode_document
     from std_msgs.msg import String
     path = str(tmp_path / "beliefs.sqlite3")

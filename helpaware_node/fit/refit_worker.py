@@ -15,7 +15,6 @@ import multiprocessing
 import os
 from typing import Any, Optional
 
-
 NICENESS = 10      # a refit is background work: the node's own threads get the CPU first
 
 

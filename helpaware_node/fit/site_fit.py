@@ -17,17 +17,22 @@ solution itself (fit/convergence.py), never from the optimiser's status.
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field, replace
+import math
 from typing import Any, Callable, Sequence
 
 import numpy as np
 from scipy import optimize, stats
 from scipy.special import expit, logit
 
-from .convergence import (ConvergenceVerdict, Coordinate, IterationLog, assess_convergence,
-                          hessian_by_differences)
-from .data import HELPED, FitInputError, OutcomeData
+from .convergence import (
+    assess_convergence,
+    ConvergenceVerdict,
+    Coordinate,
+    hessian_by_differences,
+    IterationLog,
+)
+from .data import FitInputError, HELPED, OutcomeData
 from .progress import Progress
 from .site_likelihood import SiteLikelihood, SiteParams
 

@@ -13,7 +13,7 @@ from typing import Any, Mapping
 
 from diagnostic_msgs.msg import DiagnosticArray, DiagnosticStatus, KeyValue
 
-from ..input_watch import InputWatch, change_text, warning_text
+from ..input_watch import change_text, InputWatch, warning_text
 
 INPUTS = ("people", "task_status", "outcome", "navigation_status")
 

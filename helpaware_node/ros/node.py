@@ -29,25 +29,25 @@ from rclpy._rclpy_pybind11 import RCLError
 from rclpy.clock import Clock, ClockType, ROSClock
 from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
+from . import diagnostics as diag
+from .fleet import FleetLink, PrivacyRequests
+from .markers import PersonMarkers
+from .params import model_ranges, NodeParameters
+from .refusal_log import exception_text, LogThrottle
+from .shm_files import StartupSweep
+from .site_learning import NodeLearning, proposal_path
+from .store_retry import HeldOutcomes
 from .. import wire
-from ..core import PersonRecord, belief_at, params_hash
+from ..core import belief_at, params_hash, PersonRecord
 from ..core.model import CoreInputError
 from ..session import HelpSession, Step, StoreStatus
 from ..session.state import MAX_GOAL_STATUSES
 from ..store import default_store_path, open_store
 from ..store.base import BeliefStore
 from ..store.jobs import StoreJobs
-from . import diagnostics as diag
-from .fleet import FleetLink, PrivacyRequests
-from .markers import PersonMarkers
-from .params import NodeParameters, model_ranges
-from .refusal_log import LogThrottle, exception_text
-from .shm_files import StartupSweep
-from .site_learning import NodeLearning, proposal_path
-from .store_retry import HeldOutcomes
 
 NODE_NAME = "helpaware_decider"
 GOAL_STATES = {4: "succeeded", 5: "canceled", 6: "aborted"}   # action_msgs/GoalStatus codes
@@ -163,13 +163,13 @@ class HelpAwareNode(LifecycleNode):
 
         Fleet link and privacy requests (configure).
         """
-        from rclpy.event_handler import SubscriptionEventCallbacks, PublisherEventCallbacks
+        from rclpy.event_handler import PublisherEventCallbacks, SubscriptionEventCallbacks
         sub_events = SubscriptionEventCallbacks(incompatible_qos=self._on_qos_incompatible)
         pub_events = PublisherEventCallbacks(incompatible_qos=self._on_qos_incompatible)
         self.decision_pub = self.create_publisher(String, "decision", RELIABLE,
                                                   event_callbacks=pub_events)
-        from visualization_msgs.msg import MarkerArray
         from diagnostic_msgs.msg import DiagnosticArray
+        from visualization_msgs.msg import MarkerArray
         self.marker_pub = self.create_publisher(MarkerArray, "markers", 10)
         self.diag_pub = self.create_publisher(DiagnosticArray, "/diagnostics", 10)
         subs = [

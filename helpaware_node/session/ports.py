@@ -9,10 +9,10 @@ from __future__ import annotations
 
 from typing import Iterable, Optional, Protocol
 
+from .state import Note
 from ..core import Belief, SiteModel
 from ..core.model import MAX_ASKS_CAP
 from ..store.base import AskEvent, StoredEvent
-from .state import Note
 
 
 class SessionStore(Protocol):

@@ -13,13 +13,13 @@ No ROS here: the node wires the wake-up (ros/node.py).
 """
 from __future__ import annotations
 
+from collections import deque
+from dataclasses import dataclass
 import os
 import queue
 import sqlite3
 import threading
 import time
-from collections import deque
-from dataclasses import dataclass
 from typing import Any, Callable, Optional
 
 WORKER_NICE = 10                # a long compaction yields the CPU to the callbacks

@@ -12,7 +12,7 @@ import unittest
 import pytest
 
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, clean_shutdown_test, described_launch, process_environment  # noqa: E402
+from probe import clean_shutdown_test, described_launch, Probe, process_environment  # noqa: E402
 
 
 @pytest.mark.launch_test

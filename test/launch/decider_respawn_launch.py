@@ -9,14 +9,13 @@ import signal
 import sys
 import unittest
 
-import pytest
 from launch.events.process import ProcessStarted
+import pytest
 
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, clean_shutdown_test, described_launch  # noqa: E402
-from std_msgs.msg import String  # noqa: E402
-
 from helpaware_node import wire  # noqa: E402
+from probe import clean_shutdown_test, described_launch, Probe  # noqa: E402
+from std_msgs.msg import String  # noqa: E402
 
 
 @pytest.mark.launch_test

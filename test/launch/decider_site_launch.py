@@ -8,13 +8,12 @@ import os
 import sys
 import unittest
 
+from helpaware_node import wire
 import pytest
 import yaml
 
-from helpaware_node import wire
-
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, clean_shutdown_test, described_launch  # noqa: E402
+from probe import clean_shutdown_test, described_launch, Probe  # noqa: E402
 
 ARGUMENTS = {"params_file": "hospital_night.yaml", "namespace": "ward3",
              "people_topic": "perception/people"}

@@ -12,7 +12,7 @@ import launch_testing
 import pytest
 
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, assert_clean_shutdown, described_launch  # noqa: E402
+from probe import assert_clean_shutdown, described_launch, Probe  # noqa: E402
 
 STAND_IN_PEOPLE = {"nurse-ward3-a", "porter-b", "doctor-c"}   # ros/examples/perception.py
 

@@ -35,12 +35,11 @@ import threading
 import time
 from typing import Optional
 
-import rclpy
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
-from std_msgs.msg import String
-
 from helpaware_node import wire
 from helpaware_node.ros import shm_files
+import rclpy
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
+from std_msgs.msg import String
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 PEOPLE_PERIOD_S = 0.1

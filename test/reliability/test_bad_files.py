@@ -12,9 +12,8 @@ import random
 import subprocess
 import sys
 
-import pytest
-
 from helpaware_node.ros import launch_config
+import pytest
 
 pytestmark = pytest.mark.ros
 

@@ -25,23 +25,21 @@ import sqlite3
 import sys
 import time
 
-import pytest
-from hypothesis import HealthCheck, given, settings, strategies as st
-from std_msgs.msg import String
-
 from helpaware_node import wire
-from helpaware_node.core import Result, fold_events
-from helpaware_node.fleet_documents import PrivacyAct, encode_document
+from helpaware_node.core import fold_events, Result
+from helpaware_node.fleet_documents import encode_document, PrivacyAct
 from helpaware_node.ros import fleet as fleet_mod
-from helpaware_node.ros.diagnostics import INPUTS, decision_values
+from helpaware_node.ros.diagnostics import decision_values, INPUTS
 from helpaware_node.ros.privacy import PRIVACY_QOS
 from helpaware_node.store import SiteKeys, StoredEvent
 from helpaware_node.store.base import AskEvent
-
 import hostile_documents as hd
+from hypothesis import given, HealthCheck, settings, strategies as st
 from node_harness import Rig
+import pytest
 from reliability_sequence import scaled
 from site_keys import write_site_key
+from std_msgs.msg import String
 
 pytestmark = pytest.mark.ros
 
@@ -451,8 +449,8 @@ def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_p
     An event the store cannot hold (past the decoder, which should have refused it) is found by
     halving and dropped; the store refusing writes keeps every event for the next try.
     """
-    import rclpy
     from helpaware_node.store import SqliteStore
+    import rclpy
     inner = SqliteStore(tmp_path / "s.sqlite3", "r1", SiteKeys.single(SITE_KEY))
     store = FailingStore(inner, culprit="ward4/37")
     node = rclpy.create_node("isolation", context=ctx)

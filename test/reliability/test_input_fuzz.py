@@ -29,23 +29,27 @@ import random
 import re
 import time
 
-import pytest
-from hypothesis import HealthCheck, given, settings, strategies as st
-from std_msgs.msg import String
-
-from helpaware_node import wire
-from helpaware_node.core.model import CoreInputError
-from helpaware_node.fleet_documents import (PRIVACY_KINDS, PrivacyAct, check_fresh,
-                                            decode_document, encode_document, load_document,
-                                            parse_unsigned_request)
-from helpaware_node.ros import fleet as fleet_mod
-from helpaware_node.core import Result
-from helpaware_node.store import AskEvent, SiteKeys, StoredEvent
-
 from document_paths import field_paths, replaced
+from helpaware_node import wire
+from helpaware_node.core import Result
+from helpaware_node.core.model import CoreInputError
+from helpaware_node.fleet_documents import (
+    check_fresh,
+    decode_document,
+    encode_document,
+    load_document,
+    parse_unsigned_request,
+    PRIVACY_KINDS,
+    PrivacyAct,
+)
+from helpaware_node.ros import fleet as fleet_mod
+from helpaware_node.store import AskEvent, SiteKeys, StoredEvent
+from hypothesis import given, HealthCheck, settings, strategies as st
 from node_harness import Rig
+import pytest
 from reliability_sequence import scaled
 from site_keys import write_site_key
+from std_msgs.msg import String
 
 pytestmark = pytest.mark.ros
 

@@ -9,12 +9,10 @@ interval in any number the node publishes, every limit holds on the clock the no
 """
 import math
 
+from helpaware_node import wire
+from node_harness import Rig
 from rosgraph_msgs.msg import Clock
 from std_msgs.msg import String
-
-from helpaware_node import wire
-
-from node_harness import Rig
 
 CAP_PER_HOUR = 12
 PEOPLE = [{"id": f"porter-{i:02d}", "distance_m": 1.0 + 0.1 * i, "busyness": 0.0}

@@ -19,8 +19,8 @@ from typing import Optional
 from rclpy.node import Node
 from std_msgs.msg import String
 
+from .running import decode_or_warn, RELIABLE, spin_node
 from ... import wire
-from .running import RELIABLE, decode_or_warn, spin_node
 
 
 class BehaviourLayer(Node):

@@ -15,8 +15,8 @@ from rclpy.node import Node
 from rclpy.qos import qos_profile_sensor_data
 from std_msgs.msg import String
 
-from ... import wire
 from .running import spin_node
+from ... import wire
 
 DEFAULT_PEOPLE = ("nurse-ward3-a,2.0,0.2,charting", "porter-b,3.5,0.1,idle",
                   "doctor-c,4.5,0.7,walking_fast")
