@@ -34,6 +34,7 @@ T0 = 1_800_000_000.0
 
 
 class Person:
+
     def __init__(self, pid: str, distance_m: float) -> None:
         self.person_id, self.distance_m, self.busyness, self.activity = pid, distance_m, 0.2, ""
 

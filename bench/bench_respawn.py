@@ -57,7 +57,8 @@ from ros_domain import loopback_own_domain  # noqa: E402  (bench/ is this script
 
 loopback_own_domain()
 sys.path.insert(0, os.path.join(HERE, "..", "test", "reliability"))
-from helpaware_node.ros import shm_files  # noqa: E402
+# I100: loopback_own_domain() sets the DDS environment before anything of helpaware_node.ros loads
+from helpaware_node.ros import shm_files  # noqa: E402,I100
 from long_lived_inputs import LongLivedProcess  # noqa: E402  (the robot's long-lived side)
 
 NAMESPACE = "/respawn_bench"

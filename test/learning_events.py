@@ -25,7 +25,7 @@ def events(sim: SimulatedAsks, robots: tuple[str, ...] = ("r1",)
     store.
     """
     keys = [key_of(k) for k in sim.person_keys]
-    seq = {r: 0 for r in robots}
+    seq = dict.fromkeys(robots, 0)
     outcomes, asks = [], []
     order = np.argsort(sim.ask_time_s, kind="stable")
     for n, i in enumerate(order):

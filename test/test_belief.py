@@ -11,6 +11,8 @@ from helpaware_node.core.belief import (
     update_helped,
     update_no_response,
 )
+from helpaware_node.core.context import context_factor
+from hypothesis import given, strategies as st
 import numpy as np
 import pytest
 from scipy import integrate, stats
@@ -136,8 +138,6 @@ def test_bad_site_model_names_the_field():
 
 
 # -- one-person paths (the store's fold of one outcome) against the vectorised ones ----------
-from helpaware_node.core.context import context_factor  # noqa: E402
-from hypothesis import given, strategies as st  # noqa: E402
 
 POSITIVE = st.floats(min_value=5e-324, max_value=1e12, allow_nan=False)
 UNIT = st.one_of(st.floats(0.0, 1.0), st.sampled_from([0.0, 1.0, 5e-324, 1.0 - 2 ** -53]))

@@ -85,8 +85,8 @@ def refused_within_bounds(call, errors=(CoreInputError,)):
         return exc
 
 
-SITE_FIELDS = [f for f in to_plain(SiteModel())]
-CONFIG_FIELDS = [f for f in to_plain(DecisionConfig())]
+SITE_FIELDS = list(to_plain(SiteModel()))
+CONFIG_FIELDS = list(to_plain(DecisionConfig()))
 
 
 @given(json_like)

@@ -24,7 +24,8 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from helpaware_node.core import Belief, fold_events, Result, SiteModel  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.core import Belief, fold_events, Result, SiteModel  # noqa: E402,I100
 from helpaware_node.core.model import CoreInputError  # noqa: E402
 from helpaware_node.fleet_documents import encode_document, PrivacyAct  # noqa: E402
 from helpaware_node.ros.fleet import FleetLink  # noqa: E402

@@ -13,7 +13,8 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from helpaware_node import wire  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node import wire  # noqa: E402,I100
 from helpaware_node.ros import launch_config  # noqa: E402
 from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC  # noqa: E402
 from helpaware_node.store.keys import load_site_key  # noqa: E402
@@ -60,6 +61,7 @@ class Driver:
 
 
 class Fleet:
+
     def __init__(self):
         self.ctx = Context()
         rclpy.init(context=self.ctx)

@@ -9,7 +9,8 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from helpaware_node.core import Result  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.core import Result  # noqa: E402,I100
 from helpaware_node.core.model import CoreInputError  # noqa: E402
 from helpaware_node.fleet_documents import (  # noqa: E402
     decode_document,

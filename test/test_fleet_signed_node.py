@@ -21,8 +21,13 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from helpaware_node.core import fold_events, Result  # noqa: E402
-from helpaware_node.fleet_documents import decode_document, encode_document, PrivacyAct  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.core import fold_events, Result  # noqa: E402,I100
+from helpaware_node.fleet_documents import (  # noqa: E402
+    decode_document,
+    encode_document,
+    PrivacyAct,
+)
 from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC, FleetLink  # noqa: E402
 from helpaware_node.signing import canonical_bytes  # noqa: E402
 from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402

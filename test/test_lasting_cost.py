@@ -164,7 +164,7 @@ def test_the_zero_of_the_typical_advantage(alpha, beta, gamma, k):
 
 
 def test_nothing_is_lost_when_nothing_is_there_to_lose():
-    args = dict(gamma=12.0, k_load=0.7, half_life_s=1800.0, discount_s=14400.0)
+    args = {"gamma": 12.0, "k_load": 0.7, "half_life_s": 1800.0, "discount_s": 14400.0}
     # no look-ahead, no re-encounters, or a person never worth asking at a typical request
     assert lasting_cost(1e-4, 50.0, 20.0, load=0.0, horizon_s=0.0, **args) == 0.0
     assert lasting_cost(0.0, 50.0, 20.0, load=0.0, horizon_s=28800.0, **args) == 0.0

@@ -169,7 +169,7 @@ def test_markers_and_diagnostics(rig):
     rig.outcome_pub.publish(String(data="not json"))
 
     def warned():
-        return any(s.level == DiagnosticStatus.WARN and dict((v.key, v.value) for v in s.values)
+        return any(s.level == DiagnosticStatus.WARN and {v.key: v.value for v in s.values}
                    .get("outcome.rejected") == "1" for a in rig.diagnostics for s in a.status)
     assert rig.spin_until(warned, 30)
     assert isinstance(rig.diagnostics[-1].status[0].level, bytes)

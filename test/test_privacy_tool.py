@@ -18,7 +18,8 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from helpaware_node import wire  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node import wire  # noqa: E402,I100
 from helpaware_node.ros import launch_config  # noqa: E402
 from rclpy.context import Context  # noqa: E402
 from rclpy.executors import SingleThreadedExecutor  # noqa: E402

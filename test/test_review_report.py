@@ -79,6 +79,7 @@ def test_calibration_uses_only_answered_asks(sample):
 
 
 class _Collect(HTMLParser):
+
     def __init__(self):
         super().__init__()
         self.images, self.headings, self.tags = [], [], Counter()

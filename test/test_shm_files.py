@@ -40,6 +40,7 @@ sys.stdin.read()
 
 
 class Child:
+
     def __init__(self, shm, records, segment=SEGMENT, port=PORT):
         self.proc = subprocess.Popen([sys.executable, "-c", CHILD, str(shm), str(records),
                                       segment, port], stdin=subprocess.PIPE,

@@ -12,7 +12,8 @@ import pytest
 
 rclpy = pytest.importorskip("rclpy")
 
-from helpaware_node import wire  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node import wire  # noqa: E402,I100
 from helpaware_node.core import HelpNeed, Result  # noqa: E402
 from helpaware_node.ros.node import HelpAwareNode  # noqa: E402
 from helpaware_node.session import HelpSession  # noqa: E402

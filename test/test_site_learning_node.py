@@ -20,7 +20,8 @@ import pytest
 from rclpy.parameter import Parameter
 
 TRUTH = SiteParams(1.0, 3.0, 3.5, 1.0, 0.8, 0.7, 3 * 3600.0)
-FAST = dict(site_learning_every_outcomes=20, site_prior_weight=50.0, interruption_weight_s=0.0)
+FAST = {"site_learning_every_outcomes": 20, "site_prior_weight": 50.0,
+        "interruption_weight_s": 0.0}
 
 
 def filled_store(tmp_path):

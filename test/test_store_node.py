@@ -24,8 +24,8 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         assert rig.node.store.health.level == "ERROR"
 
         def error_reported():
-            return any(s.level == DiagnosticStatus.ERROR and aside[0] in dict(
-                (v.key, v.value) for v in s.values).get("store_last_error", "")
+            return any(s.level == DiagnosticStatus.ERROR and aside[0] in {
+                v.key: v.value for v in s.values}.get("store_last_error", "")
                 for a in rig.diagnostics for s in a.status)
         assert rig.spin_until(error_reported)
         # keeps working: decides on the prior and learns from an outcome

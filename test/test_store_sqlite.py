@@ -38,7 +38,7 @@ def test_snapshot_equals_refold_in_any_append_order(tmp_path_factory, rows):
               for i, (p, t, r, x, f) in enumerate(rows)]
     for e in events:
         assert store.append(e)
-    for key in set(e.person_key for e in events):
+    for key in {e.person_key for e in events}:
         assert store.belief(key, MODEL) == refold(events, key)
     store.close()
 

@@ -50,6 +50,7 @@ SIGMA_AT_ZERO = 1e-3
 
 
 class RandomInterceptLogit:
+
     def __init__(self, y, n, X, group, nodes: int = 25):
         self.y = np.asarray(y, float)
         self.n = np.asarray(n, float)

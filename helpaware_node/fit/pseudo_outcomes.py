@@ -106,6 +106,7 @@ def pseudo_outcomes(target: SiteParams, weight: float) -> OutcomeData:
 
 
 class _Rows:
+
     def __init__(self) -> None:
         self.person: list[str] = []
         self.x: list[float] = []

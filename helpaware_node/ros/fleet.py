@@ -39,6 +39,8 @@ from rclpy.clock import Clock, ClockType
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
+# the privacy topic lives in ros/privacy.py; ros/node.py imports both from here
+from .privacy import PRIVACY_TOPIC, PrivacyRequests  # noqa: F401
 from .refusal_log import CountsRefusals, exception_text, HANDLER_ERROR, LogThrottle, Refusals
 from ..core import CoreInputError, Result, SiteModel
 from ..core.preview import quoted
@@ -588,9 +590,6 @@ def run_peer(argv: list[str] | None = None) -> int:
         store.close()
     return 0
 
-
-# the privacy topic lives in ros/privacy.py; ros/node.py imports both from here
-from .privacy import PRIVACY_TOPIC, PrivacyRequests  # noqa: E402,F401
 
 if __name__ == "__main__":
     sys.exit(run_peer())

@@ -33,6 +33,7 @@ class SessionStore(Protocol):
 
 
 class OutcomeWriter(Protocol):
+
     def write(self, event: StoredEvent) -> Optional[bool]:
         """Return True: stored; False: not stored (duplicate, opted out).
 

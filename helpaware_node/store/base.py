@@ -112,6 +112,7 @@ def check_learned(entry: LearnedEntry) -> None:
 
 
 class _Appends(Protocol):
+
     def append(self, event: StoredEvent) -> bool: ...
 
     def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...

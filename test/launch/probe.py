@@ -59,6 +59,7 @@ def clean_shutdown_test():
 
     @launch_testing.post_shutdown_test()
     class TestShutdown(unittest.TestCase):
+
         def test_sigint_stops_it_cleanly(self, proc_info, proc_output):
             assert_clean_shutdown(self, proc_info, proc_output)
     return TestShutdown
@@ -72,6 +73,7 @@ def process_environment(pid: int) -> dict:
 
 
 class Probe:
+
     def __init__(self, namespace: str = "", people_topic: str = "people"):
         self.context = rclpy.Context()
         rclpy.init(context=self.context)

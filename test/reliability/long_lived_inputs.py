@@ -52,6 +52,7 @@ def say(doc: dict) -> None:
 
 
 class LongLivedInputs:
+
     def __init__(self, namespace: str, people: int) -> None:
         self.node = rclpy.create_node("long_lived_inputs", namespace=namespace)
         self.view = [{"id": f"ward-staff-{i:02d}", "distance_m": 1.5 + 0.5 * i,

@@ -16,7 +16,8 @@ import pytest
 
 pytest.importorskip("rclpy")
 
-from helpaware_node.store.base import person_key  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.store.base import person_key  # noqa: E402,I100
 from process_rig import (  # noqa: E402
     Drive,
     Every,

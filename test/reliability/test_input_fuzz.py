@@ -57,9 +57,9 @@ EXAMPLES = scaled(600, 6000)          # hypothesis examples per topic
 TYPE_EXAMPLES = scaled(150, 1500)      # wrong-type examples per wire topic
 RAW_ROUNDS = scaled(16, 160)           # bursts of garbage per topic through the topics
 BURST = 15                            # garbage messages per burst (below the QoS depths)
-SETTINGS = dict(deadline=None, derandomize=True, database=None,
-                suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
-                                       HealthCheck.function_scoped_fixture])
+SETTINGS = {"deadline": None, "derandomize": True, "database": None,
+            "suppress_health_check": [HealthCheck.too_slow, HealthCheck.data_too_large,
+                                      HealthCheck.function_scoped_fixture]}
 
 UNKNOWN_KEY = "ab" * 32               # a hashed key of nobody the node knows
 FLEET_TOPIC = fleet_mod.FLEET_TOPIC
@@ -226,7 +226,7 @@ def fuzz_text(draw, topic: str) -> str:
 @st.composite
 def changed_text(draw, topic: str) -> str:
     doc = seed(topic, draw(st.integers(0, len(SEEDS[topic]) - 1)))
-    paths = [p for p in field_paths(doc)]
+    paths = list(field_paths(doc))
     path = draw(st.sampled_from(paths))
     how = draw(st.sampled_from(["any_value", "huge_number", "long_string", "deep_nesting",
                                 "unicode", "raw_unicode", "duplicate_key", "extra_field",

@@ -30,7 +30,8 @@ import pytest
 
 pytest.importorskip("rclpy")
 
-from helpaware_node import wire  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node import wire  # noqa: E402,I100
 from helpaware_node.core import Belief, SiteModel  # noqa: E402
 from process_rig import (  # noqa: E402
     beliefs_in,

@@ -25,6 +25,7 @@ RESULTS = ("helped", "declined", "no_response", "could_not_ask")
 
 
 class AskDelivery(Node):
+
     def __init__(self, answer_fn: Optional[Callable[[str], str]] = None, **kwargs):
         super().__init__("ask_delivery", **kwargs)
         answer: str = self.declare_parameter("answer", "helped").value

@@ -24,6 +24,7 @@ from ... import wire
 
 
 class BehaviourLayer(Node):
+
     def __init__(self, stuck_period_s: Optional[float] = 0.0, **kwargs):
         super().__init__("behaviour_layer", **kwargs)
         period = float(self.declare_parameter(

@@ -45,6 +45,7 @@ def parse_people(entries: Sequence[str]) -> list[dict]:
 
 
 class PerceptionStandIn(Node):
+
     def __init__(self, **kwargs):
         super().__init__("example_perception", **kwargs)
         self.people = parse_people(self.declare_parameter("people", list(DEFAULT_PEOPLE)).value)
