@@ -10,9 +10,8 @@ import statistics
 import sys
 import time
 
+from helpaware_node.core import Belief, Candidate, decide, DecisionConfig, HelpNeed, SiteModel
 import numpy as np
-
-from helpaware_node.core import Belief, Candidate, DecisionConfig, HelpNeed, SiteModel, decide
 
 
 def make_candidates(n: int, rng: np.random.Generator, now: float) -> list[Candidate]:

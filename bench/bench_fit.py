@@ -17,9 +17,6 @@ import sys
 import time
 import tracemalloc
 
-import numpy as np
-from scipy import sparse
-
 from helpaware_node.fit.data import HELPED
 from helpaware_node.fit.glmm import RandomInterceptLogit, sequential_help_probability
 from helpaware_node.fit.heldout import glmm_design, log_loss
@@ -28,6 +25,8 @@ from helpaware_node.fit.simulate_outcomes import simulate
 from helpaware_node.fit.site_fit import fit_site
 from helpaware_node.fit.site_likelihood import SiteLikelihood, SiteParams
 from helpaware_node.text_table import render_table
+import numpy as np
+from scipy import sparse
 
 TRUTH = SiteParams(2.0, 3.0, 1.5, 0.7, 0.6, 0.7)
 

@@ -23,7 +23,7 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, os.path.dirname(HERE))
 
 from helpaware_node import wire  # noqa: E402
-from helpaware_node.core import DecisionConfig, HelpNeed, SiteModel, decide  # noqa: E402
+from helpaware_node.core import decide, DecisionConfig, HelpNeed, SiteModel  # noqa: E402
 from helpaware_node.session import HelpSession, SessionRules  # noqa: E402
 from helpaware_node.store import MemoryStore  # noqa: E402
 from helpaware_node.text_table import render_table  # noqa: E402
@@ -34,6 +34,7 @@ T0 = 1_800_000_000.0
 
 
 class Person:
+
     def __init__(self, pid: str, distance_m: float) -> None:
         self.person_id, self.distance_m, self.busyness, self.activity = pid, distance_m, 0.2, ""
 

@@ -25,20 +25,18 @@ import tempfile
 import threading
 import time
 
-import numpy as np
-
 sys.path.insert(0, os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "test"))
 
 from helpaware_node.core import DecisionConfig, HelpNeed, SiteModel  # noqa: E402
 from helpaware_node.core.context import ask_load  # noqa: E402
-from helpaware_node.fit.online import LearningSettings, SiteLearner, learning_data  # noqa: E402
+from helpaware_node.fit.online import learning_data, LearningSettings, SiteLearner  # noqa: E402
 from helpaware_node.fit.site_fit import fit_site  # noqa: E402
 from helpaware_node.fit.site_likelihood import SiteParams  # noqa: E402
 from helpaware_node.session import HelpSession, SessionRules  # noqa: E402
 from helpaware_node.store import SqliteStore  # noqa: E402
 from helpaware_node.text_table import render_table  # noqa: E402
-
 from learning_events import site  # noqa: E402  (test/learning_events.py: invented sites)
+import numpy as np  # noqa: E402
 
 TRUTH = SiteParams(1.0, 3.0, 3.0, 1.0, 0.7, 0.7, 3 * 3600.0)
 KEY = b"b" * 32

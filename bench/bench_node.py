@@ -63,7 +63,7 @@ def print_encoder_costs() -> None:
     from helpaware_node import wire
     from helpaware_node.core import DecisionConfig, SiteModel
     from helpaware_node.core.belief import Belief
-    from helpaware_node.core.policy import Candidate, HelpNeed, decide
+    from helpaware_node.core.policy import Candidate, decide, HelpNeed
     rng = random.Random(2)
     model, config = SiteModel(), DecisionConfig()
     cands = [Candidate(f"q{i}", rng.uniform(1, 7), 1000.0, Belief(2.0, 2.0),
@@ -89,12 +89,11 @@ def main() -> int:
     ap.add_argument("--cpu-seconds", type=float, default=10.0)
     args = ap.parse_args()
 
-    import rclpy
-    from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
-    from std_msgs.msg import String
-
     from helpaware_node import wire
     from helpaware_node.ros import launch_config
+    import rclpy
+    from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
+    from std_msgs.msg import String
 
     q = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
     node_proc = launch_config.start(namespace="/bench", stderr=subprocess.DEVNULL,

@@ -39,6 +39,7 @@ Run: .venv/bin/python bench/bench_respawn.py [--rounds 5 --respawns 5]  (loopbac
 from __future__ import annotations
 
 import argparse
+from dataclasses import dataclass
 import os
 import random
 import re
@@ -48,7 +49,6 @@ import subprocess
 import sys
 import tempfile
 import time
-from dataclasses import dataclass
 from typing import Optional
 
 HERE = os.path.dirname(os.path.abspath(__file__))
@@ -57,9 +57,9 @@ from ros_domain import loopback_own_domain  # noqa: E402  (bench/ is this script
 
 loopback_own_domain()
 sys.path.insert(0, os.path.join(HERE, "..", "test", "reliability"))
+# I100: loopback_own_domain() sets the DDS environment before anything of helpaware_node.ros loads
+from helpaware_node.ros import shm_files  # noqa: E402,I100
 from long_lived_inputs import LongLivedProcess  # noqa: E402  (the robot's long-lived side)
-
-from helpaware_node.ros import shm_files  # noqa: E402
 
 NAMESPACE = "/respawn_bench"
 PROFILE_FILE = "fastdds_robot.xml"

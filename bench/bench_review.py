@@ -20,8 +20,8 @@ import time
 
 
 def child_floor(bag: str) -> dict:
-    from rosbags.rosbag2 import Reader
     from helpaware_node.bag import typestore
+    from rosbags.rosbag2 import Reader
     store = typestore()
     t0 = time.perf_counter()
     n = 0
@@ -34,8 +34,8 @@ def child_floor(bag: str) -> dict:
 
 def child_review(bag: str, out: str) -> dict:
     t0 = time.perf_counter()
-    import matplotlib  # noqa: F401  (counted: the report needs it)
     from helpaware_node.review import report as review
+    import matplotlib  # noqa: F401  (counted: the report needs it)
     summary = review.build(bag, out)
     return {"seconds": time.perf_counter() - t0, "messages": sum(summary["messages"].values())}
 

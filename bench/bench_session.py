@@ -25,10 +25,15 @@ import time
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, os.path.dirname(HERE))
 
-from helpaware_node.core import (DecisionConfig, HelpNeed, PersonRecord, Result,  # noqa: E402
-                                 SiteModel)
+from helpaware_node.core import (  # noqa: E402
+    DecisionConfig,
+    HelpNeed,
+    PersonRecord,
+    Result,
+    SiteModel,
+)
 from helpaware_node.session import HelpSession  # noqa: E402
-from helpaware_node.store import AskEvent, SqliteStore, StoredEvent, person_key  # noqa: E402
+from helpaware_node.store import AskEvent, person_key, SqliteStore, StoredEvent  # noqa: E402
 from helpaware_node.text_table import render_table  # noqa: E402
 
 SITE_KEY = b"s" * 32
@@ -38,6 +43,7 @@ NOW_S = 1_800_000_000.0
 
 
 class Person:
+
     def __init__(self, pid: str, distance_m: float) -> None:
         self.person_id, self.distance_m, self.busyness, self.activity = pid, distance_m, 0.1, ""
 

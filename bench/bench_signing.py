@@ -14,8 +14,8 @@ import sys
 import time
 
 from helpaware_node.core import Result
-from helpaware_node.fleet_documents import KINDS, decode_document, encode_document
-from helpaware_node.store import SiteKeys, StoredEvent, person_key
+from helpaware_node.fleet_documents import decode_document, encode_document, KINDS
+from helpaware_node.store import person_key, SiteKeys, StoredEvent
 
 SITE_KEY = bytes(range(32))
 KEYS = SiteKeys.single(SITE_KEY).key_ring()

@@ -40,11 +40,23 @@ import time
 HERE = os.path.dirname(os.path.abspath(__file__))
 sys.path.insert(0, os.path.dirname(HERE))
 
-from helpaware_node.core import (DecisionConfig, SiteModel, candidate_from_record,  # noqa: E402
-                                 decide)
-from helpaware_node.core import HelpNeed, PersonRecord  # noqa: E402
-from helpaware_node.sim.compare import (TARGET_LABELS, compare, describe_pair,  # noqa: E402
-                                        describe_regret, regret, summary_table, targets)
+from helpaware_node.core import (  # noqa: E402  # noqa: E402
+    candidate_from_record,
+    decide,
+    DecisionConfig,
+    HelpNeed,
+    PersonRecord,
+    SiteModel,
+)
+from helpaware_node.sim.compare import (  # noqa: E402
+    compare,
+    describe_pair,
+    describe_regret,
+    regret,
+    summary_table,
+    TARGET_LABELS,
+    targets,
+)
 from helpaware_node.sim.metrics import paired_difference, run_metrics, summarise  # noqa: E402
 from helpaware_node.sim.plots import write_plots  # noqa: E402
 from helpaware_node.sim.run import run_policy  # noqa: E402

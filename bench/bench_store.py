@@ -22,10 +22,9 @@ import sys
 import tempfile
 import time
 
-from ros_domain import loopback_own_domain  # noqa: E402  (bench/ is this script's folder)
-
 from helpaware_node.core import Result
-from helpaware_node.store import SqliteStore, StoredEvent, person_key
+from helpaware_node.store import person_key, SqliteStore, StoredEvent
+from ros_domain import loopback_own_domain  # noqa: E402  (bench/ is this script's folder)
 
 loopback_own_domain()   # the executor-gap part starts rclpy: loopback, a domain of its own
 
@@ -205,9 +204,9 @@ def executor_gaps(path: str, n_people: int, t_end: float) -> dict:
     (store/jobs.py, reported back by a guard condition as in ros/node_entities.py), on the big
     store; the reference row runs a forget in a timer callback, as the node did.
     """
+    from helpaware_node.store.jobs import StoreJobs
     import rclpy
     from rclpy.executors import SingleThreadedExecutor
-    from helpaware_node.store.jobs import StoreJobs
     ctx = rclpy.Context()
     rclpy.init(args=[], context=ctx)
     node = rclpy.create_node("bench_store_gaps", context=ctx, start_parameter_services=False,

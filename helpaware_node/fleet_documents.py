@@ -17,18 +17,18 @@ Unknown extra fields are covered by the signature and otherwise ignored.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 import json
 import secrets
 import time
-from dataclasses import dataclass
 from typing import Any, Callable, Mapping, Optional
 
 from .core import CoreInputError, Result
-from .signing import SIGNATURE_FIELDS, KeyRing, Refused
-from .store.base import AskEvent, StoredEvent
 from .core.preview import describe, quoted
-from .store.ids import PERSON_KEY_RE, check_ask, check_event, check_text
-from .wire import MAX_ID_CHARS, WireError, parse_json
+from .signing import KeyRing, Refused, SIGNATURE_FIELDS
+from .store.base import AskEvent, StoredEvent
+from .store.ids import check_ask, check_event, check_text, PERSON_KEY_RE
+from .wire import MAX_ID_CHARS, parse_json, WireError
 
 FORMAT_VERSION = 2
 UNSIGNED_VERSION = 1          # the format before signatures: refused, with a message saying so

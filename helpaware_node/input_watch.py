@@ -46,9 +46,9 @@ class InputWatch:
         if len(set(self.topics)) != len(self.topics) or not self.topics:
             raise ValueError(f"topics: {self.topics!r} must be distinct and not empty")
         self.start_s = float(start_s)
-        self._last_s: dict[str, Optional[float]] = {t: None for t in self.topics}
-        self._first_s: dict[str, Optional[float]] = {t: None for t in self.topics}
-        self._episode_from_s: dict[str, Optional[float]] = {t: None for t in self.topics}
+        self._last_s: dict[str, Optional[float]] = dict.fromkeys(self.topics, None)
+        self._first_s: dict[str, Optional[float]] = dict.fromkeys(self.topics, None)
+        self._episode_from_s: dict[str, Optional[float]] = dict.fromkeys(self.topics, None)
 
     def note(self, topic: str, now_s: float) -> None:
         """Note that a message on `topic` arrived at `now_s`."""

@@ -35,12 +35,12 @@ NaN, infinities, lone surrogates and nesting deeper than MAX_DEPTH are refused b
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 import hashlib
 import hmac
 import math
 import re
 import struct
-from dataclasses import dataclass
 from typing import Any, Mapping, Optional
 
 from .core.model import CoreInputError

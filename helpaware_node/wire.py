@@ -11,19 +11,19 @@ can re-run `core.policy.decide` and get the recorded action and person back.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 import functools
 import json
 import math
 import re
-from dataclasses import dataclass, field
 from typing import Any, Iterable, Mapping, NoReturn, Optional, Sequence
 
 import numpy as np
 
 from .core.belief import Belief
-from .core.model import MAX_ASKS_CAP, DecisionConfig, SiteModel, from_plain, to_plain
+from .core.model import DecisionConfig, from_plain, MAX_ASKS_CAP, SiteModel, to_plain
 from .core.person import Result
-from .core.policy import HOUR_S, Candidate, Decision, HelpNeed
+from .core.policy import Candidate, Decision, HelpNeed, HOUR_S
 from .core.preview import describe, quoted, short_name, short_number
 
 try:      # optional (pip extra "fast"): writes a 200-candidate decision ~10x faster

@@ -10,12 +10,11 @@ Every few seconds the behaviour layer opens a help need, the decider decides who
 the invented people in view, the ask delivery answers, and each node logs its side. Arguments
 and command lines come from helpaware_node.ros.launch_config (LOOP_ARGUMENTS).
 """
+from helpaware_node.ros import launch_config as lc
 from launch import LaunchDescription
 from launch.actions import DeclareLaunchArgument, OpaqueFunction
 from launch.substitutions import LaunchConfiguration
 from launch_ros.actions import Node
-
-from helpaware_node.ros import launch_config as lc
 
 
 def _loop(context, *args, **kwargs):

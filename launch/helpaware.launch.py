@@ -8,12 +8,11 @@ Arguments, executable, parameter file lookup and remaps come from
 helpaware_node.ros.launch_config (DECIDER_ARGUMENTS; docs/integration.md lists them), which the
 demo and the tests use too. Only launch names that exist in every release named above.
 """
+from helpaware_node.ros import launch_config as lc
 from launch import LaunchDescription
 from launch.actions import DeclareLaunchArgument, OpaqueFunction
 from launch.substitutions import LaunchConfiguration
 from launch_ros.actions import Node
-
-from helpaware_node.ros import launch_config as lc
 
 
 def _decider(context, *args, **kwargs):

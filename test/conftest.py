@@ -4,8 +4,8 @@ import os
 import random
 import tempfile
 
-import pytest
 from hypothesis import HealthCheck, settings
+import pytest
 
 # Set here, not inherited: DDS stays on loopback, and this run does not hear parallel runs.
 os.environ["ROS_AUTOMATIC_DISCOVERY_RANGE"] = "LOCALHOST"

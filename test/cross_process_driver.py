@@ -7,11 +7,10 @@ import json
 import sys
 import time
 
-import rclpy
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
-from std_msgs.msg import String
-
 from helpaware_node import wire
+import rclpy
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
+from std_msgs.msg import String
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 

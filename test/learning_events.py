@@ -3,12 +3,11 @@ from __future__ import annotations
 
 import hashlib
 
-import numpy as np
-
 from helpaware_node.core.person import Result
-from helpaware_node.fit.simulate_outcomes import SimulatedAsks, simulate_with_asks
+from helpaware_node.fit.simulate_outcomes import simulate_with_asks, SimulatedAsks
 from helpaware_node.fit.site_likelihood import SiteParams
 from helpaware_node.store.base import AskEvent, StoredEvent
+import numpy as np
 
 RESULTS = {0: Result.HELPED, 1: Result.DECLINED, 2: Result.NO_RESPONSE}
 
@@ -26,7 +25,7 @@ def events(sim: SimulatedAsks, robots: tuple[str, ...] = ("r1",)
     store.
     """
     keys = [key_of(k) for k in sim.person_keys]
-    seq = {r: 0 for r in robots}
+    seq = dict.fromkeys(robots, 0)
     outcomes, asks = [], []
     order = np.argsort(sim.ask_time_s, kind="stable")
     for n, i in enumerate(order):

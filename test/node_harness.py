@@ -3,14 +3,13 @@ from __future__ import annotations
 
 import time
 
+from helpaware_node import wire
+from helpaware_node.ros.node import HelpAwareNode
 import rclpy
 from rclpy.executors import SingleThreadedExecutor
 from rclpy.parameter import Parameter
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
-
-from helpaware_node import wire
-from helpaware_node.ros.node import HelpAwareNode
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 
@@ -92,7 +91,7 @@ class Rig:
         A signed opt_out or forget request for a perceived id, as `helpaware privacy` sends it
         (signed with the node's own site key file).
         """
-        from helpaware_node.fleet_documents import PrivacyAct, encode_document
+        from helpaware_node.fleet_documents import encode_document, PrivacyAct
         from helpaware_node.ros.privacy import PRIVACY_QOS
         if getattr(self, "_privacy_pub", None) is None:
             self._privacy_pub = self.driver.create_publisher(String, self.node.privacy.topic,

@@ -4,7 +4,7 @@ from __future__ import annotations
 import copy
 from typing import Mapping
 
-from helpaware_node.sim.scenario import Scenario, parse
+from helpaware_node.sim.scenario import parse, Scenario
 
 
 def scenario_from(base: Mapping, **changes) -> Scenario:

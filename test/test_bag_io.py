@@ -1,12 +1,18 @@
 """bagio: MCAP v9 bags with ROS 2 definitions; MCAP and sqlite3 bags read the same; damage."""
 import struct
 
+from helpaware_node.bag import (
+    BagReadError,
+    BagSource,
+    BagWriter,
+    deserialize_string,
+    serialize_string,
+    STRING_TYPE,
+    typestore,
+)
 import pytest
 from rosbags.rosbag2 import Reader, Writer
 from rosbags.rosbag2.enums import StoragePlugin
-
-from helpaware_node.bag import (BagReadError, BagSource, BagWriter, STRING_TYPE,
-                                deserialize_string, serialize_string, typestore)
 
 
 def test_string_cdr_matches_rosbags_serialiser():

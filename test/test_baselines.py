@@ -1,14 +1,20 @@
 """Comparison policies: each picks only eligible people and does what its name says."""
 from __future__ import annotations
 
+from helpaware_node.core import Belief, Candidate, decide, DecisionConfig, HelpNeed, SiteModel
+from helpaware_node.core.baselines import (
+    BusynessThreshold,
+    choose_nearest,
+    choose_never,
+    make_chooser,
+    Oracle,
+    POLICY_NAMES,
+    ThompsonSampling,
+    WillingnessOnly,
+)
+from helpaware_node.core.policy import evaluate
 import numpy as np
 import pytest
-
-from helpaware_node.core import Belief, Candidate, DecisionConfig, HelpNeed, SiteModel, decide
-from helpaware_node.core.baselines import (POLICY_NAMES, BusynessThreshold, Oracle,
-                                           ThompsonSampling, WillingnessOnly, choose_nearest,
-                                           choose_never, make_chooser)
-from helpaware_node.core.policy import evaluate
 
 MODEL, CONFIG = SiteModel(), DecisionConfig()
 NOW = 5000.0

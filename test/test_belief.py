@@ -1,14 +1,22 @@
 """Beta belief updates checked against outside references (each named beside its check)."""
 import math
 
+from helpaware_node.core import Belief, CoreInputError, SiteModel
+from helpaware_node.core.belief import (
+    declined_ab,
+    declined_moments,
+    forget,
+    predictive_help,
+    update_declined,
+    update_helped,
+    update_no_response,
+)
+from helpaware_node.core.context import context_factor
+from hypothesis import given, strategies as st
 import numpy as np
 import pytest
 from scipy import integrate, stats
 from scipy.special import beta as beta_fn
-
-from helpaware_node.core import Belief, CoreInputError, SiteModel
-from helpaware_node.core.belief import (declined_ab, declined_moments, forget, predictive_help,
-                                        update_declined, update_helped, update_no_response)
 
 
 @pytest.mark.parametrize("a,b", [(1.0, 1.0), (2.0, 3.0), (0.4, 7.5), (30.0, 2.0)])
@@ -130,9 +138,6 @@ def test_bad_site_model_names_the_field():
 
 
 # -- one-person paths (the store's fold of one outcome) against the vectorised ones ----------
-from hypothesis import given, strategies as st  # noqa: E402
-
-from helpaware_node.core.context import context_factor  # noqa: E402
 
 POSITIVE = st.floats(min_value=5e-324, max_value=1e12, allow_nan=False)
 UNIT = st.one_of(st.floats(0.0, 1.0), st.sampled_from([0.0, 1.0, 5e-324, 1.0 - 2 ** -53]))

@@ -3,9 +3,8 @@
 It is not on PyPI (no ros-ament-copyright wheel), so the venv of `make test` does not have it;
 a ROS 2 install has it as ros-<distro>-ament-copyright. Without it the test skips and says so.
 """
-import pytest
-
 from lint_paths import SOURCE_PATHS
+import pytest
 
 try:
     from ament_copyright.main import main

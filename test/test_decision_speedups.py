@@ -12,20 +12,23 @@ import dataclasses
 import json
 import math
 
-import numpy as np
-import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-
 from helpaware_node import wire
-from helpaware_node.core import Belief, Candidate, CoreInputError, DecisionConfig, HelpNeed
-from helpaware_node.core import SiteModel
+from helpaware_node.core import (
+    Belief,
+    Candidate,
+    CoreInputError,
+    DecisionConfig,
+    HelpNeed,
+    SiteModel,
+)
 from helpaware_node.core.model import check_range
-from helpaware_node.core.person import PersonRecord, note_candidate
+from helpaware_node.core.person import note_candidate, PersonRecord
 from helpaware_node.core.policy import decide
 from helpaware_node.session import HelpSession, SessionRules
 from helpaware_node.store import MemoryStore
-
+from hypothesis import given, settings, strategies as st
+import numpy as np
+import pytest
 from session_people import Person
 
 NUMBERS = st.one_of(st.floats(allow_nan=True, allow_infinity=True), st.integers(-3, 3),
@@ -173,10 +176,9 @@ def test_a_person_still_in_view_keeps_the_key_the_store_gives():
 
 
 def test_markers_are_updated_in_place_and_people_who_left_are_deleted():
-    from visualization_msgs.msg import Marker
-
     from helpaware_node.ros.markers import PersonMarkers
     from helpaware_node.session.state import Seen
+    from visualization_msgs.msg import Marker
 
     def seen(*people):
         return {p: Seen(wire.SeenPerson(p, d, 0.2, "", (d, 1.0, 0.0)), f"k-{p}", 1.0, "map")
@@ -319,8 +321,8 @@ def test_the_lasting_costs_early_exit_gives_the_general_zeros(rate, alpha, beta,
        first=st.one_of(st.none(), st.floats(0.0, 1e6)), out=st.booleans(),
        asks=st.lists(st.floats(0.0, 1e6), max_size=3))
 def test_candidate_from_record_is_the_constructors_candidate(d, t, x, count, first, out, asks):
-    from helpaware_node.core.policy import candidate_from_record
     from helpaware_node.core.person import belief_at
+    from helpaware_node.core.policy import candidate_from_record
     model = SiteModel()
     rec = PersonRecord(Belief(2.0, 3.0), 10.0, tuple(asks), count, first)
     try:
@@ -385,8 +387,8 @@ def test_the_fast_reading_gives_the_strict_readings_value_or_error(value, spaced
 
 @pytest.mark.skipif(wire.orjson is None, reason="orjson not installed")
 @pytest.mark.parametrize("text", [
-    '{"doc":"task_status","doc":"people"}', '{"a":{"b":1,"b":2}}', '[NaN]', '{"a":-Infinity}',
-    '[1e400]', '"\\ud800"', '123456789012345678901234567890', "[" * 480 + "]" * 480,
+    '{"doc":"task_status","doc":"people"}', '{"a":{"b":1,"b":2}}', "[NaN]", '{"a":-Infinity}',
+    "[1e400]", '"\\ud800"', "123456789012345678901234567890", "[" * 480 + "]" * 480,
     '{"doc":"task_status","version":1,"request_id":"a","state":"open","kind":"door"}'])
 def test_the_fast_reading_on_the_strict_readings_hard_cases(text):
     assert verdict(text) == strict_parse(text)

@@ -8,19 +8,21 @@ References, each named beside its check:
   so it checks the code's mixture algebra too;
 - scipy.integrate.quad of the exact posterior (1 - c w) Beta(w; a, b), where quad is reliable.
 """
-import math
 from fractions import Fraction
-
-import numpy as np
-import pytest
-from hypothesis import given
-from hypothesis import strategies as st
-from scipy import integrate, stats
-from scipy.special import beta as beta_fn
+import math
 
 from helpaware_node.core import Belief, SiteModel
-from helpaware_node.core.belief import (declined_ab, declined_moments, update_declined,
-                                        update_no_response)
+from helpaware_node.core.belief import (
+    declined_ab,
+    declined_moments,
+    update_declined,
+    update_no_response,
+)
+from hypothesis import given, strategies as st
+import numpy as np
+import pytest
+from scipy import integrate, stats
+from scipy.special import beta as beta_fn
 
 SMALLEST_NORMAL = 2.2250738585072014e-308
 ULP = 2.0 ** -52

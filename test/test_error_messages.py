@@ -7,18 +7,24 @@ of wire.py must answer only with CoreInputError / WireError, under MESSAGE_LIMIT
 """
 import math
 
-import pytest
-from hypothesis import given
-from hypothesis import strategies as st
-
+from document_paths import field_paths, replaced
 from helpaware_node import wire
-from helpaware_node.core import (Belief, Candidate, CoreInputError, DecisionConfig, HelpNeed,
-                                 OutcomeEvent, Result, SiteModel, params_hash)
+from helpaware_node.core import (
+    Belief,
+    Candidate,
+    CoreInputError,
+    DecisionConfig,
+    HelpNeed,
+    OutcomeEvent,
+    params_hash,
+    Result,
+    SiteModel,
+)
 from helpaware_node.core.baselines import make_chooser
 from helpaware_node.core.model import check_range, from_plain, to_plain
-from helpaware_node.core.preview import MAX_PREVIEW_CHARS, describe, quoted, short_name
-
-from document_paths import field_paths, replaced
+from helpaware_node.core.preview import describe, MAX_PREVIEW_CHARS, quoted, short_name
+from hypothesis import given, strategies as st
+import pytest
 from test_wire import valid_documents
 
 MESSAGE_LIMIT = 400   # characters; the longest seen is printed by test_longest_messages
@@ -79,8 +85,8 @@ def refused_within_bounds(call, errors=(CoreInputError,)):
         return exc
 
 
-SITE_FIELDS = [f for f in to_plain(SiteModel())]
-CONFIG_FIELDS = [f for f in to_plain(DecisionConfig())]
+SITE_FIELDS = list(to_plain(SiteModel()))
+CONFIG_FIELDS = list(to_plain(DecisionConfig()))
 
 
 @given(json_like)
@@ -263,8 +269,8 @@ def test_longest_messages():
 
 
 def test_context_factor_names_the_first_bad_value_not_the_array():
-    import numpy as np
     from helpaware_node.core import context_factor
+    import numpy as np
     busyness = np.full(5000, 0.2)
     busyness[1234] = 7.5
     with pytest.raises(CoreInputError,

@@ -10,17 +10,23 @@ conditions.
 """
 import sqlite3
 
-import pytest
-from hypothesis import given, strategies as st
-
 from helpaware_node.core import Result
 from helpaware_node.core.model import CoreInputError
 from helpaware_node.store import MemoryStore, SqliteStore, StoredEvent
 from helpaware_node.store.base import AskEvent
-from helpaware_node.store.ids import (MAX_EVENT_ID_CHARS, MAX_ROBOT_ID_CHARS, MAX_SEQUENCE,
-                                      check_ask, check_event, check_event_id, check_robot_id,
-                                      refused_by_store)
+from helpaware_node.store.ids import (
+    check_ask,
+    check_event,
+    check_event_id,
+    check_robot_id,
+    MAX_EVENT_ID_CHARS,
+    MAX_ROBOT_ID_CHARS,
+    MAX_SEQUENCE,
+    refused_by_store,
+)
 from helpaware_node.wire import MAX_ID_CHARS, MAX_LABEL_CHARS
+from hypothesis import given, strategies as st
+import pytest
 
 KEY = "ab" * 32
 

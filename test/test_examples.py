@@ -3,14 +3,12 @@
 The example stand-ins of docs/integration.md (helpaware_node/ros/examples/) work against the
 decision node, in-process as users' own tests would start them.
 """
-import pytest
-from rclpy.parameter import Parameter
-
 from helpaware_node.core.belief import Belief
 from helpaware_node.ros.examples import AskDelivery, BehaviourLayer, PerceptionStandIn
 from helpaware_node.ros.examples.perception import parse_people
-
 from node_harness import Rig
+import pytest
+from rclpy.parameter import Parameter
 
 
 def test_behaviour_layer_and_ask_delivery_close_the_loop(ctx):

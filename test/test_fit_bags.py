@@ -4,9 +4,8 @@ Skipped while the review's loader (review/data.py and its documents module) is n
 The check: every answered ask in the sample bag is read, with the busyness and ask load the
 decision's candidate row recorded (the same numbers the core used for p).
 """
-import pytest
-
 from helpaware_node.fit.data import HELPED
+import pytest
 
 review_data = pytest.importorskip("helpaware_node.review.data", exc_type=ImportError)
 review_sample = pytest.importorskip("helpaware_node.review.sample", exc_type=ImportError)

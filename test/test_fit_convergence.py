@@ -18,21 +18,25 @@ Outside sources, named beside each check:
 import json
 import math
 
-import numpy as np
-import pytest
-from hypothesis import given, strategies as st
-from scipy import integrate, optimize, stats
-from scipy.special import digamma, expit, gammaln, logit, polygamma
-
 from helpaware_node.cli import main as cli_main
-from helpaware_node.fit.convergence import (NEWTON_STEP_TOL, SCALED_GRADIENT_TOL, Coordinate,
-                                            assess_convergence, hessian_by_differences)
-from helpaware_node.fit.data import DECLINED, HELPED, from_arrays, from_group_counts
+from helpaware_node.fit.convergence import (
+    assess_convergence,
+    Coordinate,
+    hessian_by_differences,
+    NEWTON_STEP_TOL,
+    SCALED_GRADIENT_TOL,
+)
+from helpaware_node.fit.data import DECLINED, from_arrays, from_group_counts, HELPED
 from helpaware_node.fit.glmm import RandomInterceptLogit
 from helpaware_node.fit.simulate_outcomes import simulate
 from helpaware_node.fit.site_fit import fit_site
 from helpaware_node.fit.site_likelihood import SiteLikelihood, SiteParams
+from hypothesis import given, strategies as st
+import numpy as np
+import pytest
 from reference_tables import cbpp_design, rat_tumour_groups
+from scipy import integrate, optimize, stats
+from scipy.special import digamma, expit, gammaln, logit, polygamma
 
 BUDGETS = list(range(1, 13)) + [500]     # every iteration limit up to past convergence
 

@@ -71,15 +71,15 @@ def test_line_numbers_still_name_the_bad_line_after_a_multiline_field(tmp_path):
                  'e1,k1,10,0.2,0.0,helped,"line\n# inside\nbreak"\n'
                  "\n"
                  "e2,k1,20,1.7,0.0,helped,door\n", encoding="utf-8")
-    import pytest
     from helpaware_node.fit.data import FitInputError
+    import pytest
     with pytest.raises(FitInputError, match=r"a\.csv:7: busyness 1\.7"):
         read_outcome_csv([str(p)])
 
 
 def test_a_file_that_is_not_utf8_is_named(tmp_path):
-    import pytest
     from helpaware_node.fit.data import FitInputError
+    import pytest
     p = tmp_path / "latin.csv"
     p.write_bytes(b"event_id,person_key,time_s,busyness,result\ne1,k\xe9,1,0.1,helped\n")
     with pytest.raises(FitInputError, match=r"latin\.csv: not UTF-8"):

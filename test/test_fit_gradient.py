@@ -7,18 +7,20 @@ likelihood by scipy.differentiate.hessian (which never sees our gradient).
 """
 import math
 
-import numpy as np
-import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-from scipy import differentiate, optimize
-from scipy.special import betaln, digamma
-
 from helpaware_node.fit.pseudo_outcomes import pseudo_outcomes
 from helpaware_node.fit.simulate_outcomes import simulate, simulate_with_asks
-from helpaware_node.fit.site_fit import NAMES, Objective, fit_site, natural_jacobian, to_theta
-from helpaware_node.fit.site_likelihood import (SiteLikelihood, SiteParams, beta_rule,
-                                                beta_rule_derivatives)
+from helpaware_node.fit.site_fit import fit_site, NAMES, natural_jacobian, Objective, to_theta
+from helpaware_node.fit.site_likelihood import (
+    beta_rule,
+    beta_rule_derivatives,
+    SiteLikelihood,
+    SiteParams,
+)
+from hypothesis import given, settings, strategies as st
+import numpy as np
+import pytest
+from scipy import differentiate, optimize
+from scipy.special import betaln, digamma
 
 TRUTH = SiteParams(2.0, 3.0, 1.5, 0.7, 0.6, 0.7, 3600.0)
 # small tables, built once: with ask times (the half-life is a coordinate) and without

@@ -5,20 +5,25 @@ core.model.SiteModel's own validation for the written file.
 """
 import math
 
-import numpy as np
-import pytest
-import yaml
-
 from helpaware_node.cli import main as cli_main
 from helpaware_node.core.context import ask_load
 from helpaware_node.core.model import SiteModel
-from helpaware_node.fit.data import (DECLINED, HELPED, NO_RESPONSE, FitInputError, from_arrays,
-                                     read_outcome_csv)
+from helpaware_node.fit.data import (
+    DECLINED,
+    FitInputError,
+    from_arrays,
+    HELPED,
+    NO_RESPONSE,
+    read_outcome_csv,
+)
 from helpaware_node.fit.heldout import calibration_table, kfold, log_loss
 from helpaware_node.fit.paramfile import DEFAULT_NODE_NAME, FITTED_NAMES, read_param_file
+from helpaware_node.fit.simulate_outcomes import simulate
 from helpaware_node.fit.site_fit import fit_site
 from helpaware_node.fit.site_likelihood import SiteParams
-from helpaware_node.fit.simulate_outcomes import simulate
+import numpy as np
+import pytest
+import yaml
 
 HEADER = "event_id,person_key,time_s,busyness,ask_load,result,request_kind\n"
 NAMES = {HELPED: "helped", DECLINED: "declined", NO_RESPONSE: "no_response"}
@@ -156,7 +161,7 @@ def test_written_file_changes_the_decision_as_expected(tmp_path, k_busy_truth, e
     # asking the busy person stops paying (p = c a0/(a0+b0) falls by exp(-0.6 k_busy))
     from helpaware_node.core.belief import Belief
     from helpaware_node.core.model import DecisionConfig
-    from helpaware_node.core.policy import Candidate, HelpNeed, decide
+    from helpaware_node.core.policy import Candidate, decide, HelpNeed
     d = simulate(SiteParams(2.0, 3.0, k_busy_truth, 0.7, 0.6, 0.7), 150, 8, seed=31)
     out = tmp_path / "tuned.yaml"
     assert cli_main(["fit", write_csv(tmp_path / "o.csv", d), "--out", str(out),
@@ -173,9 +178,9 @@ def test_written_file_changes_the_decision_as_expected(tmp_path, k_busy_truth, e
 def test_reads_the_store_export(tmp_path):
     # the store's own CSV export (store/export.write_csv) read back by the fit reader
     from helpaware_node.core.person import Result
-    from helpaware_node.store.base import StoredEvent, person_key
-    from helpaware_node.store.sqlite import SqliteStore
+    from helpaware_node.store.base import person_key, StoredEvent
     from helpaware_node.store.export import write_csv as store_write_csv
+    from helpaware_node.store.sqlite import SqliteStore
     key = b"k" * 32
     store = SqliteStore(tmp_path / "s.db", "r1", key)
     results = [Result.HELPED, Result.DECLINED, Result.NO_RESPONSE, Result.COULD_NOT_ASK]

@@ -4,9 +4,8 @@ Checked against the node's parameter table (helpaware_node/ros/params.py) and, t
 by declaring every parameter on a node started with `--params-file` on the written file.
 """
 
-import pytest
-
 from helpaware_node.fit.paramfile import DEFAULT_NODE_NAME, FITTED_NAMES, render_param_file
+import pytest
 
 params = pytest.importorskip("helpaware_node.ros.params")
 

@@ -7,18 +7,17 @@ one-step posterior mean.
 """
 import math
 
-import numpy as np
-import pytest
-from scipy import integrate, optimize, stats
-from scipy.special import betaln, gammaln
-
 from helpaware_node.core.belief import Belief, update_declined, update_no_response
 from helpaware_node.core.model import SiteModel
-from helpaware_node.fit.data import DECLINED, HELPED, NO_RESPONSE, from_arrays, from_group_counts
-from helpaware_node.fit.site_fit import Objective, context_test, fit_site, moments_start, to_theta
-from helpaware_node.fit.site_likelihood import SiteLikelihood, SiteParams, beta_rule
+from helpaware_node.fit.data import DECLINED, from_arrays, from_group_counts, HELPED, NO_RESPONSE
 from helpaware_node.fit.simulate_outcomes import simulate, simulate_with_asks
+from helpaware_node.fit.site_fit import context_test, fit_site, moments_start, Objective, to_theta
+from helpaware_node.fit.site_likelihood import beta_rule, SiteLikelihood, SiteParams
+import numpy as np
+import pytest
 from reference_tables import rat_tumour_groups
+from scipy import integrate, optimize, stats
+from scipy.special import betaln, gammaln
 
 
 def first_70_rat_groups():

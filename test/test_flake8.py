@@ -1,19 +1,23 @@
 """ament_flake8 on every Python source, as the ament_python template's test does.
 
-The settings are setup.cfg's [flake8] (line length 99 as ament's own, excluded paths), kept in
-step with ruff.toml. The PyPI wheels bring flake8 alone (pycodestyle, pyflakes); a ROS install's
-ament_flake8 also loads the plugins its package names (import order, quotes, builtins,
-comprehensions, docstrings, class newline, ...): their findings, mostly import order, are not
-fixed yet, so there this test fails until they are.
+The settings are setup.cfg's [flake8] (line length 99 as ament's own, excluded paths, the
+plugins' options), kept in step with ruff.toml. The flake8 plugins ament_flake8's package.xml
+names (import order, quotes, builtins, comprehensions, docstrings, class newline, ...) are
+pinned in requirements.txt, so this test checks here what `colcon test` checks on a ROS install;
+test_ament_flake8_plugins_loaded keeps it that way.
 """
 import configparser
 import os
+import re
+import sys
 import tomllib
+import xml.etree.ElementTree as ET
 
-import pytest
+import ament_flake8
 from ament_flake8.main import main_with_errors
-
+from flake8.plugins import finder
 from lint_paths import ROOT, SETUP_CFG, SOURCE_PATHS
+import pytest
 
 
 @pytest.mark.flake8
@@ -21,6 +25,49 @@ from lint_paths import ROOT, SETUP_CFG, SOURCE_PATHS
 def test_flake8():
     rc, errors = main_with_errors(argv=["--config", SETUP_CFG] + SOURCE_PATHS)
     assert rc == 0, "Found %d code style errors / warnings:\n" % len(errors) + "\n".join(errors)
+
+
+def _distribution_key(name: str) -> str:
+    """Name a distribution as PyPI compares names (PEP 503): _ and - alike, any case."""
+    return re.sub(r"[-_.]+", "-", name).lower()
+
+
+def _ament_flake8_package_xml() -> str:
+    """Find ament_flake8's package.xml: <prefix>/share/ament_flake8, beside its lib/pythonX/..."""
+    try:  # a sourced ROS install (AMENT_PREFIX_PATH set)
+        from ament_index_python.packages import get_package_share_directory
+        share = get_package_share_directory("ament_flake8")
+    except (ImportError, LookupError, OSError):  # the wheels in .venv: no AMENT_PREFIX_PATH
+        # <prefix>/lib/python3.X/site-packages/ament_flake8 -> <prefix>/share/ament_flake8
+        module_dir = os.path.dirname(ament_flake8.__file__)
+        share = os.path.join(module_dir, *[os.pardir] * 4, "share", "ament_flake8")
+    return os.path.normpath(os.path.join(share, "package.xml"))
+
+
+@pytest.mark.linter
+def test_ament_flake8_plugins_loaded():
+    """Check that every flake8 plugin ament_flake8 exec_depends on is one flake8 loads here.
+
+    Without one, test_flake8 silently stops checking what that plugin checks on a ROS install
+    (as when the PyPI wheels, which name no dependencies, were all this venv had).
+    """
+    package_xml = _ament_flake8_package_xml()
+    assert os.path.isfile(package_xml), f"no package.xml of ament_flake8 at {package_xml}"
+    depends = [e.text.strip() for e in ET.parse(package_xml).getroot().iter("exec_depend")]
+    # rosdep keys python3-<name> are the PyPI distributions <name>; python3-flake8 is flake8 itself
+    wanted = {_distribution_key(d.removeprefix("python3-")) for d in depends
+              if d.startswith("python3-flake8-")}
+    assert len(wanted) >= 8, f"expected ament's eight flake8 plugins in {package_xml}: {depends}"
+    # flake8's own finder, as `flake8 --version` lists them; loading imports each plugin
+    plugins = finder.load_plugins(
+        finder.find_plugins(configparser.RawConfigParser(), finder.PluginOptions.blank()),
+        finder.PluginOptions.blank())
+    loaded = {_distribution_key(p.plugin.package) for p in plugins.all_plugins()}
+    missing = sorted(wanted - loaded)
+    assert not missing, (
+        f"flake8 plugins ament_flake8 needs ({package_xml}) are not installed for "
+        f"{sys.executable}: {missing}; pin them in requirements.txt "
+        f"(flake8 loads: {sorted(loaded)})")
 
 
 @pytest.mark.linter
@@ -34,5 +81,7 @@ def test_ruff_and_flake8_settings_agree():
     excluded = {p.strip() for p in flake8.get("flake8", "exclude").split(",")}
     # ruff already leaves out .git, .venv and __pycache__ (its default exclude list)
     assert set(ruff["extend-exclude"]) | {".git", ".venv", "__pycache__"} == excluded
-    # ruff's rule families are flake8's own checkers: pycodestyle (E, W) and pyflakes (F)
-    assert set(ruff["lint"]["select"]) == {"E", "W", "F"}
+    # ruff's rule families: flake8's own checkers, pycodestyle (E, W) and pyflakes (F), and isort
+    # (I), configured so `ruff check --fix` orders imports as flake8-import-order's google style
+    assert set(ruff["lint"]["select"]) == {"E", "W", "F", "I"}
+    assert flake8.get("flake8", "import-order-style") == "google"

@@ -24,16 +24,15 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from rclpy.context import Context  # noqa: E402
-from std_msgs.msg import String  # noqa: E402
-
-from helpaware_node.core import Belief, Result, SiteModel, fold_events  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.core import Belief, fold_events, Result, SiteModel  # noqa: E402,I100
 from helpaware_node.core.model import CoreInputError  # noqa: E402
-from helpaware_node.fleet_documents import PrivacyAct, encode_document  # noqa: E402
+from helpaware_node.fleet_documents import encode_document, PrivacyAct  # noqa: E402
 from helpaware_node.ros.fleet import FleetLink  # noqa: E402
 from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402
-
+from rclpy.context import Context  # noqa: E402
 from site_keys import write_site_key  # noqa: E402
+from std_msgs.msg import String  # noqa: E402
 
 SITE_KEY = bytes(range(40, 72))
 DEPTH = 300                  # history per publisher; the peers hold exactly that many each

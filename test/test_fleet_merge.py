@@ -1,12 +1,11 @@
 """Fleet convergence: any permutation and duplication of deliveries gives identical beliefs."""
-import pytest
-from hypothesis import given, settings, strategies as st
-
-from helpaware_node.core import Result, SiteModel, fold_events
+from helpaware_node.core import fold_events, Result, SiteModel
 from helpaware_node.core.model import CoreInputError
-from helpaware_node.fleet_documents import PrivacyAct, decode_document, encode_document
+from helpaware_node.fleet_documents import decode_document, encode_document, PrivacyAct
 from helpaware_node.ros.fleet import merge
 from helpaware_node.store import AskEvent, MemoryStore, SiteKeys, SqliteStore, StoredEvent
+from hypothesis import given, settings, strategies as st
+import pytest
 
 MODEL = SiteModel(evidence_half_life_s=3600.0)
 SITE_KEY = b"f" * 32

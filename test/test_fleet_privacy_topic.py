@@ -9,18 +9,22 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.core import Result  # noqa: E402,I100
+from helpaware_node.core.model import CoreInputError  # noqa: E402
+from helpaware_node.fleet_documents import (  # noqa: E402
+    decode_document,
+    encode_document,
+    parse_unsigned_request,
+    PrivacyAct,
+    REQUEST_MAX_AGE_S,
+)
+from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC, FleetLink  # noqa: E402
+from helpaware_node.ros.privacy import PRIVACY_QOS, PRIVACY_TOPIC, PrivacyRequests  # noqa: E402
+from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402
 from rclpy.context import Context  # noqa: E402
 from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 from std_msgs.msg import String  # noqa: E402
-
-from helpaware_node.core import Result  # noqa: E402
-from helpaware_node.core.model import CoreInputError  # noqa: E402
-from helpaware_node.fleet_documents import (REQUEST_MAX_AGE_S, PrivacyAct,  # noqa: E402
-                                            decode_document, encode_document,
-                                            parse_unsigned_request)
-from helpaware_node.ros.fleet import FLEET_TOPIC, FleetLink, fleet_qos  # noqa: E402
-from helpaware_node.ros.privacy import PRIVACY_QOS, PRIVACY_TOPIC, PrivacyRequests  # noqa: E402
-from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402
 
 SITE_KEY = b"p" * 32
 

@@ -13,18 +13,19 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.fleet_documents import decode_document  # noqa: E402,I100
+from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC  # noqa: E402
+from helpaware_node.store.keys import load_site_key, load_site_keys  # noqa: E402
 from rclpy.context import Context  # noqa: E402
 from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 from std_msgs.msg import String  # noqa: E402
-
-from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos  # noqa: E402
-from helpaware_node.fleet_documents import decode_document  # noqa: E402
-from helpaware_node.store.keys import load_site_key, load_site_keys  # noqa: E402
 
 RAW = ["nurse-ingrid-olsen", "porter-7-night", "warmup-person"]
 
 
 class Peer:
+
     def __init__(self, tmp_path, robot_id):
         self.lines: queue.Queue = queue.Queue()
         self.proc = subprocess.Popen(

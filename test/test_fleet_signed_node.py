@@ -21,19 +21,21 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from rclpy.executors import SingleThreadedExecutor  # noqa: E402
-from std_msgs.msg import String  # noqa: E402
-
-from helpaware_node.core import Result, fold_events  # noqa: E402
-from helpaware_node.fleet_documents import (PrivacyAct, decode_document,  # noqa: E402
-                                            encode_document)
-from helpaware_node.ros.fleet import FLEET_TOPIC, FleetLink, fleet_qos  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.core import fold_events, Result  # noqa: E402,I100
+from helpaware_node.fleet_documents import (  # noqa: E402
+    decode_document,
+    encode_document,
+    PrivacyAct,
+)
+from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC, FleetLink  # noqa: E402
 from helpaware_node.signing import canonical_bytes  # noqa: E402
 from helpaware_node.store import SiteKeys, SqliteStore, StoredEvent  # noqa: E402
 from helpaware_node.store.keys import rotate_signing_key  # noqa: E402
-
 from node_harness import Rig  # noqa: E402
+from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 from site_keys import write_site_key  # noqa: E402
+from std_msgs.msg import String  # noqa: E402
 
 SITE_KEY = bytes(range(140, 172))
 STRANGER_KEY = bytes(range(200, 232))

@@ -6,14 +6,16 @@ Cross-checks with scipy.integrate.quad.
 """
 import math
 
+from helpaware_node.fit.glmm import (
+    new_group_help_probability,
+    RandomInterceptLogit,
+    sequential_help_probability,
+)
 import numpy as np
 import pytest
+from reference_tables import cbpp_design
 from scipy import integrate, stats
 from scipy.special import expit
-
-from helpaware_node.fit.glmm import (RandomInterceptLogit, new_group_help_probability,
-                                     sequential_help_probability)
-from reference_tables import cbpp_design
 
 
 @pytest.fixture(scope="module")

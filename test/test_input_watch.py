@@ -6,11 +6,9 @@ since the last message) are checked with hypothesis over random message and chec
 """
 from fractions import Fraction
 
+from helpaware_node.input_watch import change_text, InputWatch, warning_text
+from hypothesis import given, strategies as st
 import pytest
-from hypothesis import given
-from hypothesis import strategies as st
-
-from helpaware_node.input_watch import InputWatch, change_text, warning_text
 
 TOPICS = ("people", "task_status")
 

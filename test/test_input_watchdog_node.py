@@ -6,9 +6,8 @@ topic, the matched publishers and the silence, and the log says so once per sile
 assertion is the parameter itself.
 """
 from diagnostic_msgs.msg import DiagnosticStatus
-from rclpy.parameter import Parameter
-
 from node_harness import Rig
+from rclpy.parameter import Parameter
 
 LIMIT_S = 0.6
 NURSE = {"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1}

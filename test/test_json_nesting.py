@@ -8,13 +8,12 @@ documents, not read from the code.
 """
 import json
 
-import pytest
-from hypothesis import given, strategies as st
-
 from helpaware_node import wire
-from helpaware_node.fleet_documents import decode_document
 from helpaware_node.core.model import CoreInputError
+from helpaware_node.fleet_documents import decode_document
 from helpaware_node.store import SiteKeys
+from hypothesis import given, strategies as st
+import pytest
 
 
 def nested(depth: int, as_object: bool = False) -> str:

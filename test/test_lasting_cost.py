@@ -9,16 +9,18 @@ from __future__ import annotations
 
 import math
 
-import numpy as np
-import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-from scipy import integrate, special
-
 from helpaware_node.core import Belief, Candidate, DecisionConfig, HelpNeed, SiteModel
 from helpaware_node.core.lasting import decay_mean, lasting_cost
-from helpaware_node.core.policy import (encounter_rate_per_s, evaluate, future_ask_rate_per_s,
-                                        typical_terms)
+from helpaware_node.core.policy import (
+    encounter_rate_per_s,
+    evaluate,
+    future_ask_rate_per_s,
+    typical_terms,
+)
+from hypothesis import given, settings, strategies as st
+import numpy as np
+import pytest
+from scipy import integrate, special
 
 
 def typical_u(load, alpha, beta, gamma, k):
@@ -163,8 +165,8 @@ def test_the_zero_of_the_typical_advantage(alpha, beta, gamma, k):
     gamma L (bracket [0, 1e4] or, for a root beyond double range near alpha e^(-kL) = gamma L, its
     log form).
     """
-    from scipy.optimize import brentq
     from helpaware_node.core.lasting import _root
+    from scipy.optimize import brentq
     got = float(_root(np.array([alpha]), np.array([beta]), np.array([gamma]), k)[0])
     if beta == 0.0 or beta < 1e-200:
         # log alpha - k L = log(beta + gamma L): solve in logs (gamma L beyond double range)
@@ -177,7 +179,7 @@ def test_the_zero_of_the_typical_advantage(alpha, beta, gamma, k):
 
 
 def test_nothing_is_lost_when_nothing_is_there_to_lose():
-    args = dict(gamma=12.0, k_load=0.7, half_life_s=1800.0, discount_s=14400.0)
+    args = {"gamma": 12.0, "k_load": 0.7, "half_life_s": 1800.0, "discount_s": 14400.0}
     # no look-ahead, no re-encounters, or a person never worth asking at a typical request
     assert lasting_cost(1e-4, 50.0, 20.0, load=0.0, horizon_s=0.0, **args) == 0.0
     assert lasting_cost(0.0, 50.0, 20.0, load=0.0, horizon_s=28800.0, **args) == 0.0

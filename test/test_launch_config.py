@@ -5,11 +5,10 @@ import signal
 import subprocess
 import sys
 
-import pytest
-
 from helpaware_node import wire
 from helpaware_node.core import decide
 from helpaware_node.ros import launch_config
+import pytest
 
 HERE = os.path.dirname(__file__)
 

@@ -18,9 +18,9 @@ def test_demo_runs_a_short_night_and_keeps_its_store(tmp_path):
     # the store stays beside the bag and the report, and holds every answered ask
     demo = tmp_path / "out" / "demo"
     assert {"beliefs.sqlite3", "site_key", "night_shift_bag", "review"} <= set(os.listdir(demo))
-    counts = dict((k, int(v)) for k, v in re.findall(
+    counts = {k: int(v) for k, v in re.findall(
         r"(helped|declined|no response|could not ask) (\d+)",
-        next(x for x in out.splitlines() if x.startswith("needs 8:"))))
+        next(x for x in out.splitlines() if x.startswith("needs 8:")))}
     inspect = subprocess.run([sys.executable, "-m", "helpaware_node.cli", "store", "--path",
                               "out/demo/beliefs.sqlite3", "inspect"], cwd=str(tmp_path),
                              capture_output=True, text=True, timeout=60)

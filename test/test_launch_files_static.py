@@ -17,9 +17,8 @@ import inspect
 import os
 import re
 
-import pytest
-
 from helpaware_node.ros import launch_config as lc
+import pytest
 
 ROOT = os.path.join(os.path.dirname(__file__), "..")
 LAUNCH_DIR = os.path.join(ROOT, "launch")

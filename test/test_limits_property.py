@@ -6,13 +6,22 @@ decide, note_ask with its pruning, note_outcome), with continue costs high enoug
 score would ask whenever a limit allows. The checks use an independent ledger of every ask
 ever made (never pruned), counted directly from the definitions of the limits.
 """
-from hypothesis import given
-from hypothesis import strategies as st
-
-from helpaware_node.core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result,
-                                 SiteModel, candidate_from_record, decide, keep_recent_asks,
-                                 note_ask, note_candidate, note_outcome)
+from helpaware_node.core import (
+    candidate_from_record,
+    decide,
+    DecisionConfig,
+    HelpNeed,
+    keep_recent_asks,
+    note_ask,
+    note_candidate,
+    note_outcome,
+    OutcomeEvent,
+    PersonRecord,
+    Result,
+    SiteModel,
+)
 from helpaware_node.core.model import MAX_REASK_INTERVAL_S
+from hypothesis import given, strategies as st
 
 DAY_S = 86400.0
 HOUR_S = 3600.0

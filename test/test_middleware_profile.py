@@ -9,9 +9,8 @@ import subprocess
 import sys
 import xml.etree.ElementTree as ET
 
-import pytest
-
 from helpaware_node.ros import launch_config
+import pytest
 
 NS = {"dds": "http://www.eprosima.com"}
 PROFILE = os.path.join(os.path.dirname(__file__), "..", "config", "fastdds_robot.xml")

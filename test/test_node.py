@@ -1,13 +1,11 @@
 """The decision node in-process, driven over real topics with bounded spinning."""
-import pytest
-from rclpy.parameter import Parameter
-from std_msgs.msg import String
-
 from helpaware_node import wire
 from helpaware_node.core import decide
 from helpaware_node.core.belief import Belief
-
 from node_harness import Rig
+import pytest
+from rclpy.parameter import Parameter
+from std_msgs.msg import String
 
 
 @pytest.fixture
@@ -171,7 +169,7 @@ def test_markers_and_diagnostics(rig):
     rig.outcome_pub.publish(String(data="not json"))
 
     def warned():
-        return any(s.level == DiagnosticStatus.WARN and dict((v.key, v.value) for v in s.values)
+        return any(s.level == DiagnosticStatus.WARN and {v.key: v.value for v in s.values}
                    .get("outcome.rejected") == "1" for a in rig.diagnostics for s in a.status)
     assert rig.spin_until(warned, 30)
     assert isinstance(rig.diagnostics[-1].status[0].level, bytes)

@@ -7,12 +7,10 @@ straight to the handlers (fast); a smaller set goes through the real topics and 
 import json
 import random
 
-from std_msgs.msg import String
-
-from helpaware_node import wire
-
 from document_paths import field_paths, replaced
+from helpaware_node import wire
 from node_harness import Rig
+from std_msgs.msg import String
 
 N_PER_TOPIC = 1000
 

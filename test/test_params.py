@@ -4,13 +4,12 @@ import re
 import subprocess
 import sys
 
-import pytest
-import yaml
-from rclpy.parameter import Parameter
-
 from helpaware_node.core import DecisionConfig, SiteModel
 from helpaware_node.ros import params
 from helpaware_node.ros.node import HelpAwareNode, StartupError
+import pytest
+from rclpy.parameter import Parameter
+import yaml
 
 ROS_OWN = {"use_sim_time", "start_type_description_service"}  # declared by rclpy itself
 ROOT = os.path.join(os.path.dirname(__file__), "..")

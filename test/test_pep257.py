@@ -5,10 +5,9 @@ for where a multi-line docstring's summary starts. ament picks the second line (
 and checks D213); this code, like PEP 257's own examples, puts the summary on the first line,
 so D212 is checked and D213 ignored. tools/dev/fix_docstrings.py rewrites docstrings into form.
 """
-import pytest
 from ament_pep257.main import main
-
 from lint_paths import SOURCE_PATHS
+import pytest
 
 # ament's default ignore list (ament_pep257.main._ament_ignore) with D213 in place of D212
 IGNORE = ["D100", "D101", "D102", "D103", "D104", "D105", "D106", "D107", "D203", "D213",

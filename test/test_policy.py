@@ -1,12 +1,21 @@
 """The one-step look-ahead decision: formulas, limits and rationale."""
 import math
 
+from helpaware_node.core import (
+    Belief,
+    Candidate,
+    CoreInputError,
+    decide,
+    DecisionConfig,
+    evaluate,
+    Exclusion,
+    HelpNeed,
+    information_value,
+    SiteModel,
+)
+from helpaware_node.core.policy import future_requests, typical_gain
 import numpy as np
 import pytest
-
-from helpaware_node.core import (Belief, Candidate, CoreInputError, DecisionConfig, Exclusion,
-                                 HelpNeed, SiteModel, decide, evaluate, information_value)
-from helpaware_node.core.policy import future_requests, typical_gain
 
 NEED = HelpNeed("r1", "door", opened_at_s=1000.0)
 
@@ -195,8 +204,8 @@ def test_encounter_rate_is_the_gamma_poisson_posterior_mean(count, span_s):
     rate, `count` encounters seen over `span_s` since first seen; the posterior mean by numerical
     integration (scipy.integrate.quad over scipy.stats densities).
     """
-    from scipy import integrate, stats
     from helpaware_node.core.policy import discounted_horizon_s, encounter_rate_per_s
+    from scipy import integrate, stats
     config = DecisionConfig()
     shape = config.prior_candidate_rate_per_day * config.prior_rate_window_s / 86400.0
     scale = 1.0 / config.prior_rate_window_s

@@ -18,15 +18,14 @@ import time
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node import wire  # noqa: E402,I100
+from helpaware_node.ros import launch_config  # noqa: E402
 from rclpy.context import Context  # noqa: E402
 from rclpy.executors import SingleThreadedExecutor  # noqa: E402
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data  # noqa: E402
-from std_msgs.msg import String  # noqa: E402
-
-from helpaware_node import wire  # noqa: E402
-from helpaware_node.ros import launch_config  # noqa: E402
-
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy  # noqa: E402
 from site_keys import write_site_key  # noqa: E402
+from std_msgs.msg import String  # noqa: E402
 
 pytestmark = pytest.mark.ros
 

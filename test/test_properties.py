@@ -1,17 +1,25 @@
 """Property tests (hypothesis) for the invariants of DESIGN.md sections 3 and 4."""
 import math
 
-import numpy as np
-from hypothesis import given
-from hypothesis import strategies as st
-from scipy import integrate, stats
-
-from helpaware_node.core import (Belief, Candidate, DecisionConfig, HelpNeed, OutcomeEvent,
-                                 Result, SiteModel, decide, evaluate, fold_events,
-                                 information_value)
+from helpaware_node.core import (
+    Belief,
+    Candidate,
+    decide,
+    DecisionConfig,
+    evaluate,
+    fold_events,
+    HelpNeed,
+    information_value,
+    OutcomeEvent,
+    Result,
+    SiteModel,
+)
 from helpaware_node.core.belief import declined_moments, update_declined, update_helped
 from helpaware_node.core.person import keep_recent_asks
 from helpaware_node.core.policy import Exclusion
+from hypothesis import given, strategies as st
+import numpy as np
+from scipy import integrate, stats
 
 ab = st.floats(min_value=0.05, max_value=500.0, allow_nan=False)
 cs = st.floats(min_value=0.0, max_value=1.0, allow_nan=False)

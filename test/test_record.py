@@ -6,14 +6,19 @@ import sys
 import textwrap
 import time
 
-import pytest
-
 from helpaware_node import wire
-from helpaware_node.core import DecisionConfig, HelpNeed, PersonRecord, SiteModel
-from helpaware_node.core import candidate_from_record, decide
-from helpaware_node.store.base import person_key
 from helpaware_node.bag import BagSource, deserialize_string, serialize_string
+from helpaware_node.core import (
+    candidate_from_record,
+    decide,
+    DecisionConfig,
+    HelpNeed,
+    PersonRecord,
+    SiteModel,
+)
+from helpaware_node.store.base import person_key
 from helpaware_node.tools.record import id_hasher
+import pytest
 
 KEY = b"test-site-key-of-32-bytes-length"
 RAW = ["nurse-ward3-a", "porter-b"]

@@ -5,10 +5,13 @@ count, and the node's own environment is left as it was.
 """
 import os
 
+from helpaware_node.fit.refit_worker import (
+    BLAS_THREAD_VARS,
+    BlasProbe,
+    RefitWorker,
+    worker_environment,
+)
 import pytest
-
-from helpaware_node.fit.refit_worker import (BLAS_THREAD_VARS, BlasProbe, RefitWorker,
-                                             worker_environment)
 
 
 def empty_reader():
@@ -25,7 +28,7 @@ def probe(worker):
 
 
 def test_worker_environment_sets_one_thread_only_where_unset():
-    assert worker_environment({}) == {name: "1" for name in BLAS_THREAD_VARS}
+    assert worker_environment({}) == dict.fromkeys(BLAS_THREAD_VARS, "1")
     assert worker_environment({"OMP_NUM_THREADS": "4", "MKL_NUM_THREADS": ""}) == {
         "OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
 

@@ -1,10 +1,9 @@
 """Counterfactual replay: recorded parameters reproduce every decision; others are estimates."""
-import pytest
-
 from helpaware_node.core.model import DecisionConfig, SiteModel
+from helpaware_node.node_param_file import load_params, ParamFileError
 from helpaware_node.review import data as review_data, replay as review_replay, report as review
-from helpaware_node.node_param_file import ParamFileError, load_params
 from helpaware_node.review.sample import write_sample_bag
+import pytest
 
 CONFIG = DecisionConfig(max_asks_per_hour=3, min_reask_interval_s=1200.0)
 MODEL = SiteModel(k_busy=1.5, evidence_half_life_s=86400.0)
@@ -77,7 +76,7 @@ def test_bad_parameter_file_names_file_and_field(tmp_path):
 
 def test_a_decision_the_node_forced_to_continue_replays_as_forced():
     from helpaware_node import wire
-    from helpaware_node.core import HelpNeed, PersonRecord, candidate_from_record, decide
+    from helpaware_node.core import candidate_from_record, decide, HelpNeed, PersonRecord
     model, config = SiteModel(), DecisionConfig()
     need = HelpNeed("need-9", "door", 50.0)
     cands = [candidate_from_record("k1", PersonRecord.new(model), 50.0, model, 1.0, 50.0, 0.0)]

@@ -8,14 +8,12 @@ Expected counts come from the documents and outcomes written here, counted in th
 """
 import json
 
-import pytest
-
 from helpaware_node import wire
 from helpaware_node.bag import BagWriter
 from helpaware_node.fit.bags import read_outcome_bags
 from helpaware_node.review.report import build, summary_text
-
 from learning_events import session_across_a_change
+import pytest
 
 LEARNED = {"prior_a": 0.8, "prior_b": 2.4, "k_busy": 3.0, "k_load": 1.2,
            "notice_probability": 0.7, "ask_memory_half_life_s": 5400.0}

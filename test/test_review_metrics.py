@@ -1,10 +1,8 @@
 """Brier score, log loss, reliability bins and Beta intervals against exact hand-worked values."""
 import math
 
+from helpaware_node.review.metrics import beta_interval, brier_score, log_loss, reliability_bins
 import pytest
-
-from helpaware_node.review.metrics import (beta_interval, brier_score, log_loss,
-                                           reliability_bins)
 
 
 def test_brier_hand_worked():

@@ -3,20 +3,19 @@
 Damaged and partial bags.
 """
 import base64
+from collections import Counter
+from html.parser import HTMLParser
 import json
 import os
 import re
 import subprocess
 import sys
-from collections import Counter
-from html.parser import HTMLParser
 
+from helpaware_node.bag import typestore
+from helpaware_node.review import report as review
+from helpaware_node.review.sample import write_sample_bag
 import pytest
 from rosbags.rosbag2 import Reader
-
-from helpaware_node.review import report as review
-from helpaware_node.bag import typestore
-from helpaware_node.review.sample import write_sample_bag
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 
@@ -80,6 +79,7 @@ def test_calibration_uses_only_answered_asks(sample):
 
 
 class _Collect(HTMLParser):
+
     def __init__(self):
         super().__init__()
         self.images, self.headings, self.tags = [], [], Counter()
@@ -98,8 +98,9 @@ class _Collect(HTMLParser):
 
 
 def test_html_parses_and_every_image_is_a_png(sample):
-    import matplotlib.image as mpimg
     import io
+
+    import matplotlib.image as mpimg
     _, out, _, _ = sample
     parser = _Collect()
     parser.feed((out / "report.html").read_text())

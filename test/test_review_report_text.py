@@ -10,14 +10,13 @@ import math
 import re
 import shlex
 
-import pytest
-from hypothesis import given, strategies as st
-
 from helpaware_node.cli import build_parser
 from helpaware_node.review.html import calibration_advice, calibration_gap, duration_text
 from helpaware_node.review.metrics import reliability_bins
 from helpaware_node.review.report import build
 from helpaware_node.review.sample import write_sample_bag
+from hypothesis import given, strategies as st
+import pytest
 
 
 @pytest.mark.parametrize("seconds, text", [

@@ -5,13 +5,10 @@ reason codes); nothing here is computed by the code under test.
 """
 from __future__ import annotations
 
-import pytest
-
 from helpaware_node.core import DecisionConfig, HelpNeed, Result, SiteModel
-from helpaware_node.session import (STORE_UNAVAILABLE, HelpSession, SessionInputError,
-                                    SessionRules)
+from helpaware_node.session import HelpSession, SessionInputError, SessionRules, STORE_UNAVAILABLE
 from helpaware_node.store import AskEvent, MemoryStore, StoredEvent
-
+import pytest
 from session_people import Person
 
 MODEL = SiteModel()

@@ -23,7 +23,6 @@ from helpaware_node.core import DecisionConfig, HelpNeed, PersonRecord, SiteMode
 from helpaware_node.session import HelpSession, SessionRules
 from helpaware_node.session.state import MAX_GOAL_STATUSES, MAX_PEOPLE_IN_VIEW
 from helpaware_node.store import MemoryStore
-
 from session_people import Person
 
 MODEL = SiteModel()

@@ -21,12 +21,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from hypothesis import given, settings, strategies as st
-
 from helpaware_node.core import DecisionConfig, HelpNeed, SiteModel
 from helpaware_node.session import HelpSession, SessionRules
 from helpaware_node.store import AskEvent, MemoryStore, SqliteStore
-
+from hypothesis import given, settings, strategies as st
 from session_people import Person
 
 PEOPLE = ["ann", "bo", "cy", "di", "ed", "fay"]

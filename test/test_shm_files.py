@@ -14,10 +14,9 @@ import signal
 import subprocess
 import sys
 
-import pytest
-
 from helpaware_node.cli import main as cli_main
 from helpaware_node.ros import shm_files
+import pytest
 
 SEGMENT = "fastdds_0123456789abcdef"
 PORT = "fastdds_port7411"
@@ -41,6 +40,7 @@ sys.stdin.read()
 
 
 class Child:
+
     def __init__(self, shm, records, segment=SEGMENT, port=PORT):
         self.proc = subprocess.Popen([sys.executable, "-c", CHILD, str(shm), str(records),
                                       segment, port], stdin=subprocess.PIPE,

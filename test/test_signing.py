@@ -13,17 +13,33 @@ import math
 import os
 import struct
 
-import pytest
-from hypothesis import assume, given, settings, strategies as st
-
 from helpaware_node.core import Result
 from helpaware_node.core.model import CoreInputError
-from helpaware_node.fleet_documents import (KINDS, OLD_FORMAT, PrivacyAct, decode_document,
-                                            encode_document, refusal_reason)
-from helpaware_node.signing import (BAD_SIGNATURE, DOCUMENT_PREFIX, EXPIRED_KEY, OTHER_SITE,
-                                    UNKNOWN_KEY, UNSIGNED, CanonicalError, KeyRing, Refused,
-                                    SigningKey, canonical_bytes, hkdf_sha256)
-from helpaware_node.store import AskEvent, MemoryStore, SiteKeys, StoredEvent, person_key
+from helpaware_node.fleet_documents import (
+    decode_document,
+    encode_document,
+    KINDS,
+    OLD_FORMAT,
+    PrivacyAct,
+    refusal_reason,
+)
+from helpaware_node.signing import (
+    BAD_SIGNATURE,
+    canonical_bytes,
+    CanonicalError,
+    DOCUMENT_PREFIX,
+    EXPIRED_KEY,
+    hkdf_sha256,
+    KeyRing,
+    OTHER_SITE,
+    Refused,
+    SigningKey,
+    UNKNOWN_KEY,
+    UNSIGNED,
+)
+from helpaware_node.store import AskEvent, MemoryStore, person_key, SiteKeys, StoredEvent
+from hypothesis import assume, given, settings, strategies as st
+import pytest
 
 DATA = os.path.join(os.path.dirname(__file__), "data", "rfc5869_hkdf_sha256.json")
 SITE_KEY = bytes(range(100, 132))

@@ -6,23 +6,31 @@ import json
 import math
 import os
 
+from helpaware_node.core import (
+    candidate_from_record,
+    decide,
+    DecisionConfig,
+    HelpNeed,
+    note_ask,
+    note_outcome,
+    OutcomeEvent,
+    PersonRecord,
+    Result,
+    SiteModel,
+)
+from helpaware_node.core.baselines import choose_nearest
+from helpaware_node.core.model import CoreInputError
+from helpaware_node.core.person import DAY_S
+from helpaware_node.session import HelpSession, SessionRules
+from helpaware_node.sim.compare import compare
+from helpaware_node.sim.metrics import gini, t_interval
+from helpaware_node.sim.run import open_sim_need, run_policy, SIM_ROBOT_ID
+from helpaware_node.sim.scenario import load, parse, ScenarioError
+from helpaware_node.sim.world import build_world, SeenPerson, SimNeed
+from helpaware_node.store import AskEvent, MemoryStore, StoredEvent
 import numpy as np
 import pytest
 from scipy import stats
-
-from helpaware_node.core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result,
-                                 SiteModel, candidate_from_record, decide, note_ask,
-                                 note_outcome)
-from helpaware_node.core.baselines import choose_nearest
-from helpaware_node.core.person import DAY_S
-from helpaware_node.sim.compare import compare
-from helpaware_node.sim.metrics import gini, t_interval
-from helpaware_node.core.model import CoreInputError
-from helpaware_node.session import HelpSession, SessionRules
-from helpaware_node.sim.run import SIM_ROBOT_ID, open_sim_need, run_policy
-from helpaware_node.store import AskEvent, MemoryStore, StoredEvent
-from helpaware_node.sim.scenario import ScenarioError, load, parse
-from helpaware_node.sim.world import SeenPerson, SimNeed, build_world
 from sim_scenarios import scenario_from
 
 BASE = {
@@ -322,6 +330,7 @@ def test_shipped_scenarios_load_and_differ_in_kind():
 
 def _simulate_with(tmp_path, params_text):
     import json as _json
+
     from helpaware_node import cli
     params = tmp_path / "site.yaml"
     params.write_text(params_text)

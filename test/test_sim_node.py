@@ -12,11 +12,12 @@ import pytest
 
 rclpy = pytest.importorskip("rclpy")
 
-from helpaware_node import wire  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node import wire  # noqa: E402,I100
 from helpaware_node.core import HelpNeed, Result  # noqa: E402
 from helpaware_node.ros.node import HelpAwareNode  # noqa: E402
 from helpaware_node.session import HelpSession  # noqa: E402
-from helpaware_node.sim.run import SIM_ROBOT_ID, open_sim_need  # noqa: E402
+from helpaware_node.sim.run import open_sim_need, SIM_ROBOT_ID  # noqa: E402
 from helpaware_node.sim.world import SeenPerson, SimNeed  # noqa: E402
 from helpaware_node.store import AskEvent, MemoryStore, StoredEvent  # noqa: E402
 

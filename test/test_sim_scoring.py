@@ -10,10 +10,6 @@ import json
 import math
 import os
 
-import numpy as np
-import pytest
-from scipy import integrate, stats
-
 from helpaware_node.core import DecisionConfig, SiteModel
 from helpaware_node.core.model import params_hash
 from helpaware_node.sim.compare import compare, mostly_regulars, regret
@@ -22,9 +18,16 @@ from helpaware_node.sim.metrics import paired_difference
 from helpaware_node.sim.oracle import TrueWorld
 from helpaware_node.sim.run import run_policy
 from helpaware_node.sim.scenario import ScenarioError, WorldCosts
-from helpaware_node.sim.truth import (informed_config, logit_normal_moments, true_prior,
-                                      true_site_model)
-from helpaware_node.sim.world import SeenPerson, SimNeed, World, build_world
+from helpaware_node.sim.truth import (
+    informed_config,
+    logit_normal_moments,
+    true_prior,
+    true_site_model,
+)
+from helpaware_node.sim.world import build_world, SeenPerson, SimNeed, World
+import numpy as np
+import pytest
+from scipy import integrate, stats
 from sim_scenarios import scenario_from
 
 BASE = {

@@ -6,22 +6,25 @@ keep the previous one accepted until the stated end and not after.  Times are co
 calendar.timegm of the written UTC text (the standard library, not the code under test).
 """
 import calendar
-import hmac
 import hashlib
+import hmac
 import json
 import os
 import stat
 import time
 
-import pytest
-
 from helpaware_node.core import Result
-from helpaware_node.fleet_documents import decode_document, encode_document, refusal_reason
 from helpaware_node.core.model import CoreInputError
-from helpaware_node.store import SqliteStore, StoredEvent, load_site_key, load_site_keys
-from helpaware_node.store.keys import (FILE_HEADER, SiteKeyError, key_fingerprint,
-                                       parse_site_key_file, rotate_signing_key)
-
+from helpaware_node.fleet_documents import decode_document, encode_document, refusal_reason
+from helpaware_node.store import load_site_key, load_site_keys, SqliteStore, StoredEvent
+from helpaware_node.store.keys import (
+    FILE_HEADER,
+    key_fingerprint,
+    parse_site_key_file,
+    rotate_signing_key,
+    SiteKeyError,
+)
+import pytest
 from site_keys import write_site_key
 
 RAW_KEY = bytes(range(1, 33))

@@ -14,27 +14,31 @@ import io
 import math
 import random
 
-import numpy as np
-import pytest
-from scipy import optimize
-
 from helpaware_node.core.context import ask_load
 from helpaware_node.core.model import SiteModel
 from helpaware_node.core.person import Result
 from helpaware_node.fit import online
 from helpaware_node.fit.convergence import hessian_by_differences
 from helpaware_node.fit.data import ask_ages_from_times, read_outcome_csv
-from helpaware_node.fit.online import LEARNED, LearningSettings, SiteLearner, learning_data
-from helpaware_node.fit.pseudo_outcomes import MIN_INFORMATION, curvature_floor, pseudo_outcomes
-from helpaware_node.fit.site_fit import (MIN_OUTCOMES, NAMES, Objective, fit_site, theta_bounds,
-                                         to_theta)
+from helpaware_node.fit.online import LEARNED, learning_data, LearningSettings, SiteLearner
+from helpaware_node.fit.pseudo_outcomes import curvature_floor, MIN_INFORMATION, pseudo_outcomes
+from helpaware_node.fit.site_fit import (
+    fit_site,
+    MIN_OUTCOMES,
+    NAMES,
+    Objective,
+    theta_bounds,
+    to_theta,
+)
 from helpaware_node.fit.site_likelihood import SiteLikelihood, SiteParams
 from helpaware_node.store import MemoryStore, SqliteStore
 from helpaware_node.store.base import AskEvent, LearnedEntry, StoredEvent
 from helpaware_node.store.export import write_csv
-
 from learning_events import key_of, session_across_a_change, site
+import numpy as np
+import pytest
 from reference_tables import rat_tumour_groups
+from scipy import optimize
 
 FILE = SiteModel()                                  # the shipped defaults
 TRUTH = SiteParams(1.0, 3.0, 3.0, 1.0, 0.6, 0.7, 6 * 3600.0)   # strangers, an ask weighs hours
@@ -381,8 +385,8 @@ def test_store_file_at_version_3_is_upgraded_with_its_asks_and_an_empty_history(
     # version 4 adds the history table; asks and events stay as they were (sqlite3 read-only)
     import functools
     import sqlite3
-    from helpaware_node.store import schema
-    from helpaware_node.store import sqlite as sqlite_module
+
+    from helpaware_node.store import schema, sqlite as sqlite_module
     with monkeypatch.context() as m:
         m.setattr(sqlite_module, "migrate", functools.partial(schema.migrate, target=3))
         old = SqliteStore(tmp_path / "v3.sqlite3", "r1", KEY)

@@ -8,21 +8,20 @@ The store is an SQLite file in tmp_path filled with a simulated site (invented d
 the node starts; the proposal is read back with the package's own parameter-file reader and
 checked against the core's SiteModel ranges.
 """
-import pytest
-from rclpy.parameter import Parameter
-
 from helpaware_node.core.model import SiteModel
 from helpaware_node.fit.online import LEARNED
 from helpaware_node.fit.paramfile import read_param_file
 from helpaware_node.fit.site_likelihood import SiteParams
 from helpaware_node.store import SqliteStore
 from helpaware_node.store.keys import load_site_keys
-
 from learning_events import site
 from node_harness import Rig
+import pytest
+from rclpy.parameter import Parameter
 
 TRUTH = SiteParams(1.0, 3.0, 3.5, 1.0, 0.8, 0.7, 3 * 3600.0)
-FAST = dict(site_learning_every_outcomes=20, site_prior_weight=50.0, interruption_weight_s=0.0)
+FAST = {"site_learning_every_outcomes": 20, "site_prior_weight": 50.0,
+        "interruption_weight_s": 0.0}
 
 
 def filled_store(tmp_path):

@@ -13,12 +13,11 @@ import xml.etree.ElementTree as ET
 import pytest
 
 rclpy = pytest.importorskip("rclpy")
-from rclpy.executors import SingleThreadedExecutor  # noqa: E402
-
-from helpaware_node.ros.node import HelpAwareNode  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.ros.node import HelpAwareNode  # noqa: E402,I100
 from helpaware_node.ros.privacy import CONSOLE_NODE, open_console  # noqa: E402
-
 from node_harness import overrides  # noqa: E402
+from rclpy.executors import SingleThreadedExecutor  # noqa: E402
 
 POLICY = os.path.join(os.path.dirname(__file__), "..", "config", "sros2",
                       "helpaware.policy.xml")

@@ -2,13 +2,12 @@
 import csv
 import os
 
-import pytest
-
 from helpaware_node.cli import main
 from helpaware_node.core import Result
 from helpaware_node.fit.data import read_outcome_csv
 from helpaware_node.store import AskEvent, SqliteStore, StoredEvent
 from helpaware_node.store.keys import load_site_key
+import pytest
 
 COLUMNS = ["event_id", "person_key", "time_s", "busyness", "ask_load", "result", "request_kind",
            "record", "request_id"]

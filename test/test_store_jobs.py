@@ -9,13 +9,12 @@ import subprocess
 import sys
 import threading
 
-import pytest
-
-from helpaware_node.core import Result, fold_events
-from helpaware_node.fleet_documents import PrivacyAct, encode_document
+from helpaware_node.core import fold_events, Result
+from helpaware_node.fleet_documents import encode_document, PrivacyAct
 from helpaware_node.ros.fleet import merge
 from helpaware_node.store import AskEvent, SqliteStore, StoredEvent
 from helpaware_node.store.jobs import StoreJobs
+import pytest
 
 KEY = b"j" * 32
 

@@ -1,6 +1,6 @@
 """The in-memory store: idempotent append, fold equals the core fold, forget removes all."""
-from helpaware_node.core import Result, SiteModel, fold_events
-from helpaware_node.store.base import MemoryStore, StoredEvent, person_key
+from helpaware_node.core import fold_events, Result, SiteModel
+from helpaware_node.store.base import MemoryStore, person_key, StoredEvent
 
 
 def test_append_is_idempotent_and_belief_is_the_fold():

@@ -6,10 +6,8 @@ forget through privacy_request.
 import os
 
 from diagnostic_msgs.msg import DiagnosticStatus
-
 from helpaware_node.core.belief import Belief
 from helpaware_node.store.keys import load_site_key
-
 from node_harness import Rig
 
 
@@ -26,8 +24,8 @@ def test_damaged_store_file_node_starts_on_priors_and_reports_error(ctx, tmp_pat
         assert rig.node.store.health.level == "ERROR"
 
         def error_reported():
-            return any(s.level == DiagnosticStatus.ERROR and aside[0] in dict(
-                (v.key, v.value) for v in s.values).get("store_last_error", "")
+            return any(s.level == DiagnosticStatus.ERROR and aside[0] in {
+                v.key: v.value for v in s.values}.get("store_last_error", "")
                 for a in rig.diagnostics for s in a.status)
         assert rig.spin_until(error_reported)
         # keeps working: decides on the prior and learns from an outcome
@@ -60,6 +58,7 @@ def test_privacy_requests_on_a_store_file_hold_at_once_on_disk_and_after_a_resta
     restart keeps it.
     """
     import sqlite3
+
     from helpaware_node.fleet_documents import decode_document
     from std_msgs.msg import String
     path = str(tmp_path / "beliefs.sqlite3")

@@ -3,13 +3,11 @@ import glob
 import os
 import random
 
-import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-
 from helpaware_node.core import Result
 from helpaware_node.store import AskEvent, SqliteStore, StoredEvent
 from helpaware_node.store.jobs import StoreJobs
+from hypothesis import given, settings, strategies as st
+import pytest
 
 KEY = os.urandom(32)
 RAW_IDS = ["badge-7731-ward-C", "nurse-ingrid-olsen", "porter_42_night"]

@@ -5,14 +5,12 @@ Migrations, site key checks, and damaged files moved aside.
 import os
 import sqlite3
 
-import pytest
-from hypothesis import given, settings, strategies as st
-
-from helpaware_node.core import Belief, Result, SiteModel, fold_events
+from helpaware_node.core import Belief, fold_events, Result, SiteModel
 from helpaware_node.core.model import CoreInputError
-from helpaware_node.store import SiteKeyError, SqliteStore, StoredEvent, open_store
-from helpaware_node.store import schema
+from helpaware_node.store import open_store, schema, SiteKeyError, SqliteStore, StoredEvent
 from helpaware_node.store.keys import load_site_key
+from hypothesis import given, settings, strategies as st
+import pytest
 
 MODEL = SiteModel(evidence_half_life_s=7200.0)
 KEY = b"s" * 32
@@ -40,7 +38,7 @@ def test_snapshot_equals_refold_in_any_append_order(tmp_path_factory, rows):
               for i, (p, t, r, x, f) in enumerate(rows)]
     for e in events:
         assert store.append(e)
-    for key in set(e.person_key for e in events):
+    for key in {e.person_key for e in events}:
         assert store.belief(key, MODEL) == refold(events, key)
     store.close()
 
@@ -138,8 +136,8 @@ def test_migration_of_a_version_2_file_with_data_keeps_everything_and_adds_asks(
     this version: events, snapshot and sequences as they were, asks usable.
     """
     import functools
-    from helpaware_node.store import AskEvent
-    from helpaware_node.store import sqlite as sqlite_module
+
+    from helpaware_node.store import AskEvent, sqlite as sqlite_module
     with monkeypatch.context() as m:
         m.setattr(sqlite_module, "migrate", functools.partial(schema.migrate, target=2))
         old = make_store(tmp_path)

@@ -9,16 +9,14 @@ import json
 import os
 import random
 
-import jsonschema
-import pytest
-from hypothesis import given, strategies as st
-
+from document_paths import field_paths, replaced
 from helpaware_node import wire
-from helpaware_node.core import DecisionConfig, HelpNeed, SiteModel, decide
+from helpaware_node.core import decide, DecisionConfig, HelpNeed, SiteModel
 from helpaware_node.core.belief import Belief
 from helpaware_node.core.policy import Candidate
-
-from document_paths import field_paths, replaced
+from hypothesis import given, strategies as st
+import jsonschema
+import pytest
 
 SCHEMA_DIR = os.path.join(os.path.dirname(__file__), "..", "docs", "schemas")
 DRAFT_2020_12 = "https://json-schema.org/draft/2020-12/schema"
@@ -216,8 +214,8 @@ def test_a_decision_at_the_largest_caps_is_a_valid_document():
     MAX_ASKS_CAP = wire.MAX_TIMES, and a decision at that cap, with a person asked that often too,
     still decodes.
     """
-    from helpaware_node.core import PersonRecord, candidate_from_record, note_ask
-    from helpaware_node.core.model import MAX_ASKS_CAP, CoreInputError
+    from helpaware_node.core import candidate_from_record, note_ask, PersonRecord
+    from helpaware_node.core.model import CoreInputError, MAX_ASKS_CAP
     assert wire.MAX_TIMES == MAX_ASKS_CAP
     model = SiteModel()
     config = DecisionConfig(max_asks_per_hour=MAX_ASKS_CAP,

@@ -8,8 +8,8 @@ from __future__ import annotations
 import json
 from typing import Callable
 
-from ..store.base import person_key
 from .types import deserialize_string, serialize_string
+from ..store.base import person_key
 
 NODE_TOPICS = {
     "decision": "std_msgs/msg/String",

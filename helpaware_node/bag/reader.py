@@ -6,10 +6,10 @@ what was there.
 """
 from __future__ import annotations
 
-import os
-import struct
 from dataclasses import dataclass, field
+import os
 from pathlib import Path
+import struct
 from typing import Iterator, Optional
 
 from rosbags.rosbag2 import Reader

@@ -1,10 +1,9 @@
 """A record-by-record scan of an MCAP file that stops at the first damaged record."""
 from __future__ import annotations
 
-import struct
 from pathlib import Path
+import struct
 from typing import Iterator, Optional
-
 
 _MAGIC = b"\x89MCAP0\r\n"
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 import struct
 from typing import Literal, Optional
 
-from rosbags.typesys import Stores, get_typestore
+from rosbags.typesys import get_typestore, Stores
 
 STRING_TYPE = "std_msgs/msg/String"
 MARKER_ARRAY_TYPE = "visualization_msgs/msg/MarkerArray"

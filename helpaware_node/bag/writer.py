@@ -13,7 +13,7 @@ from rosbags.interfaces import Connection
 from rosbags.rosbag2 import Writer
 from rosbags.rosbag2.enums import StoragePlugin
 
-from .types import BAG_FORMAT_VERSION, STRING_TYPE, normalise_type, serialize_string, typestore
+from .types import BAG_FORMAT_VERSION, normalise_type, serialize_string, STRING_TYPE, typestore
 
 
 class BagWriter:

@@ -11,7 +11,7 @@ from typing import Callable, Optional
 import numpy as np
 
 from .model import DecisionConfig
-from .policy import Chooser, Evaluation, ask_advantage, best_positive, choose_lookahead
+from .policy import ask_advantage, best_positive, choose_lookahead, Chooser, Evaluation
 from .preview import quoted
 
 

@@ -7,13 +7,13 @@ function here accepts scalars or numpy arrays of the same shape (vectorised over
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
+import math
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .model import CoreInputError, SiteModel, check_range
+from .model import check_range, CoreInputError, SiteModel
 
 
 @dataclass(frozen=True)

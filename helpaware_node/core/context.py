@@ -6,7 +6,7 @@ factor    c = exp(-(k_busy * x + k_load * f))
 from __future__ import annotations
 
 import math
-from typing import Iterable, Union, overload
+from typing import Iterable, overload, Union
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray

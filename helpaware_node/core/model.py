@@ -7,15 +7,14 @@ themselves on construction, so a bad value fails loudly with its field and allow
 from __future__ import annotations
 
 import dataclasses
+from dataclasses import dataclass, field
 import functools
 import hashlib
 import json
 import math
-from dataclasses import dataclass, field
 from typing import Any, ClassVar, Mapping, Protocol, TypeVar
 
 from .preview import describe, short_name, short_number
-
 
 # the most asks a cap may allow: every ask the cap counts travels in each decision document,
 # whose time lists hold at most this many (wire.MAX_TIMES), so review and replay can read it

@@ -5,13 +5,13 @@ after a sequence of events does not depend on which of them applies it.
 """
 from __future__ import annotations
 
-import enum
 from dataclasses import dataclass, replace
+import enum
 from typing import Iterable
 
 from .belief import Belief, forget, update_declined, update_helped, update_no_response
 from .context import context_factor
-from .model import MAX_ASKS_CAP, MAX_REASK_INTERVAL_S, CoreInputError, SiteModel, check_range
+from .model import check_range, CoreInputError, MAX_ASKS_CAP, MAX_REASK_INTERVAL_S, SiteModel
 from .preview import quoted
 
 DAY_S = 86400.0

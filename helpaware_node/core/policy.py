@@ -14,9 +14,9 @@ Exclusions are never traded for value; each carries a reason code.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 import enum
 import math
-from dataclasses import dataclass
 from typing import Any, Callable, Optional, Sequence, Union
 
 import numpy as np
@@ -25,8 +25,8 @@ from numpy.typing import ArrayLike, NDArray
 from .belief import Belief, declined_mean_from
 from .context import context_factor
 from .lasting import lasting_cost
-from .model import CoreInputError, DecisionConfig, SiteModel, check_range, params_hash
-from .person import DAY_S, PersonRecord, belief_at
+from .model import check_range, CoreInputError, DecisionConfig, params_hash, SiteModel
+from .person import belief_at, DAY_S, PersonRecord
 
 HOUR_S = 3600.0
 

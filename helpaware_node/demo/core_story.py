@@ -6,11 +6,22 @@ invented willingness values with a seeded random draw, so every run prints the s
 """
 from __future__ import annotations
 
-import random
 from dataclasses import dataclass
+import random
 
-from ..core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result, SiteModel,
-                    candidate_from_record, decide, note_ask, note_candidate, note_outcome)
+from ..core import (
+    candidate_from_record,
+    decide,
+    DecisionConfig,
+    HelpNeed,
+    note_ask,
+    note_candidate,
+    note_outcome,
+    OutcomeEvent,
+    PersonRecord,
+    Result,
+    SiteModel,
+)
 from ..core.context import context_factor
 from ..text_table import fmt, render_table
 

@@ -13,9 +13,8 @@ import subprocess
 import sys
 import time
 
-from ..ros import launch_config
 from . import record_and_review
-
+from ..ros import launch_config
 
 STORE_NAME = "beliefs.sqlite3"
 # the demo's night is ~60 answered asks in ~20 s: refit every 10 outcomes and let the site's

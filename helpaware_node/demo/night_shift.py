@@ -17,12 +17,12 @@ force is printed when the first decision made with it arrives.
 from __future__ import annotations
 
 import argparse
+from dataclasses import dataclass
 import json
 import math
 import random
 import sys
 import time
-from dataclasses import dataclass
 from typing import Any
 
 ACTIVITIES = {  # activity -> (busyness range, share of sightings)
@@ -116,7 +116,7 @@ DECISION_WAIT_S = 15.0
 def run(namespace: str = "", needs: int = 60, seed: int = 11, timeout_s: float = 45.0,
         out=print) -> int:
     import rclpy
-    from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
+    from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
     from rosgraph_msgs.msg import Clock
     from std_msgs.msg import String
 

@@ -9,7 +9,7 @@ while count_peer_asks was on) within its ask-history horizon. Uses the review's 
 """
 from __future__ import annotations
 
-from .data import RESULT_CODE, AskAges, FitInputError, OutcomeData, from_arrays
+from .data import AskAges, FitInputError, from_arrays, OutcomeData, RESULT_CODE
 from ..core.person import Result
 
 

@@ -25,8 +25,8 @@ lies outside the range, and the fit failed.  Thresholds and why: docs/fit.md.
 """
 from __future__ import annotations
 
-import math
 from dataclasses import asdict, dataclass
+import math
 from typing import Callable, Sequence
 
 import numpy as np

@@ -14,15 +14,15 @@ from __future__ import annotations
 
 import contextlib
 import csv
-import math
 from dataclasses import dataclass
+import math
 from typing import Any, Iterable, Sequence
 
 import numpy as np
 from numpy.typing import ArrayLike
 
 from ..core.context import ask_load as core_ask_load
-from ..core.model import MAX_ASKS_CAP, CoreInputError
+from ..core.model import CoreInputError, MAX_ASKS_CAP
 from ..core.person import Result
 
 HELPED, DECLINED, NO_RESPONSE = 0, 1, 2

@@ -10,15 +10,20 @@ reached its maximum is judged from the solution (fit/convergence.py), as for the
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
+import math
 
 import numpy as np
 from scipy import optimize
 from scipy.special import expit, gammaln, roots_hermite
 
-from .convergence import (ConvergenceVerdict, Coordinate, IterationLog, assess_convergence,
-                          hessian_by_differences)
+from .convergence import (
+    assess_convergence,
+    ConvergenceVerdict,
+    Coordinate,
+    hessian_by_differences,
+    IterationLog,
+)
 from .progress import Progress
 from .site_likelihood import logsumexp
 
@@ -45,6 +50,7 @@ SIGMA_AT_ZERO = 1e-3
 
 
 class RandomInterceptLogit:
+
     def __init__(self, y, n, X, group, nodes: int = 25):
         self.y = np.asarray(y, float)
         self.n = np.asarray(n, float)

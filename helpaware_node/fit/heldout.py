@@ -8,13 +8,13 @@ site_likelihood); the node predicts c E[w | earlier rows], which is also reporte
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
+import math
 
 import numpy as np
 
 from .data import HELPED, OutcomeData
-from .glmm import RandomInterceptLogit, new_group_help_probability, sequential_help_probability
+from .glmm import new_group_help_probability, RandomInterceptLogit, sequential_help_probability
 from .site_fit import fit_site
 from .site_likelihood import SiteLikelihood
 

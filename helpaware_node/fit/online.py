@@ -34,18 +34,18 @@ Contract (the node and the simulator both drive it; no ROS, no I/O, no clock rea
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field, replace
 import math
 import threading
 import time
-from dataclasses import dataclass, field, replace
-from typing import TYPE_CHECKING, Mapping, Optional, Sequence
+from typing import Mapping, Optional, Sequence, TYPE_CHECKING
 
 import numpy as np
 
+from .data import ask_ages_from_times, FitInputError, from_arrays, OutcomeData, RESULT_CODE
 from ..core.model import SiteModel
 from ..core.person import Result
 from ..store.base import AskEvent, LearnedEntry, StoredEvent
-from .data import RESULT_CODE, FitInputError, OutcomeData, ask_ages_from_times, from_arrays
 
 if TYPE_CHECKING:     # the fit (scipy) is imported by the first refit, not by the node's start
     from .convergence import ConvergenceVerdict

@@ -6,6 +6,7 @@ import time
 
 
 class Progress:
+
     def __init__(self, label: str, enabled: bool = True, every_s: float = 1.0, stream=None):
         self.label = label
         self.enabled = enabled

@@ -49,14 +49,14 @@ not help, clipped to [0.1, 0.9] so that both kinds occur (0.5 without such answe
 """
 from __future__ import annotations
 
+from dataclasses import replace
 import itertools
 import math
-from dataclasses import replace
 
 import numpy as np
 
-from .data import DECLINED, HELPED, NO_RESPONSE, AskAges, OutcomeData, from_arrays
-from .site_likelihood import SiteParams, beta_rule
+from .data import AskAges, DECLINED, from_arrays, HELPED, NO_RESPONSE, OutcomeData
+from .site_likelihood import beta_rule, SiteParams
 
 BUSYNESS_LEVELS = (0.15, 0.45, 0.75)
 GAP_FACTORS = (0.25, 1.0, 4.0)         # second ask this many file half-lives after the first
@@ -106,6 +106,7 @@ def pseudo_outcomes(target: SiteParams, weight: float) -> OutcomeData:
 
 
 class _Rows:
+
     def __init__(self) -> None:
         self.person: list[str] = []
         self.x: list[float] = []

@@ -20,7 +20,6 @@ import os
 import threading
 from typing import Any, Iterator, Mapping, Optional
 
-
 NICENESS = 10      # a refit is background work: the node's own threads get the CPU first
 # read by OpenBLAS, OpenMP and MKL when numpy loads them: in the spawned worker, before then
 BLAS_THREAD_VARS = ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")

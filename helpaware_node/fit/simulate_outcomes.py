@@ -10,8 +10,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .data import (DECLINED, HELPED, NO_RESPONSE, OutcomeData, ask_ages_from_times,
-                   from_arrays)
+from .data import ask_ages_from_times, DECLINED, from_arrays, HELPED, NO_RESPONSE, OutcomeData
 from .site_likelihood import SiteParams
 
 

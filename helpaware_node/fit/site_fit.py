@@ -17,17 +17,22 @@ solution itself (fit/convergence.py), never from the optimiser's status.
 """
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field, replace
+import math
 from typing import Any, Callable, Sequence
 
 import numpy as np
 from scipy import optimize, stats
 from scipy.special import expit, logit
 
-from .convergence import (ConvergenceVerdict, Coordinate, IterationLog, assess_convergence,
-                          hessian_by_differences)
-from .data import HELPED, FitInputError, OutcomeData
+from .convergence import (
+    assess_convergence,
+    ConvergenceVerdict,
+    Coordinate,
+    hessian_by_differences,
+    IterationLog,
+)
+from .data import FitInputError, HELPED, OutcomeData
 from .progress import Progress
 from .site_likelihood import SiteLikelihood, SiteParams
 
@@ -97,14 +102,14 @@ def coordinates(bounds: Sequence[tuple[float, float]] = BOUNDS) -> tuple[Coordin
     (la, ha), (lb, hb), (lk1, hk1), (lk2, hk2), (lq, hq), (lt, ht), (lh, hh) = bounds
     prior = lambda lo, hi: dict(low=lo + BOUND_SLACK, high=hi - BOUND_SLACK,   # noqa: E731
                                 scale="log", **PRIOR_HINTS)
-    k = lambda lo, hi: dict(low=lo + BOUND_SLACK, high=hi - BOUND_SLACK,   # noqa: E731
-                            low_natural=lo <= 0.0, high_hint=K_HINT)
+    k = lambda lo, hi: {"low": lo + BOUND_SLACK, "high": hi - BOUND_SLACK,   # noqa: E731
+                        "low_natural": lo <= 0.0, "high_hint": K_HINT}
 
     def prob(lo, hi):
-        return dict(low=max(-LOGIT_AT_LIMIT, lo + BOUND_SLACK),
-                    high=min(LOGIT_AT_LIMIT, hi - BOUND_SLACK),
-                    low_natural=lo <= LOGIT_BOUNDS[0], high_natural=hi >= LOGIT_BOUNDS[1],
-                    scale="logit")
+        return {"low": max(-LOGIT_AT_LIMIT, lo + BOUND_SLACK),
+                "high": min(LOGIT_AT_LIMIT, hi - BOUND_SLACK),
+                "low_natural": lo <= LOGIT_BOUNDS[0], "high_natural": hi >= LOGIT_BOUNDS[1],
+                "scale": "logit"}
     return (Coordinate("prior_a", **prior(la, ha)), Coordinate("prior_b", **prior(lb, hb)),
             Coordinate("k_busy", **k(lk1, hk1)), Coordinate("k_load", **k(lk2, hk2)),
             Coordinate("notice_probability", **prob(lq, hq)),
@@ -320,7 +325,7 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
         start = SiteParams(a, b, 0.5, 0.3, notice_probability if 0 < notice_probability < 1
                            else 0.5, 0.5, start_h)
     start = replace(start, ask_memory_half_life_s=start_h,
-                    **{k: v for k, v in fixed_values.items()})
+                    **fixed_values)
     theta0 = to_theta(start)
     free = np.array([name not in fixed_values for name in NAMES])
     if not lik.use_reporting_factor:
@@ -429,7 +434,7 @@ def context_test(data: OutcomeData, full: SiteFit, notice_probability: float = 0
     if not tested:
         return None
     start = replace(full.params, k_busy=0.0, k_load=0.0)
-    null = fit_site(data, start=start, fixed={k: 0.0 for k in tested},
+    null = fit_site(data, start=start, fixed=dict.fromkeys(tested, 0.0),
                     fix_k_busy="k_busy" not in full.free, fix_k_load="k_load" not in full.free,
                     notice_probability=full.params.notice_probability
                     if "notice_probability" not in full.free else notice_probability,

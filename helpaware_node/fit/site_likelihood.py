@@ -36,9 +36,9 @@ fractional weight; the data's own people count once.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 import functools
 import math
-from dataclasses import dataclass
 
 import numpy as np
 from scipy.linalg import eigh_tridiagonal

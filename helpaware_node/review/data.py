@@ -7,9 +7,9 @@ from, which is all the review and the replay need.
 """
 from __future__ import annotations
 
-import json
 from collections import Counter
 from dataclasses import dataclass, field
+import json
 from typing import Optional
 
 from . import documents as rw

@@ -110,7 +110,7 @@ def calibration_advice(bag: str, bins: list[dict]) -> str:
             "<code>ros2 run helpaware_node helpaware</code> instead of "
             "<code>helpaware</code>):</p>"
             f"<pre>{esc(commands)}</pre>"
-            "<p class=\"note\">The replay shows which decisions would change under tuned.yaml. "
+            '<p class="note">The replay shows which decisions would change under tuned.yaml. '
             "If they are the ones you want, start the node with it: "
             "<code>--params-file tuned.yaml</code>, or "
             "<code>params_file:=/full/path/tuned.yaml</code> with the launch file "
@@ -119,7 +119,7 @@ def calibration_advice(bag: str, bins: list[dict]) -> str:
 
 def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = None) -> str:
     s = summary
-    parts = [f"<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
+    parts = [f'<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">'
              f"<title>helpaware review: {esc(s['bag'])}</title><style>{STYLE}</style>"
              "</head><body>",
              f"<h1>Review of {esc(s['bag'])}</h1>"]
@@ -129,7 +129,7 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
     if s["missing_topics"]:
         parts.append(f'<p class="warn">Topics missing or empty in this bag: '
                      f'{esc(", ".join(s["missing_topics"]))}. '
-                     'Sections built from them are empty.</p>')
+                     "Sections built from them are empty.</p>")
     if s["documents_not_understood"]:
         parts.append('<p class="warn">Documents not understood (skipped): ' + esc(", ".join(
             f"{k}: {v} (e.g. {s['documents_not_understood_examples'].get(k, '')})"
@@ -151,12 +151,12 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
         ["topic", "name in bag", "messages"],
         [[k, s["topics"].get(k, ""), v] for k, v in s["messages"].items()]))
     parts.append("<h2>Decision timeline</h2>" + image(figures["timeline"], "decision timeline"))
-    parts.append("<h2>Willingness per person</h2><p class=\"note\">Belief at each decision the "
+    parts.append('<h2>Willingness per person</h2><p class="note">Belief at each decision the '
                  "person was a candidate in (mean and central 90 % interval of the Beta). Keys "
                  "are hashed ids. A willingness estimate describes past responses to a robot; "
                  "it must not be used to judge or evaluate people.</p>"
                  + image(figures["willingness"], "willingness per person"))
-    parts.append("<h2>Calibration</h2><p class=\"note\">Predicted help probability p of the "
+    parts.append('<h2>Calibration</h2><p class="note">Predicted help probability p of the '
                  "person asked against whether they helped (declined and no response count as "
                  "not helped; could-not-ask is left out).</p>"
                  + image(figures["reliability"], "reliability diagram")
@@ -185,7 +185,7 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
                  f"pending when the bag ended.</p>")
     if pend["expired_request_ids"]:
         expired = ", ".join(pend["expired_request_ids"][:50])
-        parts.append("<p class=\"note\">Expired: " + esc(expired) + "</p>")
+        parts.append('<p class="note">Expired: ' + esc(expired) + "</p>")
     par = s["parameters"]
     parts.append("<h2>Parameters in force</h2>" + table(
         ["parameter hash", "decisions"], [[h, n] for h, n in par["hashes"].items()]))
@@ -194,7 +194,7 @@ def render(summary: dict, figures: dict[str, bytes], replay: Optional[dict] = No
         parts.append(f"<h3>{esc(h)}</h3><pre>{esc(text)}</pre>")
     if replay is not None:
         parts.append(render_replay(replay, figures.get("replay")))
-    parts.append("<h2>Cautions</h2><p class=\"note\">The node only decides whether to ask; it "
+    parts.append('<h2>Cautions</h2><p class="note">The node only decides whether to ask; it '
                  "never moves the robot. Sites must follow their own safety, privacy and labour "
                  "rules; keep a human operator able to disable asking.</p></body></html>")
     return "\n".join(parts)
@@ -204,17 +204,17 @@ def render_site_learning(learned: dict, figures: dict[str, bytes]) -> str:
     """Constants over time, each revision's values, calibration before and after."""
     names = ("prior_a", "prior_b", "k_busy", "k_load", "notice_probability",
              "ask_memory_half_life_s")
-    parts = ["<h2>Site learning</h2><p class=\"note\">The site constants each decision was "
+    parts = ['<h2>Site learning</h2><p class="note">The site constants each decision was '
              "made with (its document's parameters and their source). The node refits them from "
              "its store's outcomes (site_learning: apply); costs and hard limits never change "
-             "this way (docs/fit.md, \"Site learning\").</p>",
+             'this way (docs/fit.md, "Site learning").</p>',
              image(figures["site_constants"], "site constants over time"),
              table(["from (h)", "source", "revision"] + list(names),
                    [[round((c["time_s"] - learned["changes"][0]["time_s"]) / 3600.0, 2),
                      c["source"], c["revision"]] + [c.get(n, "") for n in names]
                     for c in learned["changes"]])]
     cal = learned["calibration"]
-    parts.append("<h3>Calibration before and after</h3><p class=\"note\">Each answered ask "
+    parts.append('<h3>Calibration before and after</h3><p class="note">Each answered ask '
                  "scored with the p its own decision predicted, split by the constants in "
                  "force when it was made. The two groups are different asks at different "
                  "times (later asks also know more about each person), so read the gap as a "

@@ -10,7 +10,7 @@ import math
 from typing import Sequence
 
 import numpy as np
-from scipy.special import betaincinv   # lighter to import than scipy.stats
+from scipy.special import betaincinv  # lighter to import than scipy.stats
 
 LOG_LOSS_EPS = 1e-15
 

@@ -1,8 +1,8 @@
 """The review's figures, each rendered to PNG bytes with matplotlib's Agg backend (no display)."""
 from __future__ import annotations
 
-import io
 from collections import Counter
+import io
 
 import matplotlib
 

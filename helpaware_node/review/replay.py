@@ -11,10 +11,10 @@ from __future__ import annotations
 
 from typing import Optional
 
-from ..core.model import DecisionConfig, SiteModel, params_hash
-from ..core.policy import Decision, decide
 from . import documents as rw
 from .data import ReviewData
+from ..core.model import DecisionConfig, params_hash, SiteModel
+from ..core.policy import decide, Decision
 
 
 def expected_costs(decision: Decision, ask_time_s: float) -> dict:

@@ -7,17 +7,22 @@ from __future__ import annotations
 
 import csv
 import json
-import sys
 from pathlib import Path
+import sys
 from typing import Optional
 
 
 def build(bag: str, out_dir: str, params_file: Optional[str] = None,
           pending_timeout_s: Optional[float] = None, out=sys.stdout) -> dict:
     """Write the report; returns the summary (with 'replay' when params_file is given)."""
-    from . import data as review_data, html as review_html, plots as review_plots
-    from . import learning as review_learning
-    from . import replay as review_replay, summary as review_summary
+    from . import (
+        data as review_data,
+        html as review_html,
+        learning as review_learning,
+        plots as review_plots,
+        replay as review_replay,
+        summary as review_summary,
+    )
     data = review_data.load(bag)
     summary = review_summary.summarise(data, pending_timeout_s)
     summary["site_learning"] = review_learning.summarise(data)
@@ -26,8 +31,8 @@ def build(bag: str, out_dir: str, params_file: Optional[str] = None,
     if data.decisions:
         other = None
         if params_file:
-            from .. import node_param_file as review_params
             from . import documents as review_wire
+            from .. import node_param_file as review_params
             try:
                 base_model, base_config = review_wire.recorded_params(data.decisions[0].document)
             except review_wire.WireError:   # decisions without their parameters: defaults

@@ -6,18 +6,28 @@ fixed invented site key before anything is written, as `helpaware record` does b
 """
 from __future__ import annotations
 
-import random
 from dataclasses import dataclass
+import random
 from typing import Optional
 
-from ..core import (DecisionConfig, HelpNeed, OutcomeEvent, PersonRecord, Result, SiteModel,
-                    candidate_from_record, decide, note_ask, note_candidate, note_outcome)
+from . import documents as rw
+from ..bag import BagWriter, DIAGNOSTIC_ARRAY_TYPE, MARKER_ARRAY_TYPE, STRING_TYPE, typestore
+from ..bag.person_ids import HASHED_MARK
+from ..core import (
+    candidate_from_record,
+    decide,
+    DecisionConfig,
+    HelpNeed,
+    note_ask,
+    note_candidate,
+    note_outcome,
+    OutcomeEvent,
+    PersonRecord,
+    Result,
+    SiteModel,
+)
 from ..core.context import context_factor
 from ..store.base import person_key
-from . import documents as rw
-from ..bag import (DIAGNOSTIC_ARRAY_TYPE, MARKER_ARRAY_TYPE, BagWriter, STRING_TYPE,
-                   typestore)
-from ..bag.person_ids import HASHED_MARK
 
 SAMPLE_SITE_KEY = b"invented-night-shift-site-key"
 KINDS = ("door", "elevator", "door", "handover", "elevator", "blocked_corridor")

@@ -1,8 +1,8 @@
 """The numbers of a review, from loaded bag data: one plain dict (summary.json) and CSV rows."""
 from __future__ import annotations
 
-import math
 from collections import Counter
+import math
 from typing import Optional
 
 from .data import DecisionRow, ReviewData

@@ -13,7 +13,7 @@ from typing import Any, Mapping
 
 from diagnostic_msgs.msg import DiagnosticArray, DiagnosticStatus, KeyValue
 
-from ..input_watch import InputWatch, change_text, warning_text
+from ..input_watch import change_text, InputWatch, warning_text
 
 INPUTS = ("people", "task_status", "outcome", "navigation_status")
 
@@ -22,13 +22,13 @@ INPUTS = ("people", "task_status", "outcome", "navigation_status")
 class InputCounters:
     """Per input topic: received and rejected since start, plus the last rejection reason."""
 
-    received: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})
-    rejected: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})
-    last_reason: dict = field(default_factory=lambda: {k: "" for k in INPUTS})
-    failed: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})   # handler errors
+    received: dict = field(default_factory=lambda: dict.fromkeys(INPUTS, 0))
+    rejected: dict = field(default_factory=lambda: dict.fromkeys(INPUTS, 0))
+    last_reason: dict = field(default_factory=lambda: dict.fromkeys(INPUTS, ""))
+    failed: dict = field(default_factory=lambda: dict.fromkeys(INPUTS, 0))   # handler errors
     statuses_skipped: int = 0       # navigation status entries beyond the bound looked at
     housekeeping_errors: int = 0    # a housekeeping pass that raised (contained, logged)
-    _received_at_tick: dict = field(default_factory=lambda: {k: 0 for k in INPUTS})
+    _received_at_tick: dict = field(default_factory=lambda: dict.fromkeys(INPUTS, 0))
     _rejected_at_tick: int = 0
     qos_incompatible: int = 0
 

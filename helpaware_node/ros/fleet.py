@@ -29,25 +29,41 @@ stores the queue in batches (one transaction, sorted by time) before anything le
 from __future__ import annotations
 
 import argparse
+from collections import deque, OrderedDict
 import sys
 import threading
 import time
-from collections import OrderedDict, deque
 from typing import Callable, Iterable, Optional
 
 from rclpy.clock import Clock, ClockType
 from rclpy.qos import DurabilityPolicy, HistoryPolicy, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
+# the privacy topic lives in ros/privacy.py; ros/node.py and ros/node_entities.py import both
+# from here
+from .privacy import PRIVACY_TOPIC, PrivacyRequests  # noqa: F401
+from .refusal_log import CountsRefusals, exception_text, HANDLER_ERROR, LogThrottle, Refusals
 from ..core import CoreInputError, Result, SiteModel
-from ..fleet_documents import (MALFORMED, OLD_FORMAT, PRIVACY_KINDS, PrivacyAct,
-                               decode_document, encode_document)
-from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
-                       utc_text)
 from ..core.preview import quoted
-from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
+from ..fleet_documents import (
+    decode_document,
+    encode_document,
+    MALFORMED,
+    OLD_FORMAT,
+    PRIVACY_KINDS,
+    PrivacyAct,
+)
+from ..signing import (
+    BAD_SIGNATURE,
+    EXPIRED_KEY,
+    KeyRing,
+    OTHER_SITE,
+    UNKNOWN_KEY,
+    UNSIGNED,
+    utc_text,
+)
+from ..store.base import AnyEvent, append_batch, AskEvent, StoredEvent
 from ..store.ids import refused_by_store
-from .refusal_log import HANDLER_ERROR, CountsRefusals, LogThrottle, Refusals, exception_text
 
 FLEET_TOPIC = "/helpaware/fleet"    # site-wide: every robot of the site, whatever its namespace
 FLEET_HISTORY_DEPTH = 5000      # messages kept per publisher for late joiners
@@ -575,10 +591,6 @@ def run_peer(argv: list[str] | None = None) -> int:
         store.close()
     return 0
 
-
-# the privacy topic lives in ros/privacy.py; ros/node.py and ros/node_entities.py import both
-# from here
-from .privacy import PRIVACY_TOPIC, PrivacyRequests  # noqa: E402,F401
 
 if __name__ == "__main__":
     sys.exit(run_peer())

@@ -13,10 +13,10 @@ import time
 
 from std_msgs.msg import String
 
+from .refusal_log import exception_text
 from .. import wire
 from ..core.model import CoreInputError
 from ..session.state import MAX_GOAL_STATUSES
-from .refusal_log import exception_text
 
 GOAL_STATES = {4: "succeeded", 5: "canceled", 6: "aborted"}   # action_msgs/GoalStatus codes
 

@@ -8,11 +8,11 @@ files, and the rest runs without it.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 import os
 import signal
 import subprocess
 import sys
-from dataclasses import dataclass, field
 from typing import Any, Mapping, Optional, Sequence
 
 import yaml

@@ -34,25 +34,25 @@ from rclpy.executors import ExternalShutdownException, SingleThreadedExecutor
 from rclpy.lifecycle import LifecycleNode, LifecycleState, TransitionCallbackReturn
 from rclpy.publisher import Publisher
 
-from ..core import params_hash
-from ..core.model import CoreInputError
-from ..session import HelpSession, StoreStatus
-from ..store import default_store_path, open_store
-from ..store.base import BeliefStore
-from ..store.jobs import StoreJobs
 from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
 from .housekeeping import Housekeeping
 from .input_handlers import InputHandlers
 from .markers import PersonMarkers
 from .node_entities import create_entities, destroy_entities
-from .params import NodeParameters, model_ranges
+from .params import model_ranges, NodeParameters
 from .refusal_log import LogThrottle
 from .shm_files import StartupSweep
 from .site_learning import NodeLearning, proposal_path
 from .status_publisher import StatusPublisher
 from .step_output import StepOutput
 from .store_retry import HeldOutcomes
+from ..core import params_hash
+from ..core.model import CoreInputError
+from ..session import HelpSession, StoreStatus
+from ..store import default_store_path, open_store
+from ..store.base import BeliefStore
+from ..store.jobs import StoreJobs
 
 NODE_NAME = "helpaware_decider"
 MEMORY_STORE = "memory"   # store_path value for a store that lives only in this process

@@ -15,12 +15,12 @@ import time
 from typing import Any
 
 from rclpy.clock import Clock, ClockType
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
-from ..store.jobs import StoreJobs
 from . import diagnostics as diag
 from .fleet import FleetLink, PrivacyRequests
+from ..store.jobs import StoreJobs
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 # inputs that must not be lost in a burst while a long callback holds the executor: a
@@ -42,14 +42,14 @@ def create_entities(node, s, entities: list[Any]) -> None:
     privacy) and adds each to `entities` as it is made, so a failure part way leaves there
     what destroy_entities must remove.
     """
-    from rclpy.event_handler import SubscriptionEventCallbacks, PublisherEventCallbacks
+    from rclpy.event_handler import PublisherEventCallbacks, SubscriptionEventCallbacks
     on_qos = functools.partial(_on_qos_incompatible, node)
     sub_events = SubscriptionEventCallbacks(incompatible_qos=on_qos)
     pub_events = PublisherEventCallbacks(incompatible_qos=on_qos)
     node.decision_pub = node.create_publisher(String, "decision", RELIABLE,
                                               event_callbacks=pub_events)
-    from visualization_msgs.msg import MarkerArray
     from diagnostic_msgs.msg import DiagnosticArray
+    from visualization_msgs.msg import MarkerArray
     node.marker_pub = node.create_publisher(MarkerArray, "markers", 10)
     node.diag_pub = node.create_publisher(DiagnosticArray, "/diagnostics", 10)
     subs = [

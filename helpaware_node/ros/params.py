@@ -8,14 +8,19 @@ proposed set and refuses it with the core's reason (field and range) so old valu
 from __future__ import annotations
 
 import dataclasses
-import math
 from dataclasses import dataclass
+import math
 from typing import Any, Callable, Optional
 
-from ..core.model import (DEFAULT_CONTINUE_COSTS_S, MAX_ASKS_CAP, MAX_REASK_INTERVAL_S,
-                          CoreInputError, DecisionConfig, SiteModel)
-from ..fit.online import MODES as LEARNING_MODES
-from ..fit.online import LearningSettings
+from ..core.model import (
+    CoreInputError,
+    DecisionConfig,
+    DEFAULT_CONTINUE_COSTS_S,
+    MAX_ASKS_CAP,
+    MAX_REASK_INTERVAL_S,
+    SiteModel,
+)
+from ..fit.online import LearningSettings, MODES as LEARNING_MODES
 from ..store.ids import check_robot_id
 
 MODEL_DEFAULTS = SiteModel()
@@ -281,8 +286,12 @@ class NodeParameters:
     """Declares every parameter on `node` and keeps the core values in force up to date."""
 
     def __init__(self, node, on_change: Optional[Callable[[], None]] = None) -> None:
-        from rcl_interfaces.msg import (FloatingPointRange, IntegerRange, ParameterDescriptor,
-                                        SetParametersResult)
+        from rcl_interfaces.msg import (
+            FloatingPointRange,
+            IntegerRange,
+            ParameterDescriptor,
+            SetParametersResult,
+        )
         self._result = SetParametersResult
         self._on_change = on_change
         self.values: dict[str, Any] = defaults()

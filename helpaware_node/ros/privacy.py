@@ -11,21 +11,36 @@ listening) and tells the console who applied it.  Unsigned requests ({"action": 
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 import socket
 import time
-from dataclasses import dataclass, field
 from typing import Callable, Optional
 
 from rclpy.qos import DurabilityPolicy, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
 
+from .refusal_log import CountsRefusals, HANDLER_ERROR, LogThrottle, Refusals
 from ..core import CoreInputError
-from ..fleet_documents import (MALFORMED, PRIVACY_KINDS, PrivacyAct, check_fresh,
-                               decode_document, decode_parsed, encode_document, load_document,
-                               parse_unsigned_request)
-from ..signing import (BAD_SIGNATURE, EXPIRED_KEY, OTHER_SITE, UNKNOWN_KEY, UNSIGNED, KeyRing,
-                       Refused)
-from .refusal_log import HANDLER_ERROR, CountsRefusals, LogThrottle, Refusals
+from ..fleet_documents import (
+    check_fresh,
+    decode_document,
+    decode_parsed,
+    encode_document,
+    load_document,
+    MALFORMED,
+    parse_unsigned_request,
+    PRIVACY_KINDS,
+    PrivacyAct,
+)
+from ..signing import (
+    BAD_SIGNATURE,
+    EXPIRED_KEY,
+    KeyRing,
+    OTHER_SITE,
+    Refused,
+    UNKNOWN_KEY,
+    UNSIGNED,
+)
 
 PRIVACY_TOPIC = "/helpaware/privacy_request"   # site-wide, like the fleet topic
 PRIVACY_QOS = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE,
@@ -162,7 +177,8 @@ def open_console(context, on_fleet: Callable[[String], None], topic: str = PRIVA
     Returns (node, publisher).
     """
     import rclpy
-    from .fleet import FLEET_TOPIC, fleet_reader_qos
+
+    from .fleet import fleet_reader_qos, FLEET_TOPIC
     node = rclpy.create_node(CONSOLE_NODE, context=context, start_parameter_services=False,
                              enable_rosout=False)
     node.create_subscription(String, fleet_topic or FLEET_TOPIC, on_fleet, fleet_reader_qos())

@@ -7,8 +7,8 @@ give a few lines a minute, and the counts go to /diagnostics.
 """
 from __future__ import annotations
 
-import time
 from collections import Counter
+import time
 from typing import Callable, Optional
 
 from ..core import CoreInputError

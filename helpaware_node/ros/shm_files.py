@@ -31,14 +31,14 @@ No rclpy import: the files, locks and /proc only.  Linux only (elsewhere nothing
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 import errno
 import fcntl
 import json
 import os
+from pathlib import Path
 import re
 import time
-from dataclasses import dataclass, field
-from pathlib import Path
 from typing import Optional
 
 SHM_DIR = Path("/dev/shm")

@@ -14,14 +14,14 @@ writes a parameter file instead.
 from __future__ import annotations
 
 import concurrent.futures
+from dataclasses import replace
 import datetime
 import os
 import time
-from dataclasses import replace
 from typing import Optional
 
 from ..core.model import SiteModel
-from ..fit.online import LEARNED, NUISANCE, LearningSettings, Refit, SiteLearner
+from ..fit.online import LEARNED, LearningSettings, NUISANCE, Refit, SiteLearner
 from ..fit.refit_worker import RefitWorker
 
 PROPOSAL_NAME = "site_proposal.yaml"

@@ -9,8 +9,8 @@ from __future__ import annotations
 
 import time
 
-from ..core import PersonRecord, belief_at
 from . import diagnostics as diag
+from ..core import belief_at, PersonRecord
 
 
 class StatusPublisher:

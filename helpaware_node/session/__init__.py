@@ -6,8 +6,17 @@ rules.
 from .memory import PersonMemory
 from .ports import DirectWrites, OutcomeWriter, SessionStore, StoreStatus
 from .session import HelpSession
-from .state import (STORE_UNAVAILABLE, DecisionOut, Note, OpenNeed, PendingAsk, Seen,
-                    SessionInputError, SessionRules, Step)
+from .state import (
+                    DecisionOut,
+                    Note,
+                    OpenNeed,
+                    PendingAsk,
+                    Seen,
+                    SessionInputError,
+                    SessionRules,
+                    Step,
+                    STORE_UNAVAILABLE,
+)
 
 __all__ = ["HelpSession", "SessionRules", "SessionStore", "OutcomeWriter", "DirectWrites",
            "StoreStatus", "PersonMemory", "Step", "DecisionOut", "Note", "Seen", "OpenNeed",

@@ -10,11 +10,11 @@ from __future__ import annotations
 from dataclasses import replace
 from typing import Iterable, Optional
 
-from ..core import PersonRecord, SiteModel, note_ask, note_candidate
+from .ports import SessionStore
+from ..core import note_ask, note_candidate, PersonRecord, SiteModel
 from ..core.model import DecisionConfig
 from ..core.person import ask_history_horizon_s
 from ..store.base import AskEvent
-from .ports import SessionStore
 
 
 class PersonMemory:

@@ -9,10 +9,10 @@ from __future__ import annotations
 
 from typing import Iterable, Optional, Protocol
 
+from .state import Note
 from ..core import Belief, SiteModel
 from ..core.model import MAX_ASKS_CAP
 from ..store.base import AskEvent, StoredEvent
-from .state import Note
 
 
 class SessionStore(Protocol):
@@ -33,6 +33,7 @@ class SessionStore(Protocol):
 
 
 class OutcomeWriter(Protocol):
+
     def write(self, event: StoredEvent) -> Optional[bool]:
         """Return True: stored; False: not stored (duplicate, opted out).
 

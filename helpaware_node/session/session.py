@@ -22,19 +22,40 @@ from __future__ import annotations
 from dataclasses import replace
 from typing import Any, Iterable, Optional, Sequence
 
-from ..core import (DecisionConfig, HelpNeed, PersonRecord, Result, SiteModel,
-                    candidate_from_record, conclude, decide, keep_recent_asks)
-from ..core.model import CoreInputError
-from ..core.policy import HOUR_S, Candidate, Chooser, Evaluation, choose_lookahead
-from ..core.preview import quoted
-from ..store.base import AnyEvent, AskEvent, StoredEvent, append_batch
-from ..store.ids import refused_by_store
-from ..wire import MAX_DOCUMENT_BYTES, candidate_bytes_bound, candidates_bytes_bound_quick
 from .memory import PersonMemory
 from .ports import DirectWrites, OutcomeWriter, SessionStore, StoreStatus
-from .state import (DECISION_OTHER_BYTES, IN_VIEW_EXTRA_S, MAX_GOAL_STATUSES,
-                    MAX_GOALS_REMEMBERED, MAX_PEOPLE_IN_VIEW, STORE_UNAVAILABLE, DecisionOut,
-                    OpenNeed, PendingAsk, Seen, SessionInputError, SessionRules, Step)
+from .state import (
+    DECISION_OTHER_BYTES,
+    DecisionOut,
+    IN_VIEW_EXTRA_S,
+    MAX_GOAL_STATUSES,
+    MAX_GOALS_REMEMBERED,
+    MAX_PEOPLE_IN_VIEW,
+    OpenNeed,
+    PendingAsk,
+    Seen,
+    SessionInputError,
+    SessionRules,
+    Step,
+    STORE_UNAVAILABLE,
+)
+from ..core import (
+    candidate_from_record,
+    conclude,
+    decide,
+    DecisionConfig,
+    HelpNeed,
+    keep_recent_asks,
+    PersonRecord,
+    Result,
+    SiteModel,
+)
+from ..core.model import CoreInputError
+from ..core.policy import Candidate, choose_lookahead, Chooser, Evaluation, HOUR_S
+from ..core.preview import quoted
+from ..store.base import AnyEvent, append_batch, AskEvent, StoredEvent
+from ..store.ids import refused_by_store
+from ..wire import candidate_bytes_bound, candidates_bytes_bound_quick, MAX_DOCUMENT_BYTES
 
 CLOCK_JUMP_TOLERANCE_S = 5.0  # system time moving this much more than the steady clock
 NAV_FAILURE_KIND = "navigation_failure"

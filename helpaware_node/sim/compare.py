@@ -7,14 +7,14 @@ from typing import Any, Callable, Optional, Sequence
 
 import numpy as np
 
-from ..core import DecisionConfig, SiteModel
-from ..session import SessionRules
-from ..text_table import render_table
 from .metrics import paired_difference, run_metrics, summarise
-from .run import SIM_POLICY_NAMES, run_policy
+from .run import run_policy, SIM_POLICY_NAMES
 from .scenario import Scenario
 from .truth import true_site_model
 from .world import ASK_DRAWS_PER_NEED, build_world
+from ..core import DecisionConfig, SiteModel
+from ..session import SessionRules
+from ..text_table import render_table
 
 
 class ProgressBar:

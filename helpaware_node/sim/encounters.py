@@ -22,12 +22,12 @@ from typing import Sequence
 
 import numpy as np
 
+from .scenario import Scenario
+from .world import build_world, World
 from ..core.model import DecisionConfig
 from ..core.person import DAY_S
 from ..core.policy import future_requests
 from ..text_table import render_table
-from .scenario import Scenario
-from .world import World, build_world
 
 BUCKETS = (("1st", 0, 1), ("2nd-5th", 1, 5), ("6th-20th", 5, 20), ("21st+", 20, math.inf))
 
@@ -128,6 +128,7 @@ def report(scenarios: Sequence[Scenario], config: DecisionConfig, seeds: int = 3
 def main(argv=None) -> int:
     """Run `python -m helpaware_node.sim.encounters SCENARIO.yaml ... [--seeds N]`."""
     import argparse
+
     from .scenario import load
     ap = argparse.ArgumentParser(description="the re-encounter check on scenario files, "
                                  "with the shipped DecisionConfig")

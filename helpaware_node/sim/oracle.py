@@ -26,10 +26,10 @@ from typing import Optional
 
 import numpy as np
 
+from .world import SeenPerson, SimNeed, World
 from ..core.context import ask_load
 from ..core.model import DecisionConfig
 from ..core.person import DAY_S
-from .world import SeenPerson, SimNeed, World
 
 ORACLE_HALF_LIVES = 7.0    # later encounters counted this far ahead (an ask then adds < 1 %)
 

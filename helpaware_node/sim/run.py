@@ -34,15 +34,15 @@ from typing import Any, Callable, Optional
 
 import numpy as np
 
+from .oracle import TrueWorld
+from .truth import informed_config, true_site_model
+from .world import SimNeed, World
 from ..core import DecisionConfig, HelpNeed, Result, SiteModel
 from ..core.baselines import make_chooser
 from ..core.model import CoreInputError
 from ..core.person import DAY_S
 from ..session import HelpSession, SessionRules, Step
 from ..store.base import AskEvent, MemoryStore, StoredEvent
-from .oracle import TrueWorld
-from .truth import informed_config, true_site_model
-from .world import SimNeed, World
 
 SIM_ROBOT_ID = "sim"
 # every policy the simulator runs, in table order

@@ -4,7 +4,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any, Mapping
 
-from ..core.model import CoreInputError, DecisionConfig, check_range
+from ..core.model import check_range, CoreInputError, DecisionConfig
 from ..yamlfile import load_yaml_file
 
 

@@ -29,8 +29,8 @@ import math
 
 import numpy as np
 
-from ..core.model import DecisionConfig, SiteModel
 from .scenario import Scenario
+from ..core.model import DecisionConfig, SiteModel
 
 _HERMITE_NODES = 80    # Gauss-Hermite nodes for the moments of a logistic-normal willingness
 

@@ -12,14 +12,14 @@ from __future__ import annotations
 
 import bisect
 import dataclasses
+from dataclasses import dataclass
 import math
 import random
-from dataclasses import dataclass
 
 import numpy as np
 
-from ..core.person import DAY_S
 from .scenario import Scenario
+from ..core.person import DAY_S
 
 ASK_DRAWS_PER_NEED = 5     # outcome draw pairs per need: asks at one need the world can answer
 

@@ -4,13 +4,28 @@ from __future__ import annotations
 import os
 import socket
 
-from ..core import SiteModel
-from .base import (AskEvent, BeliefStore, MemoryStore, StoredEvent, StoreHealth, append_batch,
-                   person_key)
-from .keys import (KEY_FILE_NAME, SiteKeyError, SiteKeys, default_key_path, default_store_path,
-                   key_fingerprint, load_site_key, load_site_keys)
-from .sqlite import SqliteStore, StoreCorruptError
+from .base import (
+    append_batch,
+    AskEvent,
+    BeliefStore,
+    MemoryStore,
+    person_key,
+    StoredEvent,
+    StoreHealth,
+)
+from .keys import (
+    default_key_path,
+    default_store_path,
+    KEY_FILE_NAME,
+    key_fingerprint,
+    load_site_key,
+    load_site_keys,
+    SiteKeyError,
+    SiteKeys,
+)
 from .schema import SCHEMA_VERSION, StoreVersionError
+from .sqlite import SqliteStore, StoreCorruptError
+from ..core import SiteModel
 
 
 def default_robot_id() -> str:

@@ -8,17 +8,17 @@ of the perceived id: raw ids never enter a store.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 import hashlib
 import hmac
 import math
 import os
-from dataclasses import dataclass
 from typing import Any, Iterable, Optional, Protocol, Union
 
-from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
-from ..core.model import MAX_ASKS_CAP, CoreInputError
 from .ids import check_ask, check_event, check_robot_id
 from .keys import SiteKeys
+from ..core import Belief, fold_events, OutcomeEvent, Result, SiteModel
+from ..core.model import CoreInputError, MAX_ASKS_CAP
 
 
 @dataclass(frozen=True)
@@ -112,6 +112,7 @@ def check_learned(entry: LearnedEntry) -> None:
 
 
 class _Appends(Protocol):
+
     def append(self, event: StoredEvent) -> bool: ...
 
     def append_asks(self, asks: Iterable[AskEvent]) -> list[AskEvent]: ...

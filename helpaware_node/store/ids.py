@@ -12,15 +12,15 @@ from __future__ import annotations
 import functools
 import re
 import sqlite3
-from typing import TYPE_CHECKING, Any
+from typing import Any, TYPE_CHECKING
 
-from ..core.model import CoreInputError, check_range
+from ..core.model import check_range, CoreInputError
 from ..core.preview import quoted
-from ..wire import MAX_ID_CHARS, MAX_LABEL_CHARS, lone_surrogate_at
+from ..wire import lone_surrogate_at, MAX_ID_CHARS, MAX_LABEL_CHARS
 
 if TYPE_CHECKING:   # base.py imports this module
-    from ..core import OutcomeEvent
     from .base import AskEvent, StoredEvent
+    from ..core import OutcomeEvent
 
 MAX_ROBOT_ID_CHARS = 64            # a host name label is at most 63 characters
 MAX_SEQUENCE = 2 ** 63 - 2         # SQLite INTEGER is at most 2**63 - 1; the store keeps seq + 1

@@ -16,12 +16,12 @@ No ROS here: the node wires the wake-up (ros/node_entities.py).
 """
 from __future__ import annotations
 
+from collections import deque
+from dataclasses import dataclass
 import queue
 import sqlite3
 import threading
 import time
-from collections import deque
-from dataclasses import dataclass
 from typing import Any, Callable, Optional
 
 COMPACT_KEYS_PER_COMMIT = 50    # people per commit at most ...

@@ -20,13 +20,13 @@ A file that does not start with that first line is a key of its own (the first f
 from __future__ import annotations
 
 import calendar
+from dataclasses import dataclass
 import hashlib
 import os
+from pathlib import Path
 import stat
 import time
-from dataclasses import dataclass
-from pathlib import Path
-from typing import TYPE_CHECKING, Optional
+from typing import Optional, TYPE_CHECKING
 
 if TYPE_CHECKING:
     from ..signing import KeyRing

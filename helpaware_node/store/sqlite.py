@@ -22,25 +22,25 @@ The log of asks the hard limits count.
 from __future__ import annotations
 
 import contextlib
+from dataclasses import dataclass
 import datetime
 import hashlib
 import json
 import math
 import os
+from pathlib import Path
 import sqlite3
 import threading
 import time
-from dataclasses import dataclass
-from pathlib import Path
 from typing import Any, Iterable, Iterator, Optional, Sequence
 
-from ..core import Belief, OutcomeEvent, Result, SiteModel, fold_events
-from ..core.model import MAX_ASKS_CAP, CoreInputError, from_plain, to_plain
+from .base import AskEvent, check_learned, LearnedEntry, person_key, StoredEvent, StoreHealth
+from .ids import check_ask, check_event, check_robot_id, PERSON_KEY_RE  # noqa: F401 (re-exported)
+from .keys import key_fingerprint, SiteKeyError, SiteKeys
+from .schema import file_version, migrate, StoreVersionError
+from ..core import Belief, fold_events, OutcomeEvent, Result, SiteModel
+from ..core.model import CoreInputError, from_plain, MAX_ASKS_CAP, to_plain
 from ..core.person import fold_next
-from .base import AskEvent, LearnedEntry, StoredEvent, StoreHealth, check_learned, person_key
-from .ids import PERSON_KEY_RE, check_ask, check_event, check_robot_id  # noqa: F401 (re-exported)
-from .keys import SiteKeyError, SiteKeys, key_fingerprint
-from .schema import StoreVersionError, file_version, migrate
 
 DAY_S = 86400.0
 EVENT_COLUMNS = "event_id, person_key, time_s, busyness, ask_load, result, request_kind"

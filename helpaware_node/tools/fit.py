@@ -19,7 +19,7 @@ from ..fit.data import FitInputError, read_outcome_csv
 from ..fit.heldout import kfold
 from ..fit.paramfile import DEFAULT_NODE_NAME, FITTED_NAMES, render_param_file
 from ..fit.progress import Progress
-from ..fit.site_fit import NAMES, context_test, fit_site
+from ..fit.site_fit import context_test, fit_site, NAMES
 from ..text_table import render_table
 
 LONG_FIT_ROWS = 20000

@@ -13,9 +13,9 @@ import sys
 import time
 
 from ..core import CoreInputError
-from ..store import SiteKeyError, default_key_path, load_site_keys, person_key
-from ..store.keys import rotate_signing_key
 from ..signing import utc_text
+from ..store import default_key_path, load_site_keys, person_key, SiteKeyError
+from ..store.keys import rotate_signing_key
 
 DAY_S = 86400.0
 

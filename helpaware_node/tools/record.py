@@ -8,12 +8,12 @@ from __future__ import annotations
 
 import argparse
 import datetime
-import sys
 from pathlib import Path
+import sys
 from typing import Optional
 
 from ..bag import BagWriter
-from ..bag.person_ids import HASHED_MARK, ID_TOPICS, NODE_TOPICS, id_hasher
+from ..bag.person_ids import HASHED_MARK, id_hasher, ID_TOPICS, NODE_TOPICS
 
 
 def load_site_key(path: Optional[str]) -> bytes:
@@ -22,8 +22,7 @@ def load_site_key(path: Optional[str]) -> bytes:
     From --site-key-file, else the store's default key file.  Never created here: a new key would
     not match the store.
     """
-    from ..store import SiteKeyError, default_key_path
-    from ..store import load_site_key as store_load_site_key
+    from ..store import default_key_path, load_site_key as store_load_site_key, SiteKeyError
     try:
         return store_load_site_key(path or None, create=False)
     except SiteKeyError as exc:

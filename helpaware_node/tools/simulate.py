@@ -16,10 +16,16 @@ import sys
 
 from .. import package_data
 from ..core import DecisionConfig, SiteModel
-from ..core.model import to_plain
-from ..core.model import CoreInputError
-from ..sim.compare import (TARGET_LABELS, compare, describe_pair, describe_regret, regret,
-                           summary_table, targets)
+from ..core.model import CoreInputError, to_plain
+from ..sim.compare import (
+    compare,
+    describe_pair,
+    describe_regret,
+    regret,
+    summary_table,
+    TARGET_LABELS,
+    targets,
+)
 from ..sim.encounters import report as encounter_report
 from ..sim.plots import write_plots
 from ..sim.run import SIM_POLICY_NAMES
@@ -85,7 +91,7 @@ def run(args) -> int:
         return 2
     model = config = rules = None
     if args.params:
-        from ..node_param_file import ParamFileError, load_params
+        from ..node_param_file import load_params, ParamFileError
         try:
             loaded = load_params(args.params)
         except ParamFileError as exc:

@@ -13,9 +13,9 @@ import sys
 import time
 
 from ..core import CoreInputError
-from ..store import SiteKeyError, SqliteStore, StoreVersionError, default_store_path, load_site_key
-from ..store.keys import KEY_FILE_NAME
+from ..store import default_store_path, load_site_key, SiteKeyError, SqliteStore, StoreVersionError
 from ..store.export import EXPORT_COLUMNS, write_csv
+from ..store.keys import KEY_FILE_NAME
 from ..text_table import fmt, render_table
 
 

@@ -4,9 +4,8 @@ See installs.py for what they build and why.
 """
 import os
 
+from installs import colcon_command, copy_source, hand_built_prefix, Install, PACKAGE, run_colcon
 import pytest
-
-from installs import Install, PACKAGE, colcon_command, copy_source, hand_built_prefix, run_colcon
 
 
 @pytest.fixture(scope="session")

@@ -10,13 +10,13 @@ process keeps this run's ROS_DOMAIN_ID and ROS_AUTOMATIC_DISCOVERY_RANGE (test/c
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 import importlib.metadata
 import json
 import os
 import shutil
 import subprocess
 import sys
-from dataclasses import dataclass, field
 from typing import Optional
 
 ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", ".."))

@@ -12,10 +12,9 @@ import signal
 import subprocess
 import sys
 
+from installs import PACKAGE, ROOT
 import pytest
 import yaml
-
-from installs import PACKAGE, ROOT
 
 HERE = os.path.dirname(__file__)
 DRIVER = os.path.join(HERE, "..", "cross_process_driver.py")

@@ -10,9 +10,8 @@ import shutil
 import subprocess
 import xml.etree.ElementTree as ET
 
+from installs import build_environment, colcon_command, copy_source, PACKAGE, ROOT
 import pytest
-
-from installs import PACKAGE, ROOT, build_environment, colcon_command, copy_source
 
 TIMEOUT_S = 600
 

@@ -11,10 +11,9 @@ import re
 import subprocess
 import sys
 
-import pytest
-
 import installs
 from installs import hand_built_prefix, launch_testing_missing
+import pytest
 
 LAUNCH_TESTS = sorted(glob.glob(os.path.join(os.path.dirname(__file__), "..", "launch",
                                              "*_launch.py")))

@@ -9,10 +9,9 @@ import os
 import sys
 import unittest
 
-import pytest
-
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, clean_shutdown_test, described_launch, process_environment  # noqa: E402
+from probe import clean_shutdown_test, described_launch, Probe, process_environment  # noqa: E402
+import pytest  # noqa: E402
 
 
 @pytest.mark.launch_test
@@ -21,6 +20,7 @@ def generate_test_description():
 
 
 class TestDecider(unittest.TestCase):
+
     def test_answers_a_help_need_in_the_launch_environment(self, proc_info):
         probe = Probe()
         try:

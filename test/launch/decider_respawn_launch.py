@@ -9,14 +9,12 @@ import signal
 import sys
 import unittest
 
-import pytest
-from launch.events.process import ProcessStarted
-
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, clean_shutdown_test, described_launch  # noqa: E402
-from std_msgs.msg import String  # noqa: E402
-
 from helpaware_node import wire  # noqa: E402
+from launch.events.process import ProcessStarted  # noqa: E402
+from probe import clean_shutdown_test, described_launch, Probe  # noqa: E402
+import pytest  # noqa: E402
+from std_msgs.msg import String  # noqa: E402
 
 
 @pytest.mark.launch_test
@@ -40,6 +38,7 @@ def started_pid(proc_info, action):
 
 
 class TestRespawn(unittest.TestCase):
+
     def test_comes_back_after_sigkill_with_what_it_learned(self, proc_info):
         probe = Probe()
         try:

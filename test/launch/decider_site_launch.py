@@ -8,13 +8,11 @@ import os
 import sys
 import unittest
 
-import pytest
-import yaml
-
-from helpaware_node import wire
-
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, clean_shutdown_test, described_launch  # noqa: E402
+from helpaware_node import wire  # noqa: E402
+from probe import clean_shutdown_test, described_launch, Probe  # noqa: E402
+import pytest  # noqa: E402
+import yaml  # noqa: E402
 
 ARGUMENTS = {"params_file": "hospital_night.yaml", "namespace": "ward3",
              "people_topic": "perception/people"}
@@ -35,6 +33,7 @@ def site_file_values():
 
 
 class TestSiteNamespaceRemap(unittest.TestCase):
+
     def test_namespace_remap_and_site_parameters(self):
         probe = Probe("/ward3", people_topic="perception/people")
         try:

@@ -8,11 +8,10 @@ import os
 import sys
 import unittest
 
-import launch_testing
-import pytest
-
 sys.path.insert(0, os.path.dirname(__file__))
-from probe import Probe, assert_clean_shutdown, described_launch  # noqa: E402
+import launch_testing  # noqa: E402
+from probe import assert_clean_shutdown, described_launch, Probe  # noqa: E402
+import pytest  # noqa: E402
 
 STAND_IN_PEOPLE = {"nurse-ward3-a", "porter-b", "doctor-c"}   # ros/examples/perception.py
 
@@ -24,6 +23,7 @@ def generate_test_description():
 
 
 class TestLoop(unittest.TestCase):
+
     def test_a_need_goes_round_the_loop(self):
         probe = Probe("/loop")
         try:
@@ -45,6 +45,7 @@ class TestLoop(unittest.TestCase):
 
 @launch_testing.post_shutdown_test()
 class TestShutdown(unittest.TestCase):
+
     def test_all_four_stop_cleanly(self, proc_info, proc_output):
         self.assertEqual(len(list(proc_info.processes())), 4)
         assert_clean_shutdown(self, proc_info, proc_output)

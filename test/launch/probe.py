@@ -9,12 +9,11 @@ import json
 import os
 import time
 
+from helpaware_node import wire
 import rclpy
 from rclpy.executors import SingleThreadedExecutor
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
 from std_msgs.msg import String
-
-from helpaware_node import wire
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 VIEW = [{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1},
@@ -30,9 +29,9 @@ def installed_launch_file(name: str) -> str:
 def described_launch(launch_file: str, arguments=None):
     """Return the installed launch file with these arguments, then ReadyToTest."""
     import launch
-    import launch_testing.actions
     from launch.actions import IncludeLaunchDescription
     from launch.launch_description_sources import PythonLaunchDescriptionSource
+    import launch_testing.actions
     return launch.LaunchDescription([
         IncludeLaunchDescription(PythonLaunchDescriptionSource(installed_launch_file(launch_file)),
                                  launch_arguments=(arguments or {}).items()),
@@ -60,6 +59,7 @@ def clean_shutdown_test():
 
     @launch_testing.post_shutdown_test()
     class TestShutdown(unittest.TestCase):
+
         def test_sigint_stops_it_cleanly(self, proc_info, proc_output):
             assert_clean_shutdown(self, proc_info, proc_output)
     return TestShutdown
@@ -73,6 +73,7 @@ def process_environment(pid: int) -> dict:
 
 
 class Probe:
+
     def __init__(self, namespace: str = "", people_topic: str = "people"):
         self.context = rclpy.Context()
         rclpy.init(context=self.context)

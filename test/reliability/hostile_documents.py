@@ -27,13 +27,13 @@ so the same cases drive the hypothesis fuzz at the handlers and seeded runs thro
 """
 from __future__ import annotations
 
+from dataclasses import dataclass
 import json
 import re
 import time
-from dataclasses import dataclass
 from typing import Any, Callable, Sequence
 
-from helpaware_node.signing import SIGNATURE_FIELDS, CanonicalError, KeyRing
+from helpaware_node.signing import CanonicalError, KeyRing, SIGNATURE_FIELDS
 
 UNKNOWN_KEY = "ab" * 32          # a hashed key of nobody the robot knows
 OTHER_KEY = "cd" * 32

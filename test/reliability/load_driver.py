@@ -13,12 +13,12 @@ bounded by a deadline.  The node's RSS (VmRSS) and CPU seconds are sampled once 
 from __future__ import annotations
 
 import argparse
+from dataclasses import dataclass, field
 import json
 import os
 import random
 import sys
 import time
-from dataclasses import dataclass, field
 
 # name -> (people in view, people messages per second, seconds between help needs)
 NOMINAL = (10, 30.0, 10.0)
@@ -80,12 +80,11 @@ def main(argv=None) -> int:
         if ph.level not in LEVELS:
             raise SystemExit(f"--phases: unknown level {ph.level!r} (allowed: {sorted(LEVELS)})")
 
-    import rclpy
     from diagnostic_msgs.msg import DiagnosticArray
-    from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
-    from std_msgs.msg import String
-
     from helpaware_node import wire
+    import rclpy
+    from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
+    from std_msgs.msg import String
 
     reliable = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
     rclpy.init()

@@ -35,12 +35,11 @@ import threading
 import time
 from typing import Optional
 
-import rclpy
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
-from std_msgs.msg import String
-
 from helpaware_node import wire
 from helpaware_node.ros import shm_files
+import rclpy
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
+from std_msgs.msg import String
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 PEOPLE_PERIOD_S = 0.1
@@ -53,6 +52,7 @@ def say(doc: dict) -> None:
 
 
 class LongLivedInputs:
+
     def __init__(self, namespace: str, people: int) -> None:
         self.node = rclpy.create_node("long_lived_inputs", namespace=namespace)
         self.view = [{"id": f"ward-staff-{i:02d}", "distance_m": 1.5 + 0.5 * i,

@@ -12,30 +12,28 @@
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
 import json
 import os
+from pathlib import Path
 import random
 import signal
 import sqlite3
 import subprocess
 import time
-from dataclasses import dataclass, field
-from pathlib import Path
 
+from helpaware_node import wire
+from helpaware_node.core import Belief, fold_events, Result, SiteModel
+from helpaware_node.core.model import from_plain
+from helpaware_node.ros import launch_config
+from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC
+from helpaware_node.store.base import person_key, StoredEvent
 import rclpy
 from rclpy.context import Context
 from rclpy.executors import SingleThreadedExecutor
-from rclpy.qos import QoSProfile, ReliabilityPolicy, qos_profile_sensor_data
-from std_msgs.msg import String
-
-from helpaware_node import wire
-from helpaware_node.core import Belief, Result, SiteModel, fold_events
-from helpaware_node.core.model import from_plain
-from helpaware_node.ros import launch_config
-from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos
-from helpaware_node.store.base import StoredEvent, person_key
-
+from rclpy.qos import qos_profile_sensor_data, QoSProfile, ReliabilityPolicy
 import site_keys
+from std_msgs.msg import String
 
 RELIABLE = QoSProfile(depth=50, reliability=ReliabilityPolicy.RELIABLE)
 SITE_KEY = bytes(range(7, 39))            # fixed 32-byte site key shared by the test robots

@@ -5,15 +5,21 @@ full history rather than against the core's own pruned memory.
 """
 from __future__ import annotations
 
-import os
 from dataclasses import dataclass, field
-
-import numpy as np
+import os
 
 from helpaware_node.core.model import DecisionConfig, SiteModel
-from helpaware_node.core.person import (OutcomeEvent, PersonRecord, Result, keep_recent_asks,
-                                        note_ask, note_candidate, note_outcome)
-from helpaware_node.core.policy import HelpNeed, candidate_from_record, decide
+from helpaware_node.core.person import (
+    keep_recent_asks,
+    note_ask,
+    note_candidate,
+    note_outcome,
+    OutcomeEvent,
+    PersonRecord,
+    Result,
+)
+from helpaware_node.core.policy import candidate_from_record, decide, HelpNeed
+import numpy as np
 
 SOAK = os.environ.get("HELPAWARE_SOAK", "") not in ("", "0")
 

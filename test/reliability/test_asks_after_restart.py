@@ -16,11 +16,21 @@ import pytest
 
 pytest.importorskip("rclpy")
 
-from process_rig import (SHARED_FLEET_TOPIC, SITE_KEY, Drive, Every, Robot,  # noqa: E402
-                         kill_hard, own_fleet_topic, start_node, stop_gently, stored_asks,
-                         write_site_key)
-
-from helpaware_node.store.base import person_key  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node.store.base import person_key  # noqa: E402,I100
+from process_rig import (  # noqa: E402
+    Drive,
+    Every,
+    kill_hard,
+    own_fleet_topic,
+    Robot,
+    SHARED_FLEET_TOPIC,
+    SITE_KEY,
+    start_node,
+    stop_gently,
+    stored_asks,
+    write_site_key,
+)
 
 pytestmark = pytest.mark.ros
 

@@ -12,9 +12,8 @@ import random
 import subprocess
 import sys
 
-import pytest
-
 from helpaware_node.ros import launch_config
+import pytest
 
 pytestmark = pytest.mark.ros
 
@@ -55,7 +54,7 @@ def test_corrupt_yaml_gives_a_message_not_a_traceback(tmp_path):
 
 @pytest.mark.parametrize("line, name", [
     ("    max_asks_per_hour: 3.5\n", "max_asks_per_hour"),      # a double for an integer
-    ("    max_distance_m: \"far\"\n", "max_distance_m"),        # a string for a double
+    ('    max_distance_m: "far"\n', "max_distance_m"),        # a string for a double
     ("    use_sim_time: 1\n", "use_sim_time"),   # rclpy's own parameter (a traceback before)
 ])
 def test_wrong_typed_parameter_file_names_the_parameter(tmp_path, line, name):

@@ -4,11 +4,10 @@ Scenario files (`helpaware simulate`), parameter files (`helpaware review --para
 `helpaware fit` writes). Each gives its own error naming the file and the reason; none escapes as a
 raw yaml, OS or decode error.
 """
-import pytest
-
 from helpaware_node.fit.paramfile import read_param_file
-from helpaware_node.sim.scenario import ScenarioError, load as load_scenario
-from helpaware_node.node_param_file import ParamFileError, parameters_from_yaml
+from helpaware_node.node_param_file import parameters_from_yaml, ParamFileError
+from helpaware_node.sim.scenario import load as load_scenario, ScenarioError
+import pytest
 
 BAD = {
     "unclosed_bracket": (b"a: [1, 2\n", "not valid YAML"),

@@ -12,15 +12,19 @@ So a backward jump cannot open a burst of asks; a forward jump only ages asks as
 """
 from dataclasses import replace
 
-import numpy as np
-import pytest
-
 from helpaware_node.core.belief import Belief
 from helpaware_node.core.model import DecisionConfig, SiteModel
-from helpaware_node.core.person import PersonRecord, keep_recent_asks, note_ask
-from helpaware_node.core.policy import (Candidate, Exclusion, HelpNeed, candidate_from_record,
-                                        decide, evaluate)
-
+from helpaware_node.core.person import keep_recent_asks, note_ask, PersonRecord
+from helpaware_node.core.policy import (
+    Candidate,
+    candidate_from_record,
+    decide,
+    evaluate,
+    Exclusion,
+    HelpNeed,
+)
+import numpy as np
+import pytest
 from reliability_sequence import limit_breaches, retimed, run_sequence, scaled
 
 MODEL = SiteModel(evidence_half_life_s=3600.0)

@@ -25,31 +25,29 @@ import sqlite3
 import sys
 import time
 
-import pytest
-from hypothesis import HealthCheck, given, settings, strategies as st
-from std_msgs.msg import String
-
 from helpaware_node import wire
-from helpaware_node.core import Result, fold_events
-from helpaware_node.fleet_documents import PrivacyAct, encode_document
+from helpaware_node.core import fold_events, Result
+from helpaware_node.fleet_documents import encode_document, PrivacyAct
 from helpaware_node.ros import fleet as fleet_mod
-from helpaware_node.ros.diagnostics import INPUTS, decision_values
+from helpaware_node.ros.diagnostics import decision_values, INPUTS
 from helpaware_node.ros.privacy import PRIVACY_QOS
 from helpaware_node.store import SiteKeys, StoredEvent
 from helpaware_node.store.base import AskEvent
-
 import hostile_documents as hd
+from hypothesis import given, HealthCheck, settings, strategies as st
 from node_harness import Rig
+import pytest
 from reliability_sequence import scaled
 from site_keys import write_site_key
+from std_msgs.msg import String
 
 pytestmark = pytest.mark.ros
 
 EXAMPLES = scaled(300, 3000)        # hypothesis documents per topic and fleet kind
 TOPIC_ROUNDS = scaled(40, 400)      # seeded documents per topic through the real topics
-SETTINGS = dict(deadline=None, derandomize=True, database=None,
-                suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
-                                       HealthCheck.function_scoped_fixture])
+SETTINGS = {"deadline": None, "derandomize": True, "database": None,
+            "suppress_health_check": [HealthCheck.too_slow, HealthCheck.data_too_large,
+                                      HealthCheck.function_scoped_fixture]}
 SITE_KEY = bytes(range(90, 122))
 KEYS = SiteKeys.single(SITE_KEY).key_ring()
 STRANGER = SiteKeys.single(bytes(range(1, 33))).key_ring()
@@ -58,7 +56,7 @@ NAV_TOPIC = "navigate/_action/status"
 KNOWN = [{"id": "nurse-a", "distance_m": 2.0, "busyness": 0.1},
          {"id": "porter-b", "distance_m": 3.0, "busyness": 0.2}]
 DECISION_WAIT_S = 30.0              # "bounded time" for a decision after hostile input
-NO_RATES = {k: 0.0 for k in INPUTS}
+NO_RATES = dict.fromkeys(INPUTS, 0.0)
 
 STATS = {t: {"tried": 0, "refused": 0, "taken": 0, "classes": collections.Counter(),
              "reasons": collections.Counter()} for t in hd.TOPICS}
@@ -451,8 +449,8 @@ def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_p
     An event the store cannot hold (past the decoder, which should have refused it) is found by
     halving and dropped; the store refusing writes keeps every event for the next try.
     """
-    import rclpy
     from helpaware_node.store import SqliteStore
+    import rclpy
     inner = SqliteStore(tmp_path / "s.sqlite3", "r1", SiteKeys.single(SITE_KEY))
     store = FailingStore(inner, culprit="ward4/37")
     node = rclpy.create_node("isolation", context=ctx)
@@ -468,7 +466,7 @@ def test_a_batch_write_that_fails_for_one_event_drops_only_that_event(ctx, tmp_p
         store.full = False
         assert link.flush() == 99 and link.queued_count == 0
         assert link.dropped_bad_events == 1
-        assert set(e.event_id for e in inner.iter_events()) == {
+        assert {e.event_id for e in inner.iter_events()} == {
             e.event_id for e in events} - {"ward4/37"}
         assert store.calls <= 2 + 2 * 7 + 2       # halving: about 2 log2(100) writes
     finally:

@@ -29,23 +29,27 @@ import random
 import re
 import time
 
-import pytest
-from hypothesis import HealthCheck, given, settings, strategies as st
-from std_msgs.msg import String
-
-from helpaware_node import wire
-from helpaware_node.core.model import CoreInputError
-from helpaware_node.fleet_documents import (PRIVACY_KINDS, PrivacyAct, check_fresh,
-                                            decode_document, encode_document, load_document,
-                                            parse_unsigned_request)
-from helpaware_node.ros import fleet as fleet_mod
-from helpaware_node.core import Result
-from helpaware_node.store import AskEvent, SiteKeys, StoredEvent
-
 from document_paths import field_paths, replaced
+from helpaware_node import wire
+from helpaware_node.core import Result
+from helpaware_node.core.model import CoreInputError
+from helpaware_node.fleet_documents import (
+    check_fresh,
+    decode_document,
+    encode_document,
+    load_document,
+    parse_unsigned_request,
+    PRIVACY_KINDS,
+    PrivacyAct,
+)
+from helpaware_node.ros import fleet as fleet_mod
+from helpaware_node.store import AskEvent, SiteKeys, StoredEvent
+from hypothesis import given, HealthCheck, settings, strategies as st
 from node_harness import Rig
+import pytest
 from reliability_sequence import scaled
 from site_keys import write_site_key
+from std_msgs.msg import String
 
 pytestmark = pytest.mark.ros
 
@@ -53,9 +57,9 @@ EXAMPLES = scaled(600, 6000)          # hypothesis examples per topic
 TYPE_EXAMPLES = scaled(150, 1500)      # wrong-type examples per wire topic
 RAW_ROUNDS = scaled(16, 160)           # bursts of garbage per topic through the topics
 BURST = 15                            # garbage messages per burst (below the QoS depths)
-SETTINGS = dict(deadline=None, derandomize=True, database=None,
-                suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large,
-                                       HealthCheck.function_scoped_fixture])
+SETTINGS = {"deadline": None, "derandomize": True, "database": None,
+            "suppress_health_check": [HealthCheck.too_slow, HealthCheck.data_too_large,
+                                      HealthCheck.function_scoped_fixture]}
 
 UNKNOWN_KEY = "ab" * 32               # a hashed key of nobody the node knows
 FLEET_TOPIC = fleet_mod.FLEET_TOPIC
@@ -222,7 +226,7 @@ def fuzz_text(draw, topic: str) -> str:
 @st.composite
 def changed_text(draw, topic: str) -> str:
     doc = seed(topic, draw(st.integers(0, len(SEEDS[topic]) - 1)))
-    paths = [p for p in field_paths(doc)]
+    paths = list(field_paths(doc))
     path = draw(st.sampled_from(paths))
     how = draw(st.sampled_from(["any_value", "huge_number", "long_string", "deep_nesting",
                                 "unicode", "raw_unicode", "duplicate_key", "extra_field",

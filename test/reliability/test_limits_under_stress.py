@@ -5,11 +5,9 @@ an independent ledger of every ask (exact counting, reliability_sequence.limit_b
 opted-out person asked, no re-ask inside min_reask_interval_s, no per-person daily cap or robot
 hourly cap exceeded.
 """
+from helpaware_node.core.model import DecisionConfig, SiteModel
 import numpy as np
 import pytest
-
-from helpaware_node.core.model import DecisionConfig, SiteModel
-
 from reliability_sequence import limit_breaches, run_sequence, scaled
 
 TOTAL = scaled(20_000, 100_000)

@@ -10,6 +10,7 @@ Latency and rates are printed, never asserted (speed belongs in bench/bench_load
 asserts are on the reliable topics and on the store read back with the sqlite3 module after a
 SIGINT, so the check does not go through the store code it checks.
 """
+from collections import Counter
 import hashlib
 import hmac
 import json
@@ -18,12 +19,9 @@ import signal
 import sqlite3
 import subprocess
 import sys
-from collections import Counter
-
-import pytest
 
 from helpaware_node.ros import launch_config
-
+import pytest
 from reliability_sequence import SOAK
 from site_keys import write_site_key
 

@@ -9,12 +9,10 @@ interval in any number the node publishes, every limit holds on the clock the no
 """
 import math
 
+from helpaware_node import wire
+from node_harness import Rig
 from rosgraph_msgs.msg import Clock
 from std_msgs.msg import String
-
-from helpaware_node import wire
-
-from node_harness import Rig
 
 CAP_PER_HOUR = 12
 PEOPLE = [{"id": f"porter-{i:02d}", "distance_m": 1.0 + 0.1 * i, "busyness": 0.0}
@@ -22,11 +20,12 @@ PEOPLE = [{"id": f"porter-{i:02d}", "distance_m": 1.0 + 0.1 * i, "busyness": 0.0
 
 
 class SimClock:
+
     def __init__(self, rig):
         self.rig = rig
         self.pub = rig.driver.create_publisher(Clock, "/clock", 10)
 
-    def set(self, t_s: float) -> None:
+    def set_to(self, t_s: float) -> None:
         msg = Clock()
         msg.clock.sec = int(t_s)
         msg.clock.nanosec = int(round((t_s - int(t_s)) * 1e9))
@@ -71,7 +70,7 @@ def test_paused_sim_clock_gives_no_burst_of_asks(ctx):
     try:
         assert rig.connected()
         clock = SimClock(rig)
-        clock.set(20_000.0)
+        clock.set_to(20_000.0)
         assert rig.show_people(PEOPLE)
         decisions = [_need_and_answer(rig, f"p{k}") for k in range(40)]
         asked = [d["person_id"] for d in decisions if d["action"] == "ask"]
@@ -98,15 +97,15 @@ def test_sim_clock_forward_excursion_and_back_keeps_the_hourly_cap(ctx):
         clock = SimClock(rig)
         asks = 0
         for k in range(CAP_PER_HOUR):
-            clock.set(10_000.0 + 30.0 * k)
+            clock.set_to(10_000.0 + 30.0 * k)
             assert rig.show_people(PEOPLE)
             asks += _need_and_answer(rig, f"a{k}")["action"] == "ask"
         assert asks == CAP_PER_HOUR
-        clock.set(10_000.0 + 5 * 86_400.0)
+        clock.set_to(10_000.0 + 5 * 86_400.0)
         assert rig.show_people(PEOPLE)
         asks += _need_and_answer(rig, "ahead")["action"] == "ask"
         for k in range(6):                                 # back inside the first hour
-            clock.set(10_400.0 + 60.0 * k)
+            clock.set_to(10_400.0 + 60.0 * k)
             assert rig.show_people(PEOPLE)
             d = _need_and_answer(rig, f"b{k}")
             _check_no_negative_interval(d)
@@ -126,12 +125,12 @@ def test_sim_clock_jump_back_asks_nobody_already_asked(ctx):
     try:
         assert rig.connected()
         clock = SimClock(rig)
-        clock.set(50_000.0)
+        clock.set_to(50_000.0)
         assert rig.show_people(PEOPLE)
         first = [_need_and_answer(rig, f"f{k}") for k in range(4)]
         asked = {d["person_id"] for d in first if d["action"] == "ask"}
         assert len(asked) == 4
-        clock.set(40_000.0)
+        clock.set_to(40_000.0)
         assert rig.show_people(PEOPLE)
         later = [_need_and_answer(rig, f"g{k}") for k in range(4)]
         for d in later:
@@ -210,7 +209,7 @@ def test_a_need_before_the_first_clock_waits_then_is_decided_on_a_held_clock(ctx
         mine = lambda: [d for d in rig.decisions[n:] if d["request_id"] == "early"]  # noqa: E731
         rig.spin_until(lambda: bool(mine()), timeout_s=1.0)
         assert not mine()                                # nothing decided on time zero
-        SimClock(rig).set(30_000.0)                      # one reading, then the clock holds
+        SimClock(rig).set_to(30_000.0)                   # one reading, then the clock holds
         assert rig.spin_until(lambda: bool(mine())), "the waiting need was never decided"
         assert abs(mine()[0]["stamp_s"] - 30_000.0) < 1e-6
         seen = len(statuses)

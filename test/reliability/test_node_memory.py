@@ -6,7 +6,6 @@ a dropped record comes back from it when the person is seen again.
 """
 from helpaware_node.core.person import Result
 from helpaware_node.store import StoredEvent
-
 from node_harness import Rig
 
 

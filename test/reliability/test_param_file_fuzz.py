@@ -37,11 +37,10 @@ def batch(manifest_path: str) -> int:
     """Child process: every file of the manifest through rclpy.init and the node."""
     import traceback
 
+    from helpaware_node.ros import params
+    from helpaware_node.ros.node import HelpAwareNode, StartupError
     import rclpy
     from rclpy._rclpy_pybind11 import RCLError
-
-    from helpaware_node.ros.node import HelpAwareNode, StartupError
-    from helpaware_node.ros import params
 
     names = [s.name for s in params.all_specs()]
     with open(manifest_path) as fh:
@@ -95,12 +94,10 @@ if __name__ == "__main__":     # python test_param_file_fuzz.py MANIFEST (the ch
 
 
 # ------------------------------------------------------------------------ the tests
-import pytest  # noqa: E402
-import yaml  # noqa: E402
-
 from helpaware_node.ros import launch_config, params  # noqa: E402
-
-from reliability_sequence import SOAK, scaled  # noqa: E402
+import pytest  # noqa: E402
+from reliability_sequence import scaled, SOAK  # noqa: E402
+import yaml  # noqa: E402
 
 pytestmark = pytest.mark.ros
 

@@ -7,11 +7,10 @@ config or raise CoreInputError naming a parameter it was given; nothing else, ne
 """
 import math
 
-import yaml
-from hypothesis import given, strategies as st
-
 from helpaware_node.core.model import CoreInputError
 from helpaware_node.ros import params
+from hypothesis import given, strategies as st
+import yaml
 
 SPECS = {s.name: s for s in params.all_specs() if s.name != params.KINDS_PARAM}
 NAMES = sorted(SPECS)

@@ -31,13 +31,28 @@ import pytest
 
 pytest.importorskip("rclpy")
 
-from process_rig import (FAST_ASKING, SHARED_FLEET_TOPIC, SITE_KEY, Drive, Every,  # noqa: E402
-                         FleetPeer, Robot, beliefs_in, event_ids, kill_hard, own_fleet_topic,
-                         read_store, staff, start_node, stop_gently, write_site_key)
-from reliability_sequence import SOAK, scaled  # noqa: E402
-
-from helpaware_node import wire  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from helpaware_node import wire  # noqa: E402,I100
 from helpaware_node.core import Belief, SiteModel  # noqa: E402
+from process_rig import (  # noqa: E402
+    beliefs_in,
+    Drive,
+    event_ids,
+    Every,
+    FAST_ASKING,
+    FleetPeer,
+    kill_hard,
+    own_fleet_topic,
+    read_store,
+    Robot,
+    SHARED_FLEET_TOPIC,
+    SITE_KEY,
+    staff,
+    start_node,
+    stop_gently,
+    write_site_key,
+)
+from reliability_sequence import scaled, SOAK  # noqa: E402
 
 pytestmark = pytest.mark.ros
 
@@ -241,11 +256,10 @@ def test_a_burst_of_outcomes_beyond_the_queue_depth_reaches_the_store(ctx, tmp_p
     Regression: 150 answered asks reported at once while the node's executor is not spinning (as
     when a long callback holds it): every outcome is stored, none dropped.
     """
+    from helpaware_node import wire
     from node_harness import Rig
     from rclpy.qos import QoSProfile, ReliabilityPolicy
     from std_msgs.msg import String
-
-    from helpaware_node import wire
 
     n_asks = 150
     rig = Rig(ctx, store_path=str(tmp_path / "burst.sqlite3"), robot_id="burst",

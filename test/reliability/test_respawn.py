@@ -20,7 +20,8 @@ import pytest
 
 pytest.importorskip("rclpy")
 
-from long_lived_inputs import LongLivedProcess  # noqa: E402
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from long_lived_inputs import LongLivedProcess  # noqa: E402,I100
 from process_rig import kill_hard, start_node, stop_gently  # noqa: E402
 
 pytestmark = pytest.mark.ros

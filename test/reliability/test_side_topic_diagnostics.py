@@ -5,12 +5,10 @@ Counted, by reason, the last reason shown, and the status WARN for the period th
 import json
 
 from diagnostic_msgs.msg import DiagnosticStatus
-from std_msgs.msg import String
-
-from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos
+from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC
 from helpaware_node.ros.privacy import PRIVACY_QOS, PRIVACY_TOPIC
-
 from node_harness import Rig
+from std_msgs.msg import String
 
 
 def test_fleet_and_privacy_refusals_are_reported(ctx):

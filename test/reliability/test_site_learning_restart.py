@@ -16,16 +16,21 @@ import pytest
 
 pytest.importorskip("rclpy")
 
-from diagnostic_msgs.msg import DiagnosticArray  # noqa: E402
-from process_rig import (Drive, Robot, SITE_KEY, start_node, stop_gently,  # noqa: E402
-                         write_site_key)
-
+# I100: these come after pytest.importorskip("rclpy"), so after the pytest import
+from diagnostic_msgs.msg import DiagnosticArray  # noqa: E402,I100
 from helpaware_node.fit.online import LEARNED  # noqa: E402
 from helpaware_node.fit.site_likelihood import SiteParams  # noqa: E402
 from helpaware_node.store import SqliteStore  # noqa: E402
 from helpaware_node.store.keys import SiteKeys  # noqa: E402
-
 from learning_events import site  # noqa: E402
+from process_rig import (  # noqa: E402
+    Drive,
+    Robot,
+    SITE_KEY,
+    start_node,
+    stop_gently,
+    write_site_key,
+)
 
 pytestmark = pytest.mark.ros
 

@@ -13,12 +13,10 @@ read-only file mode would not stop the writer; these pragmas do.
 import sqlite3
 
 from diagnostic_msgs.msg import DiagnosticStatus
-
 from helpaware_node.core.belief import Belief
 from helpaware_node.core.person import Result
 from helpaware_node.store import SqliteStore, StoredEvent
 from helpaware_node.store.keys import load_site_key
-
 from node_harness import Rig
 
 NURSE = {"id": "nurse-a", "distance_m": 1.0, "busyness": 0.0}
@@ -196,9 +194,9 @@ def test_fleet_event_during_a_full_store_is_kept_and_not_shared_again(ctx, tmp_p
     has it), so one the store refuses stays queued in the fleet link and is stored once space
     returns; only our own outcome then goes out on the fleet topic, never the peer's copy.
     """
-    from std_msgs.msg import String
     from helpaware_node.fleet_documents import encode_document
-    from helpaware_node.ros.fleet import FLEET_TOPIC, fleet_qos
+    from helpaware_node.ros.fleet import fleet_qos, FLEET_TOPIC
+    from std_msgs.msg import String
     load_site_key(tmp_path / "site_key")
     rig = Rig(ctx, namespace="/fleetfull", store_path=str(tmp_path / "b.sqlite3"),
               robot_id="rP", pending_ask_timeout_s=600.0)

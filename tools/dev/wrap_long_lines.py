@@ -14,7 +14,7 @@ import sys
 import tokenize
 
 sys.path.insert(0, os.path.dirname(__file__))
-from fix_docstrings import DEFAULT_PATHS, MAX_COLUMNS, ROOT, python_files  # noqa: E402
+from fix_docstrings import DEFAULT_PATHS, MAX_COLUMNS, python_files, ROOT  # noqa: E402
 
 
 def break_point(source_lines, row):

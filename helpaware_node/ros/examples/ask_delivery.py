@@ -18,13 +18,14 @@ from typing import Callable, Optional
 from rclpy.node import Node
 from std_msgs.msg import String
 
+from .running import decode_or_warn, RELIABLE, spin_node
 from ... import wire
-from .running import RELIABLE, decode_or_warn, spin_node
 
 RESULTS = ("helped", "declined", "no_response", "could_not_ask")
 
 
 class AskDelivery(Node):
+
     def __init__(self, answer_fn: Optional[Callable[[str], str]] = None, **kwargs):
         super().__init__("ask_delivery", **kwargs)
         answer: str = self.declare_parameter("answer", "helped").value

@@ -19,11 +19,12 @@ from typing import Optional
 from rclpy.node import Node
 from std_msgs.msg import String
 
+from .running import decode_or_warn, RELIABLE, spin_node
 from ... import wire
-from .running import RELIABLE, decode_or_warn, spin_node
 
 
 class BehaviourLayer(Node):
+
     def __init__(self, stuck_period_s: Optional[float] = 0.0, **kwargs):
         super().__init__("behaviour_layer", **kwargs)
         period = float(self.declare_parameter(

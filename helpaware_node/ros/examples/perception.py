@@ -15,8 +15,8 @@ from rclpy.node import Node
 from rclpy.qos import qos_profile_sensor_data
 from std_msgs.msg import String
 
-from ... import wire
 from .running import spin_node
+from ... import wire
 
 DEFAULT_PEOPLE = ("nurse-ward3-a,2.0,0.2,charting", "porter-b,3.5,0.1,idle",
                   "doctor-c,4.5,0.7,walking_fast")
@@ -45,6 +45,7 @@ def parse_people(entries: Sequence[str]) -> list[dict]:
 
 
 class PerceptionStandIn(Node):
+
     def __init__(self, **kwargs):
         super().__init__("example_perception", **kwargs)
         self.people = parse_people(self.declare_parameter("people", list(DEFAULT_PEOPLE)).value)
