@@ -149,3 +149,22 @@ def test_sequential_prediction_after_one_outcome_matches_core_update():
         c2 = math.exp(-(1.0 * 0.7 + 0.5 * 1.0))
         assert pred[0] == pytest.approx(math.exp(-(1.0 * 0.4 + 0.5 * 0.2)) * 0.4, rel=1e-12)
         assert pred[1] == pytest.approx(c2 * after.mean, rel=1e-10)
+
+
+def test_half_life_fixed_on_request_with_ask_times():
+    """fit_half_life=False on data with ask times keeps the half-life given, exactly.
+
+    It raised a TypeError (the half-life passed twice to dataclasses.replace). Checks: the
+    value is the one requested (exact); the fit with h free maximises over one more
+    parameter, so its log-likelihood is at least the fixed fit's (up to the optimiser's
+    tolerance).
+    """
+    truth = SiteParams(2.0, 3.0, 1.5, 0.7, 0.6, 0.7, 3600.0)
+    data = simulate_with_asks(truth, 150, 8, seed=5, unanswered=0.2).data
+    fixed = fit_site(data, half_life_s=1800.0, fit_half_life=False, standard_errors=False)
+    assert fixed.params.ask_memory_half_life_s == 1800.0
+    assert "ask_memory_half_life_s" in fixed.fixed
+    assert "ask_memory_half_life_s" not in fixed.free
+    free = fit_site(data, half_life_s=1800.0, standard_errors=False)
+    assert "ask_memory_half_life_s" in free.free
+    assert free.loglik >= fixed.loglik - 1e-6

@@ -324,8 +324,8 @@ def fit_site(data: OutcomeData, start: SiteParams | None = None, fixed: dict | N
         a, b = moments_start(data)
         start = SiteParams(a, b, 0.5, 0.3, notice_probability if 0 < notice_probability < 1
                            else 0.5, 0.5, start_h)
-    start = replace(start, ask_memory_half_life_s=start_h,
-                    **fixed_values)
+    # the fixed values last: a half-life fixed on request (or by the caller) wins over start_h
+    start = replace(start, **{"ask_memory_half_life_s": start_h, **fixed_values})
     theta0 = to_theta(start)
     free = np.array([name not in fixed_values for name in NAMES])
     if not lik.use_reporting_factor:
