@@ -30,6 +30,7 @@ PYTHON_MODULES = {
     "pytest": ("python3-pytest", "pytest"),
     "hypothesis": ("python3-hypothesis", "hypothesis"),
     "jsonschema": ("python3-jsonschema", "jsonschema"),
+    "flake8": ("python3-flake8", "flake8"),
 }
 # imported where present, else the code takes another path (and says so)
 OPTIONAL = {"compression": "Python 3.14's zstd; backports.zstd before",
