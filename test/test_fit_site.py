@@ -1,3 +1,17 @@
+# Copyright 2026 The helpaware_node authors
+#
+# Licensed under the Apache License, Version 2.0 (the "License");
+# you may not use this file except in compliance with the License.
+# You may obtain a copy of the License at
+#
+#     http://www.apache.org/licenses/LICENSE-2.0
+#
+# Unless required by applicable law or agreed to in writing, software
+# distributed under the License is distributed on an "AS IS" BASIS,
+# WITHOUT WARRANTIES OR CONDITIONS OF ANY KIND, either express or implied.
+# See the License for the specific language governing permissions and
+# limitations under the License.
+
 """Site-model fit: marginal likelihood by Gauss-Jacobi quadrature, optimiser, SEs, LR test.
 
 Outside sources named beside each check: BDA3 Table 5.1 with the computed Beta-binomial
