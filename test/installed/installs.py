@@ -37,8 +37,8 @@ ROOT = os.path.abspath(os.path.join(os.path.dirname(__file__), "..", ".."))
 PACKAGE = "helpaware_node"
 VENDOR_LAUNCH = os.path.normpath(os.path.join(ROOT, "..", "shared", "vendor", "ros-launch"))
 # what a clone holds that the build reads (setup.py data_files, package.xml, the code)
-SOURCE_ENTRIES = ("setup.py", "setup.cfg", "package.xml", "README.md", "resource", PACKAGE,
-                  "launch", "config", "scenarios", "docs", "rosdep")
+SOURCE_ENTRIES = ("setup.py", "setup.cfg", "package.xml", "README.md", "LICENSE", "resource",
+                  PACKAGE, "launch", "config", "scenarios", "docs", "rosdep")
 DDS_KEYS = ("ROS_DOMAIN_ID", "ROS_AUTOMATIC_DISCOVERY_RANGE")
 BUILD_TIMEOUT_S = 600
 
