@@ -256,3 +256,30 @@ def test_all_beliefs_in_one_query_match_each_belief(tmp_path):
     everyone = store.beliefs()
     assert set(everyone) == set(store.keys()) and len(everyone) == 4
     assert all(everyone[k] == store.belief(k) for k in everyone)
+
+
+def test_a_refold_that_fails_at_a_read_leaves_no_transaction_open(tmp_path, monkeypatch):
+    """The refresh of a snapshot cached under another model rolls back when the refold fails.
+
+    Before, its BEGIN IMMEDIATE stayed open, and every later write on the connection failed
+    ("cannot start a transaction within a transaction").
+    """
+    store = make_store(tmp_path)
+    key = store.key_for("porter-1")
+    assert store.append(StoredEvent(store.next_event_id(), key, 10.0, Result.HELPED, 0.1, 0.0))
+    store.use_model(SiteModel(prior_a=3.0, evidence_half_life_s=7200.0))   # snapshot is stale
+
+    def broken(c, k):
+        c.execute("UPDATE snapshot SET a = -1 WHERE person_key = ?", (k,))
+        raise sqlite3.OperationalError("disk I/O error")
+    monkeypatch.setattr(store, "_refold", broken)
+    with pytest.raises(sqlite3.OperationalError):
+        store.belief(key)
+    assert not store._conn.in_transaction
+    monkeypatch.undo()
+    # the half-done write was rolled back, and the store writes again
+    assert store.append(StoredEvent(store.next_event_id(), key, 20.0, Result.DECLINED, 0.2, 0.0))
+    model = SiteModel(prior_a=3.0, evidence_half_life_s=7200.0)
+    assert store.belief(key) == fold_events(
+        [e.to_outcome() for e in store.events_for(key)], model)
+    store.close()

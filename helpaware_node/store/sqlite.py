@@ -451,10 +451,8 @@ class SqliteStore:
             if snap is None:
                 return Belief.prior(model), None
             if snap[3] != self._model_hash:     # cached under an older model: refresh
-                with self._write_gate:
-                    c.execute("BEGIN IMMEDIATE")
-                    self._refold(c, key)
-                    c.execute("COMMIT")
+                with self._batch() as tx:       # a failed refold rolls back, never left open
+                    self._refold(tx, key)
                 snap = c.execute("SELECT a, b, last_time_s FROM snapshot WHERE person_key = ?",
                                  (key,)).fetchone()
             return Belief(snap[0], snap[1]), snap[2]
