@@ -47,7 +47,7 @@ def test_worker_environment_sets_one_thread_only_where_unset():
         "OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
 
 
-@pytest.mark.parametrize("user_omp", [None, "3"])
+@pytest.mark.parametrize("user_omp", [None, "3", ""])
 def test_the_spawned_worker_runs_with_one_blas_thread_unless_the_user_set_it(monkeypatch,
                                                                              user_omp):
     for name in BLAS_THREAD_VARS:
@@ -62,5 +62,6 @@ def test_the_spawned_worker_runs_with_one_blas_thread_unless_the_user_set_it(mon
         worker.stop()
     assert status == "ok"
     assert seen == {"OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1",
-                    "OMP_NUM_THREADS": user_omp or "1"}
-    assert dict(os.environ) == before           # the node's environment is as it was
+                    "OMP_NUM_THREADS": user_omp or "1"}   # empty counts as unset
+    assert dict(os.environ) == before           # the node's environment is as it was (an
+    #                                             empty value too)

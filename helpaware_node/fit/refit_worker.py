@@ -52,13 +52,16 @@ def _started_with(extra: Mapping[str, str]) -> Iterator[None]:
     The node's own BLAS was loaded long before, so its thread count does not change.
     """
     with _START_LOCK:
-        for name, value in extra.items():
-            os.environ[name] = value
+        before = {name: os.environ.get(name) for name in extra}   # "" is kept as it was
+        os.environ.update(extra)
         try:
             yield
         finally:
-            for name in extra:
-                os.environ.pop(name, None)
+            for name, value in before.items():
+                if value is None:
+                    os.environ.pop(name, None)
+                else:
+                    os.environ[name] = value
 
 
 class BlasProbe:
