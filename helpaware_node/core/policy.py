@@ -274,8 +274,13 @@ def _typical_constants(model: SiteModel, config: DecisionConfig,
 def typical_gain(mean: ArrayLike, model: SiteModel, config: DecisionConfig,
                  help_time_s: float) -> Floats:
     """U(m): advantage of the best choice at a typical future request (never below 0)."""
-    alpha, beta, _ = typical_terms(mean, model, config, help_time_s)
-    return np.maximum(0.0, alpha - beta)
+    gain, beta, _ = _typical_constants(model, config, help_time_s)
+    return _typical_advantage(np.asarray(mean, dtype=float), gain, beta)
+
+
+def _typical_advantage(mean: Floats, gain: float, beta: float) -> Floats:
+    """U(m) = max(0, gain m - beta) from `_typical_constants` (typical_gain and the VOI)."""
+    return np.maximum(0.0, gain * mean - beta)
 
 
 def information_value(a: ArrayLike, b: ArrayLike, c: Floats, model: SiteModel,
@@ -295,13 +300,11 @@ def _information_value(a: Floats, b: Floats, c: Floats, s: Floats, m: Floats, p:
     s1 = s + 1.0
     m_helped = (a + 1.0) / s1
     m_declined = declined_mean_from(a, b, c, s, m, s1)
-    # typical_gain of the three means, its constants worked out once (the same arithmetic)
+    # typical_gain of the three means, its constants worked out once
     gain, beta, _ = _typical_constants(model, config, help_time_s)
-
-    def u(x: Floats) -> Floats:
-        return np.maximum(0.0, gain * x - beta)
-
-    voi: Floats = p * u(m_helped) + (1.0 - p) * u(m_declined) - u(m)
+    voi: Floats = (p * _typical_advantage(m_helped, gain, beta)
+                   + (1.0 - p) * _typical_advantage(m_declined, gain, beta)
+                   - _typical_advantage(m, gain, beta))
     # U is convex and the mean a martingale, so VOI >= 0; clip only rounding noise
     return np.maximum(voi, 0.0)
 
