@@ -49,6 +49,7 @@ NODE_KEY = "/**/helpaware_decider:"
 
 def batch(manifest_path: str) -> int:
     """Child process: every file of the manifest through rclpy.init and the node."""
+    import gc
     import traceback
 
     from helpaware_node.ros import params
@@ -98,6 +99,11 @@ def batch(manifest_path: str) -> int:
             except Exception:
                 out.update(outcome="other", message="at context shutdown: "
                            + traceback.format_exc())
+        # the cycles a node leaves (its callbacks and helpers hold it) are collected here, with
+        # no rcl call in progress: collected by chance inside the next file's declare_parameter,
+        # the finaliser of a handle of the shut-down context hung a child (faulthandler: in
+        # "Garbage-collecting" under rclpy's to_parameter_msg), once in a few thousand files
+        gc.collect()
         out["seconds"] = time.monotonic() - t0
         print(json.dumps(out, default=repr), flush=True)
     return 0
